@@ -1,0 +1,5 @@
+import sys
+
+from fitdrag.cli import main
+
+sys.exit(main())
