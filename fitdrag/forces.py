@@ -61,6 +61,11 @@ class DragModel:
         Reynolds-number range where the law is valid; outside it a fit is refused.
     reference : str
         Published source of the law.
+    description : str
+        One line for tables and reports.
+    constants_from_re : callable, optional
+        ``f(re_values) -> constants``: how the fit sets the constants from the Reynolds
+        numbers of a first-pass flight (e.g. the median Re as reference).
     """
 
     name: str
@@ -72,6 +77,15 @@ class DragModel:
     re_range: tuple[float, float] = (0.0, math.inf)
     reference: str = ""
     description: str = ""
+    constants_from_re: Callable | None = field(default=None, repr=False)
+
+    def constants_for(self, re_values) -> tuple[float, ...]:
+        """Constants for a flight whose Reynolds numbers are ``re_values`` (e.g. a median Re)."""
+        if not self.constants:
+            return ()
+        if self.constants_from_re is None:
+            raise ValueError(f"drag model {self.name!r}: no rule to set its constants.")
+        return tuple(float(c) for c in self.constants_from_re(np.asarray(re_values, float)))
 
     def cd(self, re, p) -> np.ndarray:
         """Evaluate C_d at Reynolds numbers ``re`` with parameters ``p`` (fitted + constants)."""
