@@ -141,7 +141,7 @@ class Track:
             if bad.size:
                 raise ValueError(
                     f"{name}: {bad.size} non-finite value(s), first at index {bad[0]} "
-                    f"(value {arr[bad[0]]}); drop or repair those samples first."
+                    f"(value {float(arr[bad[0]])!r}); drop or repair those samples first."
                 )
         if len(t) < MIN_POINTS:
             raise ValueError(
@@ -154,8 +154,8 @@ class Track:
             kind = "duplicate" if dt[i] == 0 else "decreasing"
             raise ValueError(
                 f"t: times must increase strictly; {kind} time at index {i + 1} "
-                f"(t[{i}] = {t[i]!r}, t[{i + 1}] = {t[i + 1]!r}); sort the samples or remove "
-                f"repeated frames."
+                f"(t[{i}] = {float(t[i])!r}, t[{i + 1}] = {float(t[i + 1])!r}); sort the "
+                f"samples or remove repeated frames."
             )
         sigma = self.sigma
         if sigma is not None:
@@ -171,7 +171,8 @@ class Track:
             if not np.all(np.isfinite(sigma)) or np.any(sigma <= 0):
                 raise ValueError(
                     f"sigma: every position uncertainty must be finite and > 0 m, "
-                    f"got min {np.nanmin(sigma)!r}; leave sigma out to estimate the noise."
+                    f"got min {float(np.nanmin(sigma))!r}; leave sigma out to estimate the "
+                    f"noise."
                 )
         frame = self.frame
         if frame is not None:
@@ -748,7 +749,7 @@ def read_track(
         kind = "repeats" if dt[k] == 0 else "is earlier than"
         more = f" ({bad.size} such places in all)" if bad.size > 1 else ""
         if jt is not None:
-            a, b = f"t = {t[k + 1]!r} s", f"t = {t[k]!r} s"
+            a, b = f"t = {float(t[k + 1])!r} s", f"t = {float(t[k])!r} s"
         else:
             a, b = f"frame {int(frame[k + 1])}", f"frame {int(frame[k])}"
         raise ValueError(

@@ -1,0 +1,900 @@
+"""Tests of fitdrag.tracks (Track, CSV import/export) and the shared CLI import options.
+
+Each test says what it checks against:
+- closed-form/independent: the expected numbers are worked out by hand in the test (unit
+  conversions, frame/fps) or are the input itself (exact round trip);
+- published-value: a value printed in a standard;
+- regression: fixed behaviour (mostly exact error messages) that must not change unnoticed.
+"""
+
+from __future__ import annotations
+
+import argparse
+import copy
+import hashlib
+import io
+import math
+import os
+import pickle
+import re
+import tempfile
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from fitdrag.commands._import_options import (
+    add_import_options,
+    import_options_from_args,
+    read_tracks_from_args,
+)
+from fitdrag.tracks import (
+    MIN_POINTS,
+    OutputExistsError,
+    Track,
+    TrackImportWarning,
+    file_sha256,
+    read_track,
+    write_track,
+)
+
+
+def exact(msg: str) -> str:
+    """Regex matching exactly ``msg`` (the whole message)."""
+    return "^" + re.escape(msg) + "$"
+
+
+def write(tmp_path: Path, text: str, name: str = "track.csv") -> Path:
+    p = tmp_path / name
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def rows(n: int = 10, delim: str = ",", header: str = "t,x,y") -> str:
+    """A simple synthetic track: t = k/100 s, x = k, y = 2k (file units)."""
+    lines = [header.replace(",", delim)]
+    for k in range(n):
+        lines.append(delim.join([repr(k / 100), str(k), str(2 * k)]))
+    return "\n".join(lines) + "\n"
+
+
+# ------------------------------------------------------------------------------------------
+# Round trip
+# ------------------------------------------------------------------------------------------
+
+
+def _same_bits(a: np.ndarray, b: np.ndarray) -> bool:
+    return a.dtype == b.dtype and a.shape == b.shape and a.tobytes() == b.tobytes()
+
+
+def test_round_trip_exact_with_frames_and_sigma(tmp_path):
+    """closed-form/independent: written values read back bit for bit (identity)."""
+    rng = np.random.default_rng(7)
+    n = 40
+    t = 0.123456789 + np.arange(n) / 487.3
+    x = rng.normal(size=n) * 1e-3 + np.linspace(0, 3, n)
+    y = -(rng.normal(size=n) ** 3) * 1e7
+    sigma = rng.uniform(1e-9, 1e-2, size=n)
+    frame = np.arange(n) * 3 + 1000
+    tr = Track(t, x, y, sigma=sigma, frame=frame, meta={"scale_relative_uncertainty": 0.0012})
+    out = write_track(tr, tmp_path / "out.csv")
+    assert out == tmp_path / "out.csv"
+    back = read_track(out)
+    for a, b in ((tr.t, back.t), (tr.x, back.x), (tr.y, back.y), (tr.sigma, back.sigma)):
+        assert _same_bits(a, b)
+    assert np.array_equal(back.frame, frame)
+    assert back.meta["scale_relative_uncertainty"] == 0.0012
+    assert back.meta["import"]["frame_col"] == "frame"
+    assert back.meta["import"]["sigma_col"] == "sigma"
+
+
+def test_write_track_layout_and_header(tmp_path):
+    """regression: column order, header comment lines and repr-exact floats."""
+    src = write(tmp_path, "# lab: synthetic hall B\n" + rows(), "in.csv")
+    tr = read_track(src)
+    text = write_track(tr, tmp_path / "out.csv").read_text()
+    lines = text.splitlines()
+    comments = [ln for ln in lines if ln.startswith("#")]
+    assert comments[0] == "# format: fitdrag track; t [s]; x, y, sigma [m]; world frame, y up"
+    assert comments[1].startswith("# written_by: fitdrag ")
+    assert "# lab: synthetic hall B" in comments
+    assert f"# source: {src}" in comments
+    assert f"# source_sha256: {file_sha256(src)}" in comments
+    data = [ln for ln in lines if not ln.startswith("#")]
+    assert data[0] == "t,x,y"
+    assert data[4] == "0.03,3.0,6.0"
+    assert len(data) == 11
+    back = read_track(tmp_path / "out.csv")
+    assert back.frame is None and back.sigma is None
+    assert back.meta["header"]["lab"] == "synthetic hall B"
+    assert back.meta["header"]["source"] == str(src)
+
+
+finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
+
+
+@st.composite
+def tracks(draw):
+    n = draw(st.integers(min_value=MIN_POINTS, max_value=30))
+    t = sorted(draw(st.sets(finite, min_size=n, max_size=n)))
+    x = draw(st.lists(finite, min_size=n, max_size=n))
+    y = draw(st.lists(finite, min_size=n, max_size=n))
+    sigma = None
+    if draw(st.booleans()):
+        pos = st.floats(min_value=5e-324, max_value=1e300, allow_nan=False)
+        sigma = draw(st.lists(pos, min_size=n, max_size=n))
+    frame = None
+    if draw(st.booleans()):
+        start = draw(st.integers(min_value=-(10**9), max_value=10**9))
+        frame = start + np.cumsum(draw(st.lists(st.integers(1, 50), min_size=n, max_size=n)))
+    return Track(t, x, y, sigma=sigma, frame=frame)
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(tracks())
+def test_round_trip_property(tr):
+    """closed-form/independent: any valid track round-trips exactly (identity)."""
+    with tempfile.TemporaryDirectory() as d:
+        back = read_track(write_track(tr, Path(d) / "p.csv"))
+    assert _same_bits(tr.t, back.t)
+    assert _same_bits(tr.x, back.x)
+    assert _same_bits(tr.y, back.y)
+    if tr.sigma is None:
+        assert back.sigma is None
+    else:
+        assert _same_bits(tr.sigma, back.sigma)
+    if tr.frame is None:
+        assert back.frame is None
+    else:
+        assert np.array_equal(tr.frame, back.frame)
+
+
+# ------------------------------------------------------------------------------------------
+# Import options
+# ------------------------------------------------------------------------------------------
+
+
+def test_defaults_meta_and_hash(tmp_path):
+    """published-value: SHA-256("abc") from FIPS 180-2 (2002), Appendix B.1; the rest
+    closed-form/independent (hashlib on the same bytes, values typed by hand)."""
+    abc = tmp_path / "abc.bin"
+    abc.write_bytes(b"abc")
+    assert file_sha256(abc) == ("ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad")
+    p = write(tmp_path, rows())
+    tr = read_track(p)
+    assert np.array_equal(tr.t, [k / 100 for k in range(10)])
+    assert np.array_equal(tr.x, np.arange(10.0))
+    assert np.array_equal(tr.y, 2 * np.arange(10.0))
+    assert tr.frame is None and tr.sigma is None
+    assert tr.meta["source"] == str(p)
+    assert tr.meta["sha256"] == hashlib.sha256(p.read_bytes()).hexdigest() == file_sha256(p)
+    assert tr.meta["dropped_rows"] == []
+    assert tr.meta["header"] == {}
+    assert tr.meta["import"] == {
+        "t_col": "t",
+        "x_col": "x",
+        "y_col": "y",
+        "frame_col": None,
+        "sigma_col": None,
+        "time_from": "column",
+        "fps": None,
+        "units": "m",
+        "scale": None,
+        "origin": [0.0, 0.0],
+        "y_down": False,
+        "delimiter": ",",
+        "comment": "#",
+        "strict": False,
+        "encoding": "utf-8",
+    }
+
+
+def test_column_names_case_insensitive_and_stripped(tmp_path):
+    """closed-form/independent: values typed by hand."""
+    p = write(tmp_path, rows(header=" Time_s , POS X ,pos_y"))
+    tr = read_track(p, t_col="time_s", x_col="pos x", y_col=" POS_Y ")
+    assert np.array_equal(tr.x, np.arange(10.0))
+    assert tr.meta["import"]["x_col"] == "POS X"
+
+
+def test_times_from_frames_not_shifted(tmp_path):
+    """closed-form/independent: t = frame / fps with frames 120..131 at 250 Hz."""
+    lines = ["Frame,x,y"] + [f"{120 + k},{k},{k}" for k in range(12)]
+    p = write(tmp_path, "\n".join(lines))
+    tr = read_track(p, frame_col="frame", fps=250.0)
+    assert np.array_equal(tr.t, (120 + np.arange(12)) / 250.0)
+    assert tr.t[0] == 0.48
+    assert np.array_equal(tr.frame, 120 + np.arange(12))
+    assert tr.meta["import"]["time_from"] == "frames"
+    # auto-detected "frame" column works too, without naming it
+    tr2 = read_track(p, fps=250.0)
+    assert np.array_equal(tr2.t, tr.t)
+
+
+def test_t_col_none_uses_frames_even_with_time_column(tmp_path):
+    """closed-form/independent: frame 5..14 at 100 Hz gives 0.05..0.14 s."""
+    lines = ["frame,t,x,y"] + [f"{5 + k},{k},{k},{k}" for k in range(10)]
+    p = write(tmp_path, "\n".join(lines))
+    tr = read_track(p, t_col=None, fps=100)
+    assert np.array_equal(tr.t, (5 + np.arange(10)) / 100)
+    # with the time column present, the time column wins (frame still read) and fps warns
+    with pytest.warns(TrackImportWarning, match="is not used because the file has a time"):
+        tr2 = read_track(p, fps=100)
+    assert np.array_equal(tr2.t, np.arange(10.0))
+    assert np.array_equal(tr2.frame, 5 + np.arange(10))
+
+
+@pytest.mark.parametrize(("units", "divisor"), [("m", 1.0), ("mm", 1000.0), ("cm", 100.0)])
+def test_length_units(tmp_path, units, divisor):
+    """closed-form/independent: 1 mm = 1e-3 m, 1 cm = 1e-2 m (SI definitions)."""
+    lines = ["t,x,y,sigma"] + [f"{k},{3 * k + 1},{-k},{0.5}" for k in range(10)]
+    tr = read_track(write(tmp_path, "\n".join(lines)), units=units)
+    assert np.array_equal(tr.x, (3 * np.arange(10) + 1) / divisor)
+    assert np.array_equal(tr.y, -np.arange(10.0) / divisor)
+    assert np.array_equal(tr.sigma, np.full(10, 0.5) / divisor)
+
+
+def test_pixels_with_origin_and_y_down(tmp_path):
+    """closed-form/independent: x = (x_px - 640) * s, y = -(y_px - 360) * s, s = 0.5 mm/px."""
+    s = 0.0005
+    lines = ["t,u,v,err"] + [f"{k / 500},{640 + 10 * k},{360 - 4 * k * k},2" for k in range(10)]
+    p = write(tmp_path, "\n".join(lines))
+    tr = read_track(
+        p, x_col="u", y_col="v", sigma_col="err", units="px", scale=s, origin=(640, 360),
+        y_down=True,
+    )  # fmt: skip
+    k = np.arange(10)
+    np.testing.assert_allclose(tr.x, 10 * k * s, rtol=1e-15, atol=0)
+    np.testing.assert_allclose(tr.y, 4 * k * k * s, rtol=1e-15, atol=0)
+    assert tr.y[0] == 0.0 and math.copysign(1.0, tr.y[0]) == 1.0  # no -0.0
+    np.testing.assert_allclose(tr.sigma, 2 * s, rtol=1e-15)
+    # same file, y axis already up: y = (y_px - 360) * s
+    up = read_track(p, x_col="u", y_col="v", units="px", scale=s, origin=(640, 360))
+    np.testing.assert_allclose(up.y, -4 * k * k * s, rtol=1e-15, atol=0)
+    assert up.sigma is None
+
+
+def test_y_down_without_pixels(tmp_path):
+    """closed-form/independent: y_down with mm flips the sign after the unit conversion."""
+    tr = read_track(write(tmp_path, rows()), units="mm", y_down=True)
+    assert np.array_equal(tr.y, -2 * np.arange(10) / 1000)
+
+
+def test_comments_header_meta_and_scale_uncertainty(tmp_path):
+    """closed-form/independent: values typed by hand."""
+    text = (
+        "# tracker: synthetic bench tracker v2\n"
+        "  # scale_relative_uncertainty: 0.0012\n"
+        "# a free comment line without key\n"
+        "\n"
+        "t,x,y\n"
+        "# a comment between rows\n" + "\n".join(rows().splitlines()[1:6]) + "\n"
+        "   # indented comment\n" + "\n".join(rows().splitlines()[6:]) + "\n"
+        "# trailing: not header meta\n"
+    )
+    tr = read_track(write(tmp_path, text))
+    assert len(tr) == 10
+    assert tr.meta["header"] == {
+        "tracker": "synthetic bench tracker v2",
+        "scale_relative_uncertainty": "0.0012",
+    }
+    assert tr.meta["scale_relative_uncertainty"] == 0.0012
+    # another comment prefix
+    tr2 = read_track(write(tmp_path, text.replace("#", "%"), "b.csv"), comment="%")
+    assert tr2.meta["scale_relative_uncertainty"] == 0.0012
+
+
+@pytest.mark.parametrize(
+    ("delim", "given", "name"),
+    [
+        (",", None, ","),
+        (";", None, ";"),
+        ("\t", None, "tab"),
+        (" ", None, "whitespace"),
+        ("   ", None, "whitespace"),
+        (";", ";", ";"),
+        ("\t", "tab", "tab"),
+        ("\t", "\\t", "tab"),
+        (" ", "whitespace", "whitespace"),
+        ("|", "|", "|"),
+    ],
+)
+def test_delimiters(tmp_path, delim, given, name):
+    """closed-form/independent: same values whatever the separator."""
+    tr = read_track(write(tmp_path, rows(delim=delim)), delimiter=given)
+    assert np.array_equal(tr.y, 2 * np.arange(10.0))
+    assert tr.meta["import"]["delimiter"] == name
+
+
+def test_quoted_header_bom_crlf_and_trailing_delimiter(tmp_path):
+    """regression: common spreadsheet export quirks."""
+    body = '"t","x","y",\r\n' + "".join(f"{k},{k},{k},\r\n" for k in range(9))
+    p = tmp_path / "q.csv"
+    p.write_bytes(b"\xef\xbb\xbf" + body.encode())
+    tr = read_track(p)
+    assert np.array_equal(tr.x, np.arange(9.0))
+
+
+def test_blank_and_nan_rows_dropped_with_warning(tmp_path):
+    """regression: rows with blank/NaN cells are dropped, named by 1-based line number."""
+    lines = rows(12).splitlines()
+    lines[3] = "0.02,,4"  # line 4
+    lines[7] = "0.06,6,NaN"  # line 8
+    lines[9] = "0.08,8"  # line 10 (short row)
+    p = write(tmp_path, "\n".join(lines))
+    msg = f"{p}: dropped 3 row(s) with blank or NaN cells (in 'x', 'y') at line(s) 4, 8, 10."
+    with pytest.warns(TrackImportWarning, match=exact(msg)):
+        tr = read_track(p)
+    assert len(tr) == 9
+    assert tr.meta["dropped_rows"] == [4, 8, 10]
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: 3 row(s) with blank or NaN cells (in 'x', 'y') at line(s) 4, 8, 10; fill in or "
+        f"delete those rows, or leave out --strict (strict=False) to drop them."
+    )):  # fmt: skip
+        read_track(p, strict=True)
+
+
+def test_unused_columns_are_not_checked(tmp_path):
+    """regression: text and blanks in columns not asked for are ignored."""
+    lines = ["t,x,y,label"] + [f"{k},{k},{k},{'' if k % 2 else 'ok'}" for k in range(9)]
+    tr = read_track(write(tmp_path, "\n".join(lines)))
+    assert len(tr) == 9 and tr.meta["dropped_rows"] == []
+
+
+# ------------------------------------------------------------------------------------------
+# Import errors (exact messages)
+# ------------------------------------------------------------------------------------------
+
+
+def test_error_missing_file(tmp_path):
+    """regression"""
+    p = tmp_path / "nope.csv"
+    with pytest.raises(FileNotFoundError, match=exact(
+        f"{p}: no such file; check the path of the track file."
+    )):  # fmt: skip
+        read_track(p)
+    with pytest.raises(FileNotFoundError, match=exact(
+        f"{p}: no such file; check the path of the track file."
+    )):  # fmt: skip
+        file_sha256(p)
+
+
+def test_error_directory(tmp_path):
+    """regression"""
+    with pytest.raises(ValueError, match=exact(
+        f"{tmp_path}: is a directory, not a track file; give the path of a CSV file."
+    )):  # fmt: skip
+        read_track(tmp_path)
+
+
+@pytest.mark.parametrize("text", ["", "\n\n  \n", "# only: comments\n# here\n"])
+def test_error_empty_file(tmp_path, text):
+    """regression"""
+    p = write(tmp_path, text)
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: the file is empty (no header line and no data); export the track again with a "
+        f"header line such as 't,x,y'."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_header_only(tmp_path):
+    """regression: a header without data rows is 0 usable points."""
+    p = write(tmp_path, "t,x,y\n")
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: 0 usable point(s), at least 8 are needed for a fit; use a longer stretch of "
+        f"the flight."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_no_header(tmp_path):
+    """regression"""
+    p = write(tmp_path, "\n".join(rows().splitlines()[1:]))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 1: the first line holds numbers, not column names; add a header line such "
+        f"as 't,x,y' naming the columns."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_missing_x_column(tmp_path):
+    """regression"""
+    p = write(tmp_path, rows(header="t,X_px,y"))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: no column named 'x' (columns found: 't', 'X_px', 'y'); set --x-column (x_col=) "
+        f"to the name of the column."
+    )):  # fmt: skip
+        read_track(p)
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "option", "kwarg", "name"),
+    [
+        ({"y_col": "height"}, "--y-column", "y_col", "height"),
+        ({"frame_col": "idx"}, "--frame-column", "frame_col", "idx"),
+        ({"sigma_col": "u"}, "--sigma-column", "sigma_col", "u"),
+    ],
+)
+def test_error_missing_other_columns(tmp_path, kwargs, option, kwarg, name):
+    """regression"""
+    p = write(tmp_path, rows())
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: no column named {name!r} (columns found: 't', 'x', 'y'); set {option} "
+        f"({kwarg}=) to the name of the column."
+    )):  # fmt: skip
+        read_track(p, **kwargs)
+
+
+def test_error_missing_time_column(tmp_path):
+    """regression: the three ways out are named according to what is missing."""
+    p = write(tmp_path, rows(header="time,x,y"))
+    head = (
+        f"{p}: no column named 't' (columns found: 'time', 'x', 'y'); set --t-column (t_col=) "
+        f"to the name of the time column, or, to compute times as frame / frame rate, "
+    )
+    with pytest.raises(ValueError, match=exact(
+        head + "name the frame-number column with --frame-column (frame_col=) and give the "
+        "frame rate in Hz with --frame-rate (fps=)."
+    )):  # fmt: skip
+        read_track(p)
+    with pytest.raises(ValueError, match=exact(
+        head + "name the frame-number column with --frame-column (frame_col=)."
+    )):  # fmt: skip
+        read_track(p, fps=100)
+    p2 = write(tmp_path, rows(header="frame,x,y"), "f.csv")
+    with pytest.raises(ValueError, match=exact(
+        f"{p2}: no column named 't' (columns found: 'frame', 'x', 'y'); set --t-column (t_col=) "
+        f"to the name of the time column, or, to compute times as frame / frame rate, give "
+        f"the frame rate in Hz with --frame-rate (fps=)."
+    )):  # fmt: skip
+        read_track(p2)
+
+
+def test_error_t_col_none_without_frames_or_rate(tmp_path):
+    """regression"""
+    p = write(tmp_path, rows())
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: times are to come from frame numbers (t_col=None) but there is no frame column "
+        f"(columns found: 't', 'x', 'y'); name it with --frame-column (frame_col=)."
+    )):  # fmt: skip
+        read_track(p, t_col=None, fps=100)
+    p2 = write(tmp_path, rows(header="frame,x,y"), "f.csv")
+    with pytest.raises(ValueError, match=exact(
+        f"{p2}: times are to come from frame numbers (t_col=None) but no frame rate was given; "
+        f"set --frame-rate (fps=) in Hz."
+    )):  # fmt: skip
+        read_track(p2, t_col=None)
+
+
+def test_error_ambiguous_column(tmp_path):
+    """regression"""
+    p = write(tmp_path, rows(header="t,x,X"))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 1: column name 'x' matches 2 columns (columns 2, 3); rename one of them in "
+        f"the file or choose another column with --x-column."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_non_numeric_cell(tmp_path):
+    """regression: names line, column and the text found."""
+    lines = ["# comment: line 1", "t,x,y"] + rows().splitlines()[1:]
+    lines[6] = "0.04,4,n/a!"  # line 7
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 7, column 'y': 'n/a!' is not a number; correct the cell, or delete the row."
+    )):  # fmt: skip
+        read_track(p)
+    lines[6] = "0.04,1_000,8"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 7, column 'x': '1_000' is not a number; correct the cell, or delete the row."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_infinite_cell(tmp_path):
+    """regression"""
+    lines = rows().splitlines()
+    lines[2] = "0.01,-inf,2"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 3, column 'x': '-inf' is not a finite number; correct the cell, or delete "
+        f"the row."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_duplicate_time(tmp_path):
+    """regression: line numbers and values of both rows."""
+    lines = rows(12).splitlines()
+    lines[6] = lines[5]  # line 7 repeats line 6 (t = 0.04)
+    lines[9] = lines[8]
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: times (column 't') must increase strictly, but line 7 has t = 0.04 s, which "
+        f"repeats line 6 with t = 0.04 s (2 such places in all); sort the rows by time and "
+        f"remove repeated rows."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_decreasing_time_after_dropped_row(tmp_path):
+    """regression: line numbers stay those of the file when rows are dropped."""
+    lines = rows(12).splitlines()
+    lines[4] = "0.03,,6"  # line 5 dropped
+    lines[5] = "0.015,4,8"  # line 6, earlier than line 4 (t = 0.02)
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: times (column 't') must increase strictly, but line 6 has t = 0.015 s, which "
+        f"is earlier than line 4 with t = 0.02 s; sort the rows by time and remove repeated rows."
+    )):  # fmt: skip
+        with pytest.warns(TrackImportWarning):
+            read_track(p)
+
+
+def test_error_repeated_frame(tmp_path):
+    """regression"""
+    lines = ["frame,x,y"] + [f"{k if k != 5 else 4},{k},{k}" for k in range(10)]
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: times (frame 'frame' / 200.0 Hz) must increase strictly, but line 7 has frame 4, "
+        f"which repeats line 6 with frame 4; sort the rows by time and remove repeated rows."
+    )):  # fmt: skip
+        read_track(p, fps=200)
+
+
+def test_error_non_whole_frame(tmp_path):
+    """regression"""
+    lines = ["frame,x,y"] + [f"{k + (0.5 if k == 3 else 0)},{k},{k}" for k in range(10)]
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 5, column 'frame': frame number '3.5' is not a whole number; check that "
+        f"--frame-column names the frame-number column."
+    )):  # fmt: skip
+        read_track(p, fps=100)
+
+
+def test_error_too_few_points(tmp_path):
+    """regression: counts the usable points after dropping."""
+    lines = rows(9).splitlines()
+    lines[2] = "0.01,,2"
+    lines[3] = "0.02,2,"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: 7 usable point(s) (2 row(s) with blank or NaN cells dropped), at least 8 are "
+        f"needed for a fit; use a longer stretch of the flight."
+    )):  # fmt: skip
+        with pytest.warns(TrackImportWarning):
+            read_track(p)
+    p3 = write(tmp_path, rows(3), "three.csv")
+    with pytest.raises(ValueError, match=exact(
+        f"{p3}: 3 usable point(s), at least 8 are needed for a fit; use a longer stretch of "
+        f"the flight."
+    )):  # fmt: skip
+        read_track(p3)
+
+
+def test_error_scale(tmp_path):
+    """regression: zero, negative, NaN, missing scale; scale without pixel units."""
+    p = write(tmp_path, rows())
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: zero scale (0 m/px) would put every point at the origin; set --scale (scale=) to "
+        f"the image scale in m/px (> 0)."
+    )):  # fmt: skip
+        read_track(p, units="px", scale=0.0)
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: scale must be > 0 m/px, got -0.001; set --scale (scale=) to the image scale in "
+        f"m/px."
+    )):  # fmt: skip
+        read_track(p, units="px", scale=-0.001)
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: scale must be a finite number [m/px], got nan; set --scale (scale=)."
+    )):  # fmt: skip
+        read_track(p, units="px", scale=float("nan"))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: units 'px' need an image scale in m/px; set --scale (scale=), e.g. --scale "
+        f"0.0005 for 0.5 mm per pixel."
+    )):  # fmt: skip
+        read_track(p, units="px")
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: a scale (0.001 m/px) was given but units are 'm'; set --units px (units='px') "
+        f"for pixel input, or leave the scale out."
+    )):  # fmt: skip
+        read_track(p, scale=0.001)
+
+
+@pytest.mark.parametrize("fps", [0, -250.0])
+def test_error_fps_not_positive(tmp_path, fps):
+    """regression"""
+    p = write(tmp_path, rows(header="frame,x,y"))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: frame rate must be > 0 Hz, got {float(fps)!r}; set --frame-rate (fps=) to the "
+        f"camera's frames per second."
+    )):  # fmt: skip
+        read_track(p, fps=fps)
+
+
+def test_error_fps_nan(tmp_path):
+    """regression"""
+    p = write(tmp_path, rows(header="frame,x,y"))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: frame rate must be a finite number [Hz], got nan; set --frame-rate (fps=)."
+    )):  # fmt: skip
+        read_track(p, fps=float("nan"))
+
+
+def test_error_other_options(tmp_path):
+    """regression: units, origin, delimiter, comment, encoding."""
+    p = write(tmp_path, rows())
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: unknown units 'in'; choose one of m, mm, cm, px (--units)."
+    )):  # fmt: skip
+        read_track(p, units="in")
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: origin must be two numbers (x, y) in the file's units, got (1.0,); set "
+        f"--origin X,Y."
+    )):  # fmt: skip
+        read_track(p, origin=(1.0,))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: delimiter must be one character (or 'tab', 'whitespace'), got '::'; set "
+        f"--delimiter (delimiter=) or leave it out to detect it."
+    )):  # fmt: skip
+        read_track(p, delimiter="::")
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: comment must be a non-blank prefix such as '#', or None, got ' '."
+    )):  # fmt: skip
+        read_track(p, comment=" ")
+    latin = tmp_path / "latin.csv"
+    latin.write_bytes(b"# lab: K\xf6ln\n" + rows().encode())
+    with pytest.raises(ValueError, match=exact(
+        f"{latin}: cannot decode byte 0xf6 at offset 8 as utf-8; pass the file's encoding "
+        f"(encoding=..., e.g. 'latin-1')."
+    )):  # fmt: skip
+        read_track(latin)
+    assert read_track(latin, encoding="latin-1").meta["header"]["lab"] == "K\u00f6ln"
+
+
+def test_error_sigma_not_positive(tmp_path):
+    """regression"""
+    lines = ["t,x,y,sigma"] + [f"{k},{k},{k},{0 if k == 2 else 1e-3}" for k in range(9)]
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 4, column 'sigma': position uncertainty '0' must be > 0; correct the cell, "
+        f"or leave --sigma-column out to estimate the noise from the fit."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_bad_scale_uncertainty_header(tmp_path):
+    """regression"""
+    p = write(tmp_path, "# scale_relative_uncertainty: about 1e-3\n" + rows())
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: header entry 'scale_relative_uncertainty' must be a number >= 0 [1], got "
+        f"'about 1e-3'; correct that comment line or delete it."
+    )):  # fmt: skip
+        read_track(p)
+
+
+# ------------------------------------------------------------------------------------------
+# Export errors and atomicity
+# ------------------------------------------------------------------------------------------
+
+
+def _track(n: int = 10) -> Track:
+    k = np.arange(n, dtype=float)
+    return Track(k / 100, k, 2 * k)
+
+
+def test_write_refuses_overwrite_unless_forced(tmp_path):
+    """regression"""
+    p = tmp_path / "o.csv"
+    p.write_text("keep me")
+    msg = f"{p}: file exists; pass --force (force=True) to overwrite it."
+    with pytest.raises(FileExistsError, match=exact(msg)) as info:
+        write_track(_track(), p)
+    assert isinstance(info.value, OutputExistsError) and isinstance(info.value, ValueError)
+    assert p.read_text() == "keep me"
+    write_track(_track(), p, force=True)
+    assert np.array_equal(read_track(p).x, np.arange(10.0))
+    assert sorted(os.listdir(tmp_path)) == ["o.csv"]  # no temporary file left behind
+
+
+def test_write_errors(tmp_path):
+    """regression"""
+    with pytest.raises(ValueError, match=exact(
+        f"{tmp_path}: is a directory; give the path of the CSV file to write."
+    )):  # fmt: skip
+        write_track(_track(), tmp_path)
+    missing = tmp_path / "no" / "o.csv"
+    with pytest.raises(FileNotFoundError, match=exact(
+        f"{missing}: the directory {str(tmp_path / 'no')!r} does not exist; create it first or "
+        f"choose another output path."
+    )):  # fmt: skip
+        write_track(_track(), missing)
+    with pytest.raises(ValueError, match=exact(
+        "track: expected a fitdrag Track, got dict; build one with Track(t, x, y) or "
+        "read_track(path)."
+    )):  # fmt: skip
+        write_track({"t": [1]}, tmp_path / "d.csv")
+
+
+def test_write_file_mode_follows_umask(tmp_path):
+    """regression: the temporary file's private mode is not left on the output."""
+    p = write_track(_track(), tmp_path / "m.csv")
+    mask = os.umask(0o022)
+    os.umask(mask)
+    assert p.stat().st_mode & 0o777 == 0o666 & ~mask
+
+
+# ------------------------------------------------------------------------------------------
+# Track validation
+# ------------------------------------------------------------------------------------------
+
+
+def test_track_mismatched_lengths():
+    """regression"""
+    with pytest.raises(ValueError, match=exact(
+        "t, x, y: lengths differ (t has 10, x has 9, y has 10); give one x and one y per time."
+    )):  # fmt: skip
+        Track(np.arange(10.0), np.arange(9.0), np.arange(10.0))
+
+
+def test_track_nan():
+    """regression"""
+    y = np.arange(10.0)
+    y[4] = np.nan
+    with pytest.raises(ValueError, match=exact(
+        "y: 1 non-finite value(s), first at index 4 (value nan); drop or repair those samples "
+        "first."
+    )):  # fmt: skip
+        Track(np.arange(10.0), np.arange(10.0), y)
+
+
+def test_track_three_points():
+    """regression"""
+    with pytest.raises(ValueError, match=exact(
+        "track: 3 usable point(s), at least 8 are needed for a fit; use a longer stretch of the "
+        "flight."
+    )):  # fmt: skip
+        Track([0.0, 0.1, 0.2], [0.0, 1.0, 2.0], [0.0, 1.0, 2.0])
+
+
+def test_track_non_monotonic():
+    """regression"""
+    t = np.arange(10.0)
+    t[6] = 4.5
+    with pytest.raises(ValueError, match=exact(
+        "t: times must increase strictly; decreasing time at index 6 (t[5] = 5.0, t[6] = 4.5); "
+        "sort the samples or remove repeated frames."
+    )):  # fmt: skip
+        Track(t, t, t)
+    t[6] = 5.0
+    with pytest.raises(ValueError, match=exact(
+        "t: times must increase strictly; duplicate time at index 6 (t[5] = 5.0, t[6] = 5.0); "
+        "sort the samples or remove repeated frames."
+    )):  # fmt: skip
+        Track(t, t, t)
+
+
+def test_track_other_validation():
+    """regression: sigma, frame and non-numeric input."""
+    k = np.arange(10.0)
+    with pytest.raises(ValueError, match=exact(
+        "sigma: every position uncertainty must be finite and > 0 m, got min 0.0; leave sigma "
+        "out to estimate the noise."
+    )):  # fmt: skip
+        Track(k, k, k, sigma=0.0)
+    with pytest.raises(ValueError, match=exact(
+        "frame: frame numbers must be whole numbers."
+    )):  # fmt: skip
+        Track(k, k, k, frame=k + 0.5)
+    with pytest.raises(ValueError, match=r"^x: expected numbers, got list that cannot be read"):
+        Track(k, ["a"] * 10, k)
+    assert np.array_equal(Track(k, k, k, sigma=0.01).sigma, np.full(10, 0.01))
+
+
+def test_track_is_read_only_and_picklable():
+    """regression: arrays and meta are read-only; pickle/deepcopy keep everything."""
+    k = np.arange(10.0)
+    tr = Track(k, k, k, frame=np.arange(10), meta={"source": "synthetic"})
+    with pytest.raises(ValueError):
+        tr.x[0] = 1.0
+    with pytest.raises(TypeError):
+        tr.meta["source"] = "other"
+    for other in (pickle.loads(pickle.dumps(tr)), copy.deepcopy(tr)):
+        assert np.array_equal(other.x, tr.x) and np.array_equal(other.frame, tr.frame)
+        assert other.meta["source"] == "synthetic"
+
+
+# ------------------------------------------------------------------------------------------
+# CLI import options
+# ------------------------------------------------------------------------------------------
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="fitdrag test", exit_on_error=False)
+    p.add_argument("tracks", nargs="+")
+    add_import_options(p)
+    return p
+
+
+def test_cli_defaults_match_read_track(tmp_path):
+    """regression: with no options given, the CLI reads exactly as read_track's defaults."""
+    import inspect
+
+    args = _parser().parse_args(["a.csv"])
+    opts = import_options_from_args(args)
+    sig = inspect.signature(read_track)
+    for name, value in opts.items():
+        assert sig.parameters[name].default == value, name
+
+
+def test_cli_options_map_to_read_track(tmp_path):
+    """closed-form/independent: pixel conversion by hand, as in the library test."""
+    lines = ["# scale_relative_uncertainty: 0.002", "idx;u;v"] + [
+        f"{50 + k};{100 + k};{200 - k}" for k in range(10)
+    ]
+    p = write(tmp_path, "\n".join(lines))
+    args = _parser().parse_args([
+        str(p), str(p), "--t-column", "none", "--frame-column", "IDX", "--frame-rate", "1000",
+        "--x-column", "U", "--y-column", "V", "--units", "px", "--scale", "0.001",
+        "--origin", "100,200", "--y-down", "--delimiter", ";", "--strict",
+    ])  # fmt: skip
+    trs = read_tracks_from_args(args.tracks, args)
+    assert len(trs) == 2
+    k = np.arange(10)
+    assert np.array_equal(trs[0].t, (50 + k) / 1000)
+    np.testing.assert_allclose(trs[0].x, k * 0.001, rtol=1e-15, atol=0)
+    np.testing.assert_allclose(trs[0].y, k * 0.001, rtol=1e-15, atol=0)
+    imp = trs[0].meta["import"]
+    assert imp["strict"] is True and imp["y_down"] is True and imp["origin"] == [100.0, 200.0]
+    assert trs[1].meta["scale_relative_uncertainty"] == 0.002
+
+
+def test_cli_warnings_printed_as_lines(tmp_path):
+    """regression"""
+    lines = rows().splitlines()
+    lines[3] = "0.02,,4"
+    p = write(tmp_path, "\n".join(lines))
+    args = _parser().parse_args([str(p)])
+    buf = io.StringIO()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # nothing escapes as a Python warning
+        (tr,) = read_tracks_from_args(args.tracks, args, stderr=buf)
+    assert buf.getvalue() == (
+        f"warning: {p}: dropped 1 row(s) with blank or NaN cells (in 'x') at line(s) 4.\n"
+    )
+    assert tr.meta["dropped_rows"] == [4]
+    with pytest.raises(ValueError, match=exact("no track file given; name at least one CSV file.")):
+        read_tracks_from_args([], args)
+
+
+@pytest.mark.parametrize(
+    ("argv", "msg"),
+    [
+        (["--origin", "1"], "argument --origin: expected two numbers X,Y (e.g. 640,360), got '1'"),
+        (["--frame-rate", "0"], "argument --frame-rate: must be a finite number > 0 Hz, got '0'"),
+        (["--units", "in"], "argument --units: invalid choice: 'in' (choose from "),
+    ],
+)
+def test_cli_bad_option_values(argv, msg):
+    """regression: argparse rejects malformed values with one clear message."""
+    with pytest.raises(argparse.ArgumentError, match="^" + re.escape(msg)):
+        _parser().parse_args(["a.csv", *argv])
+
+
+def test_cli_negative_origin_and_every_help_has_a_unit():
+    """regression: --origin=-5,10 parses; each option's help states its unit."""
+    args = _parser().parse_args(["a.csv", "--origin=-5.5,10"])
+    assert args.import_origin == (-5.5, 10.0)
+    p = argparse.ArgumentParser()
+    group = add_import_options(p)
+    assert len(group._group_actions) == 13
+    for action in group._group_actions:
+        h = action.help
+        assert re.search(r"\[[^\]]+\]|no unit|in --units", h), (action.option_strings, h)
