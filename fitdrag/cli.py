@@ -63,6 +63,8 @@ def main(argv: list[str] | None = None) -> int:
     except (ValueError, FileNotFoundError, IsADirectoryError, PermissionError) as exc:
         print(f"fitdrag {args.command}: error: {exc}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into a pager or head
+        return 0
     except KeyboardInterrupt:
         print(f"fitdrag {args.command}: interrupted", file=sys.stderr)
         return 130

@@ -270,8 +270,15 @@ def reynolds_number(speed, specimen, air: Air):
     return air.density * np.asarray(speed) * specimen.length / air.viscosity
 
 
-def acceleration(vx, vy, specimen, conditions: Conditions, drag_params, model="constant",
-                 lift_coefficient: float = 0.0):
+def acceleration(
+    vx,
+    vy,
+    specimen,
+    conditions: Conditions,
+    drag_params,
+    model="constant",
+    lift_coefficient: float = 0.0,
+):
     """Acceleration (a_x, a_y) of the specimen at velocity (vx, vy) [m/s] (equation above).
 
     A plain NumPy evaluation of the right-hand side used by the simulator, for reference
@@ -307,3 +314,6 @@ def acceleration(vx, vy, specimen, conditions: Conditions, drag_params, model="c
     ax = -k * q * (cd * ux + lift_coefficient * uy)
     ay = -g_net - k * q * (cd * uy - lift_coefficient * ux)
     return ax, ay
+
+
+from fitdrag import drag_models as _drag_models  # noqa: E402,F401  registers the Reynolds-dependent models

@@ -46,9 +46,7 @@ _A = np.array(
     ]
 )
 _B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84, 0])
-_E = np.array(
-    [71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525, -1 / 40]
-)  # b - b*
+_E = np.array([71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525, -1 / 40])  # b - b*
 
 
 @numba.njit(cache=True)
@@ -175,14 +173,14 @@ def _integrate(
             for i in range(dim):
                 y[i] = ynew[i]
                 ks[0, i] = ks[6, i]
-            fac = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err ** -0.2))
+            fac = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err**-0.2))
             h_new = h_try * fac
             h = max(h, h_new) if clipped else h_new
             if clipped:
                 record(i_next, y)
                 i_next += 1
         else:
-            h = h_try * max(0.2, 0.9 * err ** -0.2)
+            h = h_try * max(0.2, 0.9 * err**-0.2)
             if h < 1e-14 * max(1.0, abs(t)):
                 return 2, steps
     return 0, steps
@@ -389,9 +387,7 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     if not np.all(np.isfinite(dp)):
         raise ValueError(f"drag_params: must be finite, got {dp.tolist()}.")
     fm = FlightModel(t, specimen, conditions, m, dp[n_fit:], fit_lift, rtol, atol)
-    theta = np.concatenate(
-        (launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else [])
-    )
+    theta = np.concatenate((launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else []))
     status, pos, vel, jac, steps = fm.run(theta, sensitivities, lift_coefficient)
     return Flight(
         t=fm.t.copy(), x=pos[:, 0], y=pos[:, 1], vx=vel[:, 0], vy=vel[:, 1],

@@ -72,9 +72,7 @@ class Sphere:
             "diameter",
             _positive("diameter", self.diameter, "m", "give the sphere diameter in metres."),
         )
-        object.__setattr__(
-            self, "added_mass_coefficient", _added_mass(self.added_mass_coefficient)
-        )
+        object.__setattr__(self, "added_mass_coefficient", _added_mass(self.added_mass_coefficient))
 
     @property
     def area(self) -> float:
@@ -149,9 +147,7 @@ class Body:
                 "length",
                 _positive("length", self.length, "m", "give the Reynolds reference length."),
             )
-        object.__setattr__(
-            self, "added_mass_coefficient", _added_mass(self.added_mass_coefficient)
-        )
+        object.__setattr__(self, "added_mass_coefficient", _added_mass(self.added_mass_coefficient))
 
     def to_dict(self) -> dict:
         return {
