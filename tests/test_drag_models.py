@@ -1,0 +1,295 @@
+"""Tests of fitdrag.drag_models: smooth-sphere correlations, scaled-sphere and power-law models.
+
+Oracles: the ``fluids`` library (fluids.drag.drag_sphere, same method), Stokes' law, the
+common-practice subcritical C_d, and an independent scipy ``solve_ivp`` integration of the
+equation of motion written out in this file.
+"""
+
+from __future__ import annotations
+
+import math
+
+import fluids.drag
+import numpy as np
+import pytest
+from scipy.integrate import solve_ivp
+
+from fitdrag.air import Air
+from fitdrag.drag_models import (
+    DEFAULT_CORRELATION,
+    POWER_LAW,
+    SPHERE_CORRELATIONS,
+    SPHERE_SCALED,
+    SUBCRITICAL_RE_LIMIT,
+    power_law_reference_re,
+    sphere_correlation_names,
+    sphere_drag_coefficient,
+    sphere_scaled_model,
+)
+from fitdrag.forces import Conditions, drag_model_names, get_drag_model
+from fitdrag.simulate import Launch, simulate
+from fitdrag.specimen import Sphere
+
+RE_GRID = np.logspace(-3, math.log10(2e5), 60)
+
+
+def _grid(name):
+    lo, hi = SPHERE_CORRELATIONS[name].stated_range
+    return RE_GRID[(RE_GRID >= lo) & (RE_GRID <= hi)]
+
+
+# ------------------------------------------------------------------ correlations vs fluids
+
+
+@pytest.mark.parametrize("name", [n for n in sphere_correlation_names() if n != "morrison"])
+def test_correlation_matches_fluids_same_method(name):
+    """closed-form/independent: fluids 1.3 ``drag_sphere(Re, Method=...)`` evaluates the same
+    published formula (Morrison 2010 handout eq. 1; Clift & Gauvin 1970; Haider & Levenspiel
+    1989 eq. 10; Khan & Richardson 1987; Cheng 2009 eq. 12; Barati et al. 2014 eq. 22)."""
+    c = SPHERE_CORRELATIONS[name]
+    re = _grid(name)
+    ours = sphere_drag_coefficient(re, name)
+    ref = np.array([fluids.drag.drag_sphere(r, Method=c.fluids_method) for r in re])
+    np.testing.assert_allclose(ours, ref, rtol=1e-12)
+
+
+def test_morrison_2013_differs_from_fluids_only_in_last_term():
+    """closed-form/independent: fluids' ``Method="Morrison"`` is the 2010 handout form (last term
+    Re^0.8/461000); the 2013 textbook form (Morrison, An Introduction to Fluid Mechanics, CUP
+    2013, eq. 8.83) ends in 0.25 (Re/1e6)/(1 + Re/1e6).  Their difference must be exactly the
+    difference of those two terms."""
+    re = _grid("morrison")
+    ours = sphere_drag_coefficient(re, "morrison")
+    ref = np.array([fluids.drag.drag_sphere(r, Method="Morrison") for r in re])
+    expected = 0.25 * (re / 1e6) / (1 + re / 1e6) - re**0.8 / 461000.0
+    np.testing.assert_allclose(ours - ref, expected, rtol=1e-9, atol=1e-12)
+    assert np.max(np.abs(ours - ref)) < 0.004  # as stated in the module docstring
+    assert DEFAULT_CORRELATION == "morrison"
+
+
+@pytest.mark.parametrize("name", sphere_correlation_names())
+def test_correlation_derivative_matches_finite_difference_of_fluids(name):
+    """closed-form/independent: our analytic dC_d/dRe against central differences of the
+    independent fluids implementation (2013 Morrison: fluids' Morrison plus the exact
+    derivative of the last-term change)."""
+    c = SPHERE_CORRELATIONS[name]
+    re = _grid(name)
+    h = 1e-6 * re
+
+    def ref(r):
+        v = fluids.drag.drag_sphere(r, Method=c.fluids_method)
+        if name == "morrison":
+            v += 0.25 * (r / 1e6) / (1 + r / 1e6) - r**0.8 / 461000.0
+        return v
+
+    fd = np.array([(ref(r + d) - ref(r - d)) / (2 * d) for r, d in zip(re, h)])
+    _, ours = sphere_drag_coefficient(re, name, derivative=True)
+    np.testing.assert_allclose(ours, fd, rtol=2e-6, atol=1e-9)
+
+
+@pytest.mark.parametrize("name", sphere_correlation_names())
+def test_stokes_limit(name):
+    """published-value: C_d = 24/Re for Re << 1 (G. G. Stokes, Trans. Camb. Phil. Soc. 9, 1851);
+    at the low end of each correlation's range (Re = 1e-3, or 0.01 for Khan-Richardson)."""
+    re = max(1e-3, SPHERE_CORRELATIONS[name].stated_range[0])
+    cd = float(sphere_drag_coefficient(re, name))
+    assert cd * re / 24.0 == pytest.approx(1.0, rel=0.01)
+
+
+@pytest.mark.parametrize("name", sphere_correlation_names())
+def test_subcritical_plateau_near_047(name):
+    """published-value (loose): smooth-sphere C_d ≈ 0.47 in the subcritical range
+    (common practice, no source); every correlation within ±0.09 over Re 1e3–2e5."""
+    re = np.logspace(3, math.log10(2e5), 25)
+    cd = sphere_drag_coefficient(re, name)
+    assert np.all(np.abs(cd - 0.47) < 0.09)
+
+
+def test_sphere_drag_coefficient_bad_input():
+    """regression: exact error messages for a bad Reynolds number or correlation name."""
+    with pytest.raises(
+        ValueError, match=r"^re: Reynolds numbers must be finite and > 0, got -1\.0"
+    ):
+        sphere_drag_coefficient([10.0, -1.0])
+    with pytest.raises(
+        ValueError,
+        match=r"^correlation: unknown sphere drag correlation 'stokes'; valid names: morrison, "
+        r"morrison-2010, clift-gauvin",
+    ):
+        sphere_drag_coefficient(10.0, "stokes")
+
+
+# ------------------------------------------------------------------------- the registry
+
+
+def test_models_registered_by_name():
+    """regression: the models are found by name; variants are named after the correlation."""
+    names = drag_model_names()
+    assert {"sphere-scaled", "power-law", "sphere-scaled:clift-gauvin"} <= set(names)
+    for c in sphere_correlation_names():
+        assert f"sphere-scaled:{c}" in names
+    assert get_drag_model("sphere-scaled") is SPHERE_SCALED
+    assert SPHERE_SCALED.parameters == ("scale",)
+    assert POWER_LAW.parameters == ("cd_ref", "exponent")
+    assert POWER_LAW.constants == ("re_ref",)
+    assert sphere_scaled_model("clift-gauvin").name == "sphere-scaled:clift-gauvin"
+    assert sphere_scaled_model().kernel is SPHERE_SCALED.kernel
+    with pytest.raises(ValueError, match=r"^correlation: unknown sphere drag correlation 'x'"):
+        sphere_scaled_model("x")
+
+
+def test_scaled_kernel_contract():
+    """closed-form/independent: C_d = s C_sphere(Re), ∂C_d/∂s = C_sphere, ∂C_d/∂Re = s C'."""
+    for name in ("morrison", "clift-gauvin"):
+        m = sphere_scaled_model(name)
+        grad = np.zeros(1)
+        for re in (50.0, 3e3, 4e4):
+            cd, dcd = m.kernel(re, np.array([0.8]), grad)
+            c, dc = sphere_drag_coefficient(re, name, derivative=True)
+            assert cd == pytest.approx(0.8 * c, rel=1e-14)
+            assert grad[0] == pytest.approx(c, rel=1e-14)
+            assert dcd == pytest.approx(0.8 * dc, rel=1e-14)
+
+
+def test_power_law_kernel_against_closed_form_and_differences():
+    """closed-form/independent: C_d = C_ref (Re/Re_ref)^n and its derivatives, against the
+    formula and central differences."""
+    p = np.array([0.45, -0.3, 2.5e4])
+    grad = np.zeros(3)
+
+    def f(cd_ref, n, re):
+        return cd_ref * (re / p[2]) ** n
+
+    for re in (8e3, 2.5e4, 6e4):
+        cd, dcd = POWER_LAW.kernel(re, p, grad)
+        assert cd == pytest.approx(f(p[0], p[1], re), rel=1e-14)
+        h = 1e-6
+        assert grad[0] == pytest.approx((f(p[0] + h, p[1], re) - f(p[0] - h, p[1], re)) / (2 * h))
+        assert grad[1] == pytest.approx(
+            (f(p[0], p[1] + h, re) - f(p[0], p[1] - h, re)) / (2 * h), rel=1e-7
+        )
+        d = re * 1e-6
+        assert dcd == pytest.approx((f(p[0], p[1], re + d) - f(p[0], p[1], re - d)) / (2 * d))
+    # at Re = Re_ref the law gives C_ref whatever the exponent
+    assert POWER_LAW.cd([2.5e4], p)[0] == pytest.approx(0.45, rel=1e-15)
+
+
+def test_power_law_reference_is_median_re():
+    """closed-form/independent: Re_ref is the median Reynolds number of the flight."""
+    assert POWER_LAW.constants_for([1e4, 3e4, 2e4, 5e4]) == (25000.0,)
+    assert power_law_reference_re([7.0, np.nan, 9.0, 8.0]) == (8.0,)
+    with pytest.raises(
+        ValueError, match=r"^re_values: the power-law drag model needs a flight with a positive"
+    ):
+        power_law_reference_re([])
+
+
+def test_drag_crisis_refused():
+    """published-value: a scaled smooth-sphere curve is refused above Re = 2e5, the lower
+    edge of the smooth sphere's drag crisis (E. Achenbach, J. Fluid Mech. 54, 1972, 565) and
+    the upper limit stated for most correlations (Barati et al., Powder Technol. 257, 2014)."""
+    assert SUBCRITICAL_RE_LIMIT == 2e5
+    for name in sphere_correlation_names():
+        m = sphere_scaled_model(name)
+        assert m.re_range[1] <= 2e5
+        m.check_re_range(max(m.re_range[0], 1e3), 1.9e5)  # inside: accepted
+    with pytest.raises(
+        ValueError,
+        match=r"^drag model 'sphere-scaled': the flight spans Re 1e\+05–3\.2e\+05, outside the "
+        r"model's validity Re 0–2e\+05; choose another model",
+    ):
+        SPHERE_SCALED.check_re_range(1e5, 3.2e5)
+    with pytest.raises(ValueError, match=r"validity Re 0\.01–2e\+05"):
+        sphere_scaled_model("khan-richardson").check_re_range(1e-3, 10.0)
+    POWER_LAW.check_re_range(1e3, 5e5)  # the power law has no range of its own
+
+
+# ------------------------------------------- simulation against an independent integration
+
+AIR = Air(density=1.20, viscosity=1.81e-5)
+BALL = Sphere(mass=0.0027, diameter=0.040)  # invented lab specimen, synthetic (40 mm, 2.7 g)
+T = np.linspace(0.0, 0.9, 91)
+LAUNCH = Launch.from_speed_angle(14.0, 35.0, y0=1.0)
+
+
+def morrison_2013(re):
+    """Morrison (2013) eq. 8.83, written out independently for the reference integration."""
+    return (
+        24 / re
+        + 2.6 * (re / 5) / (1 + (re / 5) ** 1.52)
+        + 0.411 * (re / 263000) ** -7.94 / (1 + (re / 263000) ** -8)
+        + 0.25 * (re / 1e6) / (1 + re / 1e6)
+    )
+
+
+def reference_positions(cd_of_re, launch=LAUNCH, t=T, wind=0.0, cl=0.0):
+    """Independent solve_ivp (DOP853) integration of
+    (m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ A |u| (C_d u − C_L P u), u = v − w
+    (Timmerman & van der Weele, Am. J. Phys. 67, 1999; lift ⟂ u, P u = (−u_y, u_x))."""
+    m, d, rho, mu, g = BALL.mass, BALL.diameter, AIR.density, AIR.viscosity, 9.80665
+    vol, area = math.pi * d**3 / 6, math.pi * d**2 / 4
+    m_eff = m + 0.5 * rho * vol
+
+    def rhs(_t, s):
+        ux, uy = s[2] - wind, s[3]
+        q = math.hypot(ux, uy)
+        cd = cd_of_re(rho * q * d / mu)
+        f = 0.5 * rho * area * q
+        return [
+            s[2],
+            s[3],
+            (-f * (cd * ux + cl * uy)) / m_eff,
+            (-(m - rho * vol) * g - f * (cd * uy - cl * ux)) / m_eff,
+        ]
+
+    sol = solve_ivp(rhs, (t[0], t[-1]), launch.as_array(), method="DOP853", t_eval=t,
+                    rtol=1e-12, atol=1e-12)  # fmt: skip
+    assert sol.success
+    return np.column_stack((sol.y[0], sol.y[1]))
+
+
+@pytest.mark.parametrize(
+    ("model", "params", "cd_of_re"),
+    [
+        ("sphere-scaled", (0.85,), lambda re: 0.85 * morrison_2013(re)),
+        ("power-law", (0.5, -0.25, 3.0e4), lambda re: 0.5 * (re / 3.0e4) ** -0.25),
+    ],
+)
+def test_simulated_flight_matches_independent_integration(model, params, cd_of_re):
+    """closed-form/independent: fitdrag's compiled flight with the model equals a scipy
+    solve_ivp DOP853 integration of the same equation within 1 µm."""
+    f = simulate(T, LAUNCH, BALL, Conditions(AIR), model=model, drag_params=params)
+    assert f.success
+    ref = reference_positions(cd_of_re)
+    np.testing.assert_allclose(np.column_stack((f.x, f.y)), ref, atol=1e-6, rtol=0)
+    # the flight spans the subcritical range this test is meant for
+    re = AIR.density * np.hypot(f.vx, f.vy) * BALL.diameter / AIR.viscosity
+    assert 1e4 < re.min() < re.max() < 5e4
+
+
+@pytest.mark.parametrize(
+    ("model", "params", "cd_of"),
+    [
+        ("sphere-scaled", (0.85,), lambda p: lambda re: p[0] * morrison_2013(re)),
+        (
+            "power-law",
+            (0.5, -0.25, 3.0e4),
+            lambda p: lambda re: p[0] * (re / 3.0e4) ** p[1],
+        ),
+    ],
+)
+def test_sensitivities_match_finite_differences_of_independent_integration(model, params, cd_of):
+    """closed-form/independent: ∂(x, y)/∂p of the drag parameters from the simulator's
+    sensitivity equations (which use our analytic dC_d/dRe) against central differences of
+    the solve_ivp reference integration."""
+    f = simulate(T, LAUNCH, BALL, Conditions(AIR), model=model, drag_params=params,
+                 sensitivities=True)  # fmt: skip
+    n_fit = len(get_drag_model(model).parameters)
+    for j in range(n_fit):
+        h = 1e-4
+        up = list(params[:n_fit])
+        dn = list(params[:n_fit])
+        up[j] += h
+        dn[j] -= h
+        fd = (reference_positions(cd_of(up)) - reference_positions(cd_of(dn))) / (2 * h)
+        np.testing.assert_allclose(f.jacobian[:, :, 4 + j], fd, rtol=1e-5, atol=1e-8)
