@@ -1,0 +1,1 @@
+"""Reporting: figures, certificates and JSON; nothing here computes results."""
