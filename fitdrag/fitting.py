@@ -562,6 +562,7 @@ def fit_tracks(
     problem.names = names
     bounds = [tuple(b) for b in dm.bounds] + ([(-5.0, 5.0)] if lift else [])
     bounds += [(-np.inf, np.inf)] * (4 * len(tracks))
+    problem.bounds = bounds
     theta = np.concatenate([np.array(dm.initial, float), [0.0] if lift else np.zeros(0)] + starts)
     if initial:
         for k, v in initial.items():
@@ -932,7 +933,7 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
         "sigma_y": [t.sigma[1] for t in throws],
     }
     options = {"robust": robust, "noise": noise_opt, "model": dm.name, "lift": lift}
-    state = {"theta": theta.copy(), "bounds": None, "problem": problem}
+    state = {"theta": theta.copy(), "problem": problem}
     return FitResult(
         success=bool(success),
         message=message,
@@ -1086,3 +1087,120 @@ def _result_dict(r: FitResult) -> dict:
     if r.lift:
         out["lift_coefficient"] = _vu(*r.parameter("lift_coefficient"))
     return out
+
+
+# ----------------------------------------------------------------------------- re-fit
+
+
+@dataclass(frozen=True)
+class Refit:
+    """Outcome of :func:`refit`: the drag coefficient and all parameters after re-solving.
+
+    Attributes
+    ----------
+    cd : float
+        Drag coefficient (at the original fit's median Reynolds number for Re-dependent
+        models). [-]
+    values : ndarray
+        All fitted parameters, in the order of ``FitResult.parameter_names``.
+    success : bool
+    """
+
+    cd: float
+    values: np.ndarray
+    success: bool
+
+
+def _gauss_newton(problem: _Problem, theta, bounds, max_iter: int = 12, tol: float = 1e-9):
+    """Undamped Gauss–Newton from a nearby optimum; (theta, converged).
+
+    Used only to re-solve a converged problem after a small change of its inputs; any sign
+    of trouble (cost increase, bound crossed, no convergence) reports failure so that the
+    caller falls back to the trust-region solver.
+    """
+    theta = np.array(theta, float)
+    lo = np.array([b[0] for b in bounds])
+    hi = np.array([b[1] for b in bounds])
+    res, jac, _sims, ok = problem.evaluate(theta)
+    cost = float(res @ res)
+    for _ in range(max_iter):
+        if not ok:
+            return theta, False
+        step, *_ = np.linalg.lstsq(jac, -res, rcond=None)
+        new = theta + step
+        if np.any(new < lo) or np.any(new > hi):
+            return theta, False
+        res, jac, _sims, ok = problem.evaluate(new)
+        new_cost = float(res @ res)
+        if not ok or new_cost > cost * (1.0 + 1e-8) + 1e-300:
+            return theta, False
+        theta, cost = new, new_cost
+        if np.all(np.abs(step) <= tol * (np.abs(theta) + 1e-3)):
+            return theta, True
+    return theta, False
+
+
+def refit(
+    result: FitResult,
+    *,
+    tracks: Sequence[Track] | None = None,
+    specimen=None,
+    air: Air | None = None,
+    gravity: float | None = None,
+    max_nfev: int = 60,
+) -> Refit:
+    """Re-solve a finished fit with changed inputs, for sensitivity coefficients and Monte Carlo.
+
+    The rejection mask, noise levels and AR(1) coefficients of ``result`` are kept, the
+    start is its optimum, and only the final weighted (prewhitened) least-squares problem is
+    solved again — a few evaluations instead of the full robust pipeline.  Tracks passed
+    here must have the same number of samples as the original ones (e.g. rescaled
+    positions or times).
+
+    Parameters
+    ----------
+    result : FitResult
+        A converged fit.
+    tracks : sequence of Track, optional
+        Replacement tracks (same lengths). Default: the original tracks.
+    specimen : Sphere or Body, optional
+        Replacement specimen (e.g. a perturbed mass [kg] or diameter [m]).
+    air : Air, optional
+        Replacement air (density [kg/m³], viscosity [Pa s]).
+    gravity : float, optional
+        Replacement acceleration of free fall. [m/s²]
+    max_nfev : int
+        Evaluation budget.
+
+    Returns
+    -------
+    Refit
+    """
+    old: _Problem = result._state["problem"]
+    tracks = list(old.tracks) if tracks is None else _as_tracks(tracks)
+    if len(tracks) != len(old.tracks) or any(len(a) != len(b) for a, b in zip(tracks, old.tracks)):
+        raise ValueError(
+            "tracks: refit needs tracks with the same number of throws and samples as the "
+            "original fit; run fit_tracks for new data."
+        )
+    c = result.conditions
+    conditions = Conditions(
+        air=c.air if air is None else air,
+        gravity=c.gravity if gravity is None else gravity,
+        wind=c.wind,
+        buoyancy=c.buoyancy,
+    )
+    sp = result.specimen if specimen is None else specimen
+    dm = get_drag_model(result.model)
+    problem = _Problem(tracks, sp, conditions, dm, result.constants, result.lift)
+    problem.names = old.names
+    problem.bounds = old.bounds
+    problem.set_state(masks=old.masks, sigmas=old.sigmas, phi=old.phi)
+    theta, ok = _gauss_newton(problem, result._state["theta"], old.bounds)
+    if not ok:
+        theta, ok, _msg, _n = _solve(problem, result._state["theta"], old.bounds, max_nfev=max_nfev)
+    n_fit = len(dm.parameters)
+    re_med = result.diagnostics["reynolds_median"]
+    p_full = np.concatenate((theta[:n_fit], result.constants)).astype(float)
+    cd, _ = dm.kernel(re_med, p_full, np.zeros(max(p_full.size, 1)))
+    return Refit(cd=float(cd), values=theta, success=bool(ok))
