@@ -1,0 +1,82 @@
+"""Tests of the ``fitdrag records`` command (list, show, export)."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+from datetime import UTC, datetime
+
+import pytest
+
+from fitdrag.commands import records as cmd
+from fitdrag.records import Records
+
+
+def _run(argv):
+    parser = argparse.ArgumentParser(prog="fitdrag")
+    sub = parser.add_subparsers(dest="command")
+    cmd.register(sub)
+    return cmd.run(parser.parse_args(argv))
+
+
+@pytest.fixture
+def db_path(tmp_path):
+    path = tmp_path / "records.sqlite"
+    db = Records(path)
+    when = datetime(2026, 5, 6, 7, 8, 9, tzinfo=UTC)
+    a = db.issue(
+        result={"drag_coefficient": {"value": 0.4712}},
+        input_hashes={"/d/t1.csv": "0" * 64},
+        job_text="# synthetic job\n",
+        issued_at=when,
+        summary={
+            "specimen_id": "SYN-7",
+            "drag_coefficient": 0.4712,
+            "expanded_uncertainty": 0.018,
+            "coverage_factor": 2.0,
+            "decision": "pass",
+        },
+    )
+    db.issue(result={}, input_hashes={}, issued_at=when, replaces=a.number)
+    return path
+
+
+def test_list(db_path, capsys):
+    """regression: one line per record with the replacement noted."""
+    assert _run(["records", "--records", str(db_path), "list"]) == 0
+    out = capsys.readouterr().out.splitlines()
+    assert out[1].startswith("FD-2026-000001") and "SYN-7" in out[1] and "0.4712" in out[1]
+    assert "[replaced by FD-2026-000002]" in out[1]
+    assert "(replaces FD-2026-000001)" in out[2]
+
+
+def test_show_and_json(db_path, capsys):
+    """regression: show prints the stored fields; --json the stored result."""
+    assert _run(["records", "--records", str(db_path), "show", "FD-2026-000001", "--job"]) == 0
+    out = capsys.readouterr().out
+    assert "certificate      FD-2026-000001" in out
+    assert "replaced by      FD-2026-000002" in out
+    assert f"{'0' * 64}  /d/t1.csv" in out and "# synthetic job" in out
+    assert _run(["records", "--records", str(db_path), "show", "FD-2026-000001", "--json"]) == 0
+    assert '"value": 0.4712' in capsys.readouterr().out
+    with pytest.raises(ValueError, match=r"certificate number: 'FD-2026-000009' is not in"):
+        _run(["records", "--records", str(db_path), "show", "FD-2026-000009"])
+
+
+def test_export(db_path, tmp_path, capsys):
+    """regression: export writes the CSV and refuses to overwrite without --force."""
+    out = tmp_path / "x.csv"
+    assert _run(["records", "--records", str(db_path), "export", str(out)]) == 0
+    assert "wrote 2 record(s)" in capsys.readouterr().out
+    assert len(list(csv.DictReader(out.open()))) == 2
+    with pytest.raises(ValueError, match=r"already exists; choose another name or pass --force"):
+        _run(["records", "--records", str(db_path), "export", str(out)])
+    assert _run(["records", "--records", str(db_path), "export", str(out), "--force"]) == 0
+
+
+def test_missing_database(tmp_path):
+    """regression: a missing database is an error, not a new empty file."""
+    missing = tmp_path / "none.sqlite"
+    with pytest.raises(FileNotFoundError, match=r"records: no records database at"):
+        _run(["records", "--records", str(missing), "list"])
+    assert not missing.exists()
