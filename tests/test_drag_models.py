@@ -293,3 +293,52 @@ def test_sensitivities_match_finite_differences_of_independent_integration(model
         dn[j] -= h
         fd = (reference_positions(cd_of(up)) - reference_positions(cd_of(dn))) / (2 * h)
         np.testing.assert_allclose(f.jacobian[:, :, 4 + j], fd, rtol=1e-5, atol=1e-8)
+
+
+# ------------------------------------------------------ fits to independently made throws
+
+
+def _noisy(t, pos, sigma, seed):
+    from fitdrag.tracks import Track
+
+    rng = np.random.default_rng(seed)
+    return Track(
+        t, pos[:, 0] + rng.normal(0, sigma, t.size), pos[:, 1] + rng.normal(0, sigma, t.size)
+    )
+
+
+@pytest.mark.parametrize(
+    ("model", "truth", "cd_of_re", "wind"),
+    [
+        ("constant", {"cd": 0.45}, lambda re: 0.45, 0.0),
+        ("sphere-scaled", {"scale": 0.85}, lambda re: 0.85 * morrison_2013(re), 0.0),
+        ("power-law", {"exponent": -0.25}, lambda re: 0.5 * (re / 3.0e4) ** -0.25, 0.0),
+        ("power-law", {"exponent": -0.25}, lambda re: 0.5 * (re / 3.0e4) ** -0.25, -3.0),
+    ],
+)
+def test_fit_recovers_model_parameters_from_independent_integration(model, truth, cd_of_re, wind):
+    """closed-form/independent: each model fitted (fitdrag.fitting.fit_tracks) to a throw made
+    by the solve_ivp reference integration (with 1 mm white noise, and with a known head wind)
+    recovers its parameters within 3 standard uncertainties; for the power law also C_ref at
+    the fitted Re_ref, C_ref = 0.5 (Re_ref/3e4)^-0.25."""
+    from fitdrag.fitting import fit_tracks
+
+    t = np.arange(0.0, 0.8, 1 / 250)
+    pos = reference_positions(cd_of_re, t=t, wind=wind)
+    fit = fit_tracks(_noisy(t, pos, 1e-3, 21), BALL, AIR, model=model, wind=wind)
+    assert fit.success, fit.message
+    for name, value in truth.items():
+        v, u = fit.parameter(name)
+        assert abs(v - value) < 3 * u, (name, v, u)
+    if model == "power-law":
+        re_ref = fit.constants[0]
+        v, u = fit.parameter("cd_ref")
+        assert abs(v - cd_of_re(re_ref)) < 3 * u
+    d = fit.to_dict()
+    assert d["drag_model"]["name"] == model
+    assert set(d["drag_model"]["parameters"]) == set(
+        get_drag_model(model).parameters + get_drag_model(model).constants
+    )
+    # drag_coefficient is Cd at the median Re of the fitted flight
+    re_med = d["drag_coefficient"]["at_reynolds_number"]
+    assert d["drag_coefficient"]["value"] == pytest.approx(cd_of_re(re_med), abs=3 * fit.u_cd)
