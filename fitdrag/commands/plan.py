@@ -1,0 +1,129 @@
+"""``fitdrag plan``: predict u(Cd) of a planned test before filming."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+from pathlib import Path
+
+from fitdrag.commands._options import (
+    add_air_options,
+    add_specimen_options,
+    conditions_from_args,
+    quantity,
+    specimen_from_args,
+)
+
+NAME = "plan"
+
+EXAMPLE = """\
+Example (a synthetic 40 mm, 2.7 g ball at 8 m/s, 30°, filmed at 500 frames/s for 200
+frames with 0.3 px tracking noise at 0.8 mm per pixel; how to reach u(Cd) = 0.0001?):
+  fitdrag plan --mass 2.7g --diameter 40mm --cd 0.47 --speed 8 --angle 30 \\
+      --fps 500 --frames 200 --pixel-noise 0.3 --scale 0.0008 --throws 3 \\
+      --target 0.0001 --json plan.json
+"""
+
+
+def register(sub) -> argparse.ArgumentParser:
+    p = sub.add_parser(
+        NAME,
+        help="predict the drag-coefficient uncertainty of a planned test",
+        description="From the specimen, the expected launch, the camera (frame rate, frames "
+        "in view) and the tracking noise, predict the standard uncertainty of Cd that a fit "
+        "of N throws can reach (the Cramér-Rao bound from the Fisher information of the "
+        "flight model), and how many throws or what frame rate reach a target.",
+        epilog=EXAMPLE,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    add_specimen_options(p)
+    add_air_options(p)
+    g = p.add_argument_group("planned flight")
+    g.add_argument("--cd", type=float, required=True, help="expected drag coefficient [-]")
+    g.add_argument("--lift-coefficient", type=float, default=0.0, metavar="CL",
+                   help="expected lift coefficient [-], positive lifts a ball moving in +x")  # fmt: skip
+    g.add_argument("--fit-lift", action="store_true",
+                   help="plan for a fit that also fits the lift coefficient")  # fmt: skip
+    g.add_argument("--wind", type=quantity("m/s"), default=0.0, metavar="M/S",
+                   help="constant horizontal wind along +x [m/s]")  # fmt: skip
+    g.add_argument("--speed", type=quantity("m/s"), required=True, metavar="M/S",
+                   help="expected launch speed [m/s]")  # fmt: skip
+    g.add_argument("--angle", type=float, required=True, metavar="DEG",
+                   help="expected launch angle above the horizontal [deg]")  # fmt: skip
+    g.add_argument("--x0", type=quantity("m"), default=0.0, metavar="M", help="launch x [m]")
+    g.add_argument("--y0", type=quantity("m"), default=0.0, metavar="M", help="launch y [m]")
+    c = p.add_argument_group("camera and tracking noise")
+    c.add_argument("--fps", type=float, required=True, metavar="HZ", help="frame rate [Hz]")
+    c.add_argument("--frames", type=int, required=True, metavar="N",
+                   help="frames in view per throw, from the launch on")  # fmt: skip
+    n = c.add_mutually_exclusive_group(required=True)
+    n.add_argument("--noise", type=quantity("m"), metavar="M",
+                   help="position noise per coordinate [m]")  # fmt: skip
+    n.add_argument("--pixel-noise", type=float, metavar="PX",
+                   help="position noise in pixels (needs --scale)")  # fmt: skip
+    c.add_argument("--scale", type=quantity("m"), metavar="M_PER_PX",
+                   help="image scale [m per pixel], with --pixel-noise")  # fmt: skip
+    c.add_argument("--noise-correlation", type=float, default=0.0, metavar="PHI",
+                   help="lag-1 correlation of successive frames' position errors "
+                   "(AR(1) noise; default 0, white)")  # fmt: skip
+    t = p.add_argument_group("plan")
+    t.add_argument("--throws", type=int, default=1, metavar="N",
+                   help="number of throws sharing Cd (default 1)")  # fmt: skip
+    t.add_argument("--target", type=float, metavar="U",
+                   help="target standard uncertainty of Cd; the plan says how many throws "
+                   "or what frame rate reach it")  # fmt: skip
+    o = p.add_argument_group("output")
+    o.add_argument("--json", metavar="OUT.json", help="write the plan as JSON")
+    o.add_argument("--force", action="store_true", help="overwrite an existing output file")
+    return p
+
+
+def noise_from_args(args) -> float:
+    """Position noise [m] from --noise, or --pixel-noise times --scale."""
+    if args.noise is not None:
+        if args.scale is not None:
+            raise ValueError("--scale: only used with --pixel-noise; drop it or use --pixel-noise.")
+        return args.noise
+    if args.scale is None:
+        raise ValueError(
+            "--pixel-noise: needs --scale M_PER_PX (metres per pixel) to give the noise in metres."
+        )
+    for name, v in (("--pixel-noise", args.pixel_noise), ("--scale", args.scale)):
+        if not math.isfinite(v) or v <= 0:
+            raise ValueError(f"{name}: must be > 0, got {v!r}.")
+    return args.pixel_noise * args.scale
+
+
+def run(args) -> int:
+    from fitdrag.plan import plan_test
+    from fitdrag.simulate import Launch
+
+    out = Path(args.json) if args.json else None
+    if out is not None and out.exists() and not args.force:
+        raise ValueError(f"--json: {out} exists; pass --force to overwrite it.")
+    if args.speed < 0:
+        raise ValueError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
+    if args.cd < 0:
+        raise ValueError(f"--cd: must be >= 0, got {args.cd!r}.")
+    noise = noise_from_args(args)
+    specimen = specimen_from_args(args)
+    conditions = conditions_from_args(args, wind=args.wind)
+    launch = Launch.from_speed_angle(args.speed, args.angle, args.x0, args.y0)
+    plan = plan_test(
+        specimen, conditions, launch, fps=args.fps, frames=args.frames, noise=noise,
+        throws=args.throws, drag_params=(args.cd,), lift_coefficient=args.lift_coefficient,
+        fit_lift=args.fit_lift, ar1=args.noise_correlation, target=args.target,
+    )  # fmt: skip
+    print(plan.message[0].upper() + plan.message[1:])
+    if out is not None:
+        text = json.dumps(plan.to_dict(), indent=2, allow_nan=False)
+        tmp = out.with_name(f".{out.name}.tmp")
+        try:
+            tmp.write_text(text + "\n", encoding="utf-8")
+            tmp.replace(out)
+        finally:
+            if tmp.exists():
+                tmp.unlink()
+        print(f"wrote {out}")
+    return 0
