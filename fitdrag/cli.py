@@ -19,7 +19,9 @@ class _Parser(argparse.ArgumentParser):
     """argparse parser whose errors are one clear line and exit code 2."""
 
     def error(self, message: str) -> None:  # noqa: D401 - argparse API
-        self.exit(2, f"fitdrag {self.prog.split()[-1]}: error: {message}\n")
+        words = self.prog.split()
+        name = "fitdrag" if len(words) == 1 else f"fitdrag {words[-1]}"
+        self.exit(2, f"{name}: error: {message}\n")
 
 
 def _command_modules():

@@ -53,9 +53,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-import lmfit
 import numpy as np
-from scipy import stats
 
 from fitdrag import __version__
 from fitdrag.air import STANDARD_GRAVITY, Air
@@ -282,6 +280,8 @@ def _ljung_box(series: list[np.ndarray], lags: int = 10) -> tuple[float, float]:
         dof += h
     if dof == 0:
         return float("nan"), float("nan")
+    from scipy import stats
+
     return q, float(stats.chi2.sf(q, dof))
 
 
@@ -296,6 +296,8 @@ def _coverage_factor(dof: float, k: float | None) -> float:
         return float(k)
     if dof >= 30:
         return 2.0
+    from scipy import stats
+
     return float(stats.t.ppf(0.5 + COVERAGE_PROBABILITY / 2.0, max(dof, 1)))
 
 
@@ -433,6 +435,8 @@ class _Problem:
 
 
 def _params(problem: _Problem, theta, bounds):
+    import lmfit
+
     p = lmfit.Parameters()
     for j, name in enumerate(problem.names):
         lo, hi = bounds[j]
@@ -450,6 +454,8 @@ def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfe
     def jacobian(params):
         th = np.array([params[n].value for n in names])
         return problem.evaluate(th)[1]
+
+    import lmfit
 
     mini = lmfit.Minimizer(resid, _params(problem, theta, bounds), nan_policy="raise")
     with warnings.catch_warnings():
@@ -620,6 +626,8 @@ def fit_tracks(
     rejection: list[dict] = [dict() for _ in tracks]
     masks = [np.ones(len(tr), bool) for tr in tracks]
     n_resid_total = 2 * sum(len(tr) for tr in tracks)
+    from scipy import stats
+
     z_limit = max(4.0, float(stats.norm.isf(0.01 / (2.0 * n_resid_total))))
 
     if robust and success:

@@ -26,6 +26,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -94,6 +95,11 @@ class DragModel:
         grad = np.zeros(max(len(p), 1))
         return np.array([self.kernel(float(r), p, grad)[0] for r in re])
 
+    @functools.cached_property
+    def callback(self):
+        """The kernel wrapped as a C callback of fixed signature for the integrator."""
+        return _as_callback(self.kernel)
+
     def check_re_range(self, re_min: float, re_max: float) -> None:
         """Raise ValueError when [re_min, re_max] leaves the law's validity range."""
         lo, hi = self.re_range
@@ -106,6 +112,23 @@ class DragModel:
 
 
 _REGISTRY: dict[str, DragModel] = {}
+
+
+def _as_callback(kernel):
+    """Wrap ``kernel(re, p, grad) -> (cd, dcd_dre)`` as a numba cfunc of fixed signature.
+
+    Passing a fixed-signature callback (rather than the kernel's own dispatcher) lets the
+    compiled integrator be cached on disk once for all drag models.
+    """
+    from fitdrag.simulate import CD_SIGNATURE
+
+    @numba.cfunc(CD_SIGNATURE)
+    def callback(re, p, grad, dcd_dre):
+        cd, d = kernel(re, p, grad)
+        dcd_dre[0] = d
+        return cd
+
+    return callback
 
 
 def register_drag_model(model: DragModel) -> DragModel:
@@ -158,6 +181,13 @@ CONSTANT = register_drag_model(
 # --------------------------------------------------------------------------- conditions
 
 
+def _number(name: str, value, unit: str, hint: str) -> float:
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        raise ValueError(f"{name}: expected a number in {unit}, got {value!r}; {hint}") from None
+
+
 @dataclass(frozen=True)
 class Conditions:
     """The surroundings of a flight.
@@ -181,13 +211,13 @@ class Conditions:
     buoyancy: bool = True
 
     def __post_init__(self) -> None:
-        g = float(self.gravity)
+        g = _number("gravity", self.gravity, "m/s²", "use 9.80665 or the local value.")
         if not math.isfinite(g) or g <= 0:
             raise ValueError(
                 f"gravity: must be a finite number > 0 m/s², got {self.gravity!r}; use 9.80665 "
                 f"or the local value."
             )
-        w = float(self.wind)
+        w = _number("wind", self.wind, "m/s", "give the horizontal wind speed, 0 for still air.")
         if not math.isfinite(w):
             raise ValueError(f"wind: must be a finite speed in m/s, got {self.wind!r}.")
         object.__setattr__(self, "gravity", g)

@@ -27,6 +27,7 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
+from numba import types
 
 from fitdrag.forces import Conditions, drag_factor, get_drag_model, net_gravity
 
@@ -50,12 +51,13 @@ _E = np.array([71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525,
 
 
 @numba.njit(cache=True)
-def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, out):
+def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, dre, out):
     ux = y[2] - wind
     uy = y[3]
     q = math.sqrt(ux * ux + uy * uy)
     re = re_fac * q
-    cd, dcd_dre = cd_fn(re, p, grad)
+    cd = cd_fn(re, p, grad, dre)
+    dcd_dre = dre[0]
     out[0] = y[2]
     out[1] = y[3]
     out[2] = -k * q * (cd * ux + cl * uy)
@@ -97,7 +99,22 @@ def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, 
         out[b + 3] = ay
 
 
-@numba.njit(cache=True)
+_F64 = types.float64
+_VEC = types.float64[::1]
+_MAT = types.float64[:, ::1]
+#: Signature of a drag law as passed to the integrator: (re, p, grad, dcd_dre_out) -> cd.
+CD_SIGNATURE = _F64(_F64, _VEC, _VEC, _VEC)
+_CD_FUNCTION = types.FunctionType(CD_SIGNATURE)
+_INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
+    _CD_FUNCTION, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _F64, _F64,
+    types.int64, _F64, _F64, types.int64, _MAT, _MAT, types.float64[:, :, ::1], _MAT, _VEC,
+    _VEC, _VEC,
+)  # fmt: skip
+
+
+# The drag law arrives as a first-class function (a C callback with a fixed signature), so
+# that the compiled integrator is cached once on disk for every drag model.
+@numba.njit(_INTEGRATE_SIGNATURE, cache=True)
 def _integrate(
     cd_fn, t_out, s0, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par,
     rtol, atol, max_steps, pos, vel, sens, A, B, C, E,
@@ -109,10 +126,11 @@ def _integrate(
     for j in range(min(n_par, 4)):
         y[4 + 4 * j + j] = 1.0
     grad = np.zeros(max(p.shape[0], 1))
+    dre = np.zeros(1)
     ks = np.zeros((7, dim))
     ytmp = np.zeros(dim)
     ynew = np.zeros(dim)
-    _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, ks[0])
+    _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, dre, ks[0])
 
     def record(i, yy):
         pos[i, 0] = yy[0]
@@ -153,7 +171,9 @@ def _integrate(
                 for r in range(s):
                     acc += A[s, r] * ks[r, i]
                 ytmp[i] = y[i] + h_try * acc
-            _rhs(cd_fn, ytmp, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, ks[s])
+            _rhs(
+                cd_fn, ytmp, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, dre, ks[s]
+            )
         # ks[6] is f(t + h, y_new) since A[6] == B (FSAL)
         err = 0.0
         for i in range(dim):
@@ -285,7 +305,7 @@ class FlightModel:
     def __init__(self, t, specimen, conditions: Conditions, model="constant", constants=(),
                  fit_lift: bool = False, rtol: float = 1e-10, atol: float = 1e-10,
                  max_steps: int = 2_000_000):  # fmt: skip
-        self.t = np.ascontiguousarray(t, dtype=float)
+        self.t = np.array(t, dtype=float)  # a writable copy (numba's signature wants one)
         if self.t.ndim != 1 or self.t.size < 1:
             raise ValueError("t: expected a non-empty 1-D array of sample times in seconds.")
         if np.any(np.diff(self.t) <= 0) or not np.all(np.isfinite(self.t)):
@@ -321,7 +341,7 @@ class FlightModel:
         ``lift_coefficient`` is used when C_L is not part of θ.
         """
         theta = np.asarray(theta, dtype=float)
-        s0 = np.ascontiguousarray(theta[:4])
+        s0 = np.array(theta[:4], dtype=float)
         p = np.concatenate((theta[4 : 4 + self.n_fit], self.constants))
         cl = float(theta[4 + self.n_fit]) if self.fit_lift else float(lift_coefficient)
         n = self.t.size
@@ -330,7 +350,7 @@ class FlightModel:
         vel = np.empty((n, 2))
         sens = np.empty((n, 2, max(n_par, 1)))
         status, steps = _integrate(
-            self.model.kernel, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
+            self.model.callback, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
             self.g_net, self.conditions.wind, self.re_fac, n_par, self.rtol, self.atol,
             self.max_steps, pos, vel, sens, _A, _B, _C, _E,
         )  # fmt: skip

@@ -113,11 +113,9 @@ def test_unknown_top_level_option_exits_2_with_one_line(capsys):
     assert "unrecognized arguments: --bogus" in _one_line(err)
 
 
-@pytest.mark.xfail(strict=True, reason="reported to the lead: top-level errors read "
-                                       "'fitdrag fitdrag: error:'")  # fmt: skip
 def test_top_level_error_prefix_is_not_doubled(capsys):
     """regression: top-level errors start with 'fitdrag: error:' (the sub-command errors use
-    'fitdrag <command>: error:'); today cli._Parser.error repeats the program name."""
+    'fitdrag <command>: error:'); earlier the program name was repeated."""
     _, _, err = run_cli(["--bogus"], capsys)
     assert err.startswith("fitdrag: error: ")
 

@@ -253,7 +253,7 @@ def _replace(argv, option, value):
         ("--fps", "0", "--fps: must be > 0 Hz, got 0.0; give the frame rate."),
         ("--fps", "-500", "--fps: must be > 0 Hz, got -500.0; give the frame rate."),
         ("--fps", "nan", "--fps: must be > 0 Hz, got nan; give the frame rate."),
-        ("--frames", "1", "--frames: need at least 2 samples, got 1."),
+        ("--frames", "1", "--frames: need at least 8 samples (the fewest a track may have), got 1."),
         ("--speed", "-3", "--speed: must be >= 0 m/s, got -3.0."),
         ("--cd", "-0.1", "--cd: must be >= 0, got -0.1."),
     ],
@@ -313,11 +313,9 @@ def test_conflicting_options_exit_2(extra, message, capsys):
     assert err == f"fitdrag simulate: error: {message}\n"
 
 
-@pytest.mark.xfail(strict=True, reason="reported to the lead: --frames 2..7 pass the command's "
-                                       "check, then fail in Track with a fit-related message")  # fmt: skip
 def test_few_frames_is_consistent(capsys):
     """regression: the command accepts --frames >= 2, so 5 frames must either work or be refused
-    by a message about --frames; today Track's 8-point minimum for a fit rejects them."""
+    by a message about --frames (Track needs 8 points)."""
     code, _, err = run_cli(_replace(BASE, "--frames", "5"), capsys)
     assert code == 0 or err.startswith("fitdrag simulate: error: --frames:"), err
 

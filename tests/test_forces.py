@@ -78,8 +78,6 @@ def test_conditions_validation_messages(kwargs, message):
         Conditions(Air(1.2), **kwargs)
 
 
-@pytest.mark.xfail(strict=True, reason="reported to the lead: a non-numeric gravity or wind "
-                                       "raises float()'s bare message")  # fmt: skip
 @pytest.mark.parametrize("kwargs", [{"gravity": "abc"}, {"wind": "calm"}])
 def test_conditions_non_numeric_names_the_input(kwargs):
     """regression (project rule: the message names the bad input): a non-numeric gravity or

@@ -67,16 +67,23 @@ def register(sub) -> argparse.ArgumentParser:
 
 def run(args) -> int:
     from fitdrag.simulate import Launch, simulate
-    from fitdrag.tracks import Track, write_track
+    from fitdrag.tracks import MIN_POINTS, Track, write_track
 
     if args.fps <= 0 or not np.isfinite(args.fps):
         raise ValueError(f"--fps: must be > 0 Hz, got {args.fps!r}; give the frame rate.")
-    if args.frames < 2:
-        raise ValueError(f"--frames: need at least 2 samples, got {args.frames}.")
+    if args.frames < MIN_POINTS:
+        raise ValueError(
+            f"--frames: need at least {MIN_POINTS} samples (the fewest a track may have), got "
+            f"{args.frames}."
+        )
     if args.noise < 0:
         raise ValueError(f"--noise: must be >= 0 m, got {args.noise!r}.")
     if args.speed < 0:
         raise ValueError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
+    for opt, value in (("--cd", args.cd), ("--angle", args.angle), ("--lift-coefficient",
+                       args.lift_coefficient)):  # fmt: skip
+        if not np.isfinite(value):
+            raise ValueError(f"{opt}: must be a finite number, got {value!r}.")
     if args.cd < 0:
         raise ValueError(f"--cd: must be >= 0, got {args.cd!r}.")
     specimen = specimen_from_args(args)
