@@ -21,9 +21,12 @@ comes from its own child of one fixed SeedSequence, so the result does not depen
 scheduling.  BLAS is limited to one thread per process (set before numpy loads) so that the
 worker processes do not oversubscribe the cores.
 
+(Not named ``coverage.py``: a script of that name in benchmarks/ shadows the ``coverage``
+package that numba imports, and breaks every script run from this folder.)
+
 Usage::
 
-    python benchmarks/coverage.py [--replicates 200] [--workers 2] [--seed 7]
+    python benchmarks/coverage_study.py [--replicates 200] [--workers 2] [--seed 7]
         [--kinds white,ar1,outliers] [--points 400]
 """
 
@@ -31,11 +34,6 @@ from __future__ import annotations
 
 import os
 import sys
-
-# This file's name would shadow the "coverage" package that numba looks for: take the script's
-# own folder off the import path before anything imports numba.
-_HERE = os.path.dirname(os.path.abspath(__file__))
-sys.path[:] = [q for q in sys.path if os.path.abspath(q or os.curdir) != _HERE]
 
 for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
     os.environ.setdefault(_var, "1")
