@@ -440,7 +440,7 @@ def _pm(v: float, u: float) -> str:
     if not math.isfinite(u) or u <= 0:
         return f"{v:.4g}"
     digits = max(0, 1 - int(math.floor(math.log10(u))))
-    return f"{v:.{digits}f} ± {u:.2g}"
+    return f"{v:.{digits}f} ± {u:.{digits}f}"
 
 
 def _nests(fuller: CandidateResult, simpler: CandidateResult) -> bool:
