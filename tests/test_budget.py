@@ -333,3 +333,114 @@ def test_budget_from_contributions_and_dict():
     assert d["effective_degrees_of_freedom"] == "inf"
     assert d["lines"][0]["contribution"] == pytest.approx(0.2)
     assert b.relative_uncertainty == pytest.approx(0.2 / 3.0)
+
+
+def test_gum_check_status_inconclusive_when_monte_carlo_is_noisy():
+    """regression: with few trials and a tight tolerance (n_dig = 3) a linear model's GUM and
+    Monte Carlo intervals differ only within the Monte Carlo noise: "inconclusive", never
+    "differ"; with many trials and n_dig = 1 they agree."""
+    b = budget_from_model(linear_model, LINEAR_INPUTS)
+    mc = monte_carlo(linear_model, LINEAR_INPUTS, trials=2000, seed=4, vectorized=True)
+    s_lo, s_hi = mc.interval_standard_error
+    # batch-means standard error of a 2.5 % quantile: about 2.7 u / √M for a normal output
+    # (asymptotic quantile variance p(1-p)/(M f²); common practice, no source)
+    exact = b.combined_standard_uncertainty
+    assert s_lo == pytest.approx(2.7 * exact / math.sqrt(2000), rel=0.6)
+    check = compare_with_gum(b, mc, n_dig=3)
+    assert check.status == "inconclusive" and not check.agrees
+    mc2 = monte_carlo(linear_model, LINEAR_INPUTS, trials=100_000, seed=4, vectorized=True)
+    assert compare_with_gum(b, mc2, n_dig=1).status == "agree"
+    q = [InputQuantity("x", 0.0, 1.0, distribution="rectangular")]
+    mc3 = monte_carlo(lambda v: v["x"], q, trials=100_000, seed=5, vectorized=True)
+    assert compare_with_gum(budget_from_model(lambda v: v["x"], q), mc3).status == "differ"
+
+
+# ---------------------------------------------------------------------------------------------
+# The drag measurement model (re-fits) on a synthetic track from an independent integration
+# ---------------------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def heavy_fit():
+    """A fit without buoyancy and added mass, where Cd = 2 m k / (ρ A) holds exactly for the
+    fitted drag constant k, so ∂Cd/∂m = Cd/m, ∂Cd/∂ρ = −Cd/ρ, ∂Cd/∂d = −2 Cd/d."""
+    import reference as ref
+
+    from fitdrag import Air, Sphere, Track, fit_tracks
+
+    sc = ref.Scenario(added_mass_coefficient=0.0, buoyancy=False, n=200)
+    xy = sc.truth() + np.random.default_rng(8).normal(0.0, sc.sigma, (sc.n, 2))
+    track = Track(sc.t, xy[:, 0], xy[:, 1])
+    sp = Sphere(sc.mass, sc.diameter, added_mass_coefficient=0.0)
+    air = Air(ref.RHO, ref.MU)
+    fit = fit_tracks(track, sp, air, buoyancy=False, robust=False)
+    assert fit.success
+    return fit, track, sc
+
+
+def test_drag_model_sensitivities_closed_form(heavy_fit):
+    """closed-form/independent: without buoyancy and added mass the data fix
+    k = ρ Cd A / (2 m), so Cd ∝ m / (ρ d²): sensitivities Cd/m, −Cd/ρ, −2Cd/d (the last to
+    O((u/d)²) from the central difference); data from scipy DOP853 (tests/reference.py)."""
+    from fitdrag.budget import DragRefitModel
+
+    fit, track, sc = heavy_fit
+    nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225}
+    model = DragRefitModel(fit, [track], nominal, viscosity=1.789e-5)
+    assert model(nominal) == pytest.approx(fit.cd, rel=1e-8)
+    inputs = [
+        InputQuantity("mass", sc.mass, 1e-5, "kg"),
+        InputQuantity("diameter", sc.diameter, 5e-5, "m"),
+        InputQuantity("air_density", 1.225, 0.005, "kg/m³"),
+    ]
+    b = budget_from_model(model, inputs, statistical=(fit.u_cd, fit.dof))
+    cd = fit.cd
+    assert b.line("mass").sensitivity == pytest.approx(cd / sc.mass, rel=1e-6)
+    assert b.line("air_density").sensitivity == pytest.approx(
+        -cd / 1.225 * (1 + (0.005 / 1.225) ** 2),
+        rel=1e-6,  # central difference of 1/ρ
+    )
+    assert b.line("diameter").sensitivity == pytest.approx(-2 * cd / sc.diameter, rel=1e-5)
+    assert b.value == pytest.approx(cd, rel=1e-8)
+    assert abs(cd - sc.cd) < 3 * b.combined_standard_uncertainty
+
+
+def test_drag_model_time_and_length_scale(heavy_fit):
+    """closed-form/independent: scaling all lengths by s and gravity by s leaves the motion
+    self-similar, with the drag constant k → k/s, hence Cd → Cd/s; a frame rate f instead of
+    f0 scales times by f0/f, and with gravity scaled by (f/f0)² Cd is unchanged."""
+    from fitdrag.budget import DragRefitModel
+
+    fit, track, sc = heavy_fit
+    nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225,
+               "frame_rate": sc.fps, "length_scale": 1.0, "gravity": 9.80665}  # fmt: skip
+    model = DragRefitModel(fit, [track], nominal, viscosity=1.789e-5)
+    s = 1.003
+    assert model(dict(length_scale=s, gravity=9.80665 * s)) == pytest.approx(fit.cd / s, rel=1e-7)
+    f = sc.fps * 1.002
+    assert model(dict(frame_rate=f, gravity=9.80665 * (f / sc.fps) ** 2)) == pytest.approx(
+        fit.cd, rel=1e-7
+    )
+    with pytest.raises(ValueError, match=r"nominal: unknown input name\(s\) \['colour'\]"):
+        DragRefitModel(fit, [track], {"colour": 1.0})
+
+
+def test_drag_model_monte_carlo_in_pool(heavy_fit):
+    """regression: the re-fit model is picklable and runs in 2 worker processes; its Monte
+    Carlo standard deviation matches the GUM u_c of this near-linear model within 15 %
+    (200 trials: sampling error of a standard deviation ≈ 1/√(2·200) = 5 %)."""
+    from fitdrag.budget import DragRefitModel
+
+    fit, track, sc = heavy_fit
+    nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225}
+    model = DragRefitModel(fit, [track], nominal, viscosity=1.789e-5)
+    inputs = [
+        InputQuantity("mass", sc.mass, 2e-5, "kg"),
+        InputQuantity("diameter", sc.diameter, 1e-4, "m"),
+        InputQuantity("air_density", 1.225, 0.01, "kg/m³"),
+    ]
+    stat = (fit.u_cd, fit.dof)
+    b = budget_from_model(model, inputs, statistical=stat)
+    mc = monte_carlo(model, inputs, statistical=stat, trials=200, seed=1, workers=2)
+    assert mc.failures == 0 and mc.workers == 2
+    assert mc.standard_uncertainty == pytest.approx(b.combined_standard_uncertainty, rel=0.15)

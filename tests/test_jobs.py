@@ -1,0 +1,258 @@
+"""Tests of fitdrag.jobs: parsing, units, validation messages with line numbers, template."""
+
+from __future__ import annotations
+
+import math
+import re
+
+import pytest
+
+from fitdrag.jobs import TEMPLATE, UNKNOWN_SITE_GRAVITY_HALF_WIDTH, load_job, write_template
+
+
+def _line(text: str, start: str) -> int:
+    """1-based number of the first line of ``text`` starting with ``start``."""
+    for n, ln in enumerate(text.splitlines(), start=1):
+        if ln.startswith(start):
+            return n
+    raise AssertionError(f"no line starts with {start!r}")
+
+
+@pytest.fixture
+def job_dir(tmp_path):
+    (tmp_path / "throw1.csv").write_text("t,x,y\n" + "".join(f"{i},{i},{i}\n" for i in range(9)))
+    return tmp_path
+
+
+def _write(job_dir, text, name="job.toml"):
+    p = job_dir / name
+    p.write_text(text, encoding="utf-8")
+    return p
+
+
+def _edit(old: str, new: str, text: str = TEMPLATE) -> str:
+    assert old in text, old
+    return text.replace(old, new, 1)
+
+
+def test_template_loads(job_dir):
+    """regression: the template is a valid job; values arrive in SI with their uncertainties."""
+    job = load_job(write_template(job_dir / "job.toml"))
+    assert job.laboratory["name"].endswith("(synthetic)")
+    assert job.specimen["mass"].value == 0.0027 and job.specimen["mass"].uncertainty == 1e-5
+    assert job.shape == "sphere"
+    assert job.air["pressure"].value == 100800 and job.air["temperature"].unit == "°C"
+    assert job.camera["fps"].value == 500
+    assert job.throws[0].path == (job_dir / "throw1.csv").resolve()
+    assert job.specification.lower == pytest.approx(0.44)
+    assert job.decision_rule == "guarded"
+    assert job.output_directory == (job_dir / "certificates").resolve()
+    assert job.records_path.name == "records.sqlite"
+    assert str(job.test["date"]) == "2026-01-15"
+    names = [q.name for q in job.input_quantities()]
+    assert names == ["mass", "diameter", "temperature", "pressure", "relative_humidity",
+                     "frame_rate", "length_scale", "gravity"]  # fmt: skip
+    # WGS84 normal gravity at 47° N, 400 m is about 9.807 m/s² (Moritz, Geodetic Reference
+    # System 1980, J. Geodesy 74 (2000); free-air gradient 3.086e-6 s⁻²; from memory)
+    assert job.gravity() == pytest.approx(9.8068, abs=5e-4)
+    with pytest.raises(ValueError, match=r"already exists; choose another name or pass --force"):
+        write_template(job_dir / "job.toml")
+
+
+def test_units_in_strings_are_converted(job_dir):
+    """closed-form/independent: unit strings are converted with pint to SI
+    (1 g = 1e-3 kg; 1 hPa = 100 Pa; T[°C] = T[K] − 273.15; 1 % = 0.01)."""
+    text = _edit("mass = 0.0027 ", 'mass = "2.7 g" ')
+    text = _edit("pressure = 100800 ", 'pressure = "1008 hPa" ', text)
+    text = _edit("temperature = 21.0 ", 'temperature = "294.15 K" ', text)
+    text = _edit("temperature_uncertainty = 0.3 ", 'temperature_uncertainty = "0.3 degC" ', text)
+    text = _edit("diameter = 0.040 ", 'diameter = "40 mm" ', text)
+    text = _edit("scale_relative_uncertainty = 0.002", 'scale_relative_uncertainty = "0.2 %"', text)
+    job = load_job(_write(job_dir, text))
+    assert job.specimen["mass"].value == pytest.approx(0.0027, rel=1e-12)
+    assert job.air["pressure"].value == pytest.approx(100800.0, rel=1e-12)
+    assert job.air["temperature"].value == pytest.approx(21.0, abs=1e-9)
+    assert job.air["temperature"].uncertainty == pytest.approx(0.3)
+    assert job.specimen["diameter"].value == pytest.approx(0.040)
+    assert job.camera["scale_relative_uncertainty"] == pytest.approx(0.002)
+
+
+@pytest.mark.parametrize(
+    "old, new, start, message",
+    [
+        (
+            "mass = 0.0027 ",
+            'colour = "red"\nmass = 0.0027 ',
+            "colour",
+            r"\[specimen\] colour: unknown key; valid keys in \[specimen\] are added_mass_coeff",
+        ),
+        (
+            "mass_uncertainty = 0.00001 ",
+            "mass_uncertainty = -0.00001 ",
+            "mass_uncertainty",
+            r"\[specimen\] mass_uncertainty: a standard uncertainty must be >= 0, got -1e-05",
+        ),
+        (
+            "mass = 0.0027 ",
+            'mass = "2.7 m" ',
+            "mass =",
+            r"\[specimen\] mass: unit 'm' is not a unit of mass in '2.7 m'; give a number in kg",
+        ),
+        (
+            "pressure = 100800 ",
+            "pressure = 1013 ",
+            "pressure =",
+            r"\[air\] pressure: 1013 Pa is outside the plausible range \(> 30000 Pa and <= "
+            r"120000 Pa\); give the absolute pressure in Pa",
+        ),
+        (
+            "temperature = 21.0 ",
+            "temperature = 294.15 ",
+            "temperature =",
+            r"\[air\] temperature: 294.15 °C is outside the plausible range",
+        ),
+        (
+            "robust = true ",
+            'robust = "yes" ',
+            "robust",
+            r"\[fit\] robust: expected true or false, got 'yes'",
+        ),
+        (
+            'decision_rule = "guarded" ',
+            'decision_rule = "strict" ',
+            "decision_rule",
+            r"\[specification\] decision_rule: unknown value 'strict'; use one of 'simple', "
+            r"'guarded'",
+        ),
+        (
+            'model = "constant" ',
+            'model = "magic" ',
+            "model",
+            r"\[fit\] model: unknown drag model 'magic'; use one of",
+        ),
+        (
+            "fps = 500 ",
+            'fps = "500 m" ',
+            "fps",
+            r"\[camera\] fps: unit 'm' is not a unit of frequency",
+        ),
+        (
+            'number_prefix = "FD"',
+            'number_prefix = "fd-1"',
+            "number_prefix",
+            r"\[output\] number_prefix: number_prefix: 'fd-1' must be 1 to 8 capital letters",
+        ),
+        (
+            "tolerance = 0.03 ",
+            "tolerance = 0.03\nlower = 0.4 ",
+            "tolerance",
+            r"\[specification\] tolerance: give either tolerance",
+        ),
+        (
+            "diameter_uncertainty = 0.00005 ",
+            "diameter_uncertainty = 0.00005\narea = 0.001 ",
+            "diameter =",
+            r"\[specimen\] diameter: give either diameter \(a sphere\) or area",
+        ),
+    ],
+)
+def test_errors_name_the_key_and_line(job_dir, old, new, start, message):
+    """regression: every error names the file, the line, the section and key, and a fix."""
+    text = _edit(old, new)
+    path = _write(job_dir, text)
+    n = _line(text, start)
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: {message}"):
+        load_job(path)
+
+
+def test_missing_mass_names_section_line(job_dir):
+    """regression: a missing required key points at its section's header line."""
+    text = _edit("mass = 0.0027                     # kg\n", "")
+    path = _write(job_dir, text)
+    n = _line(text, "[specimen]")
+    with pytest.raises(
+        ValueError,
+        match=rf"^job\.toml, line {n}: \[specimen\] mass: missing; give the specimen mass in kg",
+    ):
+        load_job(path)
+    text = _edit("mass_uncertainty = 0.00001        # kg\n", "")
+    with pytest.raises(ValueError, match=r"\[specimen\] mass_uncertainty: missing; give the "
+                       r"standard uncertainty of the mass in kg \(write 0"):  # fmt: skip
+        load_job(_write(job_dir, text))
+
+
+def test_missing_track_file(job_dir):
+    """regression: a missing track file is a FileNotFoundError naming the line and folder."""
+    text = _edit('track = "throw1.csv"', 'track = "nothere.csv"')
+    path = _write(job_dir, text)
+    n = _line(text, 'track = "nothere.csv"')
+    with pytest.raises(
+        FileNotFoundError,
+        match=rf"^job\.toml, line {n}: \[\[throws\]\] #1 track: no such file '.*nothere\.csv'; "
+        r"paths are relative to the job file's folder",
+    ):
+        load_job(path)
+    assert load_job(path, check_files=False).throws[0].path.name == "nothere.csv"
+
+
+def test_structure_errors(job_dir):
+    """regression: unknown section, missing section, TOML syntax error, second throw's key."""
+    text = TEMPLATE + "\n[extras]\nfoo = 1\n"
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {_line(text, '[extras]')}: "
+                       r"\[extras\]: unknown section; valid sections are \[laboratory\]"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("[camera]\n", "[kamera]\n")
+    with pytest.raises(ValueError, match=r"\[kamera\]: unknown section"):
+        load_job(_write(job_dir, text))
+    text = TEMPLATE.replace("[laboratory]\n", "[lab_info]\n")
+    with pytest.raises(ValueError, match=r"\[lab_info\]: unknown section"):
+        load_job(_write(job_dir, text))
+    text = _edit("mass = 0.0027 ", "mass = = 0.0027 ")
+    with pytest.raises(ValueError, match=r"^job\.toml: not valid TOML: .*line \d+"):
+        load_job(_write(job_dir, text))
+    text = TEMPLATE + '\n[[throws]]\ntrack = "throw1.csv"\nyy_down = true\n'
+    with pytest.raises(ValueError, match=rf"line {_line(text, 'yy_down')}: \[\[throws\]\] #2 "
+                       r"yy_down: unknown key"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    with pytest.raises(FileNotFoundError, match=r"no such job file; create one with"):
+        load_job(job_dir / "none.toml")
+
+
+def test_gravity_without_site_and_air_density(job_dir):
+    """closed-form/independent: without [site], standard gravity 9.80665 m/s² (CGPM 1901)
+    with a rectangular half-width 0.026 m/s² (u = a/√3, GUM 4.3.7); a stated density
+    replaces T, p, RH in the budget."""
+    text = re.sub(r"\[site\].*?(?=\[camera\])", "", TEMPLATE, flags=re.S)
+    text = _edit("temperature = 21.0                # degrees C\n", "", text)
+    text = _edit("temperature_uncertainty = 0.3     # K\n", "", text)
+    text = _edit("pressure = 100800                 # Pa (absolute)\n", "", text)
+    text = _edit("pressure_uncertainty = 50         # Pa\n", "", text)
+    text = _edit("relative_humidity = 45            # %\n", "", text)
+    text = _edit("relative_humidity_uncertainty = 3 # %\n", "", text)
+    text = _edit("# density = 1.19 ", "density = 1.19 ", text)
+    text = _edit("# density_uncertainty = 0.005 ", "density_uncertainty = 0.005 ", text)
+    job = load_job(_write(job_dir, text))
+    g = [q for q in job.input_quantities() if q.name == "gravity"][0]
+    assert g.value == 9.80665
+    assert g.standard_uncertainty == pytest.approx(UNKNOWN_SITE_GRAVITY_HALF_WIDTH / math.sqrt(3))
+    assert g.distribution == "rectangular"
+    names = [q.name for q in job.input_quantities()]
+    assert "air_density" in names and "temperature" not in names
+    assert job.make_air().density == 1.19
+
+
+def test_body_specimen(job_dir):
+    """regression: a non-spherical specimen by area and volume."""
+    text = _edit("diameter = 0.040 ", "# diameter = 0.040 ")
+    text = _edit("diameter_uncertainty = 0.00005 ", "# diameter_uncertainty = 0.00005 ", text)
+    text = _edit("# area = 0.00126 ", "area = 0.00126 ", text)
+    text = _edit("# area_uncertainty = 0.00001 ", "area_uncertainty = 0.00001 ", text)
+    text = _edit("# volume = 3.35e-5 ", "volume = 3.35e-5 ", text)
+    with pytest.raises(ValueError, match=r"\[specimen\] volume_uncertainty: missing"):
+        load_job(_write(job_dir, text))
+    text = _edit("# volume_uncertainty = 3e-7 ", "volume_uncertainty = 3e-7 ", text)
+    job = load_job(_write(job_dir, text))
+    assert job.shape == "body"
+    sp = job.make_specimen()
+    assert sp.area == 0.00126 and sp.volume == 3.35e-5
+    assert [q.name for q in job.input_quantities()][:3] == ["mass", "area", "volume"]
