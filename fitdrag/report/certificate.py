@@ -113,7 +113,7 @@ PAGE_W, PAGE_H = 8.27, 11.69  # A4 [in]
 MARGIN_L, MARGIN_R, MARGIN_T, MARGIN_B = 0.75, 0.75, 0.75, 0.85  # [in]
 BODY_W = PAGE_W - MARGIN_L - MARGIN_R
 _PT = 1.0 / 72.0
-_CHAR_EM = 0.52  # mean glyph width of DejaVu Sans relative to the font size (for wrapping)
+_CHAR_EM = 0.54  # mean glyph width of DejaVu Sans relative to the font size (for wrapping)
 _LINE = 1.32
 
 
@@ -528,7 +528,7 @@ def build_layout(report: dict, curves=None) -> _Layout:
                  format_sig(budget.get("combined_standard_uncertainty"), 2), "100 %", nu_s])  # fmt: skip
     rows.append([f"§Expanded uncertainty U (k = {k:.2f}, p ≈ {100 * p:.2f} %)", "", "", "", "",
                  U_s, "", ""])  # fmt: skip
-    L.table(header, rows, widths=[2.2, 0.8, 0.65, 0.45, 0.8, 0.85, 0.55, 0.47],
+    L.table(header, rows, widths=[2.05, 0.8, 0.65, 0.45, 0.8, 0.85, 0.55, 0.62],
             aligns=["l", "r", "r", "l", "r", "r", "r", "r"])  # fmt: skip
     L.paragraph(
         "Sensitivity coefficients ∂Cd/∂x are obtained by re-fitting the tracks with each input "
