@@ -48,6 +48,8 @@ def test_list(db_path, capsys):
     assert out[1].startswith("FD-2026-000001") and "SYN-7" in out[1] and "0.4712" in out[1]
     assert "[replaced by FD-2026-000002]" in out[1]
     assert "(replaces FD-2026-000001)" in out[2]
+    assert _run(["records", "list", "--records", str(db_path)]) == 0  # option after the action
+    assert capsys.readouterr().out.splitlines() == out
 
 
 def test_show_and_json(db_path, capsys):

@@ -32,13 +32,17 @@ def register(subparsers) -> argparse.ArgumentParser:
         default=DEFAULT_FILENAME,
         help=f"records database file (default: ./{DEFAULT_FILENAME})",
     )
+    # --records may also follow the action ("fitdrag records list --records PATH")
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--records", metavar="PATH", default=argparse.SUPPRESS,
+                        help="records database file")  # fmt: skip
     sub = p.add_subparsers(dest="action", metavar="ACTION", required=True)
-    sub.add_parser("list", help="one line per certificate, oldest first")
-    show = sub.add_parser("show", help="everything stored for one certificate")
+    sub.add_parser("list", parents=[common], help="one line per certificate, oldest first")
+    show = sub.add_parser("show", parents=[common], help="everything stored for one certificate")
     show.add_argument("number", metavar="NUMBER", help="certificate number, e.g. FD-2026-000001")
     show.add_argument("--job", action="store_true", help="also print the stored job file text")
     show.add_argument("--json", action="store_true", help="print only the stored result JSON")
-    exp = sub.add_parser("export", help="write a CSV summary of every record")
+    exp = sub.add_parser("export", parents=[common], help="write a CSV summary of every record")
     exp.add_argument("csv", metavar="CSV", help="output CSV file")
     exp.add_argument("--force", action="store_true", help="overwrite an existing CSV file")
     return p
