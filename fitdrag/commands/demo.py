@@ -46,7 +46,25 @@ def register(sub) -> argparse.ArgumentParser:
         help="render the footage again and overwrite the demo's files in DIR",
     )  # fmt: skip
     p.add_argument("--quiet", action="store_true", help="no step messages or progress bars")
+    _reject_unknown(p)
     return p
+
+
+def _reject_unknown(parser: argparse.ArgumentParser) -> None:
+    """Make this sub-command report unknown options itself ("fitdrag demo: error: ...").
+
+    With no required argument, argparse would hand unknown options to the top-level parser,
+    whose message names no command.
+    """
+    known = parser.parse_known_args
+
+    def parse_known_args(args=None, namespace=None):
+        ns, extras = known(args, namespace)
+        if extras:
+            parser.error(f"unrecognized arguments: {' '.join(extras)}")
+        return ns, extras
+
+    parser.parse_known_args = parse_known_args
 
 
 def run(args) -> int:
