@@ -175,10 +175,17 @@ def _text(pdf_path) -> tuple[int, str]:
     return len(reader.pages), "\n".join(p.extract_text() for p in reader.pages)
 
 
-def test_pdf_holds_number_result_decision_and_hashes(tmp_path):
+@pytest.fixture(scope="module")
+def rendered(tmp_path_factory):
+    d = tmp_path_factory.mktemp("cert")
+    pdf, png = d / "c.pdf", d / "c.png"
+    n = render_certificate(_report(), pdf, png, curves=_curves(), dpi=100)
+    return n, pdf, png
+
+
+def test_pdf_holds_number_result_decision_and_hashes(rendered):
     """regression: ISO/IEC 17025:2017 7.8 items are in the PDF's extracted text."""
-    pdf, png = tmp_path / "c.pdf", tmp_path / "c.png"
-    n = render_certificate(_report(), pdf, png, curves=_curves())
+    n, pdf, _png = rendered
     pages, text = _text(pdf)
     assert n == pages and 1 <= pages <= 3
     flat = " ".join(text.split())
@@ -208,12 +215,11 @@ def test_conditional_decision_and_replacement(tmp_path):
     assert "replaces certificate FD-2026-000007, which is withdrawn" in flat
 
 
-def test_png_is_page_one(tmp_path):
+def test_png_is_page_one(rendered):
     """regression: the PNG is an A4 page image with real content (not blank)."""
     import matplotlib.image as mpimg
 
-    pdf, png = tmp_path / "c.pdf", tmp_path / "c.png"
-    render_certificate(_report(), pdf, png, curves=_curves(), dpi=100)
+    _n, _pdf, png = rendered
     img = mpimg.imread(png)
     h, w = img.shape[:2]
     assert (w, h) == (827, 1169)

@@ -669,7 +669,7 @@ def render_certificate(
             meta["CreationDate"] = datetime.fromisoformat(str(issued))
         except ValueError:
             pass
-    with matplotlib.rc_context({"pdf.fonttype": 42, "font.family": "DejaVu Sans"}):
+    with matplotlib.rc_context({"pdf.fonttype": 42}):
         with PdfPages(pdf_path, metadata=meta) as pdf:
             for i, page in enumerate(pages):
                 fig = Figure(figsize=(PAGE_W, PAGE_H))
