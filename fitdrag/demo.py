@@ -11,9 +11,10 @@ with a fixed seed, so every run on every machine sees the same frames.
 1. renders the footage (ArUco markers in the plane of flight, sensor noise, lamp flicker,
    background clutter, motion blur) to ``DIR/footage/demo_throw.avi`` with its exact truth
    in ``DIR/footage/demo_throw_truth.json`` — only on the first run (or with ``force``);
-2. finds the markers and calibrates the image to metres (``fitdrag.video.calibration``),
-   detects the ball in every frame (``fitdrag.video.detect``) and writes the track
-   ``DIR/demo_track.csv``;
+2. runs ``fitdrag track`` on it: finds the markers and calibrates the image to metres
+   (``fitdrag.video.calibration``), detects the ball in every frame
+   (``fitdrag.video.detect``) and writes the track ``DIR/demo_track.csv`` and a picture of it
+   over one frame, ``DIR/demo_track_preview.png``;
 3. writes the job file ``DIR/demo_job.toml`` that describes the measurement;
 4. runs that job through the machinery of ``fitdrag run`` (:func:`fitdrag.commands.run.measure`
    and :func:`fitdrag.commands.run.issue`): fit, GUM budget, Monte Carlo check, conformity
@@ -21,7 +22,8 @@ with a fixed seed, so every run on every machine sees the same frames.
    ``DIR/certificates/records.sqlite``.
 
 Running it again reuses the footage (after checking its SHA-256 against the truth file),
-recomputes the track and job file and checks that they match the files already there, and
+recomputes the track, its picture and the job file and checks that they match the files
+already there, and
 issues a *new* certificate number that replaces the previous demo certificate (the records
 database keeps both, the old one marked as replaced).  If a file in ``DIR`` was changed by
 hand the run stops and says which; ``force=True`` regenerates and overwrites everything the
@@ -140,6 +142,7 @@ NUMBER_PREFIX = "DEMO"
 FOOTAGE_NAME = "footage/demo_throw.avi"
 TRUTH_NAME = "footage/demo_throw_truth.json"
 TRACK_NAME = "demo_track.csv"
+PREVIEW_NAME = "demo_track_preview.png"
 JOB_NAME = "demo_job.toml"
 CERTIFICATES = "certificates"
 
@@ -152,9 +155,9 @@ class DemoResult:
     ----------
     directory : Path
         The demo directory.
-    footage, truth, track, job : Path
-        Synthetic footage (AVI), its exact truth (JSON), the track found in it (CSV) and the
-        job file run.
+    footage, truth, track, preview, job : Path
+        Synthetic footage (AVI), its exact truth (JSON), the track found in it (CSV), a
+        picture of the detected track over one frame (PNG) and the job file run.
     certificate_number : str
         Number of the certificate issued by this run.
     replaces : str or None
@@ -185,6 +188,7 @@ class DemoResult:
     footage: Path
     truth: Path
     track: Path
+    preview: Path
     job: Path
     certificate_number: str
     replaces: str | None
@@ -355,33 +359,33 @@ def make_demo_footage(
 # ---------------------------------------------------------------------------------------------
 
 
-def _track_from_footage(footage: Path, progress: bool):
-    """Calibrate with the markers, detect the ball, and return (Track, calibration, detections)."""
-    from fitdrag.tracks import Track, file_sha256
-    from fitdrag.video.calibration import calibration_from_markers
-    from fitdrag.video.detect import detect_specimen
-    from fitdrag.video.sources import check_frame_rate, open_source
+def track_command(footage: str, output: str, preview: str | None = None) -> list[str]:
+    """Arguments of the ``fitdrag track`` command that turns the demo footage into a track."""
+    args = [
+        "track", footage, "--fps", f"{FOOTAGE['fps']:g}",
+        "--markers", f"{FOOTAGE['marker_side']:g}",
+        "--scale-uncertainty", f"{FOOTAGE['marker_side_relative_uncertainty']:g}",
+        "-o", output,
+    ]  # fmt: skip
+    if preview:
+        args += ["--preview", preview]
+    return args
 
-    fps = FOOTAGE["fps"]
-    with open_source(footage) as src:
-        check_frame_rate(src, fps)
-        cal = calibration_from_markers(
-            src.read(0), FOOTAGE["marker_side"],
-            size_relative_uncertainty=FOOTAGE["marker_side_relative_uncertainty"],
-        )  # fmt: skip
-        det = detect_specimen(src, progress=progress)
-    x, y = cal.pixel_to_world(det.x_px, det.y_px)
-    meta = {
-        "synthetic": "yes",
-        "source": footage.name,
-        "sha256": file_sha256(footage),
-        "fps": fps,
-        "detections": len(det),
-        "frames_left_out": len(det.missing),
-        **cal.to_meta(),
-    }
-    track = Track(det.frame / fps, x, y, frame=det.frame, meta=meta)
-    return track, cal, det
+
+def _run_track_command(args: list[str]) -> str:
+    """Run ``fitdrag track`` (the command's own code, errors raised) and return its output."""
+    import contextlib
+    import io
+
+    from fitdrag.cli import build_parser
+
+    ns = build_parser().parse_args(args)
+    buf = io.StringIO()
+    with contextlib.redirect_stdout(buf):
+        code = ns._run(ns)
+    if code:  # pragma: no cover - the command raises on bad input
+        raise RuntimeError(f"fitdrag track exited with code {code}: {buf.getvalue().strip()}")
+    return buf.getvalue()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -488,6 +492,20 @@ def _place_text(path: Path, text: str, force: bool, hint: str) -> None:
     atomic_write_text(path, text)
 
 
+def _place_file(new: Path, path: Path, force: bool, hint: str) -> None:
+    """Move ``new`` to ``path`` unless ``path`` has the same bytes; a different file needs force."""
+    if path.exists():
+        if path.read_bytes() == new.read_bytes():
+            new.unlink()
+            return
+        if not force:
+            raise ValueError(
+                f"{path}: differs from what the demo writes there ({hint}); pass --force to "
+                f"overwrite it, or give another directory."
+            )
+    os.replace(new, path)
+
+
 def _latest_unreplaced(records_path: Path) -> str | None:
     from fitdrag.records import Records
 
@@ -531,7 +549,7 @@ def run_demo(
     """
     from fitdrag.commands.run import FitFailed, _summary, issue, measure
     from fitdrag.jobs import load_job
-    from fitdrag.tracks import write_track
+    from fitdrag.tracks import read_track
 
     t_start = time.perf_counter()
     if log is None:
@@ -543,6 +561,7 @@ def run_demo(
     (d / "footage").mkdir(parents=True, exist_ok=True)
     footage, truth_path = d / FOOTAGE_NAME, d / TRUTH_NAME
     track_path, job_path = d / TRACK_NAME, d / JOB_NAME
+    preview_path = d / PREVIEW_NAME
     timings: dict[str, float] = {}
 
     def step(n, what):
@@ -580,29 +599,34 @@ def run_demo(
     timings["footage"] = time.perf_counter() - t0
 
     # 2. track ----------------------------------------------------------------------------
-    t0 = step(2, "markers, calibration and ball detection")
-    track, cal, det = _track_from_footage(footage, bars)
-    tmp = d / f".{TRACK_NAME}.new"
+    t0 = step(2, "markers, calibration and ball detection (fitdrag track)")
+    shown = track_command(FOOTAGE_NAME, TRACK_NAME, PREVIEW_NAME)
+    log(f"      the same as, inside {d}:  fitdrag {' '.join(shown)}")
+    tmp_track = d / f".{TRACK_NAME}.new.csv"
+    tmp_preview = d / f".{PREVIEW_NAME}.new.png"
     try:
-        write_track(track, tmp, force=True)
-        _place_text(
-            track_path, tmp.read_text(encoding="utf-8"), force,
-            "the track this version of fitdrag finds in the footage; edited by hand, or made "
-            "by another version?",
-        )  # fmt: skip
+        printed = _run_track_command(
+            track_command(str(footage), str(tmp_track), str(tmp_preview)) + ["--force"]
+        )
+        for line in printed.splitlines():
+            if not line.startswith("wrote "):
+                log(f"      {line.replace(str(footage), FOOTAGE_NAME)}")
+        hint = (
+            "this version of fitdrag finds another track in the footage: edited by hand, or "
+            "made by another version?"
+        )
+        _place_file(tmp_track, track_path, force, hint)
+        _place_file(tmp_preview, preview_path, force, hint)
     finally:
-        tmp.unlink(missing_ok=True)
-    log(
-        f"      {len(cal.details.get('ids', ()))} markers, scale "
-        f"{1e3 * cal.scale:.4f} mm/px (u = {1e2 * cal.scale_relative_uncertainty:.3f} %); "
-        f"ball found in {len(det)} of {truth['frames']} frames "
-        f"({len(det.missing)} left out: ball cut by the frame edge or not found)"
-    )
+        tmp_track.unlink(missing_ok=True)
+        tmp_preview.unlink(missing_ok=True)
+    track = read_track(track_path)
+    scale_u = float(track.meta["scale_relative_uncertainty"])
     timings["track"] = time.perf_counter() - t0
 
     # 3. job file -------------------------------------------------------------------------
     t0 = step(3, "job file")
-    text = job_text(truth["rendered_on"], cal.scale_relative_uncertainty)
+    text = job_text(truth["rendered_on"], scale_u)
     _place_text(job_path, text, force, "the demo's job file; run an edited copy with "
                 "'fitdrag run'")  # fmt: skip
     job = load_job(job_path)
@@ -630,6 +654,7 @@ def run_demo(
         footage=footage,
         truth=truth_path,
         track=track_path,
+        preview=preview_path,
         job=job_path,
         certificate_number=rec.number,
         replaces=rec.replaces,

@@ -85,7 +85,7 @@ def test_demo_writes_only_inside_its_directory(demo):
     assert sorted(os.listdir(base)) == ["demo"]
     d = base / "demo"
     assert r.directory == d.resolve()
-    for p in (r.footage, r.truth, r.track, r.job, r.certificate_pdf, r.certificate_png,
+    for p in (r.footage, r.truth, r.track, r.preview, r.job, r.certificate_pdf, r.certificate_png,
               r.result_json, r.records):  # fmt: skip
         assert p.is_file() and d.resolve() in p.resolve().parents
     assert not [p for p in d.rglob("*") if ".tmp" in p.name or ".partial" in p.name]

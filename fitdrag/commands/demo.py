@@ -89,7 +89,8 @@ def run(args) -> int:
     rows = [
         ("footage", res.footage, "synthetic" + (", reused" if res.footage_reused else "")),
         ("footage truth", res.truth, "exact positions and parameters"),
-        ("track", res.track, "found in the footage"),
+        ("track", res.track, "found in the footage by fitdrag track"),
+        ("track picture", res.preview, "the detected track over one frame"),
         ("job file", res.job, "rerun it with: fitdrag run"),
         ("certificate", res.certificate_pdf, ""),
         ("certificate page 1", res.certificate_png, ""),
