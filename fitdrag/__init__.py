@@ -25,7 +25,9 @@ from fitdrag.air import (  # noqa: E402
     local_gravity,
     moist_air_density,
 )
-from fitdrag.fitting import FitResult, ThrowResult, fit_tracks  # noqa: E402
+from fitdrag.compare import ModelComparison, compare_models, drag_coefficient_at  # noqa: E402
+from fitdrag.drag_models import sphere_correlation_names, sphere_drag_coefficient  # noqa: E402
+from fitdrag.fitting import FitResult, Refit, ThrowResult, fit_tracks, refit  # noqa: E402
 from fitdrag.forces import (  # noqa: E402
     Conditions,
     DragModel,
@@ -33,6 +35,7 @@ from fitdrag.forces import (  # noqa: E402
     get_drag_model,
     register_drag_model,
 )
+from fitdrag.plan import PlanResult, plan_test  # noqa: E402
 from fitdrag.simulate import Flight, FlightModel, Launch, simulate  # noqa: E402
 from fitdrag.specimen import Body, Sphere  # noqa: E402
 from fitdrag.tracks import (  # noqa: E402
@@ -55,6 +58,9 @@ __all__ = [
     "Flight",
     "FlightModel",
     "Launch",
+    "ModelComparison",
+    "PlanResult",
+    "Refit",
     "OutputExistsError",
     "STANDARD_GRAVITY",
     "Sphere",
@@ -62,6 +68,8 @@ __all__ = [
     "Track",
     "TrackImportWarning",
     "air_viscosity",
+    "compare_models",
+    "drag_coefficient_at",
     "drag_model_names",
     "dry_air_density",
     "file_sha256",
@@ -69,8 +77,12 @@ __all__ = [
     "get_drag_model",
     "local_gravity",
     "moist_air_density",
+    "plan_test",
     "read_track",
+    "refit",
     "register_drag_model",
     "simulate",
+    "sphere_correlation_names",
+    "sphere_drag_coefficient",
     "write_track",
 ]

@@ -90,25 +90,7 @@ def drag_coefficient_at(result, re) -> tuple[np.ndarray, np.ndarray]:
     (ndarray, ndarray)
         C_d [-] and its standard uncertainty [-] at each Reynolds number.
     """
-    dm = get_drag_model(result.model)
-    r = np.atleast_1d(np.asarray(re, dtype=float))
-    if not np.all(np.isfinite(r)) or np.any(r <= 0):
-        raise ValueError(
-            f"re: Reynolds numbers must be finite and > 0, got {r.tolist()!r}; pass the "
-            f"Reynolds numbers at which to state Cd."
-        )
-    n_fit = len(dm.parameters)
-    idx = [result.parameter_names.index(n) for n in dm.parameters]
-    p = np.concatenate(([result.values[i] for i in idx], result.constants)).astype(float)
-    cov = result.covariance[np.ix_(idx, idx)]
-    grad = np.zeros(max(p.size, 1))
-    cd = np.empty(r.size)
-    u = np.empty(r.size)
-    for k, rk in enumerate(r):
-        cd[k] = dm.kernel(float(rk), p, grad)[0]
-        g = grad[:n_fit]
-        u[k] = math.sqrt(max(float(g @ cov @ g), 0.0))
-    return cd, u
+    return result.cd_at(re)
 
 
 def _label(model: str, lift: bool) -> str:

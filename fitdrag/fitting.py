@@ -69,6 +69,10 @@ from fitdrag.tracks import Track
 COVERAGE_PROBABILITY = 0.9545
 #: Relative standard uncertainty of Cd above which drag is reported as not measurable.
 IDENTIFIABILITY_LIMIT = 0.25
+#: Residual RMS, as a fraction of the flight's extent, above which a fit is called a failure.
+ADEQUACY_LIMIT = 0.02
+#: Fraction of frames rejected as outliers above which the fit is called a failure.
+REJECTION_LIMIT = 0.2
 _MAD = 1.4826
 _FAIL_RESIDUAL = 1e6
 
@@ -226,12 +230,41 @@ class FitResult:
         return simulate(tt, th.launch, self.specimen, self.conditions, model=m,
                         drag_params=dp, lift_coefficient=cl)  # fmt: skip
 
+    def cd_at(self, re) -> tuple[np.ndarray, np.ndarray]:
+        """Drag coefficient at stated Reynolds numbers ``re`` [-] and its standard uncertainty.
+
+        The covariance of the drag parameters is propagated through the drag law to first
+        order (JCGM 100:2008, eq. 13).
+        """
+        r = np.atleast_1d(np.asarray(re, dtype=float))
+        if not np.all(np.isfinite(r)) or np.any(r <= 0):
+            raise ValueError(
+                f"re: Reynolds numbers must be finite and > 0, got {r.tolist()!r}; pass the "
+                f"Reynolds numbers at which to state Cd."
+            )
+        dm = get_drag_model(self.model)
+        out = [_cd_and_gradient(dm, self.values, self.constants, float(x)) for x in r]
+        cd = np.array([c for c, _ in out])
+        u = np.array([math.sqrt(max(float(g @ self.covariance @ g), 0.0)) for _, g in out])
+        return cd, u
+
     def to_dict(self) -> dict:
         """The JSON-ready summary (see the README for its fields)."""
         return _result_dict(self)
 
 
 # ----------------------------------------------------------------------------- helpers
+
+
+def _cd_and_gradient(dm, theta, constants, re: float) -> tuple[float, np.ndarray]:
+    """C_d at ``re`` and its gradient with respect to all fitted parameters θ."""
+    n_fit = len(dm.parameters)
+    p_full = np.concatenate((np.asarray(theta[:n_fit], float), constants)).astype(float)
+    grad = np.zeros(max(p_full.size, 1))
+    cd, _ = dm.kernel(float(re), p_full, grad)
+    g = np.zeros(len(theta))
+    g[:n_fit] = grad[:n_fit]
+    return float(cd), g
 
 
 def _sign_runs(r: np.ndarray) -> tuple[int, float, float]:
@@ -358,6 +391,7 @@ class _Problem:
         self._refresh_layout()
         self._cache_theta = None
         self._cache = None
+        self.n_evaluations = 0
 
     def _refresh_layout(self):
         self.index = []
@@ -411,6 +445,7 @@ class _Problem:
         if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
             return self._cache
         sims = self.simulate_all(theta, True)
+        self.n_evaluations += 1
         res = np.empty(self.n_resid)
         jac = np.zeros((self.n_resid, self.n_params))
         row = 0
@@ -509,7 +544,16 @@ def _params(problem: _Problem, theta, bounds):
     return p
 
 
-def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfev=200):
+def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfev=200,
+           engine="scipy", tol=1e-8):  # fmt: skip
+    """One optimiser stage; (theta, success, message, nfev).
+
+    The intermediate stages call scipy's trust-region-reflective ``least_squares``
+    directly; the final stage goes through lmfit (``engine="lmfit"``), which wraps the very
+    same solver and whose result object is kept for the analyst.
+    """
+    if engine == "scipy":
+        return _solve_scipy(problem, theta, bounds, loss, f_scale, max_nfev, tol)
     names = problem.names
 
     def resid(params):
@@ -531,6 +575,37 @@ def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfe
     status = getattr(out, "status", 0)
     success = bool(out.success) and status > 0 and problem.evaluate(th)[3]
     return th, success, str(getattr(out, "message", out.message)), out.nfev
+
+
+def _polish(problem: _Problem, theta, bounds, max_nfev):
+    """Re-converge from a nearby point: Gauss–Newton, else the trust-region solver."""
+    before = problem.n_evaluations
+    th, ok = _gauss_newton(problem, theta, bounds)
+    if ok:
+        return (
+            th,
+            True,
+            "converged (Gauss-Newton from a nearby optimum)",
+            problem.n_evaluations - before,
+        )
+    return _solve(problem, theta, bounds, max_nfev=max_nfev)
+
+
+def _solve_scipy(problem: _Problem, theta, bounds, loss, f_scale, max_nfev, tol=1e-8):
+    from scipy.optimize import least_squares
+
+    lo = np.array([b[0] for b in bounds], float)
+    hi = np.array([b[1] for b in bounds], float)
+    x0 = np.clip(np.asarray(theta, float), lo, hi)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        out = least_squares(
+            lambda th: problem.evaluate(th)[0], x0, jac=lambda th: problem.evaluate(th)[1],
+            bounds=(lo, hi), method="trf", loss=loss, f_scale=f_scale, x_scale="jac",
+            ftol=tol, xtol=tol, gtol=tol, max_nfev=max_nfev,
+        )  # fmt: skip
+    success = bool(out.success) and out.status > 0 and problem.evaluate(out.x)[3]
+    return out.x, success, str(out.message), int(out.nfev)
 
 
 # ----------------------------------------------------------------------------- front door
@@ -604,7 +679,38 @@ def fit_tracks(
     FitResult
         ``success`` is False (with a message) when the optimiser did not converge.
     """
+    from threadpoolctl import threadpool_limits
+
+    # the linear algebra here is on small matrices: extra BLAS threads only contend
+    with threadpool_limits(limits=1, user_api="blas"):
+        return _fit_tracks(
+            tracks, specimen, air, gravity=gravity, model=model, lift=lift, wind=wind,
+            buoyancy=buoyancy, robust=robust, noise=noise, coverage_factor=coverage_factor,
+            initial=initial, max_nfev=max_nfev,
+        )  # fmt: skip
+
+
+def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, robust, noise,
+                coverage_factor, initial, max_nfev) -> FitResult:  # fmt: skip
     tracks = _as_tracks(tracks)
+    if not all(hasattr(specimen, a) for a in ("mass", "area", "volume", "length")):
+        raise ValueError(
+            f"specimen: expected a fitdrag.Sphere or fitdrag.Body, got {specimen!r}; build one "
+            f"with fitdrag.Sphere(mass, diameter) or fitdrag.Body(mass, area, volume)."
+        )
+    if coverage_factor is not None and not (
+        isinstance(coverage_factor, (int, float)) and math.isfinite(coverage_factor)
+        and coverage_factor > 0
+    ):  # fmt: skip
+        raise ValueError(
+            f"coverage_factor: must be a finite number > 0, got {coverage_factor!r}; leave it "
+            f"out for k = 2 (or the Student-t factor for few points)."
+        )
+    if not isinstance(max_nfev, int) or max_nfev < 1:
+        raise ValueError(
+            f"max_nfev: must be a whole number >= 1, got {max_nfev!r}; the default 300 suits "
+            f"every ordinary track."
+        )
     if noise not in ("auto", "white", "ar1"):
         raise ValueError(f"noise: unknown noise model {noise!r}; use 'auto', 'white' or 'ar1'.")
     if not isinstance(air, Air):
@@ -677,16 +783,24 @@ def fit_tracks(
                 th0[0] = dm.initial[0] * cd_try / 0.5
             else:
                 th0[0] = cd_try
-        loss = "soft_l1" if robust else "linear"
-        th, ok, msg, nfev = _solve(problem, th0, bounds, loss=loss, f_scale=3.0, max_nfev=max_nfev)
+        # a quick Gaussian pass brings the drag-free guess close; the robust loss then
+        # discounts gross outliers from there
+        th, ok, msg, nfev = _solve(problem, th0, bounds, max_nfev=max(max_nfev // 4, 1),
+                                   tol=1e-4)  # fmt: skip
         total_nfev += nfev
+        if robust and np.all(np.isfinite(th)):
+            th1, ok, msg, nfev = _solve(problem, th if ok else th0, bounds, loss="soft_l1",
+                                        f_scale=3.0, max_nfev=max_nfev)  # fmt: skip
+            total_nfev += nfev
+            th = th1
         cost = float(np.sum(problem.evaluate(th)[0] ** 2))
         if best is None or (ok and (not best[1] or cost < best[2])):
             best = (th, ok, cost, msg)
         if ok:
             break
     theta, success, _, msg = best
-    messages.append(msg)
+    if not success:
+        messages.append(f"the first fit from the drag-free start did not converge ({msg})")
 
     rejection: list[dict] = [dict() for _ in tracks]
     masks = [np.ones(len(tr), bool) for tr in tracks]
@@ -699,22 +813,27 @@ def fit_tracks(
         for _round in range(4):
             raw = raw_residuals(theta)
             scales = []
-            for (rx, ry), mask, fl in zip(raw, masks, floors):
-                sx = _robust_sigma(rx[mask]) if not given_sigma else 1.0
-                sy = _robust_sigma(ry[mask]) if not given_sigma else 1.0
-                scales.append((max(sx, fl[0] * 1e-3), max(sy, fl[1] * 1e-3)))
             changed = False
             for i, ((rx, ry), tr) in enumerate(zip(raw, tracks)):
-                sx, sy = scales[i]
+                mask = masks[i]
                 if given_sigma:
-                    zx, zy = np.abs(rx) / tr.sigma, np.abs(ry) / tr.sigma
+                    # stated sigmas may understate the noise: never reject on a scale
+                    # smaller than the residuals' own robust spread
+                    nx, ny = rx / tr.sigma, ry / tr.sigma
+                    bx = max(1.0, _robust_sigma(nx[mask]))
+                    by = max(1.0, _robust_sigma(ny[mask]))
+                    zx, zy = np.abs(nx) / bx, np.abs(ny) / by
                 else:
+                    fl = floors[i]
+                    sx = max(_robust_sigma(rx[mask]), fl[0] * 1e-3)
+                    sy = max(_robust_sigma(ry[mask]), fl[1] * 1e-3)
+                    scales.append((sx, sy))
                     zx, zy = np.abs(rx) / sx, np.abs(ry) / sy
                 z = np.maximum(zx, zy)
                 new_mask = z <= z_limit
                 if new_mask.sum() < 8:
                     new_mask = z <= np.sort(z)[7]
-                if not np.array_equal(new_mask, masks[i]):
+                if not np.array_equal(new_mask, mask):
                     changed = True
                 masks[i] = new_mask
                 rejection[i] = {
@@ -722,6 +841,8 @@ def fit_tracks(
                     f"sigma limit ({'x' if zx[j] >= zy[j] else 'y'})"
                     for j in np.flatnonzero(~new_mask)
                 }
+            if not changed:
+                break
             problem.set_state(masks=masks)
             if not given_sigma:
                 set_sigmas(scales)
@@ -730,8 +851,6 @@ def fit_tracks(
             total_nfev += nfev
             if ok:
                 theta = th
-            if not changed:
-                break
 
     # plain (Gaussian) fit on kept points, noise re-estimated, AR(1) if called for
     problem.set_state(masks=masks)
@@ -756,8 +875,9 @@ def fit_tracks(
 
     phi = (0.0, 0.0)
     noise_model = "white"
-    for _it in range(3):
-        th, ok, msg, nfev = _solve(problem, theta, bounds, max_nfev=max_nfev)
+    previous = np.array([[np.median(sg[:, 0]), np.median(sg[:, 1])] for sg in problem.sigmas])
+    for _it in range(4):
+        th, ok, msg, nfev = _polish(problem, theta, bounds, max_nfev)
         total_nfev += nfev
         if not ok:
             success = False
@@ -765,8 +885,14 @@ def fit_tracks(
             break
         theta = th
         sig = estimate_sigmas(theta)
-        if sig is not None:
-            set_sigmas(sig)
+        if sig is None:
+            break
+        set_sigmas(sig)
+        arr = np.asarray(sig)
+        # the weights only matter relative to each other: stop once they settle
+        if previous is not None and np.max(np.abs(arr / previous - 1.0)) < 0.02:
+            break
+        previous = arr
     sig_white = estimate_sigmas(theta)
 
     # residual series of kept points, per throw and axis, normalised by sigma
@@ -790,7 +916,7 @@ def fit_tracks(
         for _it in range(8):
             new_phi = _reml_ar1(problem, theta)
             problem.set_state(phi=new_phi)
-            th, ok, msg, nfev = _solve(problem, theta, bounds, max_nfev=max_nfev)
+            th, ok, msg, nfev = _polish(problem, theta, bounds, max_nfev)
             total_nfev += nfev
             if not ok:
                 success = False
@@ -805,6 +931,16 @@ def fit_tracks(
                 break
             phi = new_phi
         phi = problem.phi
+
+    # the final, reported stage through lmfit, from the converged point
+    if success:
+        th, ok, msg, nfev = _solve(problem, theta, bounds, max_nfev=max_nfev, engine="lmfit")
+        total_nfev += nfev
+        if ok:
+            theta = th
+        else:
+            success = False
+            messages.append(msg)
 
     # covariance: sigma of whitened residuals, J~^T J~ inverse
     res, jac, sims, ok_eval = problem.evaluate(theta)
@@ -897,11 +1033,7 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
     dm.check_re_range(float(re_cat.min()), float(re_cat.max()))
     # Cd at the median Re and its uncertainty (gradient through the drag law)
     n_fit = len(dm.parameters)
-    p_full = np.concatenate((theta[:n_fit], constants)).astype(float)
-    grad = np.zeros(max(p_full.size, 1))
-    cd_med, _ = dm.kernel(re_med, p_full, grad)
-    g = np.zeros(len(theta))
-    g[:n_fit] = grad[:n_fit]
+    cd_med, g = _cd_and_gradient(dm, theta, constants, re_med)
     u_cd = float(math.sqrt(max(g @ cov @ g, 0.0))) if np.all(np.isfinite(cov)) else float("nan")
     cd = float(cd_med)
     k = _coverage_factor(dof, k_user)
@@ -971,6 +1103,36 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
     else:
         vt, u_vt = float("inf"), float("nan")
 
+    # adequacy: a ballistic flight of one specimen follows a good track to a small fraction of
+    # its extent; a fit that "converges" far from the data is reported as a failure
+    rms_all = float(np.sqrt(np.mean(np.concatenate((rx_all, ry_all)) ** 2)))
+    extent = max(
+        float(np.hypot(np.ptp(t.fitted_x + t.residual_x), np.ptp(t.fitted_y + t.residual_y)))
+        for t in throws
+    )
+    if success and extent > 0 and rms_all > ADEQUACY_LIMIT * extent:
+        success = False
+        messages.append(
+            f"the model cannot follow the track: residual RMS {rms_all:.3g} m is "
+            f"{100 * rms_all / extent:.3g} % of the flight's extent (limit "
+            f"{100 * ADEQUACY_LIMIT:.0f} %); check that the track is one free flight, and its "
+            f"time base, units and calibration"
+        )
+    n_used = sum(int(t.used.sum()) for t in throws)
+    n_total = sum(len(t.t) for t in throws)
+    if success and n_used < (1.0 - REJECTION_LIMIT) * n_total:
+        success = False
+        messages.append(
+            f"the model does not describe the track: {n_total - n_used} of {n_total} frames "
+            f"({100 * (n_total - n_used) / n_total:.0f} %) were rejected as outliers (limit "
+            f"{100 * REJECTION_LIMIT:.0f} %); check the tracking and that this is one free flight"
+        )
+    if success and noise_model == "ar1" and max(abs(phi[0]), abs(phi[1])) >= 0.979:
+        success = False
+        messages.append(
+            "the residuals are almost perfectly correlated (AR(1) coefficient at its 0.98 limit): "
+            "the model does not follow the track; check the time base, units and calibration"
+        )
     message = "fit converged" if success else "; ".join(m for m in messages if m) or "failed"
     diagnostics = {
         "reduced_chi_square": chi2_red,
@@ -1155,11 +1317,18 @@ def _result_dict(r: FitResult) -> dict:
             "method": "weighted nonlinear least squares (lmfit / scipy least_squares, trust "
             "region reflective) with analytic sensitivities; AR(1) prewhitening when the "
             "residuals are serially correlated",
-            "integrator": "adaptive Dormand-Prince RK5(4), rtol 1e-10, landing on every sample",
+            "integrator": "adaptive Dormand-Prince RK5(4) with forward sensitivities, rtol 1e-10, quartic dense output at the sample times",
         },
     }
     if r.lift:
         out["lift_coefficient"] = _vu(*r.parameter("lift_coefficient"))
+    if dm.name != "constant":
+        res = [d["reynolds_min"], d["reynolds_median"], d["reynolds_max"]]
+        cds, us = r.cd_at(res)
+        out["drag_coefficient"]["at_reynolds"] = [
+            {"reynolds_number": re_, "value": _f(c), "standard_uncertainty": _f(u)}
+            for re_, c, u in zip(res, cds, us)
+        ]
     return out
 
 

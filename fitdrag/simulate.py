@@ -2,14 +2,15 @@
 
 The equation of motion of :mod:`fitdrag.forces` is integrated from the launch state at the
 first sample time to every sample time by an embedded Runge–Kutta 5(4) pair with
-adaptive step size [1], compiled with numba.  The integrator lands exactly on each sample
-time (no interpolation).  When asked, it integrates the forward sensitivity equations [2]
+adaptive step size [1], compiled with numba.  When asked, it integrates the forward sensitivity equations [2]
 
     d/dt S = (∂f/∂s) S + ∂f/∂θ,   S(t0) = ∂s(t0)/∂θ,
 
 alongside the state s = (x, y, v_x, v_y), so that ∂(x, y)/∂θ for θ = (x0, y0, vx0, vy0,
 drag parameters[, C_L]) comes from the same integration, with the same error control, as
-the positions themselves — not from finite differences of whole runs.
+the positions themselves — not from finite differences of whole runs.  Steps are chosen by
+the error control alone; positions at the sample times inside a step come from the pair's
+quartic continuous extension [3], so dense sampling costs little.
 
 References
 ----------
@@ -18,6 +19,8 @@ References
    E. Hairer, S. P. Nørsett, G. Wanner, *Solving Ordinary Differential Equations I*,
    2nd ed., Springer 1993, §II.4.
 2. Hairer, Nørsett, Wanner (1993), §I.14 (variational equations / forward sensitivities).
+3. L. F. Shampine, "Some practical Runge-Kutta formulas", Math. Comp. 46 (1986) 135–150
+   (continuous extension of the Dormand–Prince pair; Hairer et al. 1993, §II.6).
 """
 
 from __future__ import annotations
@@ -47,6 +50,21 @@ _A = np.array(
     ]
 )
 _B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84, 0])
+# Shampine's quartic continuous extension of the pair ("Some practical Runge-Kutta
+# formulas", Math. Comp. 46 (1986) 135-150), as tabulated in scipy.integrate.RK45:
+# y(t + θh) = y + h Σ_r k_r Σ_j P[r, j] θ^(j+1).
+_P = np.array(
+    [
+        [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
+        [0, 0, 0, 0],
+        [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
+        [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
+        [0, 127303824393 / 49829197408, -318862633887 / 49829197408,
+         701980252875 / 199316789632],
+        [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
+        [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423],
+    ]
+)  # fmt: skip
 _E = np.array([71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525, -1 / 40])  # b - b*
 
 
@@ -108,7 +126,7 @@ _CD_FUNCTION = types.FunctionType(CD_SIGNATURE)
 _INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
     _CD_FUNCTION, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _F64, _F64,
     types.int64, _F64, _F64, types.int64, _MAT, _MAT, types.float64[:, :, ::1], _MAT, _VEC,
-    _VEC, _VEC,
+    _VEC, _VEC, _MAT,
 )  # fmt: skip
 
 
@@ -117,7 +135,7 @@ _INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
 @numba.njit(_INTEGRATE_SIGNATURE, cache=True)
 def _integrate(
     cd_fn, t_out, s0, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par,
-    rtol, atol, max_steps, pos, vel, sens, A, B, C, E,
+    rtol, atol, max_steps, pos, vel, sens, A, B, C, E, P,
 ):  # fmt: skip
     n = t_out.shape[0]
     dim = 4 + 4 * n_par
@@ -155,16 +173,17 @@ def _integrate(
     d0 = math.sqrt(d0 / dim)
     d1 = math.sqrt(d1 / dim)
     h = 1e-6 if (d0 < 1e-5 or d1 < 1e-5) else 0.01 * d0 / d1
-    h = min(h, t_out[n - 1] - t)
+    t_end = t_out[n - 1]
+    h = min(h, t_end - t)
     steps = 0
     i_next = 1
+    ys = np.zeros(dim)
     while i_next < n:
-        t_target = t_out[i_next]
-        clipped = False
+        last = False
         h_try = h
-        if t + h_try >= t_target - 1e-14 * abs(t_target):
-            h_try = t_target - t
-            clipped = True
+        if t + h_try >= t_end - 1e-14 * abs(t_end):
+            h_try = t_end - t
+            last = True
         for s in range(1, 7):
             for i in range(dim):
                 acc = 0.0
@@ -189,16 +208,32 @@ def _integrate(
         if steps > max_steps or not math.isfinite(err):
             return 1, steps
         if err <= 1.0:
-            t = t_target if clipped else t + h_try
+            t_new = t_end if last else t + h_try
+            # samples inside (t, t_new]: the step's quartic continuous extension [3]
+            while i_next < n and (last or t_out[i_next] < t_new):
+                if last and i_next == n - 1:
+                    break
+                th = (t_out[i_next] - t) / h_try
+                for i in range(dim):
+                    acc = 0.0
+                    for r in range(7):
+                        acc += (
+                            ks[r, i]
+                            * th
+                            * (P[r, 0] + th * (P[r, 1] + th * (P[r, 2] + th * P[r, 3])))
+                        )
+                    ys[i] = y[i] + h_try * acc
+                record(i_next, ys)
+                i_next += 1
+            if t_out[i_next] == t_new or (last and i_next == n - 1):
+                record(i_next, ynew)
+                i_next += 1
+            t = t_new
             for i in range(dim):
                 y[i] = ynew[i]
                 ks[0, i] = ks[6, i]
             fac = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err**-0.2))
-            h_new = h_try * fac
-            h = max(h, h_new) if clipped else h_new
-            if clipped:
-                record(i_next, y)
-                i_next += 1
+            h = h_try * fac
         else:
             h = h_try * max(0.2, 0.9 * err**-0.2)
             if h < 1e-14 * max(1.0, abs(t)):
@@ -352,7 +387,7 @@ class FlightModel:
         status, steps = _integrate(
             self.model.callback, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
             self.g_net, self.conditions.wind, self.re_fac, n_par, self.rtol, self.atol,
-            self.max_steps, pos, vel, sens, _A, _B, _C, _E,
+            self.max_steps, pos, vel, sens, _A, _B, _C, _E, _P,
         )  # fmt: skip
         return status, pos, vel, (sens[:, :, :n_par] if sensitivities else None), steps
 
