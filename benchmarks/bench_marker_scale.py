@@ -7,7 +7,8 @@ contrast), then finds them with
 :func:`fitdrag.video.calibration.detect_markers` with corner refinement "subpix"
 (cv2.cornerSubPix only) and "edges" (edge-line refinement).  Prints, per marker side in
 pixels and blur: markers found, mean and spread of the relative side error, the RMS corner
-error against the exact corners and the corner precision the edge fits predict.
+error against the exact corners and the corner precision the edge fits predict; then how the
+stated scale uncertainty compares with the actual scale error (similarity and homography).
 
 All images are synthetic.  Run:  python -P benchmarks/bench_marker_scale.py [--quick]
 (``-P``: keep the benchmarks folder off the import path.)
@@ -21,7 +22,11 @@ import time
 import cv2
 import numpy as np
 
-from fitdrag.video.calibration import detect_markers, marker_scale_bias_bound
+from fitdrag.video.calibration import (
+    calibration_from_markers,
+    detect_markers,
+    marker_scale_bias_bound,
+)
 
 
 def render_markers(
@@ -162,6 +167,29 @@ def main():
                     f"{side:7d} {blur:4.1f} {how:7s} {r.size:5d} {100 * r.mean():7.3f} "
                     f"{100 * r.std():6.3f} {np.sqrt(np.mean(e**2)):14.3f} {p}  {bound:6.3f}"
                     f"{fb}"
+                )
+    print()
+    print("scale uncertainty check: z = (scale - true) / u, 4 markers, no perspective")
+    print("side_px blur  method      n  max|z|  share |z|<2")
+    for side in (25, 40, 70):
+        for blur in (0.7, 1.2):
+            z = {"markers": [], "homography": []}
+            for trial in range(trials):
+                layout, size, h, shape, rng = scene(side, trial, perspective=False)
+                img = render_markers(shape, layout, size, h, blur=blur, noise=2.0, rng=rng)
+                try:
+                    sim = calibration_from_markers(img, size)
+                    hom = calibration_from_markers(img, size, layout=layout)
+                except ValueError:
+                    continue
+                true = 1.0 / np.hypot(h[0, 0], h[1, 0])  # similarity: same scale everywhere
+                for cal in (sim, hom):
+                    z[cal.method].append((cal.scale / true - 1) / cal.scale_relative_uncertainty)
+            for method, v in z.items():
+                a = np.abs(v)
+                print(
+                    f"{side:7d} {blur:4.1f}  {method:10s} {a.size:3d}  {a.max():6.2f}  "
+                    f"{np.mean(a < 2):6.2f}"
                 )
     print(f"elapsed {time.perf_counter() - t0:.0f} s")
 

@@ -286,3 +286,36 @@ def test_help_has_an_example(capsys):
         main(["track", "--help"])
     out = capsys.readouterr().out
     assert "Example" in out and "fitdrag track throw1.avi --fps 1000 --markers 0.050" in out
+
+
+def test_lens_file_is_applied_and_checked(footage, tmp_path, capsys):
+    """closed-form/independent: a lens file without distortion leaves the track as it is (the
+    undistortion is the identity) and is recorded in the header; a lens file for another
+    image size is refused."""
+    from fitdrag.video.lens import LensModel
+
+    k = np.array([[900.0, 0.0, 239.5], [0.0, 900.0, 199.5], [0.0, 0.0, 1.0]])
+    LensModel(k, np.zeros(5), (480, 400), 0.05).save(tmp_path / "lens.json")
+    LensModel(k, np.zeros(5), (640, 480), 0.05).save(tmp_path / "other.json")
+    base = ["track", str(footage["video"]), "--fps", "500", "--scale", str(1 / PX_PER_M),
+            "--origin", f"{ORIGIN_PX[0]},{ORIGIN_PX[1]}"]  # fmt: skip
+    rc, _, err = _run(base + ["-o", str(tmp_path / "a.csv")], capsys)
+    assert rc == 0, err
+    rc, text, err = _run(
+        base + ["--lens", str(tmp_path / "lens.json"), "-o", str(tmp_path / "b.csv")], capsys
+    )
+    assert rc == 0, err
+    a, b = read_track(tmp_path / "a.csv"), read_track(tmp_path / "b.csv")
+    np.testing.assert_allclose(b.x, a.x, atol=1e-9)
+    np.testing.assert_allclose(b.y, a.y, atol=1e-9)
+    assert b.meta["header"]["lens_file"] == str(tmp_path / "lens.json")
+    assert "lens: " in text
+    rc, _, err = _run(
+        base + ["--lens", str(tmp_path / "other.json"), "-o", str(tmp_path / "c.csv")], capsys
+    )
+    assert rc == 2
+    assert (
+        "--lens: the lens model is for 640x480 px images but the footage is 480x400 px; "
+        "calibrate the lens at the footage's resolution." in err
+    )
+    assert not (tmp_path / "c.csv").exists()
