@@ -28,6 +28,8 @@ Stages (each reported in the result):
 
 Coverage factor: k = 2 (JCGM 100:2008 G.6.6) unless the degrees of freedom are fewer
 than 30, then the Student-t factor for 95.45 % coverage (JCGM 100:2008 G.3, Table G.2).
+Under AR(1) noise the degrees of freedom are those of the effective number of independent
+residuals, N (1 − φ)/(1 + φ) [8], so short, strongly correlated tracks get a larger k.
 
 References
 ----------
@@ -47,6 +49,9 @@ References
 7. W.-K. Cheang and G. C. Reinsel, "Bias reduction of autoregressive estimates in time
    series regression model through restricted maximum likelihood", J. Am. Stat. Assoc.
    95 (2000) 1173–1184.
+8. A. Zięba, "Effective number of observations and unbiased estimators of variance for
+   autocorrelated data — an overview", Metrol. Meas. Syst. 17 (2010) 3–16
+   (n_eff = n (1 − ρ)/(1 + ρ) for an AR(1) process).
 """
 
 from __future__ import annotations
@@ -1036,7 +1041,15 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
     cd_med, g = _cd_and_gradient(dm, theta, constants, re_med)
     u_cd = float(math.sqrt(max(g @ cov @ g, 0.0))) if np.all(np.isfinite(cov)) else float("nan")
     cd = float(cd_med)
-    k = _coverage_factor(dof, k_user)
+    # degrees of freedom for k: under AR(1) noise the residuals carry fewer independent
+    # pieces of information, N_eff = N (1 - φ) / (1 + φ) per axis [8]
+    if noise_model == "ar1":
+        n_axis = problem.n_resid / 2.0
+        n_eff = sum(n_axis * min(1.0, (1.0 - f) / (1.0 + f)) for f in phi)
+        dof_k = max(1, int(n_eff - len(theta)))
+    else:
+        dof_k = dof
+    k = _coverage_factor(dof_k, k_user)
 
     # identifiability: relative uncertainty and correlation of Cd with launch speed
     corr_speed = float("nan")
@@ -1180,7 +1193,7 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
         constants=tuple(float(c) for c in constants),
         cd=cd,
         u_cd=u_cd,
-        dof=dof,
+        dof=dof_k,
         coverage_factor=k,
         throws=tuple(throws),
         noise=noise,
