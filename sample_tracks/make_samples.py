@@ -1,0 +1,454 @@
+"""Regenerate every synthetic sample in sample_tracks/ (fixed seeds, so the same files).
+
+Run from anywhere:  python sample_tracks/make_samples.py [--force]
+
+Everything made here is synthetic: simulated flights of invented specimens of an invented
+laboratory (see README.md in this folder for each file's true parameters).  Tracks that a
+plain ``fitdrag simulate`` command can make are made by that very command (the SIMULATE
+table below is what README.md quotes); the track with outliers and the Reynolds-dependent
+throws need a few lines of library code, below.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import sys
+from pathlib import Path
+
+import numpy as np
+
+HERE = Path(__file__).resolve().parent
+
+AIR_TB = ["--temperature", "21", "--pressure", "100800", "--humidity", "45"]
+
+#: file -> arguments of `fitdrag simulate` (without -o).
+SIMULATE = {
+    "training_ball_throw1.csv": [
+        "--mass", "0.0027", "--diameter", "0.040", "--cd", "0.47", "--speed", "9",
+        "--angle", "32", "--fps", "500", "--frames", "300", "--noise", "0.0004",
+        "--seed", "20261201", *AIR_TB,
+    ],
+    "training_ball_throw2.csv": [
+        "--mass", "0.0027", "--diameter", "0.040", "--cd", "0.47", "--speed", "8",
+        "--angle", "38", "--fps", "500", "--frames", "300", "--noise", "0.0004",
+        "--seed", "20261202", *AIR_TB,
+    ],
+    "training_ball_throw3.csv": [
+        "--mass", "0.0027", "--diameter", "0.040", "--cd", "0.47", "--speed", "10",
+        "--angle", "26", "--fps", "500", "--frames", "280", "--noise", "0.0004",
+        "--seed", "20261203", *AIR_TB,
+    ],
+    "ultralight_ball.csv": [
+        "--mass", "0.002", "--diameter", "0.100", "--cd", "0.50", "--speed", "6",
+        "--angle", "35", "--y0", "1.0", "--fps", "250", "--frames", "150",
+        "--noise", "0.0005", "--seed", "20261206",
+        "--temperature", "22", "--pressure", "101000", "--humidity", "40",
+    ],
+    # the clean track that practice_ball_outliers.csv starts from (not kept)
+    "practice_ball_outliers.csv": [
+        "--mass", "0.030", "--diameter", "0.072", "--cd", "0.52", "--speed", "11",
+        "--angle", "20", "--y0", "1.2", "--fps", "400", "--frames", "200",
+        "--noise", "0.0006", "--seed", "20261204",
+        "--temperature", "19.5", "--pressure", "99800", "--humidity", "60",
+    ],
+}  # fmt: skip
+
+#: Outliers of practice_ball_outliers.csv: seed of their draw and how many.
+OUTLIER_SEED = 20261205
+OUTLIERS = 6
+
+#: Ribbed ball: Cd(Re) = CD_REF (Re / RE_REF)^EXPONENT, two throws.
+RIBBED = {
+    "mass": 0.012,
+    "diameter": 0.060,
+    "cd_ref": 0.55,
+    "exponent": -0.30,
+    "re_ref": 40000.0,
+    "air": (20.0, 100500.0, 50.0),
+    "fps": 400.0,
+    "frames": 160,
+    "noise": 0.0005,
+    "throws": {
+        "ribbed_ball_throw1.csv": {"speed": 16.0, "angle": 12.0, "y0": 1.0, "seed": 20261207},
+        "ribbed_ball_throw2.csv": {"speed": 8.0, "angle": 30.0, "y0": 1.0, "seed": 20261208},
+    },
+}
+
+#: The footage clip: the demo's scene (fitdrag.demo) made smaller.
+CLIP = "foam_ball_clip.avi"
+CLIP_FRAMES = 80
+CLIP_SCENE = {
+    "width_px": 480,
+    "height_px": 300,
+    "metres_per_px": 0.005,
+    "origin_px": (30.0, 270.0),
+    "marker_side": 0.16,
+    "markers": {0: (0.0, 0.0), 1: (1.95, 0.0), 2: (0.0, 1.08), 3: (1.95, 1.08)},
+    "noise_sigma": 2.0,
+    "jpeg_quality": 80,
+}
+CLIP_TRACK = "foam_ball_clip_track.csv"
+#: `fitdrag track` arguments for the clip.
+TRACK_ARGS = ["--fps", "500", "--markers", "0.16", "--scale-uncertainty", "0.001"]
+
+
+def _cli(args: list[str]) -> None:
+    from fitdrag.cli import main
+
+    code = main(args)
+    if code:
+        raise SystemExit(f"fitdrag {' '.join(args)} failed with exit code {code}")
+
+
+def make_simulated(force: bool) -> None:
+    for name, args in SIMULATE.items():
+        _cli(["simulate", *args, "-o", str(HERE / name), *(["--force"] if force else [])])
+
+
+def add_outliers() -> list[dict]:
+    """Replace OUTLIERS rows of the practice-ball track by gross tracker errors."""
+    from fitdrag.tracks import Track, read_track, write_track
+
+    p = HERE / "practice_ball_outliers.csv"
+    tr = read_track(p)
+    rng = np.random.default_rng(OUTLIER_SEED)
+    n = len(tr)
+    rows = np.sort(rng.choice(np.arange(10, n - 10), size=OUTLIERS, replace=False))
+    x, y = tr.x.copy(), tr.y.copy()
+    done = []
+    for r in rows:
+        dx, dy = rng.uniform(0.015, 0.040, 2) * rng.choice([-1.0, 1.0], 2)
+        x[r] += dx
+        y[r] += dy
+        done.append({"row": int(r), "t": float(tr.t[r]), "dx": float(dx), "dy": float(dy)})
+    meta = dict(tr.meta.get("header", {}))
+    for k in ("format", "written_by"):
+        meta.pop(k, None)
+    meta["outlier_rows"] = " ".join(str(d["row"]) for d in done)
+    meta["outlier_seed"] = OUTLIER_SEED
+    write_track(Track(tr.t, x, y, meta=meta), p, force=True)
+    return done
+
+
+def make_ribbed(force: bool) -> None:
+    from fitdrag.air import Air
+    from fitdrag.forces import Conditions
+    from fitdrag.simulate import Launch, simulate
+    from fitdrag.specimen import Sphere
+    from fitdrag.tracks import Track, write_track
+
+    rb = RIBBED
+    air = Air.from_conditions(*rb["air"])
+    cond = Conditions(air=air)
+    sphere = Sphere(rb["mass"], rb["diameter"])
+    t = np.arange(rb["frames"]) / rb["fps"]
+    for name, th in rb["throws"].items():
+        launch = Launch.from_speed_angle(th["speed"], th["angle"], 0.0, th["y0"])
+        f = simulate(t, launch, sphere, cond, model="power-law",
+                     drag_params=(rb["cd_ref"], rb["exponent"], rb["re_ref"]))  # fmt: skip
+        rng = np.random.default_rng(th["seed"])
+        x = f.x + rng.normal(0.0, rb["noise"], t.size)
+        y = f.y + rng.normal(0.0, rb["noise"], t.size)
+        meta = {
+            "synthetic": "yes",
+            "true_drag_model": "power-law",
+            "true_cd_ref": rb["cd_ref"],
+            "true_exponent": rb["exponent"],
+            "true_re_ref": rb["re_ref"],
+            "true_speed": th["speed"],
+            "true_angle": th["angle"],
+            "noise": rb["noise"],
+            "seed": th["seed"],
+            "air_density": air.density,
+            "air_viscosity": air.viscosity,
+            "gravity": cond.gravity,
+        }
+        write_track(Track(t, x, y, meta=meta), HERE / name, force=force)
+
+
+def make_clip(force: bool) -> float:
+    """Render the clip, track it with `fitdrag track`; return the scale uncertainty."""
+    from fitdrag.demo import make_demo_footage
+    from fitdrag.tracks import read_track
+
+    truth = make_demo_footage(HERE / CLIP, frames=CLIP_FRAMES, scene=CLIP_SCENE, overwrite=force)
+    (HERE / "foam_ball_clip_truth.json").write_text(json.dumps(truth, indent=1) + "\n")
+    cwd = os.getcwd()
+    os.chdir(HERE)  # relative names in the track's header
+    try:
+        _cli(["track", CLIP, *TRACK_ARGS, "-o", CLIP_TRACK, "--no-progress",
+              *(["--force"] if force else [])])  # fmt: skip
+    finally:
+        os.chdir(cwd)
+    return float(read_track(HERE / CLIP_TRACK).meta["scale_relative_uncertainty"])
+
+
+# ------------------------------------------------------------------------------- job files
+
+_LAB = """\
+[laboratory]
+name = "Northmoor Sports Equipment Test Laboratory (fictitious, synthetic sample)"
+address = "Unit 4, 17 Invented Way, Sampleton SA1 0XX (fictitious address)"
+
+[test]
+customer = "Brightfield Training Goods Ltd (fictitious)"
+operator = "J. Example"
+approved_by = "R. Sample"
+date = 2026-07-15
+"""
+
+_OUT = """
+[output]
+directory = "certificates"        # relative to this file: sample_tracks/certificates/
+number_prefix = "SAMPLE"
+"""
+
+
+def _job(title: str, body: str) -> str:
+    return (
+        f"# {title}\n"
+        "# SYNTHETIC sample (sample_tracks/README.md): invented laboratory, customer and\n"
+        "# specimen; simulated tracks.  Run:  fitdrag run sample_tracks/<this file>\n\n"
+        + _LAB
+        + body
+        + _OUT
+    )
+
+
+def job_files(clip_scale_u: float) -> dict[str, str]:
+    """Text of each sample job file."""
+    return {
+        "training_ball.toml": _job("Three throws of one 40 mm training ball (TB-40).", """\
+notes = "Three throws by hand in still air (synthetic)."
+
+[specimen]
+id = "TB-40-0007"
+description = "Training ball, 40 mm, smooth plastic shell (synthetic sample)"
+mass = "2.70 g"
+mass_uncertainty = "0.01 g"
+diameter = "40.00 mm"
+diameter_uncertainty = "0.05 mm"
+
+[air]
+temperature = 21.0
+temperature_uncertainty = 0.3
+pressure = 100800
+pressure_uncertainty = 50
+relative_humidity = 45
+relative_humidity_uncertainty = 3
+
+[site]
+gravity = 9.80665                 # the tracks were simulated with standard gravity
+gravity_uncertainty = 0.0005
+
+[camera]
+fps = 500
+fps_uncertainty = 0.005
+scale_relative_uncertainty = 0.001
+
+[[throws]]
+track = "training_ball_throw1.csv"
+label = "throw 1"
+
+[[throws]]
+track = "training_ball_throw2.csv"
+label = "throw 2"
+
+[[throws]]
+track = "training_ball_throw3.csv"
+label = "throw 3"
+
+[specification]
+drag_coefficient = 0.47
+tolerance = 0.03
+decision_rule = "guarded"
+reference = "product data sheet TB-40 (fictitious)"
+
+[uncertainty]
+monte_carlo = 0
+"""),
+        "practice_ball_outliers.toml": _job("A 72 mm practice ball; the track has 6 gross "
+                                            "tracker errors (PB-72).", """\
+notes = "One throw; the tracker jumped to a wrong blob in six frames (synthetic)."
+
+[specimen]
+id = "PB-72-0112"
+description = "Practice ball, 72 mm, textured foam (synthetic sample)"
+mass = 0.030
+mass_uncertainty = 0.00002
+diameter = 0.072
+diameter_uncertainty = 0.0001
+
+[air]
+temperature = 19.5
+temperature_uncertainty = 0.3
+pressure = 99800
+pressure_uncertainty = 50
+relative_humidity = 60
+relative_humidity_uncertainty = 3
+
+[site]
+gravity = 9.80665
+gravity_uncertainty = 0.0005
+
+[camera]
+fps = 400
+fps_uncertainty = 0.004
+scale_relative_uncertainty = 0.001
+
+[[throws]]
+track = "practice_ball_outliers.csv"
+
+[specification]
+drag_coefficient = 0.52
+tolerance = 0.04
+decision_rule = "simple"
+reference = "customer order PB-72 (fictitious)"
+
+[fit]
+robust = true                     # rejects the six gross errors
+"""),
+        "ultralight_ball.toml": _job("A 100 mm ball of 2 g: buoyancy carries about a third "
+                                     "of its weight (UL-100).", """\
+notes = "One gentle throw (synthetic)."
+
+[specimen]
+id = "UL-100-0003"
+description = "Ultralight practice ball, 100 mm, 2 g, thin hollow shell (synthetic sample)"
+mass = "2.000 g"
+mass_uncertainty = "0.002 g"
+diameter = "100.0 mm"
+diameter_uncertainty = "0.1 mm"
+
+[air]
+temperature = 22.0
+temperature_uncertainty = 0.3
+pressure = 101000
+pressure_uncertainty = 50
+relative_humidity = 40
+relative_humidity_uncertainty = 3
+
+[site]
+gravity = 9.80665
+gravity_uncertainty = 0.0005
+
+[camera]
+fps = 250
+fps_uncertainty = 0.0025
+scale_relative_uncertainty = 0.001
+
+[[throws]]
+track = "ultralight_ball.csv"
+
+[specification]
+drag_coefficient = 0.50
+tolerance = 0.05
+decision_rule = "guarded"
+reference = "product data sheet UL-100 (fictitious)"
+"""),
+        "ribbed_ball.toml": _job("Two throws of a 60 mm ribbed ball whose Cd falls with "
+                                 "the Reynolds number (RB-60).", """\
+notes = "A fast and a slow throw, to cover a range of Reynolds numbers (synthetic)."
+
+[specimen]
+id = "RB-60-0021"
+description = "Ribbed ball, 60 mm, 12 g (synthetic sample)"
+mass = 0.012
+mass_uncertainty = 0.00001
+diameter = 0.060
+diameter_uncertainty = 0.00005
+
+[air]
+temperature = 20.0
+temperature_uncertainty = 0.3
+pressure = 100500
+pressure_uncertainty = 50
+relative_humidity = 50
+relative_humidity_uncertainty = 3
+
+[site]
+gravity = 9.80665
+gravity_uncertainty = 0.0005
+
+[camera]
+fps = 400
+fps_uncertainty = 0.004
+scale_relative_uncertainty = 0.001
+
+[[throws]]
+track = "ribbed_ball_throw1.csv"
+label = "fast throw"
+
+[[throws]]
+track = "ribbed_ball_throw2.csv"
+label = "slow throw"
+
+# no [specification]: a characterisation, no conformity decision
+
+[fit]
+model = "power-law"               # Cd = cd_ref (Re / Re_ref)^exponent
+"""),
+        "foam_ball_clip.toml": _job("The 65 mm foam training ball of the demo, tracked from "
+                                    "the clip foam_ball_clip.avi (FB-65).", f"""\
+notes = "Track made with: fitdrag track foam_ball_clip.avi {' '.join(TRACK_ARGS)} -o {CLIP_TRACK}"
+
+[specimen]
+id = "BTG-FB65-LOT2607-S03"
+description = "Foam training ball, 65 mm (synthetic sample: simulated, not a real ball)"
+mass = 0.0240
+mass_uncertainty = 0.00002
+diameter = 0.0650
+diameter_uncertainty = 0.00008
+
+[air]
+temperature = 21.5
+temperature_uncertainty = 0.2
+pressure = 100900
+pressure_uncertainty = 30
+relative_humidity = 48
+relative_humidity_uncertainty = 3
+
+[site]
+latitude = 51.5
+height = 60
+
+[camera]
+fps = 500
+fps_uncertainty = 0.005
+scale_relative_uncertainty = {clip_scale_u!r}   # from the track's header (marker calibration)
+
+[[throws]]
+track = "{CLIP_TRACK}"
+
+[specification]
+drag_coefficient = 0.50
+tolerance = 0.05
+decision_rule = "guarded"
+reference = "Brightfield drawing FB65 rev. C, clause 4.2 (fictitious)"
+"""),
+    }  # fmt: skip
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description="Regenerate the synthetic samples in this folder.")
+    ap.add_argument("--force", action="store_true", help="overwrite the existing files")
+    args = ap.parse_args(argv)
+    make_simulated(args.force)
+    for d in add_outliers():
+        print(f"outlier at row {d['row']} (t = {d['t']:.4f} s): dx = {1e3 * d['dx']:+.1f} mm, "
+              f"dy = {1e3 * d['dy']:+.1f} mm")  # fmt: skip
+    make_ribbed(args.force)
+    scale_u = make_clip(args.force)
+    for name, text in job_files(scale_u).items():
+        p = HERE / name
+        if p.exists() and not args.force:
+            raise SystemExit(f"{p}: exists; pass --force to overwrite it.")
+        p.write_text(text, encoding="utf-8")
+        print(f"wrote {p}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
