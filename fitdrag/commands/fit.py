@@ -152,10 +152,14 @@ def run(args) -> int:
         _write_atomic(path, lambda p: p.write_text(text + "\n", encoding="utf-8"))
         print(f"wrote {path}")
     if args.plot:
-        from fitdrag.report.fit_plot import plot_fit
+        from fitdrag.report.plots import plot_fit
 
         path = Path(args.plot)
-        fig = plot_fit(result)
+        title = (
+            f"Cd = {result.cd:.4g} ± {result.expanded_uncertainty:.2g} (k = "
+            f"{result.coverage_factor:.3g}, statistical only), model: {result.model}"
+        )
+        fig = plot_fit(result, title=title)
         _write_atomic(path, lambda p: fig.savefig(p, dpi=120, format="png"))
         print(f"wrote {path}")
     if not result.success:
