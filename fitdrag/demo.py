@@ -16,8 +16,8 @@ with a fixed seed, so every run on every machine sees the same frames.
    (``fitdrag.video.detect``) and writes the track ``DIR/demo_track.csv`` and a picture of it
    over one frame, ``DIR/demo_track_preview.png``;
 3. writes the job file ``DIR/demo_job.toml`` that describes the measurement;
-4. runs that job through the machinery of ``fitdrag run`` (:func:`fitdrag.commands.run.measure`
-   and :func:`fitdrag.commands.run.issue`): fit, GUM budget, Monte Carlo check, conformity
+4. runs that job through the machinery of ``fitdrag run`` (:func:`fitdrag.pipeline.measure`
+   and :func:`fitdrag.pipeline.issue`): fit, GUM budget, Monte Carlo check, conformity
    decision, certificate PDF/PNG and JSON in ``DIR/certificates/``, and a record in
    ``DIR/certificates/records.sqlite``.
 
@@ -212,12 +212,12 @@ class DemoResult:
 # ---------------------------------------------------------------------------------------------
 
 
-def _world_to_image() -> np.ndarray:
+def _world_to_image(scene: dict) -> np.ndarray:
     """Homography world (m, y up) -> image (px, y down) of the demo camera."""
-    s = 1.0 / FOOTAGE["metres_per_px"]
-    a = math.radians(FOOTAGE["roll_deg"])
+    s = 1.0 / scene["metres_per_px"]
+    a = math.radians(scene["roll_deg"])
     c, si = math.cos(a), math.sin(a)
-    u0, v0 = FOOTAGE["origin_px"]
+    u0, v0 = scene["origin_px"]
     # rotate the world by the roll, scale, flip y, shift to the origin's image point
     return np.array([[s * c, -s * si, u0], [-s * si, -s * c, v0], [0.0, 0.0, 1.0]])
 
@@ -242,6 +242,7 @@ def make_demo_footage(
     *,
     frames: int | None = None,
     seed: int = SEED,
+    scene: dict | None = None,
     progress: bool = False,
     overwrite: bool = False,
 ) -> dict:
@@ -261,6 +262,9 @@ def make_demo_footage(
         Number of frames (default ``FOOTAGE["frames"]``).
     seed : int
         Seed of the clutter and the noise; the same seed gives the same frames.
+    scene : dict, optional
+        Entries of :data:`FOOTAGE` to change (image size, metres per pixel, origin, markers,
+        noise, ...), e.g. for a smaller clip.
     progress : bool
         Show a progress bar.
     overwrite : bool
@@ -279,8 +283,12 @@ def make_demo_footage(
     path = Path(path)
     if path.exists() and not overwrite:
         raise ValueError(f"{path}: already exists; pass --force to render the footage again.")
-    n = int(FOOTAGE["frames"] if frames is None else frames)
-    fps = FOOTAGE["fps"]
+    sc = {**FOOTAGE, **(scene or {})}
+    unknown = sorted(set(sc) - set(FOOTAGE))
+    if unknown:
+        raise ValueError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.demo.FOOTAGE.")
+    n = int(sc["frames"] if frames is None else frames)
+    fps = sc["fps"]
     cond = _conditions()
     sphere = Sphere(SPECIMEN["mass"], SPECIMEN["diameter"])
     launch = Launch.from_speed_angle(LAUNCH["speed"], LAUNCH["angle"], LAUNCH["x0"], LAUNCH["y0"])
@@ -288,19 +296,18 @@ def make_demo_footage(
     flight = simulate(t, launch, sphere, cond, drag_params=TRUE_CD)
     if not flight.success:  # pragma: no cover - fixed, well-posed inputs
         raise RuntimeError(f"demo flight simulation failed: {flight.message}")
-    h = _world_to_image()
+    h = _world_to_image(sc)
     markers = [
-        MarkerPlacement(mid, x, y, FOOTAGE["marker_side"])
-        for mid, (x, y) in FOOTAGE["markers"].items()
+        MarkerPlacement(mid, x, y, sc["marker_side"]) for mid, (x, y) in sc["markers"].items()
     ]
     renderer = FlightRenderer(
         (flight.x, flight.y),
         n,
         fps,
-        shape=(FOOTAGE["height_px"], FOOTAGE["width_px"]),
-        radius_px=0.5 * SPECIMEN["diameter"] / FOOTAGE["metres_per_px"],
-        noise_sigma=FOOTAGE["noise_sigma"],
-        flicker=FOOTAGE["flicker"],
+        shape=(sc["height_px"], sc["width_px"]),
+        radius_px=0.5 * SPECIMEN["diameter"] / sc["metres_per_px"],
+        noise_sigma=sc["noise_sigma"],
+        flicker=sc["flicker"],
         markers=markers,
         homography=h,
         trajectory_in_world=True,
@@ -314,7 +321,7 @@ def make_demo_footage(
     tmp = path.with_name(f".{path.name}.partial.avi")
     try:
         write_video(
-            frames_iter, tmp, FOOTAGE["container_fps"], quality=FOOTAGE["jpeg_quality"],
+            frames_iter, tmp, sc["container_fps"], quality=sc["jpeg_quality"],
             overwrite=True,
         )  # fmt: skip
         os.replace(tmp, path)
@@ -335,14 +342,14 @@ def make_demo_footage(
         "buoyancy": True,
         "added_mass_coefficient": sphere.added_mass_coefficient,
         "fps": fps,
-        "container_fps": FOOTAGE["container_fps"],
+        "container_fps": sc["container_fps"],
         "frames": n,
-        "image_size_px": [FOOTAGE["width_px"], FOOTAGE["height_px"]],
-        "metres_per_px": FOOTAGE["metres_per_px"],
-        "roll_deg": FOOTAGE["roll_deg"],
+        "image_size_px": [sc["width_px"], sc["height_px"]],
+        "metres_per_px": sc["metres_per_px"],
+        "roll_deg": sc["roll_deg"],
         "ball_radius_px": tr.radius_px,
-        "marker_side_m": FOOTAGE["marker_side"],
-        "markers_lower_left_m": {str(k): list(v) for k, v in FOOTAGE["markers"].items()},
+        "marker_side_m": sc["marker_side"],
+        "markers_lower_left_m": {str(k): list(v) for k, v in sc["markers"].items()},
         "world_to_image_homography": h.tolist(),
         "t": tr.t.tolist(),
         "x": flight.x.tolist(),
@@ -547,8 +554,9 @@ def run_demo(
     RuntimeError
         The fit did not converge (not expected on the demo's data).
     """
-    from fitdrag.commands.run import FitFailed, _summary, issue, measure
     from fitdrag.jobs import load_job
+    from fitdrag.pipeline import FitFailed, issue, measure
+    from fitdrag.pipeline import summary as _summary
     from fitdrag.tracks import read_track
 
     t_start = time.perf_counter()
