@@ -25,6 +25,7 @@ from fitdrag.air import (  # noqa: E402
     local_gravity,
     moist_air_density,
 )
+from fitdrag.budget import InputQuantity, budget_from_model, monte_carlo  # noqa: E402
 from fitdrag.compare import ModelComparison, compare_models, drag_coefficient_at  # noqa: E402
 from fitdrag.drag_models import sphere_correlation_names, sphere_drag_coefficient  # noqa: E402
 from fitdrag.fitting import FitResult, Refit, ThrowResult, fit_tracks, refit  # noqa: E402
@@ -35,7 +36,10 @@ from fitdrag.forces import (  # noqa: E402
     get_drag_model,
     register_drag_model,
 )
+from fitdrag.jobs import load_job  # noqa: E402
 from fitdrag.plan import PlanResult, plan_test  # noqa: E402
+from fitdrag.records import Records  # noqa: E402
+from fitdrag.report.certificate import render_certificate  # noqa: E402
 from fitdrag.simulate import Flight, FlightModel, Launch, simulate  # noqa: E402
 from fitdrag.specimen import Body, Sphere  # noqa: E402
 from fitdrag.tracks import (  # noqa: E402
@@ -46,6 +50,7 @@ from fitdrag.tracks import (  # noqa: E402
     read_track,
     write_track,
 )
+from fitdrag.verdict import Specification, decide  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -57,30 +62,38 @@ __all__ = [
     "FitResult",
     "Flight",
     "FlightModel",
+    "InputQuantity",
     "Launch",
     "ModelComparison",
     "PlanResult",
+    "Records",
     "Refit",
     "OutputExistsError",
     "STANDARD_GRAVITY",
+    "Specification",
     "Sphere",
     "ThrowResult",
     "Track",
     "TrackImportWarning",
     "air_viscosity",
+    "budget_from_model",
     "compare_models",
+    "decide",
     "drag_coefficient_at",
     "drag_model_names",
     "dry_air_density",
     "file_sha256",
     "fit_tracks",
     "get_drag_model",
+    "load_job",
     "local_gravity",
     "moist_air_density",
+    "monte_carlo",
     "plan_test",
     "read_track",
     "refit",
     "register_drag_model",
+    "render_certificate",
     "simulate",
     "sphere_correlation_names",
     "sphere_drag_coefficient",
