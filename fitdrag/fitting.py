@@ -56,6 +56,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 import warnings
 from collections.abc import Sequence
@@ -574,12 +575,60 @@ def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfe
     mini = lmfit.Minimizer(resid, _params(problem, theta, bounds), nan_policy="raise")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        out = mini.least_squares(jac=jacobian, loss=loss, f_scale=f_scale, max_nfev=max_nfev,
-                                 x_scale="jac", ftol=1e-10, xtol=1e-10, gtol=1e-10)  # fmt: skip
+        if loss == "linear":
+            # MINPACK's Levenberg–Marquardt with the analytic Jacobian (lmfit maps the bounds)
+            out = mini.leastsq(Dfun=jacobian, col_deriv=0, max_nfev=max_nfev, ftol=1e-10,
+                               xtol=1e-10)  # fmt: skip
+        else:
+            out = mini.least_squares(jac=jacobian, loss=loss, f_scale=f_scale, max_nfev=max_nfev,
+                                     x_scale="jac", ftol=1e-10, xtol=1e-10, gtol=1e-10)  # fmt: skip
     th = np.array([out.params[n].value for n in names])
-    status = getattr(out, "status", 0)
-    success = bool(out.success) and status > 0 and problem.evaluate(th)[3]
-    return th, success, str(getattr(out, "message", out.message)), out.nfev
+    success = bool(out.success) and not out.aborted and problem.evaluate(th)[3]
+    return th, success, str(out.message), out.nfev
+
+
+def _levenberg_marquardt(problem: _Problem, theta, bounds, max_iter: int = 60,
+                         tol: float = 1e-6):  # fmt: skip
+    """A compact Levenberg–Marquardt (Marquardt 1963 diagonal scaling) from the first guess.
+
+    Only for the first, Gaussian pass from the drag-free start; bounds are kept by
+    projection.  Reports failure (and the caller falls back to the trust-region solver)
+    when it does not settle within ``max_iter`` iterations.
+
+    References: D. W. Marquardt, "An algorithm for least-squares estimation of nonlinear
+    parameters", J. SIAM 11 (1963) 431–441.
+    """
+    lo = np.array([b[0] for b in bounds])
+    hi = np.array([b[1] for b in bounds])
+    theta = np.clip(np.array(theta, float), lo, hi)
+    res, jac, _s, ok = problem.evaluate(theta)
+    if not ok:
+        return theta, False
+    cost = float(res @ res)
+    lam = 1e-3
+    for _ in range(max_iter):
+        jtj = jac.T @ jac
+        g = jac.T @ res
+        d = np.diag(jtj).copy()
+        d[d <= 0] = 1.0
+        try:
+            step = np.linalg.solve(jtj + lam * np.diag(d), -g)
+        except np.linalg.LinAlgError:
+            return theta, False
+        new = np.clip(theta + step, lo, hi)
+        r2, j2, _s, ok2 = problem.evaluate(new)
+        c2 = float(r2 @ r2) if ok2 else np.inf
+        if c2 < cost:
+            rel = (cost - c2) / max(cost, 1e-300)
+            theta, res, jac, cost = new, r2, j2, c2
+            lam = max(lam / 3.0, 1e-12)
+            if rel < tol:
+                return theta, True
+        else:
+            lam *= 4.0
+            if lam > 1e12:
+                return theta, cost < np.inf
+    return theta, False
 
 
 def _polish(problem: _Problem, theta, bounds, max_nfev):
@@ -614,6 +663,13 @@ def _solve_scipy(problem: _Problem, theta, bounds, loss, f_scale, max_nfev, tol=
 
 
 # ----------------------------------------------------------------------------- front door
+
+
+@functools.lru_cache(maxsize=1)
+def _blas_controller():
+    from threadpoolctl import ThreadpoolController
+
+    return ThreadpoolController()
 
 
 def _as_tracks(tracks) -> list[Track]:
@@ -684,10 +740,8 @@ def fit_tracks(
     FitResult
         ``success`` is False (with a message) when the optimiser did not converge.
     """
-    from threadpoolctl import threadpool_limits
-
     # the linear algebra here is on small matrices: extra BLAS threads only contend
-    with threadpool_limits(limits=1, user_api="blas"):
+    with _blas_controller().limit(limits=1, user_api="blas"):
         return _fit_tracks(
             tracks, specimen, air, gravity=gravity, model=model, lift=lift, wind=wind,
             buoyancy=buoyancy, robust=robust, noise=noise, coverage_factor=coverage_factor,
@@ -790,9 +844,13 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
                 th0[0] = cd_try
         # a quick Gaussian pass brings the drag-free guess close; the robust loss then
         # discounts gross outliers from there
-        th, ok, msg, nfev = _solve(problem, th0, bounds, max_nfev=max(max_nfev // 4, 1),
-                                   tol=1e-4)  # fmt: skip
-        total_nfev += nfev
+        before = problem.n_evaluations
+        th, ok = _levenberg_marquardt(problem, th0, bounds, max_iter=max(max_nfev // 4, 1))
+        msg = "converged" if ok else "the first Gaussian pass did not converge"
+        if not ok:
+            th, ok, msg, _ = _solve(problem, th0, bounds, max_nfev=max(max_nfev // 4, 1),
+                                    tol=1e-4)  # fmt: skip
+        total_nfev += problem.n_evaluations - before
         if robust and np.all(np.isfinite(th)):
             th1, ok, msg, nfev = _solve(problem, th if ok else th0, bounds, loss="soft_l1",
                                         f_scale=3.0, max_nfev=max_nfev)  # fmt: skip
@@ -894,8 +952,8 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
             break
         set_sigmas(sig)
         arr = np.asarray(sig)
-        # the weights only matter relative to each other: stop once they settle
-        if previous is not None and np.max(np.abs(arr / previous - 1.0)) < 0.02:
+        # the weights only matter relative to each other: stop once their ratios settle
+        if np.max(np.abs((arr / arr.flat[0]) / (previous / previous.flat[0]) - 1.0)) < 0.02:
             break
         previous = arr
     sig_white = estimate_sigmas(theta)
@@ -1382,7 +1440,14 @@ def _gauss_newton(problem: _Problem, theta, bounds, max_iter: int = 12, tol: flo
     for _ in range(max_iter):
         if not ok:
             return theta, False
-        step, *_ = np.linalg.lstsq(jac, -res, rcond=None)
+        # normal equations with column scaling (P is small; J is well scaled after it)
+        scale = np.linalg.norm(jac, axis=0)
+        scale[scale == 0] = 1.0
+        js = jac / scale
+        try:
+            step = np.linalg.solve(js.T @ js, -(js.T @ res)) / scale
+        except np.linalg.LinAlgError:
+            return theta, False
         new = theta + step
         if np.any(new < lo) or np.any(new > hi):
             return theta, False
