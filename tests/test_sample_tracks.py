@@ -141,7 +141,7 @@ def test_training_ball_job_recovers_the_true_cd():
     """closed-form/independent: the three simulated TB-40 throws (true Cd 0.47, checked against
     scipy above) give, through the job machinery of 'fitdrag run', a Cd within its expanded
     uncertainty of 0.47, and a pass against 0.47 ± 0.03 (guarded acceptance)."""
-    from fitdrag.commands.run import measure
+    from fitdrag.pipeline import measure
 
     meas = measure(load_job(SAMPLES / "training_ball.toml"))
     assert abs(meas.fit.cd - 0.47) <= meas.budget.expanded_uncertainty
