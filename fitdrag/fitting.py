@@ -577,8 +577,8 @@ def _solve(problem: _Problem, theta, bounds, loss="linear", f_scale=1.0, max_nfe
         warnings.simplefilter("ignore", RuntimeWarning)
         if loss == "linear":
             # MINPACK's Levenberg–Marquardt with the analytic Jacobian (lmfit maps the bounds)
-            out = mini.leastsq(Dfun=jacobian, col_deriv=0, max_nfev=max_nfev, ftol=1e-10,
-                               xtol=1e-10)  # fmt: skip
+            out = mini.leastsq(Dfun=jacobian, col_deriv=0, max_nfev=max_nfev, ftol=1e-14,
+                               xtol=1e-12)  # fmt: skip
         else:
             out = mini.least_squares(jac=jacobian, loss=loss, f_scale=f_scale, max_nfev=max_nfev,
                                      x_scale="jac", ftol=1e-10, xtol=1e-10, gtol=1e-10)  # fmt: skip

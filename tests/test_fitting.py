@@ -191,14 +191,15 @@ def test_coverage_smoke_white_and_ar1():
     """closed-form/independent: over 30 replicates per noise type (white; AR(1) φ = 0.8) the
     k = 2 interval holds the true Cd in at least 80 % of them (a loose bound for 30 draws
     of a nominal 95 % interval; binomial P(≤ 23 of 30 | p = 0.95) ≈ 0.2 %).  The full study
-    is benchmarks/coverage.py."""
+    is benchmarks/coverage_study.py."""
     sc = ref.Scenario(n=200, fps=200.0)  # shorter track keeps the suite fast
     for kind in ("white", "ar1"):
         hits = 0
         for seed in range(30):
             r = fit_tracks(noisy_track(sc, seed=1000 + seed, kind=kind), sphere(sc), AIR)
             assert r.success, r.message
-            assert r.coverage_factor == 2.0
+            # k = 2 for white noise; under AR(1) the effective degrees of freedom may raise it
+            assert r.coverage_factor == 2.0 if kind == "white" else r.coverage_factor >= 2.0
             hits += abs(r.cd - sc.cd) <= r.expanded_uncertainty
         assert hits >= 24, (kind, hits)
 
