@@ -513,6 +513,15 @@ def _place_file(new: Path, path: Path, force: bool, hint: str) -> None:
     os.replace(new, path)
 
 
+def display_path(path: str | os.PathLike) -> str:
+    """``path`` relative to the working directory when it lies inside it, else absolute."""
+    p = Path(path).resolve()
+    try:
+        return str(p.relative_to(Path.cwd().resolve())) or "."
+    except ValueError:
+        return str(p)
+
+
 def _latest_unreplaced(records_path: Path) -> str | None:
     from fitdrag.records import Records
 
@@ -588,7 +597,9 @@ def run_demo(
                 f"match {truth_path.name}); pass --force to render it again."
             )
         reused = True
-        log(f"      reusing {footage} (rendered on {truth.get('rendered_on')}, SHA-256 checked)")
+        log(
+            f"      reusing {display_path(footage)} (rendered on {truth.get('rendered_on')}, SHA-256 checked)"
+        )
     else:
         if (footage.exists() or truth_path.exists()) and not force:
             missing = truth_path if footage.exists() else footage
@@ -603,13 +614,13 @@ def run_demo(
         from fitdrag.records import atomic_write_text
 
         atomic_write_text(truth_path, json.dumps(truth, indent=1) + "\n")
-        log(f"      wrote {footage} and {truth_path.name}")
+        log(f"      wrote {display_path(footage)} and {truth_path.name}")
     timings["footage"] = time.perf_counter() - t0
 
     # 2. track ----------------------------------------------------------------------------
     t0 = step(2, "markers, calibration and ball detection (fitdrag track)")
     shown = track_command(FOOTAGE_NAME, TRACK_NAME, PREVIEW_NAME)
-    log(f"      the same as, inside {d}:  fitdrag {' '.join(shown)}")
+    log(f"      the same as, inside {display_path(d)}:  fitdrag {' '.join(shown)}")
     tmp_track = d / f".{TRACK_NAME}.new.csv"
     tmp_preview = d / f".{PREVIEW_NAME}.new.png"
     try:

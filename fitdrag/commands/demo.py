@@ -68,7 +68,7 @@ def _reject_unknown(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from fitdrag.demo import run_demo
+    from fitdrag.demo import display_path, run_demo
 
     print(
         f"fitdrag demo: a synthetic demonstration (invented laboratory, simulated ball) in "
@@ -95,10 +95,14 @@ def run(args) -> int:
         ("certificate", res.certificate_pdf, ""),
         ("certificate page 1", res.certificate_png, ""),
         ("result", res.result_json, "everything, as JSON"),
-        ("records database", res.records, "fitdrag records --records ... list"),
+        (
+            "records database",
+            res.records,
+            f"list it: fitdrag records --records {display_path(res.records)} list",
+        ),
     ]
     for label, path, note in rows:
-        print(f"  {label:<19} {path}" + (f"   ({note})" if note else ""))
+        print(f"  {label:<19} {display_path(path)}" + (f"   ({note})" if note else ""))
     diff = res.drag_coefficient - res.true_cd
     inside = abs(diff) <= res.expanded_uncertainty
     print(
