@@ -1,0 +1,793 @@
+"""Synthetic high-speed footage of one flying ball, with the exact truth.
+
+For tests, demos and benchmarks of the detector and the calibration.  The renderer draws a
+shaded, anti-aliased ball (supersampled) along a trajectory the caller supplies, integrates it
+over the exposure time (motion blur), lays it over a static cluttered background (optionally
+with ArUco markers and opaque occluders in front of the ball), multiplies the whole picture by
+a mains-light flicker gain, adds Gaussian sensor noise and quantises to 8 or 16 bits.
+
+Coordinates are image pixels, y down, with the centre of pixel ``(row, col)`` at
+``(x, y) = (col, row)``; the frame covers ``-0.5 <= x <= w - 0.5``.  Grey levels are given on
+the 8-bit scale (0..255) and multiplied by 257 for 16-bit output.  All footage here is
+synthetic.
+
+The truth for frame ``k`` is the ball centre at the middle of the exposure, ``t0 + k / fps``,
+plus the centre averaged over the exposure (what the centroid of a blurred blob measures).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+#: ArUco dictionary used for synthetic markers (name of the cv2.aruco constant).
+MARKER_DICTIONARY = "DICT_4X4_50"
+
+# Grey levels of the printed markers (8-bit scale).
+_MARKER_BLACK = 25.0
+_MARKER_WHITE = 225.0
+
+
+@dataclass(frozen=True)
+class MarkerPlacement:
+    """Where one ArUco marker sits in the scene.
+
+    Without a homography the marker is axis-aligned in the image: ``(x, y)`` is the image
+    position of the outer top-left corner of its black border and ``side`` its side length,
+    all in pixels.  With a homography (world -> image) ``(x, y)`` is the world position of the
+    marker's lower-left corner and ``side`` its side length, in metres, world y up; the marker
+    is printed upright in the world plane.
+
+    Parameters
+    ----------
+    marker_id : int
+        Identifier in the ``DICT_4X4_50`` dictionary (0..49).
+    x : float
+        Corner position, x. [px] or [m]
+    y : float
+        Corner position, y. [px] or [m]
+    side : float
+        Side length of the black square. [px] or [m]
+    """
+
+    marker_id: int
+    x: float
+    y: float
+    side: float
+
+
+@dataclass(frozen=True, eq=False)
+class SyntheticTruth:
+    """Exact truth of a synthetic flight, one entry per frame.
+
+    Attributes
+    ----------
+    t : ndarray
+        Mid-exposure time of each frame. [s]
+    x_px, y_px : ndarray
+        Ball centre at mid-exposure, image coordinates, y down. [px]
+    x_mean_px, y_mean_px : ndarray
+        Ball centre averaged over the exposure (equals the mid-exposure centre to within
+        ``a * exposure**2 / 24`` for acceleration ``a``). [px]
+    edge_distance_px : ndarray
+        Smallest distance from the ball's footprint over the exposure to the image boundary;
+        negative when the ball is cut by the frame edge. [px]
+    inside : ndarray of bool
+        The footprint stays clear of the outermost pixel rows and columns
+        (``edge_distance_px >= 1``): a ball that reaches those pixels cannot be told apart
+        from one the frame edge cuts.
+    hidden_fraction : ndarray
+        Fraction of the ball's exposure-integrated image hidden behind occluders (0..1).
+    visible : ndarray of bool
+        ``inside`` and not hidden at all.
+    gain : ndarray
+        Flicker gain applied to the frame, averaged over the exposure (1 = none).
+    blur_px : ndarray
+        Length of the centre's path during the exposure. [px]
+    radius_px : float
+        Ball radius. [px]
+    marker_corners : dict
+        Marker id -> (4, 2) array of its black square's image corners in the order a detector
+        reports them for an upright marker: top-left, top-right, bottom-right, bottom-left.
+        [px]
+    """
+
+    t: np.ndarray
+    x_px: np.ndarray
+    y_px: np.ndarray
+    x_mean_px: np.ndarray
+    y_mean_px: np.ndarray
+    edge_distance_px: np.ndarray
+    inside: np.ndarray
+    hidden_fraction: np.ndarray
+    visible: np.ndarray
+    gain: np.ndarray
+    blur_px: np.ndarray
+    radius_px: float
+    marker_corners: dict
+
+
+@dataclass(frozen=True, eq=False)
+class SyntheticFootage:
+    """Rendered frames and their truth.
+
+    Attributes
+    ----------
+    frames : ndarray
+        ``(n, h, w)`` grey or ``(n, h, w, 3)`` BGR frames, uint8 or uint16.
+    truth : SyntheticTruth
+        Exact truth per frame.
+    fps : float
+        Capture rate. [1/s]
+    exposure : float
+        Exposure time of each frame. [s]
+    scene : ndarray
+        Clean background (clutter, markers, occluders) without ball, flicker or noise,
+        float32, 8-bit scale.
+    """
+
+    frames: np.ndarray
+    truth: SyntheticTruth
+    fps: float
+    exposure: float
+    scene: np.ndarray
+
+
+def _cv2():
+    import cv2
+
+    return cv2
+
+
+def _check_positive(name: str, value: float, unit: str, hint: str) -> float:
+    value = float(value)
+    if not math.isfinite(value) or value <= 0:
+        raise ValueError(f"{name}: expected a positive number {unit}, got {value!r}; {hint}.")
+    return value
+
+
+def marker_corners_in_image(
+    placement: MarkerPlacement, homography: np.ndarray | None = None, *, margin: float = 0.0
+) -> np.ndarray:
+    """Image corners of a marker's black square (or of a square ``margin`` sides larger).
+
+    Parameters
+    ----------
+    placement : MarkerPlacement
+        Marker position and size (pixels without ``homography``, metres with it).
+    homography : ndarray, optional
+        3x3 matrix mapping world (x, y up) [m] to image (x, y down) [px].
+    margin : float
+        Grow the square by this fraction of its side on every edge (for the white quiet
+        zone).
+
+    Returns
+    -------
+    ndarray
+        (4, 2) image corners: top-left, top-right, bottom-right, bottom-left. [px]
+    """
+    s = placement.side
+    lo, hi = -margin * s, (1.0 + margin) * s
+    if homography is None:
+        x0, y0 = placement.x, placement.y
+        pts = [(x0 + lo, y0 + lo), (x0 + hi, y0 + lo), (x0 + hi, y0 + hi), (x0 + lo, y0 + hi)]
+        return np.asarray(pts, dtype=float)
+    h = np.asarray(homography, dtype=float)
+    if h.shape != (3, 3):
+        raise ValueError(
+            f"homography: expected a 3x3 matrix, got shape {h.shape}; pass the world-to-image "
+            f"plane homography."
+        )
+    x0, y0 = placement.x, placement.y
+    world = np.array(
+        [(x0 + lo, y0 + hi), (x0 + hi, y0 + hi), (x0 + hi, y0 + lo), (x0 + lo, y0 + lo)]
+    )
+    return _apply_homography(h, world)
+
+
+def _apply_homography(h: np.ndarray, pts: np.ndarray) -> np.ndarray:
+    pts = np.asarray(pts, dtype=float)
+    p = np.column_stack([pts, np.ones(len(pts))]) @ h.T
+    return p[:, :2] / p[:, 2:3]
+
+
+def _draw_marker(scene: np.ndarray, marker_id: int, corners_black: np.ndarray, ss: int) -> None:
+    """Paint one marker with a white quiet zone into ``scene`` (float32, in place).
+
+    The marker image is warped onto a supersampled canvas and box-averaged, so edges are
+    anti-aliased and the corners land where ``corners_black`` says to a small fraction of a
+    pixel.
+    """
+    cv2 = _cv2()
+    dictionary = cv2.aruco.getPredefinedDictionary(getattr(cv2.aruco, MARKER_DICTIONARY))
+    bits = 4 + 2  # 4x4 data bits plus a one-bit black border
+    cell = 16
+    quiet = 1  # white margin, in bits
+    size = (bits + 2 * quiet) * cell
+    img = np.full((size, size), 255, np.uint8)
+    img[quiet * cell : size - quiet * cell, quiet * cell : size - quiet * cell] = (
+        cv2.aruco.generateImageMarker(dictionary, int(marker_id), bits * cell, borderBits=1)
+    )
+    # Source corners of the black square in the marker image (pixel-corner coordinates,
+    # shifted to OpenCV's pixel-centre convention by -0.5).
+    a, b = quiet * cell - 0.5, size - quiet * cell - 0.5
+    src = np.array([(a, a), (b, a), (b, b), (a, b)], np.float64)
+    h, w = scene.shape
+    # The same warp carries the quiet zone around the black square.
+    h_img = cv2.getPerspectiveTransform(src.astype(np.float32), corners_black.astype(np.float32))
+    outer_src = np.array(
+        [(-0.5, -0.5), (size - 0.5, -0.5), (size - 0.5, size - 0.5), (-0.5, size - 0.5)]
+    )
+    outer = _apply_homography(h_img, outer_src)
+    x0 = max(int(math.floor(outer[:, 0].min())) - 1, 0)
+    y0 = max(int(math.floor(outer[:, 1].min())) - 1, 0)
+    x1 = min(int(math.ceil(outer[:, 0].max())) + 2, w)
+    y1 = min(int(math.ceil(outer[:, 1].max())) + 2, h)
+    if x1 <= x0 or y1 <= y0:
+        return
+    # Canvas pixel (cc) centre sits at image x = x0 + (cc + 0.5) / ss - 0.5.
+    to_canvas = np.array(
+        [[ss, 0.0, ss * (0.5 - x0) - 0.5], [0.0, ss, ss * (0.5 - y0) - 0.5], [0.0, 0.0, 1.0]]
+    )
+    m = to_canvas @ h_img
+    cw, ch = (x1 - x0) * ss, (y1 - y0) * ss
+    value = cv2.warpPerspective(
+        img.astype(np.float32), m, (cw, ch), flags=cv2.INTER_LINEAR, borderValue=-1.0
+    )
+    cover = cv2.warpPerspective(
+        np.ones_like(img, np.float32), m, (cw, ch), flags=cv2.INTER_LINEAR, borderValue=0.0
+    )
+    value = np.where(value < 0, 0.0, value)
+    level = _MARKER_BLACK + (_MARKER_WHITE - _MARKER_BLACK) * value / 255.0
+    level = (level * cover).reshape(y1 - y0, ss, x1 - x0, ss).mean(axis=(1, 3))
+    cover = cover.reshape(y1 - y0, ss, x1 - x0, ss).mean(axis=(1, 3))
+    patch = scene[y0:y1, x0:x1]
+    patch *= 1.0 - cover
+    patch += level
+
+
+def _make_scene(
+    shape: tuple[int, int],
+    background_level: float,
+    clutter: int,
+    rng: np.random.Generator,
+    contrast: float = 40.0,
+) -> np.ndarray:
+    cv2 = _cv2()
+    h, w = shape
+    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
+    # Smooth illumination fall-off towards the corners (about -12 % at the corners).
+    r2 = ((xx - w / 2) / (w / 2)) ** 2 + ((yy - h / 2) / (h / 2)) ** 2
+    scene = (background_level * (1.0 - 0.06 * r2)).astype(np.float32)
+    scale = min(h, w)
+    for _ in range(int(clutter)):
+        level = float(background_level + rng.uniform(-contrast, contrast))
+        kind = rng.integers(3)
+        cx, cy = rng.uniform(0, w), rng.uniform(0, h)
+        if kind == 0:  # rotated rectangle
+            half = rng.uniform(0.03, 0.2, size=2) * scale
+            ang = rng.uniform(0, np.pi)
+            c, s = math.cos(ang), math.sin(ang)
+            pts = np.array(
+                [(-half[0], -half[1]), (half[0], -half[1]), (half[0], half[1]), (-half[0], half[1])]
+            )
+            pts = pts @ np.array([[c, s], [-s, c]]) + (cx, cy)
+            cv2.fillPoly(scene, [np.round(pts * 16).astype(np.int32)], level, cv2.LINE_AA, 4)
+        elif kind == 1:  # disc, sometimes ball-sized
+            rad = rng.uniform(0.02, 0.1) * scale
+            cv2.circle(
+                scene, (int(cx * 16), int(cy * 16)), int(rad * 16), level, -1, cv2.LINE_AA, 4
+            )
+        else:  # thin bar (a stand, a cable)
+            x2, y2 = cx + rng.uniform(-0.4, 0.4) * scale, cy + rng.uniform(-0.4, 0.4) * scale
+            th = int(rng.integers(2, 6))
+            cv2.line(
+                scene,
+                (int(cx * 16), int(cy * 16)),
+                (int(x2 * 16), int(y2 * 16)),
+                level,
+                th,
+                cv2.LINE_AA,
+                4,
+            )
+    return scene
+
+
+def _rect_coverage(shape: tuple[int, int], rect: Sequence[float]) -> np.ndarray:
+    """Exact per-pixel area coverage of an axis-aligned rectangle ``(x0, y0, x1, y1)`` [px]."""
+    h, w = shape
+    x0, y0, x1, y1 = (float(v) for v in rect)
+    cols = np.arange(w, dtype=np.float64)
+    rows = np.arange(h, dtype=np.float64)
+    cx = np.clip(np.minimum(cols + 0.5, x1) - np.maximum(cols - 0.5, x0), 0.0, 1.0)
+    cy = np.clip(np.minimum(rows + 0.5, y1) - np.maximum(rows - 0.5, y0), 0.0, 1.0)
+    return np.outer(cy, cx).astype(np.float32)
+
+
+class _Trajectory:
+    def __init__(self, trajectory, n_frames: int, t0: float, fps: float):
+        if callable(trajectory):
+            self._fn = trajectory
+            return
+        try:
+            xs, ys = (np.asarray(v, dtype=float) for v in trajectory)
+        except (TypeError, ValueError) as exc:
+            raise ValueError(
+                "trajectory: expected a callable t -> (x_px, y_px) or a pair of arrays "
+                f"(x_px, y_px) with one value per frame, got {type(trajectory).__name__}; "
+                "pass one of those."
+            ) from exc
+        if xs.shape != (n_frames,) or ys.shape != (n_frames,):
+            raise ValueError(
+                f"trajectory: arrays of shape {xs.shape} and {ys.shape}, expected ({n_frames},) "
+                f"each (one position per frame); pass one mid-exposure position per frame."
+            )
+        tk = t0 + np.arange(n_frames) / fps
+        if n_frames >= 4:
+            from scipy.interpolate import CubicSpline
+
+            sx, sy = CubicSpline(tk, xs), CubicSpline(tk, ys)
+            self._fn = lambda t: (sx(t), sy(t))
+        else:
+            self._fn = lambda t: (np.interp(t, tk, xs), np.interp(t, tk, ys))
+
+    def __call__(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        x, y = self._fn(np.asarray(t, dtype=float))
+        x = np.broadcast_to(np.asarray(x, dtype=float), np.shape(t))
+        y = np.broadcast_to(np.asarray(y, dtype=float), np.shape(t))
+        return x, y
+
+
+class FlightRenderer:
+    """Renderer of one synthetic flight; frames on demand (see :func:`render_flight`).
+
+    Build it with the same arguments as :func:`render_flight`; call :meth:`frame` for one
+    frame or iterate :meth:`iter_frames` to stream long footage (e.g. into
+    :func:`write_video`) without holding it all in memory.  :attr:`truth` holds the exact
+    truth for all frames.
+    """
+
+    def __init__(
+        self,
+        trajectory: Callable | tuple,
+        n_frames: int,
+        fps: float,
+        *,
+        shape: tuple[int, int] = (240, 320),
+        radius_px: float = 8.0,
+        exposure: float | None = None,
+        t0: float = 0.0,
+        ball_level: float = 230.0,
+        background_level: float = 90.0,
+        clutter_contrast: float = 40.0,
+        ambient: float = 0.7,
+        light: tuple[float, float, float] = (-0.2, -0.3, 0.93),
+        noise_sigma: float = 3.0,
+        flicker: float = 0.06,
+        mains_hz: float = 50.0,
+        flicker_phase: float = 0.0,
+        clutter: int = 12,
+        occluders: Sequence[Sequence[float]] = (),
+        occluder_level: float = 40.0,
+        markers: Sequence[MarkerPlacement] = (),
+        homography: np.ndarray | None = None,
+        trajectory_in_world: bool = False,
+        bit_depth: int = 8,
+        color: bool = False,
+        supersample: int = 4,
+        seed: int = 0,
+    ):
+        self.n_frames = int(n_frames)
+        if self.n_frames < 1:
+            raise ValueError(f"n_frames: expected at least 1, got {n_frames!r}; ask for a frame.")
+        self.fps = _check_positive("fps", fps, "[1/s]", "give the capture rate")
+        self.radius = _check_positive("radius_px", radius_px, "[px]", "give the ball radius")
+        if exposure is None:
+            exposure = 0.5 / self.fps
+        self.exposure = float(exposure)
+        if not (0.0 <= self.exposure <= 1.0 / self.fps):
+            raise ValueError(
+                f"exposure: {exposure!r} s is outside 0..1/fps = {1 / self.fps:g} s; an exposure "
+                f"cannot be longer than the frame interval."
+            )
+        if bit_depth not in (8, 16):
+            raise ValueError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
+        if len(shape) != 2 or min(shape) < 8:
+            raise ValueError(
+                f"shape: expected (height, width) of at least 8 px each, got {shape!r}."
+            )
+        self.shape = (int(shape[0]), int(shape[1]))
+        self.t0 = float(t0)
+        self.ball_level = float(ball_level)
+        self.ambient = float(ambient)
+        lv = np.asarray(light, dtype=float)
+        self.light = lv / np.linalg.norm(lv)
+        self.noise_sigma = float(noise_sigma)
+        self.flicker = float(flicker)
+        self.flicker_hz = 2.0 * float(mains_hz)  # lamps flicker at twice the mains frequency
+        self.flicker_phase = float(flicker_phase)
+        self.bit_depth = bit_depth
+        self.color = bool(color)
+        self.ss = int(supersample)
+        self.seed = int(seed)
+        self._homography = None if homography is None else np.asarray(homography, dtype=float)
+        if trajectory_in_world and self._homography is None:
+            raise ValueError(
+                "trajectory_in_world=True needs a homography (world -> image); pass one or give "
+                "the trajectory in pixels."
+            )
+        self._traj = _Trajectory(trajectory, self.n_frames, self.t0, self.fps)
+        self._in_world = bool(trajectory_in_world)
+
+        rng = np.random.default_rng(self.seed)
+        scene = _make_scene(
+            self.shape, float(background_level), clutter, rng, float(clutter_contrast)
+        )
+        corners = {}
+        for m in markers:
+            if not (0 <= int(m.marker_id) < 50):
+                raise ValueError(
+                    f"markers: id {m.marker_id!r} is outside {MARKER_DICTIONARY} (0..49); "
+                    f"choose an id from 0 to 49."
+                )
+            c = marker_corners_in_image(m, self._homography)
+            _draw_marker(scene, int(m.marker_id), c, 8)
+            corners[int(m.marker_id)] = c
+        occ = np.zeros(self.shape, np.float32)
+        for rect in occluders:
+            occ = np.maximum(occ, _rect_coverage(self.shape, rect))
+        self._occ = occ
+        self._occ_level = float(occluder_level)
+        scene_front = scene * (1.0 - occ) + self._occ_level * occ
+        self.scene = scene_front.astype(np.float32)
+        self._scene_behind = scene.astype(np.float32)
+        self._rng_seed_seq = np.random.SeedSequence(self.seed)
+        self.truth = self._compute_truth(corners)
+
+    # -- geometry ---------------------------------------------------------------------------
+    def _sub_times(self, k: int) -> np.ndarray:
+        t_mid = self.t0 + k / self.fps
+        x0, y0 = self._positions(np.array([t_mid - self.exposure / 2, t_mid + self.exposure / 2]))
+        path = float(np.hypot(x0[1] - x0[0], y0[1] - y0[0]))
+        n_sub = 1 if self.exposure == 0 else int(min(400, max(4, math.ceil(path / 0.1) + 1)))
+        frac = (np.arange(n_sub) + 0.5) / n_sub - 0.5
+        return t_mid + self.exposure * frac
+
+    def _positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        x, y = self._traj(t)
+        if self._in_world:
+            p = _apply_homography(self._homography, np.column_stack([x, y]))
+            return p[:, 0], p[:, 1]
+        return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+
+    def _gain(self, t_mid: float) -> float:
+        if self.flicker == 0:
+            return 1.0
+        om = 2 * math.pi * self.flicker_hz
+        half = om * self.exposure / 2
+        sinc = 1.0 if half == 0 else math.sin(half) / half
+        return 1.0 + self.flicker * math.cos(om * t_mid + self.flicker_phase) * sinc
+
+    def _compute_truth(self, corners: dict) -> SyntheticTruth:
+        n = self.n_frames
+        h, w = self.shape
+        t = self.t0 + np.arange(n) / self.fps
+        xm, ym = self._positions(t)
+        xa, ya, edge, blur, hidden, gain = (np.empty(n) for _ in range(6))
+        for k in range(n):
+            ts = self._sub_times(k)
+            xs, ys = self._positions(ts)
+            xa[k], ya[k] = xs.mean(), ys.mean()
+            d = np.minimum.reduce([xs + 0.5, (w - 0.5) - xs, ys + 0.5, (h - 0.5) - ys])
+            edge[k] = float(d.min() - self.radius)
+            blur[k] = float(np.hypot(np.diff(xs), np.diff(ys)).sum()) * (
+                len(xs) / max(len(xs) - 1, 1)
+            )
+            gain[k] = self._gain(t[k])
+            if self._occ.any():
+                a, _, (x0, y0) = self._ball_patch(xs, ys, with_intensity=False)
+                if a is None:
+                    hidden[k] = 0.0
+                else:
+                    occ = self._occ[y0 : y0 + a.shape[0], x0 : x0 + a.shape[1]]
+                    tot = float(a.sum())
+                    hidden[k] = float((a * occ).sum()) / tot if tot > 0 else 0.0
+            else:
+                hidden[k] = 0.0
+        inside = edge >= 1.0
+        for arr in (t, xm, ym, xa, ya, edge, hidden, gain, blur, inside):
+            arr.setflags(write=False)
+        return SyntheticTruth(
+            t=t,
+            x_px=xm,
+            y_px=ym,
+            x_mean_px=xa,
+            y_mean_px=ya,
+            edge_distance_px=edge,
+            inside=inside,
+            hidden_fraction=hidden,
+            visible=inside & (hidden <= 0.0),
+            gain=gain,
+            blur_px=blur,
+            radius_px=self.radius,
+            marker_corners=corners,
+        )
+
+    def _ball_patch(self, xs: np.ndarray, ys: np.ndarray, with_intensity: bool = True):
+        """Exposure-averaged coverage (and radiance) of the ball on a pixel patch."""
+        h, w = self.shape
+        r = self.radius
+        x0 = max(int(math.floor(xs.min() - r)) - 2, 0)
+        x1 = min(int(math.ceil(xs.max() + r)) + 3, w)
+        y0 = max(int(math.floor(ys.min() - r)) - 2, 0)
+        y1 = min(int(math.ceil(ys.max() + r)) + 3, h)
+        if x1 <= x0 or y1 <= y0:
+            return None, None, (0, 0)
+        ss = self.ss
+        gx = (x0 + (np.arange((x1 - x0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
+        gy = (y0 + (np.arange((y1 - y0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
+        acc_a = np.zeros((len(gy), len(gx)))
+        acc_i = np.zeros_like(acc_a) if with_intensity else None
+        lx, ly, lz = self.light
+        for xc, yc in zip(xs, ys, strict=True):
+            dx = gx[None, :] - xc
+            dy = gy[:, None] - yc
+            dist = np.sqrt(dx * dx + dy * dy)
+            a = np.clip((r - dist) * ss + 0.5, 0.0, 1.0)
+            acc_a += a
+            if with_intensity:
+                nx, ny = dx / r, dy / r
+                nz = np.sqrt(np.clip(1.0 - nx * nx - ny * ny, 0.0, None))
+                lam = np.clip(nx * lx + ny * ly + nz * lz, 0.0, None)
+                acc_i += a * (self.ambient + (1.0 - self.ambient) * lam)
+        ph, pw = y1 - y0, x1 - x0
+        n = len(xs)
+        cov = acc_a.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n
+        rad = None
+        if with_intensity:
+            rad = acc_i.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n * self.ball_level
+        return cov, rad, (x0, y0)
+
+    # -- frames -----------------------------------------------------------------------------
+    def clean_frame(self, k: int) -> np.ndarray:
+        """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale)."""
+        if not (0 <= k < self.n_frames):
+            raise ValueError(f"frame: {k!r} is outside 0..{self.n_frames - 1}.")
+        img = self._scene_behind.copy()
+        xs, ys = self._positions(self._sub_times(k))
+        cov, rad, (x0, y0) = self._ball_patch(xs, ys)
+        if cov is not None:
+            sl = (slice(y0, y0 + cov.shape[0]), slice(x0, x0 + cov.shape[1]))
+            img[sl] = img[sl] * (1.0 - cov) + rad
+        occ = self._occ
+        if occ.any():
+            img = img * (1.0 - occ) + self._occ_level * occ
+        return img
+
+    def frame(self, k: int) -> np.ndarray:
+        """Frame ``k`` as the camera would store it (uint8 or uint16, grey or BGR)."""
+        img = self.clean_frame(k) * np.float32(self.truth.gain[k])
+        rng = np.random.default_rng(np.random.SeedSequence([self.seed, 7919, k]))
+        scale = 257.0 if self.bit_depth == 16 else 1.0
+        top = 65535.0 if self.bit_depth == 16 else 255.0
+        dtype = np.uint16 if self.bit_depth == 16 else np.uint8
+        if self.color:
+            tint = np.array([0.92, 1.0, 1.06], np.float32)  # B, G, R
+            img = img[:, :, None] * tint
+        if self.noise_sigma > 0:
+            img = img + rng.standard_normal(img.shape, dtype=np.float32) * np.float32(
+                self.noise_sigma
+            )
+        img *= np.float32(scale)
+        np.clip(img, 0.0, top, out=img)
+        return np.rint(img).astype(dtype)
+
+    def iter_frames(self) -> Iterator[np.ndarray]:
+        """Frames 0..n-1 one at a time."""
+        for k in range(self.n_frames):
+            yield self.frame(k)
+
+
+def render_flight(trajectory, n_frames: int, fps: float, **options) -> SyntheticFootage:
+    """Render synthetic footage of a ball flying along ``trajectory``.
+
+    Parameters
+    ----------
+    trajectory : callable or (x_px, y_px)
+        Either ``f(t) -> (x, y)`` vectorised over an array of times [s] (image pixels, y down;
+        or world metres with ``trajectory_in_world=True``), or two arrays with the mid-exposure
+        position of every frame [px] (a cubic spline gives the sub-frame positions).
+    n_frames : int
+        Number of frames.
+    fps : float
+        Capture rate. [1/s]
+    shape : (int, int)
+        Frame height and width. [px]
+    radius_px : float
+        Ball radius. [px]
+    exposure : float, optional
+        Exposure time per frame; default half the frame interval. [s]
+    t0 : float
+        Mid-exposure time of frame 0. [s]
+    ball_level, background_level : float
+        Brightness of a fully lit patch of the ball and of the mean background (8-bit scale;
+        a ball darker than the background is fine).
+    ambient : float
+        Share of the ball's brightness that does not depend on the light direction (0..1).
+    light : (float, float, float)
+        Direction towards the lamp in image axes (x right, y down, z towards the camera).
+    noise_sigma : float
+        Standard deviation of the Gaussian sensor noise (8-bit scale).
+    flicker : float
+        Relative amplitude of the lamps' flicker (0.06 = +-6 %).
+    mains_hz : float
+        Mains frequency; lamps flicker at twice it. [Hz]
+    flicker_phase : float
+        Phase of the flicker at t = 0. [rad]
+    clutter : int
+        Number of static shapes (rectangles, discs, bars) in the background.
+    clutter_contrast : float
+        Their grey levels are drawn uniformly within this distance of ``background_level``
+        (8-bit scale).
+    occluders : sequence of (x0, y0, x1, y1)
+        Opaque rectangles in front of the ball. [px]
+    occluder_level : float
+        Their grey level (8-bit scale).
+    markers : sequence of MarkerPlacement
+        ArUco markers (``DICT_4X4_50``) painted into the background.
+    homography : ndarray, optional
+        World (m, y up) -> image (px) plane homography, for markers and world trajectories.
+    trajectory_in_world : bool
+        The trajectory gives world positions [m]; map them with ``homography``.
+    bit_depth : int
+        8 or 16.
+    color : bool
+        Return BGR frames (a slight tint on the scene) instead of grey.
+    supersample : int
+        Supersampling factor for the ball's anti-aliasing.
+    seed : int
+        Seed for clutter and noise; the same seed gives identical footage.
+
+    Returns
+    -------
+    SyntheticFootage
+        Frames, exact truth, capture rate, exposure and clean scene.
+    """
+    r = FlightRenderer(trajectory, n_frames, fps, **options)
+    frames = np.stack([r.frame(k) for k in range(r.n_frames)])
+    return SyntheticFootage(
+        frames=frames, truth=r.truth, fps=r.fps, exposure=r.exposure, scene=r.scene
+    )
+
+
+def write_video(frames, path, fps: float, *, quality: int = 90, overwrite: bool = False) -> Path:
+    """Write frames to a Motion-JPEG AVI file.
+
+    Parameters
+    ----------
+    frames : iterable of ndarray
+        uint8 frames, grey ``(h, w)`` or BGR ``(h, w, 3)``, all the same shape.
+    path : str or Path
+        Output file; ``.avi`` is the safe extension for Motion-JPEG.
+    fps : float
+        Frame rate written into the container. [1/s]
+    quality : int
+        JPEG quality 1..100.
+    overwrite : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    Path
+        The written file.
+    """
+    cv2 = _cv2()
+    path = Path(path)
+    fps = _check_positive("fps", fps, "[1/s]", "give the frame rate to write")
+    if path.exists() and not overwrite:
+        raise ValueError(f"{path}: file exists; pass overwrite=True to replace it.")
+    writer = None
+    n = 0
+    try:
+        for img in frames:
+            img = np.asarray(img)
+            if img.dtype != np.uint8:
+                raise ValueError(
+                    f"frames: video frames must be uint8, got {img.dtype}; use write_frames for "
+                    f"16-bit footage."
+                )
+            if writer is None:
+                shape = img.shape
+                writer = cv2.VideoWriter(
+                    str(path),
+                    cv2.CAP_OPENCV_MJPEG,
+                    cv2.VideoWriter_fourcc(*"MJPG"),
+                    fps,
+                    (shape[1], shape[0]),
+                    [cv2.VIDEOWRITER_PROP_QUALITY, int(quality), cv2.VIDEOWRITER_PROP_IS_COLOR, 1],
+                )
+                if not writer.isOpened():
+                    raise ValueError(f"{path}: cannot open a Motion-JPEG writer there.")
+            elif img.shape != shape:
+                raise ValueError(
+                    f"frames: frame {n} has shape {img.shape}, frame 0 had {shape}; all frames "
+                    f"must match."
+                )
+            # OpenCV's own Motion-JPEG writer stores grey frames in a form other decoders
+            # misread: always write three channels.
+            writer.write(img if img.ndim == 3 else cv2.cvtColor(img, cv2.COLOR_GRAY2BGR))
+            n += 1
+    finally:
+        if writer is not None:
+            writer.release()
+    if n == 0:
+        raise ValueError("frames: nothing to write; pass at least one frame.")
+    return path
+
+
+def write_frames(
+    frames,
+    folder,
+    *,
+    ext: str = "png",
+    bit_depth: int | None = None,
+    prefix: str = "frame_",
+    first: int = 0,
+    digits: int = 6,
+) -> list[Path]:
+    """Write frames as numbered image files (``frame_000000.png``, ...).
+
+    Parameters
+    ----------
+    frames : iterable of ndarray
+        Grey or BGR frames, uint8 or uint16.
+    folder : str or Path
+        Output folder, created if missing.
+    ext : str
+        ``png``, ``tif``/``tiff`` (written uncompressed) or ``jpg``/``jpeg`` (8-bit only).
+    bit_depth : int, optional
+        8 or 16; default that of the frames.  8-bit frames written as 16 bits are scaled by
+        257 and 16-bit frames written as 8 bits are divided by 257.
+    prefix : str
+        File-name prefix.
+    first : int
+        Number of the first file.
+    digits : int
+        Zero-padded width of the number.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
+    cv2 = _cv2()
+    ext = ext.lower().lstrip(".")
+    if ext not in ("png", "tif", "tiff", "jpg", "jpeg"):
+        raise ValueError(f"ext: {ext!r} is not supported; use png, tif, tiff, jpg or jpeg.")
+    if bit_depth not in (None, 8, 16):
+        raise ValueError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
+    if bit_depth == 16 and ext in ("jpg", "jpeg"):
+        raise ValueError("bit_depth: JPEG files hold 8 bits only; use png or tif for 16-bit.")
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    out = []
+    for i, img in enumerate(frames):
+        img = np.asarray(img)
+        depth = bit_depth or (16 if img.dtype == np.uint16 else 8)
+        if depth == 16 and img.dtype == np.uint8:
+            img = img.astype(np.uint16) * 257
+        elif depth == 8 and img.dtype == np.uint16:
+            img = np.rint(img / 257.0).astype(np.uint8)
+        elif img.dtype not in (np.uint8, np.uint16):
+            raise ValueError(f"frames: frame {i} is {img.dtype}; give uint8 or uint16 frames.")
+        p = folder / f"{prefix}{first + i:0{digits}d}.{ext}"
+        # TIFF without compression, as high-speed cameras write it (and fast to read).
+        params = [cv2.IMWRITE_TIFF_COMPRESSION, 1] if ext in ("tif", "tiff") else []
+        if not cv2.imwrite(str(p), img, params):
+            raise ValueError(f"{p}: could not write the image; check the folder is writable.")
+        out.append(p)
+    return out

@@ -1,0 +1,234 @@
+"""Tests of specimen detection (fitdrag.video.detect) against the generator's exact truth.
+
+All footage is synthetic (fitdrag.video.synthetic), 320x240 px and at most 60 frames; the
+flights are closed-form vacuum parabolas written here.  The truth is the ball centre at
+mid-exposure, so these checks are closed-form/independent unless labelled otherwise.
+The error bounds are ours (common practice, no source): the benchmark measures the targets.
+"""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pytest
+
+from fitdrag.video.detect import _median_of, detect_specimen, estimate_background
+from fitdrag.video.sources import ArraySource, open_source
+from fitdrag.video.synthetic import render_flight, write_frames, write_video
+
+FPS = 500.0
+SHAPE = (240, 320)
+N = 60
+
+
+def parabola(t):
+    """Vacuum parabola in image pixels (closed form), y down: enters at the left edge,
+    leaves at the right edge."""
+    t = np.asarray(t, dtype=float)
+    return -12.0 + 2900.0 * t, 70.0 - 400.0 * t + 9000.0 * t * t
+
+
+def render(**kw):
+    opts = dict(shape=SHAPE, radius_px=7.0, exposure=1.0e-3, noise_sigma=3.0, flicker=0.06,
+                clutter=12, seed=21)  # fmt: skip
+    opts.update(kw)
+    return render_flight(parabola, N, FPS, **opts)
+
+
+@pytest.fixture(scope="module")
+def footage():
+    return render()
+
+
+@pytest.fixture(scope="module")
+def detections(footage):
+    return detect_specimen(footage.frames)
+
+
+def errors(det, truth):
+    return np.hypot(det.x_px - truth.x_px[det.frame], det.y_px - truth.y_px[det.frame])
+
+
+def test_centroid_error_against_truth(footage, detections):
+    """closed-form/independent: with flicker, noise, blur and clutter every frame with the
+    ball fully inside is found, nothing else is reported, and centroids are within bounds."""
+    tr, det = footage.truth, detections
+    err = errors(det, tr)
+    assert float(np.sqrt(np.mean(err**2))) < 0.12
+    assert err.max() < 0.35
+    assert set(det.frame.tolist()) == set(np.flatnonzero(tr.visible).tolist())
+    assert tr.blur_px.mean() > 2.5  # the footage really is blurred
+
+
+def test_every_frame_accounted_for(detections):
+    """regression: each frame of the range is detected or listed missing, exactly once."""
+    missing = detections.missing_frames
+    assert len(set(missing.tolist())) == len(missing)
+    assert not set(missing.tolist()) & set(detections.frame.tolist())
+    assert sorted(missing.tolist() + detections.frame.tolist()) == list(range(N))
+
+
+def test_entering_and_leaving_frames_are_missing(footage, detections):
+    """closed-form/independent: frames where the frame edge cuts the ball are listed, not
+    measured as partial blobs."""
+    tr = footage.truth
+    reasons = dict(detections.missing)
+    cut = np.flatnonzero((tr.edge_distance_px < 0) & (tr.edge_distance_px > -2 * tr.radius_px))
+    assert len(cut) >= 4  # entering and leaving both happen
+    for k in cut:
+        assert k in reasons
+    assert "blob touches the frame edge (entering or leaving the frame)" in reasons.values()
+
+
+def test_quality_area_and_sigma(footage, detections):
+    """closed-form/independent: integrated coverage is the ball's area pi R^2 (blur keeps it;
+    shading lowers the estimate a little); quality in 0..1; sigma positive and small."""
+    det = detections
+    r = footage.truth.radius_px
+    assert np.median(det.area_px) == pytest.approx(np.pi * r * r, rel=0.12)
+    assert np.all((det.quality >= 0) & (det.quality <= 1)) and np.median(det.quality) > 0.7
+    assert np.all(det.sigma_px > 0) and np.all(det.sigma_px < 0.1)
+    assert det.shape == SHAPE and det.background.shape == SHAPE
+
+
+def test_ideal_footage_is_exact():
+    """closed-form/independent: an evenly lit ball without noise, flicker or clutter is
+    located to a small fraction of a pixel (the centroid of a disc is its centre)."""
+    fo = render(noise_sigma=0.0, flicker=0.0, clutter=0, ambient=1.0)
+    det = detect_specimen(fo.frames)
+    assert errors(det, fo.truth).max() < 0.03
+
+
+def test_strong_flicker_is_normalised():
+    """closed-form/independent: +-15 % flicker; the reported gain follows the truth's (up to
+    the background's own brightness) and centroids stay within bounds."""
+    fo = render(flicker=0.15, mains_hz=60.0, seed=5)
+    det = detect_specimen(fo.frames)
+    assert set(det.frame.tolist()) == set(np.flatnonzero(fo.truth.visible).tolist())
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.12
+    ratio = det.gain / fo.truth.gain[det.frame]
+    assert ratio.std() / ratio.mean() < 0.005
+    assert fo.truth.gain.max() - fo.truth.gain.min() > 0.2
+
+
+def test_occlusion_frames_are_missing_and_track_resumes():
+    """closed-form/independent: a static post the ball passes behind: frames where it hides
+    part of the ball are listed, the track picks the ball up again after it."""
+    post = (150.0, 0.0, 162.0, 240.0)
+    fo = render(occluders=[post], seed=8)
+    tr = fo.truth
+    det = detect_specimen(fo.frames)
+    reasons = dict(det.missing)
+    hidden = np.flatnonzero(tr.hidden_fraction > 0.03)
+    assert len(hidden) >= 5
+    for k in hidden:
+        assert k in reasons, (k, tr.hidden_fraction[k])
+    assert errors(det, tr).max() < 0.35
+    after = np.flatnonzero(tr.visible & (tr.x_px > post[2] + tr.radius_px))
+    assert len(after) >= 10 and set(after.tolist()) <= set(det.frame.tolist())
+    before = np.flatnonzero(tr.visible & (tr.x_px < post[0]))
+    assert set(before.tolist()) <= set(det.frame.tolist())
+
+
+def test_dark_ball_on_bright_background():
+    """closed-form/independent: a ball darker than the background is found as well
+    (polarity 'either'); asking for a brighter one finds nothing."""
+    fo = render(ball_level=25.0, background_level=150.0, clutter=6, seed=2)
+    det = detect_specimen(fo.frames)
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.12
+    assert set(det.frame.tolist()) == set(np.flatnonzero(fo.truth.visible).tolist())
+    det_dark = detect_specimen(fo.frames, polarity="darker")
+    np.testing.assert_allclose(det_dark.x_px, det.x_px, atol=1e-9)
+    with pytest.raises(ValueError, match=r"no specimen found in any frame"):
+        detect_specimen(fo.frames, polarity="brighter")
+
+
+def test_sixteen_bit_tiff_folder(tmp_path):
+    """closed-form/independent: 16-bit TIFF frames (0..65535) give the same centroids as the
+    8-bit picture they were scaled from."""
+    fo = render(seed=9)
+    write_frames(fo.frames, tmp_path, ext="tif", bit_depth=16, first=1)
+    src = open_source(tmp_path)
+    det16 = detect_specimen(src)
+    det8 = detect_specimen(fo.frames)
+    np.testing.assert_array_equal(det16.frame, det8.frame + 1)  # files numbered from 1
+    # The 8-bit background is kept in 1/256-level steps, the 16-bit one in floats.
+    np.testing.assert_allclose(det16.x_px, det8.x_px, atol=5e-3)
+    np.testing.assert_allclose(det16.y_px, det8.y_px, atol=5e-3)
+    assert det16.noise_sigma == pytest.approx(257 * det8.noise_sigma, rel=0.02)
+
+
+def test_colour_video(tmp_path):
+    """closed-form/independent: colour Motion-JPEG footage (compression artefacts included)."""
+    fo = render(color=True, seed=12)
+    path = write_video(fo.frames, tmp_path / "c.avi", 30.0)
+    det = detect_specimen(open_source(path))
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.15
+    assert len(set(np.flatnonzero(fo.truth.visible)) - set(det.frame.tolist())) <= 1
+
+
+def test_frame_range(footage):
+    """regression: start/stop limit the frames examined and listed."""
+    det = detect_specimen(footage.frames, start=20, stop=40)
+    assert det.frame.min() >= 20 and det.frame.max() < 40
+    assert sorted(det.frame.tolist() + det.missing_frames.tolist()) == list(range(20, 40))
+
+
+def test_background_model_removes_ball_and_flicker(footage):
+    """closed-form/independent: the background is the clean scene (no ball) times one
+    constant brightness, even though every sampled frame flickers."""
+    bg = estimate_background(ArraySource(footage.frames))
+    gain = float(np.median(bg / footage.scene))
+    diff = bg - gain * footage.scene
+    # Median of 25 frames with noise sigma 3: standard deviation about 1.2533 * 3 / 5 = 0.75
+    # (asymptotic variance of the sample median of a normal sample, common textbook result).
+    assert diff.std() == pytest.approx(0.75, rel=0.2)
+    path = np.s_[60:110, 40:300]  # where the ball flies
+    assert np.abs(diff[path]).max() < 5.0
+
+
+def test_median_network_matches_numpy():
+    """closed-form/independent: the sorting-network median equals numpy's median."""
+    rng = np.random.default_rng(0)
+    for n in (1, 2, 3, 7, 16, 25):
+        imgs = [rng.integers(0, 4000, (5, 6)).astype(np.uint16) for _ in range(n)]
+        ref = np.median(np.stack(imgs).astype(float), axis=0)
+        got = _median_of(imgs)
+        np.testing.assert_array_equal(got, np.floor(ref).astype(np.uint16))
+        f = [i.astype(np.float32) for i in imgs]
+        np.testing.assert_allclose(_median_of(f), ref)
+
+
+def test_no_specimen_error():
+    """regression: footage without a moving ball: one clear error naming the range."""
+    fo = render_flight(lambda t: (np.full_like(t, -50.0), np.full_like(t, -50.0)), 20, FPS,
+                       shape=SHAPE, seed=1)  # fmt: skip
+    msg = (
+        "footage <frames in memory>: no specimen found in any frame of 0..19 (20 frame(s): no "
+        "blob stands out from the background); check the frame range, the area limits "
+        "(min_area=12, max_area=1536 px) and the threshold (threshold_sigma=5)."
+    )
+    with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
+        detect_specimen(fo.frames)
+
+
+def test_bad_settings(footage):
+    """regression: bad settings name the setting, the value and the fix."""
+    f = footage.frames[:10]
+    with pytest.raises(ValueError, match=r"^polarity: 'light' is not one of either, brighter, "
+                                         r"darker; choose one of them\.$"):  # fmt: skip
+        detect_specimen(f, polarity="light")
+    with pytest.raises(ValueError, match=r"^max_area: 10 px must exceed min_area=12 px; widen "
+                                         r"the range\.$"):  # fmt: skip
+        detect_specimen(f, max_area=10)
+    with pytest.raises(ValueError, match=r"^max_gap: expected a whole number of frames >= 1, "
+                                         r"got 0\.$"):  # fmt: skip
+        detect_specimen(f, max_gap=0)
+    with pytest.raises(ValueError, match=r"^threshold_sigma: expected a positive number, got "
+                                         r"-1\.$"):  # fmt: skip
+        detect_specimen(f, threshold_sigma=-1)
+    with pytest.raises(ValueError, match=r"^background: shape \(5, 5\) differs from the frames' "
+                                         r"\(240, 320\); pass a background of the footage's "
+                                         r"size\.$"):  # fmt: skip
+        detect_specimen(f, background=np.zeros((5, 5)))

@@ -1,0 +1,277 @@
+"""Tests of the synthetic footage generator (fitdrag.video.synthetic).
+
+All footage here is synthetic.  The trajectories are closed-form vacuum parabolas written in
+the tests, not project code.
+"""
+
+from __future__ import annotations
+
+import math
+
+import cv2
+import numpy as np
+import pytest
+from scipy.integrate import quad
+
+from fitdrag.video.synthetic import (
+    FlightRenderer,
+    MarkerPlacement,
+    marker_corners_in_image,
+    render_flight,
+    write_frames,
+    write_video,
+)
+
+FPS = 500.0
+G_PX = 4000.0  # px/s^2, an arbitrary constant acceleration in image pixels (y down)
+
+
+def parabola(t):
+    """Vacuum parabola in image pixels (closed form), y down."""
+    t = np.asarray(t, dtype=float)
+    return 40.0 + 600.0 * t, 60.0 - 300.0 * t + 0.5 * G_PX * t * t
+
+
+def still(x, y):
+    return lambda t: (np.full_like(np.asarray(t, float), x), np.full_like(np.asarray(t, float), y))
+
+
+def clean(**kw):
+    opts = dict(shape=(120, 160), clutter=0, noise_sigma=0.0, flicker=0.0, ambient=1.0)
+    opts.update(kw)
+    return opts
+
+
+def test_same_seed_same_footage():
+    """regression: a fixed seed gives identical footage, another seed different noise."""
+    a = render_flight(parabola, 6, FPS, shape=(80, 100), seed=4)
+    b = render_flight(parabola, 6, FPS, shape=(80, 100), seed=4)
+    c = render_flight(parabola, 6, FPS, shape=(80, 100), seed=5)
+    assert np.array_equal(a.frames, b.frames)
+    assert not np.array_equal(a.frames, c.frames)
+    assert a.frames.dtype == np.uint8 and a.frames.shape == (6, 80, 100)
+
+
+def test_truth_is_the_trajectory_at_mid_exposure():
+    """closed-form/independent: truth equals the vacuum parabola at t0 + k/fps; the
+    exposure-averaged centre is x(t) + a*tau^2/24 (mean of a quadratic over an interval)."""
+    tau = 1.6e-3
+    fo = render_flight(parabola, 10, FPS, t0=0.01, exposure=tau, **clean())
+    t = 0.01 + np.arange(10) / FPS
+    x, y = parabola(t)
+    np.testing.assert_allclose(fo.truth.t, t)
+    np.testing.assert_allclose(fo.truth.x_px, x, atol=1e-12)
+    np.testing.assert_allclose(fo.truth.y_px, y, atol=1e-12)
+    # Mean of y(t) over [t - tau/2, t + tau/2] for y'' = G_PX: y(t) + G_PX tau^2 / 24.
+    np.testing.assert_allclose(fo.truth.y_mean_px, y + G_PX * tau**2 / 24, atol=1e-9)
+    np.testing.assert_allclose(fo.truth.x_mean_px, x, atol=1e-9)
+    # Blur length: |v| * tau to first order (v from the derivative of the parabola).
+    vx, vy = 600.0, -300.0 + G_PX * t
+    np.testing.assert_allclose(fo.truth.blur_px, np.hypot(vx, vy) * tau, rtol=2e-3)
+
+
+def test_array_trajectory_matches_callable():
+    """closed-form/independent: per-frame positions of a parabola, splined, give the same
+    frames as the parabola itself (a cubic spline reproduces a quadratic exactly)."""
+    n = 8
+    t = np.arange(n) / FPS
+    a = render_flight(parabola, n, FPS, **clean())
+    b = render_flight(parabola(t), n, FPS, **clean())
+    assert np.abs(a.frames.astype(int) - b.frames.astype(int)).max() <= 1
+
+
+def test_disc_area_and_centre():
+    """closed-form/independent: a still, evenly lit disc on a flat background integrates to
+    pi R^2 and its intensity centroid is its centre (area and centroid of a disc)."""
+    r = 7.3
+    for x0, y0 in [(60.0, 50.0), (61.37, 48.81)]:
+        fo = render_flight(still(x0, y0), 1, FPS, radius_px=r, exposure=0.0, **clean())
+        win = np.s_[35:66, 45:78]  # the disc and a margin (rounding elsewhere is not its)
+        img = fo.frames[0].astype(float)[win]
+        cov = (img - fo.scene[win]) / (230.0 - fo.scene[win])
+        assert cov.sum() == pytest.approx(math.pi * r * r, rel=5e-3)
+        yy, xx = np.indices(img.shape)
+        yy, xx = yy + 35, xx + 45
+        assert (cov * xx).sum() / cov.sum() == pytest.approx(x0, abs=0.02)
+        assert (cov * yy).sum() / cov.sum() == pytest.approx(y0, abs=0.02)
+
+
+def test_motion_blur_keeps_area_and_centroid():
+    """closed-form/independent: exposure blur spreads the disc along its path but keeps its
+    integrated coverage (pi R^2) and puts the centroid at the exposure-averaged centre."""
+    r = 6.0
+    fo = render_flight(
+        lambda t: (30.0 + 8000.0 * t, np.full_like(np.asarray(t, float), 60.0)),
+        9,
+        FPS,
+        radius_px=r,
+        exposure=1.0 / FPS,
+        **clean(),
+    )
+    k = 4
+    assert fo.truth.blur_px[k] == pytest.approx(8000.0 / FPS, rel=1e-9)
+    win = np.s_[50:71, 70:120]  # the blurred blob and a margin
+    cov = (fo.frames[k].astype(float)[win] - fo.scene[win]) / (230.0 - fo.scene[win])
+    assert cov.sum() == pytest.approx(math.pi * r * r, rel=1e-2)
+    xx = np.indices(cov.shape)[1] + 70
+    assert (cov * xx).sum() / cov.sum() == pytest.approx(fo.truth.x_mean_px[k], abs=0.03)
+    # Along the path a point is covered for overlap([u - R, u + R], path) / L of the exposure:
+    # at most 2R/L = 0.75 here, and above 0.05 over a length 2R + L - 2 * 0.05 L = 26.4 px.
+    row = cov[10]
+    assert row.max() == pytest.approx(2 * r / 16.0, abs=0.01)
+    assert np.count_nonzero(row > 0.05) == pytest.approx(26.4, abs=1.5)
+
+
+def test_flicker_gain_is_the_exposure_average():
+    """closed-form/independent: the frame gain is the mean of 1 + A cos(2 pi 2 f t + phi)
+    over the exposure, checked against scipy.integrate.quad."""
+    amp, mains, phase, tau = 0.06, 50.0, 0.4, 1.2e-3
+    opts = clean(flicker=amp)
+    r = FlightRenderer(
+        still(60.0, 50.0), 12, 730.0, exposure=tau, mains_hz=mains, flicker_phase=phase, **opts
+    )
+    for k in range(12):
+        tm = k / 730.0
+        ref = quad(lambda t: 1 + amp * math.cos(2 * math.pi * 2 * mains * t + phase),
+                   tm - tau / 2, tm + tau / 2)[0] / tau  # fmt: skip
+        assert r.truth.gain[k] == pytest.approx(ref, abs=1e-12)
+    # The whole picture is scaled by the gain (noise off): background pixels follow it.
+    f0, f3 = r.frame(0).astype(float), r.frame(3).astype(float)
+    assert np.median(f3[5:20, 5:20] / f0[5:20, 5:20]) == pytest.approx(
+        r.truth.gain[3] / r.truth.gain[0], abs=0.012
+    )
+
+
+def test_noise_level():
+    """closed-form/independent: the added noise has the requested standard deviation (frame
+    minus clean frame, before rounding: sd of N(0, 3^2) rounded is sqrt(9 + 1/12))."""
+    r = FlightRenderer(still(-50.0, -50.0), 1, FPS, **clean(noise_sigma=3.0, shape=(200, 200)))
+    d = r.frame(0).astype(float) - r.clean_frame(0)
+    assert d.std() == pytest.approx(math.sqrt(9 + 1 / 12), rel=0.02)
+    assert abs(d.mean()) < 0.05
+
+
+def test_edge_distance_and_inside():
+    """closed-form/independent: distance from the footprint to the image boundary, which runs
+    along x = -0.5 (pixel centres at integers)."""
+    r = 5.0
+    xs = np.array([3.0, 5.4, 5.5, 20.0])
+    fo = render_flight((xs, np.full(4, 60.0)), 4, FPS, radius_px=r, exposure=0.0, **clean())
+    np.testing.assert_allclose(fo.truth.edge_distance_px, xs + 0.5 - r)
+    assert fo.truth.inside.tolist() == [False, False, True, True]  # inside: >= 1 px clear
+
+
+def test_occluder_hidden_fraction():
+    """closed-form/independent: an opaque edge through the centre of a still disc hides half
+    of it (symmetry); a disc clear of the occluder is not hidden; one behind it fully."""
+    occ = [(60.0, 0.0, 100.0, 120.0)]
+    xs = np.array([60.0, 30.0, 80.0])
+    fo = render_flight(
+        (xs, np.full(3, 60.0)), 3, FPS, radius_px=6.0, exposure=0.0, occluders=occ, **clean()
+    )
+    h = fo.truth.hidden_fraction
+    assert h[0] == pytest.approx(0.5, abs=0.01)
+    assert h[1] == 0.0 and h[2] == pytest.approx(1.0)
+    assert fo.truth.visible.tolist() == [False, True, False]
+    # The occluder is drawn in front: where it is, the picture does not change with the ball.
+    assert np.array_equal(fo.frames[2][:, 62:98], fo.frames[1][:, 62:98])
+
+
+def test_sixteen_bit_and_colour():
+    """closed-form/independent: 16-bit output is the 8-bit picture times 257 (to rounding);
+    colour output is BGR whose grey conversion is the tinted grey picture."""
+    a = render_flight(parabola, 2, FPS, **clean())
+    b = render_flight(parabola, 2, FPS, bit_depth=16, **clean())
+    assert b.frames.dtype == np.uint16
+    assert np.abs(b.frames.astype(float) / 257.0 - a.frames).max() <= 0.51
+    c = render_flight(parabola, 2, FPS, color=True, **clean())
+    assert c.frames.shape == (2, 120, 160, 3)
+    grey = cv2.cvtColor(c.frames[0], cv2.COLOR_BGR2GRAY).astype(float)
+    tint = 0.114 * 0.92 + 0.587 * 1.0 + 0.299 * 1.06  # BT.601 weights of the B, G, R tint
+    assert np.abs(grey - tint * a.frames[0]).max() <= 2.0
+
+
+@pytest.mark.parametrize("homography", [None, "world"])
+def test_markers_found_by_opencv_where_the_truth_says(homography):
+    """closed-form/independent: OpenCV's ArUco detector (independent reference) finds the
+    painted DICT_4X4_50 markers with the right ids, corners within 0.5 px of the truth."""
+    if homography is None:
+        h = None
+        markers = [MarkerPlacement(3, 20.3, 30.6, 48.2), MarkerPlacement(11, 150.25, 60.5, 40.0)]
+    else:
+        # world (m, y up) -> image (px, y down): 900 px/m, slight perspective
+        h = np.array([[900.0, 20.0, 30.0], [-10.0, -880.0, 200.0], [0.05, 0.02, 1.0]])
+        markers = [MarkerPlacement(3, 0.0, 0.0, 0.05), MarkerPlacement(11, 0.12, 0.06, 0.045)]
+    fo = render_flight(still(-50.0, -50.0), 1, FPS, markers=markers, homography=h,
+                       **clean(shape=(240, 320)))  # fmt: skip
+    params = cv2.aruco.DetectorParameters()
+    params.cornerRefinementMethod = cv2.aruco.CORNER_REFINE_SUBPIX
+    det = cv2.aruco.ArucoDetector(cv2.aruco.getPredefinedDictionary(cv2.aruco.DICT_4X4_50), params)
+    corners, ids, _ = det.detectMarkers(fo.frames[0])
+    assert ids is not None and sorted(ids.ravel().tolist()) == [3, 11]
+    for c, i in zip(corners, ids.ravel(), strict=True):
+        truth = fo.truth.marker_corners[int(i)]
+        assert np.abs(c[0] - truth).max() < 0.5
+    # Corner order: top-left, top-right, bottom-right, bottom-left (image y down).
+    tl, tr, br, bl = fo.truth.marker_corners[3]
+    assert tl[0] < tr[0] and bl[0] < br[0] and tl[1] < bl[1] and tr[1] < br[1]
+
+
+def test_marker_corners_axis_aligned():
+    """closed-form/independent: corners of an axis-aligned square."""
+    c = marker_corners_in_image(MarkerPlacement(0, 10.0, 20.0, 30.0))
+    np.testing.assert_allclose(c, [[10, 20], [40, 20], [40, 50], [10, 50]])
+
+
+def test_write_video_and_frames_round_trip(tmp_path):
+    """closed-form/independent: files read back by OpenCV hold the frames (JPEG loses a few
+    grey levels; PNG/TIFF are exact, 16-bit kept)."""
+    fo = render_flight(parabola, 5, FPS, shape=(64, 96), seed=2)
+    p = write_video(fo.frames, tmp_path / "a.avi", 250.0)
+    cap = cv2.VideoCapture(str(p))
+    assert cap.get(cv2.CAP_PROP_FPS) == pytest.approx(250.0)
+    got = []
+    while True:
+        ok, img = cap.read()
+        if not ok:
+            break
+        got.append(cv2.cvtColor(img, cv2.COLOR_BGR2GRAY))
+    cap.release()
+    assert len(got) == 5
+    assert np.abs(np.stack(got).astype(int) - fo.frames).mean() < 2.0
+    files = write_frames(fo.frames, tmp_path / "png")
+    assert [f.name for f in files][:2] == ["frame_000000.png", "frame_000001.png"]
+    assert np.array_equal(cv2.imread(str(files[3]), cv2.IMREAD_UNCHANGED), fo.frames[3])
+    t16 = write_frames(fo.frames, tmp_path / "tif", ext="tif", bit_depth=16, first=7, digits=3)
+    img = cv2.imread(str(t16[0]), cv2.IMREAD_UNCHANGED)
+    assert t16[0].name == "frame_007.tif" and img.dtype == np.uint16
+    assert np.array_equal(img, fo.frames[0].astype(np.uint16) * 257)
+
+
+def test_bad_input_messages(tmp_path):
+    """regression: bad input raises ValueError naming the input, the value and the fix."""
+    with pytest.raises(ValueError, match=r"^fps: expected a positive number \[1/s\], got 0\.0; "
+                                         r"give the capture rate\.$"):  # fmt: skip
+        render_flight(parabola, 3, 0.0)
+    with pytest.raises(ValueError, match=r"^exposure: 0\.01 s is outside 0\.\.1/fps = 0\.002 s; "):
+        render_flight(parabola, 3, FPS, exposure=0.01)
+    with pytest.raises(ValueError, match=r"^bit_depth: expected 8 or 16, got 12; choose one\.$"):
+        render_flight(parabola, 3, FPS, bit_depth=12)
+    with pytest.raises(ValueError, match=r"^trajectory: arrays of shape \(2,\) and \(2,\), "
+                                         r"expected \(3,\) each"):  # fmt: skip
+        render_flight(([1.0, 2.0], [1.0, 2.0]), 3, FPS)
+    with pytest.raises(ValueError, match=r"^markers: id 50 is outside DICT_4X4_50 \(0\.\.49\); "):
+        render_flight(parabola, 1, FPS, markers=[MarkerPlacement(50, 1, 1, 20)])
+    with pytest.raises(ValueError, match=r"^trajectory_in_world=True needs a homography"):
+        render_flight(parabola, 1, FPS, trajectory_in_world=True)
+    with pytest.raises(ValueError, match=r"^bit_depth: JPEG files hold 8 bits only; use png or "
+                                         r"tif for 16-bit\.$"):  # fmt: skip
+        write_frames(np.zeros((1, 8, 8), np.uint8), tmp_path / "j", ext="jpg", bit_depth=16)
+    with pytest.raises(ValueError, match=r"^ext: 'bmp' is not supported; use png, tif, tiff, "):
+        write_frames(np.zeros((1, 8, 8), np.uint8), tmp_path / "j", ext="bmp")
+    (tmp_path / "x.avi").write_bytes(b"")
+    with pytest.raises(ValueError, match=r"x\.avi: file exists; pass overwrite=True to replace"):
+        write_video(np.zeros((1, 8, 8), np.uint8), tmp_path / "x.avi", 30.0)
+    with pytest.raises(ValueError, match=r"^frames: video frames must be uint8, got uint16; use "
+                                         r"write_frames for 16-bit footage\.$"):  # fmt: skip
+        write_video(np.zeros((1, 8, 8), np.uint16), tmp_path / "y.avi", 30.0)
