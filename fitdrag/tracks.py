@@ -18,7 +18,6 @@ import csv
 import hashlib
 import math
 import os
-import tempfile
 import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
@@ -70,12 +69,7 @@ class TrackImportWarning(UserWarning):
     """Warning raised by :func:`read_track` when rows are dropped."""
 
 
-class OutputExistsError(FileExistsError, ValueError):
-    """An output file exists and overwriting was not asked for.
-
-    It is both a :class:`FileExistsError` and a :class:`ValueError` (bad input), so the
-    command line reports it as a bad-argument error.
-    """
+from fitdrag._files import OutputExistsError, check_output, write_text_atomic  # noqa: E402
 
 
 def _as_1d_float(name: str, value: Any) -> np.ndarray:
@@ -836,12 +830,6 @@ def _header_value(value: Any) -> str | None:
     return None
 
 
-def _current_umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
 def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -> Path:
     """Write a track as CSV that :func:`read_track` reads back exactly.
 
@@ -885,18 +873,7 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
             f"track: expected a fitdrag Track, got {type(track).__name__}; build one with "
             f"Track(t, x, y) or read_track(path)."
         )
-    p = Path(path)
-    if p.is_dir():
-        raise ValueError(f"{p}: is a directory; give the path of the CSV file to write.")
-    parent = p.parent if str(p.parent) else Path(".")
-    if not parent.is_dir():
-        raise FileNotFoundError(
-            f"{p}: the directory {str(parent)!r} does not exist; create it first or choose "
-            f"another output path."
-        )
-    exists_msg = f"{p}: file exists; pass --force (force=True) to overwrite it."
-    if p.exists() and not force:
-        raise OutputExistsError(exists_msg)
+    p = check_output(path, force=force)
 
     meta = dict(track.meta)
     items: dict[str, str] = {}
@@ -938,25 +915,4 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
     out.extend(",".join(row) for row in zip(*as_text))
     text = "\n".join(out) + "\n"
 
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~_current_umask())
-        if force:
-            os.replace(tmp, p)
-        else:
-            try:
-                os.link(tmp, p)  # fails if the file appeared meanwhile: never clobber
-            except FileExistsError:
-                raise OutputExistsError(exists_msg) from None
-            except OSError:  # file system without hard links
-                if p.exists():
-                    raise OutputExistsError(exists_msg) from None
-                os.replace(tmp, p)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return p
+    return write_text_atomic(p, text, force=force)

@@ -707,7 +707,7 @@ def test_write_refuses_overwrite_unless_forced(tmp_path):
 def test_write_errors(tmp_path):
     """regression"""
     with pytest.raises(ValueError, match=exact(
-        f"{tmp_path}: is a directory; give the path of the CSV file to write."
+        f"{tmp_path}: is a directory; give the path of the output file to write."
     )):  # fmt: skip
         write_track(_track(), tmp_path)
     missing = tmp_path / "no" / "o.csv"

@@ -72,13 +72,9 @@ def _check_outputs(args) -> None:
 
 
 def _write_atomic(path: Path, write) -> None:
-    tmp = path.with_name(f".{path.name}.tmp")
-    try:
-        write(tmp)
-        tmp.replace(path)
-    finally:
-        if tmp.exists():
-            tmp.unlink()
+    from fitdrag._files import write_atomic
+
+    write_atomic(path, write, force=True)  # existence was checked before the work began
 
 
 def format_summary(result) -> str:

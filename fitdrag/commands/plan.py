@@ -118,12 +118,8 @@ def run(args) -> int:
     print(plan.message[0].upper() + plan.message[1:])
     if out is not None:
         text = json.dumps(plan.to_dict(), indent=2, allow_nan=False)
-        tmp = out.with_name(f".{out.name}.tmp")
-        try:
-            tmp.write_text(text + "\n", encoding="utf-8")
-            tmp.replace(out)
-        finally:
-            if tmp.exists():
-                tmp.unlink()
+        from fitdrag._files import write_text_atomic
+
+        write_text_atomic(out, text + "\n", force=True)  # existence checked up front
         print(f"wrote {out}")
     return 0

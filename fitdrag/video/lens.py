@@ -46,7 +46,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -284,43 +283,7 @@ def _jsonable(v: Any) -> Any:
     return v
 
 
-def write_text_atomic(path: str | os.PathLike, text: str, *, force: bool = False) -> Path:
-    """Write ``text`` to ``path`` through a temporary file in the same folder.
-
-    Nothing is left behind on error; an existing file is kept unless ``force``.
-
-    Raises
-    ------
-    fitdrag.tracks.OutputExistsError
-        If the file exists and ``force`` is false (a ValueError and FileExistsError).
-    FileNotFoundError
-        If the folder does not exist.
-    """
-    from fitdrag.tracks import OutputExistsError
-
-    p = Path(path)
-    if p.is_dir():
-        raise ValueError(f"{p}: is a directory; give the path of the file to write.")
-    parent = p.parent if str(p.parent) else Path(".")
-    if not parent.is_dir():
-        raise FileNotFoundError(
-            f"{p}: the directory {str(parent)!r} does not exist; create it first or choose "
-            f"another output path."
-        )
-    if p.exists() and not force:
-        raise OutputExistsError(f"{p}: file exists; pass --force (force=True) to overwrite it.")
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-        mask = os.umask(0o022)
-        os.umask(mask)
-        os.chmod(tmp, 0o666 & ~mask)
-        os.replace(tmp, p)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-    return p
+from fitdrag._files import write_text_atomic  # noqa: E402  (kept importable from here)
 
 
 def load_lens(path: str | os.PathLike) -> LensModel:
