@@ -205,3 +205,14 @@ def test_unknown_noise_model_is_an_argument_error(track_file, capsys):
         run_fit(track_file, "--noise", "pink")
     assert exc.value.code == 2
     assert "argument --noise: invalid choice: 'pink'" in capsys.readouterr().err
+
+
+def test_reynolds_dependent_model_also_writes_cd_against_re(track_file, tmp_path):
+    """regression: with a Reynolds-dependent model --plot also writes OUT_cd_vs_re.png (issue
+    6: a Cd-vs-Re plot with its band), and an existing one is not overwritten without --force."""
+    png = tmp_path / "fit.png"
+    assert run_fit(track_file, "--model", "power-law", "--plot", png) == 0
+    extra = tmp_path / "fit_cd_vs_re.png"
+    assert extra.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    png.unlink()
+    assert run_fit(track_file, "--model", "power-law", "--plot", png) == 2  # extra exists

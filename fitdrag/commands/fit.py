@@ -59,14 +59,23 @@ def register(sub) -> argparse.ArgumentParser:
                    help="force the coverage factor k (default 2, Student-t for few points)")  # fmt: skip
     o = p.add_argument_group("output")
     o.add_argument("--json", metavar="OUT.json", help="write the result as JSON")
-    o.add_argument("--plot", metavar="OUT.png", help="write trajectory and residual plots")
+    o.add_argument("--plot", metavar="OUT.png",
+                   help="write trajectory and residual plots; with a Reynolds-dependent model "
+                   "also OUT_cd_vs_re.png (Cd against Re with its band)")  # fmt: skip
     o.add_argument("--force", action="store_true", help="overwrite existing output files")
     return p
 
 
+def _cd_plot_path(plot: str) -> Path:
+    p = Path(plot)
+    return p.with_name(f"{p.stem}_cd_vs_re{p.suffix or '.png'}")
+
+
 def _check_outputs(args) -> None:
-    for opt in ("json", "plot"):
-        path = getattr(args, opt)
+    paths = [("json", args.json), ("plot", args.plot)]
+    if args.plot and args.model != "constant":
+        paths.append(("plot", str(_cd_plot_path(args.plot))))
+    for opt, path in paths:
         if path and Path(path).exists() and not args.force:
             raise ValueError(f"--{opt}: {path} exists; pass --force to overwrite it.")
 
@@ -158,6 +167,13 @@ def run(args) -> int:
         fig = plot_fit(result, title=title)
         _write_atomic(path, lambda p: fig.savefig(p, dpi=120, format="png"))
         print(f"wrote {path}")
+        if result.model != "constant":
+            from fitdrag.report.cd_plot import plot_cd_vs_re
+
+            cd_path = _cd_plot_path(args.plot)
+            fig2 = plot_cd_vs_re(result)
+            _write_atomic(cd_path, lambda p: fig2.savefig(p, dpi=120, format="png"))
+            print(f"wrote {cd_path}")
     if not result.success:
         print(f"fitdrag fit: the fit did not converge: {result.message}", file=sys.stderr)
         return 3
