@@ -17,6 +17,17 @@ Every input that carries an uncertainty has a ``*_uncertainty`` key holding its 
 uncertainty in the same unit (for ``temperature``, a temperature difference in K or °C).
 They are required: write 0 for an input you take as exact, so that nothing leaves the
 uncertainty budget by omission.
+
+A ``[[throws]]`` table holds either ``track = "file.csv"`` (with the CSV import options
+:data:`CSV_OPTIONS`) or ``footage = "file.avi"`` (a video file or a folder of numbered
+frames) with the options :data:`FOOTAGE_OPTIONS` of
+:func:`fitdrag.video.tracking.track_footage`: ``start``, ``stop`` (frames), exactly one
+calibration of ``scale`` [m/px], ``reference`` ("X1,Y1,X2,Y2,METRES": two image points [px]
+and their distance [m]) or ``markers`` (the ArUco markers' side [m]); ``origin`` ("X,Y" [px],
+y down) and ``rotation`` [deg] with scale or reference; ``marker_dictionary``,
+``marker_layout`` (a file) and ``marker_frame`` with markers; ``lens`` (a lens file) and
+``scale_uncertainty`` (relative standard uncertainty of the known length [1]).  The frame
+rate of footage is ``[camera] fps``.
 """
 
 from __future__ import annotations
@@ -56,6 +67,26 @@ CSV_OPTIONS = (
     "delimiter",
     "comment",
 )
+
+#: Options of a footage throw, passed to :func:`fitdrag.video.tracking.track_footage` (the
+#: frame rate is [camera] fps).  ``scale`` and ``origin`` serve both kinds of throw.
+FOOTAGE_OPTIONS = (
+    "start",
+    "stop",
+    "scale",
+    "origin",
+    "rotation",
+    "reference",
+    "markers",
+    "marker_dictionary",
+    "marker_layout",
+    "marker_frame",
+    "lens",
+    "scale_uncertainty",
+)
+
+#: The calibrations of a footage throw: exactly one is required.
+FOOTAGE_CALIBRATIONS = ("scale", "reference", "markers")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -315,6 +346,29 @@ _SECTIONS: dict[str, dict[str, _Key]] = {
         "y_down": _Key("bool"),
         "delimiter": _Key("str"),
         "comment": _Key("str"),
+        # footage throws
+        "start": _Key("int", lo=0, hi=10**9),
+        "stop": _Key("int", lo=1, hi=10**9),
+        "rotation": _Key(
+            "qty", "deg", -180.0, 180.0, "give the camera roll in degrees", lo_open=False
+        ),
+        "reference": _Key("reference"),
+        "markers": _q(
+            "m",
+            0.0,
+            10.0,
+            'give the side of the markers\' black square in metres (e.g. 0.05) or "50 mm"',
+        ),
+        "marker_dictionary": _Key("dictionary"),
+        "marker_layout": _Key("path"),
+        "marker_frame": _Key("int", lo=0, hi=10**9),
+        "lens": _Key("path"),
+        "scale_uncertainty": _u(
+            "dimensionless",
+            0.5,
+            "give the relative standard uncertainty of the known length as a fraction "
+            '(0.001 for 0.1 %) or "0.1 %"',
+        ),
     },
     "specification": {
         "drag_coefficient": _Key("qty", "dimensionless", 0.0, 100.0, "the stated Cd"),
@@ -568,12 +622,39 @@ def _check_value(where: _Where, sec: str, idx, key: str, spec: _Key, raw: Any, f
             _fail(f"{loc}: expected a file path in quotes, got {raw!r}.")
         p = Path(raw).expanduser()
         return p if p.is_absolute() else (folder / p)
-    if kind == "point":
-        ok = isinstance(raw, list) and len(raw) == 2
-        ok = ok and all(isinstance(v, int | float) and not isinstance(v, bool) for v in raw)
-        if not ok:
-            _fail(f"{loc}: expected two numbers, got {raw!r}; write e.g. {key} = [0.0, 0.0].")
-        return (float(raw[0]), float(raw[1]))
+    if kind in ("point", "reference"):
+        n = 2 if kind == "point" else 5
+        vals = _number_list(raw, n)
+        if vals is None:
+            if kind == "point":
+                _fail(
+                    f"{loc}: expected two numbers, got {raw!r}; write e.g. {key} = [0.0, 0.0] "
+                    f'or {key} = "0.0,0.0".'
+                )
+            _fail(
+                f"{loc}: expected X1,Y1,X2,Y2,METRES (two image points in px, y down, and "
+                f"their distance apart in m), got {raw!r}; write e.g. "
+                f'{key} = "102.5,640,1180,655.5,1.000".'
+            )
+        if kind == "reference" and not vals[4] > 0:
+            _fail(
+                f"{loc}: the distance between the two points must be > 0 m, got {vals[4]:g}; "
+                f"give the measured distance in metres as the fifth number."
+            )
+        return tuple(vals)
+    if kind == "dictionary":
+        from fitdrag.video.calibration import marker_dictionaries
+
+        name = raw.strip().upper() if isinstance(raw, str) else ""
+        if name and not name.startswith("DICT_"):
+            name = "DICT_" + name
+        names = marker_dictionaries()
+        if name not in names:
+            _fail(
+                f"{loc}: unknown ArUco dictionary {raw!r}; use one of {', '.join(names)} "
+                f'(e.g. "DICT_4X4_50").'
+            )
+        return name
     # quantities
     unit = spec.unit
     show = _SHOW.get(unit, unit)
@@ -612,6 +693,24 @@ def _check_value(where: _Where, sec: str, idx, key: str, spec: _Key, raw: Any, f
             f"{loc}: {v:g}{unit_txt} is outside the plausible range ({rng}); {spec.hint or 'check the unit'}."
         )
     return v
+
+
+def _number_list(raw: Any, n: int) -> list[float] | None:
+    """``n`` finite numbers from a TOML array or a text "a,b,..."; None if not that."""
+    if isinstance(raw, str):
+        try:
+            vals = [float(v) for v in raw.replace(";", ",").split(",")]
+        except ValueError:
+            return None
+    elif isinstance(raw, list) and all(
+        isinstance(v, int | float) and not isinstance(v, bool) for v in raw
+    ):
+        vals = [float(v) for v in raw]
+    else:
+        return None
+    if len(vals) != n or not all(math.isfinite(v) for v in vals):
+        return None
+    return vals
 
 
 def _parse_table(where, sec, idx, table, folder) -> dict:
@@ -948,6 +1047,11 @@ def _throws(where, items, folder, check_files):
     for i, t in enumerate(items):
         if not isinstance(t, dict):
             _fail(f"{where.section('throws', i)}: expected a table.")
+        if "fps" in t:
+            _fail(
+                f"{where.key('throws', i, 'fps')}: unknown key; every throw's frame rate is "
+                f"[camera] fps (with fps_uncertainty); remove fps here."
+            )
         d = _parse_table(where, "throws", i, t, folder)
         has_t, has_f = "track" in d, "footage" in d
         if has_t == has_f:
@@ -968,14 +1072,70 @@ def _throws(where, items, folder, check_files):
                 _fail(f"{where.key('throws', i, kind)}: {str(p)!r} is a folder, not a CSV file.")
         label = d.pop("label", None) or p.name
         if kind == "footage":
-            extra = sorted(k for k in d if k in CSV_OPTIONS)
+            extra = sorted(k for k in d if k in CSV_OPTIONS and k not in FOOTAGE_OPTIONS)
             if extra:
                 _fail(
                     f"{where.key('throws', i, extra[0])}: is a track CSV option; footage "
                     f"throws do not take it."
                 )
+            _footage_options(where, i, d, folder, check_files)
+        else:
+            extra = sorted(k for k in d if k in FOOTAGE_OPTIONS and k not in CSV_OPTIONS)
+            if extra:
+                _fail(
+                    f"{where.key('throws', i, extra[0])}: is a footage option; track CSV "
+                    f'throws do not take it (use it with footage = "file.avi").'
+                )
         out.append(ThrowSpec(kind=kind, path=p, label=label, options=d, line=line))
     return tuple(out)
+
+
+def _footage_options(where, i, d, folder, check_files) -> None:
+    """Check a footage throw's calibration options (exactly one calibration, and only the
+    options that go with it) and that its lens and layout files exist."""
+    sec = "throws"
+    given = [k for k in FOOTAGE_CALIBRATIONS if k in d]
+    if not given:
+        _fail(
+            f"{where.key(sec, i, 'footage')}: no calibration; give exactly one of "
+            f'scale = M_PER_PX (with origin = "X,Y" in px), '
+            f'reference = "X1,Y1,X2,Y2,METRES" or markers = SIDE_M (the ArUco markers\' '
+            f"side in m)."
+        )
+    if len(given) > 1:
+        first, second = sorted(given, key=lambda k: where.keys.get((sec, i, k)) or 0)[:2]
+        _fail(
+            f"{where.key(sec, i, second)}: {first} is given too; give exactly one of scale, "
+            f"reference or markers."
+        )
+    how = given[0]
+    if how == "markers":
+        for k in ("origin", "rotation"):
+            if k in d:
+                _fail(
+                    f"{where.key(sec, i, k)}: applies to scale and reference only; with markers "
+                    f"the markers set the origin and the horizontal (give a marker_layout for a "
+                    f"world frame of your own)."
+                )
+    else:
+        for k in ("marker_dictionary", "marker_layout", "marker_frame"):
+            if k in d:
+                _fail(
+                    f"{where.key(sec, i, k)}: applies to markers only; remove it or calibrate "
+                    f"with markers = SIDE_M."
+                )
+    if "stop" in d and d["stop"] <= d.get("start", 0):
+        _fail(
+            f"{where.key(sec, i, 'stop')}: {d['stop']} is not after start {d.get('start', 0)}; "
+            f"stop is the first frame not read, so it must be larger than start."
+        )
+    if check_files:
+        for k in ("marker_layout", "lens"):
+            if k in d and not d[k].is_file():
+                raise FileNotFoundError(
+                    f"{where.key(sec, i, k)}: no such file {str(d[k])!r}; paths are relative "
+                    f"to the job file's folder {str(folder)!r}."
+                )
 
 
 def _specification(where, d, present):
@@ -1087,7 +1247,10 @@ height = 400                      # m
 fps = 500                         # Hz, camera frame rate
 fps_uncertainty = 0.05            # Hz
 scale_relative_uncertainty = 0.002   # -, relative standard uncertainty of the track's
-                                     #    length scale (calibration target)
+                                     #    length scale (calibration target); required
+                                     #    with track CSVs.  Footage throws bring their
+                                     #    own from their calibration; given here, this
+                                     #    value is used for them instead.
 
 # One [[throws]] table per throw; all throws share the drag coefficient.
 [[throws]]
@@ -1101,6 +1264,23 @@ track = "throw1.csv"              # a track CSV: columns t [s], x, y [m] (world,
 
 # [[throws]]
 # track = "throw2.csv"
+
+# A throw may be footage instead: it is tracked and calibrated as 'fitdrag track' does,
+# at the frame rate of [camera].  Give exactly one of markers, scale or reference.
+# [[throws]]
+# footage = "throw3.avi"          # video file, or folder of numbered frames
+# markers = 0.050                 # m, side of the ArUco markers' black square ("50 mm")
+# marker_dictionary = "DICT_4X4_50"
+# marker_layout = "wall.csv"      # id,x_m,y_m of each marker's lower-left corner [m]
+# marker_frame = 0                # frame to find the markers in (default: start)
+# scale = 0.00125                 # m/px, instead of markers: size of one pixel
+# origin = "12,790"               # px (x right, y down): image point of the world origin
+# rotation = 0.0                  # degrees, counter-clockwise on screen: true horizontal
+# reference = "102.5,640,1180,655.5,1.000"   # instead: two image points [px], distance [m]
+# scale_uncertainty = 0.001       # -, relative standard uncertainty of the known length
+# lens = "lens.json"              # lens model from 'fitdrag calibrate-lens'
+# start = 0                       # first frame to track
+# stop = 400                      # frame to stop before (default: the end)
 
 [specification]
 drag_coefficient = 0.47           # stated Cd

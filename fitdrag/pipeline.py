@@ -5,7 +5,9 @@ certificate and the record; :func:`issue` does those):
 
 1. :func:`fitdrag.jobs.load_job` — read and validate the job file (nothing is written if it
    is wrong);
-2. read every throw's track, fit them together (:func:`fitdrag.fitting.fit_tracks`);
+2. read every throw's track (:func:`read_throws`: a track CSV, or footage tracked and
+   calibrated by :func:`fitdrag.video.tracking.track_footage`), fit them together
+   (:func:`fitdrag.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
    (:func:`fitdrag.budget.budget_from_model` over :class:`fitdrag.budget.DragRefitModel`),
    and optionally the Monte Carlo check (:func:`fitdrag.budget.monte_carlo`);
@@ -18,6 +20,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 import warnings
 from dataclasses import dataclass
 from pathlib import Path
@@ -43,21 +46,49 @@ class FitFailed(RuntimeError):
     """The fit, or a re-fit of the budget, did not converge."""
 
 
-def read_throws(job) -> tuple[list, dict]:
-    """Tracks of every throw, and the SHA-256 of the job file and of every input file."""
-    from fitdrag.tracks import file_sha256, read_track
+def read_throws(job, *, progress: bool = False) -> tuple[list, dict]:
+    """Tracks of every throw, and the SHA-256 of the job file and of every input file.
+
+    A track throw is read with :func:`fitdrag.tracks.read_track`; a footage throw is
+    tracked and calibrated with :func:`fitdrag.video.tracking.track_footage` at the frame
+    rate of ``[camera] fps`` (its track's ``meta`` holds ``source``, ``sha256`` and the
+    calibration's ``scale_relative_uncertainty``).  The footage (see
+    :func:`fitdrag.video.tracking.footage_sha256`), and its lens and marker-layout files,
+    are hashed too.  ``progress`` shows a progress bar while long footage is tracked.
+
+    Raises
+    ------
+    ValueError, FileNotFoundError
+        A file that cannot be read or tracked; a footage throw's message starts with the
+        job file, the line and the throw.
+    """
+    from fitdrag.tracks import Track, file_sha256, read_track
 
     hashes = {str(job.path): file_sha256(job.path)}
     tracks = []
     fps = job.camera["fps"].value
-    for th in job.throws:
-        if th.kind == "footage":
-            raise ValueError(
-                f"{job.path.name}, line {th.line}: [[throws]] footage: footage throws are not "
-                f"supported by 'fitdrag run' in this version; track the footage first and give "
-                f'the track CSV with track = "...".'
-            )
+    for i, th in enumerate(job.throws):
         opts = dict(th.options)
+        if th.kind == "footage":
+            from fitdrag.video.tracking import footage_sha256, track_footage
+
+            try:
+                ft = track_footage(th.path, fps=fps, progress=progress, **opts)
+            except (ValueError, FileNotFoundError) as exc:
+                loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
+                msg = f"{loc}: [[throws]] #{i + 1} footage: {_job_wording(str(exc))}"
+                if isinstance(exc, FileNotFoundError):
+                    raise FileNotFoundError(msg) from None
+                raise ValueError(msg) from None
+            digest = footage_sha256(th.path)
+            tr = ft.track
+            meta = {**tr.meta, "source": str(th.path), "sha256": digest}
+            tracks.append(Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta))
+            hashes[str(th.path)] = digest
+            for key in ("marker_layout", "lens"):
+                if opts.get(key) is not None:
+                    hashes[str(opts[key])] = file_sha256(opts[key])
+            continue
         with warnings.catch_warnings():
             # the camera's frame rate is offered for files without a time column only
             warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
@@ -65,6 +96,50 @@ def read_throws(job) -> tuple[list, dict]:
         tracks.append(tr)
         hashes[str(th.path)] = file_sha256(th.path)
     return tracks, hashes
+
+
+# command-line spellings in track_footage's messages -> the job file's keys
+_OPTION_KEYS = re.compile(
+    r"--(scale-uncertainty|marker-dictionary|marker-layout|marker-frame|markers|reference|"
+    r"origin|rotation|scale|lens|start|stop)\b"
+)
+
+
+def _job_wording(message: str) -> str:
+    """A footage message with the job file's key names (``marker_frame``) for the command
+    line's options (``--marker-frame``)."""
+    return _OPTION_KEYS.sub(lambda m: m.group(1).replace("-", "_"), message)
+
+
+def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
+    """Relative standard uncertainty of the length scale for the budget, and its source.
+
+    ``[camera] scale_relative_uncertainty``, when the job states it, applies to every throw
+    (for footage throws it overrides their calibrations).  Otherwise (every throw is
+    footage: the job file requires the key with track CSVs) it is the largest of the
+    footage calibrations' ``scale_relative_uncertainty``: the budget has one length-scale
+    input shared by all throws, and the largest is the cautious choice.
+
+    Returns
+    -------
+    (float, str)
+        The relative standard uncertainty [1] and a few words on where it comes from.
+    """
+    stated = job.camera.get("scale_relative_uncertainty")
+    if stated is not None:
+        return float(stated), "stated in the job file ([camera] scale_relative_uncertainty)"
+    vals = [
+        float(tr.meta["scale_relative_uncertainty"])
+        for th, tr in zip(job.throws, tracks, strict=True)
+        if th.kind == "footage" and "scale_relative_uncertainty" in tr.meta
+    ]
+    if len(vals) != len(job.throws):
+        raise ValueError(
+            f"{job.path.name}: [camera] scale_relative_uncertainty: missing; give the relative "
+            f"standard uncertainty of the tracks' length scale (e.g. 0.002)."
+        )
+    how = "footage calibration" if len(vals) == 1 else "largest of the footage calibrations"
+    return max(vals), how
 
 
 def _vu(m) -> dict:
@@ -158,7 +233,7 @@ def measure(
     from fitdrag.report.certificate import format_with_uncertainty, formatter_for
     from fitdrag.verdict import decide
 
-    tracks, hashes = read_throws(job)
+    tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()
     air = job.make_air()
     fopts = job.fit_options()
@@ -166,7 +241,8 @@ def measure(
     if not fit.success:
         raise FitFailed(f"the fit did not converge: {fit.message}")
 
-    inputs = job.input_quantities()
+    u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
+    inputs = job.input_quantities(scale_relative_uncertainty=u_scale)
     nominal = {q.name: q.value for q in inputs}
     model = DragRefitModel(
         fit, tracks, nominal, length=job.specimen.get("length"), viscosity=air.viscosity
@@ -256,8 +332,10 @@ def measure(
         "conditions": conditions,
         "camera": {
             "fps": _vu(job.camera["fps"]),
-            "scale_relative_uncertainty": job.camera.get("scale_relative_uncertainty"),
+            "scale_relative_uncertainty": u_scale,
+            "scale_relative_uncertainty_source": u_scale_source,
         },
+        "footage": _footage_report(job, tracks),
         "method": _method(fit_dict, fit, budget, mc),
         "result": {
             "drag_coefficient": cd,
@@ -281,6 +359,20 @@ def measure(
         "outputs": {},
     }
     return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, report)
+
+
+def _footage_report(job, tracks) -> list[dict]:
+    """Per footage throw: the file, its SHA-256 and how it was tracked and calibrated."""
+    out = []
+    for i, (th, tr) in enumerate(zip(job.throws, tracks, strict=True)):
+        if th.kind != "footage":
+            continue
+        d = {"throw": i + 1, "label": th.label, "path": str(th.path)}
+        for k, v in tr.meta.items():
+            if k != "source" and isinstance(v, str | int | float | bool):
+                d[k] = v
+        out.append(d)
+    return out
 
 
 # ---------------------------------------------------------------------------------------------

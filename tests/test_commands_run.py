@@ -204,3 +204,148 @@ def test_new_job_command(tmp_path, capsys):
     assert p.read_text() == TEMPLATE
     assert main(["new-job", str(p)]) == 2
     assert "already exists" in capsys.readouterr().err
+
+
+# ---------------------------------------------------------------------------------------------
+# footage throws
+# ---------------------------------------------------------------------------------------------
+
+CLIP_FPS = 200.0  # capture rate [frames/s]
+CLIP_PX_PER_M = 200.0  # 5 mm per pixel in the plane of flight
+CLIP_ORIGIN_PX = (40.0, 250.0)  # image point of world (0, 0)
+CLIP_MARKER_Y = -0.15  # world y of the markers' lower-left corners [m]
+CLIP_LAUNCH = (0.1, 0.3, 3.0, 2.5)  # x0, y0 [m], vx0, vy0 [m/s]
+
+
+@pytest.fixture(scope="module")
+def clip(tmp_path_factory):
+    """80 frames (400x300 px) of the 40 mm, 2.7 g training ball (true Cd 0.47) flying
+    along the independent DOP853 integration (tests/reference.py; ISA air), seen by a
+    camera square to the plane of flight, with two ArUco markers of 0.2 m side; the
+    container says 30 frames/s (a playback rate), the job says 200."""
+    from scipy.integrate import solve_ivp
+
+    from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_video
+
+    sc = ref.Scenario(cd=TRUE_CD)
+    sol = solve_ivp(
+        lambda _t, s: ref.rhs(s, sc.body, ref.RHO, TRUE_CD), (0.0, 0.5), CLIP_LAUNCH,
+        method="DOP853", rtol=1e-12, atol=1e-12, dense_output=True,
+    )  # fmt: skip
+
+    def world(t):
+        s = sol.sol(np.asarray(t, dtype=float))
+        return s[0], s[1]
+
+    h = np.array([[CLIP_PX_PER_M, 0, CLIP_ORIGIN_PX[0]], [0, -CLIP_PX_PER_M, CLIP_ORIGIN_PX[1]],
+                  [0, 0, 1.0]])  # fmt: skip
+    markers = [MarkerPlacement(0, 0.0, CLIP_MARKER_Y, 0.2),
+               MarkerPlacement(1, 1.4, CLIP_MARKER_Y, 0.2)]  # fmt: skip
+    flight = render_flight(world, 80, CLIP_FPS, shape=(300, 400), radius_px=4.0, homography=h,
+                           trajectory_in_world=True, markers=markers, seed=5)  # fmt: skip
+    path = tmp_path_factory.mktemp("clip") / "clip.avi"
+    return write_video(flight.frames, path, 30.0)
+
+
+def _footage_job(folder, clip, **edits):
+    """Copy the clip into ``folder`` and write a job whose one throw is that footage, with
+    markers of 0.2 m side, in standard gravity, with no [camera] scale uncertainty."""
+    import shutil
+
+    shutil.copy(clip, folder / "clip.avi")
+    base = {
+        "fps = 400 ": f"fps = {CLIP_FPS:g} ",
+        "latitude = 47.0 ": "gravity = 9.80665\ngravity_uncertainty = 0.00005\n# latitude = 47.0 ",
+        "height = 400 ": "# height = 400 ",
+        "scale_relative_uncertainty = 0.002 ": "# scale_relative_uncertainty = 0.002 ",
+        'track = "throw1.csv"': 'footage = "clip.avi"\nmarkers = "200 mm"\n'
+        "scale_uncertainty = 0.0005",
+    }
+    base.update(edits)
+    p = folder / "job.toml"
+    p.write_text(_job_text(**base))
+    return p
+
+
+def test_footage_throw_end_to_end(clip, tmp_path, capsys):
+    """closed-form/independent: a job whose throw is footage (markers) runs end to end; Cd of
+    the independent DOP853 flight (true 0.47) is recovered within U; the footage's SHA-256
+    (hashlib) is in the JSON, the record and the certificate; the length scale's relative
+    uncertainty in the budget is the marker calibration's; the track equals the one
+    `fitdrag track` writes with the same calibration."""
+    from fitdrag.jobs import load_job
+    from fitdrag.pipeline import read_throws
+    from fitdrag.tracks import read_track
+
+    job = _footage_job(tmp_path, clip)
+    assert main(["run", str(job), "--quiet"]) == 0
+    number = f"FD-{_year()}-000001"
+    assert f"certificate {number} issued" in capsys.readouterr().out
+    outdir = tmp_path / "certificates"
+    rep = json.loads((outdir / f"{number}.json").read_text())
+    res = rep["result"]
+    assert abs(res["drag_coefficient"] - TRUE_CD) < res["expanded_uncertainty"]
+    assert abs(res["drag_coefficient"] / TRUE_CD - 1) < 0.01  # the issue's end-to-end target
+    job_hash = hashlib.sha256(job.read_bytes()).hexdigest()
+    clip_hash = hashlib.sha256((tmp_path / "clip.avi").read_bytes()).hexdigest()
+    assert rep["inputs"]["sha256"] == {str(job.resolve()): job_hash,
+                                       str((tmp_path / "clip.avi").resolve()): clip_hash}  # fmt: skip
+    assert Records(outdir / "records.sqlite").get(number).input_hashes == rep["inputs"]["sha256"]
+    (foot,) = rep["footage"]
+    assert foot["sha256"] == clip_hash and foot["calibration_method"] == "markers"
+    assert foot["marker_ids"] == "0 1" and foot["fps"] == CLIP_FPS
+    u_cal = foot["scale_relative_uncertainty"]
+    assert 0 < u_cal < 0.01
+    assert rep["camera"]["scale_relative_uncertainty"] == u_cal
+    assert rep["camera"]["scale_relative_uncertainty_source"] == "footage calibration"
+    line = {ln["name"]: ln for ln in rep["uncertainty_budget"]["lines"]}["length_scale"]
+    assert line["standard_uncertainty"] == pytest.approx(u_cal, rel=1e-12)
+    flat = " ".join(
+        " ".join(p.extract_text() for p in pypdf.PdfReader(str(outdir / f"{number}.pdf")).pages)
+        .split()
+    )  # fmt: skip
+    assert clip_hash in flat and job_hash in flat
+
+    csv = tmp_path / "clip_track.csv"
+    assert main(["track", str(tmp_path / "clip.avi"), "--fps", "200", "--markers", "0.2",
+                 "--scale-uncertainty", "0.0005", "-o", str(csv), "--no-progress"]) == 0  # fmt: skip
+    by_cli = read_track(csv)
+    (by_run,), _ = read_throws(load_job(job))
+    np.testing.assert_array_equal(by_run.t, by_cli.t)
+    np.testing.assert_array_equal(by_run.x, by_cli.x)
+    np.testing.assert_array_equal(by_run.y, by_cli.y)
+    assert by_run.meta["scale_relative_uncertainty"] == by_cli.meta["scale_relative_uncertainty"]
+
+
+def test_footage_scale_uncertainty_stated_in_the_job_wins(clip, tmp_path):
+    """regression: [camera] scale_relative_uncertainty, when stated, is used for footage
+    throws instead of their calibration's value."""
+    from fitdrag.jobs import load_job
+    from fitdrag.pipeline import length_scale_uncertainty, read_throws
+
+    job = load_job(_footage_job(
+        tmp_path, clip,
+        **{"scale_relative_uncertainty = 0.002 ": "scale_relative_uncertainty = 0.004 "},
+    ))  # fmt: skip
+    tracks, hashes = read_throws(job)
+    assert str((tmp_path / "clip.avi").resolve()) in hashes
+    u, source = length_scale_uncertainty(job, tracks)
+    assert u == 0.004 and "stated in the job file" in source
+    assert tracks[0].meta["scale_relative_uncertainty"] != 0.004
+
+
+def test_footage_error_names_the_throw_and_writes_nothing(clip, tmp_path, capsys):
+    """regression: markers of another dictionary are not found: exit 2, the message names
+    the job file, the line, the throw and the job file's keys; nothing is written."""
+    job = _footage_job(tmp_path, clip, **{'markers = "200 mm"': 'markers = "200 mm"\n'
+                                          'marker_dictionary = "DICT_5X5_50"'})  # fmt: skip
+    assert main(["run", str(job)]) == 2
+    err = capsys.readouterr().err
+    n = next(i for i, ln in enumerate(job.read_text().splitlines(), 1) if ln.startswith("footage"))
+    assert (
+        f"fitdrag run: error: job.toml, line {n}: [[throws]] #1 footage: markers: no "
+        f"DICT_5X5_50 marker found in the image (400x300 px); check the dictionary "
+        f"(marker_dictionary)" in err
+    ), err
+    assert "choose another with marker_frame)" in err
+    assert sorted(x.name for x in tmp_path.iterdir()) == ["clip.avi", "job.toml"]

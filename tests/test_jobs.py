@@ -256,3 +256,174 @@ def test_body_specimen(job_dir):
     sp = job.make_specimen()
     assert sp.area == 0.00126 and sp.volume == 3.35e-5
     assert [q.name for q in job.input_quantities()][:3] == ["mass", "area", "volume"]
+
+
+# ---------------------------------------------------------------------------------------------
+# footage throws
+# ---------------------------------------------------------------------------------------------
+
+_CAMERA_U = (
+    "scale_relative_uncertainty = 0.002   # -, relative standard uncertainty of the track's\n"
+)
+
+
+@pytest.fixture
+def footage_dir(job_dir):
+    for name in ("clip.avi", "wall.csv", "lens.json"):
+        (job_dir / name).write_text("placeholder: the job file checks only that it exists\n")
+    return job_dir
+
+
+def _footage_job(lines: str, text: str = TEMPLATE) -> str:
+    """The template with its throw replaced by a footage throw with ``lines``."""
+    return _edit('track = "throw1.csv"', 'footage = "clip.avi"\n' + lines, text)
+
+
+def test_footage_throw_keys_parse(footage_dir):
+    """closed-form/independent: a footage throw's calibration keys arrive as
+    track_footage's keyword arguments, in SI (50 mm = 0.05 m; 0.1 % = 0.001; pint), with
+    paths relative to the job file; without a track CSV [camera] scale_relative_uncertainty
+    may be left out (the calibration brings its own)."""
+    text = _footage_job(
+        'markers = "50 mm"\nmarker_dictionary = "4x4_50"\nmarker_layout = "wall.csv"\n'
+        'marker_frame = 3\nlens = "lens.json"\nscale_uncertainty = "0.1 %"\nstart = 2\n'
+        'stop = 60\nlabel = "throw A"\n'
+        '\n[[throws]]\nfootage = "clip.avi"\nscale = 0.00125\norigin = "12,790"\n'
+        'rotation = "0.5 deg"\n'
+        '\n[[throws]]\nfootage = "clip.avi"\nreference = [1, 2, 3, 4, 0.5]\n'
+        '\n[[throws]]\nfootage = "clip.avi"\nreference = "102.5,640,1180,655.5,1.000"\n'
+        "origin = [0, 10]\n",
+        _edit(_CAMERA_U, ""),
+    )
+    job = load_job(_write(footage_dir, text))
+    a, b, c, d = job.throws
+    assert [t.kind for t in job.throws] == ["footage"] * 4
+    assert a.path == (footage_dir / "clip.avi").resolve() and a.label == "throw A"
+    assert a.line == _line(text, 'footage = "clip.avi"')
+    assert dict(a.options) == {
+        "markers": pytest.approx(0.05, rel=1e-12),
+        "marker_dictionary": "DICT_4X4_50",
+        "marker_layout": (footage_dir / "wall.csv").resolve(),
+        "marker_frame": 3,
+        "lens": (footage_dir / "lens.json").resolve(),
+        "scale_uncertainty": pytest.approx(0.001, rel=1e-12),
+        "start": 2,
+        "stop": 60,
+    }
+    assert dict(b.options) == {"scale": 0.00125, "origin": (12.0, 790.0),
+                               "rotation": pytest.approx(0.5)}  # fmt: skip
+    assert dict(c.options) == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5)}
+    assert dict(d.options) == {"reference": (102.5, 640.0, 1180.0, 655.5, 1.0),
+                               "origin": (0.0, 10.0)}  # fmt: skip
+    assert "scale_relative_uncertainty" not in job.camera
+    # the track_footage signature takes every option a footage throw may carry
+    import inspect
+
+    from fitdrag.jobs import FOOTAGE_OPTIONS
+    from fitdrag.video.tracking import track_footage
+
+    params = inspect.signature(track_footage).parameters
+    assert set(FOOTAGE_OPTIONS) <= set(params)
+
+
+@pytest.mark.parametrize(
+    "lines, start, message",
+    [
+        (
+            "start = 2\n",
+            'footage = "clip.avi"',
+            r"\[\[throws\]\] #1 footage: no calibration; give exactly one of scale = M_PER_PX "
+            r'\(with origin = "X,Y" in px\), reference = "X1,Y1,X2,Y2,METRES" or markers = '
+            r"SIDE_M \(the ArUco markers' side in m\)\.",
+        ),
+        (
+            "scale = 0.001\nmarkers = 0.05\n",
+            "markers",
+            r"\[\[throws\]\] #1 markers: scale is given too; give exactly one of scale, "
+            r"reference or markers\.",
+        ),
+        (
+            'markers = 0.05\norigin = "1,2"\n',
+            "origin",
+            r"\[\[throws\]\] #1 origin: applies to scale and reference only; with markers the "
+            r"markers set the origin",
+        ),
+        (
+            "scale = 0.001\nmarker_frame = 4\n",
+            "marker_frame",
+            r"\[\[throws\]\] #1 marker_frame: applies to markers only; remove it or calibrate "
+            r"with markers = SIDE_M\.",
+        ),
+        (
+            "markers = 0.05\ncolour = 1\n",
+            "colour",
+            r"\[\[throws\]\] #1 colour: unknown key; valid keys in \[\[throws\]\] #1 are comment, "
+            r"delimiter, footage, frame_col, label, lens, marker_dictionary",
+        ),
+        (
+            "markers = 0.05\nfps = 1000\n",
+            "fps = 1000",
+            r"\[\[throws\]\] #1 fps: unknown key; every throw's frame rate is \[camera\] fps",
+        ),
+        (
+            "markers = 0.05\ny_down = true\n",
+            "y_down",
+            r"\[\[throws\]\] #1 y_down: is a track CSV option; footage throws do not take it\.",
+        ),
+        (
+            'markers = "50 kg"\n',
+            "markers",
+            r"\[\[throws\]\] #1 markers: unit 'kg' is not a unit of length in '50 kg'",
+        ),
+        (
+            'reference = "1,2,3,0.5"\n',
+            "reference",
+            r"\[\[throws\]\] #1 reference: expected X1,Y1,X2,Y2,METRES \(two image points in "
+            r"px, y down, and their distance apart in m\), got '1,2,3,0.5'",
+        ),
+        (
+            'markers = 0.05\nmarker_dictionary = "DICT_9X9_1"\n',
+            "marker_dictionary",
+            r"\[\[throws\]\] #1 marker_dictionary: unknown ArUco dictionary 'DICT_9X9_1'; use "
+            r"one of .*DICT_4X4_50",
+        ),
+        (
+            "markers = 0.05\nstart = 50\nstop = 50\n",
+            "stop",
+            r"\[\[throws\]\] #1 stop: 50 is not after start 50; stop is the first frame not "
+            r"read",
+        ),
+        (
+            "scale = 0.001\nscale_uncertainty = 0.9\n",
+            "scale_uncertainty",
+            r"\[\[throws\]\] #1 scale_uncertainty: 0.9 is implausibly large \(limit 0.5\)",
+        ),
+    ],
+)
+def test_footage_throw_errors_name_the_key_and_line(footage_dir, lines, start, message):
+    """regression: a footage throw without a calibration, with two, with options of another
+    calibration or of track CSVs, or with an unknown or bad key fails naming the line."""
+    text = _footage_job(lines)
+    n = _line(text, start)
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: {message}"):
+        load_job(_write(footage_dir, text))
+
+
+def test_footage_files_and_track_throw_options(footage_dir):
+    """regression: a footage throw's missing lens or layout file is a FileNotFoundError
+    naming its line; a footage option on a track CSV throw is refused; track throws still
+    need [camera] scale_relative_uncertainty."""
+    text = _footage_job('markers = 0.05\nlens = "nolens.json"\n')
+    with pytest.raises(FileNotFoundError, match=rf"^job\.toml, line {_line(text, 'lens')}: "
+                       r"\[\[throws\]\] #1 lens: no such file '.*nolens\.json'; paths are "
+                       r"relative to the job file's folder"):  # fmt: skip
+        load_job(_write(footage_dir, text))
+    assert load_job(_write(footage_dir, text), check_files=False).throws[0].kind == "footage"
+    text = _edit('track = "throw1.csv"', 'track = "throw1.csv"\nmarkers = 0.05')
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {_line(text, 'markers')}: "
+                       r"\[\[throws\]\] #1 markers: is a footage option; track CSV throws do "
+                       r"not take it"):  # fmt: skip
+        load_job(_write(footage_dir, text))
+    text = _edit(_CAMERA_U, "", TEMPLATE + '\n[[throws]]\nfootage = "clip.avi"\nscale = 1e-3\n')
+    with pytest.raises(ValueError, match=r"\[camera\] scale_relative_uncertainty: missing"):
+        load_job(_write(footage_dir, text))

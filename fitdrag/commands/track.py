@@ -1,15 +1,21 @@
-"""``fitdrag track``: footage -> calibrated track CSV (frame, t, x, y in metres, y up)."""
+"""``fitdrag track``: footage -> calibrated track CSV (frame, t, x, y in metres, y up).
+
+A thin layer over :func:`fitdrag.video.tracking.track_footage`: parse the options, track,
+write the CSV (and the preview picture) atomically, print a summary.
+"""
 
 from __future__ import annotations
 
 import argparse
-import math
 import os
 import sys
 import tempfile
 from pathlib import Path
 
 import numpy as np
+
+# option parsers, re-exported for callers that import them from here
+from fitdrag.video.tracking import parse_origin, parse_reference  # noqa: F401
 
 NAME = "track"
 
@@ -88,56 +94,6 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 # ------------------------------------------------------------------------------------------
-# Parsing of option texts
-# ------------------------------------------------------------------------------------------
-
-
-def _numbers(text: str) -> list[float] | None:
-    try:
-        vals = [float(v) for v in str(text).replace(";", ",").split(",")]
-    except ValueError:
-        return None
-    return vals if all(math.isfinite(v) for v in vals) else None
-
-
-def parse_reference(text: str) -> tuple[float, float, float, float, float]:
-    """Parse ``--reference X1,Y1,X2,Y2,METRES`` (pixels y down, distance in metres)."""
-    vals = _numbers(text)
-    if vals is None or len(vals) != 5:
-        raise ValueError(
-            f"--reference: expected X1,Y1,X2,Y2,METRES (five numbers separated by commas: two "
-            f"image points in px and their distance apart in m), got {text!r}; e.g. "
-            f"--reference 102.5,640,1180,655.5,1.000."
-        )
-    return vals[0], vals[1], vals[2], vals[3], vals[4]
-
-
-def parse_origin(text: str) -> tuple[float, float]:
-    """Parse ``--origin X_PX,Y_PX``."""
-    vals = _numbers(text)
-    if vals is None or len(vals) != 2:
-        raise ValueError(
-            f"--origin: expected X_PX,Y_PX (two numbers separated by a comma, image pixels, "
-            f"y down), got {text!r}; e.g. --origin 12,790."
-        )
-    return vals[0], vals[1]
-
-
-def _ranges(frames) -> str:
-    """Compact text of frame numbers: '3-7 12 15-16'."""
-    frames = sorted(int(f) for f in frames)
-    out = []
-    i = 0
-    while i < len(frames):
-        j = i
-        while j + 1 < len(frames) and frames[j + 1] == frames[j] + 1:
-            j += 1
-        out.append(str(frames[i]) if i == j else f"{frames[i]}-{frames[j]}")
-        i = j + 1
-    return " ".join(out)
-
-
-# ------------------------------------------------------------------------------------------
 # Output
 # ------------------------------------------------------------------------------------------
 
@@ -159,42 +115,6 @@ def _check_output(path: str | None, option: str, force: bool) -> Path | None:
     if p.exists() and not force:
         raise OutputExistsError(f"{option}: {p} exists; pass --force to overwrite it.")
     return p
-
-
-def _header_value(v) -> str | None:
-    if isinstance(v, bool):
-        return str(v).lower()
-    if isinstance(v, int | np.integer):
-        return str(int(v))
-    if isinstance(v, float | np.floating):
-        return repr(float(v)) if math.isfinite(v) else None
-    if isinstance(v, str):
-        return " ".join(v.splitlines()).strip()
-    return None
-
-
-def track_csv_text(meta: dict, frame, t, x, y, x_px, y_px, quality, sigma_px) -> str:
-    """The track CSV: ``# key: value`` header lines, then frame,t,x,y,x_px,y_px,quality,
-    sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down)."""
-    from fitdrag import __version__
-
-    head = {
-        "format": "fitdrag track; t [s]; x, y [m]; world frame, y up; x_px, y_px, sigma_px "
-        "[px], image, y down",
-        "written_by": f"fitdrag {__version__} (fitdrag track)",
-    }
-    for k, v in meta.items():
-        sv = _header_value(v)
-        if sv is not None and ":" not in k and k not in head:
-            head[k] = sv
-    lines = [f"# {k}: {v}".rstrip() for k, v in head.items()]
-    lines.append("frame,t,x,y,x_px,y_px,quality,sigma_px")
-    for row in zip(frame, t, x, y, x_px, y_px, quality, sigma_px):
-        f, tt, xx, yy, u, v, q, s = row
-        lines.append(
-            f"{int(f)},{float(tt)!r},{float(xx)!r},{float(yy)!r},{u:.4f},{v:.4f},{q:.3f},{s:.4f}"
-        )
-    return "\n".join(lines) + "\n"
 
 
 def _write_atomic(path: Path, write, force: bool, check=None) -> None:
@@ -282,175 +202,53 @@ def preview_figure(image, det, cal, frame_number: int, summary: str):
 # ------------------------------------------------------------------------------------------
 
 
-def _calibration(args, source, lens):
-    from fitdrag.video.calibration import (
-        calibration_from_markers,
-        calibration_from_reference,
-        calibration_from_scale,
-        load_marker_layout,
-    )
-
-    h, _w = source.shape
-    u = args.scale_uncertainty
-    if args.markers is not None:
-        if args.origin is not None or args.rotation:
-            raise ValueError(
-                "--origin/--rotation: they apply to --scale and --reference only; with "
-                "--markers the markers set the origin and the horizontal (give a "
-                "--marker-layout for a world frame of your own)."
-            )
-        layout = load_marker_layout(args.marker_layout) if args.marker_layout else None
-        n = args.start if args.marker_frame is None else args.marker_frame
-        image = source.read(n)
-        try:
-            cal = calibration_from_markers(
-                image,
-                args.markers,
-                args.marker_dictionary,
-                layout=layout,
-                lens=lens,
-                size_relative_uncertainty=u,
-            )
-        except ValueError as exc:
-            if str(exc).startswith("markers: no "):
-                raise ValueError(
-                    f"{exc} (looked in frame {n} of {source.name}; choose another with "
-                    f"--marker-frame)"
-                ) from None
-            raise
-        return cal, n
-    if args.marker_layout or args.marker_frame is not None:
-        raise ValueError(
-            "--marker-layout/--marker-frame: they apply to --markers only; drop them or "
-            "calibrate with --markers SIZE_M."
-        )
-    origin = parse_origin(args.origin) if args.origin is not None else None
-    if args.reference is not None:
-        x1, y1, x2, y2, d = parse_reference(args.reference)
-        cal = calibration_from_reference(
-            x1, y1, x2, y2, d, origin=origin, lens=lens, rotation_deg=args.rotation,
-            distance_relative_uncertainty=u,
-        )  # fmt: skip
-        return cal, None
-    if origin is None:
-        origin = (0.0, float(h - 1))  # the image's lower-left pixel
-    cal = calibration_from_scale(
-        args.scale, origin=origin, rotation_deg=args.rotation, lens=lens,
-        scale_relative_uncertainty=u,
-    )  # fmt: skip
-    return cal, None
-
-
 def run(args) -> int:
-    from fitdrag.tracks import MIN_POINTS, Track, read_track
-    from fitdrag.video.detect import detect_specimen
-    from fitdrag.video.lens import load_lens
-    from fitdrag.video.sources import check_frame_rate, open_source
+    from fitdrag.tracks import read_track
+    from fitdrag.video.sources import open_source
+    from fitdrag.video.tracking import footage_track_csv_text, track_footage
 
     out = _check_output(args.output, "-o/--output", args.force)
     preview = _check_output(args.preview, "--preview", args.force)
     if preview is not None and preview.resolve() == out.resolve():
         raise ValueError("--preview: the same file as --output; give the picture its own name.")
-    if args.scale_uncertainty is None or not (0.0 <= args.scale_uncertainty < 1.0):
-        raise ValueError(
-            f"--scale-uncertainty: a relative standard uncertainty must be >= 0 and < 1, got "
-            f"{args.scale_uncertainty!r}; e.g. 0.001 for 0.1 %."
-        )
-    lens = load_lens(args.lens) if args.lens else None
-    source = open_source(args.footage)
-    try:
-        fps = check_frame_rate(source, args.fps)
-        h, w = source.shape
-        if lens is not None and tuple(lens.image_size) != (w, h):
-            raise ValueError(
-                f"--lens: the lens model is for {lens.image_size[0]}x{lens.image_size[1]} px "
-                f"images but the footage is {w}x{h} px; calibrate the lens at the footage's "
-                f"resolution."
-            )
-        cal, marker_frame = _calibration(args, source, lens)
-        n_frames = source.n_frames
-        progress = not args.no_progress and (n_frames is None or n_frames > 200)
-        det = detect_specimen(source, start=args.start, stop=args.stop, progress=progress)
-        n_found = len(det)
-        if n_found < MIN_POINTS:
-            raise ValueError(
-                f"{source.name}: the specimen was found in {n_found} frame(s), at least "
-                f"{MIN_POINTS} are needed for a track; check the frame range (--start/--stop) "
-                f"and that the specimen moves against a steady background."
-            )
-        x, y = cal.pixel_to_world(det.x_px, det.y_px)
-        t = np.asarray(det.frame, dtype=float) / fps
-        missing = det.missing_frames
-        meta = {
-            "footage": str(source.name),
-            "fps": float(fps),
-            "frame_range": f"{int(det.frame[0])}-{int(det.frame[-1])}",
-            "frames_detected": int(n_found),
-            "frames_missing": int(missing.size),
-        }
-        if missing.size:
-            text = _ranges(missing)
-            meta["missing_frames"] = text if len(text) <= 400 else text[:400] + " ..."
-        meta.update(cal.to_meta())
-        if args.lens:
-            meta["lens_file"] = str(args.lens)
-        if marker_frame is not None:
-            meta["marker_frame"] = int(marker_frame)
-        Track(t, x, y, frame=det.frame, meta=meta)  # validates before anything is written
-        text = track_csv_text(
-            meta, det.frame, t, x, y, det.x_px, det.y_px, det.quality, det.sigma_px
-        )
-        _write_atomic(
-            out,
-            lambda p: Path(p).write_text(text, encoding="utf-8"),
-            args.force,
-            check=read_track,  # the file must load as a track
-        )
-        summary = _summary(args, source, det, cal, fps)
-        if preview is not None:
-            n_show = marker_frame if marker_frame is not None else int(det.frame[n_found // 2])
+    ft = track_footage(
+        args.footage,
+        fps=args.fps,
+        start=args.start,
+        stop=args.stop,
+        scale=args.scale,
+        origin=args.origin,
+        rotation=args.rotation,
+        reference=args.reference,
+        markers=args.markers,
+        marker_dictionary=args.marker_dictionary,
+        marker_layout=args.marker_layout or None,
+        marker_frame=args.marker_frame,
+        lens=args.lens or None,
+        scale_uncertainty=args.scale_uncertainty,
+        progress=not args.no_progress,
+    )
+    text = footage_track_csv_text(ft)
+    _write_atomic(
+        out,
+        lambda p: Path(p).write_text(text, encoding="utf-8"),
+        args.force,
+        check=read_track,  # the file must load as a track
+    )
+    summary = ft.summary()
+    if preview is not None:
+        n_show = ft.preview_frame
+        with open_source(args.footage) as source:
             image = source.read(n_show)
-            fig = preview_figure(image, det, cal, n_show, summary.replace("\n  ", "\n"))
-            _write_atomic(preview, lambda p: fig.savefig(p, dpi=100, format="png"), args.force)
-    finally:
-        source.close()
+        fig = preview_figure(
+            image, ft.detections, ft.calibration, n_show, summary.replace("\n  ", "\n")
+        )
+        _write_atomic(preview, lambda p: fig.savefig(p, dpi=100, format="png"), args.force)
     print(summary)
     print(f"wrote {out}")
     if preview is not None:
         print(f"wrote {preview}")
     return 0
-
-
-def _summary(args, source, det, cal, fps) -> str:
-    n_found = len(det)
-    missing = det.missing_frames
-    lines = [
-        f"{source.name}: {n_found} frame(s) with the specimen, {missing.size} missing, "
-        f"frames {int(det.frame[0])}-{int(det.frame[-1])} at {fps:g} frames/s",
-    ]
-    if missing.size:
-        reasons: dict[str, int] = {}
-        for _, why in det.missing:
-            key = why.split(" (")[0]
-            reasons[key] = reasons.get(key, 0) + 1
-        top = sorted(reasons.items(), key=lambda kv: -kv[1])[:3]
-        txt = _ranges(missing)
-        if len(txt) > 120:
-            txt = txt[:120] + " ..."
-        lines.append(f"  missing: {txt}")
-        lines.append("  reasons: " + "; ".join(f"{k} ({n})" for k, n in top))
-    u = cal.scale_relative_uncertainty
-    cal_txt = f"calibration: {cal.method}"
-    if "ids" in cal.details:
-        cal_txt += f" (markers {', '.join(map(str, cal.details['ids']))})"
-    lines.append(
-        f"  {cal_txt}; scale {cal.scale:.6g} m/px ± {100 * u:.3g} % (standard uncertainty)"
-    )
-    if cal.reprojection_rms_px is not None:
-        lines.append(f"  reprojection RMS {cal.reprojection_rms_px:.3g} px")
-    if cal.lens is not None:
-        lines.append(f"  lens: {args.lens} (calibration RMS {cal.lens.rms:.3g} px)")
-    return "\n".join(lines)
 
 
 if __name__ == "__main__":  # pragma: no cover
