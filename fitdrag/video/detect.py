@@ -13,7 +13,8 @@ The steps, per run:
    background, so lamps need not flicker in step across the frame.
 3. **Search**: until a track is established the whole frame is searched (at half resolution
    on large frames); a track is confirmed when blobs in three consecutive frames line up in
-   position and agree in size (a moving one is preferred to a still one).  From then on only
+   position, agree in size and move (by at least one pixel; the fastest such triple wins, a
+   still blob is a resting specimen or a flaw of the background model).  From then on only
    a window around the position predicted from the last few detections (a least-squares
    quadratic in time: constant acceleration) is examined; the window grows with the frames
    since the last detection, and after ``max_gap`` frames the whole frame is searched again.
@@ -27,9 +28,9 @@ The steps, per run:
    window around the blob (the blob dilated by three pixels), each pixel's value divided by
    the local contrast between specimen and background (a per-pixel coverage estimate,
    clipped to 0..1), with pixels within two noise levels of the background (the noise floor)
-   left out.  The specimen's own brightness behind each pixel is a plane fitted to its core
-   (pixels covered through the whole exposure: the blob eroded by one pixel and by the blur
-   length along the motion), so neither the specimen's shading nor clutter behind it pulls
+   left out.  The specimen's own brightness behind each pixel is a plane fitted to the outer
+   band of its core (pixels covered through the whole exposure: the blob eroded by one pixel
+   and by the blur length along the motion), so neither the specimen's shading nor clutter behind it pulls
    the centroid much; for a uniform specimen on a uniform background this is the plain
    intensity-weighted centroid.  Motion blur averages coverage over the exposure, so the
    centroid of a blurred blob is the exposure-averaged (mid-exposure) position.
@@ -40,11 +41,13 @@ The steps, per run:
 Frames without a confident detection are listed with a reason, never filled in.
 
 Known limits: a specimen that rests in one place for more than about half of the sampled
-frames becomes part of the background (start the range after release); strongly oblique
-lighting leaves a small constant offset towards the lamp (about 0.05 px at 20 degrees off
-axis: a constant offset moves the launch position, not the drag); blur longer than about
-half the specimen's size combined with strong shading loosens the centroid to a few tenths
-of a pixel.
+frames becomes part of the background (start the range after release; such frames are listed
+as not moving); light from off the camera axis shades the specimen and leaves a near-constant
+offset of a few hundredths of a pixel (about 0.045 px at 20 degrees, 0.08 px at 45 degrees in
+``benchmarks/bench_track.py``; a constant offset moves the launch position, not the drag); a
+harsh single lamp can leave the shaded side as bright as the background behind it, and such
+frames are rejected rather than measured; blur longer than about half the specimen's size
+combined with strong shading loosens the centroid to a few tenths of a pixel.
 
 References
 ----------
@@ -69,6 +72,8 @@ POLARITIES = ("either", "brighter", "darker")
 _GRID_PIXELS = 3000
 # Noise floor subtracted before weighting, in noise standard deviations.
 _FLOOR_SIGMA = 2.0
+# Least displacement over the three frames that confirm a new track. [px]
+_MIN_MOTION_PX = 1.0
 # Largest share of unseen outline pixels (per pixel of area) a detection may have.
 _MAX_BLIND = 0.1
 # Smallest noise level assumed, in 8-bit grey levels (quantisation of noiseless footage).
@@ -362,7 +367,13 @@ class _Detector:
         blur = math.sqrt(12.0 * spread)
         angle = 0.5 * math.atan2(2 * mu11, mu20 - mu02)
         core = self._core(comp, blur, angle)
-        spec = self._specimen_level(f, dd, comp, core, xx, yy, sigma, (mu20, mu02, mu11))
+        # The specimen's brightness is wanted at its outline: fit the outer band of the core
+        # (two pixels wide) when it is large enough, so limb darkening matters less.
+        fit_px = core
+        ring = core & ~cv2.erode(core.view(np.uint8), self.k5).astype(bool)
+        if int(np.count_nonzero(ring)) >= 12:
+            fit_px = ring
+        spec = self._specimen_level(f, dd, comp, fit_px, xx, yy, sigma, (mu20, mu02, mu11))
         contrast = spec - bb
         absk = np.abs(contrast)
         reliable = absk > 1.5 * self.k * sigma
@@ -453,10 +464,11 @@ class _Detector:
     def _specimen_level(self, f, dd, comp, core, xx, yy, sigma, moments) -> np.ndarray:
         """Brightness the specimen has at each pixel of the window.
 
-        A plane fitted to the core pixels (the specimen's shading), keeping a slope only along
-        directions where the core is wide enough (at least 0.3 of the blob's spread, so the
-        plane is not extrapolated far) and shrinking each slope towards zero by
-        ``b^2 / (b^2 + var(b))`` so noise does not tilt it.  Without a usable core (blur
+        A plane fitted to the given core pixels (the specimen's shading).  A slope is kept
+        only along directions where the core is wide enough compared with the blob (fully
+        from 0.3 of the blob's spread, fading out towards 0.15), so the plane is not
+        extrapolated far, and it is shrunk towards zero by ``b^2 / (b^2 + var(b))`` so noise
+        does not tilt it.  Without a usable core (blur
         longer than the specimen) the level is the median of the blob's brightest tenth.
         """
         n = int(np.count_nonzero(core))
@@ -475,13 +487,17 @@ class _Detector:
             for lam, ang in ((half_tr + d, theta), (half_tr - d, theta + 0.5 * math.pi)):
                 c, s_ = math.cos(ang), math.sin(ang)
                 blob_var = mu20 * c * c + 2 * mu11 * c * s_ + mu02 * s_ * s_
-                if n < 10 or lam < 0.25 or lam < 0.09 * blob_var:
+                # Trust a slope fully where the core spans at least 0.3 of the blob's spread
+                # along that axis, not at all below 0.15, and in proportion between.
+                ratio = math.sqrt(max(lam, 0.0) / max(blob_var, 1e-9))
+                trust = min(max((ratio - 0.15) / 0.15, 0.0), 1.0)
+                if n < 10 or lam < 0.25 or trust <= 0.0:
                     continue
                 u = X * c + Y * s_
                 suu = float((u * u).sum())
                 slope = float((u * fm).sum()) / suu  # axes are uncorrelated: fit separately
                 var_b = sigma**2 / suu
-                slope *= slope * slope / (slope * slope + var_b)
+                slope *= trust * slope * slope / (slope * slope + var_b)
                 out += np.float32(slope) * ((xx - mx) * c + (yy - my) * s_)
             return out
         cb = comp.astype(bool)
@@ -554,14 +570,17 @@ class _Detector:
 
 
 def _choose_chain(recent: list[tuple[int, list[_Blob]]], size_tol: float, diag: float):
-    """Best triple of blobs in the last three frames read that move consistently, or None."""
+    """Best triple of blobs in the last three frames read that move consistently (and do move:
+    a still blob is a resting specimen or a flaw of the background model), or None; and
+    whether a consistent but still triple was seen."""
     if len(recent) < 3:
-        return None
+        return None, False
     (n1, c1), (n2, c2), (n3, c3) = recent[-3:]
     if not (c1 and c2 and c3):
-        return None
+        return None, False
     ratio = (n3 - n2) / (n2 - n1)
     best = None
+    still = False
     for b1 in c1:
         for b2 in c2:
             step = math.hypot(b2.x - b1.x, b2.y - b1.y) / (n2 - n1)
@@ -577,10 +596,13 @@ def _choose_chain(recent: list[tuple[int, list[_Blob]]], size_tol: float, diag: 
                 if res > 2.0 + 0.1 * step * (n3 - n2):
                     continue
                 moved = math.hypot(b3.x - b1.x, b3.y - b1.y)
-                score = (moved > 1.0, moved, -res)
+                if moved < _MIN_MOTION_PX:
+                    still = True  # a resting specimen or a flaw of the background model
+                    continue
+                score = (moved, -res)
                 if best is None or score > best[0]:
                     best = (score, (b1, b2, b3))
-    return None if best is None else best[1]
+    return (None, still) if best is None else (best[1], False)
 
 
 def estimate_background(
@@ -822,7 +844,7 @@ def detect_specimen(
     start, stop : int
         Frame range, ``stop`` excluded (None: to the end).
     min_area, max_area : float
-        Accepted area of the thresholded blob (default max: 1/50 of the frame). [px^2]
+        Accepted area of the thresholded blob (default max: 1/16 of the frame). [px^2]
     threshold_sigma : float
         Detection threshold on the background-subtracted image, in noise standard deviations.
     polarity : str
@@ -877,7 +899,7 @@ def detect_specimen(
             raise ValueError(f"{name}: expected a positive number, got {val!r}.")
     h, w = source.shape
     if max_area is None:
-        max_area = h * w / 50.0
+        max_area = h * w / 16.0
     if not max_area > min_area:
         raise ValueError(
             f"max_area: {max_area:g} px must exceed min_area={min_area:g} px; widen the range."
@@ -978,7 +1000,7 @@ def detect_specimen(
         good = [b for b in blobs if b.reason is None]
         recent.append((n, good, g))
         del recent[:-3]
-        chain = _choose_chain([(k, c) for k, c, _ in recent], size_tolerance, diag)
+        chain, still = _choose_chain([(k, c) for k, c, _ in recent], size_tolerance, diag)
         if chain is not None:
             tracker = _Tracker()
             for (k, _, gk), b in zip(recent, chain, strict=True):
@@ -991,6 +1013,11 @@ def detect_specimen(
             missing[n] = "no blob stands out from the background"
         elif not good:
             missing[n] = Counter(b.reason for b in blobs).most_common(1)[0][0]
+        elif still:
+            missing[n] = (
+                "blob does not move over three frames (a specimen at rest becomes part of "
+                "the background model: start after the release)"
+            )
         else:
             missing[n] = "blob not confirmed by consistent motion over three frames"
     if expected is not None and not isinstance(source, FolderSource):
