@@ -822,19 +822,31 @@ def detect_markers(
     params.cornerRefinementMaxIterations = 100
     params.cornerRefinementMinAccuracy = 0.001
     detector = cv2.aruco.ArucoDetector(dic, params)
-    found, ids, _ = detector.detectMarkers(u8)
-    if ids is None or len(ids) == 0:
+    # The contrast stretch helps dim footage but can cost a marker whose cells it saturates;
+    # look in the plain 8-bit rendering too and keep every id found in either.
+    full = 255.0 if float(np.nanmax(grey)) <= 255.0 else 65535.0
+    plain = np.clip(np.nan_to_num(grey) * (255.0 / full), 0, 255).round().astype(np.uint8)
+    by_id: dict[int, np.ndarray] = {}
+    for view in (u8, plain):
+        found, ids, _ = detector.detectMarkers(view)
+        if ids is None or len(ids) == 0:
+            continue
+        ids = [int(i) for i in np.ravel(ids)]
+        seen = {}
+        for i in ids:
+            seen[i] = seen.get(i, 0) + 1
+        dup = sorted(i for i, c in seen.items() if c > 1)
+        if dup:
+            raise ValueError(
+                f"markers: id(s) {', '.join(map(str, dup))} of {name} appear more than once in "
+                f"the image; every marker in view must have its own id."
+            )
+        for i, c in zip(ids, found):
+            by_id.setdefault(i, c)
+    if not by_id:
         return ()
-    ids = [int(i) for i in np.ravel(ids)]
-    seen = {}
-    for i in ids:
-        seen[i] = seen.get(i, 0) + 1
-    dup = sorted(i for i, c in seen.items() if c > 1)
-    if dup:
-        raise ValueError(
-            f"markers: id(s) {', '.join(map(str, dup))} of {name} appear more than once in the "
-            f"image; every marker in view must have its own id."
-        )
+    ids = sorted(by_id)
+    found = [by_id[i] for i in ids]
     cells_per_side = int(dic.markerSize) + 2
     obs = []
     for mid, c in sorted(zip(ids, found), key=lambda p: p[0]):
