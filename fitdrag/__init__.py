@@ -51,6 +51,7 @@ from fitdrag.tracks import (  # noqa: E402
     write_track,
 )
 from fitdrag.verdict import Specification, decide  # noqa: E402
+from fitdrag.video import FootageTrack, track_footage  # noqa: E402
 
 __all__ = [
     "__version__",
@@ -62,6 +63,7 @@ __all__ = [
     "FitResult",
     "Flight",
     "FlightModel",
+    "FootageTrack",
     "InputQuantity",
     "Launch",
     "ModelComparison",
@@ -97,5 +99,6 @@ __all__ = [
     "simulate",
     "sphere_correlation_names",
     "sphere_drag_coefficient",
+    "track_footage",
     "write_track",
 ]
