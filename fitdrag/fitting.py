@@ -75,6 +75,8 @@ from fitdrag.tracks import Track
 COVERAGE_PROBABILITY = 0.9545
 #: Relative standard uncertainty of Cd above which drag is reported as not measurable.
 IDENTIFIABILITY_LIMIT = 0.25
+#: Integrator tolerance inside fits: positions to ~1e-8 m, far below any tracking noise.
+FIT_RTOL = 1e-9
 #: Residual RMS, as a fraction of the flight's extent, above which a fit is called a failure.
 ADEQUACY_LIMIT = 0.02
 #: Fraction of frames rejected as outliers above which the fit is called a failure.
@@ -386,7 +388,16 @@ class _Problem:
         self.lift = lift
         self.n_shared = len(model.parameters) + (1 if lift else 0)
         self.models = [
-            FlightModel(tr.t, specimen, conditions, model, constants, fit_lift=lift)
+            FlightModel(
+                tr.t,
+                specimen,
+                conditions,
+                model,
+                constants,
+                fit_lift=lift,
+                rtol=FIT_RTOL,
+                atol=FIT_RTOL,
+            )  # fmt: skip
             for tr in tracks
         ]
         self.n_params = self.n_shared + 4 * len(tracks)
