@@ -1065,7 +1065,11 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
         th, ok, msg, nfev = _solve(problem, theta, bounds, max_nfev=max_nfev, engine="lmfit")
         total_nfev += nfev
         if ok:
-            theta = th
+            # a last Gauss–Newton step settles the optimum to ~1e-10 (MINPACK stops on its
+            # own tolerances, lmfit's bound mapping adds round-off), so that re-fits for the
+            # uncertainty budget start from, and return to, the same point
+            th2, ok2 = _gauss_newton(problem, th, bounds)
+            theta = th2 if ok2 else th
         else:
             success = False
             messages.append(msg)
