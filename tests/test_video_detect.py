@@ -253,3 +253,21 @@ def test_bad_settings(footage):
                                          r"\(240, 320\); pass a background of the footage's "
                                          r"size\.$"):  # fmt: skip
         detect_specimen(f, background=np.zeros((5, 5)))
+
+
+def test_detector_registry():
+    """regression: detectors are registered by name; an unknown name lists the valid ones."""
+    from fitdrag.video.detect import (
+        DEFAULT_DETECTOR,
+        detect_specimen,
+        detector_names,
+        get_detector,
+        register_detector,
+    )
+
+    assert get_detector(DEFAULT_DETECTOR) is detect_specimen
+    assert DEFAULT_DETECTOR in detector_names()
+    with pytest.raises(ValueError, match=r"detector: unknown name 'blob'; valid names: "):
+        get_detector("blob")
+    with pytest.raises(ValueError, match="already registered"):
+        register_detector(DEFAULT_DETECTOR, detect_specimen)

@@ -1064,3 +1064,39 @@ def detect_specimen(
         source=source.name,
     )
     return out
+
+
+# ----------------------------------------------------------------------------- registry
+
+_DETECTORS: dict = {}
+
+
+def register_detector(name: str, function) -> None:
+    """Register ``function(source, *, start, stop, progress) -> Detections`` under ``name``.
+
+    A detector finds one moving specimen in every frame and returns sub-pixel image
+    coordinates (y down), a quality figure per frame and the frames it could not measure.
+    """
+    if name in _DETECTORS:
+        raise ValueError(f"detector {name!r} is already registered; pick another name.")
+    _DETECTORS[name] = function
+
+
+def get_detector(name: str):
+    """The detector registered as ``name``; an unknown name lists the valid ones."""
+    try:
+        return _DETECTORS[name]
+    except KeyError:
+        raise ValueError(
+            f"detector: unknown name {name!r}; valid names: {', '.join(detector_names())}."
+        ) from None
+
+
+def detector_names() -> list[str]:
+    """Names of the registered detectors."""
+    return sorted(_DETECTORS)
+
+
+#: The default: background difference with flicker normalisation and weighted centroids.
+DEFAULT_DETECTOR = "background-difference"
+register_detector(DEFAULT_DETECTOR, detect_specimen)

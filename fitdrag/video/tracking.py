@@ -288,6 +288,7 @@ def track_footage(
     marker_frame: int | None = None,
     lens: Any = None,
     scale_uncertainty: float = 0.0,
+    detector: str = "background-difference",
     progress: bool = False,
 ) -> FootageTrack:
     """Track the specimen in footage and calibrate its centroids to world metres.
@@ -337,6 +338,9 @@ def track_footage(
     scale_uncertainty : float
         Relative standard uncertainty of the known length (the scale, the reference distance
         or the marker side), e.g. 0.001. [1]
+    detector : str
+        Registered detector (:func:`fitdrag.video.detect.detector_names`); default the
+        background-difference detector.
     progress : bool
         Show a progress bar on footage longer than 200 frames (or of unknown length).
 
@@ -357,7 +361,7 @@ def track_footage(
     """
     from fitdrag.tracks import MIN_POINTS, Track
     from fitdrag.video.calibration import load_marker_layout
-    from fitdrag.video.detect import detect_specimen
+    from fitdrag.video.detect import get_detector
     from fitdrag.video.lens import LensModel, load_lens
     from fitdrag.video.sources import check_frame_rate, open_source
 
@@ -435,7 +439,7 @@ def track_footage(
         )  # fmt: skip
         n_frames = source.n_frames
         bar = bool(progress) and (n_frames is None or n_frames > PROGRESS_MIN_FRAMES)
-        det = detect_specimen(source, start=start, stop=stop, progress=bar)
+        det = get_detector(detector)(source, start=start, stop=stop, progress=bar)
         name = str(source.name)
     finally:
         source.close()
