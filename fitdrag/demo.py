@@ -15,16 +15,18 @@ with a fixed seed, so every run on every machine sees the same frames.
    (``fitdrag.video.calibration``), detects the ball in every frame
    (``fitdrag.video.detect``) and writes the track ``DIR/demo_track.csv`` and a picture of it
    over one frame, ``DIR/demo_track_preview.png``;
-3. writes the job file ``DIR/demo_job.toml`` that describes the measurement;
-4. runs that job through the machinery of ``fitdrag run`` (:func:`fitdrag.pipeline.measure`
+3. writes the job file ``DIR/demo_job.toml`` that describes the measurement (its throw
+   names the footage and its marker calibration, so the certificate lists the footage's
+   SHA-256);
+4. runs that job through the machinery of ``fitdrag run``, which tracks the footage again
+   exactly as ``fitdrag track`` did (:func:`fitdrag.pipeline.measure`
    and :func:`fitdrag.pipeline.issue`): fit, GUM budget, Monte Carlo check, conformity
    decision, certificate PDF/PNG and JSON in ``DIR/certificates/``, and a record in
    ``DIR/certificates/records.sqlite``.
 
 Running it again reuses the footage (after checking its SHA-256 against the truth file),
 recomputes the track, its picture and the job file and checks that they match the files
-already there, and
-issues a *new* certificate number that replaces the previous demo certificate (the records
+already there, and issues a *new* certificate number that replaces the previous demo certificate (the records
 database keeps both, the old one marked as replaced).  If a file in ``DIR`` was changed by
 hand the run stops and says which; ``force=True`` regenerates and overwrites everything the
 demo writes.  Nothing is written outside ``DIR``.
@@ -404,10 +406,8 @@ def _toml_str(s: str) -> str:
     return json.dumps(s, ensure_ascii=False)
 
 
-def job_text(
-    test_date: str, scale_relative_uncertainty: float, track_name: str = TRACK_NAME
-) -> str:
-    """The demo's job file (TOML), for a track with the given scale uncertainty."""
+def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
+    """The demo's job file (TOML): one footage throw, calibrated by its ArUco markers."""
     lab, cu, sp, air, sp_ = LABORATORY, CUSTOMER, SPECIMEN, AIR, SPECIFICATION
     lines = [
         "# fitdrag demo job: written by `fitdrag demo` (fitdrag.demo).",
@@ -424,7 +424,7 @@ def job_text(
         f"date = {test_date}",
         'location = "flight hall 1 (fictitious)"',
         'notes = "Synthetic demonstration: one throw filmed at 500 frames/s in front of four '
-        'ArUco markers in the plane of flight; track from fitdrag.video."',
+        'ArUco markers in the plane of flight."',
         "",
         "[specimen]",
         f"id = {_toml_str(sp['id'])}",
@@ -449,11 +449,13 @@ def job_text(
         "[camera]",
         f"fps = {FOOTAGE['fps']!r}                    # Hz",
         f"fps_uncertainty = {FOOTAGE['fps_uncertainty']!r}        # Hz",
-        "# from the marker calibration of the footage (see the track file's header):",
-        f"scale_relative_uncertainty = {scale_relative_uncertainty!r}",
+        "# the length scale and its uncertainty come from the markers in the footage",
         "",
         "[[throws]]",
-        f"track = {_toml_str(track_name)}",
+        f"footage = {_toml_str(footage_name)}   # tracked by fitdrag run, as fitdrag track does",
+        f"markers = {FOOTAGE['marker_side']!r}                  # m, side of the ArUco markers",
+        f"scale_uncertainty = {FOOTAGE['marker_side_relative_uncertainty']!r}        "
+        "# relative standard uncertainty of the marker side (print tolerance)",
         'label = "throw 1"',
         "",
         "[specification]",
@@ -566,7 +568,6 @@ def run_demo(
     from fitdrag.jobs import load_job
     from fitdrag.pipeline import FitFailed, issue, measure
     from fitdrag.pipeline import summary as _summary
-    from fitdrag.tracks import read_track
 
     t_start = time.perf_counter()
     if log is None:
@@ -597,9 +598,8 @@ def run_demo(
                 f"match {truth_path.name}); pass --force to render it again."
             )
         reused = True
-        log(
-            f"      reusing {display_path(footage)} (rendered on {truth.get('rendered_on')}, SHA-256 checked)"
-        )
+        when = truth.get("rendered_on")
+        log(f"      reusing {display_path(footage)} (rendered on {when}, SHA-256 checked)")
     else:
         if (footage.exists() or truth_path.exists()) and not force:
             missing = truth_path if footage.exists() else footage
@@ -618,7 +618,7 @@ def run_demo(
     timings["footage"] = time.perf_counter() - t0
 
     # 2. track ----------------------------------------------------------------------------
-    t0 = step(2, "markers, calibration and ball detection (fitdrag track)")
+    t0 = step(2, "markers, calibration and ball detection (fitdrag track: a CSV and a picture)")
     shown = track_command(FOOTAGE_NAME, TRACK_NAME, PREVIEW_NAME)
     log(f"      the same as, inside {display_path(d)}:  fitdrag {' '.join(shown)}")
     tmp_track = d / f".{TRACK_NAME}.new.csv"
@@ -639,20 +639,22 @@ def run_demo(
     finally:
         tmp_track.unlink(missing_ok=True)
         tmp_preview.unlink(missing_ok=True)
-    track = read_track(track_path)
-    scale_u = float(track.meta["scale_relative_uncertainty"])
     timings["track"] = time.perf_counter() - t0
 
     # 3. job file -------------------------------------------------------------------------
     t0 = step(3, "job file")
-    text = job_text(truth["rendered_on"], scale_u)
+    text = job_text(truth["rendered_on"])
     _place_text(job_path, text, force, "the demo's job file; run an edited copy with "
                 "'fitdrag run'")  # fmt: skip
     job = load_job(job_path)
     timings["job"] = time.perf_counter() - t0
 
     # 4. measurement ----------------------------------------------------------------------
-    t0 = step(4, f"fit, uncertainty budget and Monte Carlo check ({MONTE_CARLO_TRIALS} trials)")
+    t0 = step(
+        4,
+        "fitdrag run: track the footage named in the job, fit, uncertainty budget, Monte Carlo "
+        f"check ({MONTE_CARLO_TRIALS} trials), decision",
+    )
     try:
         meas = measure(job, progress=bars)
     except FitFailed as exc:  # pragma: no cover - the demo's data fit
@@ -661,7 +663,7 @@ def run_demo(
     timings["measure"] = time.perf_counter() - t0
 
     # 5. certificate and record -----------------------------------------------------------
-    t0 = step(5, "certificate and record")
+    t0 = step(5, "fitdrag run: certificate and record")
     previous = _latest_unreplaced(job.records_path)
     rec, db_path = issue(meas, replaces=previous, force=force)
     timings["issue"] = time.perf_counter() - t0

@@ -101,6 +101,11 @@ def test_demo_job_file_is_a_valid_job_and_the_record_is_kept(demo):
     recs = Records(r.records).list()
     assert [x.number for x in recs] == [r.certificate_number]
     assert recs[0].decision == "pass"
+    # the certificate traces the footage itself (the job names it), not only a derived CSV
+    assert any(k.endswith("demo_throw.avi") for k in recs[0].input_hashes)
+    tr = json.loads(r.truth.read_text())
+    assert tr["sha256"] in recs[0].input_hashes.values()
+    assert tr["sha256"] in _pdf_text(r.certificate_pdf)
 
 
 def test_demo_second_run_reissues_with_a_new_number(demo, capsys):
@@ -137,12 +142,16 @@ def test_demo_refuses_a_file_as_directory(tmp_path):
         run_demo(f, progress=False)
 
 
-def test_job_text_parses_for_any_scale_uncertainty(tmp_path):
-    """regression: the job text is valid for the job reader with a given scale uncertainty."""
-    (tmp_path / "demo_track.csv").write_text("t,x,y\n" + "".join(
-        f"{i / 500},{i * 0.01},{i * 0.005}\n" for i in range(10)))  # fmt: skip
+def test_job_text_is_a_valid_footage_job(tmp_path):
+    """regression: the job text is valid for the job reader: one footage throw calibrated by
+    its markers, the demo's specification and certificate prefix."""
+    (tmp_path / "footage").mkdir()
+    (tmp_path / "footage" / "demo_throw.avi").write_bytes(b"not read by load_job")
     p = tmp_path / "job.toml"
-    p.write_text(job_text("2026-01-02", 0.00123))
+    p.write_text(job_text("2026-01-02"))
     job = load_job(p)
-    assert job.camera["scale_relative_uncertainty"] == pytest.approx(0.00123)
+    (th,) = job.throws
+    assert th.kind == "footage" and th.path == tmp_path / "footage" / "demo_throw.avi"
+    assert th.options["markers"] == pytest.approx(0.1)
     assert job.number_prefix == "DEMO"
+    assert str(job.test["date"]) == "2026-01-02"
