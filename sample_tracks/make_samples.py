@@ -168,10 +168,9 @@ def make_ribbed(force: bool) -> None:
         write_track(Track(t, x, y, meta=meta), HERE / name, force=force)
 
 
-def make_clip(force: bool) -> float:
-    """Render the clip, track it with `fitdrag track`; return the scale uncertainty."""
+def make_clip(force: bool) -> None:
+    """Render the clip and track it with `fitdrag track`."""
     from fitdrag.demo import make_demo_footage
-    from fitdrag.tracks import read_track
 
     truth = make_demo_footage(HERE / CLIP, frames=CLIP_FRAMES, scene=CLIP_SCENE, overwrite=force)
     (HERE / "foam_ball_clip_truth.json").write_text(json.dumps(truth, indent=1) + "\n")
@@ -182,7 +181,6 @@ def make_clip(force: bool) -> float:
               *(["--force"] if force else [])])  # fmt: skip
     finally:
         os.chdir(cwd)
-    return float(read_track(HERE / CLIP_TRACK).meta["scale_relative_uncertainty"])
 
 
 # ------------------------------------------------------------------------------- job files
@@ -217,7 +215,7 @@ def _job(title: str, body: str) -> str:
     )
 
 
-def job_files(clip_scale_u: float) -> dict[str, str]:
+def job_files() -> dict[str, str]:
     """Text of each sample job file."""
     return {
         "training_ball.toml": _job("Three throws of one 40 mm training ball (TB-40).", """\
@@ -390,9 +388,9 @@ label = "slow throw"
 [fit]
 model = "power-law"               # Cd = cd_ref (Re / Re_ref)^exponent
 """),
-        "foam_ball_clip.toml": _job("The 65 mm foam training ball of the demo, tracked from "
+        "foam_ball_clip.toml": _job("The 65 mm foam training ball of the demo, filmed in "
                                     "the clip foam_ball_clip.avi (FB-65).", f"""\
-notes = "Track made with: fitdrag track foam_ball_clip.avi {' '.join(TRACK_ARGS)} -o {CLIP_TRACK}"
+notes = "One throw filmed at 500 frames/s in front of four ArUco markers (synthetic)."
 
 [specimen]
 id = "BTG-FB65-LOT2607-S03"
@@ -415,12 +413,14 @@ latitude = 51.5
 height = 60
 
 [camera]
-fps = 500
+fps = 500                         # the capture rate (the file claims 30, a playback rate)
 fps_uncertainty = 0.005
-scale_relative_uncertainty = {clip_scale_u!r}   # from the track's header (marker calibration)
+# the length scale and its uncertainty come from the markers in the footage
 
 [[throws]]
-track = "{CLIP_TRACK}"
+footage = "{CLIP}"   # fitdrag run tracks it, as `fitdrag track` does
+markers = 0.16                    # m, side of the ArUco markers' black square
+scale_uncertainty = 0.001         # relative standard uncertainty of the marker side
 
 [specification]
 drag_coefficient = 0.50
@@ -440,8 +440,8 @@ def main(argv=None) -> int:
         print(f"outlier at row {d['row']} (t = {d['t']:.4f} s): dx = {1e3 * d['dx']:+.1f} mm, "
               f"dy = {1e3 * d['dy']:+.1f} mm")  # fmt: skip
     make_ribbed(args.force)
-    scale_u = make_clip(args.force)
-    for name, text in job_files(scale_u).items():
+    make_clip(args.force)
+    for name, text in job_files().items():
         p = HERE / name
         if p.exists() and not args.force:
             raise SystemExit(f"{p}: exists; pass --force to overwrite it.")
