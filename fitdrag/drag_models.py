@@ -33,7 +33,10 @@ the term 0.25 (Re/10⁶) / (1 + Re/10⁶); an earlier 2010 handout by the same a
 Re^0.80 / 461 000 instead.  ``"morrison"`` (the default) implements the 2013 textbook form;
 ``"morrison-2010"`` implements the handout form, which is the form the ``fluids`` library
 evaluates for ``drag_sphere(Re, Method="Morrison")`` (fluids 1.3, although it cites the
-2013 book).  The two differ by less than 0.004 in C_d below Re = 2·10⁵.
+2013 book).  The two differ by less than 0.004 in C_d below Re = 2·10⁵.  Which printed source
+carries which last term is stated here from memory (the book was not at hand); fluids cites
+the 2013 book for the Re^0.80 form, other public code credits the 0.25 form to a later
+handout, so treat the attribution as unverified — the formulas themselves are checked.
 
 References
 ----------

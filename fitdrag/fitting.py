@@ -12,7 +12,7 @@ Stages (each reported in the result):
 2. **Robust stage** (``robust=True``) — a fit with the soft-L1 loss, scaled by a robust
    noise estimate (median absolute deviation [4]), followed by explicit rejection of the
    frames whose residual exceeds a limit set so that a clean track of N residuals loses a
-   frame by chance with probability ≈ 1 % (Šidák-style, limit ≥ 4 σ).  Rejected frames
+   frame by chance with probability ≈ 1 % (a Bonferroni bound, limit ≥ 4 σ).  Rejected frames
    are listed with the size of their residual.
 3. **Noise model** — the lag-1 autocorrelation of the residuals is tested (z = r₁ √m);
    when significant (p < 0.01), or when ``noise="ar1"``, the residuals are modelled as a
@@ -21,13 +21,14 @@ Stages (each reported in the result):
    autocorrelation [7]), and the problem is re-solved by feasible generalised least
    squares, i.e. Prais–Winsten prewhitening iterated to convergence [1, 2]; gaps between kept frames are honoured (φ^d for a gap of d frames).  Plain
    least squares under AR(1) noise with φ = 0.8 understates u(Cd) about threefold; the
-   prewhitened fit is efficient and its covariance is correct under that model [2].
+   prewhitened fit is efficient and its covariance is correct under that model [1].
 4. **Covariance** — (J̃ᵀ J̃)⁻¹ of the whitened, weighted Jacobian at the optimum, i.e. the
    Cramér–Rao bound of the noise model with the estimated noise level [3].  With
    per-point sigmas from the track it is scaled by max(1, χ²_ν) (Birge ratio).
 
 Coverage factor: k = 2 (JCGM 100:2008 G.6.6) unless the degrees of freedom are fewer
-than 30, then the Student-t factor for 95.45 % coverage (JCGM 100:2008 G.3, Table G.2).
+than 30, then the Student-t factor for 95.45 % coverage (JCGM 100:2008 G.3, Table G.2); the
+switch at 30 (where t differs from 2 by 4 %) is common practice, no source.
 Under AR(1) noise the degrees of freedom are those of the effective number of independent
 residuals, N (1 − φ)/(1 + φ) [8], so short, strongly correlated tracks get a larger k.
 
@@ -501,7 +502,9 @@ def _reml_ar1(problem: _Problem, theta) -> tuple[float, float]:
 
     with S the minimum whitened sum of squares of the linearised problem, d the frame gap
     of each whitened row and J̃ the whitened Jacobian (noise levels held at their current
-    estimates).  Minimised per axis in turn over φ ∈ (−0.98, 0.98).
+    estimates).  Minimised per axis in turn over φ ∈ (−0.98, 0.98).  One variance is
+    profiled over both axes while φ is per axis — an approximation to the full restricted
+    likelihood, adequate because the weights already equalise the axes' noise levels.
     """
     from scipy.optimize import minimize_scalar
 
@@ -1171,6 +1174,7 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
     # degrees of freedom for k: under AR(1) noise the residuals carry fewer independent
     # pieces of information, N_eff = N (1 - φ) / (1 + φ) per axis [8]
     if noise_model == "ar1":
+        # every kept frame contributes one x and one y residual (one mask per frame)
         n_axis = problem.n_resid / 2.0
         n_eff = sum(n_axis * min(1.0, (1.0 - f) / (1.0 + f)) for f in phi)
         dof_k = max(1, int(n_eff - len(theta)))

@@ -85,7 +85,10 @@ class DragModel:
         if not self.constants:
             return ()
         if self.constants_from_re is None:
-            raise ValueError(f"drag model {self.name!r}: no rule to set its constants.")
+            raise ValueError(
+                f"drag model {self.name!r}: it has constants {self.constants} but no rule to "
+                f"set them; give DragModel(constants_from_re=...) when registering it."
+            )
         return tuple(float(c) for c in self.constants_from_re(np.asarray(re_values, float)))
 
     def cd(self, re, p) -> np.ndarray:
@@ -137,7 +140,9 @@ def register_drag_model(model: DragModel) -> DragModel:
         raise ValueError(f"drag model {model.name!r} is already registered; pick another name.")
     if not (len(model.parameters) == len(model.initial) == len(model.bounds)):
         raise ValueError(
-            f"drag model {model.name!r}: parameters, initial and bounds differ in length."
+            f"drag model {model.name!r}: parameters, initial and bounds differ in length "
+            f"({len(model.parameters)}, {len(model.initial)}, {len(model.bounds)}); give one "
+            f"initial value and one (low, high) bound per parameter."
         )
     _REGISTRY[model.name] = model
     return model
@@ -219,7 +224,10 @@ class Conditions:
             )
         w = _number("wind", self.wind, "m/s", "give the horizontal wind speed, 0 for still air.")
         if not math.isfinite(w):
-            raise ValueError(f"wind: must be a finite speed in m/s, got {self.wind!r}.")
+            raise ValueError(
+                f"wind: must be a finite speed in m/s, got {self.wind!r}; give the horizontal "
+                f"wind speed, 0 for still air."
+            )
         object.__setattr__(self, "gravity", g)
         object.__setattr__(self, "wind", w)
 

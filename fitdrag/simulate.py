@@ -342,15 +342,23 @@ class FlightModel:
                  max_steps: int = 2_000_000):  # fmt: skip
         self.t = np.array(t, dtype=float)  # a writable copy (numba's signature wants one)
         if self.t.ndim != 1 or self.t.size < 1:
-            raise ValueError("t: expected a non-empty 1-D array of sample times in seconds.")
+            raise ValueError(
+                f"t: expected a non-empty 1-D array of sample times in seconds, got shape "
+                f"{self.t.shape}; pass one time per sample."
+            )
         if np.any(np.diff(self.t) <= 0) or not np.all(np.isfinite(self.t)):
-            raise ValueError("t: sample times must be finite and strictly increasing.")
+            bad = int(np.flatnonzero(~np.isfinite(self.t) | np.r_[False, np.diff(self.t) <= 0])[0])
+            raise ValueError(
+                f"t: sample times must be finite and strictly increasing; t[{bad}] = "
+                f"{float(self.t[bad])!r}; sort the samples and drop repeated or missing times."
+            )
         self.model = get_drag_model(model)
         self.constants = np.asarray(constants, dtype=float)
         if self.constants.size != len(self.model.constants):
             raise ValueError(
                 f"constants: drag model {self.model.name!r} needs {len(self.model.constants)} "
-                f"constant(s) {self.model.constants}, got {self.constants.size}."
+                f"constant(s) {self.model.constants}, got {self.constants.size}; pass them in "
+                f"that order (DragModel.constants_for(re_values) computes them from a flight)."
             )
         self.specimen = specimen
         self.conditions = conditions
@@ -437,10 +445,13 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     if dp.size != n_fit + len(m.constants):
         raise ValueError(
             f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
-            f"{m.parameters + m.constants}, got {dp.size}."
+            f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
+            f"constants, in that order."
         )
     if not np.all(np.isfinite(dp)):
-        raise ValueError(f"drag_params: must be finite, got {dp.tolist()}.")
+        raise ValueError(
+            f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
+        )
     fm = FlightModel(t, specimen, conditions, m, dp[n_fit:], fit_lift, rtol, atol)
     theta = np.concatenate((launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else []))
     status, pos, vel, jac, steps = fm.run(theta, sensitivities, lift_coefficient)

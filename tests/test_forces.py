@@ -68,8 +68,16 @@ def test_conditions_defaults():
             {"gravity": math.nan},
             "gravity: must be a finite number > 0 m/s², got nan; use 9.80665 or the local value.",
         ),
-        ({"wind": math.inf}, "wind: must be a finite speed in m/s, got inf."),
-        ({"wind": math.nan}, "wind: must be a finite speed in m/s, got nan."),
+        (
+            {"wind": math.inf},
+            "wind: must be a finite speed in m/s, got inf; give the "
+            "horizontal wind speed, 0 for still air.",
+        ),
+        (
+            {"wind": math.nan},
+            "wind: must be a finite speed in m/s, got nan; give the "
+            "horizontal wind speed, 0 for still air.",
+        ),
     ],
 )
 def test_conditions_validation_messages(kwargs, message):
@@ -344,8 +352,10 @@ def test_register_rejects_mismatched_lengths(monkeypatch):
     monkeypatch.setattr(forces, "_REGISTRY", dict(forces._REGISTRY))
     bad = DragModel(name="test-bad", parameters=("a", "b"), initial=(0.5,),
                     bounds=((0, 1), (0, 1)), kernel=_linear_re_kernel)  # fmt: skip
-    with pytest.raises(ValueError, match=_exact("drag model 'test-bad': parameters, initial and "
-                                                "bounds differ in length.")):  # fmt: skip
+    with pytest.raises(ValueError, match=_exact(
+        "drag model 'test-bad': parameters, initial and bounds differ in length (2, 1, 2); give "
+        "one initial value and one (low, high) bound per parameter."
+    )):  # fmt: skip
         register_drag_model(bad)
     assert "test-bad" not in drag_model_names()
 
@@ -362,6 +372,8 @@ def test_re_range_and_constants_errors():
         m.check_re_range(5.0, 2e4)
     no_rule = DragModel(name="no-rule", parameters=("a",), initial=(0.5,), bounds=((0, 1),),
                         kernel=_linear_re_kernel, constants=("re0",))  # fmt: skip
-    with pytest.raises(ValueError, match=_exact("drag model 'no-rule': no rule to set its "
-                                                "constants.")):  # fmt: skip
+    with pytest.raises(ValueError, match=_exact(
+        "drag model 'no-rule': it has constants ('re0',) but no rule to set them; give "
+        "DragModel(constants_from_re=...) when registering it."
+    )):  # fmt: skip
         no_rule.constants_for([1.0])

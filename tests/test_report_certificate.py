@@ -7,6 +7,7 @@ import pytest
 
 from fitdrag.report.certificate import (
     CAUTION,
+    SAFETY,
     format_sig,
     format_with_uncertainty,
     formatter_for,
@@ -201,6 +202,7 @@ def test_pdf_holds_number_result_decision_and_hashes(rendered):
     assert "Date of test 2026-03-04" in flat and "Date of issue 2026-03-05" in flat
     assert "The results relate only to the item tested" in flat
     assert " ".join(CAUTION.split()) in flat
+    assert " ".join(SAFETY.split()) in flat  # projectiles, lamps, deference to procedures
     assert "Tested by: A. Tester" in flat and "Approved by: B. Reviewer" in flat
     assert "Rejected frames (2): 50, 120" in flat
     assert "Uncertainty budget" in flat and "specimen mass" in flat

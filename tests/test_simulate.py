@@ -19,6 +19,7 @@ Oracles (named beside each test):
 from __future__ import annotations
 
 import math
+import re
 
 import numba
 import numpy as np
@@ -601,15 +602,20 @@ def test_single_sample_returns_launch_state():
 
 @pytest.mark.parametrize(
     ("t", "message"),
-    [([], "t: expected a non-empty 1-D array of sample times in seconds."),
-     ([[0.0, 1.0]], "t: expected a non-empty 1-D array of sample times in seconds."),
-     ([0.0, 0.1, 0.1], "t: sample times must be finite and strictly increasing."),
-     ([0.0, 0.2, 0.1], "t: sample times must be finite and strictly increasing."),
-     ([0.0, math.nan], "t: sample times must be finite and strictly increasing.")],
+    [([], "t: expected a non-empty 1-D array of sample times in seconds, got shape (0,); "
+          "pass one time per sample."),
+     ([[0.0, 1.0]], "t: expected a non-empty 1-D array of sample times in seconds, got shape "
+                    "(1, 2); pass one time per sample."),
+     ([0.0, 0.1, 0.1], "t: sample times must be finite and strictly increasing; t[2] = 0.1; "
+                       "sort the samples and drop repeated or missing times."),
+     ([0.0, 0.2, 0.1], "t: sample times must be finite and strictly increasing; t[2] = 0.1; "
+                       "sort the samples and drop repeated or missing times."),
+     ([0.0, math.nan], "t: sample times must be finite and strictly increasing; t[1] = nan; "
+                       "sort the samples and drop repeated or missing times.")],
 )  # fmt: skip
 def test_bad_times(t, message):
     """regression: bad sample times raise ValueError with the exact message."""
-    with pytest.raises(ValueError, match="^" + message.replace(".", r"\.") + "$"):
+    with pytest.raises(ValueError, match="^" + re.escape(message) + "$"):
         simulate(t, Launch(0, 0, 1, 1), Sphere(0.0027, 0.04), Conditions(Air(1.2)))
 
 
@@ -617,12 +623,14 @@ def test_bad_drag_params():
     """regression: wrong number or non-finite drag parameters raise exact errors."""
     args = (np.linspace(0, 1, 10), Launch(0, 0, 1, 1), Sphere(0.0027, 0.04), Conditions(Air(1.2)))
     with pytest.raises(ValueError, match=r"^drag_params: model 'constant' takes 1 value\(s\) "
-                                         r"\('cd',\), got 2\.$"):  # fmt: skip
+                                         r"\('cd',\), got 2; give the fitted parameters, "
+                                         r"then the constants, in that order\.$"):  # fmt: skip
         simulate(*args, drag_params=(0.5, 0.1))
-    with pytest.raises(ValueError, match=r"^drag_params: must be finite, got \[nan\]\.$"):
+    with pytest.raises(ValueError, match=r"^drag_params: must be finite, got \[nan\]; check "
+                                         r"the drag coefficient given\.$"):  # fmt: skip
         simulate(*args, drag_params=math.nan)
     with pytest.raises(ValueError, match=r"^drag model: unknown name 'nope'; valid names: "):
         simulate(*args, model="nope")
     with pytest.raises(ValueError, match=r"^constants: drag model 'test-linear-re' needs 1 "
-                                         r"constant\(s\) \('re0',\), got 0\.$"):  # fmt: skip
+                                         r"constant\(s\) \('re0',\), got 0; pass them"):  # fmt: skip
         FlightModel(args[0], args[2], args[3], model=LINEAR_RE)

@@ -296,6 +296,13 @@ CAUTION = (
     "is relied on."
 )
 
+SAFETY = (
+    "Safety and use: launching specimens can injure; test areas need eye protection and a "
+    "guarded line of flight. Bright lamps get hot and dazzle; keep clearances. Those relying "
+    "on this report should do so through the accredited procedures of the laboratory, local "
+    "codes and licensed practice, which take precedence over anything stated here."
+)
+
 
 def _vu(d: dict | None, key: str = "value") -> tuple[float | None, float | None]:
     if not d:
@@ -601,6 +608,7 @@ def build_layout(report: dict, curves=None) -> _Layout:
     L.heading("Statements")
     L.paragraph(RELATES_ONLY, size=8.0)
     L.paragraph(CAUTION, size=8.0, weight="bold")
+    L.paragraph(SAFETY, size=7.5)
     L.space(0.15)
     L.heading("Signatures")
     L.space(0.25)
