@@ -133,7 +133,7 @@ def test_air_from_conditions_and_latitude(tmp_path, capsys):
 
 
 def test_room_air_default_density(tmp_path, capsys):
-    """common practice, no source: with no air options the command uses room air (20 °C,
+    """regression (common practice, no source): with no air options the command uses room air (20 °C,
     101 325 Pa, 50 % RH), about 1.2 kg/m³."""
     out = tmp_path / "default.csv"
     assert run_cli(BASE + ["-o", str(out)], capsys)[0] == 0

@@ -98,8 +98,8 @@ def test_stokes_limit(name):
 
 @pytest.mark.parametrize("name", sphere_correlation_names())
 def test_subcritical_plateau_near_047(name):
-    """published-value (loose): smooth-sphere C_d ≈ 0.47 in the subcritical range
-    (common practice, no source); every correlation within ±0.09 over Re 1e3–2e5."""
+    """regression (common practice, no source): smooth-sphere C_d ≈ 0.47 in the subcritical
+    range; every correlation within ±0.09 over Re 1e3–2e5."""
     re = np.logspace(3, math.log10(2e5), 25)
     cd = sphere_drag_coefficient(re, name)
     assert np.all(np.abs(cd - 0.47) < 0.09)

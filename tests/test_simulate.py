@@ -524,7 +524,7 @@ def test_energy_never_increases_in_still_air(mass, diameter, cd, cl, speed, angl
 
 
 def test_room_air_density_in_a_flight():
-    """common practice, no source: still room air near 20 °C, 101 325 Pa, 50 % RH has a density
+    """regression (common practice, no source): still room air near 20 °C, 101 325 Pa, 50 % RH has a density
     of about 1.2 kg/m³; a long fall of a table-tennis ball in that air reaches the terminal
     speed sqrt(2 (m − ρV) g/(ρ C_d A)) computed with ρ = 1.2 to within 1 %."""
     air = Air.from_conditions(20.0, 101325.0, 50.0)
@@ -559,7 +559,7 @@ def test_range_maximising_angle_in_vacuum_is_45_degrees():
 @pytest.mark.parametrize(("mass", "diameter", "cd"), [(0.0027, 0.04, 0.47), (0.058, 0.0667, 0.55),
                                                       (0.45, 0.22, 0.25)])  # fmt: skip
 def test_range_maximising_angle_with_drag_is_below_45_degrees(mass, diameter, cd):
-    """common practice, no source: with air drag the launch angle of greatest range (returning
+    """closed-form/independent (common practice, no source): with air drag the launch angle of greatest range (returning
     to launch height) is below 45°, and the range is shorter than in vacuum."""
     s = Sphere(mass, diameter)
     c = Conditions(Air(1.2))

@@ -802,7 +802,7 @@ def test_track_is_read_only_and_picklable():
     """regression: arrays and meta are read-only; pickle/deepcopy keep everything."""
     k = np.arange(10.0)
     tr = Track(k, k, k, frame=np.arange(10), meta={"source": "synthetic"})
-    with pytest.raises(ValueError):
+    with pytest.raises(ValueError, match="read-only"):
         tr.x[0] = 1.0
     with pytest.raises(TypeError):
         tr.meta["source"] = "other"

@@ -244,7 +244,7 @@ def test_reference_errors():
 def test_calibration_is_immutable():
     """regression: the homography cannot be changed in place."""
     cal = calibration_from_scale(0.002)
-    with pytest.raises(ValueError):
+    with pytest.raises(ValueError, match="read-only"):
         cal.homography[0, 0] = 1.0
     with pytest.raises(TypeError):
         cal.details["x"] = 1
