@@ -50,16 +50,16 @@ class DragModel:
     parameters : tuple of str
         Names of the fitted parameters, in the order of ``p``.
     initial : tuple of float
-        A starting value for each fitted parameter.
+        A starting value for each fitted parameter. [unit of the parameter; C_d laws: -]
     bounds : tuple of (float, float)
-        Lower and upper bound of each fitted parameter.
+        Lower and upper bound of each fitted parameter. [unit of the parameter]
     kernel : numba dispatcher
         ``kernel(re, p, grad) -> (cd, dcd_dre)``; ``p`` holds the fitted parameters
         followed by the constants; ``grad[j]`` receives ∂C_d/∂p_j for the fitted ones.
     constants : tuple of str
         Names of fixed constants appended to ``p`` after the fitted parameters.
     re_range : (float, float)
-        Reynolds-number range where the law is valid; outside it a fit is refused.
+        Reynolds-number range where the law is valid; outside it a fit is refused. [-]
     reference : str
         Published source of the law.
     description : str

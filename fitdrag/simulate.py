@@ -260,7 +260,17 @@ class Launch:
 
     @classmethod
     def from_speed_angle(cls, speed: float, angle: float, x0: float = 0.0, y0: float = 0.0):
-        """Launch from speed [m/s] and angle above the horizontal [deg]."""
+        """Launch from a speed and an angle.
+
+        Parameters
+        ----------
+        speed : float
+            Launch speed. [m/s]
+        angle : float
+            Launch angle above the horizontal. [deg]
+        x0, y0 : float
+            Launch position, world frame, y up. [m]
+        """
         a = math.radians(angle)
         return cls(float(x0), float(y0), speed * math.cos(a), speed * math.sin(a))
 
@@ -334,7 +344,8 @@ class FlightModel:
     fit_lift : bool
         Include the lift coefficient C_L as the last parameter of θ.
     rtol, atol : float
-        Integrator tolerances on the state and sensitivities (relative; absolute in SI).
+        Integrator tolerances on the state and sensitivities: relative [-], and absolute in
+        the SI unit of each component (m, m/s, and m or s per unit parameter). [-], [SI]
     """
 
     def __init__(self, t, specimen, conditions: Conditions, model="constant", constants=(),
@@ -433,7 +444,7 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     fit_lift : bool
         Include C_L in θ (for the Jacobian).
     rtol, atol : float
-        Integrator tolerances.
+        Integrator tolerances: relative [-] and absolute [SI unit of each state component].
 
     Returns
     -------
