@@ -27,6 +27,7 @@ from fitdrag.air import (  # noqa: E402
 )
 from fitdrag.budget import InputQuantity, budget_from_model, monte_carlo  # noqa: E402
 from fitdrag.compare import ModelComparison, compare_models, drag_coefficient_at  # noqa: E402
+from fitdrag.demo import DemoResult, run_demo  # noqa: E402
 from fitdrag.drag_models import sphere_correlation_names, sphere_drag_coefficient  # noqa: E402
 from fitdrag.fitting import FitResult, Refit, ThrowResult, fit_tracks, refit  # noqa: E402
 from fitdrag.forces import (  # noqa: E402
@@ -59,6 +60,7 @@ __all__ = [
     "Body",
     "CIPMRangeWarning",
     "Conditions",
+    "DemoResult",
     "DragModel",
     "FitResult",
     "Flight",
@@ -96,6 +98,7 @@ __all__ = [
     "refit",
     "register_drag_model",
     "render_certificate",
+    "run_demo",
     "simulate",
     "sphere_correlation_names",
     "sphere_drag_coefficient",

@@ -56,7 +56,11 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args, extra = parser.parse_known_args(argv)
+    if extra:
+        name = f"fitdrag {args.command}" if getattr(args, "command", None) else "fitdrag"
+        print(f"{name}: error: unrecognized arguments: {' '.join(extra)}", file=sys.stderr)
+        return 2
     if getattr(args, "_run", None) is None:
         parser.print_help()
         return 2

@@ -1204,6 +1204,18 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
         for j in range(n_fit)
     )
     identifiable = bool(np.isfinite(rel) and rel <= IDENTIFIABILITY_LIMIT and not at_bound)
+    at_upper = [
+        dm.parameters[j] for j in range(n_fit)
+        if np.isfinite(dm.bounds[j][1]) and abs(theta[j] - dm.bounds[j][1]) < 1e-9
+    ]  # fmt: skip
+    if success and at_upper:
+        success = False
+        messages.append(
+            f"{', '.join(at_upper)} reached its upper bound "
+            f"({', '.join(f'{dm.bounds[dm.parameters.index(n)][1]:g}' for n in at_upper)}): the "
+            f"drag needed to follow the track is implausible; check the mass [kg] and size [m] "
+            f"(a unit slip such as grams for kilograms?), the frame rate and the calibration"
+        )
     if identifiable:
         ident_msg = (
             f"drag measured: relative standard uncertainty {100 * rel:.2g} %, correlation "

@@ -146,7 +146,7 @@ def test_nonconvergence_exit_3_and_json_still_written(tmp_path, capsys):
     out = tmp_path / "r.json"
     assert run_fit(bad, "--json", out, "--plot", tmp_path / "r.png") == 3
     err = capsys.readouterr().err
-    assert err.startswith("fitdrag fit: the fit did not converge: ")
+    assert err.startswith("fitdrag fit: the fit failed: ")
     d = json.loads(out.read_text(encoding="utf-8"))
     assert d["success"] is False
     assert d["message"] and d["message"] != "fit converged"

@@ -512,3 +512,12 @@ def test_initial_values_are_honoured():
     b = fit_tracks(track, sphere(BASE), AIR, initial={"cd": 3.0})
     assert b.success
     assert b.cd == pytest.approx(a.cd, abs=0.01 * a.u_cd)
+
+
+def test_drag_at_its_upper_bound_is_a_failure():
+    """regression: a unit slip (grams given as kilograms) drives Cd to its upper bound; the fit
+    reports failure with a message pointing at the units, not a number to use."""
+    r = fit_tracks(noisy_track(BASE, seed=31), Sphere(BASE.mass * 1000.0, BASE.diameter), AIR)
+    assert r.success is False
+    assert "cd reached its upper bound (50)" in r.message
+    assert "unit slip" in r.message

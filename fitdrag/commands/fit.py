@@ -93,9 +93,11 @@ def format_summary(result) -> str:
     lines = []
     status = "converged" if result.success else f"DID NOT CONVERGE ({result.message})"
     lines.append(f"fit {status}; model: {result.model}; throws: {len(result.throws)}")
+    at_re = "" if result.model == "constant" else f" at Re {dc['at_reynolds_number']:.3g}"
     lines.append(
-        f"  drag coefficient Cd = {dc['value']:.5g}   u = {dc['standard_uncertainty']:.2g}   "
-        f"U = {dc['expanded_uncertainty']:.2g} (k = {dc['coverage_factor']:.3g}, statistical only)"
+        f"  drag coefficient Cd{at_re} = {dc['value']:.5g}   u = "
+        f"{dc['standard_uncertainty']:.2g}   U = {dc['expanded_uncertainty']:.2g} "
+        f"(k = {dc['coverage_factor']:.3g}, statistical only)"
     )
     for name, pv in d["drag_model"]["parameters"].items():
         if result.model != "constant":
@@ -175,6 +177,6 @@ def run(args) -> int:
             _write_atomic(cd_path, lambda p: fig2.savefig(p, dpi=120, format="png"))
             print(f"wrote {cd_path}")
     if not result.success:
-        print(f"fitdrag fit: the fit did not converge: {result.message}", file=sys.stderr)
+        print(f"fitdrag fit: the fit failed: {result.message}", file=sys.stderr)
         return 3
     return 0
