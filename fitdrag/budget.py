@@ -1055,6 +1055,7 @@ DRAG_INPUTS = {
     "air_density": "kg/m³",
     "frame_rate": "Hz",
     "length_scale": "",
+    "roll": "°",
     "gravity": "m/s²",
 }
 
@@ -1073,6 +1074,8 @@ class DragRefitModel:
     * ``frame_rate`` [Hz]: the camera's true frame rate; sample times were computed with the
       nominal one, so they scale as t · f_nominal / f;
     * ``length_scale`` [-]: a factor (nominal 1) on every position and position uncertainty;
+    * ``roll`` [°]: an error in the camera's (or calibration's) horizontal, nominal 0: every
+      track is turned by this angle about its first sample;
     * ``gravity`` [m/s²].
 
     Parameters
@@ -1129,12 +1132,17 @@ class DragRefitModel:
         f0 = self.nominal.get("frame_rate")
         time_factor = 1.0 if f0 is None else f0 / v.get("frame_rate", f0)
         s = v.get("length_scale", 1.0)
-        if time_factor == 1.0 and s == 1.0:
+        roll = math.radians(v.get("roll", 0.0))
+        if time_factor == 1.0 and s == 1.0 and roll == 0.0:
             return None
+        c, sn = math.cos(roll), math.sin(roll)
         out = []
         for tr in self.tracks:
             sig = None if tr.sigma is None else tr.sigma * s
-            out.append(Track(tr.t * time_factor, tr.x * s, tr.y * s, sig, tr.frame, dict(tr.meta)))
+            dx, dy = tr.x - tr.x[0], tr.y - tr.y[0]
+            x = (tr.x[0] + c * dx - sn * dy) * s
+            y = (tr.y[0] + sn * dx + c * dy) * s
+            out.append(Track(tr.t * time_factor, x, y, sig, tr.frame, dict(tr.meta)))
         return out
 
     def __call__(self, values) -> float:

@@ -330,6 +330,9 @@ _SECTIONS: dict[str, dict[str, _Key]] = {
             "give the relative standard uncertainty of the length scale as a fraction "
             '(0.002 for 0.2 %) or "0.2 %"',
         ),
+        "roll_uncertainty": _u(
+            "deg", 10.0, "give the standard uncertainty of the horizontal in degrees"
+        ),
     },
     "throws": {
         "track": _Key("path"),
@@ -525,10 +528,13 @@ class Job:
 
     # -- budget inputs ------------------------------------------------------------------------
 
-    def input_quantities(self, scale_relative_uncertainty: float | None = None) -> list:
+    def input_quantities(self, scale_relative_uncertainty: float | None = None,
+                         roll_uncertainty: float | None = None) -> list:  # fmt: skip
         """The uncertainty budget's inputs (everything but the fit's statistical part).
 
-        ``scale_relative_uncertainty`` overrides [camera] (e.g. from a footage calibration).
+        ``scale_relative_uncertainty`` [1] and ``roll_uncertainty`` [deg] override [camera]
+        (e.g. from a footage calibration).  The camera roll (an error in the horizontal) is
+        an input only when its uncertainty is known and > 0.
         """
         s = self.specimen
         q = [s["mass"].input("mass", "specimen mass")]
@@ -559,6 +565,17 @@ class Job:
                 "length_scale", 1.0, float(rel or 0.0), "", description="length scale (relative)"
             )  # fmt: skip
         )
+        roll = c.get("roll_uncertainty") if roll_uncertainty is None else roll_uncertainty
+        if roll:
+            q.append(
+                InputQuantity(
+                    "roll",
+                    0.0,
+                    float(roll),
+                    "°",
+                    description="camera roll (error of the horizontal)",
+                )  # fmt: skip
+            )
         g = self.site["gravity"]
         q.append(
             g.input(
@@ -1037,6 +1054,8 @@ def _camera(where, d):
         )
     if "scale_relative_uncertainty" in d:
         out["scale_relative_uncertainty"] = d["scale_relative_uncertainty"]
+    if "roll_uncertainty" in d:
+        out["roll_uncertainty"] = d["roll_uncertainty"]
     return out
 
 
@@ -1251,6 +1270,9 @@ scale_relative_uncertainty = 0.002   # -, relative standard uncertainty of the t
                                      #    with track CSVs.  Footage throws bring their
                                      #    own from their calibration; given here, this
                                      #    value is used for them instead.
+# roll_uncertainty = 0.05         # deg, standard uncertainty of the horizontal (camera
+                                  #    level); footage throws bring their own from the
+                                  #    marker calibration; given here, it is used instead
 
 # One [[throws]] table per throw; all throws share the drag coefficient.
 [[throws]]

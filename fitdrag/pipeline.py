@@ -142,6 +142,23 @@ def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
     return max(vals), how
 
 
+def roll_uncertainty(job, tracks) -> tuple[float, str]:
+    """Standard uncertainty of the camera's horizontal for the budget [deg], and its source.
+
+    ``[camera] roll_uncertainty``, when stated, applies to every throw; otherwise the
+    largest of the footage calibrations' ``roll_uncertainty_deg`` (0 when no throw brings
+    one: CSV tracks carry no information about the level of their frame).
+    """
+    stated = job.camera.get("roll_uncertainty")
+    if stated is not None:
+        return float(stated), "stated in the job file ([camera] roll_uncertainty)"
+    vals = [float(tr.meta["roll_uncertainty_deg"]) for tr in tracks
+            if "roll_uncertainty_deg" in tr.meta]  # fmt: skip
+    if not vals:
+        return 0.0, "not stated (no camera-roll input in the budget)"
+    return max(vals), "footage calibration" if len(vals) == 1 else "largest of the calibrations"
+
+
 def _vu(m) -> dict:
     return {"value": m.value, "standard_uncertainty": m.uncertainty}
 
@@ -242,7 +259,8 @@ def measure(
         raise FitFailed(f"the fit did not converge: {fit.message}")
 
     u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
-    inputs = job.input_quantities(scale_relative_uncertainty=u_scale)
+    u_roll, u_roll_source = roll_uncertainty(job, tracks)
+    inputs = job.input_quantities(scale_relative_uncertainty=u_scale, roll_uncertainty=u_roll)
     nominal = {q.name: q.value for q in inputs}
     model = DragRefitModel(
         fit, tracks, nominal, length=job.specimen.get("length"), viscosity=air.viscosity
@@ -334,6 +352,8 @@ def measure(
             "fps": _vu(job.camera["fps"]),
             "scale_relative_uncertainty": u_scale,
             "scale_relative_uncertainty_source": u_scale_source,
+            "roll_uncertainty_deg": u_roll,
+            "roll_uncertainty_source": u_roll_source,
         },
         "footage": _footage_report(job, tracks),
         "method": _method(fit_dict, fit, budget, mc),

@@ -427,3 +427,18 @@ def test_footage_files_and_track_throw_options(footage_dir):
     text = _edit(_CAMERA_U, "", TEMPLATE + '\n[[throws]]\nfootage = "clip.avi"\nscale = 1e-3\n')
     with pytest.raises(ValueError, match=r"\[camera\] scale_relative_uncertainty: missing"):
         load_job(_write(footage_dir, text))
+
+
+def test_camera_roll_uncertainty_becomes_a_budget_input(job_dir):
+    """regression: [camera] roll_uncertainty [deg] adds a 'roll' input (nominal 0) to the
+    budget; a footage calibration's value can be passed instead; absent, there is none."""
+    text = _edit("fps_uncertainty = 0.05", 'fps_uncertainty = 0.05\nroll_uncertainty = "0.05 deg"')
+    job = load_job(_write(job_dir, text))
+    roll = [q for q in job.input_quantities() if q.name == "roll"]
+    assert len(roll) == 1 and roll[0].value == 0.0
+    assert roll[0].standard_uncertainty == pytest.approx(0.05)
+    assert [q for q in job.input_quantities(roll_uncertainty=0.2) if q.name == "roll"][
+        0
+    ].standard_uncertainty == pytest.approx(0.2)
+    plain = load_job(write_template(job_dir / "plain.toml"))
+    assert "roll" not in [q.name for q in plain.input_quantities()]

@@ -278,6 +278,8 @@ class Calibration:
             meta["marker_ids"] = " ".join(str(i) for i in d["ids"])
         if "rotation_deg" in d:
             meta["rotation_deg"] = float(d["rotation_deg"])
+        if "roll_uncertainty_deg" in d:
+            meta["roll_uncertainty_deg"] = float(d["roll_uncertainty_deg"])
         if "scale_bias_bound_relative" in d:
             meta["scale_bias_bound_relative"] = float(d["scale_bias_bound_relative"])
         if self.lens is not None:
@@ -1009,7 +1011,18 @@ def _similarity_from_markers(obs, size, ids, scales, lens, common, u_bias, u_siz
     rel_corner = np.array([o.side_sigma_px / o.side_px for o in obs])
     u_corner = float(np.sqrt(np.sum(rel_corner**2)) / n)
     u = math.sqrt(u_spread**2 + u_corner**2 + u_bias**2 + u_size**2)
-    rot = _circular_mean_deg(np.array([o.angle_deg for o in obs]))
+    angles = np.array([o.angle_deg for o in obs])
+    rot = _circular_mean_deg(angles)
+    # roll: each marker's angle from its 4 corners has variance σ²/Σr² = σ²/(2 L²) (a
+    # least-squares rotation of points at r = L/√2); the mean of n markers, plus their
+    # spread (markers not stuck level with one another) as a standard error
+    u_each = np.array(
+        [math.degrees(float(np.sqrt(np.mean(o.corner_sigma_px**2))) / (math.sqrt(2.0) * o.side_px))
+         for o in obs]
+    )  # fmt: skip
+    dev = (angles - rot + 180.0) % 360.0 - 180.0
+    u_roll_spread = float(np.std(dev, ddof=1) / math.sqrt(n)) if n >= 2 else 0.0
+    u_roll = math.sqrt(float(np.sum(u_each**2)) / n**2 + u_roll_spread**2)
     first = obs[0]  # lowest id
     origin_u = tuple(first.corners[3])  # lower-left corner as seen upright (undistorted px)
     h = _similarity(s, origin_u, rot)
@@ -1020,6 +1033,7 @@ def _similarity_from_markers(obs, size, ids, scales, lens, common, u_bias, u_siz
         "origin_marker_id": first.id,
         "origin_px": tuple(float(v) for v in first.corners_raw[3]),
         "rotation_deg": rot,
+        "roll_uncertainty_deg": u_roll,
         "u_spread_relative": u_spread,
         "u_corner_relative": u_corner,
         "square_fit_rms_px": rms,
@@ -1101,6 +1115,19 @@ def _homography_from_markers(obs, size, layout, lens, common, u_bias, u_size):
         grad[k] = (local_scale(hvec + dp) - local_scale(hvec - dp)) / (2 * steps[k])
     u_fit = float(math.sqrt(max(grad @ cov @ grad, 0.0))) / s
     u = math.sqrt(u_fit**2 + u_bias**2 + u_size**2)
+
+    def local_roll(hv: np.ndarray) -> float:
+        # direction of the image x axis in the world at the image centre [deg]
+        h = np.linalg.inv(np.append(hv, 1.0).reshape(3, 3))
+        j = _local_jacobian(h, cu, cv)
+        return math.degrees(math.atan2(j[1, 0], j[0, 0]))
+
+    groll = np.empty(8)
+    for k in range(8):
+        dp = np.zeros(8)
+        dp[k] = steps[k]
+        groll[k] = (local_roll(hvec + dp) - local_roll(hvec - dp)) / (2 * steps[k])
+    u_roll = float(math.sqrt(max(groll @ cov @ groll, 0.0)))
     h_i2w = np.linalg.inv(np.append(hvec, 1.0).reshape(3, 3))
     h_i2w = h_i2w / h_i2w[2, 2]
     jc = _local_jacobian(h_i2w, cu, cv)
@@ -1114,6 +1141,7 @@ def _homography_from_markers(obs, size, layout, lens, common, u_bias, u_size):
         "corner_sigma_source": sigma_source,
         "degrees_of_freedom": dof,
         "u_fit_relative": u_fit,
+        "roll_uncertainty_deg": u_roll,
         "scale_x_m_per_px": float(np.hypot(jc[0, 0], jc[1, 0])),
         "scale_y_m_per_px": float(np.hypot(jc[0, 1], jc[1, 1])),
         "residuals_px": resid.reshape(-1, 2).tolist(),
