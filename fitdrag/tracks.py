@@ -474,7 +474,8 @@ def read_track(
     Track
         With ``meta`` holding ``source`` (path), ``sha256`` (of the file's bytes), ``import``
         (the options used), ``dropped_rows`` (1-based line numbers), ``header`` (key/value
-        comment lines) and, if the header states it, ``scale_relative_uncertainty`` (float).
+        comment lines) and, if the header states them, ``scale_relative_uncertainty`` [1]
+        and ``roll_uncertainty_deg`` [deg] (floats).
 
     Raises
     ------
@@ -788,15 +789,17 @@ def read_track(
         "dropped_rows": dropped,
         "header": header_meta,
     }
-    if "scale_relative_uncertainty" in header_meta:
-        text_ = header_meta["scale_relative_uncertainty"]
-        v = _parse_cell(text_)
-        if v is None or not math.isfinite(v) or v < 0:
-            raise ValueError(
-                f"{src}: header entry 'scale_relative_uncertainty' must be a number >= 0 "
-                f"[1], got {text_!r}; correct that comment line or delete it."
-            )
-        meta["scale_relative_uncertainty"] = v
+    # calibration uncertainties stated in the header travel as numbers
+    for key, unit in (("scale_relative_uncertainty", "1"), ("roll_uncertainty_deg", "deg")):
+        if key in header_meta:
+            text_ = header_meta[key]
+            v = _parse_cell(text_)
+            if v is None or not math.isfinite(v) or v < 0:
+                raise ValueError(
+                    f"{src}: header entry '{key}' must be a number >= 0 [{unit}], got "
+                    f"{text_!r}; correct that comment line or delete it."
+                )
+            meta[key] = v
     return Track(t=t, x=x, y=y, sigma=sigma, frame=frame, meta=meta)
 
 

@@ -898,3 +898,15 @@ def test_cli_negative_origin_and_every_help_has_a_unit():
     for action in group._group_actions:
         h = action.help
         assert re.search(r"\[[^\]]+\]|no unit|in --units", h), (action.option_strings, h)
+
+
+def test_header_roll_uncertainty_is_a_number(tmp_path):
+    """regression: a `# roll_uncertainty_deg: ...` header line (written by `fitdrag track`)
+    arrives in meta as a float; a non-number is refused naming the entry."""
+    rows = "".join(f"{i * 0.01},{i * 0.1},{i * 0.05}\n" for i in range(9))
+    p = tmp_path / "roll.csv"
+    p.write_text("# roll_uncertainty_deg: 0.012\nt,x,y\n" + rows, encoding="utf-8")
+    assert read_track(p).meta["roll_uncertainty_deg"] == 0.012
+    p.write_text("# roll_uncertainty_deg: level\nt,x,y\n" + rows, encoding="utf-8")
+    with pytest.raises(ValueError, match=r"header entry 'roll_uncertainty_deg' must be a number"):
+        read_track(p)
