@@ -181,6 +181,18 @@ def make_clip(force: bool) -> None:
               *(["--force"] if force else [])])  # fmt: skip
     finally:
         os.chdir(cwd)
+    _label_synthetic(HERE / CLIP_TRACK)
+
+
+SYNTHETIC_LINE = "# synthetic: yes (tracked from rendered footage; see sample_tracks/README.md)\n"
+
+
+def _label_synthetic(path) -> None:
+    """Add a `# synthetic: yes` header line to a track CSV made from rendered footage."""
+    lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
+    if SYNTHETIC_LINE not in lines:
+        lines.insert(1, SYNTHETIC_LINE)
+        path.write_text("".join(lines), encoding="utf-8")
 
 
 # ------------------------------------------------------------------------------- job files
