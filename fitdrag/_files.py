@@ -50,7 +50,7 @@ def check_output(path: str | os.PathLike, *, force: bool = False) -> Path:
 
 
 def write_atomic(path: str | os.PathLike, write: Callable[[Path], None], *,
-                 force: bool = False) -> Path:  # fmt: skip
+                 force: bool = False, check: Callable[[Path], object] | None = None) -> Path:  # fmt: skip
     """Create ``path`` through ``write(temporary_path)``, atomically.
 
     Parameters
@@ -62,6 +62,9 @@ def write_atomic(path: str | os.PathLike, write: Callable[[Path], None], *,
         ends in ``.tmp``: pass the format explicitly, e.g. ``savefig(p, format="png")``).
     force : bool
         Replace an existing file.
+    check : callable, optional
+        ``check(temporary_path)`` may raise to refuse the content before it replaces
+        anything (e.g. "the file must load back as a track").
 
     Returns
     -------
@@ -74,6 +77,8 @@ def write_atomic(path: str | os.PathLike, write: Callable[[Path], None], *,
     tmp = Path(name)
     try:
         write(tmp)
+        if check is not None:
+            check(tmp)
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
         os.chmod(tmp, 0o666 & ~_umask())

@@ -7,9 +7,7 @@ write the CSV (and the preview picture) atomically, print a summary.
 from __future__ import annotations
 
 import argparse
-import os
 import sys
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -120,23 +118,9 @@ def _check_output(path: str | None, option: str, force: bool) -> Path | None:
 def _write_atomic(path: Path, write, force: bool, check=None) -> None:
     """Write through a temporary file in the same folder (``check(tmp)`` may refuse it
     before it replaces ``path``); never leave a partial file behind."""
-    from fitdrag.tracks import OutputExistsError
+    from fitdrag._files import write_atomic
 
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
-        write(tmp)
-        if check is not None:
-            check(tmp)
-        mask = os.umask(0o022)
-        os.umask(mask)
-        os.chmod(tmp, 0o666 & ~mask)
-        if path.exists() and not force:
-            raise OutputExistsError(f"{path}: exists; pass --force to overwrite it.")
-        os.replace(tmp, path)
-    finally:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
+    write_atomic(path, write, force=force, check=check)
 
 
 def _stretch(img: np.ndarray) -> np.ndarray:
