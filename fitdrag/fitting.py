@@ -422,6 +422,15 @@ class _Problem:
             g = np.rint(np.diff(tr.t[idx]) / step).astype(int)
             self.gaps.append(np.maximum(g, 1))
         self.n_resid = 2 * sum(i.size for i in self.index)
+        # per throw: the kept samples (a slice when all are kept), and per axis the kept
+        # observations and inverse sigmas, so that evaluate() does no repeated indexing
+        self._pre = []
+        for i, (tr, idx) in enumerate(zip(self.tracks, self.index)):
+            sel = slice(None) if idx.size == len(tr) else idx
+            axes = []
+            for axis, obs in ((0, tr.x), (1, tr.y)):
+                axes.append((np.ascontiguousarray(obs[sel]), 1.0 / self.sigmas[i][sel, axis]))
+            self._pre.append((sel, idx.size, self.n_shared + 4 * i, axes))
         self._cache_theta = None
 
     def set_state(self, masks=None, sigmas=None, phi=None):
@@ -468,23 +477,25 @@ class _Problem:
         jac = np.zeros((self.n_resid, self.n_params))
         row = 0
         ok = True
-        for i, (tr, (status, pos, _vel, sj)) in enumerate(zip(self.tracks, sims)):
-            idx = self.index[i]
-            m = idx.size
+        ns = self.n_shared
+        for i, (sel, m, base, axes) in enumerate(self._pre):
+            status, pos, _vel, sj = sims[i]
             if status != 0 or not np.all(np.isfinite(pos)):
                 ok = False
                 res[row : row + 2 * m] = _FAIL_RESIDUAL
                 row += 2 * m
                 continue
-            cols = np.r_[self.n_shared + 4 * i : self.n_shared + 4 * i + 4, 0 : self.n_shared]
-            for axis, obs in ((0, tr.x), (1, tr.y)):
-                s = self.sigmas[i][idx, axis]
-                r = (obs[idx] - pos[idx, axis]) / s
-                j = -sj[idx, axis, :] / s[:, None]
-                r = self._whiten(r, self.gaps[i], self.phi[axis])
-                j = self._whiten(j, self.gaps[i], self.phi[axis])
+            for axis, (obs, inv_s) in enumerate(axes):
+                r = (obs - pos[sel, axis]) * inv_s
+                j = sj[sel, axis, :] * (-inv_s)[:, None]
+                f = self.phi[axis]
+                if f != 0.0:
+                    r = self._whiten(r, self.gaps[i], f)
+                    j = self._whiten(j, self.gaps[i], f)
                 res[row : row + m] = r
-                jac[row : row + m][:, cols] = j
+                # columns: the throw's launch state, then the shared parameters
+                jac[row : row + m, base : base + 4] = j[:, :4]
+                jac[row : row + m, :ns] = j[:, 4:]
                 row += m
         self._cache_theta = theta.copy()
         self._cache = (res, jac, sims, ok)
