@@ -155,3 +155,13 @@ def conditions_from_args(args, wind: float = 0.0) -> Conditions:
         wind=wind,
         buoyancy=not args.no_buoyancy,
     )
+
+
+def add_track_fit_inputs(parser: argparse.ArgumentParser) -> None:
+    """The inputs of every command that fits tracks: the files, specimen, air and import."""
+    from fitdrag.commands._import_options import add_import_options
+
+    parser.add_argument("tracks", nargs="+", metavar="TRACK.csv", help="track files (CSV)")
+    add_specimen_options(parser)
+    add_air_options(parser)
+    add_import_options(parser)

@@ -7,10 +7,9 @@ import json
 import sys
 from pathlib import Path
 
-from fitdrag.commands._import_options import add_import_options, read_tracks_from_args
+from fitdrag.commands._import_options import read_tracks_from_args
 from fitdrag.commands._options import (
-    add_air_options,
-    add_specimen_options,
+    add_track_fit_inputs,
     conditions_from_args,
     quantity,
     specimen_from_args,
@@ -41,10 +40,7 @@ def register(sub) -> argparse.ArgumentParser:
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("tracks", nargs="+", metavar="TRACK.csv", help="track files (CSV)")
-    add_specimen_options(p)
-    add_air_options(p)
-    add_import_options(p)
+    add_track_fit_inputs(p)
     f = p.add_argument_group("fit")
     f.add_argument("--robust", action=argparse.BooleanOptionalAction, default=True,
                    help="robust loss and rejection of gross outliers (default on)")  # fmt: skip
