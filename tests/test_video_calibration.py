@@ -3,11 +3,12 @@
 Independent references used here:
 
 * closed-form similarity transforms (scale, rotation, translation) worked by hand;
-* synthetic marker images rendered in this file, independently of the code under test: the
-  DICT_4X4_50 bit pattern from ``cv2.aruco.generateImageMarker`` area-sampled (12 x 12
-  samples per pixel) through a known plane homography, with a Gaussian point-spread function
-  applied before pixel integration and Gaussian noise.  The exact corner positions follow from
-  the homography, so the recovered scale, origin and mapping can be checked against them.
+* synthetic marker images from :func:`fitdrag.video.synthetic.render_marker_board`, which
+  shares no code with the calibration under test: the DICT_4X4_50 bit pattern from
+  ``cv2.aruco.generateImageMarker`` area-sampled (12 x 12 samples per pixel) through a known
+  plane homography, with a Gaussian point-spread function applied before pixel integration
+  and Gaussian noise.  The exact corner positions follow from the homography, so the
+  recovered scale, origin and mapping can be checked against them.
 """
 
 from __future__ import annotations
@@ -30,63 +31,20 @@ from fitdrag.video.calibration import (
     marker_scale_bias_bound,
 )
 from fitdrag.video.lens import LensModel
+from fitdrag.video.synthetic import render_marker_board
 
 SIZE = 0.05  # marker side [m]
 
 
 # ------------------------------------------------------------------------------------------
-# Independent marker renderer
+# Marker renderer (independent of the calibration code)
 # ------------------------------------------------------------------------------------------
 
 
 def render_markers(shape, layout, size, h_w2i, *, ss=12, blur=0.8, noise=2.0, seed=0):
     """Upright markers, lower-left corners at ``layout`` [m], side ``size`` [m], on paper."""
-    h, w = shape
-    dic = cv2.aruco.getPredefinedDictionary(cv2.aruco.DICT_4X4_50)
-    hi = np.linalg.inv(h_w2i)
-    img = np.full((h, w), 90.0)
-    pad = int(np.ceil(4 * blur)) + 2
-    for layer in ("paper", "marker"):
-        for mid, (x0, y0) in layout.items():
-            m = 0.5 if layer == "paper" else 0.0
-            quad = np.array(
-                [
-                    [x0 - m * size, y0 - m * size],
-                    [x0 + (1 + m) * size, y0 - m * size],
-                    [x0 + (1 + m) * size, y0 + (1 + m) * size],
-                    [x0 - m * size, y0 + (1 + m) * size],
-                ]
-            )
-            q = cv2.perspectiveTransform(quad[None], h_w2i)[0]
-            u0, v0 = np.floor(q.min(0)).astype(int) - pad
-            u1, v1 = np.ceil(q.max(0)).astype(int) + pad
-            u0, v0, u1, v1 = max(u0, 0), max(v0, 0), min(u1, w - 1), min(v1, h - 1)
-            s = ss if layer == "marker" else 4
-            uu, vv = np.meshgrid(
-                u0 + (np.arange((u1 - u0 + 1) * s) + 0.5) / s - 0.5,
-                v0 + (np.arange((v1 - v0 + 1) * s) + 0.5) / s - 0.5,
-            )
-            den = hi[2, 0] * uu + hi[2, 1] * vv + hi[2, 2]
-            a = ((hi[0, 0] * uu + hi[0, 1] * vv + hi[0, 2]) / den - x0) / size
-            b = ((hi[1, 0] * uu + hi[1, 1] * vv + hi[1, 2]) / den - y0) / size
-            inside = (a >= -m) & (a < 1 + m) & (b >= -m) & (b < 1 + m)
-            if layer == "paper":
-                up = np.repeat(np.repeat(img[v0 : v1 + 1, u0 : u1 + 1], s, 0), s, 1)
-                up = np.where(inside, 200.0, up)
-            else:
-                bits = cv2.aruco.generateImageMarker(dic, mid, 6, borderBits=1)
-                col = np.clip((a * 6).astype(int), 0, 5)
-                row = np.clip(((1 - b) * 6).astype(int), 0, 5)
-                up = np.where(inside, np.where(bits[row, col] > 0, 200.0, 25.0), 200.0)
-                if blur > 0:
-                    up = cv2.GaussianBlur(up, (0, 0), blur * s, borderType=cv2.BORDER_REPLICATE)
-            img[v0 : v1 + 1, u0 : u1 + 1] = up.reshape(v1 - v0 + 1, s, u1 - u0 + 1, s).mean(
-                axis=(1, 3)
-            )
-        if layer == "paper" and blur > 0:
-            img = cv2.GaussianBlur(img, (0, 0), blur)
-    img = img + np.random.default_rng(seed).normal(0.0, noise, img.shape)
-    return np.clip(img, 0, 255)
+    return render_marker_board(shape, layout, size, h_w2i, ss=ss, blur=blur, noise=noise,
+                               rng=np.random.default_rng(seed))  # fmt: skip
 
 
 def similarity_w2i(px_per_m, roll_deg, origin_px):

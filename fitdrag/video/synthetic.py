@@ -592,6 +592,103 @@ class FlightRenderer:
             yield self.frame(k)
 
 
+def render_marker_board(
+    shape,
+    layout,
+    size,
+    h_w2i,
+    *,
+    ss=12,
+    blur=0.0,
+    noise=0.0,
+    rng=None,
+    paper=200.0,
+    ink=25.0,
+    background=90.0,
+    margin=0.5,
+):
+    """Upright ArUco markers (DICT_4X4_50) on white paper, seen through a plane homography.
+
+    Parameters
+    ----------
+    shape : (int, int)
+        Image height and width. [px]
+    layout : mapping
+        Marker id -> world position of its lower-left corner (x, y). [m]
+    size : float
+        Marker side. [m]
+    h_w2i : ndarray
+        3x3 homography, world (m, y up) -> image (px, y down).
+    ss : int
+        Samples per pixel along each axis for the markers.
+    blur : float
+        Standard deviation of the Gaussian point-spread function. [px]
+    noise : float
+        Standard deviation of additive Gaussian noise. [grey levels]
+    rng : numpy Generator, optional
+        Noise source (default: seed 0).
+    paper, ink, background : float
+        Grey levels of the paper, the black cells and the scene. [grey levels]
+    margin : float
+        White paper around each marker, as a fraction of its side. [1]
+
+    Each marker is rendered on a supersampled grid (``ss`` x ``ss`` samples per pixel), blurred
+    there with a Gaussian point-spread function of standard deviation ``blur`` [px] (optics act
+    before the pixels integrate) and area-averaged into pixels.  The paper's outline is drawn
+    coarsely (it is far from the marker edges).
+    """
+    h, w = shape
+    cv2 = _cv2()
+    dic = cv2.aruco.getPredefinedDictionary(cv2.aruco.DICT_4X4_50)
+    hi = np.linalg.inv(h_w2i)
+    img = np.full((h, w), background)
+    pad = int(np.ceil(4 * blur)) + 2
+    for layer in ("paper", "marker"):
+        for mid, (x0, y0) in layout.items():
+            m = margin if layer == "paper" else 0.0
+            quad = np.array(
+                [
+                    [x0 - m * size, y0 - m * size],
+                    [x0 + (1 + m) * size, y0 - m * size],
+                    [x0 + (1 + m) * size, y0 + (1 + m) * size],
+                    [x0 - m * size, y0 + (1 + m) * size],
+                ]
+            )
+            q = cv2.perspectiveTransform(quad[None], h_w2i)[0]
+            u0, v0 = np.floor(q.min(0)).astype(int) - pad
+            u1, v1 = np.ceil(q.max(0)).astype(int) + pad
+            u0, v0, u1, v1 = max(u0, 0), max(v0, 0), min(u1, w - 1), min(v1, h - 1)
+            if u1 <= u0 or v1 <= v0:
+                continue
+            s = ss if layer == "marker" else 4
+            uu, vv = np.meshgrid(
+                u0 + (np.arange((u1 - u0 + 1) * s) + 0.5) / s - 0.5,
+                v0 + (np.arange((v1 - v0 + 1) * s) + 0.5) / s - 0.5,
+            )
+            den = hi[2, 0] * uu + hi[2, 1] * vv + hi[2, 2]
+            a = ((hi[0, 0] * uu + hi[0, 1] * vv + hi[0, 2]) / den - x0) / size
+            b = ((hi[1, 0] * uu + hi[1, 1] * vv + hi[1, 2]) / den - y0) / size
+            inside = (a >= -m) & (a < 1 + m) & (b >= -m) & (b < 1 + m)
+            if layer == "paper":
+                up = np.repeat(np.repeat(img[v0 : v1 + 1, u0 : u1 + 1], s, 0), s, 1)
+                up = np.where(inside, paper, up)
+            else:
+                bits = cv2.aruco.generateImageMarker(dic, mid, 6, borderBits=1)
+                col = np.clip((a * 6).astype(int), 0, 5)
+                row = np.clip(((1 - b) * 6).astype(int), 0, 5)
+                up = np.where(inside, np.where(bits[row, col] > 0, paper, ink), paper)
+                if blur > 0:
+                    up = cv2.GaussianBlur(up, (0, 0), blur * s, borderType=cv2.BORDER_REPLICATE)
+            img[v0 : v1 + 1, u0 : u1 + 1] = up.reshape(v1 - v0 + 1, s, u1 - u0 + 1, s).mean(
+                axis=(1, 3)
+            )
+        if layer == "paper" and blur > 0:
+            img = cv2.GaussianBlur(img, (0, 0), blur)
+    if noise > 0:
+        img = img + (rng or np.random.default_rng(0)).normal(0, noise, img.shape)
+    return np.clip(img, 0, 255)
+
+
 def render_flight(trajectory, n_frames: int, fps: float, **options) -> SyntheticFootage:
     """Render synthetic footage of a ball flying along ``trajectory``.
 
