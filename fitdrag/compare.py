@@ -53,6 +53,7 @@ import numpy as np
 from scipy import stats
 
 from fitdrag.air import STANDARD_GRAVITY, Air
+from fitdrag.fitting import frame_gaps, prais_winsten
 from fitdrag.forces import get_drag_model
 from fitdrag.tracks import Track
 
@@ -115,22 +116,12 @@ def _kept_tracks(fit, tracks: Sequence[Track]) -> list[Track]:
     return out
 
 
-def _gaps(t: np.ndarray) -> np.ndarray:
-    dt = np.diff(t)
-    step = float(np.min(dt)) if dt.size else 1.0
-    return np.maximum(np.rint(dt / step).astype(int), 1)
-
-
 def _whiten(e: np.ndarray, gaps: np.ndarray, phi: float) -> tuple[np.ndarray, float]:
     """Prais–Winsten transform of a unit-scale series and ln |det| of the transform [3]."""
     if phi == 0.0 or e.size < 2:
         return e, 0.0
     pd = phi**gaps
-    s = 1.0 - pd * pd
-    w = np.empty_like(e)
-    w[0] = e[0]
-    w[1:] = (e[1:] - pd * e[:-1]) / np.sqrt(s)
-    return w, -0.5 * float(np.sum(np.log(s)))
+    return prais_winsten(e, gaps, phi), -0.5 * float(np.sum(np.log(1.0 - pd * pd)))
 
 
 def _groups(fit, tracks: Sequence[Track]):
@@ -139,7 +130,7 @@ def _groups(fit, tracks: Sequence[Track]):
     out = []
     for tr, th in zip(tracks, fit.throws):
         u = th.used
-        gaps = _gaps(th.t[u])
+        gaps = frame_gaps(th.t, np.flatnonzero(u))
         sig = np.ones(int(u.sum())) if tr.sigma is None else tr.sigma[u]
         for axis, r in ((0, th.residual_x[u]), (1, th.residual_y[u])):
             w, logdet = _whiten(r / sig, gaps, phi[axis])

@@ -265,6 +265,41 @@ class FitResult:
 # ----------------------------------------------------------------------------- helpers
 
 
+def frame_gaps(t, kept) -> np.ndarray:
+    """Gap, in frames, between consecutive kept samples (1 for neighbours).
+
+    Parameters
+    ----------
+    t : ndarray
+        All sample times of a throw; their smallest spacing is one frame. [s]
+    kept : ndarray of int
+        Indices of the kept samples.
+    """
+    dt = np.diff(t)
+    step = float(np.min(dt)) if dt.size else 1.0
+    return np.maximum(np.rint(np.diff(t[kept]) / step).astype(int), 1)
+
+
+def prais_winsten(a, gaps, phi: float):
+    """Prais–Winsten transform along the first axis, with gaps of ``gaps`` frames [1].
+
+    For residuals with AR(1) correlation φ per frame and unit marginal variance, the result
+    has independent unit-variance rows: w₀ = a₀, wᵢ = (aᵢ − φ^d aᵢ₋₁) / √(1 − φ^(2d)).
+    ``a`` may be 1-D (residuals) or 2-D (Jacobian rows).
+    """
+    if phi == 0.0 or len(a) < 2:
+        return a
+    w = np.empty_like(a)
+    w[0] = a[0]
+    pd = phi**gaps
+    scale = 1.0 / np.sqrt(1.0 - pd * pd)
+    if a.ndim == 1:
+        w[1:] = (a[1:] - pd * a[:-1]) * scale
+    else:
+        w[1:] = (a[1:] - pd[:, None] * a[:-1]) * scale[:, None]
+    return w
+
+
 def _cd_and_gradient(dm, theta, constants, re: float) -> tuple[float, np.ndarray]:
     """C_d at ``re`` and its gradient with respect to all fitted parameters θ."""
     n_fit = len(dm.parameters)
@@ -417,10 +452,7 @@ class _Problem:
         for tr, mask in zip(self.tracks, self.masks):
             idx = np.flatnonzero(mask)
             self.index.append(idx)
-            dt = np.diff(tr.t)
-            step = float(np.min(dt)) if dt.size else 1.0
-            g = np.rint(np.diff(tr.t[idx]) / step).astype(int)
-            self.gaps.append(np.maximum(g, 1))
+            self.gaps.append(frame_gaps(tr.t, idx))
         self.n_resid = 2 * sum(i.size for i in self.index)
         # per throw: the kept samples (a slice when all are kept), and per axis the kept
         # observations and inverse sigmas, so that evaluate() does no repeated indexing
@@ -453,20 +485,6 @@ class _Problem:
             out.append((status, pos, vel, jac))
         return out
 
-    def _whiten(self, r, gaps, phi):
-        """Prais–Winsten transform along one axis with gaps (in frames) [1]."""
-        if phi == 0.0:
-            return r
-        w = np.empty_like(r)
-        w[0] = r[0]
-        pd = phi**gaps
-        scale = 1.0 / np.sqrt(1.0 - pd * pd)
-        if r.ndim == 1:
-            w[1:] = (r[1:] - pd * r[:-1]) * scale
-        else:
-            w[1:] = (r[1:] - pd[:, None] * r[:-1]) * scale[:, None]
-        return w
-
     def evaluate(self, theta):
         theta = np.asarray(theta, float)
         if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
@@ -490,8 +508,8 @@ class _Problem:
                 j = sj[sel, axis, :] * (-inv_s)[:, None]
                 f = self.phi[axis]
                 if f != 0.0:
-                    r = self._whiten(r, self.gaps[i], f)
-                    j = self._whiten(j, self.gaps[i], f)
+                    r = prais_winsten(r, self.gaps[i], f)
+                    j = prais_winsten(j, self.gaps[i], f)
                 res[row : row + m] = r
                 # columns: the throw's launch state, then the shared parameters
                 jac[row : row + m, base : base + 4] = j[:, :4]
@@ -543,8 +561,8 @@ def _reml_ar1(problem: _Problem, theta) -> tuple[float, float]:
         logdet = 0.0
         for rows, ax, gaps in blocks:
             f = trial[ax]
-            r[rows] = problem._whiten(r0[rows], gaps, f)
-            j[rows] = problem._whiten(j0[rows], gaps, f)
+            r[rows] = prais_winsten(r0[rows], gaps, f)
+            j[rows] = prais_winsten(j0[rows], gaps, f)
             if f != 0.0:
                 logdet += float(np.sum(np.log1p(-(f ** (2 * gaps)))))
         q, rr = np.linalg.qr(j)
@@ -1485,10 +1503,13 @@ def _result_dict(r: FitResult) -> dict:
             "noise_option": r.options.get("noise"),
             "function_evaluations": d["function_evaluations"],
             "rejection_limit_sigma": d["rejection_limit_sigma"],
-            "method": "weighted nonlinear least squares (lmfit / scipy least_squares, trust "
-            "region reflective) with analytic sensitivities; AR(1) prewhitening when the "
-            "residuals are serially correlated",
-            "integrator": "adaptive Dormand-Prince RK5(4) with forward sensitivities, rtol 1e-10, quartic dense output at the sample times",
+            "method": "weighted nonlinear least squares with the simulator's analytic "
+            "sensitivities: a Levenberg-Marquardt pass from a drag-free start, a robust "
+            "soft-L1 stage (iteratively reweighted) with outlier rejection, Gauss-Newton "
+            "re-solves with the noise re-estimated, AR(1) prewhitening when the residuals "
+            "are serially correlated, and a final lmfit (MINPACK) stage",
+            "integrator": f"adaptive Dormand-Prince RK5(4) with forward sensitivities, rtol "
+            f"{FIT_RTOL:g}, quartic dense output at the sample times",
         },
     }
     if r.lift:

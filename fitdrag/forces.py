@@ -178,7 +178,8 @@ CONSTANT = register_drag_model(
         initial=(0.5,),
         bounds=((0.0, 50.0),),
         kernel=_cd_constant,
-        reference="Quadratic drag with a constant coefficient, F = ½ ρ C_d A |u|² [3].",
+        reference="quadratic drag with a constant coefficient, F = ½ ρ C_d A |u|² "
+        "(Munson et al., Fundamentals of Fluid Mechanics, Wiley)",
         description="constant drag coefficient",
     )
 )

@@ -42,6 +42,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from fitdrag.fitting import prais_winsten
 from fitdrag.forces import Conditions, get_drag_model
 from fitdrag.simulate import FlightModel, Launch
 from fitdrag.tracks import MIN_POINTS
@@ -49,16 +50,6 @@ from fitdrag.tracks import MIN_POINTS
 __all__ = ["PlanResult", "fisher_information", "plan_test"]
 
 _MAX_FPS_FACTOR = 1024.0
-
-
-def _whiten_rows(a: np.ndarray, phi: float) -> np.ndarray:
-    """Prais–Winsten transform along the first axis (unit marginal variance) [3]."""
-    if phi == 0.0:
-        return a
-    w = np.empty_like(a)
-    w[0] = a[0]
-    w[1:] = (a[1:] - phi * a[:-1]) / math.sqrt(1.0 - phi * phi)
-    return w
 
 
 def _check_positive(name: str, value, unit: str, fix: str) -> float:
@@ -123,7 +114,7 @@ def fisher_information(t, specimen, conditions: Conditions, launch: Launch, *,
         )
     info = np.zeros((fm.n_params, fm.n_params))
     for axis in (0, 1):
-        w = _whiten_rows(jac[:, axis, :], ar1)
+        w = prais_winsten(jac[:, axis, :], np.ones(len(jac) - 1, dtype=int), ar1)
         info += w.T @ w
     return fm.parameter_names, info / noise**2, vel
 
