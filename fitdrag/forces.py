@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 import numba
 import numpy as np
 
+from fitdrag._checks import number as _number
 from fitdrag.air import STANDARD_GRAVITY, Air
 
 # --------------------------------------------------------------------------- drag models
@@ -185,13 +186,6 @@ CONSTANT = register_drag_model(
 )
 
 # --------------------------------------------------------------------------- conditions
-
-
-def _number(name: str, value, unit: str, hint: str) -> float:
-    try:
-        return float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected a number in {unit}, got {value!r}; {hint}") from None
 
 
 @dataclass(frozen=True)

@@ -42,6 +42,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from fitdrag._checks import positive_number as _check_positive
 from fitdrag.fitting import prais_winsten
 from fitdrag.forces import Conditions, get_drag_model
 from fitdrag.simulate import FlightModel, Launch
@@ -50,16 +51,6 @@ from fitdrag.tracks import MIN_POINTS
 __all__ = ["PlanResult", "fisher_information", "plan_test"]
 
 _MAX_FPS_FACTOR = 1024.0
-
-
-def _check_positive(name: str, value, unit: str, fix: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected a number in {unit}, got {value!r}; {fix}") from None
-    if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}: must be a finite number > 0 {unit}, got {value!r}; {fix}")
-    return v
 
 
 def fisher_information(t, specimen, conditions: Conditions, launch: Launch, *,

@@ -18,15 +18,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-
-def _positive(name: str, value: float, unit: str, hint: str) -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected a number in {unit}, got {value!r}; {hint}") from None
-    if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}: must be a finite number > 0 {unit}, got {value!r}; {hint}")
-    return v
+from fitdrag._checks import positive_number as _positive
 
 
 def _added_mass(value: float) -> float:
