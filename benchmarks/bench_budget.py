@@ -31,15 +31,15 @@ def main() -> None:
     args = ap.parse_args()
 
     from fitdrag import Air, Sphere, Track, fit_tracks
-    from fitdrag.budget import (
+    from fitdrag.uncertainty.budget import (
         DragRefitModel,
         InputQuantity,
         budget_from_model,
         compare_with_gum,
         monte_carlo,
     )
-    from fitdrag.forces import Conditions
-    from fitdrag.simulate import Launch, simulate
+    from fitdrag.physics.forces import Conditions
+    from fitdrag.physics.simulate import Launch, simulate
 
     fps, n = 400.0, args.points
     t = np.arange(n) / fps

@@ -11,7 +11,7 @@ fixed seed) is fitted
   Jacobian) over ``scipy.integrate.solve_ivp`` RK45 with the same physics (the equation of
   motion with buoyancy and added mass of tests/reference.py) and the same start (Cd = 0.5
   and the launch state from a quadratic through the first max(8, n/5) samples, the start
-  rule stated in fitdrag.fitting's docstring).
+  rule stated in fitdrag.fit.fitting's docstring).
 
 It prints the median seconds per fit of each, their ratio, and the Cd difference in units
 of fitdrag's standard uncertainty.  Target (issue 3): fitdrag ≥ 10× faster at the same

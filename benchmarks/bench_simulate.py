@@ -25,10 +25,10 @@ import time
 import numpy as np
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import STANDARD_GRAVITY, Air
-from fitdrag.forces import Conditions
-from fitdrag.simulate import FlightModel, Launch, simulate
-from fitdrag.specimen import Sphere
+from fitdrag.physics.air import STANDARD_GRAVITY, Air
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.simulate import FlightModel, Launch, simulate
+from fitdrag.physics.specimen import Sphere
 
 MASS, DIAMETER, CD, SPEED, ANGLE, RHO = 0.0027, 0.040, 0.47, 15.0, 30.0, 1.2
 N_SAMPLES, DURATION = 400, 1.0

@@ -7,101 +7,70 @@ The public API for analysts and notebooks::
     result = fitdrag.fit_tracks(track, fitdrag.Sphere(mass=0.0027, diameter=0.040),
                                 fitdrag.Air.from_conditions(21.0, 100800.0, 45.0))
     result.to_dict()["drag_coefficient"]
+
+The names below are imported from their stage on first use (a lazy package face), so
+``import fitdrag`` and ``fitdrag --version`` load nothing else.  The stages, in the order
+data flows: ``physics`` (air, specimen, forces, drag laws, simulator), ``tracks`` (the track
+hand-off and its CSV files), ``video`` (footage to pixel positions and calibration), ``fit``,
+``uncertainty`` (GUM budget, Monte Carlo, decision rules), ``report`` and ``run`` (job files,
+pipeline, records, demo); ``cli`` and ``commands`` sit on top.
 """
 
-from importlib.metadata import PackageNotFoundError, version
+from fitdrag._lazy import lazy_face
+from fitdrag._version import __version__
 
-try:
-    __version__ = version("fitdrag")
-except PackageNotFoundError:  # pragma: no cover - running from a source tree
-    __version__ = "0.0.0+unknown"
+#: Each public name and the module that defines it.
+_WHERE = {
+    "OutputExistsError": "fitdrag._files",
+    "ModelComparison": "fitdrag.fit.compare",
+    "compare_models": "fitdrag.fit.compare",
+    "drag_coefficient_at": "fitdrag.fit.compare",
+    "FitResult": "fitdrag.fit.fitting",
+    "Refit": "fitdrag.fit.fitting",
+    "ThrowResult": "fitdrag.fit.fitting",
+    "fit_tracks": "fitdrag.fit.fitting",
+    "refit": "fitdrag.fit.fitting",
+    "PlanResult": "fitdrag.fit.plan",
+    "plan_test": "fitdrag.fit.plan",
+    "Air": "fitdrag.physics.air",
+    "CIPMRangeWarning": "fitdrag.physics.air",
+    "STANDARD_GRAVITY": "fitdrag.physics.air",
+    "air_viscosity": "fitdrag.physics.air",
+    "dry_air_density": "fitdrag.physics.air",
+    "local_gravity": "fitdrag.physics.air",
+    "moist_air_density": "fitdrag.physics.air",
+    "sphere_correlation_names": "fitdrag.physics.drag_laws",
+    "sphere_drag_coefficient": "fitdrag.physics.drag_laws",
+    "DragModel": "fitdrag.physics.drag_model",
+    "Conditions": "fitdrag.physics.forces",
+    "drag_model_names": "fitdrag.physics.registry",
+    "get_drag_model": "fitdrag.physics.registry",
+    "register_drag_model": "fitdrag.physics.registry",
+    "Flight": "fitdrag.physics.simulate",
+    "FlightModel": "fitdrag.physics.simulate",
+    "Launch": "fitdrag.physics.simulate",
+    "simulate": "fitdrag.physics.simulate",
+    "Body": "fitdrag.physics.specimen",
+    "Sphere": "fitdrag.physics.specimen",
+    "render_certificate": "fitdrag.report.certificate",
+    "DemoResult": "fitdrag.run.demo",
+    "run_demo": "fitdrag.run.demo",
+    "load_job": "fitdrag.run.jobs",
+    "Records": "fitdrag.run.records",
+    "Track": "fitdrag.tracks",
+    "TrackImportWarning": "fitdrag.tracks",
+    "file_sha256": "fitdrag.tracks",
+    "read_track": "fitdrag.tracks",
+    "write_track": "fitdrag.tracks",
+    "InputQuantity": "fitdrag.uncertainty.budget",
+    "budget_from_model": "fitdrag.uncertainty.budget",
+    "monte_carlo": "fitdrag.uncertainty.budget",
+    "Specification": "fitdrag.uncertainty.decision",
+    "decide": "fitdrag.uncertainty.decision",
+    "FootageTrack": "fitdrag.video.tracking",
+    "track_footage": "fitdrag.video.tracking",
+}
 
-from fitdrag.air import (  # noqa: E402
-    STANDARD_GRAVITY,
-    Air,
-    CIPMRangeWarning,
-    air_viscosity,
-    dry_air_density,
-    local_gravity,
-    moist_air_density,
-)
-from fitdrag.budget import InputQuantity, budget_from_model, monte_carlo  # noqa: E402
-from fitdrag.compare import ModelComparison, compare_models, drag_coefficient_at  # noqa: E402
-from fitdrag.demo import DemoResult, run_demo  # noqa: E402
-from fitdrag.drag_models import sphere_correlation_names, sphere_drag_coefficient  # noqa: E402
-from fitdrag.fitting import FitResult, Refit, ThrowResult, fit_tracks, refit  # noqa: E402
-from fitdrag.forces import (  # noqa: E402
-    Conditions,
-    DragModel,
-    drag_model_names,
-    get_drag_model,
-    register_drag_model,
-)
-from fitdrag.jobs import load_job  # noqa: E402
-from fitdrag.plan import PlanResult, plan_test  # noqa: E402
-from fitdrag.records import Records  # noqa: E402
-from fitdrag.report.certificate import render_certificate  # noqa: E402
-from fitdrag.simulate import Flight, FlightModel, Launch, simulate  # noqa: E402
-from fitdrag.specimen import Body, Sphere  # noqa: E402
-from fitdrag.tracks import (  # noqa: E402
-    OutputExistsError,
-    Track,
-    TrackImportWarning,
-    file_sha256,
-    read_track,
-    write_track,
-)
-from fitdrag.verdict import Specification, decide  # noqa: E402
-from fitdrag.video import FootageTrack, track_footage  # noqa: E402
+__all__ = ["__version__", *sorted(_WHERE)]
 
-__all__ = [
-    "__version__",
-    "Air",
-    "Body",
-    "CIPMRangeWarning",
-    "Conditions",
-    "DemoResult",
-    "DragModel",
-    "FitResult",
-    "Flight",
-    "FlightModel",
-    "FootageTrack",
-    "InputQuantity",
-    "Launch",
-    "ModelComparison",
-    "PlanResult",
-    "Records",
-    "Refit",
-    "OutputExistsError",
-    "STANDARD_GRAVITY",
-    "Specification",
-    "Sphere",
-    "ThrowResult",
-    "Track",
-    "TrackImportWarning",
-    "air_viscosity",
-    "budget_from_model",
-    "compare_models",
-    "decide",
-    "drag_coefficient_at",
-    "drag_model_names",
-    "dry_air_density",
-    "file_sha256",
-    "fit_tracks",
-    "get_drag_model",
-    "load_job",
-    "local_gravity",
-    "moist_air_density",
-    "monte_carlo",
-    "plan_test",
-    "read_track",
-    "refit",
-    "register_drag_model",
-    "render_certificate",
-    "run_demo",
-    "simulate",
-    "sphere_correlation_names",
-    "sphere_drag_coefficient",
-    "track_footage",
-    "write_track",
-]
+__getattr__, __dir__ = lazy_face(__name__, _WHERE)

@@ -12,7 +12,7 @@ import importlib
 import pkgutil
 import sys
 
-from fitdrag import __version__
+from fitdrag._version import __version__
 
 
 class _Parser(argparse.ArgumentParser):

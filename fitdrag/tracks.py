@@ -869,7 +869,7 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
     ValueError
         If ``track`` is not a Track or ``path`` is a directory.
     """
-    from fitdrag import __version__
+    from fitdrag._version import __version__
 
     if not isinstance(track, Track):
         raise ValueError(

@@ -76,7 +76,7 @@ RIBBED = {
     },
 }
 
-#: The footage clip: the demo's scene (fitdrag.demo) made smaller.
+#: The footage clip: the demo's scene (fitdrag.run.demo) made smaller.
 CLIP = "foam_ball_clip.avi"
 CLIP_FRAMES = 80
 CLIP_SCENE = {
@@ -133,10 +133,10 @@ def add_outliers() -> list[dict]:
 
 
 def make_ribbed(force: bool) -> None:
-    from fitdrag.air import Air
-    from fitdrag.forces import Conditions
-    from fitdrag.simulate import Launch, simulate
-    from fitdrag.specimen import Sphere
+    from fitdrag.physics.air import Air
+    from fitdrag.physics.forces import Conditions
+    from fitdrag.physics.simulate import Launch, simulate
+    from fitdrag.physics.specimen import Sphere
     from fitdrag.tracks import Track, write_track
 
     rb = RIBBED
@@ -170,7 +170,7 @@ def make_ribbed(force: bool) -> None:
 
 def make_clip(force: bool) -> None:
     """Render the clip and track it with `fitdrag track`."""
-    from fitdrag.demo import make_demo_footage
+    from fitdrag.run.demo import make_demo_footage
 
     truth = make_demo_footage(HERE / CLIP, frames=CLIP_FRAMES, scene=CLIP_SCENE, overwrite=force)
     (HERE / "foam_ball_clip_truth.json").write_text(json.dumps(truth, indent=1) + "\n")

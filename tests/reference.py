@@ -1,6 +1,6 @@
 """Independent reference for tests and benchmarks: the equation of motion integrated by scipy.
 
-Written from the equation in the :mod:`fitdrag.forces` docstring only (none of fitdrag's code
+Written from the equation in the :mod:`fitdrag.physics.forces` docstring only (none of fitdrag's code
 is used here), so that synthetic "truth" does not come from the simulator under test:
 
     (m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ A |u| (C_d u − C_L P u),   u = v − w,

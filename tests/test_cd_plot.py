@@ -11,7 +11,7 @@ import pytest
 import reference as ref
 
 from fitdrag import Air, Sphere, Track, fit_tracks
-from fitdrag.compare import drag_coefficient_at
+from fitdrag.fit.compare import drag_coefficient_at
 from fitdrag.report.cd_plot import cd_curve, plot_cd_vs_re
 
 

@@ -9,7 +9,7 @@ from datetime import UTC, datetime
 import pytest
 
 from fitdrag.commands import records as cmd
-from fitdrag.records import Records
+from fitdrag.run.records import Records
 
 
 def _run(argv):

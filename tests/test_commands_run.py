@@ -15,8 +15,8 @@ import pytest
 import reference as ref
 
 from fitdrag.cli import main
-from fitdrag.jobs import TEMPLATE
-from fitdrag.records import Records
+from fitdrag.run.jobs import TEMPLATE
+from fitdrag.run.records import Records
 
 pypdf = pytest.importorskip("pypdf")
 
@@ -179,7 +179,7 @@ def test_monte_carlo_check(job, capsys):
 
 def test_nonconvergence_exit_3_and_no_record(job, capsys, monkeypatch):
     """regression: a fit that does not converge gives exit code 3 and issues nothing."""
-    import fitdrag.fitting as fitting
+    import fitdrag.fit.fitting as fitting
 
     real = fitting.fit_tracks
 
@@ -273,8 +273,8 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
     (hashlib) is in the JSON, the record and the certificate; the length scale's relative
     uncertainty in the budget is the marker calibration's; the track equals the one
     `fitdrag track` writes with the same calibration."""
-    from fitdrag.jobs import load_job
-    from fitdrag.pipeline import read_throws
+    from fitdrag.run.jobs import load_job
+    from fitdrag.run.pipeline import read_throws
     from fitdrag.tracks import read_track
 
     job = _footage_job(tmp_path, clip)
@@ -320,8 +320,8 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
 def test_footage_scale_uncertainty_stated_in_the_job_wins(clip, tmp_path):
     """regression: [camera] scale_relative_uncertainty, when stated, is used for footage
     throws instead of their calibration's value."""
-    from fitdrag.jobs import load_job
-    from fitdrag.pipeline import length_scale_uncertainty, read_throws
+    from fitdrag.run.jobs import load_job
+    from fitdrag.run.pipeline import length_scale_uncertainty, read_throws
 
     job = load_job(_footage_job(
         tmp_path, clip,

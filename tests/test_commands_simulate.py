@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import STANDARD_GRAVITY, Air, local_gravity
+from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
 from fitdrag.cli import main
 from fitdrag.tracks import read_track
 
@@ -115,7 +115,7 @@ def test_no_buoyancy_added_mass_coefficient_and_gravity(tmp_path, capsys):
 
 def test_air_from_conditions_and_latitude(tmp_path, capsys):
     """closed-form/independent: with --temperature/--pressure/--humidity the density is the
-    CIPM-2007 value of fitdrag.air (tested in test_air against Picard et al. 2008) and with
+    CIPM-2007 value of fitdrag.physics.air (tested in test_air against Picard et al. 2008) and with
     --latitude the WGS84 normal gravity; the track matches DOP853 with those values."""
     out = tmp_path / "room.csv"
     argv = BASE + ["--temperature", "22.5", "--pressure", "100800", "--humidity", "40",

@@ -15,7 +15,7 @@ from fitdrag.report.certificate import (
     write_certificate,
 )
 from fitdrag.report.plots import ThrowCurves
-from fitdrag.verdict import Specification, decide
+from fitdrag.uncertainty.decision import Specification, decide
 
 pypdf = pytest.importorskip("pypdf")
 

@@ -13,7 +13,7 @@ import pytest
 import reference
 from scipy.integrate import solve_ivp
 
-from fitdrag.jobs import load_job
+from fitdrag.run.jobs import load_job
 from fitdrag.tracks import file_sha256, read_track
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_tracks"
@@ -141,7 +141,7 @@ def test_training_ball_job_recovers_the_true_cd():
     """closed-form/independent: the three simulated TB-40 throws (true Cd 0.47, checked against
     scipy above) give, through the job machinery of 'fitdrag run', a Cd within its expanded
     uncertainty of 0.47, and a pass against 0.47 ± 0.03 (guarded acceptance)."""
-    from fitdrag.pipeline import measure
+    from fitdrag.run.pipeline import measure
 
     meas = measure(load_job(SAMPLES / "training_ball.toml"))
     assert abs(meas.fit.cd - 0.47) <= meas.budget.expanded_uncertainty

@@ -11,9 +11,9 @@ import functools
 import math
 import re
 
-from fitdrag.air import STANDARD_GRAVITY, Air, local_gravity
-from fitdrag.forces import Conditions
-from fitdrag.specimen import Body, Sphere
+from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.specimen import Body, Sphere
 
 _NUMBER = re.compile(r"^\s*[-+]?(\d+(\.\d*)?|\.\d+)([eE][-+]?\d+)?\s*$")
 

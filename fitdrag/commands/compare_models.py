@@ -76,7 +76,7 @@ def _write_atomic(path: Path, write) -> None:
 
 
 def run(args) -> int:
-    from fitdrag.compare import DEFAULT_CANDIDATES, compare_models
+    from fitdrag.fit.compare import DEFAULT_CANDIDATES, compare_models
 
     for opt in ("json", "plot"):
         path = getattr(args, opt)

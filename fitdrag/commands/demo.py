@@ -25,7 +25,7 @@ and names it; --force renders and writes everything again.  Nothing is written o
 
 
 def register(sub) -> argparse.ArgumentParser:
-    from fitdrag.demo import DEFAULT_DIRECTORY
+    from fitdrag.run.demo import DEFAULT_DIRECTORY
 
     p = sub.add_parser(
         NAME,
@@ -68,7 +68,7 @@ def _reject_unknown(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args) -> int:
-    from fitdrag.demo import display_path, run_demo
+    from fitdrag.run.demo import display_path, run_demo
 
     print(
         f"fitdrag demo: a synthetic demonstration (invented laboratory, simulated ball) in "

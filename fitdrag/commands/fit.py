@@ -137,7 +137,7 @@ def format_summary(result) -> str:
 
 
 def run(args) -> int:
-    from fitdrag.fitting import fit_tracks
+    from fitdrag.fit.fitting import fit_tracks
 
     _check_outputs(args)
     specimen = specimen_from_args(args)

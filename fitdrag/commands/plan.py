@@ -96,8 +96,8 @@ def noise_from_args(args) -> float:
 
 
 def run(args) -> int:
-    from fitdrag.plan import plan_test
-    from fitdrag.simulate import Launch
+    from fitdrag.fit.plan import plan_test
+    from fitdrag.physics.simulate import Launch
 
     out = Path(args.json) if args.json else None
     if out is not None and out.exists() and not args.force:

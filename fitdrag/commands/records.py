@@ -7,7 +7,7 @@ import json
 import math
 from pathlib import Path
 
-from fitdrag.records import DEFAULT_FILENAME, Records
+from fitdrag.run.records import DEFAULT_FILENAME, Records
 
 
 def register(subparsers) -> argparse.ArgumentParser:

@@ -1,14 +1,14 @@
 """``fitdrag run JOB.toml``: fit, uncertainty budget, conformity decision, certificate, record.
 
-A thin layer over :mod:`fitdrag.pipeline`, whose steps are:
+A thin layer over :mod:`fitdrag.run.pipeline`, whose steps are:
 
-1. :func:`fitdrag.jobs.load_job` — read and validate the job file (nothing is written if it
+1. :func:`fitdrag.run.jobs.load_job` — read and validate the job file (nothing is written if it
    is wrong);
-2. read every throw's track, fit them together (:func:`fitdrag.fitting.fit_tracks`);
+2. read every throw's track, fit them together (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
-   (:func:`fitdrag.budget.budget_from_model` over :class:`fitdrag.budget.DragRefitModel`),
-   and optionally the Monte Carlo check (:func:`fitdrag.budget.monte_carlo`);
-4. the conformity decision (:func:`fitdrag.verdict.decide`);
+   (:func:`fitdrag.uncertainty.budget.budget_from_model` over :class:`fitdrag.uncertainty.budget.DragRefitModel`),
+   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.budget.monte_carlo`);
+4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`);
 5. in one records transaction: allocate the certificate number, render the PDF, PNG and
    JSON to temporary files, store the record, then give the files their final names.
 """
@@ -19,8 +19,8 @@ import argparse
 import sys
 
 # the pipeline's pieces, re-exported for callers that import them from here
-from fitdrag.pipeline import FitFailed, issue, measure  # noqa: F401
-from fitdrag.pipeline import summary as _summary  # noqa: F401
+from fitdrag.run.pipeline import FitFailed, issue, measure  # noqa: F401
+from fitdrag.run.pipeline import summary as _summary  # noqa: F401
 
 EXAMPLE = """\
 Example:
@@ -80,7 +80,7 @@ def register(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.jobs import load_job
+    from fitdrag.run.jobs import load_job
 
     job = load_job(args.job)
     progress = (not args.quiet) and sys.stderr.isatty()

@@ -66,7 +66,7 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.simulate import Launch, simulate
+    from fitdrag.physics.simulate import Launch, simulate
     from fitdrag.tracks import MIN_POINTS, Track, write_track
 
     if args.fps <= 0 or not np.isfinite(args.fps):

@@ -1,7 +1,7 @@
 """Figure: the fitted drag coefficient against the Reynolds number, with its band.
 
-Takes a :class:`fitdrag.fitting.FitResult`; the curve and its standard uncertainty come from
-:func:`fitdrag.compare.drag_coefficient_at` (first-order propagation of the fitted drag
+Takes a :class:`fitdrag.fit.fitting.FitResult`; the curve and its standard uncertainty come from
+:func:`fitdrag.fit.compare.drag_coefficient_at` (first-order propagation of the fitted drag
 parameters' covariance, JCGM 100:2008 eq. 13).  matplotlib is imported lazily and the Agg
 backend is used when no axes are given.
 """
@@ -28,7 +28,7 @@ def cd_curve(result, *, n: int = 200, extend: float = 1.25):
     (ndarray, ndarray, ndarray)
         Reynolds numbers [-], C_d [-] and its standard uncertainty [-].
     """
-    from fitdrag.compare import drag_coefficient_at
+    from fitdrag.fit.compare import drag_coefficient_at
 
     if not extend >= 1.0:
         raise ValueError(f"extend: must be >= 1, got {extend!r}; 1 keeps the flight's range.")
@@ -58,7 +58,7 @@ def plot_cd_vs_re(result, ax=None, *, coverage_factor: float | None = None,
         k of the band C_d ± k u(C_d); default the fit's coverage factor.
     reference : str or None
         Smooth-sphere correlation drawn for comparison (see
-        :func:`fitdrag.drag_models.sphere_correlation_names`); None draws none.
+        :func:`fitdrag.physics.drag_laws.sphere_correlation_names`); None draws none.
     n : int
         Number of points on the curve.
 
@@ -87,7 +87,7 @@ def plot_cd_vs_re(result, ax=None, *, coverage_factor: float | None = None,
     ax.errorbar([re_med], [result.cd], yerr=[k * result.u_cd], fmt="o", color="tab:blue",
                 ms=4, capsize=3, label=f"C_d = {result.cd:.4g} at median Re {re_med:.3g}")  # fmt: skip
     if reference:
-        from fitdrag.drag_models import sphere_drag_coefficient
+        from fitdrag.physics.drag_laws import sphere_drag_coefficient
 
         ax.plot(re, sphere_drag_coefficient(re, reference), "--", color="0.4", lw=1.0,
                 label=f"smooth sphere ({reference})")  # fmt: skip

@@ -713,7 +713,7 @@ def write_certificate(
 
     Refuses to overwrite existing files unless ``force``.  Returns the number of pages.
     """
-    from fitdrag.records import temporary_path
+    from fitdrag.run.records import temporary_path
 
     finals = [Path(pdf_path)] + ([Path(png_path)] if png_path is not None else [])
     for f in finals:

@@ -1,49 +1,36 @@
 """Footage to positions: frame sources, specimen detection, synthetic footage, calibration.
 
-OpenCV is imported only when a function needs it.  The front door is
-:func:`track_footage` (footage + calibration -> a calibrated :class:`fitdrag.Track`).
+OpenCV is imported only when a function needs it; the names below are imported from their
+modules on first use.  The front door is :func:`track_footage` (footage + calibration -> a
+calibrated :class:`fitdrag.tracks.Track`).
 """
 
-from fitdrag.video.calibration import (
-    Calibration,
-    calibration_from_markers,
-    calibration_from_reference,
-    calibration_from_scale,
-    detect_markers,
-    load_marker_layout,
-)
-from fitdrag.video.detect import Detections, detect_specimen, estimate_background
-from fitdrag.video.lens import LensModel, calibrate_lens, load_lens
-from fitdrag.video.sources import (
-    ArraySource,
-    FolderSource,
-    FrameSource,
-    VideoSource,
-    check_frame_rate,
-    open_source,
-)
-from fitdrag.video.tracking import FootageTrack, footage_sha256, track_footage
+from fitdrag._lazy import lazy_face
 
-__all__ = [
-    "ArraySource",
-    "Calibration",
-    "Detections",
-    "FolderSource",
-    "FootageTrack",
-    "FrameSource",
-    "LensModel",
-    "VideoSource",
-    "calibrate_lens",
-    "calibration_from_markers",
-    "calibration_from_reference",
-    "calibration_from_scale",
-    "check_frame_rate",
-    "detect_markers",
-    "detect_specimen",
-    "estimate_background",
-    "footage_sha256",
-    "load_lens",
-    "load_marker_layout",
-    "open_source",
-    "track_footage",
-]
+_WHERE = {
+    "ArraySource": "fitdrag.video.sources",
+    "Calibration": "fitdrag.video.calibration",
+    "Detections": "fitdrag.video.detect",
+    "FolderSource": "fitdrag.video.sources",
+    "FootageTrack": "fitdrag.video.tracking",
+    "FrameSource": "fitdrag.video.sources",
+    "LensModel": "fitdrag.video.lens",
+    "VideoSource": "fitdrag.video.sources",
+    "calibrate_lens": "fitdrag.video.lens",
+    "calibration_from_markers": "fitdrag.video.calibration",
+    "calibration_from_reference": "fitdrag.video.calibration",
+    "calibration_from_scale": "fitdrag.video.calibration",
+    "check_frame_rate": "fitdrag.video.sources",
+    "detect_markers": "fitdrag.video.calibration",
+    "detect_specimen": "fitdrag.video.detect",
+    "estimate_background": "fitdrag.video.detect",
+    "footage_sha256": "fitdrag.video.tracking",
+    "load_lens": "fitdrag.video.lens",
+    "load_marker_layout": "fitdrag.video.calibration",
+    "open_source": "fitdrag.video.sources",
+    "track_footage": "fitdrag.video.tracking",
+}
+
+__all__ = sorted(_WHERE)
+
+__getattr__, __dir__ = lazy_face(__name__, _WHERE)

@@ -502,7 +502,7 @@ def _header_value(v) -> str | None:
 def track_csv_text(meta: Mapping, frame, t, x, y, x_px, y_px, quality, sigma_px) -> str:
     """The track CSV: ``# key: value`` header lines, then frame,t,x,y,x_px,y_px,quality,
     sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down)."""
-    from fitdrag import __version__
+    from fitdrag._version import __version__
 
     head = {
         "format": "fitdrag track; t [s]; x, y [m]; world frame, y up; x_px, y_px, sigma_px "

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.compare: model choice between drag models, with and without lift.
+"""Tests of fitdrag.fit.compare: model choice between drag models, with and without lift.
 
 The synthetic throws come from an independent scipy ``solve_ivp`` integration written out
 here (not from fitdrag's simulator); scenario: an invented test lab's 40 mm, 2.7 g training
@@ -14,12 +14,12 @@ import pytest
 from scipy import stats
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import Air
-from fitdrag.compare import compare_models, drag_coefficient_at
-from fitdrag.fitting import fit_tracks
-from fitdrag.forces import Conditions
-from fitdrag.simulate import Launch, simulate
-from fitdrag.specimen import Sphere
+from fitdrag.physics.air import Air
+from fitdrag.fit.compare import compare_models, drag_coefficient_at
+from fitdrag.fit.fitting import fit_tracks
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.simulate import Launch, simulate
+from fitdrag.physics.specimen import Sphere
 from fitdrag.tracks import Track
 
 AIR = Air(density=1.20, viscosity=1.81e-5)

@@ -1065,7 +1065,7 @@ class DragRefitModel:
 
     ``model(values) -> Cd`` rebuilds the specimen, the air, the gravity and the tracks from
     ``values`` (missing names take their nominal values) and re-solves the fit from its
-    optimum with :func:`fitdrag.fitting.refit` (same rejected frames and noise model).
+    optimum with :func:`fitdrag.fit.fitting.refit` (same rejected frames and noise model).
 
     * ``mass`` [kg], ``diameter`` [m] (sphere) or ``area`` [m²] and ``volume`` [m³] (body),
       ``added_mass_coefficient`` [-]: the specimen;
@@ -1108,7 +1108,7 @@ class DragRefitModel:
         self.viscosity = viscosity
 
     def specimen(self, v):
-        from fitdrag.specimen import Body, Sphere
+        from fitdrag.physics.specimen import Body, Sphere
 
         ca = v.get("added_mass_coefficient", self.result.specimen.added_mass_coefficient)
         if "diameter" in v:
@@ -1117,7 +1117,7 @@ class DragRefitModel:
                     added_mass_coefficient=ca)  # fmt: skip
 
     def air(self, v):
-        from fitdrag.air import Air
+        from fitdrag.physics.air import Air
 
         if "air_density" in v:
             kw = {} if self.viscosity is None else {"viscosity": self.viscosity}
@@ -1146,7 +1146,7 @@ class DragRefitModel:
         return out
 
     def __call__(self, values) -> float:
-        from fitdrag.fitting import refit
+        from fitdrag.fit.fitting import refit
 
         v = dict(self.nominal)
         v.update(values)

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.fitting: Cd and launch state from tracks, with honest uncertainty.
+"""Tests of fitdrag.fit.fitting: Cd and launch state from tracks, with honest uncertainty.
 
 Truth comes from an independent integration of the equation of motion (tests/reference.py:
 scipy solve_ivp DOP853 at rtol = atol = 1e-12, written from the forces.py docstring), never
@@ -26,7 +26,7 @@ import pytest
 import reference as ref
 
 from fitdrag import Air, Sphere, Track, fit_tracks
-from fitdrag.fitting import IDENTIFIABILITY_LIMIT
+from fitdrag.fit.fitting import IDENTIFIABILITY_LIMIT
 
 AIR = Air(ref.RHO, ref.MU)  # ISA sea level (US Standard Atmosphere 1976)
 BASE = ref.Scenario()  # synthetic: 40 mm, 2.7 g training ball, Cd 0.47, 400 frames at 400 Hz

@@ -1,4 +1,4 @@
-"""Tests for fitdrag.air: moist-air density, viscosity, local gravity and the Air record.
+"""Tests for fitdrag.physics.air: moist-air density, viscosity, local gravity and the Air record.
 
 Each test names its kind: published-value, closed-form/independent, or regression.
 """
@@ -16,8 +16,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
-from fitdrag import air
-from fitdrag.air import (
+from fitdrag.physics import air
+from fitdrag.physics.air import (
     STANDARD_GRAVITY,
     Air,
     CIPMRangeWarning,

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.plan: the Cramér–Rao prediction of u(Cd) for a planned test.
+"""Tests of fitdrag.fit.plan: the Cramér–Rao prediction of u(Cd) for a planned test.
 
 Oracle: an independent Fisher information built here from central finite differences of a
 scipy ``solve_ivp`` integration (not fitdrag's simulator or its sensitivities), and fits of
@@ -14,12 +14,12 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import Air
-from fitdrag.fitting import fit_tracks
-from fitdrag.forces import Conditions
-from fitdrag.plan import fisher_information, plan_test
-from fitdrag.simulate import Launch
-from fitdrag.specimen import Sphere
+from fitdrag.physics.air import Air
+from fitdrag.fit.fitting import fit_tracks
+from fitdrag.physics.forces import Conditions
+from fitdrag.fit.plan import fisher_information, plan_test
+from fitdrag.physics.simulate import Launch
+from fitdrag.physics.specimen import Sphere
 from fitdrag.tracks import Track
 
 AIR = Air(density=1.20, viscosity=1.81e-5)

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.verdict: ILAC-G8:09/2019 decision rules on constructed cases.
+"""Tests of fitdrag.uncertainty.decision: ILAC-G8:09/2019 decision rules on constructed cases.
 
 The limits are binary fractions (0.25, 0.375, ...) so "at the limit" is exact in floating point.
 """
@@ -10,7 +10,7 @@ import math
 import pytest
 from scipy import stats
 
-from fitdrag.verdict import (
+from fitdrag.uncertainty.decision import (
     CONDITIONAL_FAIL,
     CONDITIONAL_PASS,
     FAIL,

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.specimen: sphere and general-body geometry, defaults and validation.
+"""Tests of fitdrag.physics.specimen: sphere and general-body geometry, defaults and validation.
 
 Oracles: the Euclidean formulas for a sphere (area of a great circle π d²/4, volume π d³/6),
 the equal-area circle diameter sqrt(4 A / π), and the added-mass coefficient ½ of a sphere
@@ -13,7 +13,7 @@ import re
 
 import pytest
 
-from fitdrag.specimen import Body, Sphere
+from fitdrag.physics.specimen import Body, Sphere
 
 
 def _exact(message: str) -> str:

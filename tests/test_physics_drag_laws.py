@@ -1,4 +1,4 @@
-"""Tests of fitdrag.drag_models: smooth-sphere correlations, scaled-sphere and power-law models.
+"""Tests of fitdrag.physics.drag_laws: smooth-sphere correlations, scaled-sphere and power-law models.
 
 Oracles: the ``fluids`` library (fluids.drag.drag_sphere, same method), Stokes' law, the
 common-practice subcritical C_d, and an independent scipy ``solve_ivp`` integration of the
@@ -14,8 +14,8 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import Air
-from fitdrag.drag_models import (
+from fitdrag.physics.air import Air
+from fitdrag.physics.drag_laws import (
     DEFAULT_CORRELATION,
     POWER_LAW,
     SPHERE_CORRELATIONS,
@@ -26,9 +26,10 @@ from fitdrag.drag_models import (
     sphere_drag_coefficient,
     sphere_scaled_model,
 )
-from fitdrag.forces import Conditions, drag_model_names, get_drag_model
-from fitdrag.simulate import Launch, simulate
-from fitdrag.specimen import Sphere
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.registry import drag_model_names, get_drag_model
+from fitdrag.physics.simulate import Launch, simulate
+from fitdrag.physics.specimen import Sphere
 
 RE_GRID = np.logspace(-3, math.log10(2e5), 60)
 
@@ -317,11 +318,11 @@ def _noisy(t, pos, sigma, seed):
     ],
 )
 def test_fit_recovers_model_parameters_from_independent_integration(model, truth, cd_of_re, wind):
-    """closed-form/independent: each model fitted (fitdrag.fitting.fit_tracks) to a throw made
+    """closed-form/independent: each model fitted (fitdrag.fit.fitting.fit_tracks) to a throw made
     by the solve_ivp reference integration (with 1 mm white noise, and with a known head wind)
     recovers its parameters within 3 standard uncertainties; for the power law also C_ref at
     the fitted Re_ref, C_ref = 0.5 (Re_ref/3e4)^-0.25."""
-    from fitdrag.fitting import fit_tracks
+    from fitdrag.fit.fitting import fit_tracks
 
     t = np.arange(0.0, 0.8, 1 / 250)
     pos = reference_positions(cd_of_re, t=t, wind=wind)

@@ -52,9 +52,9 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy import stats
 
-from fitdrag.air import STANDARD_GRAVITY, Air
-from fitdrag.fitting import frame_gaps, prais_winsten
-from fitdrag.forces import get_drag_model
+from fitdrag.physics.air import STANDARD_GRAVITY, Air
+from fitdrag.fit.fitting import frame_gaps, prais_winsten
+from fitdrag.physics.registry import get_drag_model
 from fitdrag.tracks import Track
 
 __all__ = [
@@ -82,7 +82,7 @@ def drag_coefficient_at(result, re) -> tuple[np.ndarray, np.ndarray]:
     Parameters
     ----------
     result : FitResult
-        A fit from :func:`fitdrag.fitting.fit_tracks`.
+        A fit from :func:`fitdrag.fit.fitting.fit_tracks`.
     re : float or array_like
         Reynolds numbers. [-]
 
@@ -534,7 +534,7 @@ def compare_models(
     -------
     ModelComparison
     """
-    from fitdrag.fitting import fit_tracks
+    from fitdrag.fit.fitting import fit_tracks
 
     if isinstance(tracks, Track):
         tracks = [tracks]

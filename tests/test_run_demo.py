@@ -1,4 +1,4 @@
-"""The bundled demonstration (fitdrag.demo, ``fitdrag demo``) end to end in a temp directory.
+"""The bundled demonstration (fitdrag.run.demo, ``fitdrag demo``) end to end in a temp directory.
 
 One full run is shared by the tests of this module (a module-scoped fixture); a second run
 checks re-issuing, and a hand-edited job file checks the refusal.
@@ -15,9 +15,9 @@ import pytest
 import reference
 
 from fitdrag.cli import main
-from fitdrag.demo import TRUE_CD, job_text, run_demo
-from fitdrag.jobs import load_job
-from fitdrag.records import Records
+from fitdrag.run.demo import TRUE_CD, job_text, run_demo
+from fitdrag.run.jobs import load_job
+from fitdrag.run.records import Records
 
 
 @pytest.fixture(scope="module")

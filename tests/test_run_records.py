@@ -1,4 +1,4 @@
-"""Tests of fitdrag.records: numbering, transactions, immutability, replacement, export."""
+"""Tests of fitdrag.run.records: numbering, transactions, immutability, replacement, export."""
 
 from __future__ import annotations
 
@@ -11,7 +11,7 @@ from pathlib import Path
 
 import pytest
 
-from fitdrag.records import (
+from fitdrag.run.records import (
     PendingFile,
     Records,
     format_number,

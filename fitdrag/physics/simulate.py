@@ -1,6 +1,6 @@
 """Forward simulation of a flight, with exact parameter sensitivities.
 
-The equation of motion of :mod:`fitdrag.forces` is integrated from the launch state at the
+The equation of motion of :mod:`fitdrag.physics.forces` is integrated from the launch state at the
 first sample time to every sample time by an embedded Runge–Kutta 5(4) pair with
 adaptive step size [1], compiled with numba.  When asked, it integrates the forward sensitivity equations [2]
 
@@ -25,6 +25,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -32,7 +33,9 @@ import numba
 import numpy as np
 from numba import types
 
-from fitdrag.forces import Conditions, drag_factor, get_drag_model, net_gravity
+from fitdrag.physics.drag_model import CD_SIGNATURE
+from fitdrag.physics.forces import Conditions, drag_factor, net_gravity
+from fitdrag.physics.registry import get_drag_model
 
 LAUNCH_NAMES = ("x0", "y0", "vx0", "vy0")
 
@@ -120,8 +123,6 @@ def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, 
 _F64 = types.float64
 _VEC = types.float64[::1]
 _MAT = types.float64[:, ::1]
-#: Signature of a drag law as passed to the integrator: (re, p, grad, dcd_dre_out) -> cd.
-CD_SIGNATURE = _F64(_F64, _VEC, _VEC, _VEC)
 _CD_FUNCTION = types.FunctionType(CD_SIGNATURE)
 _INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
     _CD_FUNCTION, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _F64, _F64,
@@ -131,8 +132,8 @@ _INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
 
 
 # The drag law arrives as a first-class function (a C callback with a fixed signature), so
-# that the compiled integrator is cached once on disk for every drag model.
-@numba.njit(_INTEGRATE_SIGNATURE, cache=True)
+# that the compiled integrator is cached once on disk for every drag model.  It is compiled
+# (or loaded from the on-disk cache) on first use, not at import: see _compiled_integrator.
 def _integrate(
     cd_fn, t_out, s0, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par,
     rtol, atol, max_steps, pos, vel, sens, A, B, C, E, P,
@@ -239,6 +240,12 @@ def _integrate(
             if h < 1e-14 * max(1.0, abs(t)):
                 return 2, steps
     return 0, steps
+
+
+@functools.cache
+def _compiled_integrator():
+    """The integrator compiled for its one signature (from numba's disk cache when present)."""
+    return numba.njit(_INTEGRATE_SIGNATURE, cache=True)(_integrate)
 
 
 @dataclass(frozen=True)
@@ -403,7 +410,7 @@ class FlightModel:
         pos = np.empty((n, 2))
         vel = np.empty((n, 2))
         sens = np.empty((n, 2, max(n_par, 1)))
-        status, steps = _integrate(
+        status, steps = _compiled_integrator()(
             self.model.callback, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
             self.g_net, self.conditions.wind, self.re_fac, n_par, self.rtol, self.atol,
             self.max_steps, pos, vel, sens, _A, _B, _C, _E, _P,

@@ -66,10 +66,11 @@ from typing import Any
 
 import numpy as np
 
-from fitdrag import __version__
-from fitdrag.air import STANDARD_GRAVITY, Air
-from fitdrag.forces import Conditions, effective_mass, get_drag_model
-from fitdrag.simulate import LAUNCH_NAMES, FlightModel, Launch
+from fitdrag._version import __version__
+from fitdrag.physics.air import STANDARD_GRAVITY, Air
+from fitdrag.physics.forces import Conditions, effective_mass
+from fitdrag.physics.registry import get_drag_model
+from fitdrag.physics.simulate import LAUNCH_NAMES, FlightModel, Launch
 from fitdrag.tracks import Track
 
 #: Default coverage probability for the expanded uncertainty (k = 2 for large ν).
@@ -229,7 +230,7 @@ class FitResult:
 
     def flight(self, index: int = 0, t=None):
         """Fitted flight of throw ``index`` at times ``t`` (default: its sample times)."""
-        from fitdrag.simulate import simulate
+        from fitdrag.physics.simulate import simulate
 
         th = self.throws[index]
         tt = th.t if t is None else np.asarray(t, float)
@@ -815,7 +816,7 @@ def fit_tracks(
     gravity : float
         Acceleration of free fall. [m/s²]
     model : str
-        Drag model name (see :func:`fitdrag.forces.drag_model_names`).
+        Drag model name (see :func:`fitdrag.physics.forces.drag_model_names`).
     lift : bool
         Also fit a constant lift coefficient (spinning specimen).
     wind : float

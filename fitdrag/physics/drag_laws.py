@@ -1,7 +1,7 @@
 """Reynolds-dependent drag models: a scaled smooth-sphere curve and a local power law.
 
-Two families are registered with :mod:`fitdrag.forces` (look them up with
-:func:`fitdrag.forces.get_drag_model`):
+Two families are registered by :mod:`fitdrag.physics.registry` (look them up with
+:func:`fitdrag.physics.registry.get_drag_model`):
 
 ``"sphere-scaled"``
     C_d = s · C_sphere(Re), the fitted parameter ``scale`` (s) saying how the specimen
@@ -24,7 +24,7 @@ Re ≈ 2–4·10⁵ the boundary layer of a smooth sphere turns turbulent and C_
 [9], at a Reynolds number that depends on surface roughness and free-stream turbulence, so
 the specimen's curve is no longer a multiple of the smooth sphere's.  Each sphere-scaled model
 therefore accepts flights only inside its correlation's stated range *and* below
-:data:`SUBCRITICAL_RE_LIMIT` = 2·10⁵ (:meth:`~fitdrag.forces.DragModel.check_re_range`
+:data:`SUBCRITICAL_RE_LIMIT` = 2·10⁵ (:meth:`~fitdrag.physics.drag_model.DragModel.check_re_range`
 refuses the rest).  The power law is an empirical local description with no range of its
 own.
 
@@ -65,6 +65,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -73,9 +74,11 @@ from types import MappingProxyType
 import numba
 import numpy as np
 
-from fitdrag.forces import DragModel, get_drag_model, register_drag_model
+from fitdrag.physics.drag_model import DragModel
 
 __all__ = [
+    "BUILTIN_MODELS",
+    "CONSTANT",
     "DEFAULT_CORRELATION",
     "POWER_LAW",
     "SPHERE_CORRELATIONS",
@@ -95,6 +98,26 @@ SUBCRITICAL_RE_LIMIT = 2.0e5
 # Reynolds numbers below this are evaluated at this value (a flight passing through zero
 # air speed); the drag force ∝ Re² C_d stays finite and tends to zero there. [-]
 _RE_FLOOR = 1e-12
+
+# --------------------------------------------------------------------------- constant
+
+
+@numba.njit(cache=True)
+def _cd_constant(re, p, grad):
+    grad[0] = 1.0
+    return p[0], 0.0
+
+
+CONSTANT = DragModel(
+    name="constant",
+    parameters=("cd",),
+    initial=(0.5,),
+    bounds=((0.0, 50.0),),
+    kernel=_cd_constant,
+    reference="quadratic drag with a constant coefficient, F = ½ ρ C_d A |u|² "
+    "(Munson et al., Fundamentals of Fluid Mechanics, Wiley)",
+    description="constant drag coefficient",
+)
 
 # --------------------------------------------------------------------------- correlations
 # Each returns (C_sphere(Re), dC_sphere/dRe) for Re > 0.
@@ -392,31 +415,28 @@ def sphere_drag_coefficient(re, correlation: str = DEFAULT_CORRELATION, *,
     return out[..., 0]
 
 
-def _register_sphere_models() -> DragModel:
-    default = None
+def _sphere_models() -> dict[str, DragModel]:
+    """The scaled smooth-sphere laws by registry name; ``"sphere-scaled"`` is the default."""
+    models = {}
     for c in _CORRELATIONS:
-        names = [f"sphere-scaled:{c.name}"]
+        model = DragModel(
+            name=f"sphere-scaled:{c.name}",
+            parameters=("scale",),
+            initial=(1.0,),
+            bounds=((0.0, 50.0),),
+            kernel=c.kernel,
+            re_range=c.model_range,
+            reference=f"C_d = s · C_sphere(Re), C_sphere after {c.reference}.",
+            description=f"smooth-sphere drag curve ({c.name}) times a fitted scale",
+        )
         if c.name == DEFAULT_CORRELATION:
-            names.insert(0, "sphere-scaled")
-        for name in names:
-            m = register_drag_model(
-                DragModel(
-                    name=name,
-                    parameters=("scale",),
-                    initial=(1.0,),
-                    bounds=((0.0, 50.0),),
-                    kernel=c.kernel,
-                    re_range=c.model_range,
-                    reference=f"C_d = s · C_sphere(Re), C_sphere after {c.reference}.",
-                    description=f"smooth-sphere drag curve ({c.name}) times a fitted scale",
-                )
-            )
-            if name == "sphere-scaled":
-                default = m
-    return default
+            models["sphere-scaled"] = dataclasses.replace(model, name="sphere-scaled")
+        models[model.name] = model
+    return models
 
 
-SPHERE_SCALED = _register_sphere_models()
+_SPHERE_MODELS = _sphere_models()
+SPHERE_SCALED = _SPHERE_MODELS["sphere-scaled"]
 
 
 def sphere_scaled_model(correlation: str = DEFAULT_CORRELATION) -> DragModel:
@@ -432,7 +452,7 @@ def sphere_scaled_model(correlation: str = DEFAULT_CORRELATION) -> DragModel:
     DragModel
         The model registered as ``"sphere-scaled:<correlation>"``.
     """
-    return get_drag_model(f"sphere-scaled:{_correlation(correlation).name}")
+    return _SPHERE_MODELS[f"sphere-scaled:{_correlation(correlation).name}"]
 
 
 # --------------------------------------------------------------------------- power law
@@ -474,19 +494,20 @@ def power_law_reference_re(re_values) -> tuple[float]:
     return (med,)
 
 
-POWER_LAW = register_drag_model(
-    DragModel(
-        name="power-law",
-        parameters=("cd_ref", "exponent"),
-        initial=(0.5, 0.0),
-        bounds=((0.0, 50.0), (-3.0, 3.0)),
-        kernel=_power_law,
-        constants=("re_ref",),
-        reference=(
-            "Empirical local power law C_d = C_ref (Re/Re_ref)^n; n = -1 is Stokes drag "
-            "(Stokes 1851), n = 0 a constant C_d."
-        ),
-        description="power law in the Reynolds number about the flight's median Re",
-        constants_from_re=power_law_reference_re,
-    )
+POWER_LAW = DragModel(
+    name="power-law",
+    parameters=("cd_ref", "exponent"),
+    initial=(0.5, 0.0),
+    bounds=((0.0, 50.0), (-3.0, 3.0)),
+    kernel=_power_law,
+    constants=("re_ref",),
+    reference=(
+        "Empirical local power law C_d = C_ref (Re/Re_ref)^n; n = -1 is Stokes drag "
+        "(Stokes 1851), n = 0 a constant C_d."
+    ),
+    description="power law in the Reynolds number about the flight's median Re",
+    constants_from_re=power_law_reference_re,
 )
+
+#: Every built-in law, in the order the registry lists them first.
+BUILTIN_MODELS = (CONSTANT, *_SPHERE_MODELS.values(), POWER_LAW)

@@ -19,8 +19,8 @@ with a fixed seed, so every run on every machine sees the same frames.
    names the footage and its marker calibration, so the certificate lists the footage's
    SHA-256);
 4. runs that job through the machinery of ``fitdrag run``, which tracks the footage again
-   exactly as ``fitdrag track`` did (:func:`fitdrag.pipeline.measure`
-   and :func:`fitdrag.pipeline.issue`): fit, GUM budget, Monte Carlo check, conformity
+   exactly as ``fitdrag track`` did (:func:`fitdrag.run.pipeline.measure`
+   and :func:`fitdrag.run.pipeline.issue`): fit, GUM budget, Monte Carlo check, conformity
    decision, certificate PDF/PNG and JSON in ``DIR/certificates/``, and a record in
    ``DIR/certificates/records.sqlite``.
 
@@ -225,9 +225,8 @@ def _world_to_image(scene: dict) -> np.ndarray:
 
 
 def _conditions():
-    from fitdrag.air import Air, local_gravity
-    from fitdrag.forces import Conditions
-
+    from fitdrag.physics.air import Air, local_gravity
+    from fitdrag.physics.forces import Conditions
     air = Air.from_conditions(AIR["temperature"], AIR["pressure"], AIR["relative_humidity"])
     g = float(local_gravity(SITE["latitude"], SITE["height"]))
     return Conditions(air=air, gravity=g)
@@ -250,7 +249,7 @@ def make_demo_footage(
 ) -> dict:
     """Render the demo's synthetic footage to a Motion-JPEG AVI file and return its truth.
 
-    The flight is simulated with :func:`fitdrag.simulate.simulate` (buoyancy, added mass,
+    The flight is simulated with :func:`fitdrag.physics.simulate.simulate` (buoyancy, added mass,
     quadratic drag with Cd = :data:`TRUE_CD`) in the demo's air and gravity, mapped into the
     image of a camera perpendicular to the plane of flight (scale, roll and origin from
     :data:`FOOTAGE`) and rendered with :class:`fitdrag.video.synthetic.FlightRenderer`,
@@ -278,8 +277,8 @@ def make_demo_footage(
         The truth: true Cd, launch, specimen, air, gravity, camera, markers and, per frame,
         the mid-exposure time [s], world position [m] and image position [px].
     """
-    from fitdrag.simulate import Launch, simulate
-    from fitdrag.specimen import Sphere
+    from fitdrag.physics.simulate import Launch, simulate
+    from fitdrag.physics.specimen import Sphere
     from fitdrag.video.synthetic import FlightRenderer, MarkerPlacement, write_video
 
     path = Path(path)
@@ -288,7 +287,7 @@ def make_demo_footage(
     sc = {**FOOTAGE, **(scene or {})}
     unknown = sorted(set(sc) - set(FOOTAGE))
     if unknown:
-        raise ValueError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.demo.FOOTAGE.")
+        raise ValueError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.run.demo.FOOTAGE.")
     n = int(sc["frames"] if frames is None else frames)
     fps = sc["fps"]
     cond = _conditions()
@@ -332,7 +331,7 @@ def make_demo_footage(
     tr = renderer.truth
     return {
         "synthetic": True,
-        "note": "Synthetic footage rendered by fitdrag.demo; no real ball was filmed.",
+        "note": "Synthetic footage rendered by fitdrag.run.demo; no real ball was filmed.",
         "seed": seed,
         "true_cd": TRUE_CD,
         "drag_model": "constant",
@@ -410,7 +409,7 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
     """The demo's job file (TOML): one footage throw, calibrated by its ArUco markers."""
     lab, cu, sp, air, sp_ = LABORATORY, CUSTOMER, SPECIMEN, AIR, SPECIFICATION
     lines = [
-        "# fitdrag demo job: written by `fitdrag demo` (fitdrag.demo).",
+        "# fitdrag demo job: written by `fitdrag demo` (fitdrag.run.demo).",
         "# SYNTHETIC: the laboratory, customer and specimen are invented and the footage was",
         "# rendered from a simulated flight; nothing here was measured.",
         "# Run it on its own with:  fitdrag run demo_job.toml",
@@ -488,7 +487,7 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
 
 def _place_text(path: Path, text: str, force: bool, hint: str) -> None:
     """Write ``text`` to ``path`` unless the same text is there; a different file needs force."""
-    from fitdrag.records import atomic_write_text
+    from fitdrag.run.records import atomic_write_text
 
     if path.exists():
         if path.read_text(encoding="utf-8") == text:
@@ -525,7 +524,7 @@ def display_path(path: str | os.PathLike) -> str:
 
 
 def _latest_unreplaced(records_path: Path) -> str | None:
-    from fitdrag.records import Records
+    from fitdrag.run.records import Records
 
     if not records_path.exists():
         return None
@@ -565,9 +564,9 @@ def run_demo(
     RuntimeError
         The fit did not converge (not expected on the demo's data).
     """
-    from fitdrag.jobs import load_job
-    from fitdrag.pipeline import FitFailed, issue, measure
-    from fitdrag.pipeline import summary as _summary
+    from fitdrag.run.jobs import load_job
+    from fitdrag.run.pipeline import FitFailed, issue, measure
+    from fitdrag.run.pipeline import summary as _summary
 
     t_start = time.perf_counter()
     if log is None:
@@ -611,7 +610,7 @@ def run_demo(
             f"{FOOTAGE['width_px']}x{FOOTAGE['height_px']} px (seed {SEED}) ...")  # fmt: skip
         truth = make_demo_footage(footage, progress=bars, overwrite=True)
         truth["rendered_on"] = _dt.date.today().isoformat()
-        from fitdrag.records import atomic_write_text
+        from fitdrag.run.records import atomic_write_text
 
         atomic_write_text(truth_path, json.dumps(truth, indent=1) + "\n")
         log(f"      wrote {display_path(footage)} and {truth_path.name}")

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.simulate: the compiled RK5(4) integrator and its forward sensitivities.
+"""Tests of fitdrag.physics.simulate: the compiled RK5(4) integrator and its forward sensitivities.
 
 Oracles (named beside each test):
 
@@ -10,7 +10,7 @@ Oracles (named beside each test):
   added mass ½ρV of a sphere (H. Lamb, Hydrodynamics, 6th ed., 1932, §92);
 * an independent reference integration: scipy.integrate.solve_ivp, method DOP853
   (Hairer, Nørsett & Wanner, Solving ODEs I, 1993), rtol = atol = 1e-12, of the equation of
-  motion of the fitdrag.forces module docstring, written out again in this file;
+  motion of the fitdrag.physics.forces module docstring, written out again in this file;
 * central finite differences of that reference integration for the sensitivities;
 * mechanical-energy balance of the effective equation (drag does negative work, lift none);
 * common practice (no source): room air about 1.2 kg/m³, range-maximising angle below 45°.
@@ -28,10 +28,11 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.integrate import solve_ivp
 
-from fitdrag.air import STANDARD_GRAVITY, Air
-from fitdrag.forces import Conditions, DragModel
-from fitdrag.simulate import Flight, FlightModel, Launch, simulate
-from fitdrag.specimen import Body, Sphere
+from fitdrag.physics.air import STANDARD_GRAVITY, Air
+from fitdrag.physics.drag_model import DragModel
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.simulate import Flight, FlightModel, Launch, simulate
+from fitdrag.physics.specimen import Body, Sphere
 
 G = STANDARD_GRAVITY
 
@@ -40,7 +41,7 @@ G = STANDARD_GRAVITY
 
 def reference_solve(t, theta, *, mass, area, volume, ca, rho, g=G, wind=0.0, buoyancy=True,
                     length=None, mu=1.8e-5, cd_law=None, rtol=1e-12, atol=1e-12):  # fmt: skip
-    """Independent DOP853 integration of the fitdrag.forces equation of motion
+    """Independent DOP853 integration of the fitdrag.physics.forces equation of motion
 
         (m + C_a ρV) dv/dt = (m − ρV) g⃗ − ½ ρ A |u| (C_d u − C_L P u),  u = v − w,
         P u = (−u_y, u_x),

@@ -1,11 +1,11 @@
-"""Tests of fitdrag.forces: conditions, effective mass, net gravity, drag factor, Reynolds
-number, the NumPy right-hand side, and the drag-model registry.
+"""Tests of fitdrag.physics.forces: conditions, effective mass, net gravity, drag factor, Reynolds
+number and the NumPy right-hand side (the registry is tested in test_physics_registry.py).
 
 Oracles: Archimedes' buoyancy and Lamb's added mass of a sphere (H. Lamb, Hydrodynamics,
 6th ed., 1932, §92, coefficient ½), the quadratic drag and lift forces F = ½ ρ C A |u|²
 (Munson et al., Fundamentals of Fluid Mechanics, drag and lift definitions), the ``fluids``
 library's Reynolds number (fluids.core.Reynolds), and the equation of motion of the
-fitdrag.forces module docstring written out again here in vector form.
+fitdrag.physics.forces module docstring written out again here in vector form.
 """
 
 from __future__ import annotations
@@ -14,25 +14,19 @@ import math
 import re
 
 import fluids.core
-import numba
 import numpy as np
 import pytest
 
-from fitdrag import forces
-from fitdrag.air import STANDARD_GRAVITY, Air
-from fitdrag.forces import (
+from fitdrag.physics.air import STANDARD_GRAVITY, Air
+from fitdrag.physics.forces import (
     Conditions,
-    DragModel,
     acceleration,
     drag_factor,
-    drag_model_names,
     effective_mass,
-    get_drag_model,
     net_gravity,
-    register_drag_model,
     reynolds_number,
 )
-from fitdrag.specimen import Body, Sphere
+from fitdrag.physics.specimen import Body, Sphere
 
 G = STANDARD_GRAVITY
 
@@ -277,103 +271,3 @@ def test_acceleration_with_power_law_model():
     ax, ay = acceleration(vx, vy, s, c, (cd_ref, n, re_ref), model="power-law")
     ref = _reference_acceleration((vx, vy), s.mass, s.area, s.volume, 0.5, 1.2, G, cd, 0.0, 0.0)
     np.testing.assert_allclose([float(ax), float(ay)], ref, rtol=1e-13)
-
-
-# ----------------------------------------------------------------------------- registry
-
-
-def test_constant_model():
-    """regression: the constant model returns C_d = p[0], dC_d/dRe = 0, ∂C_d/∂p0 = 1."""
-    m = get_drag_model("constant")
-    assert m.parameters == ("cd",)
-    assert m.constants == ()
-    grad = np.zeros(1)
-    cd, dcd = m.kernel(1234.0, np.array([0.47]), grad)
-    assert (cd, dcd, grad[0]) == (0.47, 0.0, 1.0)
-    np.testing.assert_array_equal(m.cd([1.0, 1e5], [0.3]), [0.3, 0.3])
-    assert m.constants_for([1.0, 2.0]) == ()
-    assert get_drag_model(m) is m
-
-
-def test_unknown_model_lists_valid_names():
-    """regression: an unknown name is an error listing the valid ones (design note)."""
-    names = ", ".join(drag_model_names())
-    with pytest.raises(ValueError, match=_exact(f"drag model: unknown name 'stokes?'; valid "
-                                                f"names: {names}.")):  # fmt: skip
-        get_drag_model("stokes?")
-    assert "constant" in drag_model_names()
-    assert drag_model_names() == sorted(drag_model_names())
-
-
-@numba.njit(cache=False)
-def _linear_re_kernel(re, p, grad):
-    # C_d = a + b (Re / Re0): a test law with one constant Re0
-    grad[0] = 1.0
-    grad[1] = re / p[2]
-    return p[0] + p[1] * re / p[2], p[1] / p[2]
-
-
-def _linear_model(name):
-    return DragModel(
-        name=name,
-        parameters=("a", "b"),
-        initial=(0.5, 0.0),
-        bounds=((0.0, 5.0), (-1.0, 1.0)),
-        kernel=_linear_re_kernel,
-        constants=("re0",),
-        re_range=(10.0, 1e5),
-        constants_from_re=lambda re: (float(np.max(re)),),
-    )
-
-
-def test_register_and_use_a_new_model(monkeypatch):
-    """regression: a model registered by name is found, evaluated, sets its constants and is
-    used by acceleration() (pluggable drag term, issue 2 item 4)."""
-    monkeypatch.setattr(forces, "_REGISTRY", dict(forces._REGISTRY))
-    m = register_drag_model(_linear_model("test-linear-re"))
-    assert get_drag_model("test-linear-re") is m
-    assert "test-linear-re" in drag_model_names()
-    np.testing.assert_allclose(m.cd([0.0, 1000.0], [0.4, 0.1, 1000.0]), [0.4, 0.5], rtol=1e-15)
-    assert m.constants_for([10.0, 30.0, 20.0]) == (30.0,)
-    s = Sphere(0.0027, 0.04)
-    air = Air(1.2, 1.8e-5)
-    vx, vy = 5.0, 0.0
-    re_ = 1.2 * 5.0 * 0.04 / 1.8e-5
-    ax, _ = acceleration(vx, vy, s, Conditions(air), (0.4, 0.1, 1e4), model="test-linear-re")
-    cd = 0.4 + 0.1 * re_ / 1e4
-    assert float(ax) == pytest.approx(-drag_factor(s, 1.2) * cd * 25.0, rel=1e-14)
-    with pytest.raises(ValueError, match=_exact("drag model 'test-linear-re' is already "
-                                                "registered; pick another name.")):  # fmt: skip
-        register_drag_model(_linear_model("test-linear-re"))
-
-
-def test_register_rejects_mismatched_lengths(monkeypatch):
-    """regression: parameters, initial values and bounds must match in length."""
-    monkeypatch.setattr(forces, "_REGISTRY", dict(forces._REGISTRY))
-    bad = DragModel(name="test-bad", parameters=("a", "b"), initial=(0.5,),
-                    bounds=((0, 1), (0, 1)), kernel=_linear_re_kernel)  # fmt: skip
-    with pytest.raises(ValueError, match=_exact(
-        "drag model 'test-bad': parameters, initial and bounds differ in length (2, 1, 2); give "
-        "one initial value and one (low, high) bound per parameter."
-    )):  # fmt: skip
-        register_drag_model(bad)
-    assert "test-bad" not in drag_model_names()
-
-
-def test_re_range_and_constants_errors():
-    """regression: leaving a model's Re range, or asking constants of a model with no rule."""
-    m = _linear_model("unregistered")
-    m.check_re_range(10.0, 1e5)  # inside: no error
-    with pytest.raises(ValueError, match=_exact(
-        "drag model 'unregistered': the flight spans Re 5–2e+04, outside the model's validity "
-        "Re 10–1e+05; choose another model (e.g. 'power-law' or 'constant') or a flight inside "
-        "that range."
-    )):  # fmt: skip
-        m.check_re_range(5.0, 2e4)
-    no_rule = DragModel(name="no-rule", parameters=("a",), initial=(0.5,), bounds=((0, 1),),
-                        kernel=_linear_re_kernel, constants=("re0",))  # fmt: skip
-    with pytest.raises(ValueError, match=_exact(
-        "drag model 'no-rule': it has constants ('re0',) but no rule to set them; give "
-        "DragModel(constants_from_re=...) when registering it."
-    )):  # fmt: skip
-        no_rule.constants_for([1.0])

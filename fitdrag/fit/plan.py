@@ -43,9 +43,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fitdrag._checks import positive_number as _check_positive
-from fitdrag.fitting import prais_winsten
-from fitdrag.forces import Conditions, get_drag_model
-from fitdrag.simulate import FlightModel, Launch
+from fitdrag.fit.fitting import prais_winsten
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.registry import get_drag_model
+from fitdrag.physics.simulate import FlightModel, Launch
 from fitdrag.tracks import MIN_POINTS
 
 __all__ = ["PlanResult", "fisher_information", "plan_test"]
@@ -387,7 +388,7 @@ def _message(cd, u_n, u1, throws, fps, frames, noise, ar1, target, throws_needed
     )
     if model != "constant":
         s += f"; drag model {model}, Cd at the flight's median Reynolds number"
-    from fitdrag.fitting import IDENTIFIABILITY_LIMIT
+    from fitdrag.fit.fitting import IDENTIFIABILITY_LIMIT
 
     if not (u_n / abs(cd) <= IDENTIFIABILITY_LIMIT):
         s += (

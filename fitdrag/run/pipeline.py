@@ -3,15 +3,15 @@
 The steps, each a function usable on its own (:func:`measure` does everything but the
 certificate and the record; :func:`issue` does those):
 
-1. :func:`fitdrag.jobs.load_job` — read and validate the job file (nothing is written if it
+1. :func:`fitdrag.run.jobs.load_job` — read and validate the job file (nothing is written if it
    is wrong);
 2. read every throw's track (:func:`read_throws`: a track CSV, or footage tracked and
    calibrated by :func:`fitdrag.video.tracking.track_footage`), fit them together
-   (:func:`fitdrag.fitting.fit_tracks`);
+   (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
-   (:func:`fitdrag.budget.budget_from_model` over :class:`fitdrag.budget.DragRefitModel`),
-   and optionally the Monte Carlo check (:func:`fitdrag.budget.monte_carlo`);
-4. the conformity decision (:func:`fitdrag.verdict.decide`);
+   (:func:`fitdrag.uncertainty.budget.budget_from_model` over :class:`fitdrag.uncertainty.budget.DragRefitModel`),
+   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.budget.monte_carlo`);
+4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`);
 5. in one records transaction: allocate the certificate number, render the PDF, PNG and
    JSON to temporary files, store the record, then give the files their final names.
 """
@@ -165,8 +165,8 @@ def _vu(m) -> dict:
 
 def _air_density_uncertainty(job) -> float:
     """u(ρ) from u(T), u(p), u(RH) through the CIPM-2007 formula (GUM eq. (10))."""
-    from fitdrag.air import moist_air_density
-    from fitdrag.budget import InputQuantity, budget_from_model
+    from fitdrag.physics.air import moist_air_density
+    from fitdrag.uncertainty.budget import InputQuantity, budget_from_model
 
     a = job.air
     if "density" in a:
@@ -183,8 +183,7 @@ def _air_density_uncertainty(job) -> float:
 
 
 def _method(fit_dict: dict, fit_result, budget, mc) -> dict:
-    from fitdrag.forces import get_drag_model
-
+    from fitdrag.physics.registry import get_drag_model
     dm = get_drag_model(fit_result.model)
     eq = (
         "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
@@ -237,18 +236,18 @@ def measure(
     FitFailed
         When the fit or a re-fit of the budget does not converge.
     """
-    from fitdrag import __version__
-    from fitdrag.budget import (
+    from fitdrag._version import __version__
+    from fitdrag.uncertainty.budget import (
         P_K2,
         DragRefitModel,
         budget_from_model,
         compare_with_gum,
         default_workers,
     )
-    from fitdrag.budget import monte_carlo as run_mc
-    from fitdrag.fitting import fit_tracks
+    from fitdrag.uncertainty.budget import monte_carlo as run_mc
+    from fitdrag.fit.fitting import fit_tracks
     from fitdrag.report.certificate import format_with_uncertainty, formatter_for
-    from fitdrag.verdict import decide
+    from fitdrag.uncertainty.decision import decide
 
     tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()
@@ -402,7 +401,7 @@ def _footage_report(job, tracks) -> list[dict]:
 
 def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
     """Number, render and record the certificate of a measurement (one transaction)."""
-    from fitdrag.records import PendingFile, Records, temporary_path
+    from fitdrag.run.records import PendingFile, Records, temporary_path
     from fitdrag.report.certificate import render_certificate
     from fitdrag.report.plots import curves_from_fit
 

@@ -41,8 +41,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from fitdrag.budget import InputQuantity
-from fitdrag.verdict import RULES, Specification
+from fitdrag.uncertainty.budget import InputQuantity
+from fitdrag.uncertainty.decision import RULES, Specification
 
 #: Gravity assumed when a job gives no [site]: standard gravity, with a rectangular
 #: distribution covering normal gravity from the equator to the poles at sea level
@@ -479,7 +479,7 @@ class Job:
 
     @property
     def records_path(self) -> Path:
-        from fitdrag.records import DEFAULT_FILENAME
+        from fitdrag.run.records import DEFAULT_FILENAME
 
         return self.output.get("records") or self.output_directory / DEFAULT_FILENAME
 
@@ -487,7 +487,7 @@ class Job:
 
     def make_specimen(self, values: Mapping[str, float] | None = None):
         """Sphere or Body from the job, with any value overridden by ``values``."""
-        from fitdrag.specimen import Body, Sphere
+        from fitdrag.physics.specimen import Body, Sphere
 
         v = self.nominal_values()
         v.update(values or {})
@@ -504,7 +504,7 @@ class Job:
 
     def make_air(self, values: Mapping[str, float] | None = None):
         """Air from the job, with any value overridden by ``values``."""
-        from fitdrag.air import Air, air_viscosity
+        from fitdrag.physics.air import Air, air_viscosity
 
         v = self.nominal_values()
         v.update(values or {})
@@ -861,8 +861,7 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
     spec, rule = _specification(where, parsed["specification"], "specification" in data)
     fit = parsed["fit"]
     if "model" in fit:
-        from fitdrag.forces import drag_model_names
-
+        from fitdrag.physics.registry import drag_model_names
         names = drag_model_names()
         if fit["model"] not in names:
             _fail(
@@ -872,7 +871,7 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
     output = dict(parsed["output"])
     output.setdefault("directory", folder)
     if "number_prefix" in output:
-        from fitdrag.records import check_prefix
+        from fitdrag.run.records import check_prefix
 
         try:
             check_prefix(output["number_prefix"])
@@ -1024,7 +1023,7 @@ def _site(where, d):
     if "gravity_uncertainty" in d:
         _fail(f"{where.key(sec, None, 'gravity_uncertainty')}: given without gravity.")
     if "latitude" in d:
-        from fitdrag.air import local_gravity
+        from fitdrag.physics.air import local_gravity
 
         h = d.get("height", 0.0)
         g = float(local_gravity(d["latitude"], h))
@@ -1034,7 +1033,7 @@ def _site(where, d):
         }
     if "height" in d:
         _fail(f"{where.key(sec, None, 'height')}: given without latitude.")
-    from fitdrag.air import STANDARD_GRAVITY
+    from fitdrag.physics.air import STANDARD_GRAVITY
 
     return {
         "gravity": Measured(
@@ -1327,7 +1326,7 @@ number_prefix = "FD"              # certificate numbers look like FD-2026-000001
 
 def write_template(path: str | Path, *, force: bool = False) -> Path:
     """Write :data:`TEMPLATE` to ``path`` (no overwrite unless ``force``)."""
-    from fitdrag.records import atomic_write_text
+    from fitdrag.run.records import atomic_write_text
 
     path = Path(path)
     if path.exists() and not force:

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.jobs: parsing, units, validation messages with line numbers, template."""
+"""Tests of fitdrag.run.jobs: parsing, units, validation messages with line numbers, template."""
 
 from __future__ import annotations
 
@@ -7,7 +7,7 @@ import re
 
 import pytest
 
-from fitdrag.jobs import TEMPLATE, UNKNOWN_SITE_GRAVITY_HALF_WIDTH, load_job, write_template
+from fitdrag.run.jobs import TEMPLATE, UNKNOWN_SITE_GRAVITY_HALF_WIDTH, load_job, write_template
 
 
 def _line(text: str, start: str) -> int:
@@ -319,7 +319,7 @@ def test_footage_throw_keys_parse(footage_dir):
     # the track_footage signature takes every option a footage throw may carry
     import inspect
 
-    from fitdrag.jobs import FOOTAGE_OPTIONS
+    from fitdrag.run.jobs import FOOTAGE_OPTIONS
     from fitdrag.video.tracking import track_footage
 
     params = inspect.signature(track_footage).parameters

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.budget: GUM arithmetic, Welch–Satterthwaite, coverage factors, Monte Carlo."""
+"""Tests of fitdrag.uncertainty.budget: GUM arithmetic, Welch–Satterthwaite, coverage factors, Monte Carlo."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from fitdrag.budget import (
+from fitdrag.uncertainty.budget import (
     P_K2,
     InputQuantity,
     budget_from_contributions,
@@ -382,7 +382,7 @@ def test_drag_model_sensitivities_closed_form(heavy_fit):
     """closed-form/independent: without buoyancy and added mass the data fix
     k = ρ Cd A / (2 m), so Cd ∝ m / (ρ d²): sensitivities Cd/m, −Cd/ρ, −2Cd/d (the last to
     O((u/d)²) from the central difference); data from scipy DOP853 (tests/reference.py)."""
-    from fitdrag.budget import DragRefitModel
+    from fitdrag.uncertainty.budget import DragRefitModel
 
     fit, track, sc = heavy_fit
     nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225}
@@ -409,7 +409,7 @@ def test_drag_model_time_and_length_scale(heavy_fit):
     """closed-form/independent: scaling all lengths by s and gravity by s leaves the motion
     self-similar, with the drag constant k → k/s, hence Cd → Cd/s; a frame rate f instead of
     f0 scales times by f0/f, and with gravity scaled by (f/f0)² Cd is unchanged."""
-    from fitdrag.budget import DragRefitModel
+    from fitdrag.uncertainty.budget import DragRefitModel
 
     fit, track, sc = heavy_fit
     nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225,
@@ -429,7 +429,7 @@ def test_drag_model_monte_carlo_in_pool(heavy_fit):
     """regression: the re-fit model is picklable and runs in 2 worker processes; its Monte
     Carlo standard deviation matches the GUM u_c of this near-linear model within 15 %
     (200 trials: sampling error of a standard deviation ≈ 1/√(2·200) = 5 %)."""
-    from fitdrag.budget import DragRefitModel
+    from fitdrag.uncertainty.budget import DragRefitModel
 
     fit, track, sc = heavy_fit
     nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225}
@@ -453,7 +453,7 @@ def test_drag_model_roll_is_a_rotated_refit(heavy_fit):
     import math
 
     from fitdrag import Track, fit_tracks
-    from fitdrag.budget import DragRefitModel
+    from fitdrag.uncertainty.budget import DragRefitModel
 
     fit, track, sc = heavy_fit
     nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225}

@@ -1,0 +1,121 @@
+"""The drag-law type: a law C_d(Re; p) as a numba kernel, and its fixed-signature callback.
+
+A :class:`DragModel` holds a numba-compiled function ``cd(re, p, grad) -> (cd, dcd_dre)``
+that also writes ∂C_d/∂p into ``grad``.  The simulator receives it as a C callback of one
+fixed signature (:data:`CD_SIGNATURE`), so that the compiled integrator is cached once for
+every law.  The laws themselves are in :mod:`fitdrag.physics.drag_laws`; the registry by
+name in :mod:`fitdrag.physics.registry`.
+
+References
+----------
+1. B. R. Munson et al., *Fundamentals of Fluid Mechanics*, Wiley: drag force
+   F_D = ½ ρ C_d A |u|² with C_d a function of the Reynolds number.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from collections.abc import Callable
+from dataclasses import dataclass, field
+
+import numba
+import numpy as np
+from numba import types
+
+__all__ = ["CD_SIGNATURE", "DragModel"]
+
+#: Signature of a drag law as passed to the integrator: (re, p, grad, dcd_dre_out) -> cd.
+CD_SIGNATURE = types.float64(
+    types.float64, types.float64[::1], types.float64[::1], types.float64[::1]
+)
+
+
+@dataclass(frozen=True)
+class DragModel:
+    """A drag-coefficient law C_d(Re; p) usable by the simulator and the fit.
+
+    Parameters
+    ----------
+    name : str
+        Registry name (``"constant"``, ...).
+    parameters : tuple of str
+        Names of the fitted parameters, in the order of ``p``.
+    initial : tuple of float
+        A starting value for each fitted parameter. [unit of the parameter; C_d laws: -]
+    bounds : tuple of (float, float)
+        Lower and upper bound of each fitted parameter. [unit of the parameter]
+    kernel : numba dispatcher
+        ``kernel(re, p, grad) -> (cd, dcd_dre)``; ``p`` holds the fitted parameters
+        followed by the constants; ``grad[j]`` receives ∂C_d/∂p_j for the fitted ones.
+    constants : tuple of str
+        Names of fixed constants appended to ``p`` after the fitted parameters.
+    re_range : (float, float)
+        Reynolds-number range where the law is valid; outside it a fit is refused. [-]
+    reference : str
+        Published source of the law.
+    description : str
+        One line for tables and reports.
+    constants_from_re : callable, optional
+        ``f(re_values) -> constants``: how the fit sets the constants from the Reynolds
+        numbers of a first-pass flight (e.g. the median Re as reference).
+    """
+
+    name: str
+    parameters: tuple[str, ...]
+    initial: tuple[float, ...]
+    bounds: tuple[tuple[float, float], ...]
+    kernel: Callable = field(repr=False)
+    constants: tuple[str, ...] = ()
+    re_range: tuple[float, float] = (0.0, math.inf)
+    reference: str = ""
+    description: str = ""
+    constants_from_re: Callable | None = field(default=None, repr=False)
+
+    def constants_for(self, re_values) -> tuple[float, ...]:
+        """Constants for a flight whose Reynolds numbers are ``re_values`` (e.g. a median Re)."""
+        if not self.constants:
+            return ()
+        if self.constants_from_re is None:
+            raise ValueError(
+                f"drag model {self.name!r}: it has constants {self.constants} but no rule to "
+                f"set them; give DragModel(constants_from_re=...) when registering it."
+            )
+        return tuple(float(c) for c in self.constants_from_re(np.asarray(re_values, float)))
+
+    def cd(self, re, p) -> np.ndarray:
+        """Evaluate C_d at Reynolds numbers ``re`` with parameters ``p`` (fitted + constants)."""
+        re = np.atleast_1d(np.asarray(re, dtype=float))
+        p = np.asarray(p, dtype=float)
+        grad = np.zeros(max(len(p), 1))
+        return np.array([self.kernel(float(r), p, grad)[0] for r in re])
+
+    @functools.cached_property
+    def callback(self):
+        """The kernel wrapped as a C callback of fixed signature for the integrator."""
+        return _as_callback(self.kernel)
+
+    def check_re_range(self, re_min: float, re_max: float) -> None:
+        """Raise ValueError when [re_min, re_max] leaves the law's validity range."""
+        lo, hi = self.re_range
+        if re_min < lo or re_max > hi:
+            raise ValueError(
+                f"drag model {self.name!r}: the flight spans Re {re_min:.3g}–{re_max:.3g}, "
+                f"outside the model's validity Re {lo:.3g}–{hi:.3g}; choose another model "
+                f"(e.g. 'power-law' or 'constant') or a flight inside that range."
+            )
+
+
+def _as_callback(kernel):
+    """Wrap ``kernel(re, p, grad) -> (cd, dcd_dre)`` as a numba cfunc of fixed signature.
+
+    Passing a fixed-signature callback (rather than the kernel's own dispatcher) lets the
+    compiled integrator be cached on disk once for all drag models.
+    """
+    @numba.cfunc(CD_SIGNATURE)
+    def callback(re, p, grad, dcd_dre):
+        cd, d = kernel(re, p, grad)
+        dcd_dre[0] = d
+        return cd
+
+    return callback
