@@ -31,6 +31,8 @@ def main() -> None:
     args = ap.parse_args()
 
     from fitdrag import Air, Sphere, Track, fit_tracks
+    from fitdrag.physics.forces import Conditions
+    from fitdrag.physics.simulate import Launch, simulate
     from fitdrag.uncertainty.budget import (
         DragRefitModel,
         InputQuantity,
@@ -38,8 +40,6 @@ def main() -> None:
         compare_with_gum,
         monte_carlo,
     )
-    from fitdrag.physics.forces import Conditions
-    from fitdrag.physics.simulate import Launch, simulate
 
     fps, n = 400.0, args.points
     t = np.arange(n) / fps

@@ -21,7 +21,7 @@ from fitdrag._version import __version__
 
 #: Each public name and the module that defines it.
 _WHERE = {
-    "OutputExistsError": "fitdrag._files",
+    "OutputExistsError": "fitdrag.errors",
     "ModelComparison": "fitdrag.fit.compare",
     "compare_models": "fitdrag.fit.compare",
     "drag_coefficient_at": "fitdrag.fit.compare",

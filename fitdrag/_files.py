@@ -14,13 +14,9 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
+from fitdrag.errors import OutputExistsError
 
-class OutputExistsError(FileExistsError, ValueError):
-    """An output file exists and overwriting was not asked for.
-
-    It is both a :class:`FileExistsError` and a :class:`ValueError` (bad input), so the
-    command line reports it as a bad-argument error.
-    """
+__all__ = ["OutputExistsError", "check_output", "write_atomic", "write_text_atomic"]
 
 
 def _umask() -> int:

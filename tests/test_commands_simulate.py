@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
 from fitdrag.cli import main
+from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
 from fitdrag.tracks import read_track
 
 BASE = ["simulate", "--mass", "0.0027", "--diameter", "0.04", "--cd", "0.47", "--speed", "8",

@@ -14,9 +14,9 @@ import pytest
 from scipy import stats
 from scipy.integrate import solve_ivp
 
-from fitdrag.physics.air import Air
 from fitdrag.fit.compare import compare_models, drag_coefficient_at
 from fitdrag.fit.fitting import fit_tracks
+from fitdrag.physics.air import Air
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.simulate import Launch, simulate
 from fitdrag.physics.specimen import Sphere

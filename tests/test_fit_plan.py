@@ -14,10 +14,10 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
-from fitdrag.physics.air import Air
 from fitdrag.fit.fitting import fit_tracks
-from fitdrag.physics.forces import Conditions
 from fitdrag.fit.plan import fisher_information, plan_test
+from fitdrag.physics.air import Air
+from fitdrag.physics.forces import Conditions
 from fitdrag.physics.simulate import Launch
 from fitdrag.physics.specimen import Sphere
 from fitdrag.tracks import Track

@@ -112,6 +112,7 @@ def _as_callback(kernel):
     Passing a fixed-signature callback (rather than the kernel's own dispatcher) lets the
     compiled integrator be cached on disk once for all drag models.
     """
+
     @numba.cfunc(CD_SIGNATURE)
     def callback(re, p, grad, dcd_dre):
         cd, d = kernel(re, p, grad)

@@ -196,4 +196,3 @@ def acceleration(
     ax = -k * q * (cd * ux + lift_coefficient * uy)
     ay = -g_net - k * q * (cd * uy - lift_coefficient * ux)
     return ax, ay
-

@@ -227,6 +227,7 @@ def _world_to_image(scene: dict) -> np.ndarray:
 def _conditions():
     from fitdrag.physics.air import Air, local_gravity
     from fitdrag.physics.forces import Conditions
+
     air = Air.from_conditions(AIR["temperature"], AIR["pressure"], AIR["relative_humidity"])
     g = float(local_gravity(SITE["latitude"], SITE["height"]))
     return Conditions(air=air, gravity=g)

@@ -43,6 +43,7 @@ from typing import Any
 
 from fitdrag.uncertainty.budget import InputQuantity
 from fitdrag.uncertainty.decision import RULES, Specification
+from fitdrag.units import parse_quantity, unit_symbol, unit_word
 
 #: Gravity assumed when a job gives no [site]: standard gravity, with a rectangular
 #: distribution covering normal gravity from the equator to the poles at sea level
@@ -150,90 +151,6 @@ class _Where:
         n = self.headers.get((section, index))
         loc = f"{self.path.name}, line {n}" if n else self.path.name
         return f"{loc}: {self.section_name(section, index)}"
-
-
-# ---------------------------------------------------------------------------------------------
-# units
-# ---------------------------------------------------------------------------------------------
-
-_UREG = None
-_NUM_UNIT_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
-
-
-def _ureg():
-    global _UREG
-    if _UREG is None:
-        import pint
-
-        _UREG = pint.UnitRegistry()
-    return _UREG
-
-
-_CELSIUS_NAMES = {"degc", "°c", "celsius", "degree_celsius", "degrees_celsius", "deg_c"}
-
-
-def _convert(text: str, unit: str, delta: bool) -> float:
-    """Convert "number unit" to ``unit``; raises ValueError with a short reason."""
-    m = _NUM_UNIT_RE.match(text)
-    if not m:
-        raise ValueError('expected a number followed by a unit, e.g. "2.7 g"')
-    num, utext = float(m.group(1)), m.group(2)
-    if not utext:
-        return num
-    import pint
-
-    ureg = _ureg()
-    if delta and utext.lower() in _CELSIUS_NAMES:
-        utext = "delta_degC"
-    try:
-        q = ureg.Quantity(num, utext)
-        return float(q.to(unit).magnitude)
-    except pint.errors.UndefinedUnitError:
-        raise ValueError(f"unknown unit {utext!r}") from None
-    except pint.errors.DimensionalityError:
-        raise ValueError(f"unit {utext!r} is not a unit of {_UNIT_WORDS.get(unit, unit)}") from None
-    except pint.errors.PintError as exc:
-        raise ValueError(f"cannot convert {text!r} to {unit} ({exc})") from None
-
-
-_UNIT_WORDS = {
-    "kg": "mass",
-    "m": "length",
-    "m**2": "area",
-    "m**3": "volume",
-    "degC": "temperature",
-    "delta_degC": "temperature difference",
-    "Pa": "pressure",
-    "percent": "relative humidity (%)",
-    "kg/m**3": "density",
-    "Pa*s": "dynamic viscosity",
-    "m/s**2": "acceleration",
-    "Hz": "frequency",
-    "m/s": "speed",
-    "deg": "angle",
-    "dimensionless": "a pure number",
-    "m/px": "image scale",
-}
-
-# printed units
-_SHOW = {
-    "kg": "kg",
-    "m": "m",
-    "m**2": "m²",
-    "m**3": "m³",
-    "degC": "°C",
-    "delta_degC": "K",
-    "Pa": "Pa",
-    "percent": "%",
-    "kg/m**3": "kg/m³",
-    "Pa*s": "Pa s",
-    "m/s**2": "m/s²",
-    "Hz": "Hz",
-    "m/s": "m/s",
-    "deg": "°",
-    "dimensionless": "",
-    "m/px": "m/px",
-}
 
 
 # ---------------------------------------------------------------------------------------------
@@ -674,16 +591,16 @@ def _check_value(where: _Where, sec: str, idx, key: str, spec: _Key, raw: Any, f
         return name
     # quantities
     unit = spec.unit
-    show = _SHOW.get(unit, unit)
+    show = unit_symbol(unit)
     if isinstance(raw, bool) or not isinstance(raw, int | float | str):
         _fail(f"{loc}: expected a number in {show or 'plain numbers'}, got {raw!r}.")
     if isinstance(raw, str):
         try:
-            v = _convert(raw, unit, delta=(unit == "delta_degC"))
+            v = parse_quantity(raw, unit, delta=(unit == "delta_degC"))
         except ValueError as exc:
             _fail(
                 f"{loc}: {exc} in {raw!r}; give a number in {show or 'plain numbers'} or a "
-                f"string with a unit of {_UNIT_WORDS.get(unit, unit)}."
+                f"string with a unit of {unit_word(unit)}."
             )
     else:
         v = float(raw)
@@ -765,11 +682,11 @@ def _measured(where, sec, d: dict, key: str, unit: str, fix: str, required=True)
             sec,
             None,
             ukey,
-            f"give the standard uncertainty of {key} in {_SHOW.get(unit, unit) or 'plain numbers'}"
+            f"give the standard uncertainty of {key} in {unit_symbol(unit) or 'plain numbers'}"
             f" (write 0 if you take {key} as exact).",
         )
     u = d[ukey]
-    return Measured(d[key], u, "°C" if unit in ("degC", "delta_degC") else _SHOW.get(unit, unit))
+    return Measured(d[key], u, "°C" if unit in ("degC", "delta_degC") else unit_symbol(unit))
 
 
 def load_job(path: str | Path, *, check_files: bool = True) -> Job:
@@ -862,6 +779,7 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
     fit = parsed["fit"]
     if "model" in fit:
         from fitdrag.physics.registry import drag_model_names
+
         names = drag_model_names()
         if fit["model"] not in names:
             _fail(
@@ -942,7 +860,7 @@ def _specimen(where, d):
                 d,
                 key,
                 unit,
-                f"give the specimen's {key} in {_SHOW[unit]} (with {key}_uncertainty).",
+                f"give the specimen's {key} in {unit_symbol(unit)} (with {key}_uncertainty).",
             )
         if "length" in d:
             out["length"] = d["length"]
@@ -983,7 +901,7 @@ def _air(where, d):
         for k in ("pressure", "relative_humidity"):
             if k in d:
                 out[k] = Measured(
-                    d[k], d.get(f"{k}_uncertainty", 0.0), _SHOW[_SECTIONS[sec][k].unit]
+                    d[k], d.get(f"{k}_uncertainty", 0.0), unit_symbol(_SECTIONS[sec][k].unit)
                 )
         return out
     if not thermo:

@@ -184,6 +184,7 @@ def _air_density_uncertainty(job) -> float:
 
 def _method(fit_dict: dict, fit_result, budget, mc) -> dict:
     from fitdrag.physics.registry import get_drag_model
+
     dm = get_drag_model(fit_result.model)
     eq = (
         "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
@@ -237,6 +238,8 @@ def measure(
         When the fit or a re-fit of the budget does not converge.
     """
     from fitdrag._version import __version__
+    from fitdrag.fit.fitting import fit_tracks
+    from fitdrag.report.certificate import format_with_uncertainty, formatter_for
     from fitdrag.uncertainty.budget import (
         P_K2,
         DragRefitModel,
@@ -245,8 +248,6 @@ def measure(
         default_workers,
     )
     from fitdrag.uncertainty.budget import monte_carlo as run_mc
-    from fitdrag.fit.fitting import fit_tracks
-    from fitdrag.report.certificate import format_with_uncertainty, formatter_for
     from fitdrag.uncertainty.decision import decide
 
     tracks, hashes = read_throws(job, progress=progress)
@@ -401,9 +402,9 @@ def _footage_report(job, tracks) -> list[dict]:
 
 def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
     """Number, render and record the certificate of a measurement (one transaction)."""
-    from fitdrag.run.records import PendingFile, Records, temporary_path
     from fitdrag.report.certificate import render_certificate
     from fitdrag.report.plots import curves_from_fit
+    from fitdrag.run.records import PendingFile, Records, temporary_path
 
     job = meas.job
     outdir = Path(job.output_directory)

@@ -1,0 +1,60 @@
+"""The package's exceptions, and the exit codes the command line maps them to.
+
+Only these errors are expected: a :class:`InputError` is bad input (a file, a value, an
+option) and names the input, the value received and the fix; a :class:`ConvergenceError`
+is a fit or a re-fit that did not converge.  Any other exception is a bug.  Both input
+errors remain :class:`ValueError` (and a missing file a :class:`FileNotFoundError`), so
+code that catches the built-in types keeps working.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ConvergenceError",
+    "EXIT_BAD_INPUT",
+    "EXIT_BUG",
+    "EXIT_CONDITIONAL_FAIL",
+    "EXIT_CONDITIONAL_PASS",
+    "EXIT_FAIL",
+    "EXIT_NO_CONVERGENCE",
+    "EXIT_OK",
+    "FitdragError",
+    "InputError",
+    "InputFileNotFoundError",
+    "OutputExistsError",
+]
+
+#: Done; for a certificate with a decision: the decision is PASS.
+EXIT_OK = 0
+#: An unexpected exception: a bug, printed with its traceback.
+EXIT_BUG = 1
+#: Bad input: a file, a value or an option (:class:`InputError`).
+EXIT_BAD_INPUT = 2
+#: The fit or a re-fit did not converge (:class:`ConvergenceError`).
+EXIT_NO_CONVERGENCE = 3
+#: Certificate issued; the decision is FAIL.
+EXIT_FAIL = 4
+#: Certificate issued; the decision is a conditional pass (guarded acceptance).
+EXIT_CONDITIONAL_PASS = 5
+#: Certificate issued; the decision is a conditional fail (guarded acceptance).
+EXIT_CONDITIONAL_FAIL = 6
+
+
+class FitdragError(Exception):
+    """Base of every error fitdrag raises on purpose."""
+
+
+class InputError(FitdragError, ValueError):
+    """Bad input: the message names the input, the value received and the fix."""
+
+
+class InputFileNotFoundError(InputError, FileNotFoundError):
+    """An input file or folder that does not exist."""
+
+
+class OutputExistsError(InputError, FileExistsError):
+    """An output file exists and overwriting was not asked for."""
+
+
+class ConvergenceError(FitdragError, RuntimeError):
+    """A fit, or a re-fit of the uncertainty budget, did not converge."""
