@@ -4,7 +4,7 @@ Renders upright DICT_4X4_50 markers of known side into images through a known ho
 (12 x 12 samples per pixel, a Gaussian point-spread function of standard deviation ``blur``
 [px] applied before the pixels integrate, Gaussian noise of 2 grey levels on a 25..200
 contrast), then finds them with
-:func:`fitdrag.video.calibration.detect_markers` with corner refinement "subpix"
+:func:`fitdrag.video.markers.detect_markers` with corner refinement "subpix"
 (cv2.cornerSubPix only) and "edges" (edge-line refinement).  Prints, per marker side in
 pixels and blur: markers found, mean and spread of the relative side error, the RMS corner
 error against the exact corners and the corner precision the edge fits predict; then how the
@@ -22,11 +22,8 @@ import time
 import cv2
 import numpy as np
 
-from fitdrag.video.calibration import (
-    calibration_from_markers,
-    detect_markers,
-    marker_scale_bias_bound,
-)
+from fitdrag.video.calibration import calibration_from_markers
+from fitdrag.video.markers import detect_markers, marker_scale_bias_bound
 from fitdrag.video.synthetic import render_marker_board as render_markers
 
 

@@ -26,9 +26,7 @@ from fitdrag.video.calibration import (
     calibration_from_markers,
     calibration_from_reference,
     calibration_from_scale,
-    detect_markers,
     load_marker_layout,
-    marker_scale_bias_bound,
 )
 from fitdrag.video.lens import LensModel
 from fitdrag.video.synthetic import render_marker_board
@@ -234,19 +232,6 @@ def test_lens_undistorts_before_the_homography():
 # ------------------------------------------------------------------------------------------
 
 
-def test_markers_corners_match_the_render(flat_scene):
-    """closed-form/independent: refined corners within 0.1 px of the exact corners."""
-    img, h = flat_scene
-    obs = detect_markers(img)
-    assert [o.id for o in obs] == sorted(LAYOUT)
-    for o in obs:
-        assert o.refinement == "edge-lines"
-        err = o.corners - true_corners(h, *LAYOUT[o.id])
-        assert np.max(np.abs(err)) < 0.06
-        # the stated corner precision is of the size of the actual errors
-        assert 0.003 < float(np.sqrt(np.mean(o.corner_sigma_px**2))) < 0.1
-
-
 def test_markers_similarity_recovers_scale_rotation_origin(flat_scene):
     """closed-form/independent: scale 1/1100 m/px, roll 3 deg, origin at marker 3's
     lower-left corner (the lowest id), y up; all known from the render's homography."""
@@ -302,22 +287,6 @@ def test_layout_homography_ignores_unlisted_markers(tilted_scene):
     assert cal.details["ids"] == (3, 7, 20)
     assert cal.details["ignored_ids"] == (12,)
     assert cal.details["missing_ids"] == (33,)
-
-
-def test_cornersubpix_bias_and_its_removal():
-    """closed-form/independent: cornerSubPix alone shortens the sides of ~40 px markers by
-    several tenths of a percent; the edge-line refinement removes it (truth: the render)."""
-    h = similarity_w2i(800.0, 5.0, (60.4, 300.7))  # 40 px markers
-    layout = {0: (0.0, 0.0), 1: (0.15, 0.0), 2: (0.30, 0.0), 4: (0.45, 0.0)}
-    img = render_markers((360, 520), layout, SIZE, h, blur=1.0, seed=5)
-    sub = np.array([o.side_px for o in detect_markers(img, refine="subpix")]) / 40.0 - 1
-    edge = np.array([o.side_px for o in detect_markers(img)]) / 40.0 - 1
-    assert sub.size == edge.size == 4
-    assert np.mean(sub) < -3e-3  # measured: about -1 %
-    assert abs(np.mean(edge)) < 5e-4
-    # the stated bounds cover what is seen
-    assert abs(np.mean(edge)) < marker_scale_bias_bound(40.0) + 3 * np.std(edge)
-    assert abs(np.mean(sub)) < marker_scale_bias_bound(40.0, "subpix")
 
 
 def test_markers_seen_through_a_distorting_lens():

@@ -577,7 +577,7 @@ def _check_value(where: _Where, sec: str, idx, key: str, spec: _Key, raw: Any, f
             )
         return tuple(vals)
     if kind == "dictionary":
-        from fitdrag.video.calibration import marker_dictionaries
+        from fitdrag.video.markers import marker_dictionaries
 
         name = raw.strip().upper() if isinstance(raw, str) else ""
         if name and not name.startswith("DICT_"):
