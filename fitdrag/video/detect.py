@@ -1,11 +1,11 @@
 """Detection of one moving specimen in footage, with sub-pixel centroids.
 
-The steps, per run:
+The steps, per run (steps 2, 4 and 5, one frame's blobs, are in :mod:`fitdrag.video.blobs`):
 
 1. **Background** from the footage itself: the per-pixel median of a subsample of frames
    (evenly spread over the range), each first scaled to a common brightness so lamp flicker
    does not leak into it.  The median is taken with a sorting network of whole-image
-   minimum/maximum operations [1].
+   minimum/maximum operations [1] (:mod:`fitdrag.video.background`).
 2. **Per frame**, a brightness gain against the background (the median of frame / background
    over a fixed sparse grid of pixels; a specimen covers few of them) and the noise level
    (1.4826 times the median absolute residual).  Dividing out the gain normalises
@@ -63,21 +63,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from fitdrag.video.background import estimate_background
+from fitdrag.video.blobs import MAX_BLIND, Blob, BlobFinder
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
 
 #: Polarities a specimen may have against the background.
 POLARITIES = ("either", "brighter", "darker")
 
-# Sparse grid used for gain and noise estimates (number of pixels aimed at).
-_GRID_PIXELS = 3000
-# Noise floor subtracted before weighting, in noise standard deviations.
-_FLOOR_SIGMA = 2.0
 # Least displacement over the three frames that confirm a new track. [px]
 _MIN_MOTION_PX = 1.0
-# Largest share of unseen outline pixels (per pixel of area) a detection may have.
-_MAX_BLIND = 0.1
-# Smallest noise level assumed, in 8-bit grey levels (quantisation of noiseless footage).
-_MIN_SIGMA_8BIT = 0.5
 
 
 @dataclass(frozen=True, eq=False)
@@ -143,24 +137,6 @@ class Detections:
         return np.array([f for f, _ in self.missing], dtype=np.int64)
 
 
-@dataclass
-class _Blob:
-    x: float
-    y: float
-    area_mask: int
-    area: float  # integrated coverage
-    extent: float  # larger bbox side [px]
-    fill: float
-    elongation: float
-    snr: float
-    sigma: float
-    touches_edge: bool
-    touches_window: bool
-    reason: str | None = None  # why it is not usable
-    blind: float = 0.0  # unseen outline pixels per pixel of area
-    spread: tuple[float, float] = (0.0, 0.0)  # principal standard deviations of the weights
-
-
 class _Tracker:
     """Recent detections of the current track and a constant-acceleration prediction."""
 
@@ -171,7 +147,7 @@ class _Tracker:
         self.areas: list[float] = []
         self.extent = 0.0
 
-    def add(self, n: int, b: _Blob) -> None:
+    def add(self, n: int, b: Blob) -> None:
         self.frames.append(n)
         self.xs.append(b.x)
         self.ys.append(b.y)
@@ -208,368 +184,7 @@ class _Tracker:
         return px, py, min(allowance, 200.0)
 
 
-class _Detector:
-    def __init__(
-        self,
-        source: FrameSource,
-        background: np.ndarray,
-        *,
-        threshold_sigma: float,
-        min_area: float,
-        max_area: float,
-        min_fill: float,
-        max_elongation: float,
-        polarity: str,
-        size_tolerance: float,
-        max_gap: int,
-    ):
-        self.src = source
-        self.bg = background
-        self.h, self.w = background.shape
-        self.k = threshold_sigma
-        self.min_area = min_area
-        self.max_area = max_area
-        self.min_fill = min_fill
-        self.max_elong = max_elongation
-        self.polarity = polarity
-        self.size_tol = size_tolerance
-        self.max_gap = max_gap
-        self.unit = source.full_scale / 255.0
-        self.min_sigma = _MIN_SIGMA_8BIT * self.unit
-        self.bg_floor = 2.0 * self.unit
-        step = max(1, int(math.sqrt(self.h * self.w / _GRID_PIXELS)))
-        rows = np.arange(step // 2, self.h, step)
-        cols = np.arange(step // 2, self.w, step)
-        idx = (rows[:, None] * self.w + cols[None, :]).ravel()
-        bflat = background.reshape(-1)[idx]
-        # Gain from pixels bright enough for their ratio to be precise.
-        keep = bflat >= max(self.bg_floor, 0.25 * float(np.median(bflat)))
-        if keep.sum() < 50:  # a very dark scene: use every grid pixel
-            keep[:] = True
-        self.grid = idx[keep]
-        self.grid_bg = np.maximum(bflat[keep], self.bg_floor).astype(np.float32)
-        self.grid_inv = (1.0 / self.grid_bg).astype(np.float32)
-        self._yy, self._xx = np.indices((64, 64), dtype=np.float32)
-        self.scale = 2 if self.h * self.w >= 400_000 else 1
-        if self.scale > 1:
-            import cv2
-
-            self.bg_small = cv2.resize(
-                background, (self.w // 2, self.h // 2), interpolation=cv2.INTER_AREA
-            )
-        self._kernels()
-
-    def _kernels(self):
-        import cv2
-
-        self.k3 = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (3, 3))
-        self.k5 = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (5, 5))
-        self.k7 = cv2.getStructuringElement(cv2.MORPH_ELLIPSE, (7, 7))
-
-    # -- per frame ------------------------------------------------------------------------
-    def gain_and_noise(self, raw: np.ndarray) -> tuple[float, float]:
-        """Brightness gain of the frame against the background and its noise level.
-
-        The gain is the median of frame / background over a fixed sparse grid of pixels
-        (a specimen or a passing shadow covers few of them); the noise level is 1.4826 times
-        the median absolute residual (the normal-consistent MAD).
-        """
-        if not raw.flags.c_contiguous:
-            raw = np.ascontiguousarray(raw)
-        f = raw.reshape(-1)[self.grid].astype(np.float32)
-        g = float(np.median(f * self.grid_inv))
-        sigma = 1.4826 * float(np.median(np.abs(f - np.float32(g) * self.grid_bg)))
-        return g, max(sigma, self.min_sigma)
-
-    def _grids(self, h: int, w: int):
-        if h > self._yy.shape[0] or w > self._yy.shape[1]:
-            n = max(h, w, 2 * self._yy.shape[0])
-            self._yy, self._xx = np.indices((n, n), dtype=np.float32)
-        return self._yy[:h, :w], self._xx[:h, :w]
-
-    def _mask(self, d: np.ndarray, thr: float) -> np.ndarray:
-        if self.polarity == "brighter":
-            m = d > thr
-        elif self.polarity == "darker":
-            m = d < -thr
-        else:
-            m = np.abs(d) > thr
-        return m.view(np.uint8)
-
-    def analyse(
-        self, raw: np.ndarray, g: float, sigma: float, x0: int, y0: int, x1: int, y1: int
-    ) -> list[_Blob]:
-        """All blobs inside the window ``[x0, x1) x [y0, y1)``, measured and gated."""
-        import cv2
-
-        x0, y0 = max(x0, 0), max(y0, 0)
-        x1, y1 = min(x1, self.w), min(y1, self.h)
-        if x1 - x0 < 3 or y1 - y0 < 3:
-            return []
-        crop = raw[y0:y1, x0:x1].astype(np.float32)
-        bgc = self.bg[y0:y1, x0:x1]
-        d = crop - np.float32(g) * bgc
-        thr = self.k * sigma
-        mask = self._mask(d, thr)
-        n, labels, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
-        blobs = []
-        for lab in range(1, n):
-            bx, by, bw, bh, area = (int(v) for v in stats[lab])
-            if area < max(3, 0.25 * self.min_area):
-                continue  # noise speck
-            blobs.append(
-                self._measure(
-                    crop, bgc, d, labels, lab, (bx, by, bw, bh, area), g, sigma, (x0, y0, x1, y1)
-                )
-            )
-        return blobs
-
-    def _measure(self, crop, bgc, d, labels, lab, st, g, sigma, win) -> _Blob:
-        import cv2
-
-        x0, y0, x1, y1 = win
-        bx, by, bw, bh, area = st
-        ch, cw = crop.shape
-        touches_edge = (
-            (x0 + bx == 0) or (y0 + by == 0) or (x0 + bx + bw == self.w) or (y0 + by + bh == self.h)
-        )
-        touches_window = (
-            (bx == 0 and x0 > 0)
-            or (by == 0 and y0 > 0)
-            or (bx + bw == cw and x1 < self.w)
-            or (by + bh == ch and y1 < self.h)
-        )
-        pad = 3
-        sx0, sy0 = max(bx - pad, 0), max(by - pad, 0)
-        sx1, sy1 = min(bx + bw + pad, cw), min(by + bh + pad, ch)
-        comp = (labels[sy0:sy1, sx0:sx1] == lab).view(np.uint8)
-        region = cv2.dilate(comp, self.k7)
-        closed = cv2.morphologyEx(comp, cv2.MORPH_CLOSE, self.k5)
-        f = crop[sy0:sy1, sx0:sx1]
-        b = bgc[sy0:sy1, sx0:sx1]
-        # Local gain from the background around the blob (lamps need not flicker in step).
-        outside = (region == 0) & (b > self.bg_floor)
-        if int(np.count_nonzero(outside)) >= 20:
-            gl = float(np.median(f[outside] / b[outside]))
-        else:
-            gl = g
-        bb = np.float32(gl) * b
-        dd = f - bb
-        yy, xx = self._grids(*f.shape)
-        # Shape of the thresholded blob: second moments give elongation and, for a blurred
-        # ball, the length and direction of the blur (a disc swept along a segment of length
-        # L has principal variances R^2/4 + L^2/12 and R^2/4).
-        m = cv2.moments(comp, binaryImage=True)
-        mu20, mu02, mu11 = m["mu20"] / m["m00"], m["mu02"] / m["m00"], m["mu11"] / m["m00"]
-        spread = math.sqrt(max((mu20 - mu02) ** 2 + 4 * mu11**2, 0.0))
-        lmin = max((mu20 + mu02 - spread) / 2, 1e-6)
-        elong = math.sqrt(max((mu20 + mu02 + spread) / 2, 1e-6) / lmin)
-        blur = math.sqrt(12.0 * spread)
-        angle = 0.5 * math.atan2(2 * mu11, mu20 - mu02)
-        core = self._core(comp, blur, angle)
-        # The specimen's brightness is wanted at its outline: fit the outer band of the core
-        # (two pixels wide) when it is large enough, so limb darkening matters less.
-        fit_px = core
-        ring = core & ~cv2.erode(core.view(np.uint8), self.k5).astype(bool)
-        if int(np.count_nonzero(ring)) >= 12:
-            fit_px = ring
-        spec = self._specimen_level(f, dd, comp, fit_px, xx, yy, sigma, (mu20, mu02, mu11))
-        contrast = spec - bb
-        absk = np.abs(contrast)
-        reliable = absk > 1.5 * self.k * sigma
-        with np.errstate(divide="ignore", invalid="ignore"):
-            cov = np.clip(dd / contrast, 0.0, 1.0)
-        # Where the specimen matches the background behind it the contrast carries no
-        # information: count such pixels inside the (closed) blob as covered.
-        cov = np.where(reliable, cov, closed > 0).astype(np.float32) * region
-        area_cov = float(cov.sum())
-        w = np.where(reliable & (np.abs(dd) <= _FLOOR_SIGMA * sigma), 0.0, cov)
-        sw = float(w.sum())
-        if sw <= 0 or area_cov <= 0:
-            return _Blob(
-                0,
-                0,
-                area,
-                0,
-                0,
-                0,
-                0,
-                0,
-                0,
-                touches_edge,
-                touches_window,
-                "blob vanishes after background subtraction",
-            )
-        cx = float((w * xx).sum() / sw)
-        cy = float((w * yy).sum() / sw)
-        # Spread of the weights about the centroid (principal standard deviations).
-        dx, dy = xx - cx, yy - cy
-        vxx, vyy, vxy = (float((w * q).sum() / sw) for q in (dx * dx, dy * dy, dx * dy))
-        hd = math.hypot(0.5 * (vxx - vyy), vxy)
-        spread_major = math.sqrt(max(0.5 * (vxx + vyy) + hd, 0.0))
-        spread_minor = math.sqrt(max(0.5 * (vxx + vyy) - hd, 0.0))
-        # Noise propagation: d(cx)/d(f_i) = (x_i - cx) / (|K_i| sum(w)) where 0 < w_i < 1.
-        active = reliable & (w > 0) & (w < 1)
-        inv = np.where(active, 1.0 / np.maximum(absk, 1e-6), 0.0)
-        sig = (
-            sigma
-            * math.sqrt(
-                float((((xx - cx) * inv) ** 2).sum() + (((yy - cy) * inv) ** 2).sum()) / 2.0
-            )
-            / sw
-        )
-        # Pixels next to the blob where the specimen would barely differ from the background:
-        # the outline there is not seen, so the centroid may be pulled.
-        blind = float(np.count_nonzero((region > 0) & ~reliable & (closed == 0))) / area_cov
-        fill = area / float(bw * bh)
-        snr = float(np.median(absk[core])) / sigma if core.any() else float(absk.max()) / sigma
-        blob = _Blob(
-            x=x0 + sx0 + cx,
-            y=y0 + sy0 + cy,
-            area_mask=area,
-            area=area_cov,
-            extent=float(max(bw, bh)),
-            fill=fill,
-            elongation=elong,
-            snr=snr,
-            sigma=sig,
-            touches_edge=touches_edge,
-            touches_window=touches_window,
-            blind=blind,
-            spread=(spread_major, spread_minor),
-        )
-        blob.reason = self._gate(blob)
-        return blob
-
-    def _core(self, comp: np.ndarray, blur: float, angle: float) -> np.ndarray:
-        """Pixels covered by the specimen through the whole exposure: the blob eroded by one
-        pixel all round and by half the blur length both ways along the motion."""
-        import cv2
-
-        core = cv2.erode(comp, self.k3)
-        if blur >= 1.0:
-            half = int(math.ceil(blur / 2))
-            ker = np.zeros((2 * half + 1, 2 * half + 1), np.uint8)
-            dx, dy = 0.5 * blur * math.cos(angle), 0.5 * blur * math.sin(angle)
-            cv2.line(
-                ker,
-                (int(round(half - dx)), int(round(half - dy))),
-                (int(round(half + dx)), int(round(half + dy))),
-                1,
-                1,
-            )
-            core = cv2.erode(core, ker)
-        return core.astype(bool)
-
-    def _specimen_level(self, f, dd, comp, core, xx, yy, sigma, moments) -> np.ndarray:
-        """Brightness the specimen has at each pixel of the window.
-
-        A plane fitted to the given core pixels (the specimen's shading).  A slope is kept
-        only along directions where the core is wide enough compared with the blob (fully
-        from 0.3 of the blob's spread, fading out towards 0.15), so the plane is not
-        extrapolated far, and it is shrunk towards zero by ``b^2 / (b^2 + var(b))`` so noise
-        does not tilt it.  Without a usable core (blur
-        longer than the specimen) the level is the median of the blob's brightest tenth.
-        """
-        n = int(np.count_nonzero(core))
-        if n >= 4:
-            X, Y, F = xx[core], yy[core], f[core].astype(np.float64)
-            mx, my = float(X.mean()), float(Y.mean())
-            X = X - mx
-            Y = Y - my
-            sxx, syy, sxy = float((X * X).mean()), float((Y * Y).mean()), float((X * Y).mean())
-            # Principal axes of the core (2x2 symmetric eigenproblem in closed form).
-            half_tr, d = 0.5 * (sxx + syy), math.hypot(0.5 * (sxx - syy), sxy)
-            theta = 0.5 * math.atan2(2 * sxy, sxx - syy)
-            mu20, mu02, mu11 = moments
-            out = np.full(f.shape, float(F.mean()), np.float32)
-            fm = F - F.mean()
-            for lam, ang in ((half_tr + d, theta), (half_tr - d, theta + 0.5 * math.pi)):
-                c, s_ = math.cos(ang), math.sin(ang)
-                blob_var = mu20 * c * c + 2 * mu11 * c * s_ + mu02 * s_ * s_
-                # Trust a slope fully where the core spans at least 0.3 of the blob's spread
-                # along that axis, not at all below 0.15, and in proportion between.
-                ratio = math.sqrt(max(lam, 0.0) / max(blob_var, 1e-9))
-                trust = min(max((ratio - 0.15) / 0.15, 0.0), 1.0)
-                if n < 10 or lam < 0.25 or trust <= 0.0:
-                    continue
-                u = X * c + Y * s_
-                suu = float((u * u).sum())
-                slope = float((u * fm).sum()) / suu  # axes are uncorrelated: fit separately
-                var_b = sigma**2 / suu
-                slope *= trust * slope * slope / (slope * slope + var_b)
-                out += np.float32(slope) * ((xx - mx) * c + (yy - my) * s_)
-            return out
-        cb = comp.astype(bool)
-        vals = dd[cb]
-        sgn = 1.0 if float(np.median(vals)) >= 0 else -1.0
-        top = np.sort(sgn * vals)[-max(3, int(0.1 * vals.size)) :]
-        return (f - dd + sgn * float(np.median(top))).astype(np.float32)
-
-    def _gate(self, b: _Blob) -> str | None:
-        if b.touches_edge:
-            return "blob touches the frame edge (entering or leaving the frame)"
-        if b.area_mask < self.min_area:
-            return f"blob of {b.area_mask} px is below min_area={self.min_area:g} px"
-        if b.area_mask > self.max_area:
-            return f"blob of {b.area_mask} px is above max_area={self.max_area:g} px"
-        if b.fill < self.min_fill:
-            return f"blob shape rejected (fill ratio {b.fill:.2f} < {self.min_fill:g})"
-        if b.elongation > self.max_elong:
-            return f"blob shape rejected (elongation {b.elongation:.1f} > {self.max_elong:g})"
-        if b.blind > _MAX_BLIND:
-            return (
-                "specimen barely differs from the background behind part of its outline "
-                f"({100 * b.blind:.0f} % of its area unseen)"
-            )
-        return None
-
-    def search_full(self, raw: np.ndarray, g: float, sigma: float) -> list[_Blob]:
-        """Blobs anywhere in the frame (candidates found at half resolution on large frames)."""
-        import cv2
-
-        if self.scale == 1:
-            return self.analyse(raw, g, sigma, 0, 0, self.w, self.h)
-        small = cv2.resize(raw, (self.w // 2, self.h // 2), interpolation=cv2.INTER_AREA)
-        d = small.astype(np.float32) - np.float32(g) * self.bg_small
-        mask = self._mask(d, self.k * sigma / 2.0)
-        n, _, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
-        blobs: list[_Blob] = []
-        seen: set[tuple[int, int]] = set()
-        for lab in range(1, n):
-            bx, by, bw, bh, area = (int(v) for v in stats[lab])
-            if area < max(2, 0.25 * self.min_area / 4):
-                continue
-            if area > 4 * self.max_area:
-                blobs.append(
-                    _Blob(
-                        0,
-                        0,
-                        4 * area,
-                        0,
-                        0,
-                        0,
-                        0,
-                        0,
-                        0,
-                        False,
-                        False,
-                        f"blob of about {4 * area} px is above max_area={self.max_area:g} px",
-                    )
-                )
-                continue
-            m = 6
-            for b in self.analyse(
-                raw, g, sigma, 2 * bx - m, 2 * by - m, 2 * (bx + bw) + m, 2 * (by + bh) + m
-            ):
-                key = (int(round(b.x)), int(round(b.y)))
-                if key not in seen:
-                    seen.add(key)
-                    blobs.append(b)
-        return blobs
-
-
-def _choose_chain(recent: list[tuple[int, list[_Blob]]], size_tol: float, diag: float):
+def _choose_chain(recent: list[tuple[int, list[Blob]]], size_tol: float, diag: float):
     """Best triple of blobs in the last three frames read that move consistently (and do move:
     a still blob is a resting specimen or a flaw of the background model), or None; and
     whether a consistent but still triple was seen."""
@@ -603,130 +218,6 @@ def _choose_chain(recent: list[tuple[int, list[_Blob]]], size_tol: float, diag: 
                 if best is None or score > best[0]:
                     best = (score, (b1, b2, b3))
     return (None, still) if best is None else (best[1], False)
-
-
-def estimate_background(
-    source: FrameSource, start: int = 0, stop: int | None = None, n_samples: int = 25
-) -> np.ndarray:
-    """Background of the footage: per-pixel median of a subsample of frames.
-
-    Each sampled frame is first scaled to the common brightness (the median of its ratio to
-    the per-pixel median over a sparse grid), so flicker does not leak into the model.
-
-    Parameters
-    ----------
-    source : FrameSource
-        The footage.
-    start, stop : int
-        Frame range (``stop`` excluded, None for the end).
-    n_samples : int
-        Number of frames sampled evenly over the range.
-
-    Returns
-    -------
-    ndarray
-        float32 background image, native grey scale.
-    """
-    n_samples = max(3, int(n_samples))
-    last = source.last_frame if stop is None else stop - 1
-    if source.last_frame is not None and last is not None:
-        last = min(last, source.last_frame)
-    if last is None:  # length unknown: read through, keeping an evenly thinned subset
-        kept: list[np.ndarray] = []
-        every = 1
-        for i, (_, img) in enumerate(source.frames_raw(start, stop)):
-            if i % every == 0:
-                kept.append(img)
-                if len(kept) >= 2 * n_samples:
-                    kept = kept[::2]
-                    every *= 2
-        samples = kept
-    else:
-        if hasattr(source, "frame_numbers"):
-            nums = source.frame_numbers
-            nums = nums[(nums >= start) & (nums <= last)]
-            pick = nums[np.unique(np.linspace(0, len(nums) - 1, n_samples).round().astype(int))]
-        else:
-            lo = max(start, source.first_frame)
-            pick = np.unique(np.linspace(lo, last, n_samples).round().astype(int))
-        samples = [img for _, img in source.sample(pick.tolist())]
-    if not samples:
-        raise ValueError(
-            f"footage {source.name}: no frame could be read in the range {start}..{last}; "
-            f"check start/stop and the file."
-        )
-    k = len(samples)
-    h, w = samples[0].shape
-    step = max(1, int(math.sqrt(h * w / _GRID_PIXELS)))
-    idx = (np.arange(step // 2, h, step)[:, None] * w + np.arange(step // 2, w, step)).ravel()
-    grid = np.stack([np.ascontiguousarray(img).reshape(-1)[idx] for img in samples])
-    grid = grid.astype(np.float32)
-    ref = np.median(grid, axis=0)
-    floor = 2.0 * source.full_scale / 255.0
-    ok = ref >= max(floor, 0.25 * float(np.median(ref)))
-    gains = np.ones(k)
-    if ok.sum() >= 50:
-        gains = np.array([float(np.median(grid[i, ok] / ref[ok])) for i in range(k)])
-        gains = np.where(gains > 0, gains, 1.0)
-    # Scale every sample to the common brightness, in 1/256 grey-level fixed point for 8-bit
-    # footage (exact enough, and the median network below runs fast on 16-bit integers).
-    if source.bit_depth == 8:
-        scaled = [
-            np.rint(img.astype(np.float32) * np.float32(256.0 / gi))
-            .clip(0, 65535)
-            .astype(np.uint16)
-            for img, gi in zip(samples, gains, strict=True)
-        ]
-        bg = _median_of(scaled).astype(np.float32) / np.float32(256.0)
-    else:
-        scaled = [
-            img.astype(np.float32) / np.float32(gi) for img, gi in zip(samples, gains, strict=True)
-        ]
-        bg = _median_of(scaled)
-    return np.ascontiguousarray(bg, dtype=np.float32)
-
-
-def _sorting_pairs(n: int) -> list[tuple[int, int]]:
-    """Comparator pairs of Batcher's odd-even merge sort for ``n`` (a power of two) inputs.
-
-    References
-    ----------
-    1. K. E. Batcher, "Sorting networks and their applications", Proc. AFIPS Spring Joint
-       Computer Conference 32, 307-314 (1968).
-    """
-    pairs = []
-    p = 1
-    while p < n:
-        k = p
-        while k >= 1:
-            for j in range(k % p, n - k, 2 * k):
-                for i in range(min(k, n - j - k)):
-                    if (i + j) // (2 * p) == (i + j + k) // (2 * p):
-                        pairs.append((i + j, i + j + k))
-            k //= 2
-        p *= 2
-    return pairs
-
-
-def _median_of(images: list[np.ndarray]) -> np.ndarray:
-    """Per-pixel median of equally shaped images with a sorting network of whole-image
-    minimum/maximum operations (much faster than a partition along a stacked axis)."""
-    k = len(images)
-    n = 1
-    while n < k:
-        n *= 2
-    top = np.iinfo(images[0].dtype).max if images[0].dtype.kind in "ui" else np.inf
-    vals = list(images) + [np.full_like(images[0], top)] * (n - k)
-    for i, j in _sorting_pairs(n):
-        lo = np.minimum(vals[i], vals[j])
-        vals[j] = np.maximum(vals[i], vals[j])
-        vals[i] = lo
-    if k % 2 == 1:
-        return vals[k // 2]
-    a, b = vals[k // 2 - 1], vals[k // 2]
-    if a.dtype.kind in "ui":
-        return ((a.astype(np.uint32) + b) // 2).astype(a.dtype)
-    return 0.5 * (a + b)
 
 
 def _post_check(
@@ -916,7 +407,7 @@ def detect_specimen(
                 f"background: shape {background.shape} differs from the frames' {(h, w)}; "
                 f"pass a background of the footage's size."
             )
-    det = _Detector(
+    det = BlobFinder(
         source,
         background,
         threshold_sigma=float(threshold_sigma),
@@ -929,9 +420,9 @@ def detect_specimen(
         max_gap=max_gap,
     )
     diag = math.hypot(h, w)
-    accepted: dict[int, tuple[_Blob, float]] = {}
+    accepted: dict[int, tuple[Blob, float]] = {}
     missing: dict[int, str] = {}
-    recent: list[tuple[int, list[_Blob], float]] = []  # last frames read while searching
+    recent: list[tuple[int, list[Blob], float]] = []  # last frames read while searching
     sigmas: list[float] = []
     tracker: _Tracker | None = None
     if isinstance(source, FolderSource):
@@ -1045,7 +536,7 @@ def detect_specimen(
     snr = np.array([b.snr for b in blobs_ok])
     blind = np.array([b.blind for b in blobs_ok])
     quality = (
-        snr**2 / (snr**2 + 100.0) * size_term * path_term * np.clip(1 - blind / _MAX_BLIND, 0, 1)
+        snr**2 / (snr**2 + 100.0) * size_term * path_term * np.clip(1 - blind / MAX_BLIND, 0, 1)
     )
     gains = np.array([accepted[int(k)][1] for k in frames])
     sig = np.array([b.sigma for b in blobs_ok])
