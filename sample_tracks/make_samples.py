@@ -109,7 +109,8 @@ def make_simulated(force: bool) -> None:
 
 def add_outliers() -> list[dict]:
     """Replace OUTLIERS rows of the practice-ball track by gross tracker errors."""
-    from fitdrag.tracks import Track, read_track, write_track
+    from fitdrag.tracks.csv_file import read_track, write_track
+    from fitdrag.tracks.track import Track
 
     p = HERE / "practice_ball_outliers.csv"
     tr = read_track(p)
@@ -137,7 +138,8 @@ def make_ribbed(force: bool) -> None:
     from fitdrag.physics.forces import Conditions
     from fitdrag.physics.simulate import Launch, simulate
     from fitdrag.physics.specimen import Sphere
-    from fitdrag.tracks import Track, write_track
+    from fitdrag.tracks.csv_file import write_track
+    from fitdrag.tracks.track import Track
 
     rb = RIBBED
     air = Air.from_conditions(*rb["air"])

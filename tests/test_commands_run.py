@@ -275,7 +275,7 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
     `fitdrag track` writes with the same calibration."""
     from fitdrag.run.jobs import load_job
     from fitdrag.run.pipeline import read_throws
-    from fitdrag.tracks import read_track
+    from fitdrag.tracks.csv_file import read_track
 
     job = _footage_job(tmp_path, clip)
     assert main(["run", str(job), "--quiet"]) == 0

@@ -17,7 +17,7 @@ from scipy.integrate import solve_ivp
 
 from fitdrag.cli import main
 from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
-from fitdrag.tracks import read_track
+from fitdrag.tracks.csv_file import read_track
 
 BASE = ["simulate", "--mass", "0.0027", "--diameter", "0.04", "--cd", "0.47", "--speed", "8",
         "--angle", "30", "--fps", "500", "--frames", "200"]  # fmt: skip

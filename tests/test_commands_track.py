@@ -17,7 +17,7 @@ import pytest
 
 from fitdrag.cli import main
 from fitdrag.commands.track import parse_origin, parse_reference
-from fitdrag.tracks import read_track
+from fitdrag.tracks.csv_file import read_track
 from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
 
 FPS = 500.0

@@ -20,7 +20,7 @@ from fitdrag.physics.air import Air
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.simulate import Launch, simulate
 from fitdrag.physics.specimen import Sphere
-from fitdrag.tracks import Track
+from fitdrag.tracks.track import Track
 
 AIR = Air(density=1.20, viscosity=1.81e-5)
 BALL = Sphere(mass=0.0027, diameter=0.040)

@@ -300,7 +300,7 @@ def test_sensitivities_match_finite_differences_of_independent_integration(model
 
 
 def _noisy(t, pos, sigma, seed):
-    from fitdrag.tracks import Track
+    from fitdrag.tracks.track import Track
 
     rng = np.random.default_rng(seed)
     return Track(

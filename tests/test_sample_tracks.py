@@ -14,7 +14,8 @@ import reference
 from scipy.integrate import solve_ivp
 
 from fitdrag.run.jobs import load_job
-from fitdrag.tracks import file_sha256, read_track
+from fitdrag.tracks.csv_file import read_track
+from fitdrag.tracks.track import file_sha256
 
 SAMPLES = Path(__file__).resolve().parents[1] / "sample_tracks"
 CSVS = sorted(p.name for p in SAMPLES.glob("*.csv"))

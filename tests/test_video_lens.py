@@ -16,7 +16,7 @@ import cv2
 import numpy as np
 import pytest
 
-from fitdrag.tracks import OutputExistsError
+from fitdrag.errors import OutputExistsError
 from fitdrag.video.lens import (
     LensModel,
     calibrate_lens,

@@ -18,7 +18,8 @@ import re
 import numpy as np
 import pytest
 
-from fitdrag.tracks import MIN_POINTS, read_track
+from fitdrag.tracks.csv_file import read_track
+from fitdrag.tracks.track import MIN_POINTS
 from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
 from fitdrag.video.tracking import (
     FootageTrack,

@@ -21,7 +21,8 @@ import warnings
 from collections.abc import Sequence
 from typing import Any
 
-from fitdrag.tracks import UNITS, Track, read_track
+from fitdrag.tracks.csv_file import UNITS, read_track
+from fitdrag.tracks.track import Track
 
 __all__ = ["add_import_options", "import_options_from_args", "read_tracks_from_args"]
 

@@ -44,7 +44,7 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.tracks import OutputExistsError
+    from fitdrag.errors import OutputExistsError
     from fitdrag.video.lens import board_images_from, calibrate_lens, parse_board
 
     out = Path(args.output)

@@ -67,7 +67,8 @@ def register(sub) -> argparse.ArgumentParser:
 
 def run(args) -> int:
     from fitdrag.physics.simulate import Launch, simulate
-    from fitdrag.tracks import MIN_POINTS, Track, write_track
+    from fitdrag.tracks.csv_file import write_track
+    from fitdrag.tracks.track import MIN_POINTS, Track
 
     if args.fps <= 0 or not np.isfinite(args.fps):
         raise ValueError(f"--fps: must be > 0 Hz, got {args.fps!r}; give the frame rate.")

@@ -97,7 +97,7 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def _check_output(path: str | None, option: str, force: bool) -> Path | None:
-    from fitdrag.tracks import OutputExistsError
+    from fitdrag.errors import OutputExistsError
 
     if not path:
         return None
@@ -187,7 +187,7 @@ def preview_figure(image, det, cal, frame_number: int, summary: str):
 
 
 def run(args) -> int:
-    from fitdrag.tracks import read_track
+    from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
 

@@ -55,7 +55,7 @@ from scipy import stats
 from fitdrag.fit.fitting import frame_gaps, prais_winsten
 from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.physics.registry import get_drag_model
-from fitdrag.tracks import Track
+from fitdrag.tracks.track import Track
 
 __all__ = [
     "DEFAULT_CANDIDATES",

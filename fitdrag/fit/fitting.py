@@ -71,7 +71,7 @@ from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.physics.forces import Conditions, effective_mass
 from fitdrag.physics.registry import get_drag_model
 from fitdrag.physics.simulate import LAUNCH_NAMES, FlightModel, Launch
-from fitdrag.tracks import Track
+from fitdrag.tracks.track import Track
 
 #: Default coverage probability for the expanded uncertainty (k = 2 for large ν).
 COVERAGE_PROBABILITY = 0.9545

@@ -47,7 +47,7 @@ from fitdrag.fit.fitting import prais_winsten
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
 from fitdrag.physics.simulate import FlightModel, Launch
-from fitdrag.tracks import MIN_POINTS
+from fitdrag.tracks.track import MIN_POINTS
 
 __all__ = ["PlanResult", "fisher_information", "plan_test"]
 

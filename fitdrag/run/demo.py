@@ -234,7 +234,7 @@ def _conditions():
 
 
 def _sha256(path: Path) -> str:
-    from fitdrag.tracks import file_sha256
+    from fitdrag.tracks.track import file_sha256
 
     return file_sha256(path)
 

@@ -62,7 +62,8 @@ def read_throws(job, *, progress: bool = False) -> tuple[list, dict]:
         A file that cannot be read or tracked; a footage throw's message starts with the
         job file, the line and the throw.
     """
-    from fitdrag.tracks import Track, file_sha256, read_track
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.tracks.track import Track, file_sha256
 
     hashes = {str(job.path): file_sha256(job.path)}
     tracks = []

@@ -1127,7 +1127,7 @@ class DragRefitModel:
         return None
 
     def transformed_tracks(self, v):
-        from fitdrag.tracks import Track
+        from fitdrag.tracks.track import Track
 
         f0 = self.nominal.get("frame_rate")
         time_factor = 1.0 if f0 is None else f0 / v.get("frame_rate", f0)

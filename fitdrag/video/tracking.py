@@ -359,7 +359,7 @@ def track_footage(
         for another image size, no markers found, or fewer than
         :data:`fitdrag.tracks.MIN_POINTS` frames with the specimen.
     """
-    from fitdrag.tracks import MIN_POINTS, Track
+    from fitdrag.tracks.track import MIN_POINTS, Track
     from fitdrag.video.calibration import load_marker_layout
     from fitdrag.video.detect import get_detector
     from fitdrag.video.lens import LensModel, load_lens
@@ -558,7 +558,7 @@ def footage_sha256(path: str | os.PathLike) -> str:
     ValueError
         A folder without numbered frames.
     """
-    from fitdrag.tracks import file_sha256
+    from fitdrag.tracks.track import file_sha256
     from fitdrag.video.sources import FolderSource
 
     p = Path(path)

@@ -1,4 +1,4 @@
-"""Tests of fitdrag.tracks (Track, CSV import/export) and the shared CLI import options.
+"""Tests of fitdrag.tracks.csv_file (CSV import and export of tracks).
 
 Each test says what it checks against:
 - closed-form/independent: the expected numbers are worked out by hand in the test (unit
@@ -9,16 +9,11 @@ Each test says what it checks against:
 
 from __future__ import annotations
 
-import argparse
-import copy
 import hashlib
-import io
 import math
 import os
-import pickle
 import re
 import tempfile
-import warnings
 from pathlib import Path
 
 import numpy as np
@@ -26,20 +21,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from fitdrag.commands._import_options import (
-    add_import_options,
-    import_options_from_args,
-    read_tracks_from_args,
-)
-from fitdrag.tracks import (
-    MIN_POINTS,
-    OutputExistsError,
-    Track,
-    TrackImportWarning,
-    file_sha256,
-    read_track,
-    write_track,
-)
+from fitdrag.errors import OutputExistsError
+from fitdrag.tracks.csv_file import read_track, write_track
+from fitdrag.tracks.track import MIN_POINTS, Track, TrackImportWarning, file_sha256
 
 
 def exact(msg: str) -> str:
@@ -729,175 +713,6 @@ def test_write_file_mode_follows_umask(tmp_path):
     mask = os.umask(0o022)
     os.umask(mask)
     assert p.stat().st_mode & 0o777 == 0o666 & ~mask
-
-
-# ------------------------------------------------------------------------------------------
-# Track validation
-# ------------------------------------------------------------------------------------------
-
-
-def test_track_mismatched_lengths():
-    """regression"""
-    with pytest.raises(ValueError, match=exact(
-        "t, x, y: lengths differ (t has 10, x has 9, y has 10); give one x and one y per time."
-    )):  # fmt: skip
-        Track(np.arange(10.0), np.arange(9.0), np.arange(10.0))
-
-
-def test_track_nan():
-    """regression"""
-    y = np.arange(10.0)
-    y[4] = np.nan
-    with pytest.raises(ValueError, match=exact(
-        "y: 1 non-finite value(s), first at index 4 (value nan); drop or repair those samples "
-        "first."
-    )):  # fmt: skip
-        Track(np.arange(10.0), np.arange(10.0), y)
-
-
-def test_track_three_points():
-    """regression"""
-    with pytest.raises(ValueError, match=exact(
-        "track: 3 usable point(s), at least 8 are needed for a fit; use a longer stretch of the "
-        "flight."
-    )):  # fmt: skip
-        Track([0.0, 0.1, 0.2], [0.0, 1.0, 2.0], [0.0, 1.0, 2.0])
-
-
-def test_track_non_monotonic():
-    """regression"""
-    t = np.arange(10.0)
-    t[6] = 4.5
-    with pytest.raises(ValueError, match=exact(
-        "t: times must increase strictly; decreasing time at index 6 (t[5] = 5.0, t[6] = 4.5); "
-        "sort the samples or remove repeated frames."
-    )):  # fmt: skip
-        Track(t, t, t)
-    t[6] = 5.0
-    with pytest.raises(ValueError, match=exact(
-        "t: times must increase strictly; duplicate time at index 6 (t[5] = 5.0, t[6] = 5.0); "
-        "sort the samples or remove repeated frames."
-    )):  # fmt: skip
-        Track(t, t, t)
-
-
-def test_track_other_validation():
-    """regression: sigma, frame and non-numeric input."""
-    k = np.arange(10.0)
-    with pytest.raises(ValueError, match=exact(
-        "sigma: every position uncertainty must be finite and > 0 m, got min 0.0; leave sigma "
-        "out to estimate the noise."
-    )):  # fmt: skip
-        Track(k, k, k, sigma=0.0)
-    with pytest.raises(ValueError, match=exact(
-        "frame: frame numbers must be whole numbers."
-    )):  # fmt: skip
-        Track(k, k, k, frame=k + 0.5)
-    with pytest.raises(ValueError, match=r"^x: expected numbers, got list that cannot be read"):
-        Track(k, ["a"] * 10, k)
-    assert np.array_equal(Track(k, k, k, sigma=0.01).sigma, np.full(10, 0.01))
-
-
-def test_track_is_read_only_and_picklable():
-    """regression: arrays and meta are read-only; pickle/deepcopy keep everything."""
-    k = np.arange(10.0)
-    tr = Track(k, k, k, frame=np.arange(10), meta={"source": "synthetic"})
-    with pytest.raises(ValueError, match="read-only"):
-        tr.x[0] = 1.0
-    with pytest.raises(TypeError):
-        tr.meta["source"] = "other"
-    for other in (pickle.loads(pickle.dumps(tr)), copy.deepcopy(tr)):
-        assert np.array_equal(other.x, tr.x) and np.array_equal(other.frame, tr.frame)
-        assert other.meta["source"] == "synthetic"
-
-
-# ------------------------------------------------------------------------------------------
-# CLI import options
-# ------------------------------------------------------------------------------------------
-
-
-def _parser() -> argparse.ArgumentParser:
-    p = argparse.ArgumentParser(prog="fitdrag test", exit_on_error=False)
-    p.add_argument("tracks", nargs="+")
-    add_import_options(p)
-    return p
-
-
-def test_cli_defaults_match_read_track(tmp_path):
-    """regression: with no options given, the CLI reads exactly as read_track's defaults."""
-    import inspect
-
-    args = _parser().parse_args(["a.csv"])
-    opts = import_options_from_args(args)
-    sig = inspect.signature(read_track)
-    for name, value in opts.items():
-        assert sig.parameters[name].default == value, name
-
-
-def test_cli_options_map_to_read_track(tmp_path):
-    """closed-form/independent: pixel conversion by hand, as in the library test."""
-    lines = ["# scale_relative_uncertainty: 0.002", "idx;u;v"] + [
-        f"{50 + k};{100 + k};{200 - k}" for k in range(10)
-    ]
-    p = write(tmp_path, "\n".join(lines))
-    args = _parser().parse_args([
-        str(p), str(p), "--t-column", "none", "--frame-column", "IDX", "--frame-rate", "1000",
-        "--x-column", "U", "--y-column", "V", "--units", "px", "--scale", "0.001",
-        "--origin", "100,200", "--y-down", "--delimiter", ";", "--strict",
-    ])  # fmt: skip
-    trs = read_tracks_from_args(args.tracks, args)
-    assert len(trs) == 2
-    k = np.arange(10)
-    assert np.array_equal(trs[0].t, (50 + k) / 1000)
-    np.testing.assert_allclose(trs[0].x, k * 0.001, rtol=1e-15, atol=0)
-    np.testing.assert_allclose(trs[0].y, k * 0.001, rtol=1e-15, atol=0)
-    imp = trs[0].meta["import"]
-    assert imp["strict"] is True and imp["y_down"] is True and imp["origin"] == [100.0, 200.0]
-    assert trs[1].meta["scale_relative_uncertainty"] == 0.002
-
-
-def test_cli_warnings_printed_as_lines(tmp_path):
-    """regression"""
-    lines = rows().splitlines()
-    lines[3] = "0.02,,4"
-    p = write(tmp_path, "\n".join(lines))
-    args = _parser().parse_args([str(p)])
-    buf = io.StringIO()
-    with warnings.catch_warnings():
-        warnings.simplefilter("error")  # nothing escapes as a Python warning
-        (tr,) = read_tracks_from_args(args.tracks, args, stderr=buf)
-    assert buf.getvalue() == (
-        f"warning: {p}: dropped 1 row(s) with blank or NaN cells (in 'x') at line(s) 4.\n"
-    )
-    assert tr.meta["dropped_rows"] == [4]
-    with pytest.raises(ValueError, match=exact("no track file given; name at least one CSV file.")):
-        read_tracks_from_args([], args)
-
-
-@pytest.mark.parametrize(
-    ("argv", "msg"),
-    [
-        (["--origin", "1"], "argument --origin: expected two numbers X,Y (e.g. 640,360), got '1'"),
-        (["--frame-rate", "0"], "argument --frame-rate: must be a finite number > 0 Hz, got '0'"),
-        (["--units", "in"], "argument --units: invalid choice: 'in' (choose from "),
-    ],
-)
-def test_cli_bad_option_values(argv, msg):
-    """regression: argparse rejects malformed values with one clear message."""
-    with pytest.raises(argparse.ArgumentError, match="^" + re.escape(msg)):
-        _parser().parse_args(["a.csv", *argv])
-
-
-def test_cli_negative_origin_and_every_help_has_a_unit():
-    """regression: --origin=-5,10 parses; each option's help states its unit."""
-    args = _parser().parse_args(["a.csv", "--origin=-5.5,10"])
-    assert args.import_origin == (-5.5, 10.0)
-    p = argparse.ArgumentParser()
-    group = add_import_options(p)
-    assert len(group._group_actions) == 13
-    for action in group._group_actions:
-        h = action.help
-        assert re.search(r"\[[^\]]+\]|no unit|in --units", h), (action.option_strings, h)
 
 
 def test_header_roll_uncertainty_is_a_number(tmp_path):
