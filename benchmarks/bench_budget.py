@@ -31,15 +31,11 @@ def main() -> None:
     args = ap.parse_args()
 
     from fitdrag import Air, Sphere, Track, fit_tracks
+    from fitdrag.fit.budget_model import DragRefitModel
     from fitdrag.physics.forces import Conditions
     from fitdrag.physics.simulate import Launch, simulate
-    from fitdrag.uncertainty.budget import (
-        DragRefitModel,
-        InputQuantity,
-        budget_from_model,
-        compare_with_gum,
-        monte_carlo,
-    )
+    from fitdrag.uncertainty.gum import InputQuantity, budget_from_model
+    from fitdrag.uncertainty.monte_carlo import compare_with_gum, monte_carlo
 
     fps, n = 400.0, args.points
     t = np.arange(n) / fps

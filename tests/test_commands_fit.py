@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import reference as ref
+from scipy import stats
 
 from fitdrag import Air, Sphere, Track, fit_tracks, read_track, write_track
 from fitdrag.cli import main
@@ -54,7 +55,12 @@ def run_fit(*args) -> int:
 
 def test_json_has_every_field_of_the_issue(track_file, tmp_path, capsys):
     """regression (JSON fields listed in issue 3) and closed-form/independent (Cd and launch
-    against the reference truth; SHA-256 by hashlib; version from the installed metadata)."""
+    against the reference truth; SHA-256 by hashlib; version from the installed metadata).
+
+    Changed in issue 11 (one coverage-factor rule): the coverage factor is the Student-t factor
+    at p = erf(2/√2) = 95.45 % for the stated degrees of freedom (JCGM 100:2008 G.3, G.4),
+    checked against scipy.stats.t.ppf, no longer exactly 2 (the fit's former rule for
+    ν ≥ 30, which disagreed with the uncertainty budget's)."""
     out = tmp_path / "result.json"
     assert run_fit(track_file, "--json", out) == 0
     stdout = capsys.readouterr().out
@@ -64,8 +70,10 @@ def test_json_has_every_field_of_the_issue(track_file, tmp_path, capsys):
     dc = d["drag_coefficient"]
     for key in ("value", "standard_uncertainty", "expanded_uncertainty", "coverage_factor"):
         assert isinstance(dc[key], float), key
-    assert dc["coverage_factor"] == 2.0
-    assert dc["expanded_uncertainty"] == pytest.approx(2.0 * dc["standard_uncertainty"])
+    p = math.erf(2.0 / math.sqrt(2.0))  # GUM Table G.1: k = 2 <-> 95.45 %
+    k = stats.t.ppf(0.5 * (1.0 + p), dc["degrees_of_freedom"])
+    assert dc["coverage_factor"] == pytest.approx(k, rel=1e-12)
+    assert dc["expanded_uncertainty"] == pytest.approx(k * dc["standard_uncertainty"])
     assert abs(dc["value"] - BASE.cd) <= 3 * dc["standard_uncertainty"]
     assert d["points"]["used"] == BASE.n
     assert d["points"]["rejected"] == []

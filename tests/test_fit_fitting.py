@@ -24,6 +24,7 @@ import re
 import numpy as np
 import pytest
 import reference as ref
+from scipy import stats
 
 from fitdrag import Air, Sphere, Track, fit_tracks
 from fitdrag.fit.fitting import IDENTIFIABILITY_LIMIT
@@ -66,6 +67,11 @@ def noisy_track(sc: ref.Scenario, seed: int, kind: str = "white", phi: float = 0
         raise AssertionError(kind)
     frame = None if frame0 is None else frame0 + np.arange(sc.n)
     return Track(sc.t, xy[:, 0] + ex, xy[:, 1] + ey, sigma=sigma_column, frame=frame)
+
+
+def t_factor(dof: float) -> float:
+    """Student-t coverage factor at p = erf(2/√2) (GUM Table G.1, k = 2 ↔ 95.45 %), by scipy."""
+    return float(stats.t.ppf(0.5 * (1.0 + math.erf(2.0 / math.sqrt(2.0))), dof))
 
 
 def within(value, true, u, k=3.0) -> bool:
@@ -189,25 +195,36 @@ def test_track_sigmas_are_used_as_weights():
 
 def test_coverage_smoke_white_and_ar1():
     """closed-form/independent: over 30 replicates per noise type (white; AR(1) φ = 0.8) the
-    k = 2 interval holds the true Cd in at least 80 % of them (a loose bound for 30 draws
+    k ≈ 2 interval holds the true Cd in at least 80 % of them (a loose bound for 30 draws
     of a nominal 95 % interval; binomial P(≤ 23 of 30 | p = 0.95) ≈ 0.2 %).  The full study
-    is benchmarks/coverage_study.py."""
+    is benchmarks/coverage_study.py.
+
+    Changed in issue 11 (one coverage-factor rule): k is the Student-t factor at
+    p = erf(2/√2) = 95.45 % for the fit's degrees of freedom (JCGM 100:2008 G.3, G.4; the
+    uncertainty budget's rule), checked against scipy.stats.t.ppf, instead of the fit's former
+    private rule "k = 2 exactly for ν ≥ 30", which disagreed with the certificate."""
     sc = ref.Scenario(n=200, fps=200.0)  # shorter track keeps the suite fast
     for kind in ("white", "ar1"):
         hits = 0
         for seed in range(30):
             r = fit_tracks(noisy_track(sc, seed=1000 + seed, kind=kind), sphere(sc), AIR)
             assert r.success, r.message
-            # k = 2 for white noise; under AR(1) the effective degrees of freedom may raise it
-            assert r.coverage_factor == 2.0 if kind == "white" else r.coverage_factor >= 2.0
+            # k = t_p(ν) (scipy); under AR(1) the effective degrees of freedom may raise it
+            assert r.coverage_factor == pytest.approx(t_factor(r.dof), rel=1e-12)
+            assert r.coverage_factor >= 2.0
             hits += abs(r.cd - sc.cd) <= r.expanded_uncertainty
         assert hits >= 24, (kind, hits)
 
 
 def test_expanded_uncertainty_student_t_for_few_points():
     """published-value: JCGM 100:2008 (GUM) Table G.2, p = 95.45 %: t(15) = 2.18 (a 10-point
-    track gives 20 residuals − 5 parameters = 15 degrees of freedom); for many points k = 2
-    (GUM G.6.6); a forced k is used as given."""
+    track gives 20 residuals − 5 parameters = 15 degrees of freedom); for many points k → 2
+    (Table G.2, ν = ∞: 2.00); a forced k is used as given.
+
+    Changed in issue 11 (one coverage-factor rule): for many points k is now the Student-t
+    factor t_p(ν) at p = erf(2/√2) = 95.45 % (JCGM 100:2008 G.3, G.4), checked against
+    scipy.stats.t.ppf, and no longer exactly 2 (the fit's former private rule "k = 2 for
+    ν ≥ 30" gave 2.000 where the uncertainty budget gave 2.087 at ν = 30)."""
     sc = ref.Scenario(n=10, fps=50.0)
     r = fit_tracks(noisy_track(sc, seed=14), sphere(sc), AIR, robust=False, noise="white")
     assert r.dof == 15
@@ -216,7 +233,11 @@ def test_expanded_uncertainty_student_t_for_few_points():
     forced = fit_tracks(noisy_track(BASE, seed=14), sphere(BASE), AIR, coverage_factor=3.0)
     assert forced.coverage_factor == 3.0
     assert forced.expanded_uncertainty == pytest.approx(3.0 * forced.u_cd, rel=1e-12)
-    assert fit_tracks(noisy_track(BASE, seed=14), sphere(BASE), AIR).coverage_factor == 2.0
+    many = fit_tracks(noisy_track(BASE, seed=14), sphere(BASE), AIR)
+    assert many.dof > 700
+    assert many.coverage_factor == pytest.approx(t_factor(many.dof), rel=1e-12)
+    assert many.coverage_factor == pytest.approx(2.00, abs=0.005)  # Table G.2, ν large
+    assert r.coverage_factor == pytest.approx(t_factor(15), rel=1e-12)
 
 
 # ------------------------------------------------------------------------ outliers, AR(1)

@@ -6,8 +6,8 @@ A thin layer over :mod:`fitdrag.run.pipeline`, whose steps are:
    is wrong);
 2. read every throw's track, fit them together (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
-   (:func:`fitdrag.uncertainty.budget.budget_from_model` over :class:`fitdrag.uncertainty.budget.DragRefitModel`),
-   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.budget.monte_carlo`);
+   (:func:`fitdrag.uncertainty.gum.budget_from_model` over :class:`fitdrag.fit.budget_model.DragRefitModel`),
+   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.monte_carlo.monte_carlo`);
 4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`);
 5. in one records transaction: allocate the certificate number, render the PDF, PNG and
    JSON to temporary files, store the record, then give the files their final names.

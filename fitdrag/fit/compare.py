@@ -52,7 +52,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy import stats
 
-from fitdrag.fit.fitting import frame_gaps, prais_winsten
+from fitdrag.fit.noise import frame_gaps, prais_winsten
 from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.physics.registry import get_drag_model
 from fitdrag.tracks.track import Track

@@ -43,7 +43,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fitdrag._checks import positive_number as _check_positive
-from fitdrag.fit.fitting import prais_winsten
+from fitdrag.fit.noise import prais_winsten
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
 from fitdrag.physics.simulate import FlightModel, Launch

@@ -1,6 +1,6 @@
 """Figure: the fitted drag coefficient against the Reynolds number, with its band.
 
-Takes a :class:`fitdrag.fit.fitting.FitResult`; the curve and its standard uncertainty come from
+Takes a :class:`fitdrag.fit.results.FitResult`; the curve and its standard uncertainty come from
 :func:`fitdrag.fit.compare.drag_coefficient_at` (first-order propagation of the fitted drag
 parameters' covariance, JCGM 100:2008 eq. 13).  matplotlib is imported lazily and the Agg
 backend is used when no axes are given.

@@ -1,7 +1,7 @@
 """Plots of a fit from plain arrays: trajectory with the fitted flight, residuals vs time.
 
 These functions take :class:`ThrowCurves` (plain arrays, one per throw) so that they can draw
-a fit from any source — a live :class:`fitdrag.fit.fitting.FitResult` (through
+a fit from any source — a live :class:`fitdrag.fit.results.FitResult` (through
 :func:`curves_from_fit`) or stored arrays.  Each takes an optional matplotlib ``ax`` (or
 ``fig``) and returns the figure; matplotlib is imported only inside the functions.
 
@@ -83,7 +83,7 @@ class ThrowCurves:
 
 
 def curves_from_fit(result, n: int = 400) -> list[ThrowCurves]:
-    """One :class:`ThrowCurves` per throw of a :class:`fitdrag.fit.fitting.FitResult`.
+    """One :class:`ThrowCurves` per throw of a :class:`fitdrag.fit.results.FitResult`.
 
     The dense fitted flight is the result's own simulation on ``n`` times per throw.
     """

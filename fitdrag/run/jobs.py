@@ -41,8 +41,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from fitdrag.uncertainty.budget import InputQuantity
 from fitdrag.uncertainty.decision import RULES, Specification
+from fitdrag.uncertainty.gum import InputQuantity
 from fitdrag.units import parse_quantity, unit_symbol, unit_word
 
 #: Gravity assumed when a job gives no [site]: standard gravity, with a rectangular

@@ -9,8 +9,8 @@ certificate and the record; :func:`issue` does those):
    calibrated by :func:`fitdrag.video.tracking.track_footage`), fit them together
    (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
-   (:func:`fitdrag.uncertainty.budget.budget_from_model` over :class:`fitdrag.uncertainty.budget.DragRefitModel`),
-   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.budget.monte_carlo`);
+   (:func:`fitdrag.uncertainty.gum.budget_from_model` over :class:`fitdrag.fit.budget_model.DragRefitModel`),
+   and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.monte_carlo.monte_carlo`);
 4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`);
 5. in one records transaction: allocate the certificate number, render the PDF, PNG and
    JSON to temporary files, store the record, then give the files their final names.
@@ -167,7 +167,7 @@ def _vu(m) -> dict:
 def _air_density_uncertainty(job) -> float:
     """u(ρ) from u(T), u(p), u(RH) through the CIPM-2007 formula (GUM eq. (10))."""
     from fitdrag.physics.air import moist_air_density
-    from fitdrag.uncertainty.budget import InputQuantity, budget_from_model
+    from fitdrag.uncertainty.gum import InputQuantity, budget_from_model
 
     a = job.air
     if "density" in a:
@@ -239,17 +239,13 @@ def measure(
         When the fit or a re-fit of the budget does not converge.
     """
     from fitdrag._version import __version__
+    from fitdrag.fit.budget_model import DragRefitModel
     from fitdrag.fit.fitting import fit_tracks
     from fitdrag.report.certificate import format_with_uncertainty, formatter_for
-    from fitdrag.uncertainty.budget import (
-        P_K2,
-        DragRefitModel,
-        budget_from_model,
-        compare_with_gum,
-        default_workers,
-    )
-    from fitdrag.uncertainty.budget import monte_carlo as run_mc
     from fitdrag.uncertainty.decision import decide
+    from fitdrag.uncertainty.gum import P_K2, budget_from_model
+    from fitdrag.uncertainty.monte_carlo import compare_with_gum, default_workers
+    from fitdrag.uncertainty.monte_carlo import monte_carlo as run_mc
 
     tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()

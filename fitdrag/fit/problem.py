@@ -1,0 +1,223 @@
+"""The fit's least-squares problem: the layout of the throws' parameters, weighted and
+prewhitened residuals and their exact Jacobian from the simulator's sensitivities.
+
+Parameter layout: the shared parameters first (the drag law's, then the lift coefficient
+when fitted), then per throw its launch state (x0, y0, vx0, vy0).  Residual layout: per
+throw, the kept x residuals, then the kept y residuals, each divided by its noise standard
+deviation and, under AR(1) noise, Prais–Winsten transformed (:mod:`fitdrag.fit.noise`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from fitdrag.fit.noise import frame_gaps, prais_winsten, reml_ar1
+from fitdrag.physics.simulate import FlightModel
+from fitdrag.tracks.track import Track
+
+#: Integrator tolerance inside fits: positions to ~1e-8 m, far below any tracking noise.
+FIT_RTOL = 1e-9
+#: Residual given to every sample of a throw whose flight could not be simulated.
+FAIL_RESIDUAL = 1e6
+
+
+def as_tracks(tracks) -> list[Track]:
+    """One Track or a sequence of them as a non-empty list, each checked to be a Track."""
+    if isinstance(tracks, Track):
+        return [tracks]
+    tracks = list(tracks)
+    if not tracks:
+        raise ValueError("tracks: no track given; pass one Track or a list of Tracks.")
+    for i, tr in enumerate(tracks):
+        if not isinstance(tr, Track):
+            raise ValueError(
+                f"tracks[{i}]: expected a fitdrag.Track, got {type(tr).__name__}; build one "
+                f"with fitdrag.Track(t, x, y) or fitdrag.read_track(path)."
+            )
+    return tracks
+
+
+def initial_launch(track, g: float) -> np.ndarray:
+    """Quadratic fit to the first samples: a drag-free, finite-difference launch guess.
+
+    Parameters
+    ----------
+    track : Track
+        One throw (times [s], positions [m]).
+    g : float
+        Acceleration of free fall (unused by the polynomial; kept for the caller). [m/s²]
+
+    Returns
+    -------
+    ndarray
+        (x0, y0, vx0, vy0) at the first sample. [m], [m/s]
+    """
+    n = len(track)
+    m = min(n, max(8, n // 5))
+    tau = track.t[:m] - track.t[0]
+    out = []
+    for pos in (track.x[:m], track.y[:m]):
+        c = np.polyfit(tau, pos, 2)
+        out.append((c[2], c[1]))
+    return np.array([out[0][0], out[1][0], out[0][1], out[1][1]], dtype=float)
+
+
+class Problem:
+    """Residuals and Jacobian for the global fit, with caching of the last evaluation.
+
+    Parameters
+    ----------
+    tracks : list of Track
+        The throws (times [s], positions [m]).
+    specimen : Sphere or Body
+        The specimen (mass [kg], area [m²], volume [m³]).
+    conditions : Conditions
+        Air, gravity [m/s²], wind [m/s], buoyancy.
+    model : DragModel
+        The drag law.
+    constants : tuple of float
+        The drag law's fixed constants.
+    lift : bool
+        Whether a constant lift coefficient is fitted.
+    """
+
+    def __init__(self, tracks, specimen, conditions, model, constants, lift):
+        self.tracks = tracks
+        self.model = model
+        self.lift = lift
+        self.n_shared = len(model.parameters) + (1 if lift else 0)
+        self.models = [
+            FlightModel(
+                tr.t,
+                specimen,
+                conditions,
+                model,
+                constants,
+                fit_lift=lift,
+                rtol=FIT_RTOL,
+                atol=FIT_RTOL,
+            )  # fmt: skip
+            for tr in tracks
+        ]
+        self.n_params = self.n_shared + 4 * len(tracks)
+        #: parameter names and (lower, upper) bounds, in the layout order (set by the caller)
+        self.names: list[str] = []
+        self.bounds: list[tuple[float, float]] = []
+        # weighting and whitening state
+        self.masks = [np.ones(len(tr), bool) for tr in tracks]
+        self.sigmas = [np.ones((len(tr), 2)) for tr in tracks]
+        self.phi = (0.0, 0.0)
+        self._refresh_layout()
+        self._cache_theta = None
+        self._cache = None
+        self.n_evaluations = 0
+
+    def _refresh_layout(self):
+        self.index = []
+        self.gaps = []
+        for tr, mask in zip(self.tracks, self.masks):
+            idx = np.flatnonzero(mask)
+            self.index.append(idx)
+            self.gaps.append(frame_gaps(tr.t, idx))
+        self.n_resid = 2 * sum(i.size for i in self.index)
+        # per throw: the kept samples (a slice when all are kept), and per axis the kept
+        # observations and inverse sigmas, so that evaluate() does no repeated indexing
+        self._pre = []
+        for i, (tr, idx) in enumerate(zip(self.tracks, self.index)):
+            sel = slice(None) if idx.size == len(tr) else idx
+            axes = []
+            for axis, obs in ((0, tr.x), (1, tr.y)):
+                axes.append((np.ascontiguousarray(obs[sel]), 1.0 / self.sigmas[i][sel, axis]))
+            self._pre.append((sel, idx.size, self.n_shared + 4 * i, axes))
+        self._cache_theta = None
+
+    def set_state(self, masks=None, sigmas=None, phi=None):
+        """Change the kept samples, the noise levels [m] or the AR(1) coefficients [-]."""
+        if masks is not None:
+            self.masks = [np.asarray(m, bool) for m in masks]
+        if sigmas is not None:
+            self.sigmas = sigmas
+        if phi is not None:
+            self.phi = (float(phi[0]), float(phi[1]))
+        self._refresh_layout()
+
+    def throw_theta(self, theta, i):
+        """Throw ``i``'s parameters as the simulator takes them: launch state, then shared."""
+        base = self.n_shared + 4 * i
+        return np.concatenate((theta[base : base + 4], theta[: self.n_shared]))
+
+    def simulate_all(self, theta, sens=True):
+        """(status, positions, velocities, sensitivities) of every throw at ``theta``."""
+        out = []
+        for i, fm in enumerate(self.models):
+            status, pos, vel, jac, _ = fm.run(self.throw_theta(theta, i), sens)
+            out.append((status, pos, vel, jac))
+        return out
+
+    def cached_flights(self, theta):
+        """The flights at ``theta`` without sensitivities, reusing the last evaluation."""
+        theta = np.asarray(theta, float)
+        if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
+            return self._cache[2]  # the last evaluation: the same flight, already computed
+        return self.simulate_all(theta, False)
+
+    def evaluate(self, theta):
+        """(residuals, Jacobian, flights, ok) at ``theta``; cached for a repeated ``theta``."""
+        theta = np.asarray(theta, float)
+        if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
+            return self._cache
+        sims = self.simulate_all(theta, True)
+        self.n_evaluations += 1
+        res = np.empty(self.n_resid)
+        jac = np.zeros((self.n_resid, self.n_params))
+        row = 0
+        ok = True
+        ns = self.n_shared
+        for i, (sel, m, base, axes) in enumerate(self._pre):
+            status, pos, _vel, sj = sims[i]
+            if status != 0 or not np.all(np.isfinite(pos)):
+                ok = False
+                res[row : row + 2 * m] = FAIL_RESIDUAL
+                row += 2 * m
+                continue
+            for axis, (obs, inv_s) in enumerate(axes):
+                r = (obs - pos[sel, axis]) * inv_s
+                j = sj[sel, axis, :] * (-inv_s)[:, None]
+                f = self.phi[axis]
+                if f != 0.0:
+                    r = prais_winsten(r, self.gaps[i], f)
+                    j = prais_winsten(j, self.gaps[i], f)
+                res[row : row + m] = r
+                # columns: the throw's launch state, then the shared parameters
+                jac[row : row + m, base : base + 4] = j[:, :4]
+                jac[row : row + m, :ns] = j[:, 4:]
+                row += m
+        self._cache_theta = theta.copy()
+        self._cache = (res, jac, sims, ok)
+        return self._cache
+
+    def axis_blocks(self) -> list[tuple[slice, int, np.ndarray]]:
+        """Per throw and axis: (rows of the residual vector, axis, frame gaps)."""
+        blocks = []
+        row = 0
+        for i, idx in enumerate(self.index):
+            m = idx.size
+            for axis in (0, 1):
+                blocks.append((slice(row, row + m), axis, self.gaps[i]))
+                row += m
+        return blocks
+
+    def reml_ar1(self, theta) -> tuple[float, float]:
+        """AR(1) coefficients (x, y) by restricted maximum likelihood at ``theta``.
+
+        The weighted residuals and Jacobian are taken without whitening and handed to
+        :func:`fitdrag.fit.noise.reml_ar1`, starting from the current coefficients (kept
+        when the flight cannot be simulated).
+        """
+        saved = self.phi
+        self.set_state(phi=(0.0, 0.0))
+        r0, j0, _sims, ok = self.evaluate(theta)
+        self.set_state(phi=saved)
+        if not ok:
+            return saved
+        return reml_ar1(r0, j0, self.axis_blocks(), saved)

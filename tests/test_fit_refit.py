@@ -1,0 +1,59 @@
+"""Tests of fitdrag.fit.refit: re-solving a finished fit with changed inputs.
+
+Labels: closed-form/independent, regression.  Truth from tests/reference.py (scipy DOP853),
+noise synthetic from a fixed seed.
+"""
+
+from __future__ import annotations
+
+import functools
+import re
+
+import numpy as np
+import pytest
+import reference as ref
+
+from fitdrag import Air, Sphere, Track, fit_tracks
+from fitdrag.fit.refit import Refit, refit
+
+SC = ref.Scenario(added_mass_coefficient=0.0, buoyancy=False, n=200)
+
+
+@functools.cache
+def fitted():
+    xy = SC.truth() + np.random.default_rng(8).normal(0.0, SC.sigma, (SC.n, 2))
+    track = Track(SC.t, xy[:, 0], xy[:, 1])
+    sphere = Sphere(SC.mass, SC.diameter, added_mass_coefficient=0.0)
+    fit = fit_tracks(track, sphere, Air(ref.RHO, ref.MU), buoyancy=False, robust=False)
+    assert fit.success
+    return fit, track
+
+
+def test_refit_at_unchanged_inputs_returns_the_fit():
+    """regression: with nothing changed the re-fit returns the fit's own optimum."""
+    fit, _track = fitted()
+    out = refit(fit)
+    assert isinstance(out, Refit) and out.success
+    assert out.cd == pytest.approx(fit.cd, rel=1e-9)
+    np.testing.assert_allclose(out.values, fit.values, rtol=1e-8, atol=1e-12)
+
+
+def test_refit_scales_cd_with_mass_and_density():
+    """closed-form/independent: without buoyancy and added mass the data fix the drag
+    constant ρ C_d A / (2 m), so C_d ∝ m / ρ exactly: 1 % more mass gives 1 % more C_d, 1 %
+    denser air 1 % less."""
+    fit, _track = fitted()
+    heavier = Sphere(SC.mass * 1.01, SC.diameter, added_mass_coefficient=0.0)
+    assert refit(fit, specimen=heavier).cd == pytest.approx(fit.cd * 1.01, rel=1e-7)
+    denser = Air(ref.RHO * 1.01, ref.MU)
+    assert refit(fit, air=denser).cd == pytest.approx(fit.cd / 1.01, rel=1e-7)
+
+
+def test_refit_refuses_tracks_of_other_lengths():
+    """regression: replacement tracks must match the original throws sample for sample."""
+    fit, track = fitted()
+    short = Track(track.t[:-1], track.x[:-1], track.y[:-1])
+    msg = ("tracks: refit needs tracks with the same number of throws and samples as the "
+           "original fit; run fit_tracks for new data.")  # fmt: skip
+    with pytest.raises(ValueError, match="^" + re.escape(msg) + "$"):
+        refit(fit, tracks=[short])
