@@ -9,7 +9,10 @@ code that catches the built-in types keeps working.
 
 from __future__ import annotations
 
+from types import MappingProxyType
+
 __all__ = [
+    "DECISION_EXIT_CODES",
     "ConvergenceError",
     "EXIT_BAD_INPUT",
     "EXIT_BUG",
@@ -22,6 +25,7 @@ __all__ = [
     "InputError",
     "InputFileNotFoundError",
     "OutputExistsError",
+    "exit_code_for_decision",
 ]
 
 #: Done; for a certificate with a decision: the decision is PASS.
@@ -40,12 +44,57 @@ EXIT_CONDITIONAL_PASS = 5
 EXIT_CONDITIONAL_FAIL = 6
 
 
+#: Each conformity decision (the strings of :mod:`fitdrag.uncertainty.decision`) and the exit
+#: code of a command that issued a certificate with it.
+DECISION_EXIT_CODES = MappingProxyType(
+    {
+        "pass": EXIT_OK,
+        "conditional pass": EXIT_CONDITIONAL_PASS,
+        "conditional fail": EXIT_CONDITIONAL_FAIL,
+        "fail": EXIT_FAIL,
+    }
+)
+
+
+def exit_code_for_decision(decision: str | None) -> int:
+    """The exit code of a command whose certificate carries ``decision``.
+
+    Parameters
+    ----------
+    decision : str or None
+        One of :data:`fitdrag.uncertainty.decision.DECISIONS`, or None when the job states
+        no specification (no decision: exit code 0).
+
+    Raises
+    ------
+    LookupError
+        An unknown decision string: a bug, not bad input.
+    """
+    if decision is None:
+        return EXIT_OK
+    try:
+        return DECISION_EXIT_CODES[decision]
+    except KeyError:
+        raise LookupError(
+            f"unknown conformity decision {decision!r}; expected one of "
+            f"{', '.join(map(repr, DECISION_EXIT_CODES))}"
+        ) from None
+
+
 class FitdragError(Exception):
-    """Base of every error fitdrag raises on purpose."""
+    """Base of every error fitdrag raises on purpose.
+
+    ``exit_code`` is the command line's exit code for it; the command line prints the
+    message as one line (no traceback).
+    """
+
+    exit_code: int = EXIT_BUG
 
 
 class InputError(FitdragError, ValueError):
     """Bad input: the message names the input, the value received and the fix."""
+
+    exit_code = EXIT_BAD_INPUT
 
 
 class InputFileNotFoundError(InputError, FileNotFoundError):
@@ -58,3 +107,5 @@ class OutputExistsError(InputError, FileExistsError):
 
 class ConvergenceError(FitdragError, RuntimeError):
     """A fit, or a re-fit of the uncertainty budget, did not converge."""
+
+    exit_code = EXIT_NO_CONVERGENCE

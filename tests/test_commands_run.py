@@ -197,6 +197,63 @@ def test_nonconvergence_exit_3_and_no_record(job, capsys, monkeypatch):
     assert not (job.parent / "certificates").exists()
 
 
+_SPEC = (
+    "[specification]\n"
+    "drag_coefficient = 0.47           # stated Cd\n"
+    "tolerance = 0.03                  # +/- around the stated value (or give lower / upper)\n"
+    'decision_rule = "guarded"         # "simple" or "guarded" (guard band = U)\n'
+)
+
+
+def test_decision_sets_the_exit_code(job, capsys):
+    """closed-form/independent: the exit code of ``fitdrag run`` follows the certificate's
+    decision under guarded acceptance (ILAC-G8:09/2019 with guard band w = U): 0 PASS,
+    5 conditional pass (inside the limits, within U of one), 6 conditional fail (outside by
+    less than U), 4 FAIL.  The limits are placed around the measured Cd and U of a first run
+    (the same data give the same Cd and U), so each decision follows from the rule alone."""
+    assert main(["run", str(job), "--quiet"]) == 0
+    capsys.readouterr()
+    outdir = job.parent / "certificates"
+    rep = json.loads((outdir / f"FD-{_year()}-000001.json").read_text())
+    cd, big_u = rep["result"]["drag_coefficient"], rep["result"]["expanded_uncertainty"]
+    assert rep["conformity"]["decision"] == "pass"
+    tol = 0.1  # the upper limit stays far away: only the lower limit matters
+    cases = [
+        (cd - big_u / 2 + tol, "conditional pass", 5),  # lower = Cd - U/2
+        (cd + big_u / 2 + tol, "conditional fail", 6),  # lower = Cd + U/2
+        (cd + 2 * big_u + tol, "fail", 4),  # lower = Cd + 2U
+    ]
+    for n, (stated, decision, code) in enumerate(cases, start=2):
+        spec = (f"[specification]\ndrag_coefficient = {stated!r}\ntolerance = {tol!r}\n"
+                'decision_rule = "guarded"\n')  # fmt: skip
+        job.write_text(_job_text(**{_SPEC: spec}))
+        assert main(["run", str(job), "--quiet"]) == code, decision
+        number = f"FD-{_year()}-{n:06d}"
+        assert f"decision: {decision.upper()}" in capsys.readouterr().out
+        rep = json.loads((outdir / f"{number}.json").read_text())
+        assert rep["conformity"]["decision"] == decision
+        assert Records(outdir / "records.sqlite").get(number).decision == decision
+
+
+def test_no_specification_exits_0(job, capsys):
+    """regression: a job without [specification] issues a certificate without a decision and
+    exits 0."""
+    text = _job_text(**{_SPEC: ""})
+    text = text.replace('reference = "customer specification (synthetic example)"\n', "", 1)
+    job.write_text(text)
+    assert main(["run", str(job), "--quiet"]) == 0
+    assert "no [specification]: no conformity decision" in capsys.readouterr().out
+
+
+def test_negative_monte_carlo_is_refused_before_any_work(job, capsys):
+    """regression: --monte-carlo below 0 exits 2 with one line naming the option; nothing
+    is written."""
+    assert main(["run", str(job), "--quiet", "--monte-carlo", "-5"]) == 2
+    err = capsys.readouterr().err
+    assert err == "fitdrag run: error: --monte-carlo: must be >= 0 trials, got -5.\n"
+    assert not (job.parent / "certificates").exists()
+
+
 def test_new_job_command(tmp_path, capsys):
     """regression: new-job writes the template once; refuses to overwrite."""
     p = tmp_path / "j.toml"

@@ -207,6 +207,48 @@ def test_unit_suffixes_equal_si(tmp_path, capsys):
     np.testing.assert_allclose(b.y, a.y, rtol=1e-12, atol=1e-15)
 
 
+@pytest.mark.parametrize("spelling", ["21", "21degC", "21 degC", "21°C", "21 celsius", "294.15K",
+                                      "294.15 kelvin"])  # fmt: skip
+def test_temperature_spellings_of_the_job_file_are_accepted(spelling):
+    """published-value: --temperature takes the job file's spellings ("21 degC"), with or
+    without a space, and kelvin (t/°C = T/K - 273.15, BIPM SI Brochure, 9th ed. 2019,
+    §2.3.1): all give 21 °C."""
+    from fitdrag.cli import build_parser
+
+    args = build_parser().parse_args(BASE + ["--temperature", spelling])
+    assert args.temperature == pytest.approx(21.0, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("option", "spelling", "si"),
+    [("--pressure", "1008hPa", 100800.0),  # hecto = 1e2 (SI Brochure, Table 7)
+     ("--pressure", "1008 hPa", 100800.0),
+     ("--mass", "2.7 g", 0.0027),
+     ("--mass", "1lb", 0.45359237),  # international pound (1959)
+     ("--diameter", "40 mm", 0.040),
+     ("--gravity", "981 cm/s**2", 9.81)],
+)  # fmt: skip
+def test_options_take_a_number_with_a_unit_with_or_without_a_space(option, spelling, si):
+    """published-value: unit spellings with and without a space convert by the SI prefixes
+    (BIPM SI Brochure, 9th ed. 2019, Table 7) and the 1959 international pound."""
+    from fitdrag.cli import build_parser
+
+    argv = _replace(BASE, option, spelling) if option in BASE else BASE + [option, spelling]
+    args = build_parser().parse_args(argv)
+    assert getattr(args, option[2:]) == pytest.approx(si, rel=1e-14)
+
+
+def test_temperature_with_a_unit_gives_the_same_track(capsys):
+    """closed-form/independent: --temperature 21degC and --temperature 21 (°C by default)
+    give the identical track (the air is computed from the same 21 °C)."""
+    common = BASE + ["--pressure", "100800", "--humidity", "45"]
+    code, plain, _ = run_cli(common + ["--temperature", "21"], capsys)
+    assert code == 0
+    code, with_unit, _ = run_cli(common + ["--temperature", "21degC"], capsys)
+    assert code == 0
+    assert with_unit == plain
+
+
 def test_refuses_to_overwrite_without_force(tmp_path, capsys):
     """regression: an existing output is never overwritten without --force (project rule)."""
     out = tmp_path / "track.csv"
@@ -279,21 +321,29 @@ def test_bad_noise_exits_2(capsys):
 
 
 @pytest.mark.parametrize(
-    ("option", "value", "kind", "si"),
-    [("--mass", "2.7zz", "UndefinedUnitError", "kg"),
-     ("--mass", "40mm", "DimensionalityError", "kg"),
-     ("--diameter", "3furlongsperday", "UndefinedUnitError", "m"),
-     ("--speed", "8kg", "DimensionalityError", "m/s")],
+    ("option", "value", "reason", "fix"),
+    [("--mass", "2.7zz", "unknown unit 'zz'", "give a number in kg or a number with a unit of "
+                                               "mass, e.g. 0.0027 or 2.7g"),
+     ("--mass", "40mm", "unit 'mm' is not a unit of mass", "give a number in kg or a number "
+                                                           "with a unit of mass, e.g. 0.0027 or "
+                                                           "2.7g"),
+     ("--diameter", "3furlongsperday", "unknown unit 'furlongsperday'",
+      "give a number in m or a number with a unit of length, e.g. 0.040 or 40mm"),
+     ("--speed", "8kg", "unit 'kg' is not a unit of speed", "give a number in m/s or a number "
+                                                           "with a unit of speed, e.g. 8 or "
+                                                           "28.8km/h"),
+     ("--temperature", "21 furlong", "unit 'furlong' is not a unit of temperature",
+      "give a number in °C or a number with a unit of temperature, e.g. 21 or 21degC")],
 )  # fmt: skip
-def test_unknown_or_wrong_unit_exits_2_with_one_line(option, value, kind, si, capsys):
+def test_unknown_or_wrong_unit_exits_2_with_one_line(option, value, reason, fix, capsys):
     """regression: an unknown unit, or one of the wrong dimension, is an argparse error: exit 2,
-    one line naming the option, the text and an example of a valid value."""
-    code, out, err = run_cli(_replace(BASE, option, value), capsys)
+    one line naming the option, the text, what is wrong with it and an example of a valid
+    value."""
+    argv = BASE + [f"{option}={value}"] if option not in BASE else _replace(BASE, option, value)
+    code, out, err = run_cli(argv, capsys)
     assert code == 2
     assert out == ""
-    assert err == (f"fitdrag simulate: error: argument {option}: {value!r} is not a number in "
-                   f"{si} nor a quantity convertible to {si} ({kind}); write e.g. 0.0027 or "
-                   f"2.7g\n")  # fmt: skip
+    assert err == f"fitdrag simulate: error: argument {option}: {value!r}: {reason}; {fix}\n"
 
 
 @pytest.mark.parametrize(

@@ -16,9 +16,9 @@ import numpy as np
 import pytest
 
 from fitdrag.cli import main
-from fitdrag.commands.track import parse_origin, parse_reference
-from fitdrag.tracks.csv_file import read_track
+from fitdrag.tracks import read_track
 from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.tracking import parse_origin, parse_reference
 
 FPS = 500.0
 PX_PER_M = 800.0

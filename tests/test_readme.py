@@ -6,6 +6,8 @@ import re
 import shlex
 from pathlib import Path
 
+from fitdrag import errors
+
 ROOT = Path(__file__).resolve().parents[1]
 
 
@@ -59,3 +61,31 @@ def test_readme_carries_safety_cautions():
     text = (ROOT / "README.md").read_text(encoding="utf-8").lower()
     for word in ("eye protection", "lamps", "accredit", "local codes"):
         assert word in text
+
+
+def _exit_code_table() -> dict[int, str]:
+    text = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = text.split("## Command line and exit codes", 1)[1].split("\n## ", 1)[0]
+    return {int(m.group(1)): m.group(2) for m in re.finditer(r"^\| (\d+) \| (.*) \|$", section,
+                                                             flags=re.M)}  # fmt: skip
+
+
+def test_readme_exit_code_table_matches_the_code():
+    """regression: the README's exit-code table lists exactly the codes of fitdrag.errors,
+    each with its meaning, and the decisions with the codes errors.DECISION_EXIT_CODES gives."""
+    table = _exit_code_table()
+    assert sorted(table) == sorted({errors.EXIT_OK, errors.EXIT_BUG, errors.EXIT_BAD_INPUT,
+                                    errors.EXIT_NO_CONVERGENCE, errors.EXIT_FAIL,
+                                    errors.EXIT_CONDITIONAL_PASS, errors.EXIT_CONDITIONAL_FAIL})  # fmt: skip
+    assert "bug" in table[errors.EXIT_BUG]
+    assert "bad arguments or input" in table[errors.EXIT_BAD_INPUT]
+    assert "did not converge" in table[errors.EXIT_NO_CONVERGENCE]
+    for decision, code in errors.DECISION_EXIT_CODES.items():
+        assert decision.upper() in table[code].upper(), (decision, table[code])
+
+
+def test_ci_checks_the_import_layers():
+    """regression: CI runs import-linter (the layer contract in pyproject.toml) after ruff."""
+    text = (ROOT / ".ci" / "run").read_text(encoding="utf-8")
+    assert ".venv/bin/lint-imports || exit 1" in text
+    assert text.index("ruff format --check") < text.index("lint-imports")

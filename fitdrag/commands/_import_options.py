@@ -19,15 +19,21 @@ import math
 import sys
 import warnings
 from collections.abc import Sequence
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from fitdrag.tracks.csv_file import UNITS, read_track
-from fitdrag.tracks.track import Track
+from fitdrag.errors import InputError
+
+if TYPE_CHECKING:  # pragma: no cover - annotations only
+    from fitdrag.tracks.track import Track
 
 __all__ = ["add_import_options", "import_options_from_args", "read_tracks_from_args"]
 
 #: ``--t-column`` value meaning "no time column: compute times from frame numbers".
 NO_TIME_COLUMN = "none"
+
+#: The length units of --units: the keys of fitdrag.tracks.UNITS, written out so that building
+#: the parser does not load the track reader (a test checks that the two agree).
+UNIT_CHOICES = ("m", "mm", "cm", "px")
 
 
 def _origin(text: str) -> tuple[float, float]:
@@ -116,7 +122,7 @@ def add_import_options(parser: argparse.ArgumentParser) -> argparse._ArgumentGro
     g.add_argument(
         "--units",
         dest="import_units",
-        choices=list(UNITS),
+        choices=list(UNIT_CHOICES),
         default="m",
         help="length unit of x, y and sigma in the file [m, mm, cm or px]; px needs --scale "
         "(default: m)",
@@ -209,10 +215,12 @@ def read_tracks_from_args(
     ValueError, FileNotFoundError
         As :func:`fitdrag.tracks.read_track` does; ValueError if ``paths`` is empty.
     """
+    from fitdrag.tracks.csv_file import read_track
+
     if isinstance(paths, str):
         paths = [paths]
     if not paths:
-        raise ValueError("no track file given; name at least one CSV file.")
+        raise InputError("no track file given; name at least one CSV file.")
     options = import_options_from_args(args)
     out = stderr if stderr is not None else sys.stderr
     tracks = []

@@ -1,62 +1,64 @@
 """Option groups shared by several commands: specimen, air and gravity.
 
-Values are plain SI numbers; a unit suffix (``2.7g``, ``40mm``, ``20degC``, ``1013hPa``) is
-accepted and converted with the pint units library.  Conversion happens here, at the edge.
+Values are plain SI numbers; a unit (``2.7g``, ``40mm``, ``21degC``, ``"21 degC"``,
+``1013hPa``) is accepted and converted by :func:`fitdrag.units.parse_quantity`, the parser
+the job files use too.  Conversion happens here, at the edge.  The library is imported only
+when a command runs, so building the parser stays fast.
 """
 
 from __future__ import annotations
 
 import argparse
-import functools
 import math
-import re
+from typing import TYPE_CHECKING
 
-from fitdrag.physics.air import STANDARD_GRAVITY, Air, local_gravity
-from fitdrag.physics.forces import Conditions
-from fitdrag.physics.specimen import Body, Sphere
+from fitdrag.errors import InputError
+from fitdrag.units import parse_quantity, unit_symbol, unit_word
 
-_NUMBER = re.compile(r"^\s*[-+]?(\d+(\.\d*)?|\.\d+)([eE][-+]?\d+)?\s*$")
+if TYPE_CHECKING:  # pragma: no cover - annotations only
+    from fitdrag.physics.air import Air
+    from fitdrag.physics.forces import Conditions
+    from fitdrag.physics.specimen import Body, Sphere
+
+#: Standard acceleration of free fall [m/s²] for the help text; the value used is
+#: fitdrag.physics.air.STANDARD_GRAVITY (a test checks that the two agree).
+_STANDARD_GRAVITY_TEXT = "9.80665"
+
+# a valid value of each unit, plain and with a unit, for the error messages
+_EXAMPLES = {
+    "kg": "0.0027 or 2.7g",
+    "m": "0.040 or 40mm",
+    "m**2": "0.00126 or 12.6cm**2",
+    "m**3": "3.4e-5 or 34cm**3",
+    "degC": "21 or 21degC",
+    "Pa": "100800 or 1008hPa",
+    "kg/m**3": "1.19 or 1.19kg/m**3",
+    "Pa*s": "1.81e-5 or 18.1uPa*s",
+    "m/s**2": "9.81 or 981cm/s**2",
+    "m/s": "8 or 28.8km/h",
+}
 
 
-@functools.lru_cache(maxsize=1)
-def _units():
-    import pint
+def quantity(unit: str):
+    """argparse type: a number in ``unit``, or a number with a unit, converted to ``unit``.
 
-    return pint.UnitRegistry()
-
-
-def quantity(si_unit: str):
-    """argparse type: a number in ``si_unit``, or a number with a unit suffix converted to it."""
+    ``unit`` is pint's spelling (``"kg"``, ``"degC"``).  A bad value is an argparse error,
+    which names the option; the message adds the value, what went wrong and an example.
+    """
+    symbol = unit_symbol(unit)
+    example = _EXAMPLES.get(unit, "a number")
 
     def parse(text: str) -> float:
-        if _NUMBER.match(text):
-            return float(text)
-        ureg = _units()
         try:
-            q = ureg.Quantity(text.strip())
-            value = q.to(si_unit).magnitude
-        except Exception as exc:  # pint raises many types
+            return parse_quantity(text, unit)
+        except ValueError as exc:
             raise argparse.ArgumentTypeError(
-                f"{text!r} is not a number in {si_unit} nor a quantity convertible to {si_unit} "
-                f"({exc.__class__.__name__}); write e.g. 0.0027 or 2.7g"
+                f"{text!r}: {exc}; give a number in {symbol} or a number with a unit of "
+                f"{unit_word(unit)}, e.g. {example}"
             ) from None
-        return float(value)
 
-    parse.__name__ = f"quantity in {si_unit}"
+    parse.__name__ = f"quantity in {unit}"
     return parse
-
-
-def celsius(text: str) -> float:
-    """argparse type: a temperature in °C (a plain number), or with a unit (``293.15K``)."""
-    if _NUMBER.match(text):
-        return float(text)
-    ureg = _units()
-    try:
-        return float(ureg.Quantity(text.strip()).to("degC").magnitude)
-    except Exception:
-        raise argparse.ArgumentTypeError(
-            f"{text!r} is not a temperature; write it in °C, e.g. 21.5"
-        ) from None
 
 
 def add_specimen_options(parser: argparse.ArgumentParser, required: bool = True) -> None:
@@ -88,13 +90,14 @@ def add_air_options(parser: argparse.ArgumentParser) -> None:
     g.add_argument("--air-viscosity", type=quantity("Pa*s"), metavar="PA_S",
                    help="air dynamic viscosity [Pa s] (default: Sutherland's law at "
                    "--temperature, or at 20 °C)")  # fmt: skip
-    g.add_argument("--temperature", type=celsius, metavar="C", help="air temperature [°C]")
+    g.add_argument("--temperature", type=quantity("degC"), metavar="C",
+                   help="air temperature [°C] (or e.g. 21degC, 294.15K)")  # fmt: skip
     g.add_argument("--pressure", type=quantity("Pa"), metavar="PA",
                    help="air pressure [Pa] (default 101325)")  # fmt: skip
     g.add_argument("--humidity", type=float, metavar="PCT",
                    help="relative humidity [%%] (default 50)")  # fmt: skip
     g.add_argument("--gravity", type=quantity("m/s**2"), metavar="M/S2",
-                   help=f"acceleration of free fall [m/s²] (default {STANDARD_GRAVITY})")  # fmt: skip
+                   help=f"acceleration of free fall [m/s²] (default {_STANDARD_GRAVITY_TEXT})")  # fmt: skip
     g.add_argument("--latitude", type=float, metavar="DEG",
                    help="latitude for local gravity (WGS84 normal gravity) [deg]")  # fmt: skip
     g.add_argument("--height", type=quantity("m"), default=0.0, metavar="M",
@@ -102,14 +105,16 @@ def add_air_options(parser: argparse.ArgumentParser) -> None:
 
 
 def specimen_from_args(args) -> Sphere | Body:
+    from fitdrag.physics.specimen import Body, Sphere
+
     if args.diameter is not None:
         if args.area is not None or args.volume is not None:
-            raise ValueError(
+            raise InputError(
                 "specimen: give either --diameter (a sphere) or --area and --volume, not both."
             )
         return Sphere(args.mass, args.diameter, args.added_mass_coefficient)
     if args.area is None or args.volume is None:
-        raise ValueError(
+        raise InputError(
             "specimen: no size given; pass --diameter M for a sphere, or --area M2 and "
             "--volume M3 for another shape."
         )
@@ -117,10 +122,12 @@ def specimen_from_args(args) -> Sphere | Body:
 
 
 def air_from_args(args) -> Air:
+    from fitdrag.physics.air import Air
+
     conditions_given = any(v is not None for v in (args.temperature, args.pressure, args.humidity))
     if args.air_density is not None:
         if conditions_given:
-            raise ValueError(
+            raise InputError(
                 "air: give either --air-density or --temperature/--pressure/--humidity, not both."
             )
         if args.air_viscosity is not None:
@@ -138,17 +145,21 @@ def air_from_args(args) -> Air:
 
 
 def gravity_from_args(args) -> float:
+    from fitdrag.physics.air import STANDARD_GRAVITY, local_gravity
+
     if args.latitude is not None:
         if args.gravity is not None:
-            raise ValueError("gravity: give either --gravity or --latitude, not both.")
+            raise InputError("gravity: give either --gravity or --latitude, not both.")
         return float(local_gravity(args.latitude, args.height))
     g = STANDARD_GRAVITY if args.gravity is None else args.gravity
     if not math.isfinite(g) or g <= 0:
-        raise ValueError(f"--gravity: must be > 0 m/s², got {g!r}; omit it for 9.80665.")
+        raise InputError(f"--gravity: must be > 0 m/s², got {g!r}; omit it for 9.80665.")
     return g
 
 
 def conditions_from_args(args, wind: float = 0.0) -> Conditions:
+    from fitdrag.physics.forces import Conditions
+
     return Conditions(
         air=air_from_args(args),
         gravity=gravity_from_args(args),

@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from fitdrag.errors import OutputExistsError
+
 NAME = "calibrate-lens"
 
 EXAMPLE = """\
@@ -17,6 +19,9 @@ resolution used for the footage: the board at different places (fill the frame's
 some views, where distortion is strongest) and tilted up to about 45 degrees. --board counts
 the inner corners (a board of 10 x 7 squares has 9x6). Then pass the file to
 `fitdrag track --lens lens.json`.
+
+Exit codes: 0 lens file written, 1 a bug (with a traceback), 2 bad arguments or pictures
+(too few boards found, an existing lens file without --force).
 """
 
 
@@ -44,7 +49,6 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.errors import OutputExistsError
     from fitdrag.video.lens import board_images_from, calibrate_lens, parse_board
 
     out = Path(args.output)

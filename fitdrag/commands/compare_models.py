@@ -14,6 +14,7 @@ from fitdrag.commands._options import (
     quantity,
     specimen_from_args,
 )
+from fitdrag.errors import OutputExistsError
 
 NAME = "compare-models"
 
@@ -24,7 +25,8 @@ Examples:
   fitdrag compare-models throw1.csv --mass 0.0027 --diameter 0.040 --air-density 1.19 \\
       --models constant,power-law --lift --plot cd_vs_re.png
 
-Exit codes: 0 compared, 2 bad arguments or input, 3 no candidate model converged.
+Exit codes: 0 compared, 1 a bug (with a traceback), 2 bad arguments or input, 3 no
+candidate model converged.
 """
 
 
@@ -81,7 +83,7 @@ def run(args) -> int:
     for opt in ("json", "plot"):
         path = getattr(args, opt)
         if path and Path(path).exists() and not args.force:
-            raise ValueError(f"--{opt}: {path} exists; pass --force to overwrite it.")
+            raise OutputExistsError(f"--{opt}: {path} exists; pass --force to overwrite it.")
     specimen = specimen_from_args(args)
     conditions = conditions_from_args(args, wind=args.wind)
     tracks = read_tracks_from_args(args.tracks, args)

@@ -5,7 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
+from fitdrag.errors import ConvergenceError, exit_code_for_decision
+
 NAME = "demo"
+
+#: The demo's default directory: fitdrag.run.demo.DEFAULT_DIRECTORY, written out so that
+#: building the parser does not load the demo (a test checks that the two agree).
+DEFAULT_DIRECTORY = "fitdrag-demo"
 
 EXAMPLE = """\
 Example:
@@ -21,12 +27,14 @@ fit -> GUM budget (+ Monte Carlo check) -> decision -> certificate PDF/PNG + JSO
 Running it again reuses the footage and issues a new certificate number that replaces the
 previous demo certificate (both stay on record).  If you edited a file in DIR, the run stops
 and names it; --force renders and writes everything again.  Nothing is written outside DIR.
+
+Exit codes: 0 certificate issued with PASS, 1 a bug (with a traceback), 2 bad arguments or
+an edited file in DIR, 3 the fit did not converge; 4 FAIL, 5 conditional pass, 6 conditional
+fail (the decision on the certificate).
 """
 
 
 def register(sub) -> argparse.ArgumentParser:
-    from fitdrag.run.demo import DEFAULT_DIRECTORY
-
     p = sub.add_parser(
         NAME,
         help="run the whole job on synthetic footage (a demonstration)",
@@ -77,9 +85,9 @@ def run(args) -> int:
     )
     try:
         res = run_demo(args.directory, force=args.force, progress=not args.quiet)
-    except RuntimeError as exc:
+    except ConvergenceError as exc:
         print(f"fitdrag demo: {exc}; no certificate issued.", file=sys.stderr)
-        return 3
+        return ConvergenceError.exit_code
     print()
     print(res.summary)
     issued = f"certificate {res.certificate_number} issued"
@@ -112,4 +120,4 @@ def run(args) -> int:
         + f" the expanded uncertainty U = {res.expanded_uncertainty:.4f}."
     )
     print(f"done in {res.elapsed:.0f} s.")
-    return 0
+    return exit_code_for_decision(res.decision)

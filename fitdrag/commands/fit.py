@@ -14,6 +14,7 @@ from fitdrag.commands._options import (
     quantity,
     specimen_from_args,
 )
+from fitdrag.errors import OutputExistsError
 
 NAME = "fit"
 
@@ -24,8 +25,8 @@ Examples:
   fitdrag fit throw1.csv throw2.csv throw3.csv --mass 0.0027 --diameter 0.040 \\
       --air-density 1.19          # three throws sharing one Cd
 
-Exit codes: 0 fitted, 2 bad arguments or input, 3 the fit did not converge (the JSON is
-still written, with "success": false).
+Exit codes: 0 fitted, 1 a bug (with a traceback), 2 bad arguments or input, 3 the fit did
+not converge (the JSON is still written, with "success": false).
 """
 
 
@@ -73,7 +74,7 @@ def _check_outputs(args) -> None:
         paths.append(("plot", str(_cd_plot_path(args.plot))))
     for opt, path in paths:
         if path and Path(path).exists() and not args.force:
-            raise ValueError(f"--{opt}: {path} exists; pass --force to overwrite it.")
+            raise OutputExistsError(f"--{opt}: {path} exists; pass --force to overwrite it.")
 
 
 def _write_atomic(path: Path, write) -> None:

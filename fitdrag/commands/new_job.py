@@ -15,7 +15,9 @@ def register(subparsers) -> argparse.ArgumentParser:
             "every key (unit, meaning). Edit it for your own specimen, then run it with "
             "'fitdrag run'."
         ),
-        epilog="Example: fitdrag new-job ball.toml && fitdrag run ball.toml",
+        epilog="Example: fitdrag new-job ball.toml && fitdrag run ball.toml\n\n"
+        "Exit codes: 0 written, 1 a bug (with a traceback), 2 bad arguments or the file "
+        "exists (pass --force).",
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("path", metavar="PATH", help="job file to create (.toml)")

@@ -14,6 +14,7 @@ from fitdrag.commands._options import (
     quantity,
     specimen_from_args,
 )
+from fitdrag.errors import InputError, OutputExistsError
 
 NAME = "plan"
 
@@ -23,6 +24,8 @@ frames with 0.3 px tracking noise at 0.8 mm per pixel; how to reach u(Cd) = 0.00
   fitdrag plan --mass 2.7g --diameter 40mm --cd 0.47 --speed 8 --angle 30 \\
       --fps 500 --frames 200 --pixel-noise 0.3 --scale 0.0008 --throws 3 \\
       --target 0.0001 --json plan.json
+
+Exit codes: 0 planned, 1 a bug (with a traceback), 2 bad arguments or input.
 """
 
 
@@ -83,15 +86,15 @@ def noise_from_args(args) -> float:
     """Position noise [m] from --noise, or --pixel-noise times --scale."""
     if args.noise is not None:
         if args.scale is not None:
-            raise ValueError("--scale: only used with --pixel-noise; drop it or use --pixel-noise.")
+            raise InputError("--scale: only used with --pixel-noise; drop it or use --pixel-noise.")
         return args.noise
     if args.scale is None:
-        raise ValueError(
+        raise InputError(
             "--pixel-noise: needs --scale M_PER_PX (metres per pixel) to give the noise in metres."
         )
     for name, v in (("--pixel-noise", args.pixel_noise), ("--scale", args.scale)):
         if not math.isfinite(v) or v <= 0:
-            raise ValueError(f"{name}: must be > 0, got {v!r}.")
+            raise InputError(f"{name}: must be > 0, got {v!r}.")
     return args.pixel_noise * args.scale
 
 
@@ -101,11 +104,11 @@ def run(args) -> int:
 
     out = Path(args.json) if args.json else None
     if out is not None and out.exists() and not args.force:
-        raise ValueError(f"--json: {out} exists; pass --force to overwrite it.")
+        raise OutputExistsError(f"--json: {out} exists; pass --force to overwrite it.")
     if args.speed < 0:
-        raise ValueError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
+        raise InputError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
     if args.cd < 0:
-        raise ValueError(f"--cd: must be >= 0, got {args.cd!r}.")
+        raise InputError(f"--cd: must be >= 0, got {args.cd!r}.")
     noise = noise_from_args(args)
     specimen = specimen_from_args(args)
     conditions = conditions_from_args(args, wind=args.wind)

@@ -18,9 +18,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-# the pipeline's pieces, re-exported for callers that import them from here
-from fitdrag.run.pipeline import FitFailed, issue, measure  # noqa: F401
-from fitdrag.run.pipeline import summary as _summary  # noqa: F401
+from fitdrag.errors import ConvergenceError, InputError, exit_code_for_decision
 
 EXAMPLE = """\
 Example:
@@ -29,7 +27,14 @@ Example:
 
 Writes NUMBER.pdf (the certificate), NUMBER.png (its first page) and NUMBER.json (the full
 result) to the job's output directory and adds the record to its records database.
-Exit codes: 0 issued, 2 bad job file or input, 3 the fit (or a re-fit) did not converge.
+Exit codes:
+  0  certificate issued; the decision is PASS, or the job states no [specification]
+  1  a bug: an unexpected error, printed with its traceback
+  2  bad job file or input (nothing is written)
+  3  the fit, or a re-fit of the uncertainty budget, did not converge (nothing is written)
+  4  certificate issued; the decision is FAIL
+  5  certificate issued; the decision is a conditional pass (guarded acceptance)
+  6  certificate issued; the decision is a conditional fail (guarded acceptance)
 """
 
 
@@ -79,9 +84,24 @@ def register(subparsers) -> argparse.ArgumentParser:
 # ---------------------------------------------------------------------------------------------
 
 
+def _convergence_errors() -> tuple[type[Exception], ...]:
+    """The pipeline's no-convergence exceptions: fitdrag.errors.ConvergenceError, and the
+    pipeline's own FitFailed while it is still a separate class (it becomes a subclass or
+    an alias of ConvergenceError)."""
+    from fitdrag.run import pipeline
+
+    fit_failed = getattr(pipeline, "FitFailed", ConvergenceError)
+    if issubclass(fit_failed, ConvergenceError):
+        return (ConvergenceError,)
+    return (ConvergenceError, fit_failed)
+
+
 def run(args) -> int:
     from fitdrag.run.jobs import load_job
+    from fitdrag.run.pipeline import issue, measure, summary
 
+    if args.monte_carlo is not None and args.monte_carlo < 0:
+        raise InputError(f"--monte-carlo: must be >= 0 trials, got {args.monte_carlo}.")
     job = load_job(args.job)
     progress = (not args.quiet) and sys.stderr.isatty()
     try:
@@ -89,10 +109,10 @@ def run(args) -> int:
             job, monte_carlo=args.monte_carlo, adaptive=args.adaptive or None, seed=args.seed,
             workers=args.workers, progress=progress,
         )  # fmt: skip
-    except FitFailed as exc:
+    except _convergence_errors() as exc:
         print(f"fitdrag run: {exc}; no certificate issued.", file=sys.stderr)
-        return 3
-    print(_summary(meas))
+        return ConvergenceError.exit_code
+    print(summary(meas))
     rec, db_path = issue(meas, records_path=args.records, replaces=args.replaces,
                          force=args.force)  # fmt: skip
     print(f"certificate {rec.number} issued" + (f", replacing {rec.replaces}" if rec.replaces
@@ -100,4 +120,4 @@ def run(args) -> int:
     for kind, path in rec.outputs.items():
         print(f"  {kind:<16} {path}")
     print(f"  {'record':<16} {db_path}")
-    return 0
+    return exit_code_for_decision(None if meas.verdict is None else meas.verdict.decision)

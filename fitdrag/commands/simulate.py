@@ -3,8 +3,7 @@
 from __future__ import annotations
 
 import argparse
-
-import numpy as np
+import math
 
 from fitdrag.commands._options import (
     add_air_options,
@@ -13,6 +12,7 @@ from fitdrag.commands._options import (
     quantity,
     specimen_from_args,
 )
+from fitdrag.errors import InputError
 
 NAME = "simulate"
 
@@ -20,6 +20,8 @@ EXAMPLE = """\
 Example (a synthetic 40 mm, 2.7 g ball thrown at 8 m/s, 30°, filmed at 500 frames/s):
   fitdrag simulate --mass 2.7g --diameter 40mm --cd 0.47 --speed 8 --angle 30 \\
       --fps 500 --frames 200 --noise 0.0005 --seed 1 -o synthetic_track.csv
+
+Exit codes: 0 track written, 1 a bug (with a traceback), 2 bad arguments or input.
 """
 
 
@@ -66,27 +68,29 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
+    import numpy as np
+
     from fitdrag.physics.simulate import Launch, simulate
     from fitdrag.tracks.csv_file import write_track
     from fitdrag.tracks.track import MIN_POINTS, Track
 
-    if args.fps <= 0 or not np.isfinite(args.fps):
-        raise ValueError(f"--fps: must be > 0 Hz, got {args.fps!r}; give the frame rate.")
+    if args.fps <= 0 or not math.isfinite(args.fps):
+        raise InputError(f"--fps: must be > 0 Hz, got {args.fps!r}; give the frame rate.")
     if args.frames < MIN_POINTS:
-        raise ValueError(
+        raise InputError(
             f"--frames: need at least {MIN_POINTS} samples (the fewest a track may have), got "
             f"{args.frames}."
         )
     if args.noise < 0:
-        raise ValueError(f"--noise: must be >= 0 m, got {args.noise!r}.")
+        raise InputError(f"--noise: must be >= 0 m, got {args.noise!r}.")
     if args.speed < 0:
-        raise ValueError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
+        raise InputError(f"--speed: must be >= 0 m/s, got {args.speed!r}.")
     for opt, value in (("--cd", args.cd), ("--angle", args.angle), ("--lift-coefficient",
                        args.lift_coefficient)):  # fmt: skip
-        if not np.isfinite(value):
-            raise ValueError(f"{opt}: must be a finite number, got {value!r}.")
+        if not math.isfinite(value):
+            raise InputError(f"{opt}: must be a finite number, got {value!r}.")
     if args.cd < 0:
-        raise ValueError(f"--cd: must be >= 0, got {args.cd!r}.")
+        raise InputError(f"--cd: must be >= 0, got {args.cd!r}.")
     specimen = specimen_from_args(args)
     conditions = conditions_from_args(args, wind=args.wind)
     t = np.arange(args.frames) / args.fps
@@ -94,7 +98,7 @@ def run(args) -> int:
     flight = simulate(t, launch, specimen, conditions, drag_params=args.cd,
                       lift_coefficient=args.lift_coefficient)  # fmt: skip
     if not flight.success:
-        raise ValueError(f"simulation failed: {flight.message}; check --cd, --speed and --mass.")
+        raise InputError(f"simulation failed: {flight.message}; check --cd, --speed and --mass.")
     x, y = flight.x, flight.y
     if args.noise > 0:
         rng = np.random.default_rng(args.seed)

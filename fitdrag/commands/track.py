@@ -9,11 +9,12 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-import numpy as np
+from fitdrag.errors import InputError, InputFileNotFoundError, OutputExistsError
 
-# option parsers, re-exported for callers that import them from here
-from fitdrag.video.tracking import parse_origin, parse_reference  # noqa: F401
+if TYPE_CHECKING:  # pragma: no cover - annotations only
+    import numpy as np
 
 NAME = "track"
 
@@ -38,6 +39,9 @@ Calibration (choose one):
 The CSV has frame, t [s], x, y [m, y up], x_px, y_px [image px, y down], quality and sigma_px
 columns and '# key: value' header lines with the calibration (scale, its relative standard
 uncertainty, reprojection RMS); it loads straight into `fitdrag fit`.
+
+Exit codes: 0 track written, 1 a bug (with a traceback), 2 bad arguments, footage or
+calibration (e.g. no markers found, too few frames with the specimen).
 """
 
 
@@ -97,16 +101,14 @@ def register(sub) -> argparse.ArgumentParser:
 
 
 def _check_output(path: str | None, option: str, force: bool) -> Path | None:
-    from fitdrag.errors import OutputExistsError
-
     if not path:
         return None
     p = Path(path)
     if p.is_dir():
-        raise ValueError(f"{option}: {p} is a folder; give a file name.")
+        raise InputError(f"{option}: {p} is a folder; give a file name.")
     parent = p.parent if str(p.parent) else Path(".")
     if not parent.is_dir():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"{option}: the folder {str(parent)!r} does not exist; create it or choose another "
             f"path."
         )
@@ -124,6 +126,8 @@ def _write_atomic(path: Path, write, force: bool, check=None) -> None:
 
 
 def _stretch(img: np.ndarray) -> np.ndarray:
+    import numpy as np
+
     f = np.asarray(img, dtype=float)
     lo, hi = np.percentile(f, [0.5, 99.5])
     if not hi > lo:
@@ -134,6 +138,7 @@ def _stretch(img: np.ndarray) -> np.ndarray:
 def preview_figure(image, det, cal, frame_number: int, summary: str):
     """Figure of one frame with the detected track, markers and world axes drawn on it."""
     import matplotlib
+    import numpy as np
 
     matplotlib.use("Agg", force=False)
     from matplotlib.figure import Figure
@@ -194,7 +199,7 @@ def run(args) -> int:
     out = _check_output(args.output, "-o/--output", args.force)
     preview = _check_output(args.preview, "--preview", args.force)
     if preview is not None and preview.resolve() == out.resolve():
-        raise ValueError("--preview: the same file as --output; give the picture its own name.")
+        raise InputError("--preview: the same file as --output; give the picture its own name.")
     ft = track_footage(
         args.footage,
         fps=args.fps,
