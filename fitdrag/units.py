@@ -15,6 +15,8 @@ from __future__ import annotations
 import functools
 import re
 
+from fitdrag.errors import InputError
+
 __all__ = ["parse_quantity", "unit_registry", "unit_symbol", "unit_word"]
 
 _NUM_UNIT_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
@@ -108,7 +110,7 @@ def parse_quantity(text: str, unit: str, delta: bool = False) -> float:
     """
     m = _NUM_UNIT_RE.match(text)
     if not m:
-        raise ValueError('expected a number followed by a unit, e.g. "2.7 g"')
+        raise InputError('expected a number followed by a unit, e.g. "2.7 g"')
     num, utext = float(m.group(1)), m.group(2)
     if not utext:
         return num
@@ -119,8 +121,8 @@ def parse_quantity(text: str, unit: str, delta: bool = False) -> float:
     try:
         return float(unit_registry().Quantity(num, utext).to(unit).magnitude)
     except pint.errors.UndefinedUnitError:
-        raise ValueError(f"unknown unit {utext!r}") from None
+        raise InputError(f"unknown unit {utext!r}") from None
     except pint.errors.DimensionalityError:
-        raise ValueError(f"unit {utext!r} is not a unit of {unit_word(unit)}") from None
+        raise InputError(f"unit {utext!r} is not a unit of {unit_word(unit)}") from None
     except pint.errors.PintError as exc:
-        raise ValueError(f"cannot convert {text!r} to {unit} ({exc})") from None
+        raise InputError(f"cannot convert {text!r} to {unit} ({exc})") from None

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 
+from fitdrag.errors import ConvergenceError, InputError
 from fitdrag.fit.refit import refit
 from fitdrag.physics.air import Air
 from fitdrag.physics.specimen import Body, Sphere
@@ -66,12 +67,12 @@ class DragRefitModel:
     def __init__(self, result, tracks, nominal, *, length=None, viscosity=None):
         unknown = sorted(set(nominal) - set(DRAG_INPUTS))
         if unknown:
-            raise ValueError(
+            raise InputError(
                 f"nominal: unknown input name(s) {unknown}; use names from "
                 f"{', '.join(DRAG_INPUTS)}."
             )
         if "diameter" in nominal and ("area" in nominal or "volume" in nominal):
-            raise ValueError("nominal: give diameter (sphere) or area and volume (body), not both.")
+            raise InputError("nominal: give diameter (sphere) or area and volume (body), not both.")
         self.result = result
         self.tracks = list(tracks)
         self.nominal = dict(nominal)
@@ -121,5 +122,5 @@ class DragRefitModel:
             gravity=v.get("gravity"),
         )
         if not r.success:
-            raise RuntimeError("the re-fit did not converge")
+            raise ConvergenceError("the re-fit did not converge")
         return float(r.cd)

@@ -52,6 +52,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy import stats
 
+from fitdrag.errors import InputError
 from fitdrag.fit.noise import frame_gaps, prais_winsten
 from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.physics.registry import get_drag_model
@@ -338,7 +339,7 @@ class ModelComparison:
         for c in self.candidates:
             if c.label == label:
                 return c
-        raise ValueError(
+        raise InputError(
             f"label: no candidate {label!r}; candidates: "
             f"{', '.join(c.label for c in self.candidates)}."
         )
@@ -479,7 +480,7 @@ def _lift_options(lift) -> tuple[bool, ...]:
     if isinstance(lift, str):
         if lift == "both":
             return (False, True)
-        raise ValueError(f"lift: expected True, False or 'both', got {lift!r}.")
+        raise InputError(f"lift: expected True, False or 'both', got {lift!r}.")
     return (bool(lift),)
 
 
@@ -541,13 +542,13 @@ def compare_models(
     tracks = list(tracks)
     models = [get_drag_model(m).name for m in models]
     if not models:
-        raise ValueError("models: no candidate model given; e.g. models=('constant', 'power-law').")
+        raise InputError("models: no candidate model given; e.g. models=('constant', 'power-law').")
     if len(set(models)) != len(models):
-        raise ValueError(f"models: names repeat in {models!r}; give each candidate once.")
+        raise InputError(f"models: names repeat in {models!r}; give each candidate once.")
     if not (0.0 < alpha < 1.0):
-        raise ValueError(f"alpha: must be between 0 and 1, got {alpha!r}; 0.01 is usual.")
+        raise InputError(f"alpha: must be between 0 and 1, got {alpha!r}; 0.01 is usual.")
     if not (math.isfinite(aic_margin) and aic_margin >= 0):
-        raise ValueError(f"aic_margin: must be a finite number >= 0, got {aic_margin!r}.")
+        raise InputError(f"aic_margin: must be a finite number >= 0, got {aic_margin!r}.")
     lifts = _lift_options(lift)
     specs = [(m, lf) for lf in lifts for m in models]
     n_shared = {(m, lf): len(get_drag_model(m).parameters) + (1 if lf else 0) for m, lf in specs}

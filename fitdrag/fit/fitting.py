@@ -70,6 +70,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.fit.noise import durbin_watson, lag1, ljung_box, noise_floor, robust_sigma, sign_runs
 from fitdrag.fit.problem import Problem, as_tracks, initial_launch
 from fitdrag.fit.results import (
@@ -177,7 +178,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
                 coverage_factor, initial, max_nfev) -> FitResult:  # fmt: skip
     tracks = as_tracks(tracks)
     if not all(hasattr(specimen, a) for a in ("mass", "area", "volume", "length")):
-        raise ValueError(
+        raise InputError(
             f"specimen: expected a fitdrag.Sphere or fitdrag.Body, got {specimen!r}; build one "
             f"with fitdrag.Sphere(mass, diameter) or fitdrag.Body(mass, area, volume)."
         )
@@ -185,19 +186,19 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
         isinstance(coverage_factor, (int, float)) and math.isfinite(coverage_factor)
         and coverage_factor > 0
     ):  # fmt: skip
-        raise ValueError(
+        raise InputError(
             f"coverage_factor: must be a finite number > 0, got {coverage_factor!r}; leave it "
             f"out for the Student-t factor at p = 95.45 %."
         )
     if not isinstance(max_nfev, int) or max_nfev < 1:
-        raise ValueError(
+        raise InputError(
             f"max_nfev: must be a whole number >= 1, got {max_nfev!r}; the default 300 suits "
             f"every ordinary track."
         )
     if noise not in ("auto", "white", "ar1"):
-        raise ValueError(f"noise: unknown noise model {noise!r}; use 'auto', 'white' or 'ar1'.")
+        raise InputError(f"noise: unknown noise model {noise!r}; use 'auto', 'white' or 'ar1'.")
     if not isinstance(air, Air):
-        raise ValueError(
+        raise InputError(
             f"air: expected a fitdrag.Air, got {type(air).__name__}; use fitdrag.Air(density) "
             f"or fitdrag.Air.from_conditions(temperature, pressure, relative_humidity)."
         )
@@ -227,7 +228,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     if initial:
         for k, v in initial.items():
             if k not in names:
-                raise ValueError(f"initial: unknown parameter {k!r}; valid: {', '.join(names)}.")
+                raise InputError(f"initial: unknown parameter {k!r}; valid: {', '.join(names)}.")
             theta[names.index(k)] = float(v)
 
     given_sigma = all(tr.sigma is not None for tr in tracks)
@@ -438,7 +439,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     n_par = problem.n_params
     dof = int(problem.n_resid - n_par)
     if dof < 1:
-        raise ValueError(
+        raise InputError(
             f"tracks: {problem.n_resid} residuals for {n_par} parameters leave no degrees of "
             f"freedom; use longer tracks or fewer throws."
         )

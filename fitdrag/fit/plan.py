@@ -43,6 +43,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from fitdrag._checks import positive_number as _check_positive
+from fitdrag.errors import InputError
 from fitdrag.fit.noise import prais_winsten
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
@@ -92,7 +93,7 @@ def fisher_information(t, specimen, conditions: Conditions, launch: Launch, *,
     dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
     n_fit = len(m.parameters)
     if dp.size != n_fit + len(m.constants):
-        raise ValueError(
+        raise InputError(
             f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
             f"{m.parameters + m.constants}, got {dp.size}."
         )
@@ -100,7 +101,7 @@ def fisher_information(t, specimen, conditions: Conditions, launch: Launch, *,
     theta = np.concatenate((launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else []))
     status, _pos, vel, jac, _ = fm.run(theta, True, lift_coefficient)
     if status != 0:
-        raise ValueError(
+        raise InputError(
             "flight: the planned flight could not be simulated (diverging or stiff); check "
             "the speed, mass and drag coefficient."
         )
@@ -303,17 +304,17 @@ def plan_test(specimen, conditions: Conditions, launch: Launch, *, fps: float, f
     noise = _check_positive("noise", noise, "m", "give the position noise in metres "
                             "(pixel noise times the scale).")  # fmt: skip
     if isinstance(frames, bool) or int(frames) != frames or frames < MIN_POINTS:
-        raise ValueError(
+        raise InputError(
             f"frames: need a whole number of at least {MIN_POINTS} frames in view, got "
             f"{frames!r}; film a longer stretch of the flight."
         )
     frames = int(frames)
     if isinstance(throws, bool) or int(throws) != throws or throws < 1:
-        raise ValueError(f"throws: need a whole number >= 1, got {throws!r}.")
+        raise InputError(f"throws: need a whole number >= 1, got {throws!r}.")
     throws = int(throws)
     ar1 = float(ar1)
     if not (-1.0 < ar1 < 1.0):
-        raise ValueError(
+        raise InputError(
             f"ar1: the lag-1 noise correlation must lie strictly between -1 and 1, got "
             f"{ar1!r}; use 0 for white noise."
         )

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.fit.noise import frame_gaps, prais_winsten, reml_ar1
 from fitdrag.physics.simulate import FlightModel
 from fitdrag.tracks.track import Track
@@ -27,10 +28,10 @@ def as_tracks(tracks) -> list[Track]:
         return [tracks]
     tracks = list(tracks)
     if not tracks:
-        raise ValueError("tracks: no track given; pass one Track or a list of Tracks.")
+        raise InputError("tracks: no track given; pass one Track or a list of Tracks.")
     for i, tr in enumerate(tracks):
         if not isinstance(tr, Track):
-            raise ValueError(
+            raise InputError(
                 f"tracks[{i}]: expected a fitdrag.Track, got {type(tr).__name__}; build one "
                 f"with fitdrag.Track(t, x, y) or fitdrag.read_track(path)."
             )

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.fit.problem import Problem, as_tracks
 from fitdrag.fit.results import FitResult
 from fitdrag.fit.solvers import gauss_newton, trust_region
@@ -79,7 +80,7 @@ def refit(
     old: Problem = result._state["problem"]
     tracks = list(old.tracks) if tracks is None else as_tracks(tracks)
     if len(tracks) != len(old.tracks) or any(len(a) != len(b) for a, b in zip(tracks, old.tracks)):
-        raise ValueError(
+        raise InputError(
             "tracks: refit needs tracks with the same number of throws and samples as the "
             "original fit; run fit_tracks for new data."
         )

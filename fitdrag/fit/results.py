@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from fitdrag._version import __version__
+from fitdrag.errors import InputError
 from fitdrag.fit.problem import FIT_RTOL
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
@@ -192,7 +193,7 @@ class FitResult:
         """
         r = np.atleast_1d(np.asarray(re, dtype=float))
         if not np.all(np.isfinite(r)) or np.any(r <= 0):
-            raise ValueError(
+            raise InputError(
                 f"re: Reynolds numbers must be finite and > 0, got {r.tolist()!r}; pass the "
                 f"Reynolds numbers at which to state Cd."
             )

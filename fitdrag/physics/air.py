@@ -30,6 +30,8 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError
+
 __all__ = [
     "CIPM_PRESSURE_RANGE",
     "CIPM_TEMPERATURE_RANGE",
@@ -101,7 +103,7 @@ def _first_bad(values: np.ndarray, bad: np.ndarray) -> float:
 def _check_finite(name: str, values: np.ndarray, unit: str, fix: str) -> None:
     bad = ~np.isfinite(values)
     if np.any(bad):
-        raise ValueError(
+        raise InputError(
             f"{name}: must be a finite number, got {_first_bad(values, bad)}{unit}; {fix}"
         )
 
@@ -112,7 +114,7 @@ def _check_temperature(temperature: Any) -> np.ndarray:
     _check_finite("temperature", t, " °C", fix)
     bad = t <= -_ZERO_CELSIUS
     if np.any(bad):
-        raise ValueError(
+        raise InputError(
             f"temperature: must be above absolute zero (-273.15 °C), got "
             f"{_first_bad(t, bad)} °C; {fix}"
         )
@@ -125,7 +127,7 @@ def _check_pressure(pressure: Any) -> np.ndarray:
     _check_finite("pressure", p, " Pa", fix)
     bad = p <= 0.0
     if np.any(bad):
-        raise ValueError(f"pressure: must be positive, got {_first_bad(p, bad)} Pa; {fix}")
+        raise InputError(f"pressure: must be positive, got {_first_bad(p, bad)} Pa; {fix}")
     return p
 
 
@@ -135,7 +137,7 @@ def _check_relative_humidity(relative_humidity: Any) -> np.ndarray:
     _check_finite("relative_humidity", rh, " %", fix)
     bad = (rh < 0.0) | (rh > 100.0)
     if np.any(bad):
-        raise ValueError(
+        raise InputError(
             f"relative_humidity: must be between 0 and 100 %, got {_first_bad(rh, bad)} %; {fix}"
         )
     return rh
@@ -147,7 +149,7 @@ def _check_co2(co2_mole_fraction: Any) -> np.ndarray:
     _check_finite("co2_mole_fraction", x, "", fix)
     bad = (x < 0.0) | (x >= 1.0)
     if np.any(bad):
-        raise ValueError(
+        raise InputError(
             f"co2_mole_fraction: must be at least 0 and below 1, got {_first_bad(x, bad)}; {fix}"
         )
     return x
@@ -221,7 +223,7 @@ def _cipm_density(
     if np.any(bad):
         t_b, p_b, bad = np.broadcast_arrays(t, p, bad)
         i = np.flatnonzero(bad)[0]
-        raise ValueError(
+        raise InputError(
             f"relative_humidity: water vapour would make up all of the air at "
             f"{float(t_b.flat[i])} °C and {float(p_b.flat[i])} Pa (saturation vapour pressure "
             f"exceeds the total pressure); check the temperature and pressure units."
@@ -356,7 +358,7 @@ def local_gravity(latitude: Any, height: Any = 0.0) -> float | np.ndarray:
     _check_finite("latitude", lat, " deg", fix)
     bad = (lat < -90.0) | (lat > 90.0)
     if np.any(bad):
-        raise ValueError(
+        raise InputError(
             f"latitude: must be between -90 and 90 degrees, got {_first_bad(lat, bad)} deg; {fix}"
         )
     h = np.asarray(height, dtype=float)
@@ -399,14 +401,14 @@ class Air:
     def __post_init__(self) -> None:
         rho = float(self.density)
         if not (math.isfinite(rho) and rho > 0.0):
-            raise ValueError(
+            raise InputError(
                 f"density: must be a positive finite number, got {rho} kg/m^3; give the air "
                 f"density in kg/m^3 (about 1.2 near sea level) or use "
                 f"Air.from_conditions(temperature, pressure, relative_humidity)."
             )
         mu = float(self.viscosity)
         if not (math.isfinite(mu) and mu > 0.0):
-            raise ValueError(
+            raise InputError(
                 f"viscosity: must be a positive finite number, got {mu} Pa s; give the dynamic "
                 f"viscosity in Pa s (about 1.8e-5 for room air) or leave it out for the "
                 f"20 °C value."
@@ -422,7 +424,7 @@ class Air:
             value = getattr(self, name)
             if value is not None:
                 if np.ndim(value) != 0:
-                    raise ValueError(
+                    raise InputError(
                         f"{name}: must be a single number or None, got an array of shape "
                         f"{np.shape(value)}; give one value for the whole test."
                     )
@@ -490,7 +492,7 @@ class Air:
         known = {"density", "viscosity", "temperature", "pressure", "relative_humidity"}
         unknown = sorted(set(data) - known)
         if unknown:
-            raise ValueError(f"air: unknown key(s) {unknown}; valid keys are {sorted(known)}.")
+            raise InputError(f"air: unknown key(s) {unknown}; valid keys are {sorted(known)}.")
         if "density" not in data:
-            raise ValueError("air: key 'density' is missing; give the air density in kg/m^3.")
+            raise InputError("air: key 'density' is missing; give the air density in kg/m^3.")
         return cls(**data)

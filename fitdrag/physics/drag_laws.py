@@ -74,6 +74,7 @@ from types import MappingProxyType
 import numba
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.physics.drag_model import DragModel
 
 __all__ = [
@@ -377,7 +378,7 @@ def _correlation(name: str) -> SphereCorrelation:
     try:
         return SPHERE_CORRELATIONS[name]
     except (KeyError, TypeError):
-        raise ValueError(
+        raise InputError(
             f"correlation: unknown sphere drag correlation {name!r}; valid names: "
             f"{', '.join(sphere_correlation_names())}."
         ) from None
@@ -405,7 +406,7 @@ def sphere_drag_coefficient(re, correlation: str = DEFAULT_CORRELATION, *,
     r = np.asarray(re, dtype=float)
     if not np.all(np.isfinite(r)) or np.any(r <= 0):
         bad = float(r[~(np.isfinite(r) & (r > 0))].ravel()[0])
-        raise ValueError(
+        raise InputError(
             f"re: Reynolds numbers must be finite and > 0, got {bad!r}; pass ρ|u|d/μ of the "
             f"specimen."
         )
@@ -487,7 +488,7 @@ def power_law_reference_re(re_values) -> tuple[float]:
     r = r[np.isfinite(r)]
     med = float(np.median(r)) if r.size else math.nan
     if not (med > 0):
-        raise ValueError(
+        raise InputError(
             f"re_values: the power-law drag model needs a flight with a positive median "
             f"Reynolds number, got {med!r}; check the track and the air viscosity."
         )

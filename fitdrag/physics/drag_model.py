@@ -23,6 +23,8 @@ import numba
 import numpy as np
 from numba import types
 
+from fitdrag.errors import InputError
+
 __all__ = ["CD_SIGNATURE", "DragModel"]
 
 #: Signature of a drag law as passed to the integrator: (re, p, grad, dcd_dre_out) -> cd.
@@ -77,7 +79,7 @@ class DragModel:
         if not self.constants:
             return ()
         if self.constants_from_re is None:
-            raise ValueError(
+            raise InputError(
                 f"drag model {self.name!r}: it has constants {self.constants} but no rule to "
                 f"set them; give DragModel(constants_from_re=...) when registering it."
             )
@@ -99,7 +101,7 @@ class DragModel:
         """Raise ValueError when [re_min, re_max] leaves the law's validity range."""
         lo, hi = self.re_range
         if re_min < lo or re_max > hi:
-            raise ValueError(
+            raise InputError(
                 f"drag model {self.name!r}: the flight spans Re {re_min:.3g}–{re_max:.3g}, "
                 f"outside the model's validity Re {lo:.3g}–{hi:.3g}; choose another model "
                 f"(e.g. 'power-law' or 'constant') or a flight inside that range."

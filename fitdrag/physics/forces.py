@@ -31,6 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from fitdrag._checks import number as _number
+from fitdrag.errors import InputError
 from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.physics.registry import get_drag_model
 
@@ -62,13 +63,13 @@ class Conditions:
     def __post_init__(self) -> None:
         g = _number("gravity", self.gravity, "m/s²", "use 9.80665 or the local value.")
         if not math.isfinite(g) or g <= 0:
-            raise ValueError(
+            raise InputError(
                 f"gravity: must be a finite number > 0 m/s², got {self.gravity!r}; use 9.80665 "
                 f"or the local value."
             )
         w = _number("wind", self.wind, "m/s", "give the horizontal wind speed, 0 for still air.")
         if not math.isfinite(w):
-            raise ValueError(
+            raise InputError(
                 f"wind: must be a finite speed in m/s, got {self.wind!r}; give the horizontal "
                 f"wind speed, 0 for still air."
             )

@@ -8,6 +8,7 @@ from :mod:`fitdrag.physics.drag_laws`.
 
 from __future__ import annotations
 
+from fitdrag.errors import InputError
 from fitdrag.physics import drag_laws
 from fitdrag.physics.drag_model import DragModel
 
@@ -19,9 +20,9 @@ _REGISTRY: dict[str, DragModel] = {}
 def register_drag_model(model: DragModel) -> DragModel:
     """Add ``model`` to the registry under ``model.name`` (replacing none)."""
     if model.name in _REGISTRY:
-        raise ValueError(f"drag model {model.name!r} is already registered; pick another name.")
+        raise InputError(f"drag model {model.name!r} is already registered; pick another name.")
     if not (len(model.parameters) == len(model.initial) == len(model.bounds)):
-        raise ValueError(
+        raise InputError(
             f"drag model {model.name!r}: parameters, initial and bounds differ in length "
             f"({len(model.parameters)}, {len(model.initial)}, {len(model.bounds)}); give one "
             f"initial value and one (low, high) bound per parameter."
@@ -37,7 +38,7 @@ def get_drag_model(name: str | DragModel) -> DragModel:
     try:
         return _REGISTRY[name]
     except KeyError:
-        raise ValueError(
+        raise InputError(
             f"drag model: unknown name {name!r}; valid names: {', '.join(drag_model_names())}."
         ) from None
 

@@ -33,6 +33,7 @@ import numba
 import numpy as np
 from numba import types
 
+from fitdrag.errors import InputError
 from fitdrag.physics.drag_model import CD_SIGNATURE
 from fitdrag.physics.forces import Conditions, drag_factor, net_gravity
 from fitdrag.physics.registry import get_drag_model
@@ -360,20 +361,20 @@ class FlightModel:
                  max_steps: int = 2_000_000):  # fmt: skip
         self.t = np.array(t, dtype=float)  # a writable copy (numba's signature wants one)
         if self.t.ndim != 1 or self.t.size < 1:
-            raise ValueError(
+            raise InputError(
                 f"t: expected a non-empty 1-D array of sample times in seconds, got shape "
                 f"{self.t.shape}; pass one time per sample."
             )
         if np.any(np.diff(self.t) <= 0) or not np.all(np.isfinite(self.t)):
             bad = int(np.flatnonzero(~np.isfinite(self.t) | np.r_[False, np.diff(self.t) <= 0])[0])
-            raise ValueError(
+            raise InputError(
                 f"t: sample times must be finite and strictly increasing; t[{bad}] = "
                 f"{float(self.t[bad])!r}; sort the samples and drop repeated or missing times."
             )
         self.model = get_drag_model(model)
         self.constants = np.asarray(constants, dtype=float)
         if self.constants.size != len(self.model.constants):
-            raise ValueError(
+            raise InputError(
                 f"constants: drag model {self.model.name!r} needs {len(self.model.constants)} "
                 f"constant(s) {self.model.constants}, got {self.constants.size}; pass them in "
                 f"that order (DragModel.constants_for(re_values) computes them from a flight)."
@@ -461,13 +462,13 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
     n_fit = len(m.parameters)
     if dp.size != n_fit + len(m.constants):
-        raise ValueError(
+        raise InputError(
             f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
             f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
             f"constants, in that order."
         )
     if not np.all(np.isfinite(dp)):
-        raise ValueError(
+        raise InputError(
             f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
         )
     fm = FlightModel(t, specimen, conditions, m, dp[n_fit:], fit_lift, rtol, atol)

@@ -19,18 +19,19 @@ import math
 from dataclasses import dataclass
 
 from fitdrag._checks import positive_number as _positive
+from fitdrag.errors import InputError
 
 
 def _added_mass(value: float) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise ValueError(
+        raise InputError(
             f"added_mass_coefficient: expected a number, got {value!r}; use 0.5 for a sphere, "
             f"0 to neglect added mass."
         ) from None
     if not math.isfinite(v) or v < 0:
-        raise ValueError(
+        raise InputError(
             f"added_mass_coefficient: must be finite and >= 0, got {value!r}; use 0.5 for a "
             f"sphere, 0 to neglect added mass."
         )

@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from fitdrag._files import check_output, write_text_atomic
+from fitdrag.errors import InputError
 from fitdrag.tracks.track import MIN_POINTS, Track, TrackImportWarning, check_input_file
 
 __all__ = ["UNITS", "read_track", "write_track"]
@@ -67,11 +68,11 @@ def _check_number(src: str, name: str, value: Any, option: str, *, unit: str) ->
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise ValueError(
+        raise InputError(
             f"{src}: {name} must be a number [{unit}], got {value!r}; set {option}."
         ) from None
     if not math.isfinite(v):
-        raise ValueError(
+        raise InputError(
             f"{src}: {name} must be a finite number [{unit}], got {v!r}; set {option}."
         )
     return v
@@ -81,18 +82,18 @@ def _resolve_delimiter(src: str, delimiter: str | None) -> str | None:
     if delimiter is None:
         return None
     if not isinstance(delimiter, str) or delimiter == "":
-        raise ValueError(
+        raise InputError(
             f"{src}: delimiter must be one character (or 'tab', 'whitespace'), got "
             f"{delimiter!r}; set --delimiter (delimiter=) or leave it out to detect it."
         )
     d = _DELIMITER_ALIASES.get(delimiter.lower(), delimiter)
     if d != _WHITESPACE and len(d) != 1:
-        raise ValueError(
+        raise InputError(
             f"{src}: delimiter must be one character (or 'tab', 'whitespace'), got "
             f"{delimiter!r}; set --delimiter (delimiter=) or leave it out to detect it."
         )
     if d in ("\n", "\r", '"'):
-        raise ValueError(
+        raise InputError(
             f"{src}: delimiter {delimiter!r} cannot separate columns; use ',', ';', 'tab' or "
             f"'whitespace'."
         )
@@ -134,7 +135,7 @@ def _find_column(
     key = name.strip().lower()
     hits = [i for i, h in enumerate(header) if h.strip().lower() == key]
     if len(hits) > 1:
-        raise ValueError(
+        raise InputError(
             f"{src}, line {header_line}: column name {name!r} matches {len(hits)} columns "
             f"(columns {', '.join(str(i + 1) for i in hits)}); rename one of them in the file "
             f"or choose another column with {option}."
@@ -302,7 +303,7 @@ def read_track(
 
     # ---- options ---------------------------------------------------------------------------
     if not isinstance(units, str) or units.strip().lower() not in UNITS:
-        raise ValueError(
+        raise InputError(
             f"{src}: unknown units {units!r}; choose one of {', '.join(UNITS)} (--units)."
         )
     units = units.strip().lower()
@@ -311,44 +312,44 @@ def read_track(
         ("y_col", y_col, "--y-column"),
     ):
         if not isinstance(value, str) or not value.strip():
-            raise ValueError(f"{src}: {name} must be a column name, got {value!r}; set {option}.")
+            raise InputError(f"{src}: {name} must be a column name, got {value!r}; set {option}.")
     for name, value, option in (
         ("t_col", t_col, "--t-column"),
         ("frame_col", frame_col, "--frame-column"),
         ("sigma_col", sigma_col, "--sigma-column"),
     ):
         if value is not None and (not isinstance(value, str) or not value.strip()):
-            raise ValueError(
+            raise InputError(
                 f"{src}: {name} must be a column name or None, got {value!r}; set {option}."
             )
     if fps is not None:
         fps = _check_number(src, "frame rate", fps, "--frame-rate (fps=)", unit="Hz")
         if fps <= 0:
-            raise ValueError(
+            raise InputError(
                 f"{src}: frame rate must be > 0 Hz, got {fps!r}; set --frame-rate (fps=) to the "
                 f"camera's frames per second."
             )
     if units == "px":
         if scale is None:
-            raise ValueError(
+            raise InputError(
                 f"{src}: units 'px' need an image scale in m/px; set --scale (scale=), e.g. "
                 f"--scale 0.0005 for 0.5 mm per pixel."
             )
         scale = _check_number(src, "scale", scale, "--scale (scale=)", unit="m/px")
         if scale == 0:
-            raise ValueError(
+            raise InputError(
                 f"{src}: zero scale (0 m/px) would put every point at the origin; set --scale "
                 f"(scale=) to the image scale in m/px (> 0)."
             )
         if scale < 0:
-            raise ValueError(
+            raise InputError(
                 f"{src}: scale must be > 0 m/px, got {scale!r}; set --scale (scale=) to the "
                 f"image scale in m/px."
             )
         factor = scale
     else:
         if scale is not None:
-            raise ValueError(
+            raise InputError(
                 f"{src}: a scale ({scale!r} m/px) was given but units are {units!r}; set "
                 f"--units px (units='px') for pixel input, or leave the scale out."
             )
@@ -356,7 +357,7 @@ def read_track(
     try:
         ox, oy = origin
     except (TypeError, ValueError):
-        raise ValueError(
+        raise InputError(
             f"{src}: origin must be two numbers (x, y) in the file's units, got {origin!r}; "
             f"set --origin X,Y."
         ) from None
@@ -364,7 +365,7 @@ def read_track(
     oy = _check_number(src, "origin y", oy, "--origin X,Y", unit=units)
     delim = _resolve_delimiter(src, delimiter)
     if comment is not None and (not isinstance(comment, str) or comment.strip() == ""):
-        raise ValueError(
+        raise InputError(
             f"{src}: comment must be a non-blank prefix such as '#', or None, got {comment!r}."
         )
 
@@ -375,12 +376,12 @@ def read_track(
     try:
         text = raw.decode(enc)
     except UnicodeDecodeError as exc:
-        raise ValueError(
+        raise InputError(
             f"{src}: cannot decode byte {raw[exc.start]:#04x} at offset {exc.start} as "
             f"{encoding}; pass the file's encoding (encoding=..., e.g. 'latin-1')."
         ) from None
     except LookupError:
-        raise ValueError(
+        raise InputError(
             f"{src}: unknown text encoding {encoding!r}; use e.g. 'utf-8' or 'latin-1'."
         ) from None
     lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
@@ -403,7 +404,7 @@ def read_track(
         header_idx = i
         break
     if header_idx is None:
-        raise ValueError(
+        raise InputError(
             f"{src}: the file is empty (no header line and no data); export the track again "
             f"with a header line such as 't,x,y'."
         )
@@ -417,7 +418,7 @@ def read_track(
         delim = _detect_delimiter(lines[header_idx], [lines[i] for i in data_idx[:5]])
     header = _split(lines[header_idx], delim)
     if header and all(_parse_cell(h) is not None and h.strip() for h in header):
-        raise ValueError(
+        raise InputError(
             f"{src}, line {header_line}: the first line holds numbers, not column names; add a "
             f"header line such as 't,x,y' naming the columns."
         )
@@ -426,7 +427,7 @@ def read_track(
     def need(name: str, option: str, kwarg: str) -> int:
         j = _find_column(src, header, name, option, header_line=header_line)
         if j is None:
-            raise ValueError(_missing_column(src, name, header, option, kwarg))
+            raise InputError(_missing_column(src, name, header, option, kwarg))
         return j
 
     jx = need(x_col, "--x-column", "x_col")
@@ -444,7 +445,7 @@ def read_track(
         jt = _find_column(src, header, t_col, "--t-column", header_line=header_line)
     if jt is None:
         if jf is None or fps is None:
-            raise ValueError(_no_times_message(src, header, t_col, jf is not None, fps))
+            raise InputError(_no_times_message(src, header, t_col, jf is not None, fps))
         time_from = "frames"
     else:
         time_from = "column"
@@ -480,12 +481,12 @@ def read_track(
             text_ = cells[j] if j < len(cells) else ""
             v = _parse_cell(text_)
             if v is None:
-                raise ValueError(
+                raise InputError(
                     f"{src}, line {lineno}, column {header[j]!r}: {text_!r} is not a number; "
                     f"correct the cell, or delete the row."
                 )
             if math.isinf(v):
-                raise ValueError(
+                raise InputError(
                     f"{src}, line {lineno}, column {header[j]!r}: {text_!r} is not a finite "
                     f"number; correct the cell, or delete the row."
                 )
@@ -497,12 +498,12 @@ def read_track(
             dropped.append(lineno)
             continue
         if "frame" in row and row["frame"] != round(row["frame"]):
-            raise ValueError(
+            raise InputError(
                 f"{src}, line {lineno}, column {header[jf]!r}: frame number {cells[jf]!r} is not "
                 f"a whole number; check that --frame-column names the frame-number column."
             )
         if "sigma" in row and row["sigma"] <= 0:
-            raise ValueError(
+            raise InputError(
                 f"{src}, line {lineno}, column {header[js]!r}: position uncertainty "
                 f"{cells[js]!r} must be > 0; correct the cell, or leave --sigma-column out to "
                 f"estimate the noise from the fit."
@@ -514,7 +515,7 @@ def read_track(
     if dropped:
         cols = ", ".join(repr(c) for c in sorted(dropped_cols))
         if strict:
-            raise ValueError(
+            raise InputError(
                 f"{src}: {len(dropped)} row(s) with blank or NaN cells (in {cols}) at line(s) "
                 f"{_fmt_lines(dropped)}; fill in or delete those rows, or leave out --strict "
                 f"(strict=False) to drop them."
@@ -529,7 +530,7 @@ def read_track(
     n = len(kept_lines)
     if n < MIN_POINTS:
         extra = f" ({len(dropped)} row(s) with blank or NaN cells dropped)" if dropped else ""
-        raise ValueError(
+        raise InputError(
             f"{src}: {n} usable point(s){extra}, at least {MIN_POINTS} are needed for a fit; "
             f"use a longer stretch of the flight."
         )
@@ -552,7 +553,7 @@ def read_track(
             a, b = f"t = {float(t[k + 1])!r} s", f"t = {float(t[k])!r} s"
         else:
             a, b = f"frame {int(frame[k + 1])}", f"frame {int(frame[k])}"
-        raise ValueError(
+        raise InputError(
             f"{src}: times ({t_name}) must increase strictly, but line {kept_lines[k + 1]} "
             f"has {a}, which {kind} line {kept_lines[k]} with {b}{more}; sort the rows by "
             f"time and remove repeated rows."
@@ -600,7 +601,7 @@ def read_track(
             text_ = header_meta[key]
             v = _parse_cell(text_)
             if v is None or not math.isfinite(v) or v < 0:
-                raise ValueError(
+                raise InputError(
                     f"{src}: header entry '{key}' must be a number >= 0 [{unit}], got "
                     f"{text_!r}; correct that comment line or delete it."
                 )
@@ -677,7 +678,7 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
     from fitdrag._version import __version__
 
     if not isinstance(track, Track):
-        raise ValueError(
+        raise InputError(
             f"track: expected a fitdrag Track, got {type(track).__name__}; build one with "
             f"Track(t, x, y) or read_track(path)."
         )

@@ -18,6 +18,8 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError, InputFileNotFoundError
+
 __all__ = [
     "MIN_POINTS",
     "Track",
@@ -37,12 +39,12 @@ def _as_1d_float(name: str, value: Any) -> np.ndarray:
     try:
         arr = np.asarray(value, dtype=float)
     except (TypeError, ValueError) as exc:
-        raise ValueError(
+        raise InputError(
             f"{name}: expected numbers, got {type(value).__name__} that cannot be read as "
             f"numbers ({exc}); pass a sequence of floats."
         ) from None
     if arr.ndim != 1:
-        raise ValueError(
+        raise InputError(
             f"{name}: expected a 1-D sequence of numbers, got an array of shape {arr.shape}; "
             f"pass one value per sample."
         )
@@ -87,19 +89,19 @@ class Track:
         x = _as_1d_float("x", self.x)
         y = _as_1d_float("y", self.y)
         if not (len(t) == len(x) == len(y)):
-            raise ValueError(
+            raise InputError(
                 f"t, x, y: lengths differ (t has {len(t)}, x has {len(x)}, y has {len(y)}); "
                 f"give one x and one y per time."
             )
         for name, arr in (("t", t), ("x", x), ("y", y)):
             bad = np.flatnonzero(~np.isfinite(arr))
             if bad.size:
-                raise ValueError(
+                raise InputError(
                     f"{name}: {bad.size} non-finite value(s), first at index {bad[0]} "
                     f"(value {float(arr[bad[0]])!r}); drop or repair those samples first."
                 )
         if len(t) < MIN_POINTS:
-            raise ValueError(
+            raise InputError(
                 f"track: {len(t)} usable point(s), at least {MIN_POINTS} are needed for a fit; "
                 f"use a longer stretch of the flight."
             )
@@ -107,7 +109,7 @@ class Track:
         if np.any(dt <= 0):
             i = int(np.flatnonzero(dt <= 0)[0])
             kind = "duplicate" if dt[i] == 0 else "decreasing"
-            raise ValueError(
+            raise InputError(
                 f"t: times must increase strictly; {kind} time at index {i + 1} "
                 f"(t[{i}] = {float(t[i])!r}, t[{i + 1}] = {float(t[i + 1])!r}); sort the "
                 f"samples or remove repeated frames."
@@ -119,12 +121,12 @@ class Track:
                 sigma = np.full(len(t), float(sigma))
             sigma = _as_1d_float("sigma", sigma)
             if len(sigma) != len(t):
-                raise ValueError(
+                raise InputError(
                     f"sigma: {len(sigma)} value(s) for {len(t)} samples; give one per sample "
                     f"or a single value."
                 )
             if not np.all(np.isfinite(sigma)) or np.any(sigma <= 0):
-                raise ValueError(
+                raise InputError(
                     f"sigma: every position uncertainty must be finite and > 0 m, "
                     f"got min {float(np.nanmin(sigma))!r}; leave sigma out to estimate the "
                     f"noise."
@@ -133,7 +135,7 @@ class Track:
         if frame is not None:
             frame = np.asarray(frame)
             if frame.ndim != 1 or len(frame) != len(t):
-                raise ValueError(
+                raise InputError(
                     f"frame: {np.size(frame)} frame number(s) for {len(t)} samples; give one per "
                     f"sample."
                 )
@@ -142,7 +144,7 @@ class Track:
             except TypeError:
                 whole = False
             if not whole:
-                raise ValueError("frame: frame numbers must be whole numbers.")
+                raise InputError("frame: frame numbers must be whole numbers.")
             frame = frame.astype(np.int64)
             frame.setflags(write=False)
         object.__setattr__(self, "t", t)
@@ -203,6 +205,6 @@ def file_sha256(path: str | os.PathLike) -> str:
 def check_input_file(p: Path) -> None:
     """Refuse a track file path that is a directory or does not exist."""
     if p.is_dir():
-        raise ValueError(f"{p}: is a directory, not a track file; give the path of a CSV file.")
+        raise InputError(f"{p}: is a directory, not a track file; give the path of a CSV file.")
     if not p.exists():
-        raise FileNotFoundError(f"{p}: no such file; check the path of the track file.")
+        raise InputFileNotFoundError(f"{p}: no such file; check the path of the track file.")

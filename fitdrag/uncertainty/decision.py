@@ -43,6 +43,8 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
+from fitdrag.errors import InputError
+
 RULES = ("simple", "guarded")
 
 PASS = "pass"
@@ -69,9 +71,9 @@ def _num(name: str, value, hint: str) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected a number, got {value!r}; {hint}") from None
+        raise InputError(f"{name}: expected a number, got {value!r}; {hint}") from None
     if not math.isfinite(v):
-        raise ValueError(f"{name}: must be finite, got {value!r}; {hint}")
+        raise InputError(f"{name}: must be finite, got {value!r}; {hint}")
     return v
 
 
@@ -105,18 +107,18 @@ class Specification:
         lo = None if self.lower is None else _num("lower", self.lower, hint)
         hi = None if self.upper is None else _num("upper", self.upper, hint)
         if lo is None and hi is None:
-            raise ValueError(
+            raise InputError(
                 "specification: neither a lower nor an upper limit was given; give a tolerance "
                 "(±) around the stated value, or lower and/or upper."
             )
         if lo is not None and hi is not None and not lo < hi:
-            raise ValueError(
+            raise InputError(
                 f"specification: lower limit {lo!r} must be below upper limit {hi!r}; swap them "
                 f"or correct the tolerance."
             )
         nom = None if self.nominal is None else _num("nominal", self.nominal, hint)
         if nom is not None and ((lo is not None and nom < lo) or (hi is not None and nom > hi)):
-            raise ValueError(
+            raise InputError(
                 f"specification: stated value {nom!r} lies outside its own limits "
                 f"[{lo!r}, {hi!r}]; correct the stated value or the limits."
             )
@@ -137,7 +139,7 @@ class Specification:
         nom = _num("nominal", nominal, "give the stated value as a number.")
         tol = _num("tolerance", tolerance, "give the ± tolerance as a positive number.")
         if tol <= 0:
-            raise ValueError(
+            raise InputError(
                 f"tolerance: must be > 0, got {tolerance!r}; give the half-width of the "
                 f"tolerance interval (the ± value)."
             )
@@ -210,7 +212,7 @@ def probability_of_conformity(
     y = float(value)
     u = float(standard_uncertainty)
     if not (u >= 0 and math.isfinite(u)):
-        raise ValueError(f"standard_uncertainty: must be finite and >= 0, got {u!r}.")
+        raise InputError(f"standard_uncertainty: must be finite and >= 0, got {u!r}.")
     if u == 0:
         ok = (lower is None or y >= lower) and (upper is None or y <= upper)
         return 1.0 if ok else 0.0
@@ -351,18 +353,18 @@ def decide(
     Verdict
     """
     if rule not in RULES:
-        raise ValueError(
+        raise InputError(
             f"decision_rule: unknown rule {rule!r}; use one of {', '.join(map(repr, RULES))}."
         )
     if not isinstance(specification, Specification):
-        raise ValueError(f"specification: expected a Specification, got {specification!r}.")
+        raise InputError(f"specification: expected a Specification, got {specification!r}.")
     y = _num("value", value, "the measured value must be a finite number.")
     big_u = _num("expanded_uncertainty", expanded_uncertainty, "give U as a number >= 0.")
     if big_u < 0:
-        raise ValueError(f"expanded_uncertainty: must be >= 0, got {expanded_uncertainty!r}.")
+        raise InputError(f"expanded_uncertainty: must be >= 0, got {expanded_uncertainty!r}.")
     k = _num("coverage_factor", coverage_factor, "give k > 0.")
     if k <= 0:
-        raise ValueError(f"coverage_factor: must be > 0, got {coverage_factor!r}.")
+        raise InputError(f"coverage_factor: must be > 0, got {coverage_factor!r}.")
     u = big_u / k if standard_uncertainty is None else float(standard_uncertainty)
     lo, hi = specification.lower, specification.upper
     w = big_u if rule == "guarded" else 0.0

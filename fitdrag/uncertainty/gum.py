@@ -43,6 +43,8 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import ConvergenceError, InputError
+
 #: Coverage probability of k = 2 for a normal distribution: erf(2/√2) = 0.9545 (GUM Table G.1).
 P_K2 = math.erf(2.0 / math.sqrt(2.0))
 
@@ -56,9 +58,9 @@ def _finite(name: str, what: str, value: Any) -> float:
     try:
         v = float(value)
     except (TypeError, ValueError):
-        raise ValueError(f"{name}: {what} must be a number, got {value!r}.") from None
+        raise InputError(f"{name}: {what} must be a number, got {value!r}.") from None
     if not math.isfinite(v):
-        raise ValueError(f"{name}: {what} must be finite, got {value!r}.")
+        raise InputError(f"{name}: {what} must be finite, got {value!r}.")
     return v
 
 
@@ -107,12 +109,12 @@ class InputQuantity:
 
     def __post_init__(self) -> None:
         if not isinstance(self.name, str) or not self.name:
-            raise ValueError(f"name: expected a non-empty string, got {self.name!r}.")
+            raise InputError(f"name: expected a non-empty string, got {self.name!r}.")
         n = self.name
         object.__setattr__(self, "value", _finite(n, "value", self.value))
         u = _finite(n, "standard_uncertainty", self.standard_uncertainty)
         if u < 0:
-            raise ValueError(
+            raise InputError(
                 f"{n}: standard_uncertainty must be >= 0, got {u!r}; give the standard "
                 f"uncertainty as a positive number (or 0 if the value is exact)."
             )
@@ -120,19 +122,19 @@ class InputQuantity:
         try:
             dof = float(self.dof)
         except (TypeError, ValueError):
-            raise ValueError(f"{n}: dof must be a number or inf, got {self.dof!r}.") from None
+            raise InputError(f"{n}: dof must be a number or inf, got {self.dof!r}.") from None
         if math.isnan(dof) or dof <= 0:
-            raise ValueError(f"{n}: dof (degrees of freedom) must be > 0 or inf, got {self.dof!r}.")
+            raise InputError(f"{n}: dof (degrees of freedom) must be > 0 or inf, got {self.dof!r}.")
         object.__setattr__(self, "dof", dof)
         if self.kind not in _KINDS:
-            raise ValueError(
+            raise InputError(
                 f"{n}: kind must be 'A' (statistical) or 'B' (other), got {self.kind!r}."
             )
         dist = self.distribution
         if dist is None:
             dist = "t" if (self.kind == "A" and math.isfinite(dof)) else "normal"
         if dist not in DISTRIBUTIONS:
-            raise ValueError(
+            raise InputError(
                 f"{n}: distribution must be one of {', '.join(DISTRIBUTIONS)}, got {dist!r}."
             )
         if dist == "t" and not math.isfinite(dof):
@@ -143,7 +145,7 @@ class InputQuantity:
         if self.step is not None:
             s = _finite(n, "step", self.step)
             if s <= 0:
-                raise ValueError(f"{n}: step must be > 0, got {self.step!r}.")
+                raise InputError(f"{n}: step must be > 0, got {self.step!r}.")
             object.__setattr__(self, "step", s)
 
     def sample(self, rng: np.random.Generator, size: int) -> np.ndarray:
@@ -177,7 +179,7 @@ def statistical_input(statistical: Any, unit: str) -> InputQuantity | None:
         try:
             u, dof = statistical
         except (TypeError, ValueError):
-            raise ValueError(
+            raise InputError(
                 f"statistical: expected (standard_uncertainty, dof) or an InputQuantity, got "
                 f"{statistical!r}."
             ) from None
@@ -213,10 +215,10 @@ def check_inputs(inputs: Sequence[InputQuantity]) -> list[InputQuantity]:
     names = [q.name for q in inputs]
     for q in inputs:
         if not isinstance(q, InputQuantity):
-            raise ValueError(f"inputs: expected InputQuantity objects, got {q!r}.")
+            raise InputError(f"inputs: expected InputQuantity objects, got {q!r}.")
     dup = sorted({n for n in names if names.count(n) > 1})
     if dup:
-        raise ValueError(f"inputs: duplicate input name(s) {dup}; give each input once.")
+        raise InputError(f"inputs: duplicate input name(s) {dup}; give each input once.")
     return inputs
 
 
@@ -242,7 +244,7 @@ def welch_satterthwaite(contributions: Sequence[float], dofs: Sequence[float]) -
     c = np.abs(np.asarray(contributions, dtype=float))
     nu = np.asarray(dofs, dtype=float)
     if c.shape != nu.shape:
-        raise ValueError(
+        raise InputError(
             f"contributions and dofs: lengths differ ({c.size} and {nu.size}); give one dof "
             f"per contribution."
         )
@@ -279,13 +281,13 @@ def coverage_factor(
 
     p = float(coverage_probability)
     if not 0.0 < p < 1.0:
-        raise ValueError(
+        raise InputError(
             f"coverage_probability: must be between 0 and 1, got {coverage_probability!r}; "
             f"use e.g. 0.9545 for k = 2."
         )
     nu = float(dof)
     if math.isnan(nu) or nu <= 0:
-        raise ValueError(f"dof: must be > 0 or inf, got {dof!r}.")
+        raise InputError(f"dof: must be > 0 or inf, got {dof!r}.")
     q = 0.5 * (1.0 + p)
     if math.isinf(nu):
         return float(stats.norm.ppf(q))
@@ -478,9 +480,9 @@ def _evaluate(fn: Callable, values: dict, what: str) -> float:
     try:
         y = float(fn(values))
     except Exception as exc:  # the model (a fit) may fail in many ways
-        raise RuntimeError(f"model evaluation failed at {what}: {exc}") from exc
+        raise ConvergenceError(f"model evaluation failed at {what}: {exc}") from exc
     if not math.isfinite(y):
-        raise RuntimeError(f"model evaluation at {what} returned a non-finite value {y!r}.")
+        raise ConvergenceError(f"model evaluation at {what} returned a non-finite value {y!r}.")
     return y
 
 
@@ -538,9 +540,9 @@ def budget_from_model(
     inputs = check_inputs(inputs)
     stat = statistical_input(statistical, unit)
     if stat is not None and stat.name in {q.name for q in inputs}:
-        raise ValueError(f"statistical: its name {stat.name!r} is also an input's name.")
+        raise InputError(f"statistical: its name {stat.name!r} is also an input's name.")
     if not (step_fraction > 0 and math.isfinite(step_fraction)):
-        raise ValueError(f"step_fraction: must be a finite number > 0, got {step_fraction!r}.")
+        raise InputError(f"step_fraction: must be a finite number > 0, got {step_fraction!r}.")
     base = {q.name: q.value for q in inputs}
     y0 = _evaluate(fn, dict(base), "the input estimates")
     todo = [q for q in inputs if q.sensitivity is None]

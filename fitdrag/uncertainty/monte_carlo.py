@@ -26,6 +26,7 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import ConvergenceError, InputError
 from fitdrag.uncertainty.gum import (
     Budget,
     InputQuantity,
@@ -52,10 +53,10 @@ def symmetric_interval(values: np.ndarray, coverage_probability: float) -> tuple
     m = y.size
     p = float(coverage_probability)
     if not 0.0 < p < 1.0:
-        raise ValueError(f"coverage_probability: must be between 0 and 1, got {p!r}.")
+        raise InputError(f"coverage_probability: must be between 0 and 1, got {p!r}.")
     q = int(math.floor(p * m + 0.5))
     if m < 2 or q >= m:
-        raise ValueError(
+        raise InputError(
             f"values: {m} model value(s) are too few for a {p:.4g} coverage interval; "
             f"use at least {math.ceil(1.0 / (1.0 - p))} trials."
         )
@@ -203,7 +204,7 @@ class _Evaluator:
             cols = {n: rows[:, j] for j, n in enumerate(self.names)}
             y = np.asarray(self.fn(cols), dtype=float)
             if y.shape != (rows.shape[0],):
-                raise ValueError(
+                raise InputError(
                     f"fn: a vectorized model must return one value per trial, got shape "
                     f"{y.shape} for {rows.shape[0]} trials."
                 )
@@ -306,10 +307,10 @@ def monte_carlo(
     trials = int(trials)
     p = float(coverage_probability)
     if not 0.0 < p < 1.0:
-        raise ValueError(f"coverage_probability: must be between 0 and 1, got {p!r}.")
+        raise InputError(f"coverage_probability: must be between 0 and 1, got {p!r}.")
     j_min = math.ceil(1.0 / (1.0 - p))
     if trials < j_min:
-        raise ValueError(
+        raise InputError(
             f"trials: {trials} is too few for a {p:.4g} coverage interval; use at least "
             f"{j_min} (JCGM 101 7.2.2 recommends M >= 10^4)."
         )
@@ -317,7 +318,7 @@ def monte_carlo(
         batch_size = max(math.ceil(100.0 / (1.0 - p)), trials // 10)
     batch_size = int(min(batch_size, trials))
     if adaptive and batch_size < j_min:
-        raise ValueError(f"batch_size: {batch_size} is below 1/(1 - p) = {j_min}.")
+        raise InputError(f"batch_size: {batch_size} is below 1/(1 - p) = {j_min}.")
     rng = np.random.default_rng(seed)
     names = [q.name for q in inputs]
     t0 = time.perf_counter()
@@ -360,7 +361,7 @@ def monte_carlo(
         bar.close()
     values = np.concatenate(chunks) if chunks else np.empty(0)
     if values.size < j_min:
-        raise RuntimeError(
+        raise ConvergenceError(
             f"Monte Carlo: only {values.size} of {done} model evaluations succeeded "
             f"({failures} failed); too few for a coverage interval."
         )

@@ -18,6 +18,7 @@ import math
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.video.sources import FrameSource
 
 __all__ = ["GRID_PIXELS", "estimate_background"]
@@ -72,7 +73,7 @@ def estimate_background(
             pick = np.unique(np.linspace(lo, last, n_samples).round().astype(int))
         samples = [img for _, img in source.sample(pick.tolist())]
     if not samples:
-        raise ValueError(
+        raise InputError(
             f"footage {source.name}: no frame could be read in the range {start}..{last}; "
             f"check start/stop and the file."
         )

@@ -60,6 +60,7 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError, InputFileNotFoundError
 from fitdrag.video.lens import LensModel
 from fitdrag.video.markers import (
     DEFAULT_DICTIONARY,
@@ -146,20 +147,20 @@ class Calibration:
     def __post_init__(self) -> None:
         h = np.array(self.homography, dtype=float)
         if h.shape != (3, 3) or not np.all(np.isfinite(h)):
-            raise ValueError(
+            raise InputError(
                 f"homography: expected a finite 3x3 matrix, got shape {h.shape}; build the "
                 f"calibration with calibration_from_scale/_reference/_markers."
             )
         if abs(np.linalg.det(h)) < 1e-300 or np.linalg.cond(h) > 1e15:
-            raise ValueError("homography: the matrix is singular; the calibration is degenerate.")
+            raise InputError("homography: the matrix is singular; the calibration is degenerate.")
         h.setflags(write=False)
         u = float(self.scale_relative_uncertainty)
         if not math.isfinite(u) or u < 0:
-            raise ValueError(
+            raise InputError(
                 f"scale_relative_uncertainty: expected a finite value >= 0, got {u!r}."
             )
         if self.lens is not None and not isinstance(self.lens, LensModel):
-            raise ValueError(
+            raise InputError(
                 f"lens: expected a LensModel or None, got {type(self.lens).__name__}; load "
                 f"one with fitdrag.video.lens.load_lens(path)."
             )
@@ -261,7 +262,7 @@ def _check_positive(name: str, value: Any, unit: str, fix: str) -> float:
     except (TypeError, ValueError):
         v = float("nan")
     if not math.isfinite(v) or v <= 0:
-        raise ValueError(f"{name}: must be a finite number > 0 {unit}, got {value!r}; {fix}")
+        raise InputError(f"{name}: must be a finite number > 0 {unit}, got {value!r}; {fix}")
     return v
 
 
@@ -271,7 +272,7 @@ def _check_fraction(name: str, value: Any) -> float:
     except (TypeError, ValueError):
         v = float("nan")
     if not math.isfinite(v) or v < 0 or v >= 1:
-        raise ValueError(
+        raise InputError(
             f"{name}: a relative standard uncertainty must be >= 0 and < 1, got {value!r}; "
             f"e.g. 0.002 for 0.2 %."
         )
@@ -282,9 +283,9 @@ def _check_point(name: str, point: Any) -> tuple[float, float]:
     try:
         a, b = (float(p) for p in point)
     except (TypeError, ValueError):
-        raise ValueError(f"{name}: expected two numbers (x, y) in px, got {point!r}.") from None
+        raise InputError(f"{name}: expected two numbers (x, y) in px, got {point!r}.") from None
     if not (math.isfinite(a) and math.isfinite(b)):
-        raise ValueError(f"{name}: expected finite pixel coordinates, got {point!r}.")
+        raise InputError(f"{name}: expected finite pixel coordinates, got {point!r}.")
     return a, b
 
 
@@ -345,7 +346,7 @@ def calibration_from_scale(
     except (TypeError, ValueError):
         rot = float("nan")
     if not math.isfinite(rot):
-        raise ValueError(f"rotation: expected a finite angle in degrees, got {rotation_deg!r}.")
+        raise InputError(f"rotation: expected a finite angle in degrees, got {rotation_deg!r}.")
     u = _check_fraction("scale_relative_uncertainty", scale_relative_uncertainty)
     o_u = o
     if lens is not None:
@@ -413,14 +414,14 @@ def calibration_from_reference(
     u_d = _check_fraction("distance_relative_uncertainty", distance_relative_uncertainty)
     u_p = float(point_uncertainty_px)
     if not math.isfinite(u_p) or u_p < 0:
-        raise ValueError(f"point_uncertainty_px: expected a value >= 0 px, got {u_p!r}.")
+        raise InputError(f"point_uncertainty_px: expected a value >= 0 px, got {u_p!r}.")
     q1, q2 = p1, p2
     if lens is not None:
         xs, ys = lens.undistort_points([p1[0], p2[0]], [p1[1], p2[1]])
         q1, q2 = (float(xs[0]), float(ys[0])), (float(xs[1]), float(ys[1]))
     length = math.hypot(q2[0] - q1[0], q2[1] - q1[1])
     if length < 1.0:
-        raise ValueError(
+        raise InputError(
             f"--reference: the two points are {length:.3g} px apart; pick two points at least "
             f"1 px (better: hundreds of px) apart."
         )
@@ -524,7 +525,7 @@ def calibration_from_markers(
     obs = detect_markers(grey, name, lens, refine=refine)
     hgt, wid = grey.shape
     if not obs:
-        raise ValueError(
+        raise InputError(
             f"markers: no {name} marker found in the image ({wid}x{hgt} px); check the "
             f"dictionary (--marker-dictionary), that each marker has a white margin and is at "
             f"least about 20 px across, or calibrate with --scale or --reference instead."
@@ -612,7 +613,7 @@ def _homography_from_markers(obs, size, layout, lens, common, u_bias, u_size):
     ignored = tuple(o.id for o in obs if o.id not in layout)
     missing = tuple(sorted(set(layout) - {o.id for o in obs}))
     if not used:
-        raise ValueError(
+        raise InputError(
             f"--marker-layout: none of the markers found (ids {', '.join(str(o.id) for o in obs)}"
             f") is in the layout (ids {', '.join(str(i) for i in sorted(layout)) or 'none'}); "
             f"check the layout file and --marker-dictionary."
@@ -621,7 +622,7 @@ def _homography_from_markers(obs, size, layout, lens, common, u_bias, u_size):
     world = np.concatenate([_layout_corners(*layout[o.id], size) for o in used])
     h_w2i, _ = cv2.findHomography(world, img, 0)
     if h_w2i is None or not np.all(np.isfinite(h_w2i)) or abs(h_w2i[2, 2]) < 1e-12:
-        raise ValueError(
+        raise InputError(
             "--marker-layout: no homography fits the marker corners (degenerate layout, e.g. "
             "markers on one line); check the layout positions."
         )
@@ -739,7 +740,7 @@ def load_marker_layout(path: str | os.PathLike) -> dict[int, tuple[float, float]
     """
     p = Path(path)
     if not p.is_file():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"--marker-layout: {str(p)!r} does not exist; give a CSV (id,x_m,y_m) or JSON "
             f"layout file."
         )
@@ -750,10 +751,10 @@ def load_marker_layout(path: str | os.PathLike) -> dict[int, tuple[float, float]
         try:
             data = json.loads(text)
         except json.JSONDecodeError as exc:
-            raise ValueError(f"{src}: not valid JSON ({exc}).") from None
+            raise InputError(f"{src}: not valid JSON ({exc}).") from None
         markers = data.get("markers") if isinstance(data, Mapping) else None
         if not isinstance(markers, Mapping) or not markers:
-            raise ValueError(
+            raise InputError(
                 f'{src}: expected {{"markers": {{"ID": [x_m, y_m], ...}}}}, got '
                 f"{text.strip()[:60]!r}."
             )
@@ -765,18 +766,18 @@ def load_marker_layout(path: str | os.PathLike) -> dict[int, tuple[float, float]
             if line.strip() and not line.lstrip().startswith("#")
         ]
         if not rows:
-            raise ValueError(f"{src}: the file is empty; expected a header 'id,x_m,y_m'.")
+            raise InputError(f"{src}: the file is empty; expected a header 'id,x_m,y_m'.")
         reader = list(csv.reader(io.StringIO("\n".join(r[1] for r in rows))))
         head = [c.strip().lower() for c in reader[0]]
         if head[:3] not in (["id", "x_m", "y_m"], ["id", "x", "y"]):
-            raise ValueError(
+            raise InputError(
                 f"{src}, line {rows[0][0]}: expected the header 'id,x_m,y_m', got "
                 f"{rows[0][1].strip()!r}."
             )
         items = []
         for (lineno, line), cells in zip(rows[1:], reader[1:]):
             if len(cells) < 3:
-                raise ValueError(
+                raise InputError(
                     f"{src}, line {lineno}: expected 'id,x_m,y_m', got {line.strip()!r}."
                 )
             items.append((cells[0], cells[1:3], f"line {lineno}"))
@@ -785,15 +786,15 @@ def load_marker_layout(path: str | os.PathLike) -> dict[int, tuple[float, float]
             mid = int(str(key).strip())
             x, y = (float(str(v).strip()) for v in pos)
         except (TypeError, ValueError):
-            raise ValueError(
+            raise InputError(
                 f"{src}, {where}: expected a whole-number id and two positions in metres, got "
                 f"{key!r}: {pos!r}."
             ) from None
         if mid < 0 or not (math.isfinite(x) and math.isfinite(y)):
-            raise ValueError(f"{src}, {where}: bad id or position ({mid}, {x}, {y}).")
+            raise InputError(f"{src}, {where}: bad id or position ({mid}, {x}, {y}).")
         if mid in out:
-            raise ValueError(f"{src}, {where}: marker id {mid} is listed twice.")
+            raise InputError(f"{src}, {where}: marker id {mid} is listed twice.")
         out[mid] = (x, y)
     if not out:
-        raise ValueError(f"{src}: no markers listed; add lines 'id,x_m,y_m'.")
+        raise InputError(f"{src}: no markers listed; add lines 'id,x_m,y_m'.")
     return out

@@ -63,6 +63,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
 from fitdrag.video.blobs import MAX_BLIND, Blob, BlobFinder
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
@@ -375,7 +376,7 @@ def detect_specimen(
     elif not isinstance(source, FrameSource):
         source = open_source(source)
     if polarity not in POLARITIES:
-        raise ValueError(
+        raise InputError(
             f"polarity: {polarity!r} is not one of {', '.join(POLARITIES)}; choose one of them."
         )
     for name, val in (
@@ -387,23 +388,23 @@ def detect_specimen(
         ("max_elongation", max_elongation),
     ):
         if not (isinstance(val, int | float) and math.isfinite(val) and val > 0):
-            raise ValueError(f"{name}: expected a positive number, got {val!r}.")
+            raise InputError(f"{name}: expected a positive number, got {val!r}.")
     h, w = source.shape
     if max_area is None:
         max_area = h * w / 16.0
     if not max_area > min_area:
-        raise ValueError(
+        raise InputError(
             f"max_area: {max_area:g} px must exceed min_area={min_area:g} px; widen the range."
         )
     if isinstance(max_gap, bool) or not isinstance(max_gap, int) or max_gap < 1:
-        raise ValueError(f"max_gap: expected a whole number of frames >= 1, got {max_gap!r}.")
+        raise InputError(f"max_gap: expected a whole number of frames >= 1, got {max_gap!r}.")
     start, stop = source._check_range(start, stop)
     if background is None:
         background = estimate_background(source, start, stop, background_frames)
     else:
         background = np.ascontiguousarray(background, dtype=np.float32)
         if background.shape != (h, w):
-            raise ValueError(
+            raise InputError(
                 f"background: shape {background.shape} differs from the frames' {(h, w)}; "
                 f"pass a background of the footage's size."
             )
@@ -518,7 +519,7 @@ def detect_specimen(
         span = f"{start}..{last_n if last_n is not None else start}"
         counts = Counter(missing.values()).most_common(3)
         why = "; ".join(f"{c} frame(s): {r}" for r, c in counts) or "no frames were read"
-        raise ValueError(
+        raise InputError(
             f"footage {source.name}: no specimen found in any frame of {span} ({why}); check "
             f"the frame range, the area limits (min_area={min_area:g}, max_area={max_area:g} "
             f"px) and the threshold (threshold_sigma={threshold_sigma:g})."
@@ -569,7 +570,7 @@ def register_detector(name: str, function) -> None:
     coordinates (y down), a quality figure per frame and the frames it could not measure.
     """
     if name in _DETECTORS:
-        raise ValueError(f"detector {name!r} is already registered; pick another name.")
+        raise InputError(f"detector {name!r} is already registered; pick another name.")
     _DETECTORS[name] = function
 
 
@@ -578,7 +579,7 @@ def get_detector(name: str):
     try:
         return _DETECTORS[name]
     except KeyError:
-        raise ValueError(
+        raise InputError(
             f"detector: unknown name {name!r}; valid names: {', '.join(detector_names())}."
         ) from None
 

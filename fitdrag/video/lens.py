@@ -54,6 +54,8 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError, InputFileNotFoundError
+
 __all__ = [
     "LensModel",
     "calibrate_lens",
@@ -113,32 +115,32 @@ class LensModel:
     def __post_init__(self) -> None:
         k = np.array(self.camera_matrix, dtype=float)
         if k.shape != (3, 3) or not np.all(np.isfinite(k)):
-            raise ValueError(
+            raise InputError(
                 f"camera_matrix: expected a finite 3x3 matrix, got shape {k.shape}; "
                 f"use the matrix written by fitdrag calibrate-lens."
             )
         if not (k[0, 0] > 0 and k[1, 1] > 0) or k[2, 2] != 1.0:
-            raise ValueError(
+            raise InputError(
                 f"camera_matrix: focal lengths must be > 0 px and the last element 1, got "
                 f"fx={k[0, 0]!r}, fy={k[1, 1]!r}, k33={k[2, 2]!r}; calibrate the lens again."
             )
         d = np.array(self.dist_coeffs, dtype=float).ravel()
         if d.size not in (4, 5, 8, 12, 14) or not np.all(np.isfinite(d)):
-            raise ValueError(
+            raise InputError(
                 f"dist_coeffs: expected 4, 5, 8, 12 or 14 finite coefficients "
                 f"(k1, k2, p1, p2[, k3, ...]), got {d.size}; calibrate the lens again."
             )
         try:
             w, h = (int(v) for v in self.image_size)
         except (TypeError, ValueError):
-            raise ValueError(
+            raise InputError(
                 f"image_size: expected (width, height) in px, got {self.image_size!r}."
             ) from None
         if w <= 0 or h <= 0:
-            raise ValueError(f"image_size: width and height must be > 0 px, got {(w, h)}.")
+            raise InputError(f"image_size: width and height must be > 0 px, got {(w, h)}.")
         rms = float(self.rms)
         if not math.isfinite(rms) or rms < 0:
-            raise ValueError(f"rms: expected a finite value >= 0 px, got {self.rms!r}.")
+            raise InputError(f"rms: expected a finite value >= 0 px, got {self.rms!r}.")
         k.setflags(write=False)
         d.setflags(write=False)
         object.__setattr__(self, "camera_matrix", k)
@@ -227,7 +229,7 @@ class LensModel:
     def from_dict(cls, data: Mapping, source: str = "lens file") -> LensModel:
         """Build a model from :meth:`to_dict` output (a parsed lens file)."""
         if not isinstance(data, Mapping) or data.get("format") != _FORMAT:
-            raise ValueError(
+            raise InputError(
                 f'{source}: not a fitdrag lens file (expected "format": "{_FORMAT}"); '
                 f"create one with 'fitdrag calibrate-lens IMAGES... --board 9x6 --square M "
                 f"-o lens.json'."
@@ -238,7 +240,7 @@ class LensModel:
             if k not in data
         ]
         if missing:
-            raise ValueError(
+            raise InputError(
                 f"{source}: missing entries {', '.join(missing)}; calibrate the lens again "
                 f"with fitdrag calibrate-lens."
             )
@@ -257,7 +259,7 @@ class LensModel:
                 details=details,
             )
         except (TypeError, ValueError) as exc:
-            raise ValueError(f"{source}: {exc}") from None
+            raise InputError(f"{source}: {exc}") from None
 
     def save(self, path: str | os.PathLike, *, force: bool = False) -> Path:
         """Write the lens file (JSON) atomically; refuse to overwrite unless ``force``."""
@@ -298,14 +300,14 @@ def load_lens(path: str | os.PathLike) -> LensModel:
     """
     p = Path(path)
     if not p.is_file():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"lens file: {str(p)!r} does not exist; create one with 'fitdrag calibrate-lens "
             f"IMAGES... --board 9x6 --square M -o lens.json'."
         )
     try:
         data = json.loads(p.read_text(encoding="utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise ValueError(
+        raise InputError(
             f"lens file: {str(p)!r} is not valid JSON ({exc}); create it with 'fitdrag "
             f"calibrate-lens'."
         ) from None
@@ -325,7 +327,7 @@ def parse_board(text: str) -> tuple[int, int]:
     except ValueError:
         cols = rows = 0
     if cols < 2 or rows < 2 or len(parts) != 2:
-        raise ValueError(
+        raise InputError(
             f"--board: expected the inner corners as COLSxROWS (two whole numbers >= 2), got "
             f"{text!r}; a board of 10 x 7 squares has 9x6 inner corners."
         )
@@ -339,7 +341,7 @@ def _as_grey_u8(image: np.ndarray) -> np.ndarray:
     if img.ndim == 3 and img.shape[2] in (3, 4):
         img = cv2.cvtColor(img[..., :3].astype(np.float32), cv2.COLOR_BGR2GRAY)
     if img.ndim != 2:
-        raise ValueError(
+        raise InputError(
             f"image: expected a 2-D grey or a colour image, got an array of shape {img.shape}."
         )
     if img.dtype == np.uint8:
@@ -355,13 +357,13 @@ def _read_image(path: str | os.PathLike) -> np.ndarray:
     cv2 = _cv2()
     p = Path(path)
     if not p.is_file():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"board image: {str(p)!r} does not exist; give existing image files of the "
             f"checkerboard."
         )
     img = cv2.imread(str(p), cv2.IMREAD_UNCHANGED)
     if img is None:
-        raise ValueError(
+        raise InputError(
             f"board image: {str(p)!r} cannot be read as an image; give PNG, TIFF, JPEG or BMP "
             f"files."
         )
@@ -445,18 +447,18 @@ def calibrate_lens(
     try:
         cols, rows = (int(v) for v in board)
     except (TypeError, ValueError):
-        raise ValueError(f"board: expected (cols, rows) inner corners, got {board!r}.") from None
+        raise InputError(f"board: expected (cols, rows) inner corners, got {board!r}.") from None
     if cols < 2 or rows < 2:
-        raise ValueError(f"board: need at least 2 x 2 inner corners, got {(cols, rows)}.")
+        raise InputError(f"board: need at least 2 x 2 inner corners, got {(cols, rows)}.")
     square = float(square)
     if not math.isfinite(square) or square <= 0:
-        raise ValueError(
+        raise InputError(
             f"square: the board's square side must be a finite number > 0 m, got {square!r}; "
             f"measure one square of the printed board."
         )
     images = list(images)
     if not images:
-        raise ValueError("images: no checkerboard images given; pass at least 3 views.")
+        raise InputError("images: no checkerboard images given; pass at least 3 views.")
     obj = np.zeros((rows * cols, 3), np.float32)
     obj[:, :2] = np.mgrid[0:cols, 0:rows].T.reshape(-1, 2) * square
     obj_pts, img_pts, names, rejected = [], [], [], []
@@ -468,7 +470,7 @@ def calibrate_lens(
         if size is None:
             size = this
         elif this != size:
-            raise ValueError(
+            raise InputError(
                 f"images: {name} is {this[0]}x{this[1]} px but the first image is "
                 f"{size[0]}x{size[1]} px; use views from one camera at one resolution."
             )
@@ -480,7 +482,7 @@ def calibrate_lens(
         img_pts.append(corners.astype(np.float32).reshape(-1, 1, 2))
         names.append(name)
     if len(obj_pts) < min_views:
-        raise ValueError(
+        raise InputError(
             f"images: the {cols}x{rows} board was found in {len(obj_pts)} of {len(images)} "
             f"image(s), at least {min_views} are needed; check --board (inner corners, e.g. "
             f"9x6 for 10 x 7 squares), focus and lighting."
@@ -526,7 +528,7 @@ def board_images_from(paths: Sequence[str | os.PathLike]) -> list[Path]:
         if p.is_dir():
             found = sorted(q for q in p.iterdir() if q.suffix.lower() in _IMAGE_SUFFIXES)
             if not found:
-                raise ValueError(
+                raise InputError(
                     f"board images: the folder {str(p)!r} holds no PNG/TIFF/JPEG/BMP images."
                 )
             out.extend(found)

@@ -61,6 +61,7 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError
 from fitdrag.video.lens import LensModel
 
 __all__ = [
@@ -101,7 +102,7 @@ def aruco_dictionary(name: str):
         key = "DICT_" + key
     names = marker_dictionaries()
     if key not in names:
-        raise ValueError(
+        raise InputError(
             f"--marker-dictionary: unknown ArUco dictionary {name!r}; choose one of "
             f"{', '.join(names)}."
         )
@@ -185,7 +186,7 @@ def as_grey(image: Any) -> np.ndarray:
     if img.ndim == 3 and img.shape[2] in (3, 4):
         img = cv2.cvtColor(img[..., :3].astype(np.float32), cv2.COLOR_BGR2GRAY)
     if img.ndim != 2 or img.size == 0:
-        raise ValueError(
+        raise InputError(
             f"image: expected a 2-D grey image (or colour, HxWx3), got an array of shape "
             f"{np.shape(image)}; pass one frame of the footage."
         )
@@ -414,7 +415,7 @@ def detect_markers(
     """
     cv2 = _cv2()
     if refine not in ("edges", "subpix"):
-        raise ValueError(f"refine: expected 'edges' or 'subpix', got {refine!r}.")
+        raise InputError(f"refine: expected 'edges' or 'subpix', got {refine!r}.")
     name, dic = aruco_dictionary(dictionary)
     grey = as_grey(image)
     u8 = _to_u8(grey)
@@ -439,7 +440,7 @@ def detect_markers(
             seen[i] = seen.get(i, 0) + 1
         dup = sorted(i for i, c in seen.items() if c > 1)
         if dup:
-            raise ValueError(
+            raise InputError(
                 f"markers: id(s) {', '.join(map(str, dup))} of {name} appear more than once in "
                 f"the image; every marker in view must have its own id."
             )

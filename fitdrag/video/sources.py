@@ -22,6 +22,8 @@ from pathlib import Path
 
 import numpy as np
 
+from fitdrag.errors import InputError, InputFileNotFoundError
+
 #: File-name extensions read from image folders (case-insensitive).
 IMAGE_EXTENSIONS = (".png", ".tif", ".tiff", ".jpg", ".jpeg")
 
@@ -51,7 +53,7 @@ def _to_grey(img: np.ndarray) -> np.ndarray:
         return cv2.cvtColor(img, cv2.COLOR_BGR2GRAY)
     if img.ndim == 3 and img.shape[2] == 4:
         return cv2.cvtColor(img, cv2.COLOR_BGRA2GRAY)
-    raise ValueError(f"image of shape {img.shape} is neither grey nor BGR(A)")
+    raise InputError(f"image of shape {img.shape} is neither grey nor BGR(A)")
 
 
 def _prefetch(it: Iterator, depth: int = _PREFETCH) -> Iterator:
@@ -147,21 +149,21 @@ class FrameSource:
     # -- shared ---------------------------------------------------------------------------
     def _check_range(self, start: int, stop: int | None) -> tuple[int, int | None]:
         if isinstance(start, bool) or not isinstance(start, int | np.integer):
-            raise ValueError(f"start: expected a frame number, got {start!r}.")
+            raise InputError(f"start: expected a frame number, got {start!r}.")
         if stop is not None and (isinstance(stop, bool) or not isinstance(stop, int | np.integer)):
-            raise ValueError(f"stop: expected a frame number or None, got {stop!r}.")
+            raise InputError(f"stop: expected a frame number or None, got {stop!r}.")
         start = int(start)
         stop = None if stop is None else int(stop)
         lo = self.first_frame
         hi = self.last_frame
         span = f"{lo}..{hi}" if hi is not None else f"{lo} onwards"
         if start < 0 or (hi is not None and start > hi):
-            raise ValueError(
+            raise InputError(
                 f"start: frame {start} is outside the footage {self.name} (frames {span}); "
                 f"choose a start inside that range."
             )
         if stop is not None and stop <= start:
-            raise ValueError(
+            raise InputError(
                 f"stop: {stop} is not after start {start}; stop is the first frame not read, "
                 f"so it must be larger than start."
             )
@@ -229,7 +231,7 @@ class VideoSource(FrameSource):
         cv2 = _cv2()
         self.path = Path(path)
         if not self.path.is_file():
-            raise FileNotFoundError(
+            raise InputFileNotFoundError(
                 f"footage {self.path}: no such file; check the path and the file name."
             )
         cap = cv2.VideoCapture(str(self.path))
@@ -238,7 +240,7 @@ class VideoSource(FrameSource):
             ok, img = cap.read()
         if not ok or img is None:
             cap.release()
-            raise ValueError(
+            raise InputError(
                 f"footage {self.path}: not a video OpenCV can decode (no frame could be read); "
                 f"convert it to AVI (Motion-JPEG) or MP4, or export the frames as numbered "
                 f"PNG/TIFF files into a folder."
@@ -294,7 +296,7 @@ class VideoSource(FrameSource):
             cap.set(cv2.CAP_PROP_POS_FRAMES, start)
             if int(round(cap.get(cv2.CAP_PROP_POS_FRAMES))) != start:
                 cap.release()
-                raise ValueError(
+                raise InputError(
                     f"footage {self.path}: cannot seek to frame {start}; the file may be "
                     f"shorter than its header says."
                 )
@@ -307,7 +309,7 @@ class VideoSource(FrameSource):
         def decode(pkt):
             img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
             if img is None:
-                raise ValueError(f"footage {self.path}: a frame could not be decoded.")
+                raise InputError(f"footage {self.path}: a frame could not be decoded.")
             return img
 
         try:
@@ -336,7 +338,7 @@ class VideoSource(FrameSource):
         cv2 = _cv2()
         cap = cv2.VideoCapture(str(self.path))
         if not cap.isOpened():
-            raise ValueError(f"footage {self.path}: could not be reopened for reading.")
+            raise InputError(f"footage {self.path}: could not be reopened for reading.")
         pos = 0
         if start > 0:
             # Seek, and fall back to reading from the start when the backend cannot.
@@ -376,7 +378,7 @@ class VideoSource(FrameSource):
         cv2 = _cv2()
         frame_number = int(frame_number)
         if frame_number < 0 or (self.n_frames is not None and frame_number >= self.n_frames):
-            raise ValueError(
+            raise InputError(
                 f"frame: {frame_number} is outside the footage {self.path} "
                 f"(frames 0..{self.last_frame}); choose a frame inside that range."
             )
@@ -390,7 +392,7 @@ class VideoSource(FrameSource):
                 ok, pkt = self._pcap.read()
             img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED) if ok and pkt is not None else None
             if img is None:
-                raise ValueError(
+                raise InputError(
                     f"frame: {frame_number} of {self.path} could not be decoded; the file may "
                     f"be shorter than its header says."
                 )
@@ -407,7 +409,7 @@ class VideoSource(FrameSource):
             ok, img = cap.read()
             self._next = frame_number + 1 if ok else -1
         if not ok or img is None:
-            raise ValueError(
+            raise InputError(
                 f"frame: {frame_number} of {self.path} could not be decoded; the file may be "
                 f"shorter than its header says."
             )
@@ -473,12 +475,12 @@ class FolderSource(FrameSource):
         cv2 = _cv2()
         self.path = Path(path)
         if not self.path.is_dir():
-            raise FileNotFoundError(f"footage {self.path}: no such folder; check the path.")
+            raise InputFileNotFoundError(f"footage {self.path}: no such folder; check the path.")
         images = sorted(
             p for p in self.path.iterdir() if p.is_file() and p.suffix.lower() in IMAGE_EXTENSIONS
         )
         if not images:
-            raise ValueError(
+            raise InputError(
                 f"footage {self.path}: the folder holds no image files "
                 f"({', '.join(IMAGE_EXTENSIONS)}); point to the folder the frames were "
                 f"exported to."
@@ -491,13 +493,13 @@ class FolderSource(FrameSource):
                 unnumbered.append(p.name)
                 continue
             if k in numbered:
-                raise ValueError(
+                raise InputError(
                     f"footage {self.path}: files {numbered[k].name!r} and {p.name!r} both carry "
                     f"frame number {k}; keep one image sequence per folder."
                 )
             numbered[k] = p
         if not numbered:
-            raise ValueError(
+            raise InputError(
                 f"footage {self.path}: none of the {len(images)} image files has a frame number "
                 f"in its name (e.g. {images[0].name!r}); name them like frame_000123.png."
             )
@@ -507,11 +509,11 @@ class FolderSource(FrameSource):
         self.unnumbered_files = tuple(unnumbered)
         first = cv2.imread(str(self._files[0]), cv2.IMREAD_UNCHANGED)
         if first is None:
-            raise ValueError(
+            raise InputError(
                 f"footage {self._files[0]}: not an image OpenCV can read; re-export the frame."
             )
         if first.dtype not in (np.uint8, np.uint16):
-            raise ValueError(
+            raise InputError(
                 f"footage {self._files[0]}: pixels are {first.dtype}; only 8- and 16-bit "
                 f"integer images are supported, re-export as 8- or 16-bit."
             )
@@ -534,7 +536,7 @@ class FolderSource(FrameSource):
         try:
             return self._files[self._index[int(frame_number)]]
         except KeyError:
-            raise ValueError(
+            raise InputError(
                 f"frame: {frame_number} is not in {self.path} (frames {self.first_frame}.."
                 f"{self.last_frame}, {self.n_frames} files); choose an existing frame number."
             ) from None
@@ -543,9 +545,9 @@ class FolderSource(FrameSource):
         cv2 = _cv2()
         img = cv2.imread(str(p), cv2.IMREAD_UNCHANGED)
         if img is None:
-            raise ValueError(f"footage {p}: not an image OpenCV can read; re-export the frame.")
+            raise InputError(f"footage {p}: not an image OpenCV can read; re-export the frame.")
         if img.shape[:2] != self.shape or img.dtype != self._dtype:
-            raise ValueError(
+            raise InputError(
                 f"footage {p}: {img.shape[1]}x{img.shape[0]} {img.dtype} differs from the first "
                 f"frame's {self.shape[1]}x{self.shape[0]} {self._dtype}; all frames of a "
                 f"sequence must match."
@@ -592,12 +594,12 @@ class ArraySource(FrameSource):
     ):
         arr = frames if isinstance(frames, np.ndarray) else np.stack(list(frames))
         if arr.ndim not in (3, 4) or arr.shape[0] == 0:
-            raise ValueError(
+            raise InputError(
                 f"frames: expected an array of shape (n, h, w) or (n, h, w, 3) with n >= 1, got "
                 f"{arr.shape}; stack the frames along the first axis."
             )
         if arr.dtype not in (np.uint8, np.uint16):
-            raise ValueError(
+            raise InputError(
                 f"frames: expected uint8 or uint16 pixels, got {arr.dtype}; convert the frames."
             )
         self._arr = arr
@@ -613,7 +615,7 @@ class ArraySource(FrameSource):
     def read_color(self, frame_number: int) -> np.ndarray:
         i = int(frame_number) - self.first_frame
         if not (0 <= i < self.n_frames):
-            raise ValueError(
+            raise InputError(
                 f"frame: {frame_number} is outside the frames in memory ({self.first_frame}.."
                 f"{self.last_frame}); choose a frame inside that range."
             )
@@ -655,7 +657,7 @@ def open_source(path: str | os.PathLike) -> FrameSource:
     if p.is_dir():
         return FolderSource(p)
     if not p.exists():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"footage {p}: no such file or folder; check the path and the file name."
         )
     return VideoSource(p)
@@ -689,20 +691,20 @@ def check_frame_rate(source: FrameSource, fps: float | None = None) -> float:
         except (TypeError, ValueError):
             value = float("nan")
         if not math.isfinite(value) or value <= 0:
-            raise ValueError(
+            raise InputError(
                 f"fps: expected the capture rate in frames per second (a positive number), "
                 f"got {fps!r}."
             )
         return value
     cf = source.container_fps
     if cf is None:
-        raise ValueError(
+        raise InputError(
             f"fps: {source.name} carries no frame rate; pass the capture rate "
             f"(--fps on the command line, e.g. --fps 1000)."
         )
     lo, hi = PLAYBACK_RATE_RANGE
     if lo <= cf <= hi:
-        raise ValueError(
+        raise InputError(
             f"fps: {source.name} says {cf:g} frames/s, a playback rate; high-speed footage is "
             f"usually stored at a playback rate, not at the rate it was captured. Pass the "
             f"capture rate (--fps on the command line, e.g. --fps 1000)."

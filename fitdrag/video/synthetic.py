@@ -24,6 +24,8 @@ from pathlib import Path
 
 import numpy as np
 
+from fitdrag.errors import InputError
+
 #: ArUco dictionary used for synthetic markers (name of the cv2.aruco constant).
 MARKER_DICTIONARY = "DICT_4X4_50"
 
@@ -146,7 +148,7 @@ def _cv2():
 def _check_positive(name: str, value: float, unit: str, hint: str) -> float:
     value = float(value)
     if not math.isfinite(value) or value <= 0:
-        raise ValueError(f"{name}: expected a positive number {unit}, got {value!r}; {hint}.")
+        raise InputError(f"{name}: expected a positive number {unit}, got {value!r}; {hint}.")
     return value
 
 
@@ -178,7 +180,7 @@ def marker_corners_in_image(
         return np.asarray(pts, dtype=float)
     h = np.asarray(homography, dtype=float)
     if h.shape != (3, 3):
-        raise ValueError(
+        raise InputError(
             f"homography: expected a 3x3 matrix, got shape {h.shape}; pass the world-to-image "
             f"plane homography."
         )
@@ -316,13 +318,13 @@ class _Trajectory:
         try:
             xs, ys = (np.asarray(v, dtype=float) for v in trajectory)
         except (TypeError, ValueError) as exc:
-            raise ValueError(
+            raise InputError(
                 "trajectory: expected a callable t -> (x_px, y_px) or a pair of arrays "
                 f"(x_px, y_px) with one value per frame, got {type(trajectory).__name__}; "
                 "pass one of those."
             ) from exc
         if xs.shape != (n_frames,) or ys.shape != (n_frames,):
-            raise ValueError(
+            raise InputError(
                 f"trajectory: arrays of shape {xs.shape} and {ys.shape}, expected ({n_frames},) "
                 f"each (one position per frame); pass one mid-exposure position per frame."
             )
@@ -383,21 +385,21 @@ class FlightRenderer:
     ):
         self.n_frames = int(n_frames)
         if self.n_frames < 1:
-            raise ValueError(f"n_frames: expected at least 1, got {n_frames!r}; ask for a frame.")
+            raise InputError(f"n_frames: expected at least 1, got {n_frames!r}; ask for a frame.")
         self.fps = _check_positive("fps", fps, "[1/s]", "give the capture rate")
         self.radius = _check_positive("radius_px", radius_px, "[px]", "give the ball radius")
         if exposure is None:
             exposure = 0.5 / self.fps
         self.exposure = float(exposure)
         if not (0.0 <= self.exposure <= 1.0 / self.fps):
-            raise ValueError(
+            raise InputError(
                 f"exposure: {exposure!r} s is outside 0..1/fps = {1 / self.fps:g} s; an exposure "
                 f"cannot be longer than the frame interval."
             )
         if bit_depth not in (8, 16):
-            raise ValueError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
+            raise InputError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
         if len(shape) != 2 or min(shape) < 8:
-            raise ValueError(
+            raise InputError(
                 f"shape: expected (height, width) of at least 8 px each, got {shape!r}."
             )
         self.shape = (int(shape[0]), int(shape[1]))
@@ -416,7 +418,7 @@ class FlightRenderer:
         self.seed = int(seed)
         self._homography = None if homography is None else np.asarray(homography, dtype=float)
         if trajectory_in_world and self._homography is None:
-            raise ValueError(
+            raise InputError(
                 "trajectory_in_world=True needs a homography (world -> image); pass one or give "
                 "the trajectory in pixels."
             )
@@ -430,7 +432,7 @@ class FlightRenderer:
         corners = {}
         for m in markers:
             if not (0 <= int(m.marker_id) < 50):
-                raise ValueError(
+                raise InputError(
                     f"markers: id {m.marker_id!r} is outside {MARKER_DICTIONARY} (0..49); "
                     f"choose an id from 0 to 49."
                 )
@@ -556,7 +558,7 @@ class FlightRenderer:
     def clean_frame(self, k: int) -> np.ndarray:
         """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale)."""
         if not (0 <= k < self.n_frames):
-            raise ValueError(f"frame: {k!r} is outside 0..{self.n_frames - 1}.")
+            raise InputError(f"frame: {k!r} is outside 0..{self.n_frames - 1}.")
         img = self._scene_behind.copy()
         xs, ys = self._positions(self._sub_times(k))
         cov, rad, (x0, y0) = self._ball_patch(xs, ys)
@@ -786,14 +788,14 @@ def write_video(frames, path, fps: float, *, quality: int = 90, overwrite: bool 
     path = Path(path)
     fps = _check_positive("fps", fps, "[1/s]", "give the frame rate to write")
     if path.exists() and not overwrite:
-        raise ValueError(f"{path}: file exists; pass overwrite=True to replace it.")
+        raise InputError(f"{path}: file exists; pass overwrite=True to replace it.")
     writer = None
     n = 0
     try:
         for img in frames:
             img = np.asarray(img)
             if img.dtype != np.uint8:
-                raise ValueError(
+                raise InputError(
                     f"frames: video frames must be uint8, got {img.dtype}; use write_frames for "
                     f"16-bit footage."
                 )
@@ -808,9 +810,9 @@ def write_video(frames, path, fps: float, *, quality: int = 90, overwrite: bool 
                     [cv2.VIDEOWRITER_PROP_QUALITY, int(quality), cv2.VIDEOWRITER_PROP_IS_COLOR, 1],
                 )
                 if not writer.isOpened():
-                    raise ValueError(f"{path}: cannot open a Motion-JPEG writer there.")
+                    raise InputError(f"{path}: cannot open a Motion-JPEG writer there.")
             elif img.shape != shape:
-                raise ValueError(
+                raise InputError(
                     f"frames: frame {n} has shape {img.shape}, frame 0 had {shape}; all frames "
                     f"must match."
                 )
@@ -822,7 +824,7 @@ def write_video(frames, path, fps: float, *, quality: int = 90, overwrite: bool 
         if writer is not None:
             writer.release()
     if n == 0:
-        raise ValueError("frames: nothing to write; pass at least one frame.")
+        raise InputError("frames: nothing to write; pass at least one frame.")
     return path
 
 
@@ -864,11 +866,11 @@ def write_frames(
     cv2 = _cv2()
     ext = ext.lower().lstrip(".")
     if ext not in ("png", "tif", "tiff", "jpg", "jpeg"):
-        raise ValueError(f"ext: {ext!r} is not supported; use png, tif, tiff, jpg or jpeg.")
+        raise InputError(f"ext: {ext!r} is not supported; use png, tif, tiff, jpg or jpeg.")
     if bit_depth not in (None, 8, 16):
-        raise ValueError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
+        raise InputError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
     if bit_depth == 16 and ext in ("jpg", "jpeg"):
-        raise ValueError("bit_depth: JPEG files hold 8 bits only; use png or tif for 16-bit.")
+        raise InputError("bit_depth: JPEG files hold 8 bits only; use png or tif for 16-bit.")
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     out = []
@@ -880,11 +882,11 @@ def write_frames(
         elif depth == 8 and img.dtype == np.uint16:
             img = np.rint(img / 257.0).astype(np.uint8)
         elif img.dtype not in (np.uint8, np.uint16):
-            raise ValueError(f"frames: frame {i} is {img.dtype}; give uint8 or uint16 frames.")
+            raise InputError(f"frames: frame {i} is {img.dtype}; give uint8 or uint16 frames.")
         p = folder / f"{prefix}{first + i:0{digits}d}.{ext}"
         # TIFF without compression, as high-speed cameras write it (and fast to read).
         params = [cv2.IMWRITE_TIFF_COMPRESSION, 1] if ext in ("tif", "tiff") else []
         if not cv2.imwrite(str(p), img, params):
-            raise ValueError(f"{p}: could not write the image; check the folder is writable.")
+            raise InputError(f"{p}: could not write the image; check the folder is writable.")
         out.append(p)
     return out

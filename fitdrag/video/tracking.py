@@ -29,6 +29,8 @@ from typing import Any
 
 import numpy as np
 
+from fitdrag.errors import InputError, InputFileNotFoundError
+
 __all__ = [
     "FootageTrack",
     "footage_sha256",
@@ -70,7 +72,7 @@ def parse_reference(text: str) -> tuple[float, float, float, float, float]:
     """
     vals = _numbers(text)
     if vals is None or len(vals) != 5:
-        raise ValueError(
+        raise InputError(
             f"--reference: expected X1,Y1,X2,Y2,METRES (five numbers separated by commas: two "
             f"image points in px and their distance apart in m), got {text!r}; e.g. "
             f"--reference 102.5,640,1180,655.5,1.000."
@@ -88,7 +90,7 @@ def parse_origin(text: str) -> tuple[float, float]:
     """
     vals = _numbers(text)
     if vals is None or len(vals) != 2:
-        raise ValueError(
+        raise InputError(
             f"--origin: expected X_PX,Y_PX (two numbers separated by a comma, image pixels, "
             f"y down), got {text!r}; e.g. --origin 12,790."
         )
@@ -245,7 +247,7 @@ def _calibration(source, *, scale, origin, rotation, reference, markers, marker_
             )
         except ValueError as exc:
             if str(exc).startswith("markers: no "):
-                raise ValueError(
+                raise InputError(
                     f"{exc} (looked in frame {n} of {source.name}; choose another with "
                     f"--marker-frame)"
                 ) from None
@@ -372,7 +374,7 @@ def track_footage(
         or not isinstance(scale_uncertainty, int | float | np.floating | np.integer)
         or not (0.0 <= scale_uncertainty < 1.0)
     ):
-        raise ValueError(
+        raise InputError(
             f"--scale-uncertainty: a relative standard uncertainty must be >= 0 and < 1, got "
             f"{scale_uncertainty!r}; e.g. 0.001 for 0.1 %."
         )
@@ -380,19 +382,19 @@ def track_footage(
              if v is not None]  # fmt: skip
     if len(given) != 1:
         what = "none" if not given else " and ".join(given)
-        raise ValueError(
+        raise InputError(
             f"calibration: give exactly one of scale (m/px, with origin), reference "
             f"(X1,Y1,X2,Y2,METRES) or markers (the markers' side in m); got {what}."
         )
     if markers is not None:
         if origin is not None or rotation:
-            raise ValueError(
+            raise InputError(
                 "--origin/--rotation: they apply to --scale and --reference only; with "
                 "--markers the markers set the origin and the horizontal (give a "
                 "--marker-layout for a world frame of your own)."
             )
     elif marker_layout is not None or marker_frame is not None:
-        raise ValueError(
+        raise InputError(
             "--marker-layout/--marker-frame: they apply to --markers only; drop them or "
             "calibrate with --markers SIZE_M."
         )
@@ -401,13 +403,13 @@ def track_footage(
     except (TypeError, ValueError):
         rot = float("nan")
     if not math.isfinite(rot):
-        raise ValueError(f"rotation: expected a finite angle in degrees, got {rotation!r}.")
+        raise InputError(f"rotation: expected a finite angle in degrees, got {rotation!r}.")
     origin_px = _as_origin(origin) if origin is not None else None
     ref = _as_reference(reference) if reference is not None else None
     if marker_frame is not None and (
         isinstance(marker_frame, bool) or not isinstance(marker_frame, int | np.integer)
     ):
-        raise ValueError(f"--marker-frame: expected a frame number, got {marker_frame!r}.")
+        raise InputError(f"--marker-frame: expected a frame number, got {marker_frame!r}.")
 
     lens_file = None
     if lens is not None and not isinstance(lens, LensModel):
@@ -426,7 +428,7 @@ def track_footage(
         rate = check_frame_rate(source, fps)
         h, w = source.shape
         if lens is not None and tuple(lens.image_size) != (w, h):
-            raise ValueError(
+            raise InputError(
                 f"--lens: the lens model is for {lens.image_size[0]}x{lens.image_size[1]} px "
                 f"images but the footage is {w}x{h} px; calibrate the lens at the footage's "
                 f"resolution."
@@ -446,7 +448,7 @@ def track_footage(
 
     n_found = len(det)
     if n_found < MIN_POINTS:
-        raise ValueError(
+        raise InputError(
             f"{name}: the specimen was found in {n_found} frame(s), at least "
             f"{MIN_POINTS} are needed for a track; check the frame range (--start/--stop) "
             f"and that the specimen moves against a steady background."
@@ -563,7 +565,7 @@ def footage_sha256(path: str | os.PathLike) -> str:
 
     p = Path(path)
     if not p.exists():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"footage {p}: no such file or folder; check the path and the file name."
         )
     if not p.is_dir():
