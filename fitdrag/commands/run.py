@@ -80,7 +80,7 @@ def register(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.run.jobs import load_job
+    from fitdrag.run.job_file import load_job
 
     job = load_job(args.job)
     progress = (not args.quiet) and sys.stderr.isatty()

@@ -31,6 +31,8 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from fitdrag._files import write_text_atomic
+
 #: Default file name of the records database in a job's output directory.
 DEFAULT_FILENAME = "records.sqlite"
 
@@ -454,7 +456,8 @@ class Records:
         w.writeheader()
         for rec in self.list():
             w.writerow(rec.to_row())
-        atomic_write_text(path, buf.getvalue())
+        # checked above; an existing file is replaced only with force
+        write_text_atomic(path, buf.getvalue(), force=True)
         return path
 
 
@@ -479,23 +482,3 @@ class _Connection:
     def __exit__(self, *exc) -> None:
         if self.con is not None:
             self.con.close()
-
-
-def temporary_path(final: str | os.PathLike) -> Path:
-    """A temporary file name beside ``final`` (same folder, so os.replace is atomic)."""
-    final = Path(final)
-    return final.with_name(f".{final.name}.{os.getpid()}.tmp")
-
-
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file and os.replace."""
-    path = Path(path)
-    tmp = temporary_path(path)
-    try:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    finally:
-        tmp.unlink(missing_ok=True)
