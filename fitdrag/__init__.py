@@ -55,7 +55,7 @@ _WHERE = {
     "render_certificate": "fitdrag.report.certificate",
     "DemoResult": "fitdrag.run.demo",
     "run_demo": "fitdrag.run.demo",
-    "load_job": "fitdrag.run.jobs",
+    "load_job": "fitdrag.run.job_file",
     "Records": "fitdrag.run.records",
     "read_track": "fitdrag.tracks.csv_file",
     "write_track": "fitdrag.tracks.csv_file",

@@ -5,6 +5,9 @@ the content is written to a temporary file in the destination folder, flushed, g
 usual permissions, and only then moved into place, so a crash leaves either the old file
 or the new one, never a fragment.  Without ``force`` an existing file is refused, and the
 final step uses a hard link so that a file appearing meanwhile is not clobbered either.
+
+:func:`temporary_path` names a temporary file beside a final one, for writers that render
+several files first and publish them together later (the certificate and its record).
 """
 
 from __future__ import annotations
@@ -14,9 +17,15 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
-from fitdrag.errors import OutputExistsError
+from fitdrag.errors import InputError, InputFileNotFoundError, OutputExistsError
 
-__all__ = ["OutputExistsError", "check_output", "write_atomic", "write_text_atomic"]
+__all__ = [
+    "OutputExistsError",
+    "check_output",
+    "temporary_path",
+    "write_atomic",
+    "write_text_atomic",
+]
 
 
 def _umask() -> int:
@@ -33,10 +42,10 @@ def check_output(path: str | os.PathLike, *, force: bool = False) -> Path:
     """
     p = Path(path)
     if p.is_dir():
-        raise ValueError(f"{p}: is a directory; give the path of the output file to write.")
+        raise InputError(f"{p}: is a directory; give the path of the output file to write.")
     parent = p.parent if str(p.parent) else Path(".")
     if not parent.is_dir():
-        raise FileNotFoundError(
+        raise InputFileNotFoundError(
             f"{p}: the directory {str(parent)!r} does not exist; create it first or choose "
             f"another output path."
         )
@@ -104,3 +113,13 @@ def write_text_atomic(path: str | os.PathLike, text: str, *, force: bool = False
     return write_atomic(
         path, lambda t: t.write_text(text, encoding="utf-8", newline="\n"), force=force
     )
+
+
+def temporary_path(final: str | os.PathLike) -> Path:
+    """A temporary file name beside ``final`` (same folder, so ``os.replace`` is atomic).
+
+    The name is ``.NAME.PID.tmp``: hidden, unique to this process, and recognisable as a
+    leftover if the process dies before renaming it.
+    """
+    final = Path(final)
+    return final.with_name(f".{final.name}.{os.getpid()}.tmp")

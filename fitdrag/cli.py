@@ -31,14 +31,13 @@ Exit codes:
   6  certificate issued; the decision is a conditional fail (guarded acceptance)
 """
 
-# Built-in exceptions that library code still raises for bad input where it has not yet
-# moved to fitdrag.errors.InputError (the remaining `raise ValueError(` sites and the like).
-# They exit 2 with one line, as an InputError does.  Narrow this tuple (to empty) once every
-# raise site uses the classes of fitdrag.errors; then any of them would be a bug (exit 1).
-_NOT_YET_CONVERTED_INPUT_ERRORS: tuple[type[BaseException], ...] = (
-    ValueError,
+# The file system's own refusals of a path the user gave (no such file, a folder where a file
+# was expected, no permission) are bad input too: they exit 2 with one line.  Every other
+# exception that is not a fitdrag.errors.FitdragError is a bug (exit 1, with its traceback).
+_FILE_SYSTEM_REFUSALS: tuple[type[BaseException], ...] = (
     FileNotFoundError,
     IsADirectoryError,
+    NotADirectoryError,
     PermissionError,
 )
 
@@ -111,7 +110,7 @@ def main(argv: list[str] | None = None) -> int:
     except FitdragError as exc:
         print(f"fitdrag {args.command}: error: {exc}", file=sys.stderr)
         return exc.exit_code
-    except _NOT_YET_CONVERTED_INPUT_ERRORS as exc:
+    except _FILE_SYSTEM_REFUSALS as exc:
         print(f"fitdrag {args.command}: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # output piped into a pager or head

@@ -172,9 +172,7 @@ def _raise(exc):
       "fitdrag probe: error: the fit did not converge\n"),
      (_raise(errors.FitdragError("refused on purpose")), 1,
       "fitdrag probe: error: refused on purpose\n"),
-     # built-in types still raised for bad input where the library has not moved to
-     # InputError yet: exit 2 as well, until that mapping is narrowed
-     (_raise(ValueError("mass: bad; fix it.")), 2, "fitdrag probe: error: mass: bad; fix it.\n"),
+     # the file system's own refusals of a path are bad input too
      (_raise(FileNotFoundError("x.csv: no such file")), 2,
       "fitdrag probe: error: x.csv: no such file\n"),
      (_raise(IsADirectoryError("out/: is a folder")), 2,
@@ -194,7 +192,7 @@ def test_exit_code_mapping(monkeypatch, capsys, behaviour, code, err):
 
 
 @pytest.mark.parametrize("exc", [RuntimeError("bug"), KeyError("bug"), TypeError("bug"),
-                                 LookupError("bug")])  # fmt: skip
+                                 LookupError("bug"), ValueError("bug")])  # fmt: skip
 def test_unexpected_exception_propagates(monkeypatch, exc):
     """regression: a programming error is not disguised as bad input (it propagates; the
     interpreter exits 1 with a traceback)."""

@@ -15,7 +15,7 @@ import pytest
 import reference as ref
 
 from fitdrag.cli import main
-from fitdrag.run.jobs import TEMPLATE
+from fitdrag.run.job_template import TEMPLATE
 from fitdrag.run.records import Records
 
 pypdf = pytest.importorskip("pypdf")
@@ -330,7 +330,7 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
     (hashlib) is in the JSON, the record and the certificate; the length scale's relative
     uncertainty in the budget is the marker calibration's; the track equals the one
     `fitdrag track` writes with the same calibration."""
-    from fitdrag.run.jobs import load_job
+    from fitdrag.run.job_file import load_job
     from fitdrag.run.pipeline import read_throws
     from fitdrag.tracks.csv_file import read_track
 
@@ -377,7 +377,7 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
 def test_footage_scale_uncertainty_stated_in_the_job_wins(clip, tmp_path):
     """regression: [camera] scale_relative_uncertainty, when stated, is used for footage
     throws instead of their calibration's value."""
-    from fitdrag.run.jobs import load_job
+    from fitdrag.run.job_file import load_job
     from fitdrag.run.pipeline import length_scale_uncertainty, read_throws
 
     job = load_job(_footage_job(

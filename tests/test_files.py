@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from fitdrag._files import OutputExistsError, write_atomic, write_text_atomic
+from fitdrag._files import OutputExistsError, temporary_path, write_atomic, write_text_atomic
 
 
 def test_writes_and_refuses_to_overwrite(tmp_path):
@@ -38,3 +38,15 @@ def test_bad_destinations(tmp_path):
         write_text_atomic(tmp_path, "x")
     with pytest.raises(FileNotFoundError, match="does not exist; create it first"):
         write_text_atomic(tmp_path / "no" / "such.txt", "x")
+
+
+def test_temporary_path_is_hidden_beside_the_final_file(tmp_path):
+    """regression: the temporary name is in the final file's folder (so os.replace is a
+    rename within one file system, POSIX rename(2)), hidden, per process, and not the final
+    name."""
+    import os
+
+    final = tmp_path / "FD-2026-000001.pdf"
+    tmp = temporary_path(final)
+    assert tmp.parent == final.parent and tmp != final
+    assert tmp.name == f".FD-2026-000001.pdf.{os.getpid()}.tmp"

@@ -1,6 +1,10 @@
-"""Tests of fitdrag.report.certificate: rounding, PDF contents (extracted with pypdf), PNG."""
+"""Tests of fitdrag.report.certificate: PDF contents (extracted with pypdf), PNG."""
 
 from __future__ import annotations
+
+import dataclasses
+import datetime
+import math
 
 import numpy as np
 import pytest
@@ -8,14 +12,27 @@ import pytest
 from fitdrag.report.certificate import (
     CAUTION,
     SAFETY,
-    format_sig,
-    format_with_uncertainty,
-    formatter_for,
     render_certificate,
     write_certificate,
 )
+from fitdrag.report.content import (
+    CameraSettings,
+    CertificateContent,
+    Conditions,
+    Conformity,
+    Estimate,
+    FitFacts,
+    Issue,
+    ItemTested,
+    Laboratory,
+    Method,
+    Result,
+    TestDetails,
+)
+from fitdrag.report.numbers import formatter_for
 from fitdrag.report.plots import ThrowCurves
 from fitdrag.uncertainty.decision import Specification, decide
+from fitdrag.uncertainty.gum import Budget, BudgetLine
 
 pypdf = pytest.importorskip("pypdf")
 
@@ -23,143 +40,89 @@ HASH_JOB = "0123456789abcdef" * 4
 HASH_TRACK = "fedcba9876543210" * 4
 
 
-@pytest.mark.parametrize(
-    "value, u, expected",
-    [
-        # GUM (JCGM 100:2008) 7.2.2: m_S = 100.02147 g with u_c = 0.35 mg
-        (100.02147, 0.00035, ("100.02147", "0.00035")),
-        # GUM 7.2.4: m_S = (100.02147 ± 0.00079) g with U = 0.79 mg
-        (100.02147, 0.00079, ("100.02147", "0.00079")),
-        # common practice, no source: two significant digits in U, value to the same place
-        (0.4700475, 0.011843, ("0.470", "0.012")),
-        (0.47004, 0.00996, ("0.470", "0.010")),  # rounding carries into a new digit
-        (0.4705, 0.012, ("0.471", "0.012")),  # half up
-        (-0.0001, 0.01, ("0.000", "0.010")),  # no negative zero
-        (12345.0, 1234.0, ("12300", "1200")),
-        (1.5, 0.0, ("1.50000", "0")),
-    ],
-)
-def test_rounding_to_uncertainty(value, u, expected):
-    """published-value (GUM 7.2.2, 7.2.4) and closed-form rounding cases."""
-    assert format_with_uncertainty(value, u) == expected
-
-
-def test_format_helpers():
-    """regression: significant-digit formatting and the shared formatter."""
-    assert format_sig(0.0022009, 2) == "0.0022"
-    assert format_sig(16331183.0, 2) == "1.6e+07"
-    assert format_sig(float("inf")) == "∞"
-    assert formatter_for(0.0118)(0.44) == "0.440"
-
-
-def _report(decision_value=0.4712, rule="guarded", replaces=None):
+def _content(decision_value=0.4712, rule="guarded", replaces=None):
     big_u, uc = 0.0118, 0.0059
     spec = Specification.from_tolerance(0.47, 0.03, reference="synthetic spec S-1")
     v = decide(decision_value, big_u, spec, rule, standard_uncertainty=uc)
-    conf = v.to_dict()
-    conf["statement"] = v.statement(formatter_for(big_u))
-    return {
-        "software_version": "0.1.0",
-        "certificate": {
-            "number": "FD-2026-000042",
-            "issued_at": "2026-03-05T10:11:12+01:00",
-            "replaces": replaces,
-        },  # fmt: skip
-        "laboratory": {
-            "name": "Example Flight Test Laboratory (synthetic)",
-            "address": "1 Sample Road, Testville",
-        },  # fmt: skip
-        "test": {
-            "customer": "Fictitious Sports Goods Ltd",
-            "operator": "A. Tester",
-            "approved_by": "B. Reviewer",
-            "date": "2026-03-04",
-        },  # fmt: skip
-        "specimen": {
-            "id": "SYN-BALL-001",
-            "description": "Training ball 40 mm (synthetic)",
-            "mass": {"value": 0.0027, "standard_uncertainty": 1e-5},
-            "diameter": {"value": 0.04, "standard_uncertainty": 5e-5},
-        },  # fmt: skip
-        "conditions": {
-            "temperature": {"value": 21.0, "standard_uncertainty": 0.3},
-            "pressure": {"value": 100800.0, "standard_uncertainty": 50.0},
-            "relative_humidity": {"value": 45.0, "standard_uncertainty": 3.0},
-            "air_density": {"value": 1.1892, "standard_uncertainty": 0.0015},
-            "air_viscosity": {"value": 1.818e-5},
-            "gravity": {"value": 9.80677, "standard_uncertainty": 5e-4},
-        },
-        "camera": {
-            "fps": {"value": 500.0, "standard_uncertainty": 0.05},
-            "scale_relative_uncertainty": 0.002,
-        },  # fmt: skip
-        "method": {
-            "model_equation": "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v| v",
-            "integrator": "adaptive RK5(4)",
-            "fit_method": "weighted least squares",
-            "uncertainty_method": "GUM",
-        },  # fmt: skip
-        "result": {
-            "drag_coefficient": decision_value,
-            "expanded_uncertainty": big_u,
-            "combined_standard_uncertainty": uc,
-            "coverage_factor": 2.0,
-            "coverage_probability": 0.9545,
-            "effective_degrees_of_freedom": 250.0,
-        },  # fmt: skip
-        "fit": {
-            "throws": [{}],
-            "reynolds_number": {"min": 1.5e4, "max": 2.6e4, "median": 2.1e4},
-            "launch": {
-                "speed": {"value": 8.94, "standard_uncertainty": 0.002},
-                "angle": {"value": 26.5, "standard_uncertainty": 0.01},
-            },  # fmt: skip
-            "points": {
-                "used": 298,
-                "total": 300,
-                "rejected": [50, 120],
-                "rejection_reasons": {"50": "residual 30 sigma"},
-            },  # fmt: skip
-            "residuals": {
-                "rms": 5e-4,
-                "rms_x": 4e-4,
-                "rms_y": 6e-4,
-                "noise_model": "white",
-                "lag1_autocorrelation": 0.02,
-            },  # fmt: skip
-            "identifiability": {"identifiable": True},
-        },
-        "uncertainty_budget": {
-            "combined_standard_uncertainty": uc,
-            "lines": [
-                {
-                    "name": "statistical",
-                    "description": "statistical (fit)",
-                    "value": 0.0,
-                    "standard_uncertainty": 0.002,
-                    "unit": "",
-                    "sensitivity_coefficient": 1.0,
-                    "contribution": 0.002,
-                    "share": 0.115,
-                    "degrees_of_freedom": 296,
-                },
-                {
-                    "name": "mass",
-                    "description": "specimen mass",
-                    "value": 0.0027,
-                    "standard_uncertainty": 1e-5,
-                    "unit": "kg",
-                    "sensitivity_coefficient": 171.0,
-                    "contribution": 0.00171,
-                    "share": 0.084,
-                    "degrees_of_freedom": "inf",
-                },
-            ],
-        },  # fmt: skip
-        "monte_carlo": None,
-        "conformity": conf,
-        "inputs": {"sha256": {"/lab/jobs/job.toml": HASH_JOB, "/lab/jobs/throw1.csv": HASH_TRACK}},
-    }
+    budget = Budget(
+        value=decision_value,
+        lines=(
+            BudgetLine("statistical", 0.0, 0.002, "", 1.0, 0.002, 0.115, 296.0, "A", "normal",
+                       description="statistical (fit)"),
+            BudgetLine("mass", 0.0027, 1e-5, "kg", 171.0, 0.00171, 0.084, math.inf, "B",
+                       "normal", description="specimen mass"),
+        ),
+        combined_standard_uncertainty=uc,
+        effective_dof=250.0,
+        coverage_probability=0.9545,
+        coverage_factor=2.0,
+        expanded_uncertainty=big_u,
+    )  # fmt: skip
+    return CertificateContent(
+        software_version="0.1.0",
+        issue=Issue("FD-2026-000042", "2026-03-05T10:11:12+01:00", replaces),
+        laboratory=Laboratory(
+            name="Example Flight Test Laboratory (synthetic)",
+            address="1 Sample Road, Testville",
+        ),
+        test=TestDetails(
+            customer="Fictitious Sports Goods Ltd",
+            operator="A. Tester",
+            approved_by="B. Reviewer",
+            date=datetime.date(2026, 3, 4),
+        ),
+        specimen=ItemTested(
+            id="SYN-BALL-001",
+            description="Training ball 40 mm (synthetic)",
+            shape="sphere",
+            mass=Estimate(0.0027, 1e-5),
+            added_mass_coefficient=Estimate(0.5, 0.0),
+            diameter=Estimate(0.04, 5e-5),
+        ),
+        conditions=Conditions(
+            temperature=Estimate(21.0, 0.3),
+            pressure=Estimate(100800.0, 50.0),
+            relative_humidity=Estimate(45.0, 3.0),
+            air_density=Estimate(1.1892, 0.0015),
+            air_viscosity=1.818e-5,
+            gravity=Estimate(9.80677, 5e-4),
+        ),
+        camera=CameraSettings(fps=Estimate(500.0, 0.05), scale_relative_uncertainty=0.002),
+        method=Method(
+            model_equation="(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v| v",
+            integrator="adaptive RK5(4)",
+            fit_method="weighted least squares",
+            uncertainty_method="GUM",
+        ),
+        result=Result(
+            drag_coefficient=decision_value,
+            expanded_uncertainty=big_u,
+            combined_standard_uncertainty=uc,
+            coverage_factor=2.0,
+            coverage_probability=0.9545,
+            effective_degrees_of_freedom=250.0,
+        ),
+        fit=FitFacts(
+            throws=1,
+            reynolds_number=(1.5e4, 2.6e4, 2.1e4),
+            launch_speed=Estimate(8.94, 0.002),
+            launch_angle=Estimate(26.5, 0.01),
+            points_used=298,
+            points_total=300,
+            rejected=(50, 120),
+            rejection_reasons={"50": "residual 30 sigma"},
+            residual_rms=5e-4,
+            residual_rms_x=4e-4,
+            residual_rms_y=6e-4,
+            noise_model="white",
+            lag1_autocorrelation=0.02,
+            identifiable=True,
+        ),
+        budget=budget,
+        monte_carlo=None,
+        conformity=Conformity(v, v.statement(formatter_for(big_u))),
+        input_hashes={"/lab/jobs/job.toml": HASH_JOB, "/lab/jobs/throw1.csv": HASH_TRACK},
+    )
 
 
 def _curves():
@@ -180,7 +143,7 @@ def _text(pdf_path) -> tuple[int, str]:
 def rendered(tmp_path_factory):
     d = tmp_path_factory.mktemp("cert")
     pdf, png = d / "c.pdf", d / "c.png"
-    n = render_certificate(_report(), pdf, png, curves=_curves(), dpi=100)
+    n = render_certificate(_content(), pdf, png, curves=_curves(), dpi=100)
     return n, pdf, png
 
 
@@ -211,7 +174,7 @@ def test_pdf_holds_number_result_decision_and_hashes(rendered):
 def test_conditional_decision_and_replacement(tmp_path):
     """regression: a conditional fail and a replacement note appear as such."""
     pdf = tmp_path / "c.pdf"
-    render_certificate(_report(0.505, replaces="FD-2026-000007"), pdf, curves=_curves())
+    render_certificate(_content(0.505, replaces="FD-2026-000007"), pdf, curves=_curves())
     flat = " ".join(_text(pdf)[1].split())
     assert "Decision: CONDITIONAL FAIL" in flat
     assert "replaces certificate FD-2026-000007, which is withdrawn" in flat
@@ -234,13 +197,12 @@ def test_png_is_page_one(rendered):
 def test_write_certificate_is_atomic_and_refuses_overwrite(tmp_path):
     """regression: a failed render leaves no file (final or temporary); no silent overwrite."""
     pdf, png = tmp_path / "c.pdf", tmp_path / "c.png"
-    bad = _report()
-    del bad["result"]
-    with pytest.raises(KeyError):
+    bad = dataclasses.replace(_content(), result=None)
+    with pytest.raises(AttributeError):
         write_certificate(bad, pdf, png)
     assert list(tmp_path.iterdir()) == []
-    assert write_certificate(_report(), pdf, png, curves=_curves()) >= 1
+    assert write_certificate(_content(), pdf, png, curves=_curves()) >= 1
     with pytest.raises(ValueError, match=r"c\.pdf: already exists; choose another name"):
-        write_certificate(_report(), pdf, png)
-    write_certificate(_report(), pdf, png, force=True)
+        write_certificate(_content(), pdf, png)
+    write_certificate(_content(), pdf, png, force=True)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["c.pdf", "c.png"]

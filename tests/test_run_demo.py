@@ -16,7 +16,7 @@ import reference
 
 from fitdrag.cli import main
 from fitdrag.run.demo import TRUE_CD, job_text, run_demo
-from fitdrag.run.jobs import load_job
+from fitdrag.run.job_file import load_job
 from fitdrag.run.records import Records
 
 
@@ -152,6 +152,6 @@ def test_job_text_is_a_valid_footage_job(tmp_path):
     job = load_job(p)
     (th,) = job.throws
     assert th.kind == "footage" and th.path == tmp_path / "footage" / "demo_throw.avi"
-    assert th.options["markers"] == pytest.approx(0.1)
+    assert th.markers == pytest.approx(0.1)
     assert job.number_prefix == "DEMO"
-    assert str(job.test["date"]) == "2026-01-02"
+    assert str(job.test.date) == "2026-01-02"

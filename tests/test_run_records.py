@@ -11,12 +11,12 @@ from pathlib import Path
 
 import pytest
 
+from fitdrag._files import temporary_path
 from fitdrag.run.records import (
     PendingFile,
     Records,
     format_number,
     parse_number,
-    temporary_path,
 )
 
 WHEN = datetime(2026, 3, 4, 10, 0, tzinfo=UTC)

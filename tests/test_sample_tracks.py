@@ -13,7 +13,7 @@ import pytest
 import reference
 from scipy.integrate import solve_ivp
 
-from fitdrag.run.jobs import load_job
+from fitdrag.run.job_file import load_job
 from fitdrag.tracks.csv_file import read_track
 from fitdrag.tracks.track import file_sha256
 
@@ -64,7 +64,7 @@ def test_every_job_file_parses(name):
     assert job.throws
     for th in job.throws:
         assert th.path.parent == SAMPLES and th.path.exists()
-    assert "fictitious" in job.laboratory["name"]
+    assert "fictitious" in job.laboratory.name
 
 
 def _air(tr):

@@ -26,7 +26,7 @@ def register(subparsers) -> argparse.ArgumentParser:
 
 
 def run(args) -> int:
-    from fitdrag.run.jobs import write_template
+    from fitdrag.run.job_template import write_template
 
     path = write_template(Path(args.path), force=args.force)
     print(f"wrote {path}; edit it, then run: fitdrag run {path}")

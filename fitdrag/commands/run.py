@@ -2,7 +2,7 @@
 
 A thin layer over :mod:`fitdrag.run.pipeline`, whose steps are:
 
-1. :func:`fitdrag.run.jobs.load_job` — read and validate the job file (nothing is written if it
+1. :func:`fitdrag.run.job_file.load_job` — read and validate the job file (nothing is written if it
    is wrong);
 2. read every throw's track, fit them together (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
@@ -84,20 +84,8 @@ def register(subparsers) -> argparse.ArgumentParser:
 # ---------------------------------------------------------------------------------------------
 
 
-def _convergence_errors() -> tuple[type[Exception], ...]:
-    """The pipeline's no-convergence exceptions: fitdrag.errors.ConvergenceError, and the
-    pipeline's own FitFailed while it is still a separate class (it becomes a subclass or
-    an alias of ConvergenceError)."""
-    from fitdrag.run import pipeline
-
-    fit_failed = getattr(pipeline, "FitFailed", ConvergenceError)
-    if issubclass(fit_failed, ConvergenceError):
-        return (ConvergenceError,)
-    return (ConvergenceError, fit_failed)
-
-
 def run(args) -> int:
-    from fitdrag.run.jobs import load_job
+    from fitdrag.run.job_file import load_job
     from fitdrag.run.pipeline import issue, measure, summary
 
     if args.monte_carlo is not None and args.monte_carlo < 0:
@@ -109,7 +97,7 @@ def run(args) -> int:
             job, monte_carlo=args.monte_carlo, adaptive=args.adaptive or None, seed=args.seed,
             workers=args.workers, progress=progress,
         )  # fmt: skip
-    except _convergence_errors() as exc:
+    except ConvergenceError as exc:
         print(f"fitdrag run: {exc}; no certificate issued.", file=sys.stderr)
         return ConvergenceError.exit_code
     print(summary(meas))

@@ -9,12 +9,8 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
-from typing import TYPE_CHECKING
 
 from fitdrag.errors import InputError, InputFileNotFoundError, OutputExistsError
-
-if TYPE_CHECKING:  # pragma: no cover - annotations only
-    import numpy as np
 
 NAME = "track"
 
@@ -125,73 +121,13 @@ def _write_atomic(path: Path, write, force: bool, check=None) -> None:
     write_atomic(path, write, force=force, check=check)
 
 
-def _stretch(img: np.ndarray) -> np.ndarray:
-    import numpy as np
-
-    f = np.asarray(img, dtype=float)
-    lo, hi = np.percentile(f, [0.5, 99.5])
-    if not hi > lo:
-        hi = lo + 1.0
-    return np.clip((f - lo) / (hi - lo), 0.0, 1.0)
-
-
-def preview_figure(image, det, cal, frame_number: int, summary: str):
-    """Figure of one frame with the detected track, markers and world axes drawn on it."""
-    import matplotlib
-    import numpy as np
-
-    matplotlib.use("Agg", force=False)
-    from matplotlib.figure import Figure
-
-    h, w = image.shape[:2]
-    width = min(14.0, 3.0 + w / 100.0)
-    fig = Figure(figsize=(width, 1.0 + 0.85 * width * h / w))
-    ax = fig.add_subplot(1, 1, 1)
-    ax.imshow(_stretch(image), cmap="gray", vmin=0, vmax=1, interpolation="nearest")
-    if len(det):
-        sc = ax.scatter(det.x_px, det.y_px, c=det.frame, s=9, cmap="viridis", marker="o",
-                        linewidths=0, label="detected centroid")  # fmt: skip
-        cb = fig.colorbar(sc, ax=ax, fraction=0.03, pad=0.01)
-        cb.set_label("frame")
-        here = np.flatnonzero(det.frame == frame_number)
-        if here.size:
-            i = int(here[0])
-            ax.plot(det.x_px[i], det.y_px[i], marker="+", ms=16, mew=1.5, color="tab:red",
-                    label=f"frame {frame_number}")  # fmt: skip
-    corners = cal.details.get("corners_px", {})
-    for mid, c in corners.items():
-        c = np.asarray(c)
-        used = mid in cal.details.get("ids", ())
-        colour = "tab:orange" if used else "tab:gray"
-        ax.plot(*np.vstack([c, c[:1]]).T, color=colour, lw=1.2)
-        ax.plot(c[3, 0], c[3, 1], "s", ms=4, color=colour)
-        ax.text(c[:, 0].mean(), c[:, 1].min() - 4, str(mid), color=colour, ha="center",
-                va="bottom", fontsize=8)  # fmt: skip
-    # world axes at the origin, a tenth of the frame width long
-    length = 0.1 * w * cal.scale
-    ox, oy = cal.world_to_pixel([0.0, length, 0.0], [0.0, 0.0, length])
-    if np.all(np.isfinite(ox)) and np.all(np.isfinite(oy)):
-        for k, name in ((1, "x"), (2, "y")):
-            ax.annotate("", xy=(ox[k], oy[k]), xytext=(ox[0], oy[0]),
-                        arrowprops={"arrowstyle": "->", "color": "tab:cyan", "lw": 1.5})  # fmt: skip
-            ax.text(ox[k], oy[k], f" {name}", color="tab:cyan", fontsize=9)
-    ax.set_xlim(-0.5, w - 0.5)
-    ax.set_ylim(h - 0.5, -0.5)
-    ax.set_xlabel("image x [px]")
-    ax.set_ylabel("image y [px] (down)")
-    ax.set_title(summary, fontsize=8, loc="left")
-    if len(det):
-        ax.legend(loc="upper right", fontsize=7, framealpha=0.7)
-    fig.tight_layout()
-    return fig
-
-
 # ------------------------------------------------------------------------------------------
 # The command
 # ------------------------------------------------------------------------------------------
 
 
 def run(args) -> int:
+    from fitdrag.report.track_preview import track_preview_figure
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
@@ -229,9 +165,7 @@ def run(args) -> int:
         n_show = ft.preview_frame
         with open_source(args.footage) as source:
             image = source.read(n_show)
-        fig = preview_figure(
-            image, ft.detections, ft.calibration, n_show, summary.replace("\n  ", "\n")
-        )
+        fig = track_preview_figure(ft, image)
         _write_atomic(preview, lambda p: fig.savefig(p, dpi=100, format="png"), args.force)
     print(summary)
     print(f"wrote {out}")

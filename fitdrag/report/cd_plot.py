@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from fitdrag.errors import InputError
+
 
 def cd_curve(result, *, n: int = 200, extend: float = 1.25):
     """Reynolds numbers, C_d and u(C_d) for the plot: the flight's Re range widened by ``extend``.
@@ -31,11 +33,11 @@ def cd_curve(result, *, n: int = 200, extend: float = 1.25):
     from fitdrag.fit.compare import drag_coefficient_at
 
     if not extend >= 1.0:
-        raise ValueError(f"extend: must be >= 1, got {extend!r}; 1 keeps the flight's range.")
+        raise InputError(f"extend: must be >= 1, got {extend!r}; 1 keeps the flight's range.")
     lo = result.diagnostics["reynolds_min"] / extend
     hi = result.diagnostics["reynolds_max"] * extend
     if not hi > lo > 0:
-        raise ValueError(
+        raise InputError(
             f"result: the fit's Reynolds range {lo!r}–{hi!r} is empty; the plot needs a "
             f"moving specimen."
         )

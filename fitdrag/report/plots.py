@@ -20,6 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from fitdrag.errors import InputError
+
 _REJECT_COLOUR = "tab:red"
 
 
@@ -59,19 +61,19 @@ class ThrowCurves:
         for name in ("t", "x", "y", "residual_x", "residual_y"):
             arr = np.asarray(getattr(self, name), dtype=float)
             if arr.shape != (n,):
-                raise ValueError(
+                raise InputError(
                     f"{name}: {arr.size} value(s) for {n} samples; give one per sample."
                 )
             object.__setattr__(self, name, arr)
         used = np.asarray(self.used, dtype=bool)
         if used.shape != (n,):
-            raise ValueError(f"used: {used.size} flag(s) for {n} samples; give one per sample.")
+            raise InputError(f"used: {used.size} flag(s) for {n} samples; give one per sample.")
         object.__setattr__(self, "used", used)
         m = len(np.asarray(self.fit_t))
         for name in ("fit_t", "fit_x", "fit_y"):
             arr = np.asarray(getattr(self, name), dtype=float)
             if arr.shape != (m,):
-                raise ValueError(f"{name}: expected {m} values like fit_t, got {arr.size}.")
+                raise InputError(f"{name}: expected {m} values like fit_t, got {arr.size}.")
             object.__setattr__(self, name, arr)
 
     def to_dict(self) -> dict:
@@ -124,7 +126,7 @@ def _as_curves(curves) -> list[ThrowCurves]:
         return curves_from_fit(curves)
     curves = list(curves)
     if not curves or not all(isinstance(c, ThrowCurves) for c in curves):
-        raise ValueError(
+        raise InputError(
             "curves: expected ThrowCurves (one per throw) or a FitResult; build them with "
             "curves_from_fit(result)."
         )

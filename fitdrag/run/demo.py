@@ -11,10 +11,11 @@ with a fixed seed, so every run on every machine sees the same frames.
 1. renders the footage (ArUco markers in the plane of flight, sensor noise, lamp flicker,
    background clutter, motion blur) to ``DIR/footage/demo_throw.avi`` with its exact truth
    in ``DIR/footage/demo_throw_truth.json`` — only on the first run (or with ``force``);
-2. runs ``fitdrag track`` on it: finds the markers and calibrates the image to metres
-   (``fitdrag.video.calibration``), detects the ball in every frame
-   (``fitdrag.video.detect``) and writes the track ``DIR/demo_track.csv`` and a picture of it
-   over one frame, ``DIR/demo_track_preview.png``;
+2. tracks it as ``fitdrag track`` does (:func:`fitdrag.video.tracking.track_footage`): finds
+   the markers and calibrates the image to metres (``fitdrag.video.calibration``), detects
+   the ball in every frame (``fitdrag.video.detect``) and writes the track
+   ``DIR/demo_track.csv`` and a picture of it over one frame, ``DIR/demo_track_preview.png``
+   (:func:`fitdrag.report.track_preview.track_preview_figure`);
 3. writes the job file ``DIR/demo_job.toml`` that describes the measurement (its throw
    names the footage and its marker calibration, so the certificate lists the footage's
    SHA-256);
@@ -45,6 +46,9 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
+
+from fitdrag._files import write_atomic, write_text_atomic
+from fitdrag.errors import ConvergenceError, InputError
 
 __all__ = [
     "DEFAULT_DIRECTORY",
@@ -284,11 +288,11 @@ def make_demo_footage(
 
     path = Path(path)
     if path.exists() and not overwrite:
-        raise ValueError(f"{path}: already exists; pass --force to render the footage again.")
+        raise InputError(f"{path}: already exists; pass --force to render the footage again.")
     sc = {**FOOTAGE, **(scene or {})}
     unknown = sorted(set(sc) - set(FOOTAGE))
     if unknown:
-        raise ValueError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.run.demo.FOOTAGE.")
+        raise InputError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.run.demo.FOOTAGE.")
     n = int(sc["frames"] if frames is None else frames)
     fps = sc["fps"]
     cond = _conditions()
@@ -381,20 +385,28 @@ def track_command(footage: str, output: str, preview: str | None = None) -> list
     return args
 
 
-def _run_track_command(args: list[str]) -> str:
-    """Run ``fitdrag track`` (the command's own code, errors raised) and return its output."""
-    import contextlib
-    import io
+def _track_footage(
+    footage: Path, track_path: Path, preview_path: Path, *, progress: bool = False
+) -> str:
+    """Track the demo footage as :func:`track_command` would; write the track CSV and the
+    preview picture (atomically, replacing files there); return the tracking summary."""
+    from fitdrag.report.track_preview import track_preview_figure
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.video.sources import open_source
+    from fitdrag.video.tracking import footage_track_csv_text, track_footage
 
-    from fitdrag.cli import build_parser
-
-    ns = build_parser().parse_args(args)
-    buf = io.StringIO()
-    with contextlib.redirect_stdout(buf):
-        code = ns._run(ns)
-    if code:  # pragma: no cover - the command raises on bad input
-        raise RuntimeError(f"fitdrag track exited with code {code}: {buf.getvalue().strip()}")
-    return buf.getvalue()
+    ft = track_footage(
+        footage, fps=FOOTAGE["fps"], markers=FOOTAGE["marker_side"],
+        scale_uncertainty=FOOTAGE["marker_side_relative_uncertainty"], progress=progress,
+    )  # fmt: skip
+    text = footage_track_csv_text(ft)
+    write_atomic(track_path, lambda p: Path(p).write_text(text, encoding="utf-8"), force=True,
+                 check=read_track)  # fmt: skip
+    with open_source(footage) as source:
+        image = source.read(ft.preview_frame)
+    fig = track_preview_figure(ft, image)
+    write_atomic(preview_path, lambda p: fig.savefig(p, dpi=100, format="png"), force=True)
+    return ft.summary()
 
 
 # ---------------------------------------------------------------------------------------------
@@ -488,17 +500,15 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
 
 def _place_text(path: Path, text: str, force: bool, hint: str) -> None:
     """Write ``text`` to ``path`` unless the same text is there; a different file needs force."""
-    from fitdrag.run.records import atomic_write_text
-
     if path.exists():
         if path.read_text(encoding="utf-8") == text:
             return
         if not force:
-            raise ValueError(
+            raise InputError(
                 f"{path}: differs from what the demo writes there ({hint}); pass --force to "
                 f"overwrite it, or give another directory."
             )
-    atomic_write_text(path, text)
+    write_text_atomic(path, text, force=True)
 
 
 def _place_file(new: Path, path: Path, force: bool, hint: str) -> None:
@@ -508,7 +518,7 @@ def _place_file(new: Path, path: Path, force: bool, hint: str) -> None:
             new.unlink()
             return
         if not force:
-            raise ValueError(
+            raise InputError(
                 f"{path}: differs from what the demo writes there ({hint}); pass --force to "
                 f"overwrite it, or give another directory."
             )
@@ -562,11 +572,11 @@ def run_demo(
     ------
     ValueError
         ``directory`` is a file; a file in it was changed by hand (without ``force``).
-    RuntimeError
-        The fit did not converge (not expected on the demo's data).
+    ConvergenceError
+        The fit did not converge (not expected on the demo's data; a RuntimeError).
     """
-    from fitdrag.run.jobs import load_job
-    from fitdrag.run.pipeline import FitFailed, issue, measure
+    from fitdrag.run.job_file import load_job
+    from fitdrag.run.pipeline import issue, measure
     from fitdrag.run.pipeline import summary as _summary
 
     t_start = time.perf_counter()
@@ -575,7 +585,7 @@ def run_demo(
     bars = progress and sys.stderr.isatty()
     d = Path(directory).expanduser().resolve()
     if d.exists() and not d.is_dir():
-        raise ValueError(f"{d}: is a file, not a directory; give a directory for the demo.")
+        raise InputError(f"{d}: is a file, not a directory; give a directory for the demo.")
     (d / "footage").mkdir(parents=True, exist_ok=True)
     footage, truth_path = d / FOOTAGE_NAME, d / TRUTH_NAME
     track_path, job_path = d / TRACK_NAME, d / JOB_NAME
@@ -593,7 +603,7 @@ def run_demo(
     if footage.exists() and truth_path.exists() and not force:
         truth = json.loads(truth_path.read_text(encoding="utf-8"))
         if truth.get("sha256") != _sha256(footage):
-            raise ValueError(
+            raise InputError(
                 f"{footage}: differs from the footage the demo rendered (its SHA-256 does not "
                 f"match {truth_path.name}); pass --force to render it again."
             )
@@ -603,7 +613,7 @@ def run_demo(
     else:
         if (footage.exists() or truth_path.exists()) and not force:
             missing = truth_path if footage.exists() else footage
-            raise ValueError(
+            raise InputError(
                 f"{missing}: missing, so the footage in {d} cannot be checked; pass --force to "
                 f"render the footage again."
             )
@@ -611,9 +621,7 @@ def run_demo(
             f"{FOOTAGE['width_px']}x{FOOTAGE['height_px']} px (seed {SEED}) ...")  # fmt: skip
         truth = make_demo_footage(footage, progress=bars, overwrite=True)
         truth["rendered_on"] = _dt.date.today().isoformat()
-        from fitdrag.run.records import atomic_write_text
-
-        atomic_write_text(truth_path, json.dumps(truth, indent=1) + "\n")
+        write_text_atomic(truth_path, json.dumps(truth, indent=1) + "\n", force=True)
         log(f"      wrote {display_path(footage)} and {truth_path.name}")
     timings["footage"] = time.perf_counter() - t0
 
@@ -624,12 +632,9 @@ def run_demo(
     tmp_track = d / f".{TRACK_NAME}.new.csv"
     tmp_preview = d / f".{PREVIEW_NAME}.new.png"
     try:
-        printed = _run_track_command(
-            track_command(str(footage), str(tmp_track), str(tmp_preview)) + ["--force"]
-        )
+        printed = _track_footage(footage, tmp_track, tmp_preview, progress=bars)
         for line in printed.splitlines():
-            if not line.startswith("wrote "):
-                log(f"      {line.replace(str(footage), FOOTAGE_NAME)}")
+            log(f"      {line.replace(str(footage), FOOTAGE_NAME)}")
         hint = (
             "this version of fitdrag finds another track in the footage: edited by hand, or "
             "made by another version?"
@@ -657,8 +662,8 @@ def run_demo(
     )
     try:
         meas = measure(job, progress=bars)
-    except FitFailed as exc:  # pragma: no cover - the demo's data fit
-        raise RuntimeError(f"demo: {exc}") from exc
+    except ConvergenceError as exc:  # pragma: no cover - the demo's data fit
+        raise ConvergenceError(f"demo: {exc}") from exc
     summary = _summary(meas)
     timings["measure"] = time.perf_counter() - t0
 
@@ -668,7 +673,7 @@ def run_demo(
     rec, db_path = issue(meas, replaces=previous, force=force)
     timings["issue"] = time.perf_counter() - t0
 
-    r = meas.report["result"]
+    r = meas.content.result
     out = {k: Path(v) for k, v in rec.outputs.items()}
     return DemoResult(
         directory=d,
@@ -683,10 +688,10 @@ def run_demo(
         certificate_png=out["certificate_png"],
         result_json=out["result_json"],
         records=Path(db_path),
-        drag_coefficient=float(r["drag_coefficient"]),
-        expanded_uncertainty=float(r["expanded_uncertainty"]),
-        coverage_factor=float(r["coverage_factor"]),
-        decision=meas.verdict.decision if meas.verdict is not None else None,
+        drag_coefficient=float(r.drag_coefficient),
+        expanded_uncertainty=float(r.expanded_uncertainty),
+        coverage_factor=float(r.coverage_factor),
+        decision=meas.decision,
         true_cd=float(truth["true_cd"]),
         footage_reused=reused,
         summary=summary,

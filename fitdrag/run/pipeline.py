@@ -3,50 +3,112 @@
 The steps, each a function usable on its own (:func:`measure` does everything but the
 certificate and the record; :func:`issue` does those):
 
-1. :func:`fitdrag.run.jobs.load_job` — read and validate the job file (nothing is written if it
-   is wrong);
+1. :func:`fitdrag.run.job_file.load_job` — read and validate the job file (nothing is written
+   if it is wrong);
 2. read every throw's track (:func:`read_throws`: a track CSV, or footage tracked and
    calibrated by :func:`fitdrag.video.tracking.track_footage`), fit them together
    (:func:`fitdrag.fit.fitting.fit_tracks`);
 3. the GUM uncertainty budget with sensitivities from re-fits
    (:func:`fitdrag.uncertainty.gum.budget_from_model` over :class:`fitdrag.fit.budget_model.DragRefitModel`),
    and optionally the Monte Carlo check (:func:`fitdrag.uncertainty.monte_carlo.monte_carlo`);
-4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`);
+4. the conformity decision (:func:`fitdrag.uncertainty.decision.decide`), and what the
+   certificate will say (:class:`fitdrag.report.content.CertificateContent`, built once);
 5. in one records transaction: allocate the certificate number, render the PDF, PNG and
    JSON to temporary files, store the record, then give the files their final names.
+
+:func:`measure` and :func:`issue` raise :class:`fitdrag.errors.ConvergenceError` when the fit
+or a re-fit does not converge; :attr:`Measurement.decision` (and the issued record's
+``decision``) give the conformity decision, for the caller to act on (the command line maps
+it to its exit code).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import re
 import warnings
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING
+
+from fitdrag._files import temporary_path
+from fitdrag.errors import ConvergenceError, InputError, InputFileNotFoundError
+from fitdrag.report.content import (
+    CameraSettings,
+    CertificateContent,
+    Conditions,
+    Conformity,
+    Estimate,
+    FitFacts,
+    FootageRecord,
+    Issue,
+    ItemTested,
+    Method,
+    MonteCarloCheck,
+    Result,
+)
+from fitdrag.run.job import Job
+
+if TYPE_CHECKING:  # annotations only
+    from fitdrag.fit.results import FitResult
+    from fitdrag.tracks.track import Track
+    from fitdrag.uncertainty.decision import Verdict
+    from fitdrag.uncertainty.gum import Budget
+    from fitdrag.uncertainty.monte_carlo import GumCheck, MonteCarloResult
 
 
 @dataclass(frozen=True, eq=False)
 class Measurement:
-    """Everything ``fitdrag run`` computes before issuing: fit, budget, checks, decision."""
+    """Everything ``fitdrag run`` computes before issuing: fit, budget, checks, decision.
 
-    job: Any
-    tracks: list
-    fit: Any
-    budget: Any
-    monte_carlo: Any
-    gum_check: Any
-    verdict: Any
-    hashes: dict
-    report: dict
+    Attributes
+    ----------
+    job : Job
+        The job measured.
+    tracks : list of Track
+        The tracks of its throws, in order.
+    fit : FitResult
+        The fit of all throws together.
+    budget : Budget
+        The GUM uncertainty budget of Cd.
+    monte_carlo : MonteCarloResult or None
+        The Monte Carlo run, if asked for.
+    gum_check : GumCheck or None
+        Its comparison with the GUM interval.
+    verdict : Verdict or None
+        The conformity decision, if the job states a specification.
+    hashes : Mapping
+        SHA-256 of the job file and of every input file, by path.
+    content : CertificateContent
+        What the certificate will say (number and date are filled in by :func:`issue`).
+    """
+
+    job: Job
+    tracks: list[Track]
+    fit: FitResult
+    budget: Budget
+    monte_carlo: MonteCarloResult | None
+    gum_check: GumCheck | None
+    verdict: Verdict | None
+    hashes: Mapping[str, str]
+    content: CertificateContent
+
+    @property
+    def decision(self) -> str | None:
+        """The conformity decision ("pass", "conditional pass", ...), or None without a
+        specification."""
+        return None if self.verdict is None else self.verdict.decision
+
+    @property
+    def report(self) -> dict:
+        """The JSON-ready result, as stored in the record (before the number is known)."""
+        return self.content.to_dict()
 
 
-class FitFailed(RuntimeError):
-    """The fit, or a re-fit of the budget, did not converge."""
-
-
-def read_throws(job, *, progress: bool = False) -> tuple[list, dict]:
+def read_throws(job: Job, *, progress: bool = False) -> tuple[list, dict]:
     """Tracks of every throw, and the SHA-256 of the job file and of every input file.
 
     A track throw is read with :func:`fitdrag.tracks.read_track`; a footage throw is
@@ -67,28 +129,28 @@ def read_throws(job, *, progress: bool = False) -> tuple[list, dict]:
 
     hashes = {str(job.path): file_sha256(job.path)}
     tracks = []
-    fps = job.camera["fps"].value
+    fps = job.camera.fps.value
     for i, th in enumerate(job.throws):
-        opts = dict(th.options)
+        opts = th.options
         if th.kind == "footage":
             from fitdrag.video.tracking import footage_sha256, track_footage
 
             try:
                 ft = track_footage(th.path, fps=fps, progress=progress, **opts)
-            except (ValueError, FileNotFoundError) as exc:
+            except InputError as exc:
                 loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
                 msg = f"{loc}: [[throws]] #{i + 1} footage: {_job_wording(str(exc))}"
                 if isinstance(exc, FileNotFoundError):
-                    raise FileNotFoundError(msg) from None
-                raise ValueError(msg) from None
+                    raise InputFileNotFoundError(msg) from None
+                raise InputError(msg) from None
             digest = footage_sha256(th.path)
             tr = ft.track
             meta = {**tr.meta, "source": str(th.path), "sha256": digest}
             tracks.append(Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta))
             hashes[str(th.path)] = digest
-            for key in ("marker_layout", "lens"):
-                if opts.get(key) is not None:
-                    hashes[str(opts[key])] = file_sha256(opts[key])
+            for extra in (th.marker_layout, th.lens):
+                if extra is not None:
+                    hashes[str(extra)] = file_sha256(extra)
             continue
         with warnings.catch_warnings():
             # the camera's frame rate is offered for files without a time column only
@@ -112,7 +174,7 @@ def _job_wording(message: str) -> str:
     return _OPTION_KEYS.sub(lambda m: m.group(1).replace("-", "_"), message)
 
 
-def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
+def length_scale_uncertainty(job: Job, tracks) -> tuple[float, str]:
     """Relative standard uncertainty of the length scale for the budget, and its source.
 
     ``[camera] scale_relative_uncertainty``, when the job states it, applies to every throw
@@ -126,7 +188,7 @@ def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
     (float, str)
         The relative standard uncertainty [1] and a few words on where it comes from.
     """
-    stated = job.camera.get("scale_relative_uncertainty")
+    stated = job.camera.scale_relative_uncertainty
     if stated is not None:
         return float(stated), "stated in the job file ([camera] scale_relative_uncertainty)"
     vals = [
@@ -135,7 +197,7 @@ def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
         if th.kind == "footage" and "scale_relative_uncertainty" in tr.meta
     ]
     if len(vals) != len(job.throws):
-        raise ValueError(
+        raise InputError(
             f"{job.path.name}: [camera] scale_relative_uncertainty: missing; give the relative "
             f"standard uncertainty of the tracks' length scale (e.g. 0.002)."
         )
@@ -143,14 +205,14 @@ def length_scale_uncertainty(job, tracks) -> tuple[float, str]:
     return max(vals), how
 
 
-def roll_uncertainty(job, tracks) -> tuple[float, str]:
+def roll_uncertainty(job: Job, tracks) -> tuple[float, str]:
     """Standard uncertainty of the camera's horizontal for the budget [deg], and its source.
 
     ``[camera] roll_uncertainty``, when stated, applies to every throw; otherwise the
     largest of the footage calibrations' ``roll_uncertainty_deg`` (0 when no throw brings
     one: CSV tracks carry no information about the level of their frame).
     """
-    stated = job.camera.get("roll_uncertainty")
+    stated = job.camera.roll_uncertainty
     if stated is not None:
         return float(stated), "stated in the job file ([camera] roll_uncertainty)"
     vals = [float(tr.meta["roll_uncertainty_deg"]) for tr in tracks
@@ -160,21 +222,21 @@ def roll_uncertainty(job, tracks) -> tuple[float, str]:
     return max(vals), "footage calibration" if len(vals) == 1 else "largest of the calibrations"
 
 
-def _vu(m) -> dict:
-    return {"value": m.value, "standard_uncertainty": m.uncertainty}
-
-
-def _air_density_uncertainty(job) -> float:
+def _air_density_uncertainty(job: Job) -> float:
     """u(ρ) from u(T), u(p), u(RH) through the CIPM-2007 formula (GUM eq. (10))."""
     from fitdrag.physics.air import moist_air_density
     from fitdrag.uncertainty.gum import InputQuantity, budget_from_model
 
     a = job.air
-    if "density" in a:
-        return a["density"].uncertainty
+    if a.density is not None:
+        return a.density.uncertainty
     qs = [
-        InputQuantity(k, a[k].value, a[k].uncertainty)
-        for k in ("temperature", "pressure", "relative_humidity")
+        InputQuantity(k, m.value, m.uncertainty)
+        for k, m in (
+            ("temperature", a.temperature),
+            ("pressure", a.pressure),
+            ("relative_humidity", a.relative_humidity),
+        )
     ]
 
     def rho(v):
@@ -183,7 +245,9 @@ def _air_density_uncertainty(job) -> float:
     return budget_from_model(rho, qs).combined_standard_uncertainty
 
 
-def _method(fit_dict: dict, fit_result, budget, mc) -> dict:
+def _method(fit_dict: dict, fit_result, budget, mc) -> Method:
+    """The method in words, from the fit's summary, the fit, the budget and the Monte Carlo
+    run."""
     from fitdrag.physics.registry import get_drag_model
 
     dm = get_drag_model(fit_result.model)
@@ -211,19 +275,19 @@ def _method(fit_dict: dict, fit_result, budget, mc) -> dict:
     )
     if mc is not None:
         unc += f"; checked by the Monte Carlo method of JCGM 101:2008 ({mc.trials} re-fits)"
-    return {
-        "model_equation": eq,
-        "drag_model": dm.name,
-        "drag_model_text": f"{dm.name}: {dm.description}"
+    return Method(
+        model_equation=eq,
+        drag_model=dm.name,
+        drag_model_text=f"{dm.name}: {dm.description}"
         + (f" ({dm.reference})" if dm.reference else ""),  # fmt: skip
-        "integrator": f.get("integrator", ""),
-        "fit_method": fit_method,
-        "uncertainty_method": unc + ".",
-    }
+        integrator=f.get("integrator", ""),
+        fit_method=fit_method,
+        uncertainty_method=unc + ".",
+    )
 
 
 def measure(
-    job,
+    job: Job,
     *,
     monte_carlo: int | None = None,
     adaptive: bool | None = None,
@@ -233,58 +297,83 @@ def measure(
 ) -> Measurement:
     """Fit, budget, Monte Carlo check and conformity decision for a loaded job.
 
+    Parameters
+    ----------
+    job : Job
+        The job (:func:`fitdrag.run.job_file.load_job`).
+    monte_carlo : int, optional
+        Monte Carlo trials (0: no check); default ``[uncertainty] monte_carlo``.
+    adaptive : bool, optional
+        Stop the Monte Carlo run early once stable; default ``[uncertainty] adaptive``.
+    seed : int, optional
+        Seed of the Monte Carlo run; default ``[uncertainty] seed``.
+    workers : int, optional
+        Processes of the Monte Carlo run (default: up to 2).
+    progress : bool
+        Show progress bars.
+
+    Returns
+    -------
+    Measurement
+        With the decision in :attr:`Measurement.decision`.
+
     Raises
     ------
-    FitFailed
+    ConvergenceError
         When the fit or a re-fit of the budget does not converge.
+    InputError
+        A negative number of Monte Carlo trials.
     """
     from fitdrag._version import __version__
     from fitdrag.fit.budget_model import DragRefitModel
     from fitdrag.fit.fitting import fit_tracks
-    from fitdrag.report.certificate import format_with_uncertainty, formatter_for
+    from fitdrag.report.numbers import formatter_for
     from fitdrag.uncertainty.decision import decide
     from fitdrag.uncertainty.gum import P_K2, budget_from_model
     from fitdrag.uncertainty.monte_carlo import compare_with_gum, default_workers
     from fitdrag.uncertainty.monte_carlo import monte_carlo as run_mc
 
+    unc = job.uncertainty
+    n_mc = unc.monte_carlo if monte_carlo is None else monte_carlo
+    if n_mc < 0:
+        raise InputError(
+            f"monte_carlo trials: must be >= 0, got {n_mc}; give 0 (no Monte Carlo check) or a "
+            f"number of trials such as 10000."
+        )
     tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()
     air = job.make_air()
     fopts = job.fit_options()
     fit = fit_tracks(tracks, specimen, air, gravity=job.gravity(), **fopts)
     if not fit.success:
-        raise FitFailed(f"the fit did not converge: {fit.message}")
+        raise ConvergenceError(f"the fit did not converge: {fit.message}")
 
     u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
     u_roll, u_roll_source = roll_uncertainty(job, tracks)
     inputs = job.input_quantities(scale_relative_uncertainty=u_scale, roll_uncertainty=u_roll)
     nominal = {q.name: q.value for q in inputs}
-    model = DragRefitModel(
-        fit, tracks, nominal, length=job.specimen.get("length"), viscosity=air.viscosity
-    )
+    model = DragRefitModel(fit, tracks, nominal, length=job.specimen.length,
+                           viscosity=air.viscosity)  # fmt: skip
     stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
     try:
         budget = budget_from_model(
             model, inputs, statistical=stat, coverage_probability=P_K2, progress=progress
         )
     except RuntimeError as exc:
-        raise FitFailed(f"uncertainty budget: {exc}") from exc
+        raise ConvergenceError(f"uncertainty budget: {exc}") from exc
 
-    n_mc = job.uncertainty.get("monte_carlo", 0) if monte_carlo is None else monte_carlo
-    if n_mc < 0:
-        raise ValueError(f"--monte-carlo: must be >= 0 trials, got {n_mc}.")
     mc = check = None
     if n_mc:
         try:
             mc = run_mc(
                 model, inputs, statistical=stat, trials=n_mc,
-                seed=job.uncertainty.get("seed") if seed is None else seed,
+                seed=unc.seed if seed is None else seed,
                 workers=default_workers() if workers is None else workers,
-                adaptive=job.uncertainty.get("adaptive", False) if adaptive is None else adaptive,
+                adaptive=unc.adaptive if adaptive is None else adaptive,
                 progress=progress,
             )  # fmt: skip
         except RuntimeError as exc:
-            raise FitFailed(f"Monte Carlo: {exc}") from exc
+            raise ConvergenceError(f"Monte Carlo: {exc}") from exc
         check = compare_with_gum(budget, mc)
 
     cd = float(fit.cd)
@@ -297,99 +386,91 @@ def measure(
             coverage_factor=budget.coverage_factor,
             coverage_probability=budget.coverage_probability,
             standard_uncertainty=uc,
-            result_label=f"specimen {job.specimen['id']}",
+            result_label=f"specimen {job.specimen.id}",
         )  # fmt: skip
 
     fit_dict = fit.to_dict()
-    cd_s, u_s = format_with_uncertainty(cd, big_u)
     sp = job.specimen
-    specimen_d = {"id": sp["id"], "description": sp["description"], "shape": job.shape,
-                  "mass": _vu(sp["mass"])}  # fmt: skip
-    for k in ("diameter", "area", "volume"):
-        if k in sp:
-            specimen_d[k] = _vu(sp[k])
-    if "length" in sp:
-        specimen_d["length"] = sp["length"]
-    specimen_d["added_mass_coefficient"] = _vu(sp["added_mass_coefficient"])
     a = job.air
-    conditions = {k: _vu(a[k]) for k in ("temperature", "pressure", "relative_humidity") if k in a}
-    conditions["air_density"] = {
-        "value": air.density,
-        "standard_uncertainty": _air_density_uncertainty(job),
-        "source": "stated" if "density" in a else "CIPM-2007 formula (Picard et al. 2008)",
-    }
-    conditions["air_viscosity"] = {
-        "value": air.viscosity,
-        "source": "stated" if "viscosity" in a else "Sutherland's law at the air temperature",
-    }
-    conditions["gravity"] = dict(_vu(job.site["gravity"]), source=job.site["gravity_source"])
-    conditions["wind"] = fopts.get("wind", 0.0)
-    conf = None
-    if verdict is not None:
-        conf = verdict.to_dict()
-        conf["statement"] = verdict.statement(formatter_for(big_u))
-    mc_d = None
-    if mc is not None:
-        mc_d = dict(mc.to_dict())
-        mc_d.update(
-            gum_interval=list(check.gum_interval), d_low=check.d_low, d_high=check.d_high,
-            agrees=check.agrees, numerical_tolerance=check.tolerance, status=check.status,
-        )  # fmt: skip
-    test = {k: (v.isoformat() if hasattr(v, "isoformat") else v) for k, v in job.test.items()}
-    report = {
-        "success": True,
-        "software_version": __version__,
-        "certificate": {},
-        "job": {"path": str(job.path), "sha256": hashes[str(job.path)]},
-        "laboratory": dict(job.laboratory),
-        "test": test,
-        "specimen": specimen_d,
-        "conditions": conditions,
-        "camera": {
-            "fps": _vu(job.camera["fps"]),
-            "scale_relative_uncertainty": u_scale,
-            "scale_relative_uncertainty_source": u_scale_source,
-            "roll_uncertainty_deg": u_roll,
-            "roll_uncertainty_source": u_roll_source,
-        },
-        "footage": _footage_report(job, tracks),
-        "method": _method(fit_dict, fit, budget, mc),
-        "result": {
-            "drag_coefficient": cd,
-            "statistical_standard_uncertainty": float(fit.u_cd),
-            "combined_standard_uncertainty": uc,
-            "effective_degrees_of_freedom": (
-                "inf" if math.isinf(budget.effective_dof) else budget.effective_dof
+
+    def est(m):
+        return None if m is None else m.estimate()
+
+    content = CertificateContent(
+        software_version=__version__,
+        laboratory=job.laboratory,
+        test=job.test,
+        specimen=ItemTested(
+            id=sp.id,
+            description=sp.description,
+            shape=sp.shape,
+            mass=sp.mass.estimate(),
+            added_mass_coefficient=sp.added_mass_coefficient.estimate(),
+            diameter=est(sp.diameter),
+            area=est(sp.area),
+            volume=est(sp.volume),
+            length=sp.length,
+        ),  # fmt: skip
+        conditions=Conditions(
+            temperature=est(a.temperature),
+            pressure=est(a.pressure),
+            relative_humidity=est(a.relative_humidity),
+            air_density=Estimate(air.density, _air_density_uncertainty(job)),
+            air_density_source=(
+                "stated" if a.density is not None else "CIPM-2007 formula (Picard et al. 2008)"
             ),
-            "coverage_factor": budget.coverage_factor,
-            "coverage_probability": budget.coverage_probability,
-            "expanded_uncertainty": big_u,
-            "relative_expanded_uncertainty": big_u / cd if cd else None,
-            "model_value_at_inputs": budget.value,
-            "reported": {"drag_coefficient": cd_s, "expanded_uncertainty": u_s},
-        },
-        "uncertainty_budget": budget.to_dict(),
-        "monte_carlo": mc_d,
-        "conformity": conf,
-        "fit": fit_dict,
-        "inputs": {"sha256": dict(hashes)},
-        "outputs": {},
-    }
-    return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, report)
+            air_viscosity=air.viscosity,
+            air_viscosity_source=(
+                "stated" if a.viscosity is not None else "Sutherland's law at the air temperature"
+            ),
+            gravity=job.site.gravity.estimate(),
+            gravity_source=job.site.gravity_source,
+            wind=fopts.get("wind", 0.0),
+        ),
+        camera=CameraSettings(
+            fps=job.camera.fps.estimate(),
+            scale_relative_uncertainty=u_scale,
+            scale_relative_uncertainty_source=u_scale_source,
+            roll_uncertainty_deg=u_roll,
+            roll_uncertainty_source=u_roll_source,
+        ),
+        footage=_footage_records(job, tracks),
+        method=_method(fit_dict, fit, budget, mc),
+        result=Result(
+            drag_coefficient=cd,
+            statistical_standard_uncertainty=float(fit.u_cd),
+            combined_standard_uncertainty=uc,
+            effective_degrees_of_freedom=budget.effective_dof,
+            coverage_factor=budget.coverage_factor,
+            coverage_probability=budget.coverage_probability,
+            expanded_uncertainty=big_u,
+            model_value_at_inputs=budget.value,
+        ),
+        fit=FitFacts.from_summary(fit_dict),
+        budget=budget,
+        monte_carlo=None if mc is None else MonteCarloCheck(mc, check),
+        conformity=(
+            None
+            if verdict is None
+            else Conformity(verdict, verdict.statement(formatter_for(big_u)))
+        ),
+        fit_summary=fit_dict,
+        input_hashes=dict(hashes),
+        job_path=str(job.path),
+    )
+    return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content)
 
 
-def _footage_report(job, tracks) -> list[dict]:
+def _footage_records(job: Job, tracks) -> tuple[FootageRecord, ...]:
     """Per footage throw: the file, its SHA-256 and how it was tracked and calibrated."""
     out = []
     for i, (th, tr) in enumerate(zip(job.throws, tracks, strict=True)):
         if th.kind != "footage":
             continue
-        d = {"throw": i + 1, "label": th.label, "path": str(th.path)}
-        for k, v in tr.meta.items():
-            if k != "source" and isinstance(v, str | int | float | bool):
-                d[k] = v
-        out.append(d)
-    return out
+        meta = {k: v for k, v in tr.meta.items()
+                if k != "source" and isinstance(v, str | int | float | bool)}  # fmt: skip
+        out.append(FootageRecord(throw=i + 1, label=th.label, path=str(th.path), tracking=meta))
+    return tuple(out)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -398,17 +479,23 @@ def _footage_report(job, tracks) -> list[dict]:
 
 
 def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
-    """Number, render and record the certificate of a measurement (one transaction)."""
+    """Number, render and record the certificate of a measurement (one transaction).
+
+    Returns
+    -------
+    (Record, Path)
+        The record (its ``decision`` is the conformity decision) and the records database.
+    """
     from fitdrag.report.certificate import render_certificate
     from fitdrag.report.plots import curves_from_fit
-    from fitdrag.run.records import PendingFile, Records, temporary_path
+    from fitdrag.run.records import PendingFile, Records
 
     job = meas.job
     outdir = Path(job.output_directory)
     outdir.mkdir(parents=True, exist_ok=True)
     db = Records(Path(records_path) if records_path else job.records_path)
     curves = curves_from_fit(meas.fit)
-    report = meas.report
+    content = meas.content
 
     def render(number, when):
         finals = {
@@ -418,23 +505,24 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
         }
         for f in finals.values():
             if f.exists() and not force:
-                raise ValueError(
+                raise InputError(
                     f"{f}: already exists (left by an earlier, interrupted run?); move it away "
                     f"or pass --force."
                 )
         tmps = {k: temporary_path(f) for k, f in finals.items()}
-        report["certificate"] = {
-            "number": number,
-            "issued_at": when.isoformat(timespec="seconds"),
-            "replaces": replaces,
-        }
-        report["outputs"] = {k: str(f.resolve()) for k, f in finals.items()}
+        issued = dataclasses.replace(
+            content,
+            issue=Issue(number, when.isoformat(timespec="seconds"), replaces),
+            outputs={k: str(f.resolve()) for k, f in finals.items()},
+        )
         try:
             pages = render_certificate(
-                report, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
+                issued, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
             )
-            report["certificate"]["pages"] = pages
-            text = json.dumps(report, indent=2, allow_nan=False, default=str)
+            issued = dataclasses.replace(
+                issued, issue=dataclasses.replace(issued.issue, pages=pages)
+            )
+            text = json.dumps(issued.to_dict(), indent=2, allow_nan=False, default=str)
             tmps["result_json"].write_text(text + "\n", encoding="utf-8")
         except BaseException:
             for t in tmps.values():
@@ -442,35 +530,34 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
             raise
         return {k: PendingFile(tmps[k], finals[k]) for k in finals}
 
-    conf = report.get("conformity") or {}
+    res = content.result
     rec = db.issue(
         render,
-        result=report,
+        result=content.to_dict(),  # stored as measured: number and outputs are in their columns
         input_hashes=meas.hashes,
         job_text=job.text,
         job_path=str(job.path),
         replaces=replaces,
         prefix=job.number_prefix,
         summary={
-            "customer": job.test.get("customer"),
-            "specimen_id": job.specimen["id"],
-            "drag_coefficient": report["result"]["drag_coefficient"],
-            "expanded_uncertainty": report["result"]["expanded_uncertainty"],
-            "coverage_factor": report["result"]["coverage_factor"],
-            "decision": conf.get("decision"),
-            "software_version": report["software_version"],
+            "customer": job.test.customer,
+            "specimen_id": job.specimen.id,
+            "drag_coefficient": res.drag_coefficient,
+            "expanded_uncertainty": res.expanded_uncertainty,
+            "coverage_factor": res.coverage_factor,
+            "decision": meas.decision,
+            "software_version": content.software_version,
         },
     )
     return rec, db.path
 
 
 def summary(meas: Measurement) -> str:
-    from fitdrag.report.certificate import format_sig
+    """A few lines on the result: Cd ± U, the largest contributions, the checks, the decision."""
+    from fitdrag.report.numbers import format_sig
 
-    r = meas.report["result"]
+    cd_s, u_s = meas.content.result.reported
     b = meas.budget
-    cd_s = r["reported"]["drag_coefficient"]
-    u_s = r["reported"]["expanded_uncertainty"]
     nu = "inf" if math.isinf(b.effective_dof) else format_sig(b.effective_dof, 2)
     lines = [
         f"drag coefficient Cd = {cd_s} ± {u_s} (k = {b.coverage_factor:.2f}, "
@@ -483,9 +570,9 @@ def summary(meas: Measurement) -> str:
             for ln in sorted(b.lines, key=lambda x: -x.share)[:4]
         ),
     ]
-    ident = meas.report["fit"].get("identifiability", {})
-    if not ident.get("identifiable", True):
-        lines.append(f"  WARNING: {ident.get('message')}")
+    facts = meas.content.fit
+    if not facts.identifiable:
+        lines.append(f"  WARNING: {facts.identifiability_message}")
     if meas.monte_carlo is not None:
         mc, ch = meas.monte_carlo, meas.gum_check
         fmt = "{:.6g}".format

@@ -31,6 +31,9 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from fitdrag._files import write_text_atomic
+from fitdrag.errors import InputError, InputFileNotFoundError
+
 #: Default file name of the records database in a job's output directory.
 DEFAULT_FILENAME = "records.sqlite"
 
@@ -96,7 +99,7 @@ def format_number(prefix: str, year: int, seq: int) -> str:
     """Certificate number ``PREFIX-YYYY-NNNNNN``."""
     check_prefix(prefix)
     if not 1 <= int(seq) <= 999_999:
-        raise ValueError(f"seq: certificate sequence {seq!r} is outside 1..999999.")
+        raise InputError(f"seq: certificate sequence {seq!r} is outside 1..999999.")
     return f"{prefix}-{int(year):04d}-{int(seq):06d}"
 
 
@@ -104,7 +107,7 @@ def parse_number(number: str) -> tuple[str, int, int]:
     """Split a certificate number into (prefix, year, seq)."""
     m = _NUMBER_RE.match(str(number).strip())
     if not m:
-        raise ValueError(
+        raise InputError(
             f"certificate number: {number!r} is not of the form PREFIX-YYYY-NNNNNN "
             f"(e.g. FD-2026-000123)."
         )
@@ -113,7 +116,7 @@ def parse_number(number: str) -> tuple[str, int, int]:
 
 def check_prefix(prefix: str) -> str:
     if not isinstance(prefix, str) or not _PREFIX_RE.match(prefix):
-        raise ValueError(
+        raise InputError(
             f"number_prefix: {prefix!r} must be 1 to 8 capital letters or digits starting with "
             f"a letter (e.g. 'FD')."
         )
@@ -183,7 +186,7 @@ def _json(name: str, value: Any) -> str:
     try:
         return json.dumps(value, sort_keys=True, allow_nan=False)
     except (TypeError, ValueError) as exc:
-        raise ValueError(f"{name}: cannot be stored as JSON ({exc}).") from None
+        raise InputError(f"{name}: cannot be stored as JSON ({exc}).") from None
 
 
 class Records:
@@ -204,12 +207,12 @@ class Records:
         self.timeout = float(timeout)
         if not self.path.exists():
             if not create:
-                raise FileNotFoundError(
+                raise InputFileNotFoundError(
                     f"records: no records database at {str(self.path)!r}; pass --records PATH "
                     f"(fitdrag run keeps one, {DEFAULT_FILENAME}, in the job's output directory)."
                 )
             if not self.path.parent.is_dir():
-                raise FileNotFoundError(
+                raise InputFileNotFoundError(
                     f"records: the folder {str(self.path.parent)!r} does not exist; create it "
                     f"or choose another --records path."
                 )
@@ -217,7 +220,7 @@ class Records:
             with self._connect() as con:
                 self._ensure_schema(con)
         except sqlite3.DatabaseError as exc:
-            raise ValueError(
+            raise InputError(
                 f"records: {str(self.path)!r} is not a usable SQLite database ({exc}); choose "
                 f"another --records path."
             ) from None
@@ -231,7 +234,7 @@ class Records:
         if version == _SCHEMA_VERSION:
             return
         if version not in (0, _SCHEMA_VERSION):
-            raise ValueError(
+            raise InputError(
                 f"records: database schema version {version} is not supported (expected "
                 f"{_SCHEMA_VERSION}); use the fitdrag version that created it."
             )
@@ -244,7 +247,7 @@ class Records:
                 r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")
             }
             if tables - {"certificates"}:
-                raise ValueError(
+                raise InputError(
                     "records: the file is an SQLite database of another kind; choose another "
                     "--records path."
                 )
@@ -312,7 +315,7 @@ class Records:
             "software_version",
         }
         if unknown:
-            raise ValueError(f"summary: unknown field(s) {sorted(unknown)}.")
+            raise InputError(f"summary: unknown field(s) {sorted(unknown)}.")
         result_text = _json("result", dict(result))
         hashes_text = _json("input_hashes", dict(input_hashes))
         if replaces is not None:
@@ -376,7 +379,7 @@ class Records:
     def _check_replaceable(con: sqlite3.Connection, number: str) -> None:
         row = con.execute("SELECT number FROM certificates WHERE number = ?", (number,)).fetchone()
         if row is None:
-            raise ValueError(
+            raise InputError(
                 f"replaces: no certificate {number!r} in this records database; check the "
                 f"number with 'fitdrag records list'."
             )
@@ -384,7 +387,7 @@ class Records:
             "SELECT number FROM certificates WHERE replaces = ?", (number,)
         ).fetchone()
         if row is not None:
-            raise ValueError(
+            raise InputError(
                 f"replaces: certificate {number!r} was already replaced by {row[0]!r}; "
                 f"replace {row[0]!r} instead."
             )
@@ -426,7 +429,7 @@ class Records:
         with self._connect() as con:
             row = con.execute(self._SELECT + " WHERE c.number = ?", (number,)).fetchone()
         if row is None:
-            raise ValueError(
+            raise InputError(
                 f"certificate number: {number!r} is not in {str(self.path)!r}; see "
                 f"'fitdrag records list'."
             )
@@ -446,7 +449,7 @@ class Records:
         """Write every record's summary to a CSV file (atomically; no overwrite unless force)."""
         path = Path(path)
         if path.exists() and not force:
-            raise ValueError(
+            raise InputError(
                 f"export: {str(path)!r} already exists; choose another name or pass --force."
             )
         buf = io.StringIO()
@@ -454,7 +457,8 @@ class Records:
         w.writeheader()
         for rec in self.list():
             w.writerow(rec.to_row())
-        atomic_write_text(path, buf.getvalue())
+        # checked above; an existing file is replaced only with force
+        write_text_atomic(path, buf.getvalue(), force=True)
         return path
 
 
@@ -470,7 +474,7 @@ class _Connection:
             self.con = sqlite3.connect(str(self.path), timeout=self.timeout, isolation_level=None)
             self.con.execute("PRAGMA foreign_keys = ON")
         except sqlite3.DatabaseError as exc:
-            raise ValueError(
+            raise InputError(
                 f"records: {str(self.path)!r} is not a usable SQLite database ({exc}); choose "
                 f"another --records path."
             ) from None
@@ -479,23 +483,3 @@ class _Connection:
     def __exit__(self, *exc) -> None:
         if self.con is not None:
             self.con.close()
-
-
-def temporary_path(final: str | os.PathLike) -> Path:
-    """A temporary file name beside ``final`` (same folder, so os.replace is atomic)."""
-    final = Path(final)
-    return final.with_name(f".{final.name}.{os.getpid()}.tmp")
-
-
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
-    """Write ``text`` to ``path`` through a temporary file and os.replace."""
-    path = Path(path)
-    tmp = temporary_path(path)
-    try:
-        with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    finally:
-        tmp.unlink(missing_ok=True)

@@ -1,13 +1,12 @@
-"""Tests of fitdrag.run.jobs: parsing, units, validation messages with line numbers, template."""
+"""Tests of fitdrag.run.job_file (with fitdrag.run.job_keys): parsing, units, validation
+messages with line numbers."""
 
 from __future__ import annotations
 
-import math
-import re
-
 import pytest
 
-from fitdrag.run.jobs import TEMPLATE, UNKNOWN_SITE_GRAVITY_HALF_WIDTH, load_job, write_template
+from fitdrag.run.job_file import load_job
+from fitdrag.run.job_template import TEMPLATE
 
 
 def _line(text: str, start: str) -> int:
@@ -35,30 +34,6 @@ def _edit(old: str, new: str, text: str = TEMPLATE) -> str:
     return text.replace(old, new, 1)
 
 
-def test_template_loads(job_dir):
-    """regression: the template is a valid job; values arrive in SI with their uncertainties."""
-    job = load_job(write_template(job_dir / "job.toml"))
-    assert job.laboratory["name"].endswith("(synthetic)")
-    assert job.specimen["mass"].value == 0.0027 and job.specimen["mass"].uncertainty == 1e-5
-    assert job.shape == "sphere"
-    assert job.air["pressure"].value == 100800 and job.air["temperature"].unit == "°C"
-    assert job.camera["fps"].value == 500
-    assert job.throws[0].path == (job_dir / "throw1.csv").resolve()
-    assert job.specification.lower == pytest.approx(0.44)
-    assert job.decision_rule == "guarded"
-    assert job.output_directory == (job_dir / "certificates").resolve()
-    assert job.records_path.name == "records.sqlite"
-    assert str(job.test["date"]) == "2026-01-15"
-    names = [q.name for q in job.input_quantities()]
-    assert names == ["mass", "diameter", "temperature", "pressure", "relative_humidity",
-                     "frame_rate", "length_scale", "gravity"]  # fmt: skip
-    # WGS84 normal gravity at 47° N, 400 m is about 9.807 m/s² (Moritz, Geodetic Reference
-    # System 1980, J. Geodesy 74 (2000); free-air gradient 3.086e-6 s⁻²; from memory)
-    assert job.gravity() == pytest.approx(9.8068, abs=5e-4)
-    with pytest.raises(ValueError, match=r"already exists; choose another name or pass --force"):
-        write_template(job_dir / "job.toml")
-
-
 def test_units_in_strings_are_converted(job_dir):
     """closed-form/independent: unit strings are converted with pint to SI
     (1 g = 1e-3 kg; 1 hPa = 100 Pa; T[°C] = T[K] − 273.15; 1 % = 0.01)."""
@@ -69,12 +44,12 @@ def test_units_in_strings_are_converted(job_dir):
     text = _edit("diameter = 0.040 ", 'diameter = "40 mm" ', text)
     text = _edit("scale_relative_uncertainty = 0.002", 'scale_relative_uncertainty = "0.2 %"', text)
     job = load_job(_write(job_dir, text))
-    assert job.specimen["mass"].value == pytest.approx(0.0027, rel=1e-12)
-    assert job.air["pressure"].value == pytest.approx(100800.0, rel=1e-12)
-    assert job.air["temperature"].value == pytest.approx(21.0, abs=1e-9)
-    assert job.air["temperature"].uncertainty == pytest.approx(0.3)
-    assert job.specimen["diameter"].value == pytest.approx(0.040)
-    assert job.camera["scale_relative_uncertainty"] == pytest.approx(0.002)
+    assert job.specimen.mass.value == pytest.approx(0.0027, rel=1e-12)
+    assert job.air.pressure.value == pytest.approx(100800.0, rel=1e-12)
+    assert job.air.temperature.value == pytest.approx(21.0, abs=1e-9)
+    assert job.air.temperature.uncertainty == pytest.approx(0.3)
+    assert job.specimen.diameter.value == pytest.approx(0.040)
+    assert job.camera.scale_relative_uncertainty == pytest.approx(0.002)
 
 
 @pytest.mark.parametrize(
@@ -218,46 +193,6 @@ def test_structure_errors(job_dir):
         load_job(job_dir / "none.toml")
 
 
-def test_gravity_without_site_and_air_density(job_dir):
-    """closed-form/independent: without [site], standard gravity 9.80665 m/s² (CGPM 1901)
-    with a rectangular half-width 0.026 m/s² (u = a/√3, GUM 4.3.7); a stated density
-    replaces T, p, RH in the budget."""
-    text = re.sub(r"\[site\].*?(?=\[camera\])", "", TEMPLATE, flags=re.S)
-    text = _edit("temperature = 21.0                # degrees C\n", "", text)
-    text = _edit("temperature_uncertainty = 0.3     # K\n", "", text)
-    text = _edit("pressure = 100800                 # Pa (absolute)\n", "", text)
-    text = _edit("pressure_uncertainty = 50         # Pa\n", "", text)
-    text = _edit("relative_humidity = 45            # %\n", "", text)
-    text = _edit("relative_humidity_uncertainty = 3 # %\n", "", text)
-    text = _edit("# density = 1.19 ", "density = 1.19 ", text)
-    text = _edit("# density_uncertainty = 0.005 ", "density_uncertainty = 0.005 ", text)
-    job = load_job(_write(job_dir, text))
-    g = [q for q in job.input_quantities() if q.name == "gravity"][0]
-    assert g.value == 9.80665
-    assert g.standard_uncertainty == pytest.approx(UNKNOWN_SITE_GRAVITY_HALF_WIDTH / math.sqrt(3))
-    assert g.distribution == "rectangular"
-    names = [q.name for q in job.input_quantities()]
-    assert "air_density" in names and "temperature" not in names
-    assert job.make_air().density == 1.19
-
-
-def test_body_specimen(job_dir):
-    """regression: a non-spherical specimen by area and volume."""
-    text = _edit("diameter = 0.040 ", "# diameter = 0.040 ")
-    text = _edit("diameter_uncertainty = 0.00005 ", "# diameter_uncertainty = 0.00005 ", text)
-    text = _edit("# area = 0.00126 ", "area = 0.00126 ", text)
-    text = _edit("# area_uncertainty = 0.00001 ", "area_uncertainty = 0.00001 ", text)
-    text = _edit("# volume = 3.35e-5 ", "volume = 3.35e-5 ", text)
-    with pytest.raises(ValueError, match=r"\[specimen\] volume_uncertainty: missing"):
-        load_job(_write(job_dir, text))
-    text = _edit("# volume_uncertainty = 3e-7 ", "volume_uncertainty = 3e-7 ", text)
-    job = load_job(_write(job_dir, text))
-    assert job.shape == "body"
-    sp = job.make_specimen()
-    assert sp.area == 0.00126 and sp.volume == 3.35e-5
-    assert [q.name for q in job.input_quantities()][:3] == ["mass", "area", "volume"]
-
-
 # ---------------------------------------------------------------------------------------------
 # footage throws
 # ---------------------------------------------------------------------------------------------
@@ -300,7 +235,7 @@ def test_footage_throw_keys_parse(footage_dir):
     assert [t.kind for t in job.throws] == ["footage"] * 4
     assert a.path == (footage_dir / "clip.avi").resolve() and a.label == "throw A"
     assert a.line == _line(text, 'footage = "clip.avi"')
-    assert dict(a.options) == {
+    assert a.options == {
         "markers": pytest.approx(0.05, rel=1e-12),
         "marker_dictionary": "DICT_4X4_50",
         "marker_layout": (footage_dir / "wall.csv").resolve(),
@@ -310,16 +245,16 @@ def test_footage_throw_keys_parse(footage_dir):
         "start": 2,
         "stop": 60,
     }
-    assert dict(b.options) == {"scale": 0.00125, "origin": (12.0, 790.0),
+    assert b.options == {"scale": 0.00125, "origin": (12.0, 790.0),
                                "rotation": pytest.approx(0.5)}  # fmt: skip
-    assert dict(c.options) == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5)}
-    assert dict(d.options) == {"reference": (102.5, 640.0, 1180.0, 655.5, 1.0),
+    assert c.options == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5)}
+    assert d.options == {"reference": (102.5, 640.0, 1180.0, 655.5, 1.0),
                                "origin": (0.0, 10.0)}  # fmt: skip
-    assert "scale_relative_uncertainty" not in job.camera
+    assert job.camera.scale_relative_uncertainty is None
     # the track_footage signature takes every option a footage throw may carry
     import inspect
 
-    from fitdrag.run.jobs import FOOTAGE_OPTIONS
+    from fitdrag.run.job_keys import FOOTAGE_OPTIONS
     from fitdrag.video.tracking import track_footage
 
     params = inspect.signature(track_footage).parameters
@@ -427,18 +362,3 @@ def test_footage_files_and_track_throw_options(footage_dir):
     text = _edit(_CAMERA_U, "", TEMPLATE + '\n[[throws]]\nfootage = "clip.avi"\nscale = 1e-3\n')
     with pytest.raises(ValueError, match=r"\[camera\] scale_relative_uncertainty: missing"):
         load_job(_write(footage_dir, text))
-
-
-def test_camera_roll_uncertainty_becomes_a_budget_input(job_dir):
-    """regression: [camera] roll_uncertainty [deg] adds a 'roll' input (nominal 0) to the
-    budget; a footage calibration's value can be passed instead; absent, there is none."""
-    text = _edit("fps_uncertainty = 0.05", 'fps_uncertainty = 0.05\nroll_uncertainty = "0.05 deg"')
-    job = load_job(_write(job_dir, text))
-    roll = [q for q in job.input_quantities() if q.name == "roll"]
-    assert len(roll) == 1 and roll[0].value == 0.0
-    assert roll[0].standard_uncertainty == pytest.approx(0.05)
-    assert [q for q in job.input_quantities(roll_uncertainty=0.2) if q.name == "roll"][
-        0
-    ].standard_uncertainty == pytest.approx(0.2)
-    plain = load_job(write_template(job_dir / "plain.toml"))
-    assert "roll" not in [q.name for q in plain.input_quantities()]

@@ -1,0 +1,411 @@
+"""A job: one measurement, from specimen to certificate, as frozen dataclasses.
+
+:func:`fitdrag.run.job_file.load_job` reads and validates a job file (TOML) into a
+:class:`Job`, one dataclass per section: the laboratory and the test
+(:class:`fitdrag.report.content.Laboratory`, :class:`fitdrag.report.content.TestDetails`),
+:class:`SpecimenSection`, :class:`AirSection`, :class:`SiteSection`, :class:`CameraSection`,
+one :class:`Throw` per ``[[throws]]`` table, the specification
+(:class:`fitdrag.uncertainty.decision.Specification`), :class:`FitSection`,
+:class:`UncertaintySection` and :class:`OutputSection`.  Values are SI numbers (temperature
+in °C, relative humidity in %); a value with an uncertainty is a :class:`Measured`.
+
+The job builds the objects of the fit (:meth:`Job.make_specimen`, :meth:`Job.make_air`,
+:meth:`Job.gravity`, :meth:`Job.fit_options`) and the inputs of the uncertainty budget
+(:meth:`Job.input_quantities`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+from fitdrag.report.content import Estimate, Laboratory, TestDetails
+from fitdrag.uncertainty.decision import Specification
+from fitdrag.uncertainty.gum import InputQuantity
+
+__all__ = [
+    "AirSection",
+    "CameraSection",
+    "FitSection",
+    "Job",
+    "Measured",
+    "OutputSection",
+    "SiteSection",
+    "SpecimenSection",
+    "Throw",
+    "UncertaintySection",
+]
+
+
+@dataclass(frozen=True)
+class Measured:
+    """A value with its standard uncertainty, both in SI (temperature in °C, humidity in %).
+
+    Attributes
+    ----------
+    value : float
+        The value. [unit]
+    uncertainty : float
+        Its standard uncertainty. [unit; for a temperature, a temperature difference]
+    unit : str
+        The unit's symbol ("" for a pure number).
+    """
+
+    value: float
+    uncertainty: float
+    unit: str
+
+    def input(self, name: str, description: str = "", **kw) -> InputQuantity:
+        """The value as an input quantity of the uncertainty budget."""
+        return InputQuantity(
+            name, self.value, self.uncertainty, self.unit, description=description, **kw
+        )
+
+    def estimate(self) -> Estimate:
+        """Value and standard uncertainty, as the certificate states them."""
+        return Estimate(self.value, self.uncertainty)
+
+
+@dataclass(frozen=True)
+class SpecimenSection:
+    """``[specimen]``: a sphere (by diameter) or a body (by area and volume).
+
+    Attributes
+    ----------
+    id, description : str
+        Identification and description of the specimen.
+    mass : Measured
+        Mass. [kg]
+    added_mass_coefficient : Measured
+        Added-mass coefficient (0.5 for a sphere unless stated). [-]
+    diameter : Measured or None
+        Diameter of a sphere. [m]
+    area, volume : Measured or None
+        Frontal area [m²] and volume [m³] of a body.
+    length : float or None
+        Reference length of a body for the Reynolds number. [m]
+    """
+
+    id: str
+    description: str
+    mass: Measured
+    added_mass_coefficient: Measured
+    diameter: Measured | None = None
+    area: Measured | None = None
+    volume: Measured | None = None
+    length: float | None = None
+
+    @property
+    def shape(self) -> str:
+        """``"sphere"`` (given by diameter) or ``"body"`` (given by area and volume)."""
+        return "sphere" if self.diameter is not None else "body"
+
+
+@dataclass(frozen=True)
+class AirSection:
+    """``[air]``: temperature [°C], pressure [Pa] and relative humidity [%], or the density.
+
+    Attributes
+    ----------
+    temperature : Measured or None
+        Air temperature. [°C]
+    pressure : Measured or None
+        Absolute pressure. [Pa]
+    relative_humidity : Measured or None
+        Relative humidity. [%]
+    density : Measured or None
+        Air density, when stated instead of computed. [kg/m³]
+    viscosity : float or None
+        Dynamic viscosity, when stated (with density only). [Pa s]
+    """
+
+    temperature: Measured | None = None
+    pressure: Measured | None = None
+    relative_humidity: Measured | None = None
+    density: Measured | None = None
+    viscosity: float | None = None
+
+
+@dataclass(frozen=True)
+class SiteSection:
+    """``[site]``: the local acceleration of free fall and where it comes from.
+
+    Attributes
+    ----------
+    gravity : Measured
+        Acceleration of free fall. [m/s²]
+    gravity_source : str
+        Where it comes from, in words.
+    gravity_distribution : str
+        Distribution of its uncertainty in the budget ("normal" or "rectangular").
+    """
+
+    gravity: Measured
+    gravity_source: str
+    gravity_distribution: str = "normal"
+
+
+@dataclass(frozen=True)
+class CameraSection:
+    """``[camera]``: frame rate and the uncertainties of the image geometry.
+
+    Attributes
+    ----------
+    fps : Measured
+        Frame rate. [Hz]
+    scale_relative_uncertainty : float or None
+        Relative standard uncertainty of the length scale, when stated. [1]
+    roll_uncertainty : float or None
+        Standard uncertainty of the camera's horizontal, when stated. [deg]
+    """
+
+    fps: Measured
+    scale_relative_uncertainty: float | None = None
+    roll_uncertainty: float | None = None
+
+
+@dataclass(frozen=True)
+class Throw:
+    """One ``[[throws]]`` table: a track CSV (``kind == "track"``) or footage.
+
+    The options are those given in the job file (None: not given): the CSV import options
+    of :func:`fitdrag.tracks.read_track` for a track, the options of
+    :func:`fitdrag.video.tracking.track_footage` for footage (``scale`` and ``origin`` serve
+    both).  :attr:`options` gives the given ones as keyword arguments.
+
+    Attributes
+    ----------
+    kind : str
+        ``"track"`` or ``"footage"``.
+    path : Path
+        The track CSV or the footage (file or folder of frames).
+    label : str
+        Label of the throw.
+    line : int or None
+        Line of the job file that names the file.
+    """
+
+    kind: str
+    path: Path
+    label: str
+    line: int | None = None
+    # track CSV options
+    t_col: str | None = None
+    x_col: str | None = None
+    y_col: str | None = None
+    frame_col: str | None = None
+    sigma_col: str | None = None
+    units: str | None = None
+    y_down: bool | None = None
+    delimiter: str | None = None
+    comment: str | None = None
+    # both: image scale [m/px] and origin [px]
+    scale: float | None = None
+    origin: tuple[float, float] | None = None
+    # footage options
+    start: int | None = None
+    stop: int | None = None
+    rotation: float | None = None  # [deg]
+    reference: tuple[float, float, float, float, float] | None = None  # px, px, px, px, m
+    markers: float | None = None  # side of the markers' black square [m]
+    marker_dictionary: str | None = None
+    marker_layout: Path | None = None
+    marker_frame: int | None = None
+    lens: Path | None = None
+    scale_uncertainty: float | None = None  # [1]
+
+    @property
+    def options(self) -> dict[str, Any]:
+        """The import or tracking options given in the job file, by keyword."""
+        skip = ("kind", "path", "label", "line")
+        return {
+            f.name: getattr(self, f.name)
+            for f in fields(self)
+            if f.name not in skip and getattr(self, f.name) is not None
+        }
+
+
+@dataclass(frozen=True)
+class FitSection:
+    """``[fit]``: options of :func:`fitdrag.fit.fitting.fit_tracks` (None: not given)."""
+
+    model: str | None = None
+    robust: bool | None = None
+    noise: str | None = None
+    lift: bool | None = None
+    wind: float | None = None  # along +x [m/s]
+
+    def options(self) -> dict[str, Any]:
+        """The given options, by keyword."""
+        return {f.name: getattr(self, f.name) for f in fields(self)
+                if getattr(self, f.name) is not None}  # fmt: skip
+
+
+@dataclass(frozen=True)
+class UncertaintySection:
+    """``[uncertainty]``: the Monte Carlo check (0 trials: none)."""
+
+    monte_carlo: int = 0
+    adaptive: bool = False
+    seed: int | None = None
+
+
+@dataclass(frozen=True)
+class OutputSection:
+    """``[output]``: where the certificate goes and how it is numbered."""
+
+    directory: Path
+    number_prefix: str = "FD"
+    records: Path | None = None
+
+
+@dataclass(frozen=True)
+class Job:
+    """A parsed, validated job file (all values SI; temperature °C, humidity %)."""
+
+    path: Path
+    text: str
+    laboratory: Laboratory
+    test: TestDetails
+    specimen: SpecimenSection
+    air: AirSection
+    site: SiteSection
+    camera: CameraSection
+    throws: tuple[Throw, ...]
+    specification: Specification | None
+    decision_rule: str | None
+    fit: FitSection
+    uncertainty: UncertaintySection
+    output: OutputSection
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def folder(self) -> Path:
+        return self.path.parent
+
+    @property
+    def shape(self) -> str:
+        return self.specimen.shape
+
+    @property
+    def output_directory(self) -> Path:
+        return self.output.directory
+
+    @property
+    def number_prefix(self) -> str:
+        return self.output.number_prefix
+
+    @property
+    def records_path(self) -> Path:
+        from fitdrag.run.records import DEFAULT_FILENAME
+
+        return self.output.records or self.output_directory / DEFAULT_FILENAME
+
+    # -- objects for the fit --------------------------------------------------------------
+
+    def make_specimen(self, values: Mapping[str, float] | None = None):
+        """Sphere or Body from the job, with any value overridden by ``values``."""
+        from fitdrag.physics.specimen import Body, Sphere
+
+        v = self.nominal_values()
+        v.update(values or {})
+        ca = v.get("added_mass_coefficient", 0.5)
+        if self.shape == "sphere":
+            return Sphere(v["mass"], v["diameter"], added_mass_coefficient=ca)
+        return Body(
+            v["mass"],
+            v["area"],
+            v["volume"],
+            length=self.specimen.length,
+            added_mass_coefficient=ca,
+        )
+
+    def make_air(self, values: Mapping[str, float] | None = None):
+        """Air from the job, with any value overridden by ``values``."""
+        from fitdrag.physics.air import Air, air_viscosity
+
+        v = self.nominal_values()
+        v.update(values or {})
+        if "air_density" in v:
+            visc = self.air.viscosity
+            if visc is None and self.air.temperature is not None:
+                visc = float(air_viscosity(self.air.temperature.value))
+            kw = {"viscosity": visc} if visc is not None else {}
+            return Air(v["air_density"], **kw)
+        return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
+
+    def gravity(self) -> float:
+        """Local acceleration of free fall. [m/s²]"""
+        return self.site.gravity.value
+
+    def fit_options(self) -> dict:
+        """Keyword options of the fit from ``[fit]``."""
+        return self.fit.options()
+
+    # -- budget inputs ------------------------------------------------------------------------
+
+    def input_quantities(self, scale_relative_uncertainty: float | None = None,
+                         roll_uncertainty: float | None = None) -> list:  # fmt: skip
+        """The uncertainty budget's inputs (everything but the fit's statistical part).
+
+        ``scale_relative_uncertainty`` [1] and ``roll_uncertainty`` [deg] override [camera]
+        (e.g. from a footage calibration).  The camera roll (an error in the horizontal) is
+        an input only when its uncertainty is known and > 0.
+        """
+        s = self.specimen
+        q = [s.mass.input("mass", "specimen mass")]
+        if self.shape == "sphere":
+            q.append(s.diameter.input("diameter", "specimen diameter"))
+        else:
+            q.append(s.area.input("area", "frontal area"))
+            q.append(s.volume.input("volume", "specimen volume (buoyancy, added mass)"))
+        ca = s.added_mass_coefficient
+        if ca.uncertainty > 0:
+            q.append(ca.input("added_mass_coefficient", "added-mass coefficient"))
+        a = self.air
+        if a.density is not None:
+            q.append(a.density.input("air_density", "air density"))
+        else:
+            q.append(a.temperature.input("temperature", "air temperature (density, viscosity)"))
+            q.append(a.pressure.input("pressure", "air pressure (density)"))
+            q.append(a.relative_humidity.input("relative_humidity", "humidity (density)"))
+        c = self.camera
+        q.append(c.fps.input("frame_rate", "camera frame rate (time base)"))
+        rel = (
+            c.scale_relative_uncertainty
+            if scale_relative_uncertainty is None
+            else scale_relative_uncertainty
+        )
+        q.append(
+            InputQuantity(
+                "length_scale", 1.0, float(rel or 0.0), "", description="length scale (relative)"
+            )  # fmt: skip
+        )
+        roll = c.roll_uncertainty if roll_uncertainty is None else roll_uncertainty
+        if roll:
+            q.append(
+                InputQuantity(
+                    "roll",
+                    0.0,
+                    float(roll),
+                    "°",
+                    description="camera roll (error of the horizontal)",
+                )  # fmt: skip
+            )
+        g = self.site.gravity
+        q.append(
+            g.input(
+                "gravity", self.site.gravity_source, distribution=self.site.gravity_distribution
+            )  # fmt: skip
+        )
+        return q
+
+    def nominal_values(self) -> dict[str, float]:
+        """Input estimates by budget name."""
+        out = {}
+        for qq in self.input_quantities():
+            out[qq.name] = qq.value
+        out.setdefault("added_mass_coefficient", self.specimen.added_mass_coefficient.value)
+        return out
