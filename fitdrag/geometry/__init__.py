@@ -1,0 +1,14 @@
+"""Camera geometry: the camera model, its pose from the marker board, projection, row timing.
+
+The stage between footage (:mod:`fitdrag.video`) and the fit (:mod:`fitdrag.fit`):
+
+* :mod:`fitdrag.geometry.camera` - :class:`~fitdrag.geometry.camera.Camera` (pinhole camera
+  with OpenCV's distortion model, pose, rolling-shutter readout): projection with its
+  Jacobians, back-projected rays, row times, the exact image outline of a sphere;
+* :mod:`fitdrag.geometry.pose` - the camera's pose from the marker board (PnP on all marker
+  corners) with its covariance.
+
+World frame: the marker board plane is z = 0, x along the board, y up, z towards the camera.
+Image: u to the right, v down (pixel centres at whole numbers, as in OpenCV).
+Import from the defining modules.
+"""
