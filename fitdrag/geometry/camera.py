@@ -649,7 +649,8 @@ class Camera:
         position_at: Callable[[np.ndarray], np.ndarray],
         frame_time: Any,
         *,
-        iterations: int = 4,
+        tolerance: float = 1e-13,
+        max_iterations: int = 50,
     ) -> tuple[np.ndarray, np.ndarray]:
         """Project a moving point seen by a rolling shutter: the pixel and its own time.
 
@@ -664,8 +665,11 @@ class Camera:
             ``position_at(times)`` -> world positions, shape (n, 3) for times (n,). [s] -> [m]
         frame_time : array_like, shape (n,)
             Time of each frame's first row. [s]
-        iterations : int
-            Fixed-point iterations (4 reach 1e-12 s for any flight a camera can follow).
+        tolerance : float
+            Stop when no time changes by more than this. [s]
+        max_iterations : int
+            Most fixed-point iterations (each gains about the ratio of the image's vertical
+            speed [rows/s] to the readout rate [rows/s], typically 1e-2).
 
         Returns
         -------
@@ -677,9 +681,13 @@ class Camera:
         pix = self.project(np.asarray(position_at(t), float).reshape(-1, 3)).pixels
         if self.readout_time == 0.0:
             return pix, t
-        for _ in range(max(int(iterations), 1)):
-            t = self.row_time(t0, pix[:, 1])
+        for _ in range(max(int(max_iterations), 1)):
+            t_new = self.row_time(t0, pix[:, 1])
+            step = float(np.max(np.abs(t_new - t)))
+            t = t_new
             pix = self.project(np.asarray(position_at(t), float).reshape(-1, 3)).pixels
+            if step <= tolerance:
+                break
         return pix, t
 
     # -- spheres --------------------------------------------------------------------------
