@@ -11,7 +11,8 @@ The public API for analysts and notebooks::
 The names below are imported from their stage on first use (a lazy package face), so
 ``import fitdrag`` and ``fitdrag --version`` load nothing else.  The stages, in the order
 data flows: ``physics`` (air, specimen, forces, drag laws, simulator), ``tracks`` (the track
-hand-off and its CSV files), ``video`` (footage to pixel positions and calibration), ``fit``,
+hand-off and its CSV files), ``video`` (footage to pixel positions and calibration), ``geometry`` (camera model, pose from
+the marker board, projection, row timing), ``fit``,
 ``uncertainty`` (GUM budget, Monte Carlo, decision rules), ``report`` and ``run`` (job files,
 pipeline, records, demo); ``cli`` and ``commands`` sit on top.
 """
@@ -32,6 +33,10 @@ _WHERE = {
     "refit": "fitdrag.fit.refit",
     "FitResult": "fitdrag.fit.results",
     "ThrowResult": "fitdrag.fit.results",
+    "Camera": "fitdrag.geometry.camera",
+    "BoardPose": "fitdrag.geometry.pose",
+    "MarkerBoard": "fitdrag.geometry.pose",
+    "camera_pose_from_markers": "fitdrag.geometry.pose",
     "Air": "fitdrag.physics.air",
     "CIPMRangeWarning": "fitdrag.physics.air",
     "STANDARD_GRAVITY": "fitdrag.physics.air",
