@@ -372,6 +372,36 @@ _STATUS = {
 }
 
 
+def drag_values(model, drag_params):
+    """The drag model and its values (fitted parameters, then constants), checked.
+
+    Parameters
+    ----------
+    model : str or DragModel
+        Drag model name or object.
+    drag_params : float or sequence of float
+        The model's fitted parameters followed by its constants.
+
+    Returns
+    -------
+    (DragModel, ndarray)
+    """
+    m = get_drag_model(model)
+    dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
+    n_fit = len(m.parameters)
+    if dp.size != n_fit + len(m.constants):
+        raise InputError(
+            f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
+            f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
+            f"constants, in that order."
+        )
+    if not np.all(np.isfinite(dp)):
+        raise InputError(
+            f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
+        )
+    return m, dp
+
+
 def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="constant",
              drag_params=(0.47,), lift_coefficient: float = 0.0, sensitivities: bool = False,
              fit_lift: bool = False, rtol: float = 1e-10, atol: float = 1e-10) -> Flight:  # fmt: skip
@@ -404,19 +434,8 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     -------
     Flight
     """
-    m = get_drag_model(model)
-    dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
+    m, dp = drag_values(model, drag_params)
     n_fit = len(m.parameters)
-    if dp.size != n_fit + len(m.constants):
-        raise InputError(
-            f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
-            f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
-            f"constants, in that order."
-        )
-    if not np.all(np.isfinite(dp)):
-        raise InputError(
-            f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
-        )
     fm = FlightModel(t, specimen, conditions, m, dp[n_fit:], fit_lift, rtol, atol)
     theta = np.concatenate((launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else []))
     status, pos, vel, jac, steps = fm.run(theta, sensitivities, lift_coefficient)
