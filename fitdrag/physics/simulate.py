@@ -34,42 +34,16 @@ import numpy as np
 from numba import types
 
 from fitdrag.errors import InputError
+from fitdrag.physics import _dormand_prince as _dp
 from fitdrag.physics.drag_model import CD_SIGNATURE
 from fitdrag.physics.forces import Conditions, drag_factor, net_gravity
 from fitdrag.physics.registry import get_drag_model
 
 LAUNCH_NAMES = ("x0", "y0", "vx0", "vy0")
 
-# Dormand–Prince RK5(4)7M coefficients [1].
-_C = np.array([0.0, 1 / 5, 3 / 10, 4 / 5, 8 / 9, 1.0, 1.0])
-_A = np.array(
-    [
-        [0, 0, 0, 0, 0, 0],
-        [1 / 5, 0, 0, 0, 0, 0],
-        [3 / 40, 9 / 40, 0, 0, 0, 0],
-        [44 / 45, -56 / 15, 32 / 9, 0, 0, 0],
-        [19372 / 6561, -25360 / 2187, 64448 / 6561, -212 / 729, 0, 0],
-        [9017 / 3168, -355 / 33, 46732 / 5247, 49 / 176, -5103 / 18656, 0],
-        [35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84],
-    ]
-)
-_B = np.array([35 / 384, 0, 500 / 1113, 125 / 192, -2187 / 6784, 11 / 84, 0])
-# Shampine's quartic continuous extension of the pair ("Some practical Runge-Kutta
-# formulas", Math. Comp. 46 (1986) 135-150), as tabulated in scipy.integrate.RK45:
-# y(t + θh) = y + h Σ_r k_r Σ_j P[r, j] θ^(j+1).
-_P = np.array(
-    [
-        [1, -8048581381 / 2820520608, 8663915743 / 2820520608, -12715105075 / 11282082432],
-        [0, 0, 0, 0],
-        [0, 131558114200 / 32700410799, -68118460800 / 10900136933, 87487479700 / 32700410799],
-        [0, -1754552775 / 470086768, 14199869525 / 1410260304, -10690763975 / 1880347072],
-        [0, 127303824393 / 49829197408, -318862633887 / 49829197408,
-         701980252875 / 199316789632],
-        [0, -282668133 / 205662961, 2019193451 / 616988883, -1453857185 / 822651844],
-        [0, 40617522 / 29380423, -110615467 / 29380423, 69997945 / 29380423],
-    ]
-)  # fmt: skip
-_E = np.array([71 / 57600, 0, -71 / 16695, 71 / 1920, -17253 / 339200, 22 / 525, -1 / 40])  # b - b*
+# The Dormand–Prince RK5(4)7M tableau [1] and continuous extension [3], shared with the 3-D
+# simulator (fitdrag.physics.flight3d) together with the step control.
+_A, _B, _C, _E, _P = _dp.A, _dp.B, _dp.C, _dp.E, _dp.P
 
 
 @numba.njit(cache=True)
@@ -166,15 +140,7 @@ def _integrate(
     if n == 1:
         return 0, 0
     # initial step (Hairer et al. 1993, II.4, simplified)
-    d0 = 0.0
-    d1 = 0.0
-    for i in range(dim):
-        sc = atol + rtol * abs(y[i])
-        d0 += (y[i] / sc) ** 2
-        d1 += (ks[0, i] / sc) ** 2
-    d0 = math.sqrt(d0 / dim)
-    d1 = math.sqrt(d1 / dim)
-    h = 1e-6 if (d0 < 1e-5 or d1 < 1e-5) else 0.01 * d0 / d1
+    h = _dp.initial_step(y, ks[0], rtol, atol)
     t_end = t_out[n - 1]
     h = min(h, t_end - t)
     steps = 0
@@ -187,25 +153,14 @@ def _integrate(
             h_try = t_end - t
             last = True
         for s in range(1, 7):
-            for i in range(dim):
-                acc = 0.0
-                for r in range(s):
-                    acc += A[s, r] * ks[r, i]
-                ytmp[i] = y[i] + h_try * acc
+            _dp.stage_state(y, ks, s, h_try, A, ytmp)
             _rhs(
                 cd_fn, ytmp, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, dre, ks[s]
             )
         # ks[6] is f(t + h, y_new) since A[6] == B (FSAL)
-        err = 0.0
         for i in range(dim):
             ynew[i] = ytmp[i]
-            e = 0.0
-            for r in range(7):
-                e += E[r] * ks[r, i]
-            e *= h_try
-            sc = atol + rtol * max(abs(y[i]), abs(ynew[i]))
-            err += (e / sc) ** 2
-        err = math.sqrt(err / dim)
+        err = _dp.error_norm(y, ynew, ks, h_try, E, rtol, atol)
         steps += 1
         if steps > max_steps or not math.isfinite(err):
             return 1, steps
@@ -216,15 +171,7 @@ def _integrate(
                 if last and i_next == n - 1:
                     break
                 th = (t_out[i_next] - t) / h_try
-                for i in range(dim):
-                    acc = 0.0
-                    for r in range(7):
-                        acc += (
-                            ks[r, i]
-                            * th
-                            * (P[r, 0] + th * (P[r, 1] + th * (P[r, 2] + th * P[r, 3])))
-                        )
-                    ys[i] = y[i] + h_try * acc
+                _dp.dense_output(y, ks, h_try, th, P, ys)
                 record(i_next, ys)
                 i_next += 1
             if t_out[i_next] == t_new or (last and i_next == n - 1):
@@ -234,10 +181,9 @@ def _integrate(
             for i in range(dim):
                 y[i] = ynew[i]
                 ks[0, i] = ks[6, i]
-            fac = 5.0 if err == 0.0 else min(5.0, max(0.2, 0.9 * err**-0.2))
-            h = h_try * fac
+            h = h_try * _dp.accepted_step_factor(err)
         else:
-            h = h_try * max(0.2, 0.9 * err**-0.2)
+            h = h_try * _dp.rejected_step_factor(err)
             if h < 1e-14 * max(1.0, abs(t)):
                 return 2, steps
     return 0, steps
@@ -426,6 +372,36 @@ _STATUS = {
 }
 
 
+def drag_values(model, drag_params):
+    """The drag model and its values (fitted parameters, then constants), checked.
+
+    Parameters
+    ----------
+    model : str or DragModel
+        Drag model name or object.
+    drag_params : float or sequence of float
+        The model's fitted parameters followed by its constants.
+
+    Returns
+    -------
+    (DragModel, ndarray)
+    """
+    m = get_drag_model(model)
+    dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
+    n_fit = len(m.parameters)
+    if dp.size != n_fit + len(m.constants):
+        raise InputError(
+            f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
+            f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
+            f"constants, in that order."
+        )
+    if not np.all(np.isfinite(dp)):
+        raise InputError(
+            f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
+        )
+    return m, dp
+
+
 def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="constant",
              drag_params=(0.47,), lift_coefficient: float = 0.0, sensitivities: bool = False,
              fit_lift: bool = False, rtol: float = 1e-10, atol: float = 1e-10) -> Flight:  # fmt: skip
@@ -458,19 +434,8 @@ def simulate(t, launch: Launch, specimen, conditions: Conditions, *, model="cons
     -------
     Flight
     """
-    m = get_drag_model(model)
-    dp = np.atleast_1d(np.asarray(drag_params, dtype=float))
+    m, dp = drag_values(model, drag_params)
     n_fit = len(m.parameters)
-    if dp.size != n_fit + len(m.constants):
-        raise InputError(
-            f"drag_params: model {m.name!r} takes {n_fit + len(m.constants)} value(s) "
-            f"{m.parameters + m.constants}, got {dp.size}; give the fitted parameters, then the "
-            f"constants, in that order."
-        )
-    if not np.all(np.isfinite(dp)):
-        raise InputError(
-            f"drag_params: must be finite, got {dp.tolist()}; check the drag coefficient given."
-        )
     fm = FlightModel(t, specimen, conditions, m, dp[n_fit:], fit_lift, rtol, atol)
     theta = np.concatenate((launch.as_array(), dp[:n_fit], [lift_coefficient] if fit_lift else []))
     status, pos, vel, jac, steps = fm.run(theta, sensitivities, lift_coefficient)
