@@ -252,13 +252,19 @@ def _draw_marker(scene: np.ndarray, marker_id: int, corners_black: np.ndarray, s
     patch += level
 
 
-def _make_scene(
+def make_scene(
     shape: tuple[int, int],
     background_level: float,
     clutter: int,
     rng: np.random.Generator,
     contrast: float = 40.0,
 ) -> np.ndarray:
+    """A static cluttered background, float32 on the 8-bit scale, shape ``(h, w)``.
+
+    A smooth illumination fall-off (about -12 % at the corners) under ``clutter`` random
+    rectangles, discs and thin bars whose grey levels lie within ``contrast`` of
+    ``background_level``, drawn from ``rng``.
+    """
     cv2 = _cv2()
     h, w = shape
     yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
@@ -297,6 +303,68 @@ def _make_scene(
                 4,
             )
     return scene
+
+
+def flicker_gain(t_mid, exposure: float, amplitude: float, frequency: float, phase: float):
+    """Mean brightness gain of lamps flickering at ``frequency`` over one exposure.
+
+    The gain ``1 + amplitude cos(omega t + phase)`` averaged over an exposure centred on
+    ``t_mid`` is ``1 + amplitude cos(omega t_mid + phase) sinc(omega exposure / 2)``.
+
+    Parameters
+    ----------
+    t_mid : float or ndarray
+        Middle of the exposure (a frame's, or one image row's). [s]
+    exposure : float
+        Exposure time. [s]
+    amplitude : float
+        Relative flicker amplitude (0.06 = +-6 %). [1]
+    frequency : float
+        Flicker frequency (twice the mains frequency). [Hz]
+    phase : float
+        Phase at t = 0. [rad]
+
+    Returns
+    -------
+    float or ndarray
+        The gain (1 = none). [1]
+    """
+    if amplitude == 0:
+        return 1.0 if np.ndim(t_mid) == 0 else np.ones(np.shape(t_mid))
+    om = 2 * math.pi * frequency
+    half = om * exposure / 2
+    sinc = 1.0 if half == 0 else math.sin(half) / half
+    if np.ndim(t_mid) == 0:
+        return 1.0 + amplitude * math.cos(om * t_mid + phase) * sinc
+    return 1.0 + amplitude * np.cos(om * np.asarray(t_mid, dtype=float) + phase) * sinc
+
+
+def finish_frame(
+    img: np.ndarray, seed: int, k: int, *, noise_sigma: float, bit_depth: int, color: bool
+) -> np.ndarray:
+    """A lit frame (float32, 8-bit scale, flicker applied) as the camera stores it.
+
+    Tints it for colour output (B, G, R gains 0.92, 1.0, 1.06), adds Gaussian sensor noise
+    of ``noise_sigma`` grey levels drawn from the seed sequence ``(seed, 7919, k)``, scales
+    to 16 bits if asked (x 257), clips and rounds.
+
+    Returns
+    -------
+    ndarray
+        ``(h, w)`` or ``(h, w, 3)``, uint8 or uint16.
+    """
+    rng = np.random.default_rng(np.random.SeedSequence([seed, 7919, k]))
+    scale = 257.0 if bit_depth == 16 else 1.0
+    top = 65535.0 if bit_depth == 16 else 255.0
+    dtype = np.uint16 if bit_depth == 16 else np.uint8
+    if color:
+        tint = np.array([0.92, 1.0, 1.06], np.float32)  # B, G, R
+        img = img[:, :, None] * tint
+    if noise_sigma > 0:
+        img = img + rng.standard_normal(img.shape, dtype=np.float32) * np.float32(noise_sigma)
+    img *= np.float32(scale)
+    np.clip(img, 0.0, top, out=img)
+    return np.rint(img).astype(dtype)
 
 
 def _rect_coverage(shape: tuple[int, int], rect: Sequence[float]) -> np.ndarray:
@@ -426,7 +494,7 @@ class FlightRenderer:
         self._in_world = bool(trajectory_in_world)
 
         rng = np.random.default_rng(self.seed)
-        scene = _make_scene(
+        scene = make_scene(
             self.shape, float(background_level), clutter, rng, float(clutter_contrast)
         )
         corners = {}
@@ -467,12 +535,7 @@ class FlightRenderer:
         return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
 
     def _gain(self, t_mid: float) -> float:
-        if self.flicker == 0:
-            return 1.0
-        om = 2 * math.pi * self.flicker_hz
-        half = om * self.exposure / 2
-        sinc = 1.0 if half == 0 else math.sin(half) / half
-        return 1.0 + self.flicker * math.cos(om * t_mid + self.flicker_phase) * sinc
+        return flicker_gain(t_mid, self.exposure, self.flicker, self.flicker_hz, self.flicker_phase)
 
     def _compute_truth(self, corners: dict) -> SyntheticTruth:
         n = self.n_frames
@@ -573,20 +636,10 @@ class FlightRenderer:
     def frame(self, k: int) -> np.ndarray:
         """Frame ``k`` as the camera would store it (uint8 or uint16, grey or BGR)."""
         img = self.clean_frame(k) * np.float32(self.truth.gain[k])
-        rng = np.random.default_rng(np.random.SeedSequence([self.seed, 7919, k]))
-        scale = 257.0 if self.bit_depth == 16 else 1.0
-        top = 65535.0 if self.bit_depth == 16 else 255.0
-        dtype = np.uint16 if self.bit_depth == 16 else np.uint8
-        if self.color:
-            tint = np.array([0.92, 1.0, 1.06], np.float32)  # B, G, R
-            img = img[:, :, None] * tint
-        if self.noise_sigma > 0:
-            img = img + rng.standard_normal(img.shape, dtype=np.float32) * np.float32(
-                self.noise_sigma
-            )
-        img *= np.float32(scale)
-        np.clip(img, 0.0, top, out=img)
-        return np.rint(img).astype(dtype)
+        return finish_frame(
+            img, self.seed, k, noise_sigma=self.noise_sigma, bit_depth=self.bit_depth,
+            color=self.color,
+        )  # fmt: skip
 
     def iter_frames(self) -> Iterator[np.ndarray]:
         """Frames 0..n-1 one at a time."""
