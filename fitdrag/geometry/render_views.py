@@ -65,13 +65,18 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numba
 import numpy as np
 
 from fitdrag._files import write_text_atomic
 from fitdrag.errors import InputError
 from fitdrag.geometry.camera import Camera
 from fitdrag.geometry.pose import MarkerBoard
+from fitdrag.geometry.sphere_image import (
+    OutlineEllipses,
+    ellipse_points,
+    outline_ellipses,
+    sphere_coverage,
+)
 from fitdrag.physics.flight3d import Flight3D
 from fitdrag.video.synthetic import (
     finish_frame,
@@ -151,60 +156,6 @@ def camera_looking_at(
     return camera.with_pose(r, -r @ c)
 
 
-@numba.njit(cache=True)
-def _sphere_coverage(mx, my, cc, rho, ss, k00, k11, ambient, light, acc_a, acc_i):
-    """Sum over exposure sub-steps of the sphere's coverage and Lambert radiance per sample.
-
-    ``mx``, ``my`` (S, C): normalised ideal ray coordinates of the samples; ``cc`` (R, N, 3):
-    the sphere's centre in the camera frame for each pixel row (sample row // ss) and
-    sub-step.  Coverage is the ramp ``clip(g / |grad g| ss + 1/2, 0, 1)`` of the cone
-    ``g = (C.m)^2 - (|C|^2 - rho^2) |m|^2`` (distance in pixels to first order); the radiance
-    ``ambient + (1 - ambient) max(n.L, 0)`` at the ray's entry point into the sphere.
-    """
-    lx, ly, lz = light[0], light[1], light[2]
-    r2 = rho * rho
-    for i in range(mx.shape[0]):
-        row = i // ss
-        for j in range(mx.shape[1]):
-            x = mx[i, j]
-            y = my[i, j]
-            m2 = x * x + y * y + 1.0
-            inv_m = 1.0 / math.sqrt(m2)
-            dl = (x * lx + y * ly + lz) * inv_m
-            sa = 0.0
-            si = 0.0
-            for s in range(cc.shape[1]):
-                cx = cc[row, s, 0]
-                cy = cc[row, s, 1]
-                cz = cc[row, s, 2]
-                cm = cx * x + cy * y + cz
-                if cm <= 0.0:
-                    continue
-                c2 = cx * cx + cy * cy + cz * cz
-                e = c2 - r2
-                g = cm * cm - e * m2
-                gx = 2.0 * (cm * cx - e * x) * k00
-                gy = 2.0 * (cm * cy - e * y) * k11
-                gn = math.sqrt(gx * gx + gy * gy)
-                if gn == 0.0:
-                    continue
-                a = g / gn * ss + 0.5
-                if a <= 0.0:
-                    continue
-                if a > 1.0:
-                    a = 1.0
-                sa += a
-                dc = cm * inv_m  # distance along the ray to its closest approach
-                disc = r2 - (c2 - dc * dc)
-                s1 = dc - math.sqrt(disc) if disc > 0.0 else dc
-                lam = (s1 * dl - (cx * lx + cy * ly + cz * lz)) / rho
-                if lam < 0.0:
-                    lam = 0.0
-                si += a * (ambient + (1.0 - ambient) * lam)
-            acc_a[i, j] = sa
-            acc_i[i, j] = si
-
-
 class _Path:
     """A world trajectory: a callable t -> (n, 3) or a Flight3D (cubic Hermite between
     its samples, with its velocities)."""
@@ -234,6 +185,10 @@ class _Path:
                 f"trajectory: expected a callable t [s] -> world positions (n, 3) [m] or a "
                 f"Flight3D from simulate_3d, got {type(trajectory).__name__}."
             )
+
+    def clip(self, t: np.ndarray) -> np.ndarray:
+        """``t`` limited to the times the trajectory covers (for one-sided differences)."""
+        return t if self.span is None else np.clip(t, *self.span)
 
     def __call__(self, t: np.ndarray) -> np.ndarray:
         t = np.asarray(t, dtype=float).ravel()
@@ -553,49 +508,9 @@ class ViewRenderer:
         return scene * k + c
 
     # -- the outline, vectorised over times -------------------------------------------------
-    def _ellipses(self, t: np.ndarray) -> dict[str, np.ndarray]:
-        """The ideal outline ellipses at times ``t`` (flat): centre (n, 2) [px], semi-axes
-        ``a``, ``b`` [px], ``angle`` [rad] (the conic of :meth:`Camera.sphere_outline`),
-        the world position ``p`` (n, 3) [m] and the depth ``z`` [m]; NaN behind the camera."""
-        cam, rho = self.camera, self.radius
-        p = self._path(t)
-        c = p @ cam.rotation.T + cam.translation
-        ok = c[:, 2] > rho * (1.0 + 1e-9)
-        cs = np.where(ok[:, None], c, [0.0, 0.0, 1.0 + 2.0 * rho])
-        q = cs[:, :, None] * cs[:, None, :] - (np.sum(cs * cs, axis=1) - rho * rho)[
-            :, None, None
-        ] * np.eye(3)
-        kinv = self._kinv
-        qp = np.einsum("ji,njk,kl->nil", kinv, q, kinv)
-        qp /= np.linalg.norm(qp, axis=(1, 2))[:, None, None]
-        a2, b2 = qp[:, :2, :2], qp[:, :2, 2]
-        centre = np.linalg.solve(a2, -b2[:, :, None])[:, :, 0]
-        f0 = qp[:, 2, 2] + np.sum(b2 * centre, axis=1)
-        sgn = np.where(f0 > 0, -1.0, 1.0)
-        lam, vec = np.linalg.eigh(a2 * sgn[:, None, None])
-        f0 = f0 * sgn
-        out = {
-            "centre": centre,
-            "a": np.sqrt(-f0 / lam[:, 0]),
-            "b": np.sqrt(-f0 / lam[:, 1]),
-            "angle": np.arctan2(vec[:, 1, 0], vec[:, 0, 0]) % math.pi,
-            "p": p,
-            "z": c[:, 2],
-        }
-        for key in ("centre", "a", "b", "angle", "z"):
-            v = out[key]
-            v[~ok] = np.nan
-        return out
-
-    @staticmethod
-    def _points(ell: dict[str, np.ndarray], m: int) -> np.ndarray:
-        """``m`` points along each ellipse, shape (n, m, 2), ideal pixels. [px]"""
-        s = np.linspace(0.0, 2.0 * math.pi, m, endpoint=False)
-        x = ell["a"][:, None] * np.cos(s)
-        y = ell["b"][:, None] * np.sin(s)
-        ca, sa = np.cos(ell["angle"])[:, None], np.sin(ell["angle"])[:, None]
-        c = ell["centre"]
-        return np.stack([c[:, :1] + ca * x - sa * y, c[:, 1:] + sa * x + ca * y], axis=-1)
+    def _ellipses(self, t: np.ndarray) -> OutlineEllipses:
+        """The ideal outline ellipses at times ``t`` (flat array)."""
+        return outline_ellipses(self.camera, self._path(t), self.radius)
 
     def _distort(self, pix: np.ndarray) -> np.ndarray:
         """Ideal pixels to the recorded image (:meth:`Camera.distort`, NaN kept). [px]"""
@@ -612,7 +527,7 @@ class ViewRenderer:
     def _centres(self, t: np.ndarray) -> np.ndarray:
         """Outline centres in the recorded image at times ``t``, shape ``t.shape + (2,)``."""
         t = np.asarray(t, dtype=float)
-        return self._distort(self._ellipses(t.ravel())["centre"]).reshape(*t.shape, 2)
+        return self._distort(self._ellipses(t.ravel()).centre).reshape(*t.shape, 2)
 
     def _sub_offsets(self, path_px: float) -> np.ndarray:
         """Midpoints of the exposure's sub-steps for an image path of ``path_px`` [px]."""
@@ -636,9 +551,9 @@ class ViewRenderer:
                 if step <= 1e-13:
                     break
         ell = self._ellipses(t)
-        centre = self._distort(ell["centre"])
+        centre = self._distort(ell.centre)
         half = max(self.exposure / 2, 1e-5)
-        motion = self._centres(t + half) - self._centres(t - half)
+        motion = self._centres(self._path.clip(t + half)) - self._centres(self._path.clip(t - half))
         speed = np.hypot(motion[:, 0], motion[:, 1])
         moving = speed > 0
         nrm = np.where(
@@ -646,7 +561,7 @@ class ViewRenderer:
             np.stack([-motion[:, 1], motion[:, 0]], axis=1) / np.where(moving, speed, 1.0)[:, None],
             [0.0, 1.0],
         )
-        pts = self._distort(self._points(ell, _OUTLINE_POINTS))
+        pts = self._distort(ellipse_points(ell, _OUTLINE_POINTS))
         across = np.einsum("nmk,nk->nm", pts, nrm)
         diameter = across.max(axis=1) - across.min(axis=1)
         path = float(np.nanmax(speed, initial=0.0)) * self.exposure / (2 * half)
@@ -657,7 +572,7 @@ class ViewRenderer:
         blur = steps * len(taus) / max(len(taus) - 1, 1)
         edge = np.full(len(t), np.inf)
         for tau in (-self.exposure / 2, 0.0, self.exposure / 2):
-            q = self._distort(self._points(self._ellipses(t + tau), _OUTLINE_POINTS))
+            q = self._distort(ellipse_points(self._ellipses(t + tau), _OUTLINE_POINTS))
             d = np.minimum.reduce(
                 [q[..., 0] + 0.5, w - 0.5 - q[..., 0], q[..., 1] + 0.5, h - 0.5 - q[..., 1]]
             )
@@ -666,16 +581,16 @@ class ViewRenderer:
         fields = dict(
             frame_time=ft.copy(),
             t=t,
-            position=ell["p"],
-            depth=ell["z"],
+            position=ell.position,
+            depth=ell.depth,
             u_px=centre[:, 0].copy(),
             v_px=centre[:, 1].copy(),
             u_mean_px=mean[:, 0].copy(),
             v_mean_px=mean[:, 1].copy(),
             diameter_px=diameter,
-            semi_major_px=ell["a"],
-            semi_minor_px=ell["b"],
-            angle=ell["angle"],
+            semi_major_px=ell.semi_major,
+            semi_minor_px=ell.semi_minor,
+            angle=ell.angle,
             row_top=pts[..., 1].min(axis=1),
             row_bottom=pts[..., 1].max(axis=1),
             blur_px=blur,
@@ -707,8 +622,8 @@ class ViewRenderer:
             -self.exposure / 2, cam.readout_time + self.exposure / 2, n_t
         )
         ell = self._ellipses(times.ravel())
-        pts = self._distort(self._points(ell, 48)).reshape(len(times), -1, 2)
-        cen = self._distort(ell["centre"]).reshape(len(times), n_t, 2)
+        pts = self._distort(ellipse_points(ell, 48)).reshape(len(times), -1, 2)
+        cen = self._distort(ell.centre).reshape(len(times), n_t, 2)
         step = np.hypot(*np.diff(cen, axis=1).transpose(2, 0, 1)).max(axis=1)
         boxes: list[tuple[int, int, int, int, float] | None] = []
         for k in range(len(times)):
@@ -766,7 +681,7 @@ class ViewRenderer:
         my = np.ascontiguousarray(kinv[1, 1] * vi + kinv[1, 2])
         acc_a = np.zeros(mx.shape)
         acc_i = np.zeros(mx.shape)
-        _sphere_coverage(
+        sphere_coverage(
             mx, my, np.ascontiguousarray(cc), self.radius, ss, kinv[0, 0], kinv[1, 1],
             self.ambient, self.light, acc_a, acc_i,
         )  # fmt: skip
