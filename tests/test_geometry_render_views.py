@@ -18,11 +18,9 @@ Independent references used here:
 
 from __future__ import annotations
 
-import json
 import math
 import re
 
-import cv2
 import numpy as np
 import pytest
 
@@ -32,9 +30,7 @@ from fitdrag.geometry.pose import MarkerBoard, camera_pose_from_markers
 from fitdrag.geometry.render_views import (
     ViewRenderer,
     camera_looking_at,
-    render_view,
     render_views,
-    write_view,
 )
 from fitdrag.physics.air import Air
 from fitdrag.physics.flight3d import Launch3D, simulate_3d
@@ -265,35 +261,6 @@ def test_visibility_at_the_edge_and_behind_the_camera():
     r = ViewRenderer(lambda t: across(t) + [0, 0, 4.0], cam, 2, FPS, radius=RADIUS, **PLAIN)
     assert not r.truth.visible.any() and np.isnan(r.truth.u_px).all()
     assert np.array_equal(r.frame(0), np.rint(r.scene).astype(np.uint8))
-
-
-def test_footage_and_truth_files(tmp_path):
-    """regression: write_view writes a Motion-JPEG AVI that reads back with the frames'
-    count and size, and a JSON truth (labelled synthetic) that reads back equal to the truth;
-    an existing file is not overwritten without force."""
-    cam = oblique(lens(readout=1e-3))
-    foot = render_view(throw, cam, 5, FPS, radius=RADIUS, seed=2)
-    video, truth = write_view(foot, tmp_path / "a.avi", tmp_path / "a.json")
-    cap = cv2.VideoCapture(str(video))
-    n = 0
-    while True:
-        ok, img = cap.read()
-        if not ok:
-            break
-        assert img.shape[:2] == (800, 1280)
-        assert np.abs(img[..., 0].astype(float) - foot.frames[n]).mean() < 2.0
-        n += 1
-    assert n == 5
-    doc = json.loads(truth.read_text())
-    assert doc["synthetic"] is True
-    np.testing.assert_allclose(doc["frames"]["u_px"], foot.truth.u_px, rtol=1e-15)
-    np.testing.assert_allclose(doc["frames"]["t_s"], foot.truth.t, rtol=1e-15)
-    np.testing.assert_allclose(doc["camera"]["rotation"], cam.rotation, rtol=1e-15)
-    assert doc["camera"]["readout_time_s"] == 1e-3
-    with pytest.raises(InputError, match="file exists"):
-        write_view(foot, tmp_path / "b.avi", tmp_path / "a.json")
-    r = ViewRenderer(throw, cam, 5, FPS, radius=RADIUS, seed=2)
-    write_view(r, tmp_path / "a.avi", tmp_path / "a.json", force=True)
 
 
 def test_renderer_is_reproducible_and_noise_is_as_stated():
