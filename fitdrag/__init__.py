@@ -12,7 +12,7 @@ The names below are imported from their stage on first use (a lazy package face)
 ``import fitdrag`` and ``fitdrag --version`` load nothing else.  The stages, in the order
 data flows: ``physics`` (air, specimen, forces, drag laws, simulator), ``tracks`` (the track
 hand-off and its CSV files), ``video`` (footage to pixel positions and calibration), ``geometry`` (camera model, pose from
-the marker board, projection, row timing), ``fit``,
+the marker board, projection, row timing, synthetic perspective footage), ``fit``,
 ``uncertainty`` (GUM budget, Monte Carlo, decision rules), ``report`` and ``run`` (job files,
 pipeline, records, demo); ``cli`` and ``commands`` sit on top.
 """
@@ -37,6 +37,12 @@ _WHERE = {
     "BoardPose": "fitdrag.geometry.pose",
     "MarkerBoard": "fitdrag.geometry.pose",
     "camera_pose_from_markers": "fitdrag.geometry.pose",
+    "ViewRenderer": "fitdrag.geometry.render_views",
+    "render_view": "fitdrag.geometry.render_views",
+    "render_views": "fitdrag.geometry.render_views",
+    "ViewFootage": "fitdrag.geometry.view_truth",
+    "ViewTruth": "fitdrag.geometry.view_truth",
+    "write_view": "fitdrag.geometry.view_truth",
     "Air": "fitdrag.physics.air",
     "CIPMRangeWarning": "fitdrag.physics.air",
     "STANDARD_GRAVITY": "fitdrag.physics.air",

@@ -6,7 +6,12 @@ The stage between footage (:mod:`fitdrag.video`) and the fit (:mod:`fitdrag.fit`
   with OpenCV's distortion model, pose, rolling-shutter readout): projection with its
   Jacobians, back-projected rays, row times, the exact image outline of a sphere;
 * :mod:`fitdrag.geometry.pose` - the camera's pose from the marker board (PnP on all marker
-  corners) with its covariance.
+  corners) with its covariance;
+* :mod:`fitdrag.geometry.sphere_image` - the exact image outline of a sphere (vectorised) and
+  the supersampled coverage kernel;
+* :mod:`fitdrag.geometry.render_views` - synthetic perspective footage of a flying sphere per
+  camera (distortion, rolling shutter, motion blur, time offset, marker board);
+* :mod:`fitdrag.geometry.view_truth` - its exact truth per frame and the files (MJPG, JSON).
 
 World frame: the marker board plane is z = 0, x along the board, y up, z towards the camera.
 Image: u to the right, v down (pixel centres at whole numbers, as in OpenCV).
