@@ -115,7 +115,11 @@ def test_result_fields_and_warm_start():
     r = fit_views(views, ref.BALL, ref.AIR)
     assert r.success and r.launch_time == 0.0 and r.reference_time < -2e-3
     assert r.depth_range[0] <= r.launch.z0 <= r.depth_range[1]
-    assert r.noise_model == "white" and r.dof > 1000 and r.coverage_factor == pytest.approx(2.0, abs=0.01)
+    assert (
+        r.noise_model == "white"
+        and r.dof > 1000
+        and r.coverage_factor == pytest.approx(2.0, abs=0.01)
+    )
     assert r.time_offsets[0] == 0.0 and len(r.launch_uncertainty) == 6
     again = fit_views(views, ref.BALL, ref.AIR, initial=r.as_initial())
     assert again.cd == pytest.approx(r.cd, abs=1e-3 * r.u_cd)

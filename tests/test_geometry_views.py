@@ -57,7 +57,7 @@ def test_outline_jacobians_match_finite_differences():
     for k in range(3):
         e = np.zeros(3)
         e[k] = h
-        fc = (outline_centre(cam, POINTS + e, RADIUS)[0] - outline_centre(cam, POINTS - e, RADIUS)[0])
+        fc = outline_centre(cam, POINTS + e, RADIUS)[0] - outline_centre(cam, POINTS - e, RADIUS)[0]
         fw = (outline_width(cam, POINTS + e, RADIUS, DIRECTIONS)[0]
               - outline_width(cam, POINTS - e, RADIUS, DIRECTIONS)[0])  # fmt: skip
         np.testing.assert_allclose(fc / (2 * h), jc[:, :, k], atol=1e-6 * np.abs(jc).max())

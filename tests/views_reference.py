@@ -92,7 +92,9 @@ def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3
     u = centres[:, 0] + rng.normal(0.0, sigma, n)
     v = centres[:, 1] + rng.normal(0.0, sigma, n)
     d = diam + rng.normal(0.0, diameter_sigma, n)
-    stated = None if time_offset == "estimate" else (offset if time_offset == "true" else time_offset)
+    stated = (
+        None if time_offset == "estimate" else (offset if time_offset == "true" else time_offset)
+    )
     # a tracker sees the ball only while all of it is inside the image
     margin = 0.6 * diam
     seen = np.all((centres > margin[:, None]) & (centres < np.array([w, h]) - margin[:, None]), 1)

@@ -508,7 +508,6 @@ def fit_views(
     problem.set_noise(levels=levels)
 
     messages: list[str] = []
-    before = problem.n_evaluations
     best = None
     for cd_try in (None, 0.1, 2.0):
         th0 = theta.copy()
@@ -716,8 +715,7 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
     u_cd = float(math.sqrt(max(g @ cov @ g, 0.0))) if finite else math.nan
     if noise_model == "ar1":
         n_eff = sum(
-            ch.observed.size * min(1.0, (1.0 - ch.phi) / (1.0 + ch.phi))
-            for ch in problem.channels
+            ch.observed.size * min(1.0, (1.0 - ch.phi) / (1.0 + ch.phi)) for ch in problem.channels
         )
         dof = max(1, int(n_eff - problem.n_params))
     else:

@@ -6,7 +6,9 @@ The stage between footage (:mod:`fitdrag.video`) and the fit (:mod:`fitdrag.fit`
   with OpenCV's distortion model, pose, rolling-shutter readout): projection with its
   Jacobians, back-projected rays, row times, the exact image outline of a sphere;
 * :mod:`fitdrag.geometry.pose` - the camera's pose from the marker board (PnP on all marker
-  corners) with its covariance.
+  corners) with its covariance;
+* :mod:`fitdrag.geometry.views` - :class:`~fitdrag.geometry.views.CameraView` (one camera's
+  observations of one throw) and the closed-form centre and width of a sphere's image outline.
 
 World frame: the marker board plane is z = 0, x along the board, y up, z towards the camera.
 Image: u to the right, v down (pixel centres at whole numbers, as in OpenCV).

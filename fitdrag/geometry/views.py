@@ -304,7 +304,9 @@ def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.nda
         scale = rho2 / den
     _, dd = _distorted(camera, a * g, b * g)  # d(pixel)/d(normalised): F times distortion
     w = np.stack([a, b], axis=1)
-    m = scale[:, None, None] * (np.eye(2)[None] + w[:, :, None] * w[:, None, :] / den[:, None, None])
+    m = scale[:, None, None] * (
+        np.eye(2)[None] + w[:, :, None] * w[:, None, :] / den[:, None, None]
+    )
     mr = dd @ m @ np.transpose(dd, (0, 2, 1))
     q = np.einsum("ni,nij,nj->n", normals, mr, normals)
     with np.errstate(invalid="ignore"):
