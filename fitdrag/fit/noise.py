@@ -64,8 +64,8 @@ def prais_winsten(a, gaps, phi: float):
     return w
 
 
-def reml_ar1(r0, j0, blocks, start) -> tuple[float, float]:
-    """AR(1) coefficients (x, y) by restricted maximum likelihood at the current fit [5].
+def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
+    """AR(1) coefficients per noise channel (x, y, ...) by restricted maximum likelihood [5].
 
     The lag-1 autocorrelation of least-squares residuals underestimates φ (the fitted
     launch state and drag absorb part of the slow, correlated error); the restricted
@@ -75,9 +75,10 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, float]:
 
     with S the minimum whitened sum of squares of the linearised problem, d the frame gap
     of each whitened row and J̃ the whitened Jacobian (noise levels held at their current
-    estimates).  Minimised per axis in turn over φ ∈ (−0.98, 0.98).  One variance is
-    profiled over both axes while φ is per axis — an approximation to the full restricted
-    likelihood, adequate because the weights already equalise the axes' noise levels.
+    estimates).  Minimised per channel in turn over φ ∈ (−0.98, 0.98).  One variance is
+    profiled over all channels while φ is per channel — an approximation to the full
+    restricted likelihood, adequate because the weights already equalise the channels' noise
+    levels.  A channel is an axis of a track (x, y) or of a camera's image (u, v, diameter).
 
     Parameters
     ----------
@@ -86,10 +87,10 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, float]:
     j0 : ndarray
         Their Jacobian with respect to all fitted parameters.
     blocks : sequence of (slice, int, ndarray)
-        Per throw and axis: the rows of ``r0``, the axis (0 = x, 1 = y) and the frame gaps
-        between the kept samples.
-    start : (float, float)
-        Starting coefficients (x, y). [-]
+        Per throw and axis: the rows of ``r0``, the channel (0 = x, 1 = y, or any index into
+        ``start``) and the frame gaps between the kept samples.
+    start : sequence of float
+        Starting coefficients, one per channel (x, y for a track). [-]
     """
     from scipy.optimize import minimize_scalar
 
@@ -117,13 +118,13 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, float]:
         return (n - p) * math.log(ss) + logdet + ld
 
     for _round in range(2):
-        for axis in (0, 1):
+        for axis in range(len(phi)):
             out = minimize_scalar(
                 objective, bounds=(-0.98, 0.98), args=(axis,), method="bounded",
                 options={"xatol": 1e-4},
             )  # fmt: skip
             phi[axis] = float(out.x)
-    return phi[0], phi[1]
+    return tuple(phi)
 
 
 def sign_runs(r: np.ndarray) -> tuple[int, float, float]:

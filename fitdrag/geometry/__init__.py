@@ -7,6 +7,8 @@ The stage between footage (:mod:`fitdrag.video`) and the fit (:mod:`fitdrag.fit`
   Jacobians, back-projected rays, row times, the exact image outline of a sphere;
 * :mod:`fitdrag.geometry.pose` - the camera's pose from the marker board (PnP on all marker
   corners) with its covariance;
+* :mod:`fitdrag.geometry.views` - :class:`~fitdrag.geometry.views.CameraView` (one camera's
+  observations of one throw) and the closed-form centre and width of a sphere's image outline.
 * :mod:`fitdrag.geometry.sphere_image` - the exact image outline of a sphere (vectorised) and
   the supersampled coverage kernel;
 * :mod:`fitdrag.geometry.render_views` - synthetic perspective footage of a flying sphere per

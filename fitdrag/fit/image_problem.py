@@ -1,0 +1,285 @@
+"""The image-space least-squares problem of a 3-D flight seen by one or more cameras.
+
+Residuals are in each camera's pixels: for every observation, the observed blob centroid
+minus the centre of the sphere's image outline (:func:`fitdrag.geometry.views.outline_centre`)
+at the observation's own time, and, where used, the observed apparent diameter minus the
+outline's width across the motion (:func:`fitdrag.geometry.views.outline_width`).  The time
+of an observation is that of its frame plus the view's time offset plus the rolling-shutter
+delay of the row where it was seen::
+
+    t = frame / fps + offset + (v_observed / rows) readout_time
+
+(the observed row, not the predicted one: the difference is the pixel noise times
+readout / rows, below a microsecond).  One 3-D integration
+(:class:`fitdrag.physics.flight3d.FlightModel3D`) serves all cameras at once (their times
+merged and sorted, ties allowed).
+
+Jacobian by the chain rule: d(pixel)/d(world point) (closed form) times the simulator's
+forward sensitivities d(position)/d(θ); for an estimated time offset,
+d(pixel)/d(offset) = d(pixel)/d(point) · velocity.
+
+Parameter layout: the drag law's parameters (then C_L when fitted), the launch state
+(x0, y0, z0, vx0, vy0, vz0) at the reference time ``t_ref``, then one time offset per view
+whose offset is estimated.  Residual layout: per view its noise channels (u, v, then the
+diameter when used), each divided by its noise standard deviation and, under AR(1) noise,
+Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from fitdrag.fit.noise import prais_winsten, reml_ar1
+from fitdrag.fit.problem import FAIL_RESIDUAL, FIT_RTOL
+from fitdrag.geometry.views import outline_centre, outline_width
+from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
+
+#: Names of the noise channels of a view.
+CHANNEL_NAMES = ("u", "v", "diameter")
+
+
+class Channel:
+    """One noise channel: a view's u, v or diameter series (mutable fit state inside)."""
+
+    def __init__(self, view_index: int, kind: int, observed, stated, gaps):
+        self.view_index = view_index
+        self.kind = kind  # 0 = u, 1 = v, 2 = diameter
+        self.observed = np.asarray(observed, float)
+        self.stated = None if stated is None else np.asarray(stated, float)
+        self.relative = np.ones_like(self.observed) if stated is None else self.stated.copy()
+        self.level = 1.0  # noise standard deviation = relative * level [px]
+        self.phi = 0.0
+        self.gaps = gaps
+        self.rows = slice(0, 0)
+
+    @property
+    def name(self) -> str:
+        return CHANNEL_NAMES[self.kind]
+
+    @property
+    def sigma(self) -> np.ndarray:
+        return self.relative * self.level
+
+
+class ImageProblem:
+    """Residuals and Jacobian of the image-space fit (cached for a repeated θ).
+
+    Parameters
+    ----------
+    views : list of CameraView
+    specimen : Sphere or Body
+        The specimen; its ``length`` is the sphere's diameter for the outline. [m]
+    conditions : Conditions
+        Air, gravity, buoyancy (wind 0: the wind vector is ``wind``).
+    model : DragModel
+    constants : tuple of float
+        The drag law's fixed constants.
+    lift : bool
+        Fit a constant lift coefficient about ``spin_axis``.
+    wind : ndarray, shape (3,)
+        Constant wind velocity. [m/s]
+    spin_axis : ndarray, shape (3,)
+        Spin axis direction. [-]
+    use_outline : list of bool
+        Per view: whether its diameters enter the fit.
+    offsets : list of float or None
+        Per view: the known time offset [s], or None when it is a fitted parameter.
+    t_ref : float
+        Time of the launch state, at or before every observation. [s]
+    """
+
+    def __init__(self, views, specimen, conditions, model, constants, lift, wind, spin_axis,
+                 use_outline, offsets, t_ref):  # fmt: skip
+        self.views = list(views)
+        self.specimen = specimen
+        self.conditions = conditions
+        self.model = model
+        self.constants = tuple(constants)
+        self.lift = bool(lift)
+        self.wind = np.asarray(wind, float)
+        self.spin_axis = np.asarray(spin_axis, float)
+        self.radius = 0.5 * float(specimen.length)
+        self.t_ref = float(t_ref)
+        self.n_shared = len(model.parameters) + (1 if lift else 0)
+        self.known_offsets = list(offsets)
+        self.offset_index: list[int | None] = []
+        j = self.n_shared + 6
+        for off in self.known_offsets:
+            self.offset_index.append(j if off is None else None)
+            j += off is None
+        self.n_params = j
+        self.use_outline = [bool(u) and v.diameter is not None for u, v in zip(use_outline, views)]
+        self.directions = [v.motion_directions() for v in self.views]
+        self.channels: list[Channel] = []
+        for i, v in enumerate(self.views):
+            gaps = np.diff(v.frames).astype(int)
+            self.channels.append(Channel(i, 0, v.u, v.sigma, gaps))
+            self.channels.append(Channel(i, 1, v.v, v.sigma, gaps))
+            if self.use_outline[i]:
+                self.channels.append(Channel(i, 2, v.diameter, v.diameter_sigma, gaps))
+        row = 0
+        for ch in self.channels:
+            ch.rows = slice(row, row + ch.observed.size)
+            row += ch.observed.size
+        self.n_resid = row
+        self.names: list[str] = []
+        self.bounds: list[tuple[float, float]] = []
+        self._cache_theta = None
+        self._cache = None
+        self.n_evaluations = 0
+
+    # -- layout ------------------------------------------------------------------------------
+    def offsets(self, theta) -> list[float]:
+        """Time offset of every view [s] at ``theta``."""
+        return [
+            float(theta[j]) if j is not None else float(k)
+            for j, k in zip(self.offset_index, self.known_offsets)
+        ]
+
+    def sim_theta(self, theta) -> np.ndarray:
+        ns = self.n_shared
+        return np.concatenate((theta[ns : ns + 6], theta[:ns]))
+
+    def observation_times(self, theta) -> list[np.ndarray]:
+        """Per view, the time each observation was seen (frame, offset, row delay). [s]"""
+        out = []
+        for v, off in zip(self.views, self.offsets(theta)):
+            out.append(v.camera.row_time(v.frame_times + off, v.v))
+        return out
+
+    def flight_model(self, times) -> FlightModel3D:
+        return FlightModel3D(
+            times, self.specimen, self.conditions, self.model, self.constants, self.lift,
+            wind=self.wind, spin_axis=self.spin_axis, t0=self.t_ref, rtol=FIT_RTOL,
+            atol=FIT_RTOL,
+        )  # fmt: skip
+
+    def simulate(self, theta, sens=True):
+        """Per view (positions, velocities, d position/d θ_sim), and ok."""
+        times = self.observation_times(theta)
+        allt = np.concatenate(times)
+        if not np.all(np.isfinite(allt)) or allt.min() < self.t_ref:
+            return None, False
+        order = np.argsort(allt, kind="stable")
+        status, pos, vel, jac, _ = self.flight_model(allt[order]).run(self.sim_theta(theta), sens)
+        if status != 0 or not np.all(np.isfinite(pos)):
+            return None, False
+        inv = np.empty_like(order)
+        inv[order] = np.arange(order.size)
+        pos, vel = pos[inv], vel[inv]
+        jac = jac[inv, :3, :] if sens else None
+        out = []
+        start = 0
+        for t in times:
+            sl = slice(start, start + t.size)
+            out.append((pos[sl], vel[sl], None if jac is None else jac[sl]))
+            start += t.size
+        return out, True
+
+    def predict(self, theta):
+        """Per view the predicted (u, v, diameter or None) [px], and ok."""
+        sims, ok = self.simulate(theta, False)
+        if not ok:
+            return None, False
+        out = []
+        for i, (v, (pos, _vel, _j)) in enumerate(zip(self.views, sims)):
+            pix, _, _ = outline_centre(v.camera, pos, self.radius)
+            d = None
+            if v.diameter is not None:
+                d, _ = outline_width(v.camera, pos, self.radius, self.directions[i])
+            ok = ok and bool(np.all(np.isfinite(pix)))
+            out.append((pix[:, 0], pix[:, 1], d))
+        return out, ok
+
+    def raw_residuals(self, theta) -> list[np.ndarray] | None:
+        """Observed minus predicted for every channel (unweighted) [px]; None on failure."""
+        pred, ok = self.predict(theta)
+        if not ok:
+            return None
+        return [ch.observed - pred[ch.view_index][ch.kind] for ch in self.channels]
+
+    # -- evaluation --------------------------------------------------------------------------
+    def evaluate(self, theta):
+        """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ."""
+        theta = np.asarray(theta, float)
+        if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
+            return self._cache
+        self.n_evaluations += 1
+        res = np.full(self.n_resid, FAIL_RESIDUAL)
+        jac = np.zeros((self.n_resid, self.n_params))
+        sims, ok = self.simulate(theta, True)
+        if ok:
+            ok = self._fill(sims, res, jac)
+        if not ok:
+            res[:] = FAIL_RESIDUAL
+            jac[:] = 0.0
+        self._cache_theta = theta.copy()
+        self._cache = (res, jac, sims, ok)
+        return self._cache
+
+    def _fill(self, sims, res, jac) -> bool:
+        ns = self.n_shared
+        per_view = []
+        for i, (v, (pos, vel, sj)) in enumerate(zip(self.views, sims)):
+            pix, dpix, _ = outline_centre(v.camera, pos, self.radius, jacobians=True)
+            if not np.all(np.isfinite(pix)) or not np.all(np.isfinite(dpix)):
+                return False
+            entry = {0: (pix[:, 0], dpix[:, 0, :]), 1: (pix[:, 1], dpix[:, 1, :])}
+            if self.use_outline[i]:
+                w, dw = outline_width(v.camera, pos, self.radius, self.directions[i],
+                                      jacobians=True)  # fmt: skip
+                if not (np.all(np.isfinite(w)) and np.all(np.isfinite(dw))):
+                    return False
+                entry[2] = (w, dw)
+            per_view.append((entry, vel, sj))
+        for ch in self.channels:
+            entry, vel, sj = per_view[ch.view_index]
+            pred, dpoint = entry[ch.kind]
+            inv_s = 1.0 / ch.sigma
+            r = (ch.observed - pred) * inv_s
+            dsim = np.einsum("nk,nkp->np", dpoint, sj)  # d pred / d θ_sim
+            j = np.zeros((r.size, self.n_params))
+            j[:, ns : ns + 6] = dsim[:, :6]
+            j[:, :ns] = dsim[:, 6:]
+            col = self.offset_index[ch.view_index]
+            if col is not None:
+                j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
+            j *= -inv_s[:, None]
+            if ch.phi != 0.0:
+                r = prais_winsten(r, ch.gaps, ch.phi)
+                j = prais_winsten(j, ch.gaps, ch.phi)
+            res[ch.rows] = r
+            jac[ch.rows] = j
+        return True
+
+    # -- noise state -------------------------------------------------------------------------
+    def set_noise(self, levels=None, phis=None) -> None:
+        """Set each channel's noise level [px] (relative to its stated sigma) and AR(1) φ."""
+        if levels is not None:
+            for ch, lv in zip(self.channels, levels):
+                ch.level = float(lv)
+        if phis is not None:
+            for ch, f in zip(self.channels, phis):
+                ch.phi = float(f)
+        self._cache_theta = None
+
+    def blocks(self) -> list[tuple[slice, int, np.ndarray]]:
+        """Per channel: (rows of the residual vector, channel index, frame gaps)."""
+        return [(ch.rows, c, ch.gaps) for c, ch in enumerate(self.channels)]
+
+    def reml_ar1(self, theta) -> tuple[float, ...]:
+        """AR(1) coefficient of every channel by restricted maximum likelihood at ``theta``
+        (:func:`fitdrag.fit.noise.reml_ar1`); the current ones when the flight fails."""
+        saved = [ch.phi for ch in self.channels]
+        self.set_noise(phis=[0.0] * len(self.channels))
+        r0, j0, _sims, ok = self.evaluate(theta)
+        self.set_noise(phis=saved)
+        if not ok:
+            return tuple(saved)
+        return reml_ar1(r0, j0, self.blocks(), saved)
+
+    def parameter_names(self) -> list[str]:
+        names = list(self.model.parameters) + (["lift_coefficient"] if self.lift else [])
+        names += list(LAUNCH_NAMES_3D)
+        names += [f"time_offset_{i + 1}" for i, j in enumerate(self.offset_index) if j is not None]
+        return names

@@ -1,0 +1,363 @@
+"""One camera's observations of one throw, and the image of a sphere the fit compares them with.
+
+A :class:`CameraView` holds what one camera saw of one throw: the calibrated
+:class:`~fitdrag.geometry.camera.Camera` (intrinsics, pose, rolling-shutter readout), the
+frame numbers and frame rate, the centroid of the specimen's blob in each frame (u right,
+v down, in the recorded image), optionally the blob's apparent diameter across the direction
+of motion, and the time of this camera's frame 0 relative to the first camera's (known, or
+``None`` to be estimated by the fit).
+
+The image of a sphere (centre ``C = (a, b, c)`` in the camera frame, radius ``rho``) is the
+ellipse of the cone of tangent rays (:meth:`Camera.sphere_outline`, Hartley and Zisserman
+[1]_ sec. 8.3).  Writing that cone ``Q = C C^T - (|C|^2 - rho^2) I`` in normalised image
+coordinates and completing the square (its 2x2 block ``w w^T - s I`` with ``w = (a, b)``,
+``s = |C|^2 - rho^2`` inverts by the Sherman-Morrison formula [2]_) gives closed forms:
+
+* the ellipse's centre (the centroid of the blob, not the image of the sphere's centre)::
+
+      (x, y) = (a, b) c / (c^2 - rho^2)
+
+  i.e. the image of the sphere's centre pushed away from the principal point by the factor
+  ``1 / (1 - (rho / c)^2)``;
+* its shape matrix ``M`` (the ellipse is ``(m - m0)^T M^-1 (m - m0) <= 1``)::
+
+      M = rho^2 / (c^2 - rho^2) (I + w w^T / (c^2 - rho^2))
+
+  and in pixels ``F M F`` with ``F = diag(fx, fy)``; its width across a unit image
+  direction ``d`` is ``2 sqrt(n^T M n)`` with ``n`` the unit normal of ``d`` (support
+  function of an ellipse).
+
+Lens distortion moves the centre through the distortion model (the ideal centre is mapped to
+the recorded image) and scales the small outline by the distortion's local Jacobian ``J``
+(``M_recorded = J M J^T``); both are first-order exact for a blob a few tens of pixels wide.
+A rolling shutter shears the blob along its motion, which leaves its width across the motion
+unchanged (the shear ``I + k d e_v^T`` maps the normal ``n`` of ``d`` to itself), and motion
+blur stretches it along the motion only: this is why the diameter is measured across the
+motion.
+
+References
+----------
+.. [1] R. Hartley and A. Zisserman, *Multiple View Geometry in Computer Vision*, 2nd ed.,
+   Cambridge University Press, 2004: sec. 8.3 (the cone of rays tangent to a quadric),
+   sec. 2.2.3 (conics, their centre and tangent lines).
+.. [2] J. Sherman and W. J. Morrison, "Adjustment of an inverse matrix corresponding to a
+   change in one element of a given matrix", Annals of Mathematical Statistics 21(1),
+   124-127, 1950.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+
+from fitdrag.errors import InputError
+from fitdrag.geometry.camera import Camera
+
+__all__ = ["MIN_VIEW_POINTS", "CameraView", "outline_centre", "outline_width"]
+
+#: Fewest observed frames a view must have.
+MIN_VIEW_POINTS = 8
+
+
+def _series(name: str, value: Any, n: int | None, unit: str, *, positive: bool = False):
+    try:
+        a = np.array(value, dtype=float).reshape(-1)
+    except (TypeError, ValueError):
+        raise InputError(f"{name}: expected a sequence of numbers {unit}, got {value!r}.") from None
+    if n is not None and a.size == 1 and n > 1:
+        a = np.full(n, float(a[0]))
+    if n is not None and a.size != n:
+        raise InputError(
+            f"{name}: expected one value per frame ({n} frames), got {a.size}; give the "
+            f"observations of the same frames in the same order."
+        )
+    bad = ~np.isfinite(a) | ((a <= 0) if positive else np.zeros(a.size, bool))
+    if np.any(bad):
+        i = int(np.flatnonzero(bad)[0])
+        need = "finite and > 0" if positive else "finite"
+        raise InputError(
+            f"{name}: every value must be {need} {unit}; item {i} is {float(a[i])!r}; drop the "
+            f"frames where the specimen was not measured (do not pass NaN)."
+        )
+    a.setflags(write=False)
+    return a
+
+
+@dataclass(frozen=True, eq=False)
+class CameraView:
+    """One camera's observations of one throw.
+
+    Parameters
+    ----------
+    camera : Camera
+        The calibrated camera: intrinsics, pose (world = marker board frame) and readout.
+    frames : sequence of int
+        Frame number of each observation, strictly increasing (gaps allowed). [1]
+    fps : float
+        Frame rate; frame ``n`` starts (row 0) at ``n / fps + time_offset``. [1/s]
+    u, v : sequence of float
+        Centroid of the specimen's blob in the recorded image, u right, v down. [px]
+    sigma : float or sequence of float, optional
+        Standard uncertainty of one centroid coordinate; None = estimated from the fit's
+        residuals. A stated value is a floor: the fit never uses less. [px]
+    diameter : sequence of float, optional
+        Apparent diameter of the blob measured across the direction of motion. [px]
+    diameter_sigma : float or sequence of float, optional
+        Standard uncertainty of ``diameter``; None = estimated from the residuals. [px]
+    time_offset : float or None
+        Time of this view's frame 0 minus that of the first view's; None = estimate it
+        (the first view's is 0 by definition). [s]
+    name : str
+        A label for messages and reports.
+    """
+
+    camera: Camera
+    frames: Any
+    fps: float
+    u: Any
+    v: Any
+    sigma: Any = None
+    diameter: Any = None
+    diameter_sigma: Any = None
+    time_offset: float | None = None
+    name: str = ""
+
+    def __post_init__(self) -> None:
+        label = f"view {self.name!r}: " if self.name else ""
+        if not isinstance(self.camera, Camera):
+            raise InputError(
+                f"{label}camera: expected a fitdrag.Camera, got {type(self.camera).__name__}; "
+                f"build one with Camera.from_lens(lens, rotation, translation) or take it from "
+                f"camera_pose_from_markers."
+            )
+        try:
+            fr = np.array(self.frames).reshape(-1)
+            frames = fr.astype(np.int64)
+            whole = fr.size == 0 or bool(np.all(fr == frames))
+        except (TypeError, ValueError, OverflowError):
+            whole = False
+        if not whole:
+            raise InputError(
+                f"{label}frames: expected whole frame numbers, got {self.frames!r}; give the "
+                f"frame index of each observation."
+            )
+        n = frames.size
+        if n < MIN_VIEW_POINTS:
+            raise InputError(
+                f"{label}frames: a view needs at least {MIN_VIEW_POINTS} observed frames, got "
+                f"{n}; track more of the flight or leave this camera out."
+            )
+        steps = np.diff(frames)
+        if np.any(steps <= 0):
+            i = int(np.flatnonzero(steps <= 0)[0]) + 1
+            raise InputError(
+                f"{label}frames: frame numbers must be strictly increasing; frame[{i}] = "
+                f"{int(frames[i])} follows {int(frames[i - 1])}; sort the observations by frame "
+                f"and drop duplicates."
+            )
+        frames.setflags(write=False)
+        object.__setattr__(self, "frames", frames)
+        try:
+            fps = float(self.fps)
+        except (TypeError, ValueError):
+            fps = math.nan
+        if not (math.isfinite(fps) and fps > 0):
+            raise InputError(f"{label}fps: expected a frame rate > 0 [1/s], got {self.fps!r}.")
+        object.__setattr__(self, "fps", fps)
+        for name in ("u", "v"):
+            object.__setattr__(self, name, _series(label + name, getattr(self, name), n, "[px]"))
+        if self.sigma is not None:
+            object.__setattr__(
+                self, "sigma", _series(label + "sigma", self.sigma, n, "[px]", positive=True)
+            )
+        if self.diameter is not None:
+            object.__setattr__(
+                self,
+                "diameter",
+                _series(label + "diameter", self.diameter, n, "[px]", positive=True),
+            )
+        if self.diameter_sigma is not None:
+            if self.diameter is None:
+                raise InputError(
+                    f"{label}diameter_sigma: given without a diameter; give the apparent "
+                    f"diameters too, or leave diameter_sigma out."
+                )
+            object.__setattr__(
+                self,
+                "diameter_sigma",
+                _series(label + "diameter_sigma", self.diameter_sigma, n, "[px]", positive=True),
+            )
+        if self.time_offset is not None:
+            try:
+                off = float(self.time_offset)
+            except (TypeError, ValueError):
+                off = math.nan
+            if not math.isfinite(off):
+                raise InputError(
+                    f"{label}time_offset: expected a finite number [s] or None (estimate it), "
+                    f"got {self.time_offset!r}."
+                )
+            object.__setattr__(self, "time_offset", off)
+
+    def __len__(self) -> int:
+        return int(self.frames.size)
+
+    @property
+    def frame_times(self) -> np.ndarray:
+        """Time of row 0 of each observed frame, without the view's time offset. [s]"""
+        return self.frames / self.fps
+
+    @property
+    def pixels(self) -> np.ndarray:
+        """Observed centroids, shape (n, 2). [px]"""
+        return np.column_stack((self.u, self.v))
+
+    def motion_directions(self) -> np.ndarray:
+        """Unit image direction of motion at each frame from the observed centroids, (n, 2).
+
+        Differences over about four frames on either side (central inside the track, one-sided
+        at its ends), so that the pixel noise hardly turns the direction. [1]
+        """
+        n = len(self)
+        k = min(4, n - 1)
+        idx = np.arange(n)
+        hi = np.minimum(idx + k, n - 1)
+        lo = np.maximum(idx - k, 0)
+        d = self.pixels[hi] - self.pixels[lo]
+        norm = np.hypot(d[:, 0], d[:, 1])
+        d = d / np.where(norm > 0, norm, 1.0)[:, None]
+        d[norm == 0] = (1.0, 0.0)
+        return d
+
+    def with_time_offset(self, time_offset: float | None) -> CameraView:
+        """The same view with another time offset [s] (None = estimate it)."""
+        return replace(self, time_offset=time_offset)
+
+
+# --------------------------------------------------------------------------- sphere images
+
+
+def _ideal(camera: Camera) -> Camera:
+    return replace(camera, rotation=np.eye(3), translation=np.zeros(3))
+
+
+def _distorted(camera: Camera, xn: np.ndarray, yn: np.ndarray):
+    """Recorded pixels of normalised points and d(pixel)/d(xn, yn), shape (n, 2, 2)."""
+    pts = np.stack([xn, yn, np.ones_like(xn)], axis=1)
+    pr = _ideal(camera).project(pts, jacobians=True)
+    # at Z_c = 1 the normalisation's Jacobian is [[1, 0, -x], [0, 1, -y]]: columns 0 and 1
+    # of d_point are d(pixel)/d(xn, yn)
+    return pr.pixels, pr.d_point[:, :, :2]
+
+
+def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobians=False):
+    """Centre of a sphere's image outline in the recorded image (the blob's centroid).
+
+    Parameters
+    ----------
+    camera : Camera
+    points_world : array_like, shape (n, 3)
+        Sphere centres, world frame. [m]
+    radius : float
+        Sphere radius. [m]
+    jacobians : bool
+        Also return d(u, v)/d(point), shape (n, 2, 3), exact (closed form, module notes).
+
+    Returns
+    -------
+    (ndarray, ndarray or None, ndarray)
+        Pixels (n, 2) [px], the Jacobian [px/m] or None, and the depth ``Z_c`` (n,) [m].
+        Where ``Z_c <= radius`` the sphere is not wholly in front of the camera and the
+        pixels are NaN.
+    """
+    pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
+    pc = camera.to_camera(pw)
+    a, b, c = pc[:, 0], pc[:, 1], pc[:, 2]
+    rho2 = float(radius) ** 2
+    den = c * c - rho2
+    ok = c > float(radius)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g = np.where(ok, c / den, np.nan)
+    pix, dd = _distorted(camera, a * g, b * g)
+    if not jacobians:
+        return pix, None, c
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gp = np.where(ok, -(c * c + rho2) / (den * den), np.nan)
+    dn = np.zeros((pw.shape[0], 2, 3))  # d(xn, yn) / d(a, b, c)
+    dn[:, 0, 0] = g
+    dn[:, 0, 2] = a * gp
+    dn[:, 1, 1] = g
+    dn[:, 1, 2] = b * gp
+    jac = np.einsum("nij,njk->nik", dd, dn) @ camera.rotation
+    return pix, jac, c
+
+
+def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.ndarray):
+    a, b, c = pc[:, 0], pc[:, 1], pc[:, 2]
+    rho2 = float(radius) ** 2
+    den = c * c - rho2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        g = c / den
+        scale = rho2 / den
+    _, dd = _distorted(camera, a * g, b * g)  # d(pixel)/d(normalised): F times distortion
+    w = np.stack([a, b], axis=1)
+    m = scale[:, None, None] * (
+        np.eye(2)[None] + w[:, :, None] * w[:, None, :] / den[:, None, None]
+    )
+    mr = dd @ m @ np.transpose(dd, (0, 2, 1))
+    q = np.einsum("ni,nij,nj->n", normals, mr, normals)
+    with np.errstate(invalid="ignore"):
+        out = 2.0 * np.sqrt(q)
+    return np.where(c > float(radius), out, np.nan)
+
+
+def outline_width(
+    camera: Camera, points_world: Any, radius: float, directions: Any, *, jacobians=False
+):
+    """Width of a sphere's image outline across image directions (the apparent diameter).
+
+    Parameters
+    ----------
+    camera : Camera
+    points_world : array_like, shape (n, 3)
+        Sphere centres, world frame. [m]
+    radius : float
+        Sphere radius. [m]
+    directions : array_like, shape (n, 2)
+        Image direction of motion at each point (any length > 0); the width is measured
+        across it. [px]
+    jacobians : bool
+        Also return d(width)/d(point), shape (n, 3), by central differences of the closed
+        form in the camera frame (step 1e-6 of the depth; truncation error ~1e-12 relative).
+
+    Returns
+    -------
+    (ndarray, ndarray or None)
+        Widths (n,) [px] (NaN where the sphere is not wholly in front of the camera) and the
+        Jacobian [px/m] or None.
+    """
+    pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
+    d = np.asarray(directions, dtype=float).reshape(-1, 2)
+    norm = np.hypot(d[:, 0], d[:, 1])
+    if d.shape[0] != pw.shape[0] or np.any(~(norm > 0)):
+        raise InputError(
+            f"directions: expected one non-zero image direction (du, dv) per point "
+            f"({pw.shape[0]}), got shape {d.shape}."
+        )
+    normals = np.stack([-d[:, 1], d[:, 0]], axis=1) / norm[:, None]
+    pc = camera.to_camera(pw)
+    width = _width_camera(camera, pc, radius, normals)
+    if not jacobians:
+        return width, None
+    h = 1e-6 * np.maximum(np.abs(pc[:, 2]), 1e-3)
+    dcam = np.empty((pw.shape[0], 3))
+    for k in range(3):
+        step = np.zeros_like(pc)
+        step[:, k] = h
+        up = _width_camera(camera, pc + step, radius, normals)
+        dn = _width_camera(camera, pc - step, radius, normals)
+        dcam[:, k] = (up - dn) / (2.0 * h)
+    return width, dcam @ camera.rotation

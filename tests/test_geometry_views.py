@@ -1,0 +1,117 @@
+"""Tests of fitdrag.geometry.views: the sphere outline's closed forms and CameraView input."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from fitdrag.errors import InputError
+from fitdrag.geometry.camera import Camera, rotation_from_vector
+from fitdrag.geometry.views import CameraView, outline_centre, outline_width
+
+RADIUS = 0.0325
+POINTS = np.array([[0.5, 1.2, 0.3], [-0.8, 0.1, -0.2], [0.0, 0.0, 0.0], [2.1, 1.9, 0.4]])
+DIRECTIONS = np.array([[1.0, 0.3], [0.2, -1.0], [1.0, 0.0], [-0.7, 0.7]])
+
+
+def _camera(distortion=()):
+    rot = rotation_from_vector([0.1, 0.3, 0.05]) @ np.diag([1.0, -1.0, -1.0])
+    return Camera(1400.0, 1390.0, 650.0, 390.0, distortion=distortion, rotation=rot,
+                  translation=[0.2, -0.1, 3.0])  # fmt: skip
+
+
+def test_outline_centre_and_width_match_the_conic_of_the_tangent_cone():
+    """closed-form/independent: the closed-form centre and width equal those of the ellipse
+    found by Camera.sphere_outline from the cone Q = C Cᵀ − (|C|² − ρ²) I by eigen-
+    decomposition (Hartley and Zisserman, Multiple View Geometry, 2nd ed., sec. 8.3) and its
+    support-function width (sec. 2.2.3), to 1e-9 px."""
+    cam = _camera()
+    pix, _, depth = outline_centre(cam, POINTS, RADIUS)
+    width, _ = outline_width(cam, POINTS, RADIUS, DIRECTIONS)
+    for p, d, c, w in zip(POINTS, DIRECTIONS, pix, width):
+        o = cam.sphere_outline(p, RADIUS)
+        np.testing.assert_allclose(c, o.centre, atol=1e-9)
+        assert w == pytest.approx(o.diameter_across(d), abs=1e-9)
+    np.testing.assert_allclose(depth, cam.to_camera(POINTS)[:, 2])
+    # the centre differs from the image of the sphere's centre (perspective), by ~0.01-0.1 px
+    shift = np.linalg.norm(pix - cam.project(POINTS).pixels, axis=1)
+    assert np.all(shift > 1e-4) and np.all(shift < 1.0)
+
+
+def test_outline_centre_with_distortion_is_the_distorted_ideal_centre():
+    """closed-form/independent: with OpenCV's five-coefficient distortion the centre is the
+    ideal ellipse centre (sphere_outline) mapped by Camera.distort (OpenCV's model)."""
+    cam = _camera((-0.2, 0.1, 0.001, -0.002, 0.01))
+    pix, _, _ = outline_centre(cam, POINTS, RADIUS)
+    ideal = np.array([cam.sphere_outline(p, RADIUS).centre for p in POINTS])
+    np.testing.assert_allclose(pix, cam.distort(ideal), atol=1e-9)
+
+
+def test_outline_jacobians_match_finite_differences():
+    """closed-form/independent: d(centre)/d(point) (analytic) and d(width)/d(point) against
+    central differences (step 1e-6 m) with distortion, to 1e-6 of their scale."""
+    cam = _camera((-0.2, 0.1, 0.001, -0.002, 0.01))
+    _, jc, _ = outline_centre(cam, POINTS, RADIUS, jacobians=True)
+    _, jw = outline_width(cam, POINTS, RADIUS, DIRECTIONS, jacobians=True)
+    h = 1e-6
+    for k in range(3):
+        e = np.zeros(3)
+        e[k] = h
+        fc = outline_centre(cam, POINTS + e, RADIUS)[0] - outline_centre(cam, POINTS - e, RADIUS)[0]
+        fw = (outline_width(cam, POINTS + e, RADIUS, DIRECTIONS)[0]
+              - outline_width(cam, POINTS - e, RADIUS, DIRECTIONS)[0])  # fmt: skip
+        np.testing.assert_allclose(fc / (2 * h), jc[:, :, k], atol=1e-6 * np.abs(jc).max())
+        np.testing.assert_allclose(fw / (2 * h), jw[:, k], atol=1e-6 * np.abs(jw).max())
+
+
+def _view(**kw):
+    n = kw.pop("n", 10)
+    args = dict(camera=_camera(), frames=np.arange(n), fps=500.0, u=np.linspace(100, 200, n),
+                v=np.linspace(300, 250, n))  # fmt: skip
+    args.update(kw)
+    return CameraView(**args)
+
+
+def test_camera_view_bad_input_messages():
+    """regression: bad views are refused with messages naming the input, value and fix."""
+    with pytest.raises(InputError) as e:
+        _view(n=7)
+    assert str(e.value) == (
+        "frames: a view needs at least 8 observed frames, got 7; track more of the flight or "
+        "leave this camera out."
+    )
+    u = np.linspace(100, 200, 10)
+    u[3] = np.nan
+    with pytest.raises(InputError) as e:
+        _view(u=u, name="left")
+    assert str(e.value) == (
+        "view 'left': u: every value must be finite [px]; item 3 is nan; drop the frames where "
+        "the specimen was not measured (do not pass NaN)."
+    )
+    with pytest.raises(InputError) as e:
+        _view(v=np.arange(9.0))
+    assert str(e.value) == (
+        "v: expected one value per frame (10 frames), got 9; give the observations of the same "
+        "frames in the same order."
+    )
+    with pytest.raises(InputError) as e:
+        _view(frames=[0, 1, 2, 3, 5, 4, 6, 7, 8, 9])
+    assert str(e.value) == (
+        "frames: frame numbers must be strictly increasing; frame[5] = 4 follows 5; sort the "
+        "observations by frame and drop duplicates."
+    )
+    with pytest.raises(InputError, match="diameter_sigma: given without a diameter"):
+        _view(diameter_sigma=0.2)
+    with pytest.raises(InputError, match="fps: expected a frame rate > 0"):
+        _view(fps=0.0)
+
+
+def test_camera_view_directions_and_times():
+    """closed-form/independent: a straight image track at constant speed has its own
+    direction everywhere; frame times are frame / fps."""
+    view = _view(frames=np.arange(10) + 3)
+    d = view.motion_directions()
+    expected = np.array([100.0, -50.0]) / np.hypot(100.0, 50.0)
+    np.testing.assert_allclose(d, np.tile(expected, (10, 1)), atol=1e-12)
+    np.testing.assert_allclose(view.frame_times, (np.arange(10) + 3) / 500.0)
+    assert view.with_time_offset(1e-3).time_offset == 1e-3
