@@ -695,24 +695,24 @@ def _message(cd, throws, u_plane, u_one, u_two, target, target_u, budget, angle,
                     f"  to reach u(Cd) = {target:.2g}: {n} throw{'s' if n != 1 else ''} with "
                     f"{label}"
                 )
-    bias_txt = f"a flight 1° out of the plane biases the planar Cd by {_pct(b1, cd)}"
+    bias_txt = f"\n  a flight 1° out of the plane biases the planar Cd by {_pct(b1, cd)}"
     if target_u is not None:
-        rule = f"bias ≤ U - {k:g}·u = {budget:.2g} for U = {k:g} × {target:.2g} = {target_u:.2g}"
+        rule = f"bias ≤ U - {k:g}·u = {budget:.2g}, U = {k:g} × {target:.2g}"
     else:
         rule = f"bias ≤ the statistical U = {k:g}·u = {budget:.2g}"
     if angle == 0.0:
         lines.append(
             f"  one camera in the plane cannot reach U = {target_u:.2g} even in the plane "
-            f"({k:g}·u = {k * u_plane:.2g}); {bias_txt}."
+            f"({k:g}·u = {k * u_plane:.2g});{bias_txt}."
         )
     elif math.isinf(angle):
         lines.append(
             f"  one camera in the plane tolerates flights beyond {MAX_ANGLE:g}° out of the "
-            f"plane ({rule}); {bias_txt}."
+            f"plane ({rule});{bias_txt}."
         )
     else:
         lines.append(
-            f"  one camera in the plane tolerates {angle:.2g}° out of the plane ({rule}); "
+            f"  one camera in the plane tolerates {angle:.2g}° out of the plane ({rule});"
             f"{bias_txt}."
         )
     return "\n".join(lines)
