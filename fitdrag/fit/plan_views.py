@@ -681,7 +681,7 @@ def _message(cd, throws, u_plane, u_one, u_two, target, target_u, budget, angle,
     shutter = f"{1e3 * readout:.3g} ms rolling-shutter readout" if readout else "global shutter"
     lines = [
         f"Cameras {distance:.3g} m from the flight, focal length {focal_length:.4g} px, "
-        f"{shutter}; {pixel_noise:.2g} px centroid noise, {diameter_noise:.2g} px diameter "
+        f"{shutter};\n{pixel_noise:.2g} px centroid noise, {diameter_noise:.2g} px diameter "
         f"noise; Cd = {cd:.3g}, {throws} throw{'s' if throws != 1 else ''}.",
         f"  one camera at {camera_angle:.3g}°, in the plane:  u(Cd) = {_pct(u_plane, cd)} "
         f"if the flight stays in the board plane",
