@@ -32,6 +32,8 @@ _WHERE = {
     "fit_views": "fitdrag.fit.image_fit",
     "PlanResult": "fitdrag.fit.plan",
     "plan_test": "fitdrag.fit.plan",
+    "ViewPlanResult": "fitdrag.fit.plan_views",
+    "plan_views": "fitdrag.fit.plan_views",
     "Refit": "fitdrag.fit.refit",
     "refit": "fitdrag.fit.refit",
     "FitResult": "fitdrag.fit.results",

@@ -27,8 +27,8 @@ from fitdrag.fit.plan import plan_test
 from fitdrag.fit.plan_views import (
     focal_length_from_field_of_view,
     image_information,
-    planar_bias,
     plan_views,
+    planar_bias,
     planned_camera,
     planned_views,
 )
@@ -127,8 +127,18 @@ def test_plan_views_tolerable_angle_and_throws():
     assert r.u_cd_two < r.u_cd_plane < r.u_cd_one
     assert r.bias_budget == pytest.approx(2 * 0.005 - 2 * r.u_cd_plane)
     worst = max(
-        abs(planar_bias(r.cameras_one[0], ref.BALL, COND, r.launch, s * r.tolerable_angle,
-                        fps=ref.FPS, frames=FRAMES, drag_params=(ref.CD,)))  # fmt: skip
+        abs(
+            planar_bias(
+                r.cameras_one[0],
+                ref.BALL,
+                COND,
+                r.launch,
+                s * r.tolerable_angle,
+                fps=ref.FPS,
+                frames=FRAMES,
+                drag_params=(ref.CD,),
+            )
+        )  # fmt: skip
         for s in (-1.0, 1.0)
     )
     assert worst == pytest.approx(r.bias_budget, rel=0.01)

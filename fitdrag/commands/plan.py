@@ -92,8 +92,12 @@ def register(sub) -> argparse.ArgumentParser:
     v.add_argument("--pair-angle", type=quantity("deg"), default=20.0, metavar="DEG",
                    help="the two cameras look at ±DEG to the board normal [deg] (default 20, "
                    "40 deg apart)")  # fmt: skip
-    v.add_argument("--diameter-noise", type=float, metavar="PX",
-                   help="noise of the tracked apparent diameter [px] (default: --pixel-noise)")
+    v.add_argument(
+        "--diameter-noise",
+        type=float,
+        metavar="PX",
+        help="noise of the tracked apparent diameter [px] (default: --pixel-noise)",
+    )
     v.add_argument("--readout-time", type=quantity("s"), default=0.0, metavar="S",
                    help="rolling-shutter readout time [s], e.g. 1ms (default 0, global "
                    "shutter)")  # fmt: skip

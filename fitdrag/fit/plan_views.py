@@ -69,7 +69,7 @@ from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
 from fitdrag.fit.results import cd_and_gradient
 from fitdrag.geometry.camera import Camera
-from fitdrag.geometry.views import CameraView, outline_centre
+from fitdrag.geometry.views import CameraView, outline_centre, outline_width
 from fitdrag.physics.flight3d import Launch3D, simulate_3d
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
@@ -175,7 +175,6 @@ def planned_views(cameras: Sequence[Camera], specimen, conditions: Conditions, l
         Time of each camera's frame 0 (the first camera's is 0). [s]
     """
     dm = get_drag_model(model)
-    n_fit = len(dm.parameters)
     dp = tuple(float(v) for v in np.atleast_1d(drag_params))
     offs = [0.0] * len(cameras) if offsets is None else [float(o) for o in offsets]
     fr = np.arange(frames)
@@ -201,16 +200,22 @@ def planned_views(cameras: Sequence[Camera], specimen, conditions: Conditions, l
             row = pix[:, 1]
         if i == 0 and diameter_noise is not None:
             v0 = CameraView(cam, fr, fps, pix[:, 0], pix[:, 1])
-            from fitdrag.geometry.views import outline_width
-
             diam, _ = outline_width(cam, pos, 0.5 * float(specimen.length),
                                     v0.motion_directions())  # fmt: skip
         views.append(
-            CameraView(cam, fr, fps, pix[:, 0], pix[:, 1], sigma=pixel_noise, diameter=diam,
-                       diameter_sigma=diameter_noise if diam is not None else None,
-                       time_offset=offs[i] if i == 0 else None, name=f"camera {i + 1}")  # fmt: skip
+            CameraView(
+                cam,
+                fr,
+                fps,
+                pix[:, 0],
+                pix[:, 1],
+                sigma=pixel_noise,
+                diameter=diam,
+                diameter_sigma=diameter_noise if diam is not None else None,
+                time_offset=offs[i] if i == 0 else None,
+                name=f"camera {i + 1}",
+            )  # fmt: skip
         )
-    del n_fit
     return views
 
 
@@ -433,7 +438,10 @@ class ViewPlanResult:
             "method": "Cramér–Rao bound: inverse Fisher information J^T Σ^-1 J of the "
             "image-space problem (pixels of each camera) of the 3-D flight; planar-fit bias "
             "by fitting the tilted flight's noise-free projections with the planar model",
-            "drag_coefficient": {"value": f(self.cd), "at_reynolds_number": f(self.reynolds_number)},
+            "drag_coefficient": {
+                "value": f(self.cd),
+                "at_reynolds_number": f(self.reynolds_number),
+            },
             "drag_model": self.model,
             "throws": self.throws,
             "standard_uncertainty": {
@@ -460,13 +468,20 @@ class ViewPlanResult:
                 "throws_needed_two_cameras": self.throws_needed_two,
             },
             "cameras": {
-                "distance": self.distance, "one_camera_angle_deg": self.camera_angle,
+                "distance": self.distance,
+                "one_camera_angle_deg": self.camera_angle,
                 "two_camera_angles_deg": [-self.pair_angle, self.pair_angle],
-                "focal_length_px": self.focal_length, "image_size_px": list(self.image_size),
-                "readout_time": self.readout_time, "fps": self.fps, "frames": self.frames,
+                "focal_length_px": self.focal_length,
+                "image_size_px": list(self.image_size),
+                "readout_time": self.readout_time,
+                "fps": self.fps,
+                "frames": self.frames,
             },  # fmt: skip
-            "noise": {"pixel": self.pixel_noise, "diameter": self.diameter_noise,
-                      "ar1_coefficient": self.ar1},  # fmt: skip
+            "noise": {
+                "pixel": self.pixel_noise,
+                "diameter": self.diameter_noise,
+                "ar1_coefficient": self.ar1,
+            },  # fmt: skip
             "message": self.message,
         }
 
@@ -616,7 +631,12 @@ def plan_views(specimen, conditions: Conditions, *, speed: float, elevation: flo
     u_two1 = image_information(v_two, specimen, conditions, launch, **kw)[0]
     root = math.sqrt(throws)
     u_plane, u_one, u_two = u_plane1 / root, u_one1 / root, u_two1 / root
-    re = conditions.air.density * np.linalg.norm(fl.velocity, axis=1) * specimen.length / conditions.air.viscosity
+    re = (
+        conditions.air.density
+        * np.linalg.norm(fl.velocity, axis=1)
+        * specimen.length
+        / conditions.air.viscosity
+    )
     re_med = float(np.median(re))
 
     k = COVERAGE_FACTOR
