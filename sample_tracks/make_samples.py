@@ -259,6 +259,9 @@ gravity_uncertainty = 0.0005
 fps = 500
 fps_uncertainty = 0.005
 scale_relative_uncertainty = 0.001
+distance = 3.0                    # m, camera to the flight plane (tape measure)
+distance_uncertainty = 0.05
+out_of_plane_uncertainty = 0.5    # deg, hand throws: the flight's angle to the image plane
 
 [[throws]]
 track = "training_ball_throw1.csv"
@@ -309,6 +312,9 @@ gravity_uncertainty = 0.0005
 fps = 400
 fps_uncertainty = 0.004
 scale_relative_uncertainty = 0.001
+distance = 3.0                    # m, camera to the flight plane (tape measure)
+distance_uncertainty = 0.05
+out_of_plane_uncertainty = 0.5    # deg, hand throw: the flight's angle to the image plane
 
 [[throws]]
 track = "practice_ball_outliers.csv"
@@ -350,6 +356,9 @@ gravity_uncertainty = 0.0005
 fps = 250
 fps_uncertainty = 0.0025
 scale_relative_uncertainty = 0.001
+distance = 2.5                    # m, camera to the flight plane (tape measure)
+distance_uncertainty = 0.05
+out_of_plane_uncertainty = 0.5    # deg, gentle hand throw: the flight's angle to the image plane
 
 [[throws]]
 track = "ultralight_ball.csv"
@@ -388,6 +397,9 @@ gravity_uncertainty = 0.0005
 fps = 400
 fps_uncertainty = 0.004
 scale_relative_uncertainty = 0.001
+distance = 4.0                    # m, camera to the flight plane (tape measure)
+distance_uncertainty = 0.05
+out_of_plane_uncertainty = 0.5    # deg, hand throws, wider field: the flight's angle to the image plane
 
 [[throws]]
 track = "ribbed_ball_throw1.csv"

@@ -44,7 +44,9 @@ def _job_text(**edits) -> str:
                  ("relative_humidity = 45 ", "# relative_humidity = 45 "),
                  ("relative_humidity_uncertainty = 3 ", "# relative_humidity_uncertainty = 3 "),
                  ("# density = 1.19 ", "density = 1.225 \nviscosity = 1.789e-5 "),
-                 ("# density_uncertainty = 0.005 ", "density_uncertainty = 0.004 ")):  # fmt: skip
+                 ("# density_uncertainty = 0.005 ", "density_uncertainty = 0.004 "),
+                 # a launcher aligned with the board (the simulated track is in the plane)
+                 ("out_of_plane_uncertainty = 0.5 ", "out_of_plane_uncertainty = 0.1 ")):  # fmt: skip
         assert k in text
         text = text.replace(k, v, 1)
     for old, new in edits.items():
@@ -86,7 +88,8 @@ def test_run_issues_certificate(job, capsys):
     assert res["combined_standard_uncertainty"] > res["statistical_standard_uncertainty"]
     names = [ln["name"] for ln in rep["uncertainty_budget"]["lines"]]
     assert names == ["statistical", "mass", "diameter", "air_density", "frame_rate",
-                     "length_scale", "gravity"]  # fmt: skip
+                     "length_scale", "camera_distance", "out_of_plane_angle",
+                     "gravity"]  # fmt: skip
     assert rep["certificate"]["number"] == number
     assert rep["conformity"]["decision"] in ("pass", "conditional pass")
     job_hash = hashlib.sha256(job.read_bytes()).hexdigest()

@@ -115,3 +115,50 @@ def test_drag_model_roll_is_a_rotated_refit(heavy_fit):
     # agree far inside the statistical uncertainty
     assert abs(model({"roll": 0.5}) - fresh.cd) < 0.05 * fit.u_cd
     assert abs(model({"roll": 0.5}) - fit.cd) > 5 * fit.u_cd
+
+
+def test_out_of_plane_lines_have_sensitivities_by_refit(heavy_fit):
+    """closed-form/independent: the out-of-plane angle re-fits the track mapped to the
+    tilted flight plane (fitdrag.geometry.planar; a fresh fit of that track by hand gives the
+    same Cd); a flight towards the camera appears to decelerate less (apparent acceleration
+    2 v_x v_z / Z), so the true Cd is larger: ∂Cd/∂θ > 0, and about twice as large from half
+    the distance.  At θ = 0 the distance does nothing to first order; its line is the GUM
+    5.1.2 cross term, by re-fit at θ = u(θ): non-zero and negative (farther: smaller
+    effect of the same angle)."""
+    from fitdrag import Track, fit_tracks
+    from fitdrag.fit.budget_model import distance_sensitivity
+    from fitdrag.geometry.planar import PlanarGeometry, flight_plane_track
+
+    fit, track, sc = heavy_fit
+    nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225,
+               "camera_distance": 3.0, "out_of_plane_angle": 0.0}  # fmt: skip
+    model = DragRefitModel(fit, [track], nominal, viscosity=1.789e-5)
+    assert model({}) == pytest.approx(fit.cd, rel=1e-9)
+    assert model({"camera_distance": 5.0}) == pytest.approx(fit.cd, rel=1e-9)
+    x, y, _ = flight_plane_track(track.x, track.y, PlanarGeometry(3.0, 0.3))
+    fresh = fit_tracks(Track(track.t, x, y), fit.specimen, fit.conditions.air, buoyancy=False,
+                       robust=False)  # fmt: skip
+    # the re-fit keeps the original noise weights, the fresh fit re-estimates them: they agree
+    # well inside u(Cd), against an effect of the angle of tens of u(Cd)
+    assert abs(model({"out_of_plane_angle": 0.3}) - fresh.cd) < 0.5 * fit.u_cd
+    assert abs(model({"out_of_plane_angle": 0.3}) - fit.cd) > 10 * fit.u_cd
+    inputs = [
+        InputQuantity("camera_distance", 3.0, 0.05, "m"),
+        InputQuantity("out_of_plane_angle", 0.0, 0.3, "°"),
+    ]
+    c_z = distance_sensitivity(model, 0.05, {"out_of_plane_angle": 0.3})
+    inputs[0] = InputQuantity("camera_distance", 3.0, 0.05, "m", sensitivity=c_z)
+    b = budget_from_model(model, inputs, statistical=(fit.u_cd, fit.dof))
+    c_theta = b.line("out_of_plane_angle").sensitivity
+    assert c_theta > 0 and b.line("camera_distance").sensitivity == c_z < 0
+    near = DragRefitModel(fit, [track], dict(nominal, camera_distance=1.5), viscosity=1.789e-5)
+    c_near = (near({"out_of_plane_angle": 0.3}) - near({"out_of_plane_angle": -0.3})) / 0.6
+    assert c_near == pytest.approx(2 * c_theta, rel=0.1)
+    # the cross term: c_Z ≈ ∂²Cd/∂θ∂Z · u(θ), with ∂Cd/∂θ ∝ 1/Z: −c_θ u(θ) / Z
+    assert c_z == pytest.approx(-c_theta * 0.3 / 3.0, rel=0.1)
+    with pytest.raises(ValueError, match=r"^nominal: out_of_plane_angle needs camera_distance"):
+        DragRefitModel(fit, [track], {"mass": sc.mass, "diameter": sc.diameter,
+                                      "out_of_plane_angle": 0.0})  # fmt: skip
+    with pytest.raises(ValueError, match=r"^nominal: out_of_plane_angle_2 names throw 2, but "
+                       r"there are 1 tracks"):  # fmt: skip
+        DragRefitModel(fit, [track], dict(nominal, out_of_plane_angle_2=0.0))

@@ -362,3 +362,49 @@ def test_footage_files_and_track_throw_options(footage_dir):
     text = _edit(_CAMERA_U, "", TEMPLATE + '\n[[throws]]\nfootage = "clip.avi"\nscale = 1e-3\n')
     with pytest.raises(ValueError, match=r"\[camera\] scale_relative_uncertainty: missing"):
         load_job(_write(footage_dir, text))
+
+
+def test_track_csv_needs_the_camera_distance_and_out_of_plane_uncertainty(job_dir):
+    """regression: a track CSV throw without [camera] distance or out_of_plane_uncertainty
+    is refused, saying why (perspective bias of a flight out of the image plane) and what to
+    add; given, they are parsed in SI (pint: 300 cm = 3 m) into the job and the budget gets
+    camera_distance and one out-of-plane angle per track throw; footage throws need neither."""
+    text = _edit("distance = 3.0 ", "# distance = 3.0 ")
+    text = _edit("distance_uncertainty = 0.05 ", "# distance_uncertainty = 0.05 ", text)
+    with pytest.raises(ValueError) as err:
+        load_job(_write(job_dir, text))
+    assert str(err.value) == (
+        f"job.toml, line {_line(text, '[camera]')}: [camera] distance: missing; a track file "
+        "is a planar measurement, and a flight out of the image plane biases Cd through "
+        "perspective (about -30 % at 1° for a light ball 3 m from the camera) without the fit "
+        "noticing; give the camera's distance to the flight plane with its standard "
+        "uncertainty (distance = 3.0, distance_uncertainty = 0.05, in m) and the standard "
+        "uncertainty of the flight's angle to the image plane (out_of_plane_uncertainty = "
+        "0.5, in degrees); the uncertainty budget then carries both."
+    )
+    text = _edit("out_of_plane_uncertainty = 0.5 ", "# out_of_plane_uncertainty = 0.5 ")
+    with pytest.raises(ValueError, match=r"\[camera\] out_of_plane_uncertainty: missing; a "
+                       r"track file is a planar measurement"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("distance_uncertainty = 0.05 ", "# distance_uncertainty = 0.05 ")
+    with pytest.raises(ValueError, match=rf"line {_line(text, '[camera]')}: \[camera\] "
+                       r"distance_uncertainty: missing; give the standard uncertainty of "
+                       r"distance in m"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("distance = 3.0 ", 'distance = "300 cm" ')
+    text = _edit("out_of_plane_uncertainty = 0.5 ", 'out_of_plane_uncertainty = "0.25 deg" ',
+                 text)  # fmt: skip
+    text += '\n[[throws]]\ntrack = "throw1.csv"\n'
+    job = load_job(_write(job_dir, text))
+    assert job.camera.distance.value == pytest.approx(3.0)
+    assert job.camera.distance.uncertainty == 0.05
+    assert job.camera.out_of_plane_uncertainty == pytest.approx(0.25)
+    q = {x.name: x for x in job.input_quantities()}
+    assert q["camera_distance"].standard_uncertainty == 0.05
+    assert [q[f"out_of_plane_angle_{k}"].standard_uncertainty for k in (1, 2)] == [
+        pytest.approx(0.25), pytest.approx(0.25)]  # fmt: skip
+    assert q["out_of_plane_angle_1"].value == 0.0 and "out_of_plane_angle" not in q
+    text = _edit("distance = 3.0 ", "distance = -3.0 ")
+    with pytest.raises(ValueError, match=rf"line {_line(text, 'distance = ')}: \[camera\] "
+                       r"distance: -3 m is outside the plausible range"):  # fmt: skip
+        load_job(_write(job_dir, text))

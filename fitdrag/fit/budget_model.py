@@ -7,9 +7,11 @@ and :func:`fitdrag.uncertainty.monte_carlo.monte_carlo`, which know nothing of d
 from __future__ import annotations
 
 import math
+import re
 
 from fitdrag.errors import ConvergenceError, InputError
 from fitdrag.fit.refit import refit
+from fitdrag.geometry.planar import PlanarGeometry, flight_plane_track
 from fitdrag.physics.air import Air
 from fitdrag.physics.specimen import Body, Sphere
 from fitdrag.tracks.track import Track
@@ -29,7 +31,17 @@ DRAG_INPUTS = {
     "length_scale": "",
     "roll": "°",
     "gravity": "m/s²",
+    "camera_distance": "m",
+    "out_of_plane_angle": "°",
 }
+
+#: Per-throw out-of-plane angles: ``out_of_plane_angle_<k>`` for throw k (1-based). [°]
+_ANGLE_RE = re.compile(r"^out_of_plane_angle(?:_([1-9][0-9]*))?$")
+
+
+def angle_input_name(throw: int | None) -> str:
+    """Budget name of the out-of-plane angle of throw ``throw`` (1-based; None: all)."""
+    return "out_of_plane_angle" if throw is None else f"out_of_plane_angle_{throw}"
 
 
 class DragRefitModel:
@@ -48,7 +60,14 @@ class DragRefitModel:
     * ``length_scale`` [-]: a factor (nominal 1) on every position and position uncertainty;
     * ``roll`` [°]: an error in the camera's (or calibration's) horizontal, nominal 0: every
       track is turned by this angle about its first sample;
-    * ``gravity`` [m/s²].
+    * ``gravity`` [m/s²];
+    * ``camera_distance`` [m] and ``out_of_plane_angle`` [°] (nominal 0): the perspective of
+      a planar track (:mod:`fitdrag.geometry.planar`): the track, seen by a camera at this
+      distance from the calibration plane, is mapped to the flight's own plane turned by the
+      angle about the vertical through its first sample before the re-fit.
+      ``out_of_plane_angle`` turns every track; ``out_of_plane_angle_<k>`` only throw k
+      (1-based), so that independent throws carry independent angles.  At zero angle the
+      distance has no effect (see :func:`distance_sensitivity`).
 
     Parameters
     ----------
@@ -65,7 +84,8 @@ class DragRefitModel:
     """
 
     def __init__(self, result, tracks, nominal, *, length=None, viscosity=None):
-        unknown = sorted(set(nominal) - set(DRAG_INPUTS))
+        tracks = list(tracks)
+        unknown = sorted(k for k in nominal if k not in DRAG_INPUTS and not _ANGLE_RE.match(k))
         if unknown:
             raise InputError(
                 f"nominal: unknown input name(s) {unknown}; use names from "
@@ -73,8 +93,21 @@ class DragRefitModel:
             )
         if "diameter" in nominal and ("area" in nominal or "volume" in nominal):
             raise InputError("nominal: give diameter (sphere) or area and volume (body), not both.")
+        angles = [k for k in nominal if _ANGLE_RE.match(k)]
+        if angles and "camera_distance" not in nominal:
+            raise InputError(
+                f"nominal: {angles[0]} needs camera_distance (the camera's distance to the "
+                f"calibration plane [m]); add it."
+            )
+        for k in angles:
+            m = _ANGLE_RE.match(k)
+            if m.group(1) is not None and int(m.group(1)) > len(tracks):
+                raise InputError(
+                    f"nominal: {k} names throw {m.group(1)}, but there are {len(tracks)} "
+                    f"tracks; number the throws from 1."
+                )
         self.result = result
-        self.tracks = list(tracks)
+        self.tracks = tracks
         self.nominal = dict(nominal)
         self.length = length
         self.viscosity = viscosity
@@ -99,17 +132,27 @@ class DragRefitModel:
         time_factor = 1.0 if f0 is None else f0 / v.get("frame_rate", f0)
         s = v.get("length_scale", 1.0)
         roll = math.radians(v.get("roll", 0.0))
-        if time_factor == 1.0 and s == 1.0 and roll == 0.0:
+        angles = self.angles(v)
+        if time_factor == 1.0 and s == 1.0 and roll == 0.0 and not any(angles):
             return None
         c, sn = math.cos(roll), math.sin(roll)
         out = []
-        for tr in self.tracks:
+        for tr, angle in zip(self.tracks, angles):
             sig = None if tr.sigma is None else tr.sigma * s
             dx, dy = tr.x - tr.x[0], tr.y - tr.y[0]
             x = (tr.x[0] + c * dx - sn * dy) * s
             y = (tr.y[0] + sn * dx + c * dy) * s
+            if angle:
+                geometry = PlanarGeometry(v["camera_distance"], angle)
+                x, y, sig = flight_plane_track(x, y, geometry, sigma=sig)
             out.append(Track(tr.t * time_factor, x, y, sig, tr.frame, dict(tr.meta)))
         return out
+
+    def angles(self, v) -> list[float]:
+        """Out-of-plane angle of each track [°]: ``out_of_plane_angle`` plus its own
+        ``out_of_plane_angle_<k>``."""
+        common = v.get("out_of_plane_angle", 0.0)
+        return [common + v.get(angle_input_name(k + 1), 0.0) for k in range(len(self.tracks))]
 
     def __call__(self, values) -> float:
         v = dict(self.nominal)
@@ -124,3 +167,37 @@ class DragRefitModel:
         if not r.success:
             raise ConvergenceError("the re-fit did not converge")
         return float(r.cd)
+
+
+def distance_sensitivity(model: DragRefitModel, u_distance: float, u_angles) -> float:
+    """Sensitivity of Cd to the camera distance, where the out-of-plane angles make it one.
+
+    At zero angle the distance has no effect (the track is the flight itself), so its
+    first-order sensitivity is 0; it acts only through the product with the angle.  Its
+    contribution is then the second-order cross term of JCGM 100:2008 5.1.2 (NOTE),
+    ``½ (∂²f/∂θ∂Z)² u²(θ) u²(Z)``.  This returns the central difference of the re-fitted Cd
+    in the distance (step ± ``u_distance``) with every angle at + its standard uncertainty,
+    ``≈ ∂²f/∂θ∂Z · u(θ)``: as a sensitivity times u(Z) it gives √2 times that cross term's
+    standard deviation (a cautious value).
+
+    Parameters
+    ----------
+    model : DragRefitModel
+        The model (with ``camera_distance`` and out-of-plane angles in its nominal values).
+    u_distance : float
+        Standard uncertainty of the camera distance. [m]
+    u_angles : mapping
+        Standard uncertainty of each out-of-plane angle input, by its name. [°]
+
+    Returns
+    -------
+    float
+        ∂Cd/∂Z at the angles' standard uncertainties. [1/m]
+    """
+    z = model.nominal["camera_distance"]
+    if not u_distance > 0 or not any(u > 0 for u in u_angles.values()):
+        return 0.0
+    tilted = {name: model.nominal.get(name, 0.0) + u for name, u in u_angles.items()}
+    up = model(dict(tilted, camera_distance=z + u_distance))
+    dn = model(dict(tilted, camera_distance=z - u_distance))
+    return (up - dn) / (2.0 * u_distance)

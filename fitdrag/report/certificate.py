@@ -258,6 +258,8 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         ("Uncertainty", method.uncertainty_method),
         ("Software", f"fitdrag {content.software_version}"),
     ]
+    if method.geometry:
+        rows.insert(4, ("Geometry", method.geometry))
     L.rows(rows, size=8.0)
     L.heading("Conditions")
     rows = []
@@ -282,6 +284,16 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
                 "Length scale",
                 f"relative standard uncertainty "
                 f"{format_sig(100 * cam.scale_relative_uncertainty, 2)} %",
+            )  # fmt: skip
+        )
+    if cam.distance is not None:
+        rows.append(("Camera distance", _pm(cam.distance, "m") + " (to the calibration plane)"))
+    if cam.out_of_plane_uncertainty_deg is not None:
+        rows.append(
+            (
+                "Flight out of the image plane",
+                f"0° with standard uncertainty {format_sig(cam.out_of_plane_uncertainty_deg, 2)}°"
+                f" (stated; propagated through the perspective model)",
             )  # fmt: skip
         )
     L.rows(rows, size=8.0)

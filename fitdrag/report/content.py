@@ -251,6 +251,11 @@ class CameraSettings:
         Standard uncertainty of the camera's horizontal. [deg]
     roll_uncertainty_source : str
         Where it comes from.
+    distance : Estimate or None
+        Camera's distance to the calibration plane of the track files (planar tracks). [m]
+    out_of_plane_uncertainty_deg : float or None
+        Stated standard uncertainty of the flight's angle to the image plane (planar
+        tracks; its estimate is 0). [deg]
     """
 
     fps: Estimate | None
@@ -258,6 +263,8 @@ class CameraSettings:
     scale_relative_uncertainty_source: str = ""
     roll_uncertainty_deg: float = 0.0
     roll_uncertainty_source: str = ""
+    distance: Estimate | None = None
+    out_of_plane_uncertainty_deg: float | None = None
 
     def to_dict(self) -> dict:
         return {
@@ -266,6 +273,8 @@ class CameraSettings:
             "scale_relative_uncertainty_source": self.scale_relative_uncertainty_source,
             "roll_uncertainty_deg": self.roll_uncertainty_deg,
             "roll_uncertainty_source": self.roll_uncertainty_source,
+            "distance": None if self.distance is None else self.distance.to_dict(),
+            "out_of_plane_uncertainty_deg": self.out_of_plane_uncertainty_deg,
         }
 
 
@@ -302,7 +311,8 @@ class FootageRecord:
 
 @dataclass(frozen=True)
 class Method:
-    """How the result was obtained, in words."""
+    """How the result was obtained, in words (``geometry``: how the camera saw the flight,
+    "" when nothing is to be said)."""
 
     model_equation: str
     integrator: str
@@ -310,6 +320,7 @@ class Method:
     uncertainty_method: str
     drag_model: str = ""
     drag_model_text: str = ""
+    geometry: str = ""
 
     def to_dict(self) -> dict:
         return {
@@ -319,6 +330,7 @@ class Method:
             "integrator": self.integrator,
             "fit_method": self.fit_method,
             "uncertainty_method": self.uncertainty_method,
+            "geometry": self.geometry,
         }
 
 

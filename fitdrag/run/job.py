@@ -159,11 +159,19 @@ class CameraSection:
         Relative standard uncertainty of the length scale, when stated. [1]
     roll_uncertainty : float or None
         Standard uncertainty of the camera's horizontal, when stated. [deg]
+    distance : Measured or None
+        Distance of the camera from the calibration plane of a planar track (required with
+        track CSV throws). [m]
+    out_of_plane_uncertainty : float or None
+        Standard uncertainty of each track CSV throw's angle to the image plane (its
+        estimate is 0; required with track CSV throws). [deg]
     """
 
     fps: Measured
     scale_relative_uncertainty: float | None = None
     roll_uncertainty: float | None = None
+    distance: Measured | None = None
+    out_of_plane_uncertainty: float | None = None
 
 
 @dataclass(frozen=True)
@@ -394,12 +402,45 @@ class Job:
                     description="camera roll (error of the horizontal)",
                 )  # fmt: skip
             )
+        q.extend(self.planar_inputs())
         g = self.site.gravity
         q.append(
             g.input(
                 "gravity", self.site.gravity_source, distribution=self.site.gravity_distribution
             )  # fmt: skip
         )
+        return q
+
+    def planar_inputs(self) -> list:
+        """The perspective inputs of the track CSV throws: ``camera_distance`` [m] and one
+        out-of-plane angle [°] (estimate 0) per track throw — ``out_of_plane_angle`` when the
+        job is that one throw, else ``out_of_plane_angle_<k>`` for throw k — each throw's
+        flight having its own, independent angle.  Empty without track throws."""
+        c = self.camera
+        planar = [k for k, th in enumerate(self.throws, start=1) if th.kind == "track"]
+        if not planar or c.distance is None or c.out_of_plane_uncertainty is None:
+            return []
+        q = [
+            c.distance.input(
+                "camera_distance",
+                "camera distance to the calibration plane (perspective of the track files)",
+            )
+        ]
+        single = len(self.throws) == 1
+        for k in planar:
+            q.append(
+                InputQuantity(
+                    "out_of_plane_angle" if single else f"out_of_plane_angle_{k}",
+                    0.0,
+                    float(c.out_of_plane_uncertainty),
+                    "°",
+                    description=(
+                        "flight's angle to the image plane"
+                        + ("" if single else f" (throw {k})")
+                        + " through the perspective model"
+                    ),
+                )
+            )
         return q
 
     def nominal_values(self) -> dict[str, float]:

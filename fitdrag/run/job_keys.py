@@ -219,6 +219,18 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "roll_uncertainty": _u(
             "deg", 10.0, "give the standard uncertainty of the horizontal in degrees"
         ),
+        "distance": _q(
+            "m",
+            0.0,
+            1000.0,
+            'give the camera\'s distance to the flight plane in metres (e.g. 3.0) or "300 cm"',
+        ),
+        "distance_uncertainty": _u("m", 100.0),
+        "out_of_plane_uncertainty": _u(
+            "deg",
+            10.0,
+            "give the standard uncertainty of the flight's angle to the image plane in degrees",
+        ),
     },
     "throws": {
         "track": Key("path"),

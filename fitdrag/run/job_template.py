@@ -84,6 +84,13 @@ scale_relative_uncertainty = 0.002   # -, relative standard uncertainty of the t
 # roll_uncertainty = 0.05         # deg, standard uncertainty of the horizontal (camera
                                   #    level); footage throws bring their own from the
                                   #    marker calibration; given here, it is used instead
+# Required with track CSVs (a planar measurement): how the camera saw the flight.  A flight
+# out of the image plane biases Cd through perspective (about -30 % at 1 degree for a light
+# ball 3 m away); the budget propagates both through the perspective model.
+distance = 3.0                    # m, camera to the flight plane (the calibration plane)
+distance_uncertainty = 0.05       # m
+out_of_plane_uncertainty = 0.5    # deg, standard uncertainty of the flight's angle to
+                                  #    the image plane (its estimate is 0)
 
 # One [[throws]] table per throw; all throws share the drag coefficient.
 [[throws]]

@@ -245,7 +245,72 @@ def _air_density_uncertainty(job: Job) -> float:
     return budget_from_model(rho, qs).combined_standard_uncertainty
 
 
-def _method(fit_dict: dict, fit_result, budget, mc) -> Method:
+#: Above this ratio of a perspective line's nonlinearity indicator (half the second
+#: difference of its re-fits) to its contribution, the linear GUM line is flagged and the
+#: Monte Carlo method of JCGM 101:2008 recommended (JCGM 101 5.8: the GUM framework needs a
+#: model that is not significantly nonlinear over the inputs' spread). [1]
+NONLINEARITY_LIMIT = 0.1
+
+
+def planar_geometry_text(job: Job) -> str:
+    """The certificate's sentence on how the camera saw the track files ("" for none)."""
+    c = job.camera
+    labels = [th.label for th in job.throws if th.kind == "track"]
+    if not labels or c.distance is None or c.out_of_plane_uncertainty is None:
+        return ""
+    from fitdrag.report.numbers import format_sig, format_with_uncertainty
+
+    z, uz = format_with_uncertainty(c.distance.value, c.distance.uncertainty, 2)
+    which = "the track file" if len(labels) == 1 else f"each of the {len(labels)} track files"
+    return (
+        f"Planar tracks ({', '.join(labels)}): positions on the calibration plane, seen by a "
+        f"camera {z} m from it (standard uncertainty {uz} m), its optical axis taken through "
+        f"the middle of each track. The flight's angle to the image plane is taken as 0° "
+        f"with the stated standard uncertainty {format_sig(c.out_of_plane_uncertainty, 2)}° "
+        f"for {which} (independent throws, independent angles), propagated through the "
+        f"perspective model: the track is mapped by central projection onto the flight plane "
+        f"turned by the angle about the vertical through its first point and re-fitted "
+        f"(Hartley and Zisserman 2004, sec. 6.1, 8.1)."
+    )
+
+
+def _perspective_inputs(model, inputs) -> list:
+    """The inputs with the camera distance's sensitivity set (see
+    :func:`fitdrag.fit.budget_model.distance_sensitivity`): at zero angle it is zero to first
+    order, and its effect is the cross term with the out-of-plane angles."""
+    from fitdrag.fit.budget_model import distance_sensitivity
+
+    names = [q.name for q in inputs]
+    if "camera_distance" not in names:
+        return list(inputs)
+    u_angles = {q.name: q.standard_uncertainty for q in inputs
+                if q.name.startswith("out_of_plane_angle")}  # fmt: skip
+    qz = inputs[names.index("camera_distance")]
+    try:
+        c = distance_sensitivity(model, qz.standard_uncertainty, u_angles)
+    except (RuntimeError, ValueError) as exc:
+        raise ConvergenceError(f"uncertainty budget: camera_distance: {exc}") from exc
+    qz = dataclasses.replace(
+        qz,
+        sensitivity=c,
+        description=qz.description + "; acts with the out-of-plane angle: second-order term "
+        "of JCGM 100 5.1.2 by re-fit at the angle's standard uncertainty",
+    )
+    return [qz if q.name == "camera_distance" else q for q in inputs]
+
+
+def perspective_nonlinear_lines(budget) -> list[str]:
+    """Names of the out-of-plane lines whose nonlinearity indicator exceeds
+    :data:`NONLINEARITY_LIMIT` of their contribution."""
+    return [
+        ln.name
+        for ln in budget.lines
+        if ln.name.startswith("out_of_plane_angle")
+        and not ln.nonlinearity <= NONLINEARITY_LIMIT * abs(ln.contribution)
+    ]
+
+
+def _method(fit_dict: dict, fit_result, budget, mc, geometry: str = "") -> Method:
     """The method in words, from the fit's summary, the fit, the budget and the Monte Carlo
     run."""
     from fitdrag.physics.registry import get_drag_model
@@ -273,6 +338,19 @@ def _method(fit_dict: dict, fit_result, budget, mc) -> Method:
         "from re-fits, Welch–Satterthwaite effective degrees of freedom, coverage factor from "
         f"the t-distribution at p = {100 * budget.coverage_probability:.2f} %"
     )
+    if geometry:
+        unc += (
+            "; the out-of-plane angle of each track file enters as its own input (estimate 0°, "
+            "sensitivity by re-fit over ± its standard uncertainty) and the camera distance "
+            "by the second-order term of GUM 5.1.2 (it acts only with the angle)"
+        )
+        nonlin = perspective_nonlinear_lines(budget)
+        if nonlin:
+            unc += (
+                f"; the perspective line(s) {', '.join(nonlin)} are nonlinear over ± u, so the "
+                f"linear interval is approximate"
+                + ("" if mc is not None else " (run the Monte Carlo method of JCGM 101:2008)")
+            )
     if mc is not None:
         unc += f"; checked by the Monte Carlo method of JCGM 101:2008 ({mc.trials} re-fits)"
     return Method(
@@ -283,6 +361,7 @@ def _method(fit_dict: dict, fit_result, budget, mc) -> Method:
         integrator=f.get("integrator", ""),
         fit_method=fit_method,
         uncertainty_method=unc + ".",
+        geometry=geometry,
     )
 
 
@@ -354,6 +433,7 @@ def measure(
     nominal = {q.name: q.value for q in inputs}
     model = DragRefitModel(fit, tracks, nominal, length=job.specimen.length,
                            viscosity=air.viscosity)  # fmt: skip
+    inputs = _perspective_inputs(model, inputs)
     stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
     try:
         budget = budget_from_model(
@@ -361,6 +441,14 @@ def measure(
         )
     except RuntimeError as exc:
         raise ConvergenceError(f"uncertainty budget: {exc}") from exc
+    nonlinear = perspective_nonlinear_lines(budget)
+    if nonlinear and not n_mc:
+        warnings.warn(
+            f"uncertainty budget: the out-of-plane line(s) {', '.join(nonlinear)} are "
+            f"nonlinear over ± their standard uncertainty; the GUM interval is approximate. "
+            f"Set [uncertainty] monte_carlo = 10000 (JCGM 101:2008) for this job.",
+            stacklevel=2,
+        )
 
     mc = check = None
     if n_mc:
@@ -433,9 +521,11 @@ def measure(
             scale_relative_uncertainty_source=u_scale_source,
             roll_uncertainty_deg=u_roll,
             roll_uncertainty_source=u_roll_source,
+            distance=None if job.camera.distance is None else job.camera.distance.estimate(),
+            out_of_plane_uncertainty_deg=job.camera.out_of_plane_uncertainty,
         ),
         footage=_footage_records(job, tracks),
-        method=_method(fit_dict, fit, budget, mc),
+        method=_method(fit_dict, fit, budget, mc, planar_geometry_text(job)),
         result=Result(
             drag_coefficient=cd,
             statistical_standard_uncertainty=float(fit.u_cd),
