@@ -43,6 +43,7 @@ _WHERE = {
     "MarkerBoard": "fitdrag.geometry.pose",
     "camera_pose_from_markers": "fitdrag.geometry.pose",
     "CameraView": "fitdrag.geometry.views",
+    "PlanarGeometry": "fitdrag.geometry.planar",
     "ViewRenderer": "fitdrag.geometry.render_views",
     "render_view": "fitdrag.geometry.render_views",
     "render_views": "fitdrag.geometry.render_views",
