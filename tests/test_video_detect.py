@@ -197,13 +197,17 @@ def test_frame_range(footage):
 
 
 def test_no_specimen_error():
-    """regression: footage without a moving ball: one clear error naming the range."""
+    """regression: footage without a moving ball: one clear error naming the range, the
+    reasons by frame range and what to change (the message now lists the reasons by frame
+    range and mentions a region of interest: issue 12)."""
     fo = render_flight(lambda t: (np.full_like(t, -50.0), np.full_like(t, -50.0)), 20, FPS,
                        shape=SHAPE, seed=1)  # fmt: skip
     msg = (
-        "footage <frames in memory>: no specimen found in any frame of 0..19 (20 frame(s): no "
-        "blob stands out from the background); check the frame range, the area limits "
-        "(min_area=12, max_area=4800 px) and the threshold (threshold_sigma=5)."
+        "footage <frames in memory>: no specimen found in any frame of 0..19 (frames 0-19 "
+        "(20): no blob stands out from the background); check the frame range (start/stop), "
+        "the area limits (min_area=12, max_area=4800 px: the specimen's size in pixels) and "
+        "the threshold (threshold_sigma=5), or give a region of interest (region) that leaves "
+        "out other moving things."
     )
     with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
         detect_specimen(fo.frames)
