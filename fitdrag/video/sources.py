@@ -127,6 +127,8 @@ class FrameSource:
     is_color: bool
     first_frame: int
     last_frame: int | None
+    #: Frames found undecodable while reading (skipped rather than ending the read).
+    undecodable: set[int]
 
     @property
     def name(self) -> str:
@@ -260,6 +262,7 @@ class VideoSource(FrameSource):
         self._first = img
         self._packets = self._probe_packets(img)
         self._pcap = None  # capture used for random access in packet mode
+        self.undecodable = set()
 
     def _probe_packets(self, first: np.ndarray) -> bool:
         """Whether frames can be read as raw JPEG packets and decoded in parallel.
@@ -307,9 +310,11 @@ class VideoSource(FrameSource):
         cap = self._open_packets(start)
 
         def decode(pkt):
+            # None for a frame that cannot be decoded: it is skipped (and listed by the
+            # detector), not a refusal of the whole clip.
             img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
-            if img is None:
-                raise InputError(f"footage {self.path}: a frame could not be decoded.")
+            if img is not None and img.shape != self.shape:
+                img = None
             return img
 
         try:
@@ -330,7 +335,11 @@ class VideoSource(FrameSource):
                     if not pending:
                         return
                     k, fut = pending.pop(0)
-                    yield k, fut.result()
+                    img = fut.result()
+                    if img is None:
+                        self.undecodable.add(k)
+                        continue
+                    yield k, img
         finally:
             cap.release()
 
@@ -525,6 +534,7 @@ class FolderSource(FrameSource):
         self.n_frames = len(self._files)
         self.first_frame = int(self._numbers[0])
         self.last_frame = int(self._numbers[-1])
+        self.undecodable = set()
 
     @property
     def frame_numbers(self) -> np.ndarray:
@@ -546,6 +556,9 @@ class FolderSource(FrameSource):
         img = cv2.imread(str(p), cv2.IMREAD_UNCHANGED)
         if img is None:
             raise InputError(f"footage {p}: not an image OpenCV can read; re-export the frame.")
+        return self._checked(p, img)
+
+    def _checked(self, p: Path, img: np.ndarray) -> np.ndarray:
         if img.shape[:2] != self.shape or img.dtype != self._dtype:
             raise InputError(
                 f"footage {p}: {img.shape[1]}x{img.shape[0]} {img.dtype} differs from the first "
@@ -563,7 +576,11 @@ class FolderSource(FrameSource):
         idx = range(i0, i1)
 
         def load(i):
-            return int(self._numbers[i]), _to_grey(self._load(self._files[i]))
+            k = int(self._numbers[i])
+            img = _cv2().imread(str(self._files[i]), _cv2().IMREAD_UNCHANGED)
+            if img is None:  # an unreadable file in the middle is skipped (and listed)
+                return k, None
+            return k, _to_grey(self._checked(self._files[i], img))
 
         # Image decoding releases the GIL: two workers keep two cores busy.
         with ThreadPoolExecutor(max_workers=2) as pool:
@@ -578,7 +595,11 @@ class FolderSource(FrameSource):
                 nxt = next(it, None)
                 if nxt is not None:
                     pending.append(pool.submit(load, nxt))
-                yield fut.result()
+                k, img = fut.result()
+                if img is None:
+                    self.undecodable.add(k)
+                    continue
+                yield k, img
 
 
 class ArraySource(FrameSource):
@@ -611,6 +632,7 @@ class ArraySource(FrameSource):
         self.n_frames = int(arr.shape[0])
         self.first_frame = int(first_frame)
         self.last_frame = self.first_frame + self.n_frames - 1
+        self.undecodable = set()
 
     def read_color(self, frame_number: int) -> np.ndarray:
         i = int(frame_number) - self.first_frame
