@@ -352,6 +352,8 @@ class Follower:
                 break
             half *= 2.0
         near = [b for b in blobs if math.hypot(b.x - px, b.y - py) <= allow + 0.5 * b.extent]
+        held = [t.accepted[n][0] for t in self.tracks if t is not tr and n in t.accepted]
+        near = [b for b in near if all(math.hypot(b.x - o.x, b.y - o.y) > 2.0 for o in held)]
         near.sort(key=lambda b: math.hypot(b.x - px, b.y - py))
         chosen = near[0] if near else None
         if chosen is None:
@@ -463,15 +465,27 @@ class Follower:
             elif b.reason is not None:
                 tr.miss[k] = b.reason
         self.tracks.append(tr)
+        self._fill_between(tr, frames)
         self._follow_back(tr, frames)
         return True
+
+    def _fill_between(self, tr: _Track, frames: dict) -> None:
+        """Measure the frames between the confirming detections (searched only every few
+        frames while another track was followed) around the interpolated position."""
+        lo, hi = min(tr.accepted), max(tr.accepted)
+        for k in range(lo + 1, hi):
+            if k in tr.accepted or k not in frames:
+                continue
+            fr = sorted(tr.accepted)
+            b = [tr.accepted[j][0] for j in fr]
+            px, py, allow = tr.predict(k, fr, [v.x for v in b], [v.y for v in b])
+            raw, g, sig = frames[k]
+            self._measure_track(tr, k, raw, g, sig, px, py, allow)
 
     def _follow_back(self, tr: _Track, frames: dict) -> None:
         fails = 0
         k = min(tr.accepted) - 1
         while k in frames and fails < 3:
-            if any(k in t.accepted for t in self.tracks if t is not tr):
-                break
             px, py, allow = tr.predict_back(k)
             r = 0.5 * tr.extent
             if px < -r or py < -r or px > self.w - 1 + r or py > self.h - 1 + r:
