@@ -508,20 +508,35 @@ class BlobFinder:
         return blobs + list(c.refused)
 
     def search_noise(self, d: np.ndarray) -> float:
-        """Noise level of a difference image at its own resolution: 1.4826 times the median
-        absolute value over a sparse grid of its pixels (the normal-consistent MAD; a
-        specimen covers few of them).
+        """Noise level of a difference image at its own resolution, over a sparse grid of its
+        pixels (a specimen covers few of them): 1.4826 times the median absolute value (the
+        normal-consistent MAD [1]), refined by the root mean square of the values within 3.5
+        noise levels (so integer-valued differences do not round it to whole grey levels).
 
         References
         ----------
         1. P. J. Rousseeuw and C. Croux, "Alternatives to the median absolute deviation",
            J. Am. Stat. Assoc. 88, 1273-1283 (1993).
+        2. N. L. Johnson, S. Kotz and N. Balakrishnan, *Continuous Univariate Distributions*,
+           vol. 1, 2nd ed. (Wiley, 1994), ch. 13, sec. 10.1 (moments of the truncated normal).
         """
         h, w = d.shape
         step = max(1, int(math.sqrt(h * w / GRID_PIXELS)))
-        v = np.abs(d[step // 2 :: step, step // 2 :: step]).reshape(-1)
-        sig = 1.4826 * float(np.median(v))
-        return max(sig, self.min_sigma / max(self.scale, 1))
+        v = np.abs(d[step // 2 :: step, step // 2 :: step]).reshape(-1).astype(np.float64)
+        floor = self.min_sigma / max(self.scale, 1)
+        sig = max(1.4826 * float(np.median(v)), floor)
+        # The MAD of integer-valued differences comes in whole grey levels; refine it with the
+        # root mean square of the values within 3.5 of its noise levels, divided by that of a
+        # normal distribution truncated there: 1 - 2 c phi(c) / (2 Phi(c) - 1).
+        c = 3.5
+        trunc = math.sqrt(1.0 - 2 * c * math.exp(-0.5 * c * c) / math.sqrt(2 * math.pi)
+                          / math.erf(c / math.sqrt(2)))  # fmt: skip
+        for _ in range(3):
+            inner = v[v <= c * sig]
+            if inner.size < 50:
+                break
+            sig = max(math.sqrt(float(np.mean(inner * inner))) / trunc, floor)
+        return sig
 
 
 def _refused(area: int, fill: float, code: int, f: BlobFinder) -> Blob:
