@@ -29,8 +29,9 @@ import numpy as np
 from scipy.integrate import solve_ivp
 
 from fitdrag.video.detect import detect_specimen
+from fitdrag.video.footage_files import write_frames, write_video
 from fitdrag.video.sources import open_source
-from fitdrag.video.synthetic import FlightRenderer, write_frames, write_video
+from fitdrag.video.synthetic import FlightRenderer
 
 SHAPE = (800, 1280)
 FPS = 1000.0
