@@ -24,6 +24,18 @@ from dataclasses import dataclass
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.video.synthetic_scene import (
+    Hand,
+    SceneShifter,
+    Visibility,
+    fabric_texture,
+    luma,
+    sub_positions_outside,
+    swept_disc,
+    swept_ellipse,
+    tremble_shifts,
+    visibility_codes,
+)
 
 #: ArUco dictionary used for synthetic markers (name of the cv2.aruco constant).
 MARKER_DICTIONARY = "DICT_4X4_50"
@@ -94,7 +106,28 @@ class SyntheticTruth:
     marker_corners : dict
         Marker id -> (4, 2) array of its black square's image corners in the order a detector
         reports them for an upright marker: top-left, top-right, bottom-right, bottom-left.
-        [px]
+        Without camera tremble; frame ``k`` shows them moved by ``(shift_x_px[k],
+        shift_y_px[k])``. [px]
+    visibility : ndarray of int8
+        :class:`~fitdrag.video.synthetic_scene.Visibility` code per frame: FULLY (= ``visible``),
+        PARTLY (cut by the frame edge or partly hidden), HIDDEN (wholly behind occluders) or
+        OUTSIDE (no part of the footprint in the image).
+    diameter_px : ndarray
+        Apparent diameter of the ball perpendicular to its motion, ``2 * radius_px`` (exposure
+        blur lengthens the blob along the motion only). [px]
+    top_px, bottom_px : ndarray
+        Highest and lowest image y the ball's outline reaches over the exposure (y down). [px]
+    row_first, row_last : ndarray of int
+        First and last image row with any part of the ball's footprint over the exposure
+        (row ``i`` covers ``i - 0.5 <= y < i + 0.5``), clipped to the image; -1 when outside.
+    shift_x_px, shift_y_px : ndarray
+        Whole-scene shift of each frame (camera tremble; zero without it).  The positions
+        above are image positions and include it; ``x_px - shift_x_px`` is the position in
+        the still scene. [px]
+    held : ndarray of bool
+        The ball is in the hand (frames before the hand's release; all False without a hand).
+    second : SecondBallTruth or None
+        Truth of the second ball, when there is one.
     """
 
     t: np.ndarray
@@ -110,6 +143,41 @@ class SyntheticTruth:
     blur_px: np.ndarray
     radius_px: float
     marker_corners: dict
+    visibility: np.ndarray
+    diameter_px: np.ndarray
+    top_px: np.ndarray
+    bottom_px: np.ndarray
+    row_first: np.ndarray
+    row_last: np.ndarray
+    shift_x_px: np.ndarray
+    shift_y_px: np.ndarray
+    held: np.ndarray
+    second: SecondBallTruth | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class SecondBallTruth:
+    """Exact truth of the second ball (a distractor of the same look), one entry per frame.
+
+    Attributes
+    ----------
+    x_px, y_px : ndarray
+        Its centre at mid-exposure, image coordinates, y down (camera tremble included). [px]
+    x_mean_px, y_mean_px : ndarray
+        Its centre averaged over the exposure. [px]
+    visibility : ndarray of int8
+        :class:`~fitdrag.video.synthetic_scene.Visibility` code per frame (it passes behind the
+        specimen: frames where the two overlap count as PARTLY).
+    overlap : ndarray of bool
+        The footprints of the two balls over the exposure touch or overlap in this frame.
+    """
+
+    x_px: np.ndarray
+    y_px: np.ndarray
+    x_mean_px: np.ndarray
+    y_mean_px: np.ndarray
+    visibility: np.ndarray
+    overlap: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
@@ -257,6 +325,7 @@ def _make_scene(
     clutter: int,
     rng: np.random.Generator,
     contrast: float = 40.0,
+    texture: np.ndarray | None = None,
 ) -> np.ndarray:
     cv2 = _cv2()
     h, w = shape
@@ -264,6 +333,8 @@ def _make_scene(
     # Smooth illumination fall-off towards the corners (about -12 % at the corners).
     r2 = ((xx - w / 2) / (w / 2)) ** 2 + ((yy - h / 2) / (h / 2)) ** 2
     scene = (background_level * (1.0 - 0.06 * r2)).astype(np.float32)
+    if texture is not None:  # a cloth backdrop, lit like the rest of the wall
+        scene += texture * (1.0 - 0.06 * r2)
     scale = min(h, w)
     for _ in range(int(clutter)):
         level = float(background_level + rng.uniform(-contrast, contrast))
@@ -348,8 +419,9 @@ class FlightRenderer:
 
     Build it with the same arguments as :func:`render_flight`; call :meth:`frame` for one
     frame or iterate :meth:`iter_frames` to stream long footage (e.g. into
-    :func:`write_video`) without holding it all in memory.  :attr:`truth` holds the exact
-    truth for all frames.
+    :func:`fitdrag.video.footage_files.write_video`) without holding it all in memory.
+    :attr:`truth` holds the exact truth for all frames.  A frame in which nothing moves in the
+    image (ball, second ball and hand outside, no tremble) costs only its noise.
     """
 
     def __init__(
@@ -381,6 +453,13 @@ class FlightRenderer:
         color: bool = False,
         supersample: int = 4,
         seed: int = 0,
+        second_ball: Callable | tuple | None = None,
+        texture: str | None = None,
+        texture_contrast: float = 30.0,
+        thread_px: float = 3.2,
+        tremble_px: float = 0.0,
+        ball_bgr: tuple[float, float, float] | None = None,
+        hand: Hand | None = None,
     ):
         self.n_frames = int(n_frames)
         if self.n_frames < 1:
@@ -401,6 +480,23 @@ class FlightRenderer:
             raise InputError(
                 f"shape: expected (height, width) of at least 8 px each, got {shape!r}."
             )
+        if texture not in (None, "fabric"):
+            raise InputError(f"texture: {texture!r} is not known; use None or 'fabric'.")
+        self.tremble_px = float(tremble_px)
+        if not (math.isfinite(self.tremble_px) and 0.0 <= self.tremble_px <= 5.0):
+            raise InputError(
+                f"tremble_px: expected a shift amplitude from 0 to 5 [px], got {tremble_px!r}; "
+                f"give the largest whole-scene shift per frame."
+            )
+        if ball_bgr is not None and len(tuple(ball_bgr)) != 3:
+            raise InputError(
+                f"ball_bgr: expected three levels (B, G, R) on the 8-bit scale, got {ball_bgr!r}."
+            )
+        if hand is not None and (not isinstance(hand, Hand) or int(hand.release_frame) < 0):
+            raise InputError(
+                f"hand: expected a Hand with release_frame >= 0, got {hand!r}; pass "
+                f"Hand(release_frame=...)."
+            )
         self.shape = (int(shape[0]), int(shape[1]))
         self.t0 = float(t0)
         self.ball_level = float(ball_level)
@@ -412,7 +508,13 @@ class FlightRenderer:
         self.flicker_hz = 2.0 * float(mains_hz)  # lamps flicker at twice the mains frequency
         self.flicker_phase = float(flicker_phase)
         self.bit_depth = bit_depth
-        self.color = bool(color)
+        self.ball_bgr = None if ball_bgr is None else tuple(float(v) for v in ball_bgr)
+        self.color = bool(color) or self.ball_bgr is not None
+        # The old colour mode tints the whole grey picture; a coloured ball keeps a grey scene.
+        self._tint = (
+            np.array([0.92, 1.0, 1.06], np.float32) if color and self.ball_bgr is None else None
+        )
+        self.hand = hand
         self.ss = int(supersample)
         self.seed = int(seed)
         self._homography = None if homography is None else np.asarray(homography, dtype=float)
@@ -422,11 +524,22 @@ class FlightRenderer:
                 "the trajectory in pixels."
             )
         self._traj = _Trajectory(trajectory, self.n_frames, self.t0, self.fps)
+        self._second = (
+            None
+            if second_ball is None
+            else _Trajectory(second_ball, self.n_frames, self.t0, self.fps)
+        )
         self._in_world = bool(trajectory_in_world)
+        self._t_release = None if hand is None else self.t0 + int(hand.release_frame) / self.fps
 
         rng = np.random.default_rng(self.seed)
+        tex = None
+        if texture == "fabric":
+            tex = fabric_texture(
+                self.shape, float(texture_contrast), thread_px=float(thread_px), seed=self.seed
+            )
         scene = _make_scene(
-            self.shape, float(background_level), clutter, rng, float(clutter_contrast)
+            self.shape, float(background_level), clutter, rng, float(clutter_contrast), tex
         )
         corners = {}
         for m in markers:
@@ -438,32 +551,53 @@ class FlightRenderer:
             c = marker_corners_in_image(m, self._homography)
             _draw_marker(scene, int(m.marker_id), c, 8)
             corners[int(m.marker_id)] = c
+        self._occ_rects = [tuple(float(v) for v in rect) for rect in occluders]
         occ = np.zeros(self.shape, np.float32)
-        for rect in occluders:
+        for rect in self._occ_rects:
             occ = np.maximum(occ, _rect_coverage(self.shape, rect))
         self._occ = occ
         self._occ_level = float(occluder_level)
         scene_front = scene * (1.0 - occ) + self._occ_level * occ
         self.scene = scene_front.astype(np.float32)
         self._scene_behind = scene.astype(np.float32)
-        self._rng_seed_seq = np.random.SeedSequence(self.seed)
+        self._scene_behind.setflags(write=False)
+        self._shift_x, self._shift_y = tremble_shifts(self.n_frames, self.tremble_px, self.seed)
+        self._shifter = SceneShifter(self._scene_behind) if self.tremble_px > 0 else None
+        if self.ball_bgr is None:
+            self._ball_colour = np.full(3 if self.color else 1, self.ball_level, np.float32)
+        elif self.color:
+            self._ball_colour = np.asarray(self.ball_bgr, np.float32)
+        self._hand_colour = None
+        if hand is not None:
+            bgr = np.asarray(hand.bgr, np.float32)
+            self._hand_colour = bgr if self.color else np.array([luma(hand.bgr)], np.float32)
         self.truth = self._compute_truth(corners)
 
     # -- geometry ---------------------------------------------------------------------------
-    def _sub_times(self, k: int) -> np.ndarray:
+    def _sub_times(self, k: int, where=None) -> np.ndarray:
+        where = where or self._positions
         t_mid = self.t0 + k / self.fps
-        x0, y0 = self._positions(np.array([t_mid - self.exposure / 2, t_mid + self.exposure / 2]))
+        x0, y0 = where(np.array([t_mid - self.exposure / 2, t_mid + self.exposure / 2]))
         path = float(np.hypot(x0[1] - x0[0], y0[1] - y0[0]))
         n_sub = 1 if self.exposure == 0 else int(min(400, max(4, math.ceil(path / 0.1) + 1)))
         frac = (np.arange(n_sub) + 0.5) / n_sub - 0.5
         return t_mid + self.exposure * frac
 
-    def _positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        x, y = self._traj(t)
+    def _to_image(self, x, y) -> tuple[np.ndarray, np.ndarray]:
         if self._in_world:
             p = _apply_homography(self._homography, np.column_stack([x, y]))
             return p[:, 0], p[:, 1]
         return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+
+    def _positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Specimen centre in the still scene (no tremble) at times ``t``. [px]"""
+        return self._to_image(*self._traj(t))
+
+    def _second_positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return self._to_image(*self._second(t))
+
+    def _hand_positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return self.hand.centre(t, self._positions, self._t_release)
 
     def _gain(self, t_mid: float) -> float:
         if self.flicker == 0:
@@ -473,34 +607,82 @@ class FlightRenderer:
         sinc = 1.0 if half == 0 else math.sin(half) / half
         return 1.0 + self.flicker * math.cos(om * t_mid + self.flicker_phase) * sinc
 
+    def _hidden(self, xs: np.ndarray, ys: np.ndarray) -> float:
+        """Exposure-integrated share of a ball at still-scene centres behind the occluders."""
+        if not self._occ.any():
+            return 0.0
+        a, _, (x0, y0) = swept_disc(xs, ys, self.radius, self.shape, self.ss)
+        if a is None:
+            return 0.0
+        occ = self._occ[y0 : y0 + a.shape[0], x0 : x0 + a.shape[1]]
+        tot = float(a.sum())
+        return float((a * occ).sum()) / tot if tot > 0 else 0.0
+
+    def _edge(self, xs: np.ndarray, ys: np.ndarray) -> float:
+        h, w = self.shape
+        d = np.minimum.reduce([xs + 0.5, (w - 0.5) - xs, ys + 0.5, (h - 0.5) - ys])
+        return float(d.min() - self.radius)
+
     def _compute_truth(self, corners: dict) -> SyntheticTruth:
         n = self.n_frames
-        h, w = self.shape
+        h = self.shape[0]
+        r = self.radius
         t = self.t0 + np.arange(n) / self.fps
+        sx, sy = self._shift_x, self._shift_y
         xm, ym = self._positions(t)
-        xa, ya, edge, blur, hidden, gain = (np.empty(n) for _ in range(6))
+        xm, ym = xm + sx, ym + sy
+        xa, ya, edge, blur, hidden, gain, top, bottom = (np.empty(n) for _ in range(8))
+        outside = np.zeros(n, bool)
+        two = self._second is not None
+        if two:
+            x2, y2 = self._second_positions(t)
+            x2, y2 = x2 + sx, y2 + sy
+            xa2, ya2, edge2, hidden2 = (np.empty(n) for _ in range(4))
+            outside2, overlap = np.zeros(n, bool), np.zeros(n, bool)
         for k in range(n):
             ts = self._sub_times(k)
             xs, ys = self._positions(ts)
+            hidden[k] = self._hidden(xs, ys)
+            xs, ys = xs + sx[k], ys + sy[k]
             xa[k], ya[k] = xs.mean(), ys.mean()
-            d = np.minimum.reduce([xs + 0.5, (w - 0.5) - xs, ys + 0.5, (h - 0.5) - ys])
-            edge[k] = float(d.min() - self.radius)
+            edge[k] = self._edge(xs, ys)
+            outside[k] = sub_positions_outside(xs, ys, r, self.shape)
+            top[k], bottom[k] = ys.min() - r, ys.max() + r
             blur[k] = float(np.hypot(np.diff(xs), np.diff(ys)).sum()) * (
                 len(xs) / max(len(xs) - 1, 1)
             )
             gain[k] = self._gain(t[k])
-            if self._occ.any():
-                a, _, (x0, y0) = self._ball_patch(xs, ys, with_intensity=False)
-                if a is None:
-                    hidden[k] = 0.0
-                else:
-                    occ = self._occ[y0 : y0 + a.shape[0], x0 : x0 + a.shape[1]]
-                    tot = float(a.sum())
-                    hidden[k] = float((a * occ).sum()) / tot if tot > 0 else 0.0
-            else:
-                hidden[k] = 0.0
+            if two:
+                ts2 = self._sub_times(k, self._second_positions)
+                u, v = self._second_positions(ts2)
+                hidden2[k] = self._hidden(u, v)
+                u, v = u + sx[k], v + sy[k]
+                xa2[k], ya2[k] = u.mean(), v.mean()
+                edge2[k] = self._edge(u, v)
+                outside2[k] = sub_positions_outside(u, v, r, self.shape)
+                gap = np.hypot(u[:, None] - xs[None, :], v[:, None] - ys[None, :]).min()
+                overlap[k] = bool(gap <= 2 * r)
         inside = edge >= 1.0
-        for arr in (t, xm, ym, xa, ya, edge, hidden, gain, blur, inside):
+        vis_code = visibility_codes(edge, outside, hidden)
+        row_first = np.clip(np.floor(top + 0.5), 0, h - 1).astype(int)
+        row_last = np.clip(np.ceil(bottom - 0.5), 0, h - 1).astype(int)
+        row_first[outside] = -1
+        row_last[outside] = -1
+        held = np.zeros(n, bool)
+        if self.hand is not None:
+            held[: min(int(self.hand.release_frame), n)] = True
+        second = None
+        if two:
+            code2 = visibility_codes(edge2, outside2, hidden2)
+            code2[overlap & (code2 == int(Visibility.FULLY))] = int(Visibility.PARTLY)
+            arrays2 = (x2, y2, xa2, ya2, code2, overlap)
+            for arr in arrays2:
+                arr.setflags(write=False)
+            second = SecondBallTruth(*arrays2)
+        diameter = np.full(n, 2.0 * r)
+        arrays = (t, xm, ym, xa, ya, edge, hidden, gain, blur, inside, vis_code, diameter, top,
+                  bottom, row_first, row_last, sx, sy, held)  # fmt: skip
+        for arr in arrays:
             arr.setflags(write=False)
         return SyntheticTruth(
             t=t,
@@ -511,62 +693,79 @@ class FlightRenderer:
             edge_distance_px=edge,
             inside=inside,
             hidden_fraction=hidden,
-            visible=inside & (hidden <= 0.0),
+            visible=vis_code == int(Visibility.FULLY),
             gain=gain,
             blur_px=blur,
-            radius_px=self.radius,
+            radius_px=r,
             marker_corners=corners,
+            visibility=vis_code,
+            diameter_px=diameter,
+            top_px=top,
+            bottom_px=bottom,
+            row_first=row_first,
+            row_last=row_last,
+            shift_x_px=sx,
+            shift_y_px=sy,
+            held=held,
+            second=second,
         )
 
-    def _ball_patch(self, xs: np.ndarray, ys: np.ndarray, with_intensity: bool = True):
-        """Exposure-averaged coverage (and radiance) of the ball on a pixel patch."""
-        h, w = self.shape
-        r = self.radius
-        x0 = max(int(math.floor(xs.min() - r)) - 2, 0)
-        x1 = min(int(math.ceil(xs.max() + r)) + 3, w)
-        y0 = max(int(math.floor(ys.min() - r)) - 2, 0)
-        y1 = min(int(math.ceil(ys.max() + r)) + 3, h)
-        if x1 <= x0 or y1 <= y0:
-            return None, None, (0, 0)
-        ss = self.ss
-        gx = (x0 + (np.arange((x1 - x0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
-        gy = (y0 + (np.arange((y1 - y0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
-        acc_a = np.zeros((len(gy), len(gx)))
-        acc_i = np.zeros_like(acc_a) if with_intensity else None
-        lx, ly, lz = self.light
-        for xc, yc in zip(xs, ys, strict=True):
-            dx = gx[None, :] - xc
-            dy = gy[:, None] - yc
-            dist = np.sqrt(dx * dx + dy * dy)
-            a = np.clip((r - dist) * ss + 0.5, 0.0, 1.0)
-            acc_a += a
-            if with_intensity:
-                nx, ny = dx / r, dy / r
-                nz = np.sqrt(np.clip(1.0 - nx * nx - ny * ny, 0.0, None))
-                lam = np.clip(nx * lx + ny * ly + nz * lz, 0.0, None)
-                acc_i += a * (self.ambient + (1.0 - self.ambient) * lam)
-        ph, pw = y1 - y0, x1 - x0
-        n = len(xs)
-        cov = acc_a.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n
-        rad = None
-        if with_intensity:
-            rad = acc_i.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n * self.ball_level
-        return cov, rad, (x0, y0)
-
     # -- frames -----------------------------------------------------------------------------
+    def _layers(self, k: int) -> list:
+        """What moves in frame ``k``, back to front: (coverage, shade, (x0, y0), colour)."""
+        sx, sy = self._shift_x[k], self._shift_y[k]
+        out = []
+        light = self.light
+        if self._second is not None:
+            u, v = self._second_positions(self._sub_times(k, self._second_positions))
+            cov, shade, off = swept_disc(u + sx, v + sy, self.radius, self.shape, self.ss, light,
+                                         self.ambient)  # fmt: skip
+            if cov is not None:
+                out.append((cov, shade, off, self._ball_colour))
+        if self.hand is not None:
+            u, v = self._hand_positions(self._sub_times(k, self._hand_positions))
+            cov, shade, off = swept_ellipse(u + sx, v + sy, self.hand.half_axes_px, self.shape)
+            if cov is not None:
+                out.append((cov, shade, off, self._hand_colour))
+        xs, ys = self._positions(self._sub_times(k))
+        cov, shade, off = swept_disc(xs + sx, ys + sy, self.radius, self.shape, self.ss, light,
+                                     self.ambient)  # fmt: skip
+        if cov is not None:
+            out.append((cov, shade, off, self._ball_colour))
+        return out
+
+    def _occluders(self, k: int) -> np.ndarray:
+        if self._shifter is None or not self._occ_rects:
+            return self._occ
+        sx, sy = self._shift_x[k], self._shift_y[k]
+        occ = np.zeros(self.shape, np.float32)
+        for x0, y0, x1, y1 in self._occ_rects:
+            occ = np.maximum(occ, _rect_coverage(self.shape, (x0 + sx, y0 + sy, x1 + sx, y1 + sy)))
+        return occ
+
     def clean_frame(self, k: int) -> np.ndarray:
-        """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale)."""
+        """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale; grey
+        ``(h, w)`` or, for colour footage, ``(h, w, 3)`` before the colour tint)."""
         if not (0 <= k < self.n_frames):
             raise InputError(f"frame: {k!r} is outside 0..{self.n_frames - 1}.")
-        img = self._scene_behind.copy()
-        xs, ys = self._positions(self._sub_times(k))
-        cov, rad, (x0, y0) = self._ball_patch(xs, ys)
-        if cov is not None:
+        if self._shifter is None:
+            base = self._scene_behind
+        else:
+            base = self._shifter(self._shift_x[k], self._shift_y[k])
+        layers = self._layers(k)
+        occ = self._occluders(k)
+        if not layers and not occ.any() and not self.color:
+            return base  # nothing moves: the (read-only) still scene itself
+        img = np.repeat(base[:, :, None], 3, axis=2) if self.color else base.copy()
+        for cov, shade, (x0, y0), colour in layers:
             sl = (slice(y0, y0 + cov.shape[0]), slice(x0, x0 + cov.shape[1]))
-            img[sl] = img[sl] * (1.0 - cov) + rad
-        occ = self._occ
+            if self.color:
+                img[sl] = img[sl] * (1.0 - cov[:, :, None]) + shade[:, :, None] * colour
+            else:
+                img[sl] = img[sl] * (1.0 - cov) + shade * colour[0]
         if occ.any():
-            img = img * (1.0 - occ) + self._occ_level * occ
+            o = occ[:, :, None] if self.color else occ
+            img = img * (1.0 - o) + self._occ_level * o
         return img
 
     def frame(self, k: int) -> np.ndarray:
@@ -576,9 +775,8 @@ class FlightRenderer:
         scale = 257.0 if self.bit_depth == 16 else 1.0
         top = 65535.0 if self.bit_depth == 16 else 255.0
         dtype = np.uint16 if self.bit_depth == 16 else np.uint8
-        if self.color:
-            tint = np.array([0.92, 1.0, 1.06], np.float32)  # B, G, R
-            img = img[:, :, None] * tint
+        if self._tint is not None:
+            img = img * self._tint
         if self.noise_sigma > 0:
             img = img + rng.standard_normal(img.shape, dtype=np.float32) * np.float32(
                 self.noise_sigma
