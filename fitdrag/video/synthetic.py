@@ -5,6 +5,10 @@ shaded, anti-aliased ball (supersampled) along a trajectory the caller supplies,
 over the exposure time (motion blur), lays it over a static cluttered background (optionally
 with ArUco markers and opaque occluders in front of the ball), multiplies the whole picture by
 a mains-light flicker gain, adds Gaussian sensor noise and quantises to 8 or 16 bits.
+Optional scene elements (drawn by :mod:`fitdrag.video.synthetic_scene`): a woven cloth
+backdrop, a second ball of the same look on its own path (behind the specimen), a hand that
+carries the ball and releases it, a coloured ball on a grey scene, and camera tremble (a
+random sub-pixel shift of the whole picture in each frame).
 
 Coordinates are image pixels, y down, with the centre of pixel ``(row, col)`` at
 ``(x, y) = (col, row)``; the frame covers ``-0.5 <= x <= w - 0.5``.  Grey levels are given on
@@ -12,7 +16,9 @@ the 8-bit scale (0..255) and multiplied by 257 for 16-bit output.  All footage h
 synthetic.
 
 The truth for frame ``k`` is the ball centre at the middle of the exposure, ``t0 + k / fps``,
-plus the centre averaged over the exposure (what the centroid of a blurred blob measures).
+plus the centre averaged over the exposure (what the centroid of a blurred blob measures),
+its visibility, apparent diameter and rows spanned (see
+:class:`fitdrag.video.synthetic_truth.SyntheticTruth`).
 """
 
 from __future__ import annotations
@@ -27,13 +33,20 @@ from fitdrag.errors import InputError
 from fitdrag.video.synthetic_scene import (
     Hand,
     SceneShifter,
-    Visibility,
+    Trajectory,
     fabric_texture,
     luma,
+    make_scene,
+    rect_coverage,
     sub_positions_outside,
     swept_disc,
     swept_ellipse,
     tremble_shifts,
+)
+from fitdrag.video.synthetic_truth import (
+    SecondBallTruth,
+    SyntheticTruth,
+    Visibility,
     visibility_codes,
 )
 
@@ -71,113 +84,6 @@ class MarkerPlacement:
     x: float
     y: float
     side: float
-
-
-@dataclass(frozen=True, eq=False)
-class SyntheticTruth:
-    """Exact truth of a synthetic flight, one entry per frame.
-
-    Attributes
-    ----------
-    t : ndarray
-        Mid-exposure time of each frame. [s]
-    x_px, y_px : ndarray
-        Ball centre at mid-exposure, image coordinates, y down. [px]
-    x_mean_px, y_mean_px : ndarray
-        Ball centre averaged over the exposure (equals the mid-exposure centre to within
-        ``a * exposure**2 / 24`` for acceleration ``a``). [px]
-    edge_distance_px : ndarray
-        Smallest distance from the ball's footprint over the exposure to the image boundary;
-        negative when the ball is cut by the frame edge. [px]
-    inside : ndarray of bool
-        The footprint stays clear of the outermost pixel rows and columns
-        (``edge_distance_px >= 1``): a ball that reaches those pixels cannot be told apart
-        from one the frame edge cuts.
-    hidden_fraction : ndarray
-        Fraction of the ball's exposure-integrated image hidden behind occluders (0..1).
-    visible : ndarray of bool
-        ``inside`` and not hidden at all.
-    gain : ndarray
-        Flicker gain applied to the frame, averaged over the exposure (1 = none).
-    blur_px : ndarray
-        Length of the centre's path during the exposure. [px]
-    radius_px : float
-        Ball radius. [px]
-    marker_corners : dict
-        Marker id -> (4, 2) array of its black square's image corners in the order a detector
-        reports them for an upright marker: top-left, top-right, bottom-right, bottom-left.
-        Without camera tremble; frame ``k`` shows them moved by ``(shift_x_px[k],
-        shift_y_px[k])``. [px]
-    visibility : ndarray of int8
-        :class:`~fitdrag.video.synthetic_scene.Visibility` code per frame: FULLY (= ``visible``),
-        PARTLY (cut by the frame edge or partly hidden), HIDDEN (wholly behind occluders) or
-        OUTSIDE (no part of the footprint in the image).
-    diameter_px : ndarray
-        Apparent diameter of the ball perpendicular to its motion, ``2 * radius_px`` (exposure
-        blur lengthens the blob along the motion only). [px]
-    top_px, bottom_px : ndarray
-        Highest and lowest image y the ball's outline reaches over the exposure (y down). [px]
-    row_first, row_last : ndarray of int
-        First and last image row with any part of the ball's footprint over the exposure
-        (row ``i`` covers ``i - 0.5 <= y < i + 0.5``), clipped to the image; -1 when outside.
-    shift_x_px, shift_y_px : ndarray
-        Whole-scene shift of each frame (camera tremble; zero without it).  The positions
-        above are image positions and include it; ``x_px - shift_x_px`` is the position in
-        the still scene. [px]
-    held : ndarray of bool
-        The ball is in the hand (frames before the hand's release; all False without a hand).
-    second : SecondBallTruth or None
-        Truth of the second ball, when there is one.
-    """
-
-    t: np.ndarray
-    x_px: np.ndarray
-    y_px: np.ndarray
-    x_mean_px: np.ndarray
-    y_mean_px: np.ndarray
-    edge_distance_px: np.ndarray
-    inside: np.ndarray
-    hidden_fraction: np.ndarray
-    visible: np.ndarray
-    gain: np.ndarray
-    blur_px: np.ndarray
-    radius_px: float
-    marker_corners: dict
-    visibility: np.ndarray
-    diameter_px: np.ndarray
-    top_px: np.ndarray
-    bottom_px: np.ndarray
-    row_first: np.ndarray
-    row_last: np.ndarray
-    shift_x_px: np.ndarray
-    shift_y_px: np.ndarray
-    held: np.ndarray
-    second: SecondBallTruth | None = None
-
-
-@dataclass(frozen=True, eq=False)
-class SecondBallTruth:
-    """Exact truth of the second ball (a distractor of the same look), one entry per frame.
-
-    Attributes
-    ----------
-    x_px, y_px : ndarray
-        Its centre at mid-exposure, image coordinates, y down (camera tremble included). [px]
-    x_mean_px, y_mean_px : ndarray
-        Its centre averaged over the exposure. [px]
-    visibility : ndarray of int8
-        :class:`~fitdrag.video.synthetic_scene.Visibility` code per frame (it passes behind the
-        specimen: frames where the two overlap count as PARTLY).
-    overlap : ndarray of bool
-        The footprints of the two balls over the exposure touch or overlap in this frame.
-    """
-
-    x_px: np.ndarray
-    y_px: np.ndarray
-    x_mean_px: np.ndarray
-    y_mean_px: np.ndarray
-    visibility: np.ndarray
-    overlap: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
@@ -319,101 +225,6 @@ def _draw_marker(scene: np.ndarray, marker_id: int, corners_black: np.ndarray, s
     patch += level
 
 
-def _make_scene(
-    shape: tuple[int, int],
-    background_level: float,
-    clutter: int,
-    rng: np.random.Generator,
-    contrast: float = 40.0,
-    texture: np.ndarray | None = None,
-) -> np.ndarray:
-    cv2 = _cv2()
-    h, w = shape
-    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
-    # Smooth illumination fall-off towards the corners (about -12 % at the corners).
-    r2 = ((xx - w / 2) / (w / 2)) ** 2 + ((yy - h / 2) / (h / 2)) ** 2
-    scene = (background_level * (1.0 - 0.06 * r2)).astype(np.float32)
-    if texture is not None:  # a cloth backdrop, lit like the rest of the wall
-        scene += texture * (1.0 - 0.06 * r2)
-    scale = min(h, w)
-    for _ in range(int(clutter)):
-        level = float(background_level + rng.uniform(-contrast, contrast))
-        kind = rng.integers(3)
-        cx, cy = rng.uniform(0, w), rng.uniform(0, h)
-        if kind == 0:  # rotated rectangle
-            half = rng.uniform(0.03, 0.2, size=2) * scale
-            ang = rng.uniform(0, np.pi)
-            c, s = math.cos(ang), math.sin(ang)
-            pts = np.array(
-                [(-half[0], -half[1]), (half[0], -half[1]), (half[0], half[1]), (-half[0], half[1])]
-            )
-            pts = pts @ np.array([[c, s], [-s, c]]) + (cx, cy)
-            cv2.fillPoly(scene, [np.round(pts * 16).astype(np.int32)], level, cv2.LINE_AA, 4)
-        elif kind == 1:  # disc, sometimes ball-sized
-            rad = rng.uniform(0.02, 0.1) * scale
-            cv2.circle(
-                scene, (int(cx * 16), int(cy * 16)), int(rad * 16), level, -1, cv2.LINE_AA, 4
-            )
-        else:  # thin bar (a stand, a cable)
-            x2, y2 = cx + rng.uniform(-0.4, 0.4) * scale, cy + rng.uniform(-0.4, 0.4) * scale
-            th = int(rng.integers(2, 6))
-            cv2.line(
-                scene,
-                (int(cx * 16), int(cy * 16)),
-                (int(x2 * 16), int(y2 * 16)),
-                level,
-                th,
-                cv2.LINE_AA,
-                4,
-            )
-    return scene
-
-
-def _rect_coverage(shape: tuple[int, int], rect: Sequence[float]) -> np.ndarray:
-    """Exact per-pixel area coverage of an axis-aligned rectangle ``(x0, y0, x1, y1)`` [px]."""
-    h, w = shape
-    x0, y0, x1, y1 = (float(v) for v in rect)
-    cols = np.arange(w, dtype=np.float64)
-    rows = np.arange(h, dtype=np.float64)
-    cx = np.clip(np.minimum(cols + 0.5, x1) - np.maximum(cols - 0.5, x0), 0.0, 1.0)
-    cy = np.clip(np.minimum(rows + 0.5, y1) - np.maximum(rows - 0.5, y0), 0.0, 1.0)
-    return np.outer(cy, cx).astype(np.float32)
-
-
-class _Trajectory:
-    def __init__(self, trajectory, n_frames: int, t0: float, fps: float):
-        if callable(trajectory):
-            self._fn = trajectory
-            return
-        try:
-            xs, ys = (np.asarray(v, dtype=float) for v in trajectory)
-        except (TypeError, ValueError) as exc:
-            raise InputError(
-                "trajectory: expected a callable t -> (x_px, y_px) or a pair of arrays "
-                f"(x_px, y_px) with one value per frame, got {type(trajectory).__name__}; "
-                "pass one of those."
-            ) from exc
-        if xs.shape != (n_frames,) or ys.shape != (n_frames,):
-            raise InputError(
-                f"trajectory: arrays of shape {xs.shape} and {ys.shape}, expected ({n_frames},) "
-                f"each (one position per frame); pass one mid-exposure position per frame."
-            )
-        tk = t0 + np.arange(n_frames) / fps
-        if n_frames >= 4:
-            from scipy.interpolate import CubicSpline
-
-            sx, sy = CubicSpline(tk, xs), CubicSpline(tk, ys)
-            self._fn = lambda t: (sx(t), sy(t))
-        else:
-            self._fn = lambda t: (np.interp(t, tk, xs), np.interp(t, tk, ys))
-
-    def __call__(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        x, y = self._fn(np.asarray(t, dtype=float))
-        x = np.broadcast_to(np.asarray(x, dtype=float), np.shape(t))
-        y = np.broadcast_to(np.asarray(y, dtype=float), np.shape(t))
-        return x, y
-
-
 class FlightRenderer:
     """Renderer of one synthetic flight; frames on demand (see :func:`render_flight`).
 
@@ -523,11 +334,11 @@ class FlightRenderer:
                 "trajectory_in_world=True needs a homography (world -> image); pass one or give "
                 "the trajectory in pixels."
             )
-        self._traj = _Trajectory(trajectory, self.n_frames, self.t0, self.fps)
+        self._traj = Trajectory(trajectory, self.n_frames, self.t0, self.fps)
         self._second = (
             None
             if second_ball is None
-            else _Trajectory(second_ball, self.n_frames, self.t0, self.fps)
+            else Trajectory(second_ball, self.n_frames, self.t0, self.fps)
         )
         self._in_world = bool(trajectory_in_world)
         self._t_release = None if hand is None else self.t0 + int(hand.release_frame) / self.fps
@@ -538,7 +349,7 @@ class FlightRenderer:
             tex = fabric_texture(
                 self.shape, float(texture_contrast), thread_px=float(thread_px), seed=self.seed
             )
-        scene = _make_scene(
+        scene = make_scene(
             self.shape, float(background_level), clutter, rng, float(clutter_contrast), tex
         )
         corners = {}
@@ -554,7 +365,7 @@ class FlightRenderer:
         self._occ_rects = [tuple(float(v) for v in rect) for rect in occluders]
         occ = np.zeros(self.shape, np.float32)
         for rect in self._occ_rects:
-            occ = np.maximum(occ, _rect_coverage(self.shape, rect))
+            occ = np.maximum(occ, rect_coverage(self.shape, rect))
         self._occ = occ
         self._occ_level = float(occluder_level)
         scene_front = scene * (1.0 - occ) + self._occ_level * occ
@@ -740,7 +551,7 @@ class FlightRenderer:
         sx, sy = self._shift_x[k], self._shift_y[k]
         occ = np.zeros(self.shape, np.float32)
         for x0, y0, x1, y1 in self._occ_rects:
-            occ = np.maximum(occ, _rect_coverage(self.shape, (x0 + sx, y0 + sy, x1 + sx, y1 + sy)))
+            occ = np.maximum(occ, rect_coverage(self.shape, (x0 + sx, y0 + sy, x1 + sx, y1 + sy)))
         return occ
 
     def clean_frame(self, k: int) -> np.ndarray:
@@ -946,7 +757,26 @@ def render_flight(trajectory, n_frames: int, fps: float, **options) -> Synthetic
     supersample : int
         Supersampling factor for the ball's anti-aliasing.
     seed : int
-        Seed for clutter and noise; the same seed gives identical footage.
+        Seed for clutter, texture, tremble and noise; the same seed gives identical footage.
+    second_ball : callable or (x_px, y_px), optional
+        Path of a second ball of the same size and look (same form as ``trajectory``; it
+        passes behind the specimen).
+    texture : {None, "fabric"}
+        Backdrop: a plain wall, or a woven cloth (:func:`~fitdrag.video.synthetic_scene.
+        fabric_texture`).
+    texture_contrast : float
+        Peak-to-peak brightness of the weave (8-bit scale).
+    thread_px : float
+        Thread pitch of the weave. [px]
+    tremble_px : float
+        Camera tremble: each frame's whole picture is shifted by x and y drawn uniformly in
+        +-``tremble_px`` (truth in ``shift_x_px``, ``shift_y_px``). [px]
+    ball_bgr : (float, float, float), optional
+        Colour of a fully lit patch of the ball (B, G, R, 8-bit scale): BGR frames with a grey
+        scene.
+    hand : Hand, optional
+        A hand (:class:`~fitdrag.video.synthetic_scene.Hand`) that holds the ball until its
+        release frame and then moves away.
 
     Returns
     -------

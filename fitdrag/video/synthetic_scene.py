@@ -11,7 +11,6 @@ Helpers of :mod:`fitdrag.video.synthetic` (all footage made with them is synthet
   multiplying its discrete Fourier transform by a phase ramp (Fourier shift theorem; e.g.
   Bracewell, *The Fourier Transform and its Applications*, 3rd ed., 2000, ch. 6) after padding
   the scene with a mirrored, tapered border so the periodic extension has no step;
-- :class:`Visibility`: the codes of the per-frame visibility in the truth.
 
 Coordinates are image pixels, y down, pixel ``(row, col)`` centred at ``(x, y) = (col, row)``.
 """
@@ -19,28 +18,22 @@ Coordinates are image pixels, y down, pixel ``(row, col)`` centred at ``(x, y) =
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
-from enum import IntEnum
 
 import numpy as np
 
 from fitdrag.errors import InputError
 
+
+def _cv2():
+    import cv2
+
+    return cv2
+
+
 #: BT.601 luma weights of the B, G and R channels (ITU-R BT.601-7, eq. for E'Y).
 LUMA_BGR = (0.114, 0.587, 0.299)
-
-
-class Visibility(IntEnum):
-    """How much of a ball a frame shows (codes of ``SyntheticTruth.visibility``)."""
-
-    #: No part of the ball's footprint over the exposure is inside the image.
-    OUTSIDE = 0
-    #: Cut by the image edge (or within 1 px of it), or partly hidden behind an occluder.
-    PARTLY = 1
-    #: Clear of the outermost pixel rows and columns and not hidden at all.
-    FULLY = 2
-    #: Inside the image but wholly behind occluders.
-    HIDDEN = 3
 
 
 @dataclass(frozen=True)
@@ -216,6 +209,104 @@ class SceneShifter:
         return res
 
 
+def make_scene(
+    shape: tuple[int, int],
+    background_level: float,
+    clutter: int,
+    rng: np.random.Generator,
+    contrast: float = 40.0,
+    texture: np.ndarray | None = None,
+) -> np.ndarray:
+    """Still background: lit wall (optionally cloth), and ``clutter`` random shapes (float32)."""
+    cv2 = _cv2()
+    h, w = shape
+    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
+    # Smooth illumination fall-off towards the corners (about -12 % at the corners).
+    r2 = ((xx - w / 2) / (w / 2)) ** 2 + ((yy - h / 2) / (h / 2)) ** 2
+    scene = (background_level * (1.0 - 0.06 * r2)).astype(np.float32)
+    if texture is not None:  # a cloth backdrop, lit like the rest of the wall
+        scene += texture * (1.0 - 0.06 * r2)
+    scale = min(h, w)
+    for _ in range(int(clutter)):
+        level = float(background_level + rng.uniform(-contrast, contrast))
+        kind = rng.integers(3)
+        cx, cy = rng.uniform(0, w), rng.uniform(0, h)
+        if kind == 0:  # rotated rectangle
+            half = rng.uniform(0.03, 0.2, size=2) * scale
+            ang = rng.uniform(0, np.pi)
+            c, s = math.cos(ang), math.sin(ang)
+            pts = np.array(
+                [(-half[0], -half[1]), (half[0], -half[1]), (half[0], half[1]), (-half[0], half[1])]
+            )
+            pts = pts @ np.array([[c, s], [-s, c]]) + (cx, cy)
+            cv2.fillPoly(scene, [np.round(pts * 16).astype(np.int32)], level, cv2.LINE_AA, 4)
+        elif kind == 1:  # disc, sometimes ball-sized
+            rad = rng.uniform(0.02, 0.1) * scale
+            cv2.circle(
+                scene, (int(cx * 16), int(cy * 16)), int(rad * 16), level, -1, cv2.LINE_AA, 4
+            )
+        else:  # thin bar (a stand, a cable)
+            x2, y2 = cx + rng.uniform(-0.4, 0.4) * scale, cy + rng.uniform(-0.4, 0.4) * scale
+            th = int(rng.integers(2, 6))
+            cv2.line(
+                scene,
+                (int(cx * 16), int(cy * 16)),
+                (int(x2 * 16), int(y2 * 16)),
+                level,
+                th,
+                cv2.LINE_AA,
+                4,
+            )
+    return scene
+
+
+def rect_coverage(shape: tuple[int, int], rect: Sequence[float]) -> np.ndarray:
+    """Exact per-pixel area coverage of an axis-aligned rectangle ``(x0, y0, x1, y1)`` [px]."""
+    h, w = shape
+    x0, y0, x1, y1 = (float(v) for v in rect)
+    cols = np.arange(w, dtype=np.float64)
+    rows = np.arange(h, dtype=np.float64)
+    cx = np.clip(np.minimum(cols + 0.5, x1) - np.maximum(cols - 0.5, x0), 0.0, 1.0)
+    cy = np.clip(np.minimum(rows + 0.5, y1) - np.maximum(rows - 0.5, y0), 0.0, 1.0)
+    return np.outer(cy, cx).astype(np.float32)
+
+
+class Trajectory:
+    """A ball path: a callable t -> (x, y) or per-frame arrays (cubic-spline in between)."""
+
+    def __init__(self, trajectory, n_frames: int, t0: float, fps: float):
+        if callable(trajectory):
+            self._fn = trajectory
+            return
+        try:
+            xs, ys = (np.asarray(v, dtype=float) for v in trajectory)
+        except (TypeError, ValueError) as exc:
+            raise InputError(
+                "trajectory: expected a callable t -> (x_px, y_px) or a pair of arrays "
+                f"(x_px, y_px) with one value per frame, got {type(trajectory).__name__}; "
+                "pass one of those."
+            ) from exc
+        if xs.shape != (n_frames,) or ys.shape != (n_frames,):
+            raise InputError(
+                f"trajectory: arrays of shape {xs.shape} and {ys.shape}, expected ({n_frames},) "
+                f"each (one position per frame); pass one mid-exposure position per frame."
+            )
+        tk = t0 + np.arange(n_frames) / fps
+        if n_frames >= 4:
+            from scipy.interpolate import CubicSpline
+
+            sx, sy = CubicSpline(tk, xs), CubicSpline(tk, ys)
+            self._fn = lambda t: (sx(t), sy(t))
+        else:
+            self._fn = lambda t: (np.interp(t, tk, xs), np.interp(t, tk, ys))
+
+    def __call__(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        x, y = self._fn(np.asarray(t, dtype=float))
+        x = np.broadcast_to(np.asarray(x, dtype=float), np.shape(t))
+        y = np.broadcast_to(np.asarray(y, dtype=float), np.shape(t))
+        return x, y
+
+
 def _patch_bounds(xs, ys, rx: float, ry: float, shape):
     h, w = shape
     x0 = max(int(math.floor(xs.min() - rx)) - 2, 0)
@@ -287,18 +378,6 @@ def swept_ellipse(xs, ys, half_axes, shape, ss: int = 2):
     cov = acc_a.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n
     shade = acc_i.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n
     return cov, shade, (x0, y0)
-
-
-def visibility_codes(
-    edge_distance: np.ndarray, outside: np.ndarray, hidden: np.ndarray
-) -> np.ndarray:
-    """Per-frame :class:`Visibility` codes from the edge distance [px], the all-outside flags
-    and the hidden fractions."""
-    code = np.full(len(edge_distance), int(Visibility.PARTLY), np.int8)
-    code[(edge_distance >= 1.0) & (hidden <= 0.0)] = int(Visibility.FULLY)
-    code[(hidden >= 1.0) & ~outside] = int(Visibility.HIDDEN)
-    code[outside] = int(Visibility.OUTSIDE)
-    return code
 
 
 def sub_positions_outside(xs: np.ndarray, ys: np.ndarray, r: float, shape) -> bool:
