@@ -14,8 +14,9 @@ import numpy as np
 import pytest
 
 from fitdrag.video.detect import detect_specimen
+from fitdrag.video.footage_files import write_frames, write_video
 from fitdrag.video.sources import open_source
-from fitdrag.video.synthetic import render_flight, write_frames, write_video
+from fitdrag.video.synthetic import render_flight
 
 FPS = 500.0
 SHAPE = (240, 320)

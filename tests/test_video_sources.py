@@ -12,6 +12,7 @@ import cv2
 import numpy as np
 import pytest
 
+from fitdrag.video.footage_files import write_frames, write_video
 from fitdrag.video.sources import (
     ArraySource,
     FolderSource,
@@ -19,7 +20,7 @@ from fitdrag.video.sources import (
     check_frame_rate,
     open_source,
 )
-from fitdrag.video.synthetic import render_flight, write_frames, write_video
+from fitdrag.video.synthetic import render_flight
 
 N = 12
 

@@ -20,7 +20,8 @@ import pytest
 
 from fitdrag.tracks.csv_file import read_track
 from fitdrag.tracks.track import MIN_POINTS
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.footage_files import write_frames, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import (
     FootageTrack,
     footage_sha256,
