@@ -381,7 +381,7 @@ def detect_specimen(
         last = last_n if last_n is not None else start
         raise InputError(
             f"footage {source.name}: no specimen found in any frame of {start}..{last} "
-            f"({_reasons_by_range(missing)}); check the frame range (start/stop), the area "
+            f"({reasons_by_range(missing)}); check the frame range (start/stop), the area "
             f"limits (min_area={min_area:g}, max_area={max_area:g} px: the specimen's size in "
             f"pixels) and the threshold (threshold_sigma={threshold_sigma:g}), or give a "
             f"region of interest (region) that leaves out other moving things."
@@ -454,7 +454,7 @@ def _expected_frames(source: FrameSource, start: int, stop: int | None):
     return None
 
 
-def _reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
+def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
     """The reasons of missing frames, each with the frame ranges it applies to, commonest
     first: ``"frames 0-14 (15): no blob ...; frames 15-19 (5): ..."``."""
     if not missing:
