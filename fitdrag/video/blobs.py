@@ -115,17 +115,26 @@ class BlobFinder:
         if keep.sum() < 50:  # a very dark scene: use every grid pixel
             keep[:] = True
         self.grid = idx[keep]
+        self._grid_slices = (slice(step // 2, None, step), slice(step // 2, None, step))
+        self._grid_keep = keep
         self.grid_bg = np.maximum(bflat[keep], self.bg_floor).astype(np.float32)
         self.grid_inv = (1.0 / self.grid_bg).astype(np.float32)
         self._yy, self._xx = np.indices((64, 64), dtype=np.float32)
         self.scale = 2 if self.h * self.w >= 400_000 else 1
+        self._bg_at = {1: background}
         if self.scale > 1:
+            self.bg_small = self.background_at(2)
+        self._kernels()
+
+    def background_at(self, scale: int) -> np.ndarray:
+        """The background reduced ``scale`` times (pixel-area averaging), kept once made."""
+        if scale not in self._bg_at:
             import cv2
 
-            self.bg_small = cv2.resize(
-                background, (self.w // 2, self.h // 2), interpolation=cv2.INTER_AREA
+            self._bg_at[scale] = cv2.resize(
+                self.bg, (self.w // scale, self.h // scale), interpolation=cv2.INTER_AREA
             )
-        self._kernels()
+        return self._bg_at[scale]
 
     def _kernels(self):
         import cv2
@@ -142,9 +151,7 @@ class BlobFinder:
         (a specimen or a passing shadow covers few of them); the noise level is 1.4826 times
         the median absolute residual (the normal-consistent MAD).
         """
-        if not raw.flags.c_contiguous:
-            raw = np.ascontiguousarray(raw)
-        f = raw.reshape(-1)[self.grid].astype(np.float32)
+        f = raw[self._grid_slices].astype(np.float32).reshape(-1)[self._grid_keep]
         g = float(np.median(f * self.grid_inv))
         sigma = 1.4826 * float(np.median(np.abs(f - np.float32(g) * self.grid_bg)))
         return g, max(sigma, self.min_sigma)
@@ -400,11 +407,13 @@ class BlobFinder:
         keep: int = KEEP_CANDIDATES,
         exclude: tuple[tuple[float, float, float], ...] = (),
         region: tuple[float, float, float, float] | None = None,
+        scale: int | None = None,
     ) -> Candidates:
         """Candidate blobs anywhere in the frame, found and ranked at the search resolution
         (no full-resolution measurement).
 
-        On large frames the search runs at half resolution.  The noise level is measured on
+        On large frames the search runs at half resolution (``scale`` chooses another
+        reduction, e.g. 4 once the specimen is known to be large enough).  The noise level is measured on
         the difference image at the resolution searched (compressed-video noise is spatially
         correlated, so averaging pixels lowers it much less than white noise would suggest).
         Connected components are gated by their statistics (area, fill of the bounding box,
@@ -416,12 +425,12 @@ class BlobFinder:
         """
         import cv2
 
-        s = self.scale
+        s = self.scale if scale is None else int(scale)
         if s == 1:
             small, bgs = raw, self.bg
         else:
             small = cv2.resize(raw, (self.w // s, self.h // s), interpolation=cv2.INTER_AREA)
-            bgs = self.bg_small
+            bgs = self.background_at(s)
         d = small.astype(np.float32)
         d -= np.float32(g) * bgs
         sig_s = self.search_noise(d)
@@ -447,7 +456,7 @@ class BlobFinder:
         code[area_full > 1.5 * self.max_area] = 2
         code[(code == 0) & (fill < 0.6 * self.min_fill)] = 3
         code[(code == 0) & edge] = 4
-        code[area < speck] = -1
+        code[(area < speck) | (score < 1.5 * self.k)] = -1
         cx = (cents[1:, 0] + 0.5) * s - 0.5
         cy = (cents[1:, 1] + 0.5) * s - 0.5
         for ex, ey, er in exclude:

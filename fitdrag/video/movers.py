@@ -299,6 +299,7 @@ class Follower:
         self.last_reason = NO_BLOB
         self.read: list[int] = []
         self._since_search = 0
+        self._scale = finder.scale
 
     # -- per frame ------------------------------------------------------------------------
     def step(self, n: int, raw: np.ndarray, g: float, sigma: float) -> None:
@@ -377,13 +378,21 @@ class Follower:
 
     def _search(self, n, raw, g, exclude) -> None:
         det = self.det
-        c = det.candidates(raw, g, keep=KEEP_CANDIDATES, exclude=exclude, region=self.region)
+        # Once the specimen's size is known, search at the coarsest resolution that still
+        # shows it at least 3.5 pixels across (fewer pixels to search).
+        s = det.scale
+        sizes = [t.extent for t in self.tracks if t.extent > 0]
+        if sizes and det.scale > 1:
+            while s < 4 and min(sizes) / (2 * s) >= 3.5:
+                s *= 2
+        self._scale = s
+        c = det.candidates(raw, g, keep=KEEP_CANDIDATES, exclude=exclude, region=self.region,
+                           scale=s)  # fmt: skip
         if len(c) == 0:
             reason = c.refused[0].reason if c.refused else NO_BLOB
         else:
             reason = NOT_CONFIRMED
         self.search_reason[n] = self.last_reason = reason
-        s = det.scale
         new: list[_Tracklet] = []
         confirmed: list[_Tracklet] = []
         for tl in self.tracklets:
@@ -440,7 +449,7 @@ class Follower:
         if sum(t.state == "locked" for t in self.tracks) >= _MAX_TRACKS:
             return False
         frames = {k: (raw, g, sig) for k, raw, g, sig in self.buffer}
-        s = self.det.scale
+        s = self._scale
         found = []
         for k, x, y, box in zip(tl.f, tl.x, tl.y, tl.box, strict=True):
             if k not in frames:
