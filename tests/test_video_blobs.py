@@ -120,3 +120,29 @@ def test_candidates_keep_the_best_few():
         (100, 85), (115, 85), (130, 85), (145, 85)]  # fmt: skip
     blobs = f.search_full(raw, g, sigma, keep=4)
     assert len([b for b in blobs if b.reason is None]) == 4
+
+
+@pytest.mark.parametrize("density", [0.0005, 0.003, 0.05])
+def test_tiled_components_match_whole_mask_labelling(density):
+    """closed-form/independent: the cluster-by-cluster labelling of a sparse mask gives the
+    same components (box, area, centroid, sum of |d|) as OpenCV labelling the whole mask at
+    once (cv2.connectedComponentsWithStats, the independent reference), for sparse to dense
+    masks (dense ones take the whole-mask path)."""
+    import cv2
+
+    from fitdrag.video.blobs import _components
+
+    rng = np.random.default_rng(int(density * 1e4))
+    for trial in range(5):
+        h, w = 200 + 7 * trial, 300 + 5 * trial
+        m = (rng.random((h, w)) < density).astype(np.uint8)
+        m = cv2.dilate(m, np.ones((1 + trial, 1 + trial), np.uint8))
+        d = rng.normal(size=(h, w)).astype(np.float32)
+        st, ce, su = _components(m, d)
+        n, lab, st2, ce2 = cv2.connectedComponentsWithStats(m, connectivity=8)
+        su2 = np.bincount(lab.ravel(), weights=np.abs(d).ravel(), minlength=n)[1:]
+        k1, k2 = np.lexsort((st[:, 1], st[:, 0])), np.lexsort((st2[1:, 1], st2[1:, 0]))
+        assert len(st) == n - 1
+        np.testing.assert_array_equal(st[k1], st2[1:][k2])
+        np.testing.assert_allclose(ce[k1], ce2[1:][k2])
+        np.testing.assert_allclose(su[k1], su2[k2], rtol=1e-9)

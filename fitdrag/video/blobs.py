@@ -129,11 +129,7 @@ class BlobFinder:
     def background_at(self, scale: int) -> np.ndarray:
         """The background reduced ``scale`` times (pixel-area averaging), kept once made."""
         if scale not in self._bg_at:
-            import cv2
-
-            self._bg_at[scale] = cv2.resize(
-                self.bg, (self.w // scale, self.h // scale), interpolation=cv2.INTER_AREA
-            )
+            self._bg_at[scale] = _halve(self.bg, scale)
         return self._bg_at[scale]
 
     def _kernels(self):
@@ -423,29 +419,23 @@ class BlobFinder:
         Components centred within the ``exclude`` circles ``(x, y, radius)`` [px] (blobs
         already followed) or outside ``region`` ``(x0, y0, x1, y1)`` [px] are left out.
         """
-        import cv2
 
         s = self.scale if scale is None else int(scale)
         if s == 1:
             small, bgs = raw, self.bg
         else:
-            small = cv2.resize(raw, (self.w // s, self.h // s), interpolation=cv2.INTER_AREA)
+            small = _halve(raw, s)
             bgs = self.background_at(s)
         d = small.astype(np.float32)
         d -= np.float32(g) * bgs
         sig_s = self.search_noise(d)
         mask = self._mask(d, self.k * sig_s)
-        n, labels, stats, cents = cv2.connectedComponentsWithStats(mask, connectivity=8)
+        st, cents, sums = _components(mask, d)
         empty = np.zeros(0)
-        if n <= 1:
+        if len(st) == 0:
             return Candidates(empty, empty, empty, empty, np.zeros((0, 4), int), (), sig_s, 0)
-        st = stats[1:].astype(np.int64)
         bx, by, bw, bh, area = st[:, 0], st[:, 1], st[:, 2], st[:, 3], st[:, 4]
         speck = max(3.0, 0.25 * self.min_area) / (s * s)
-        absd = np.abs(d).reshape(-1)
-        lab = labels.reshape(-1)
-        on = np.flatnonzero(lab)
-        sums = np.bincount(lab[on], weights=absd[on], minlength=n)[1:]
         score = sums / (sig_s * np.sqrt(np.maximum(area, 1)))
         fill = area / np.maximum(bw * bh, 1)
         area_full = area * float(s * s)
@@ -457,8 +447,8 @@ class BlobFinder:
         code[(code == 0) & (fill < 0.6 * self.min_fill)] = 3
         code[(code == 0) & edge] = 4
         code[(area < speck) | (score < 1.5 * self.k)] = -1
-        cx = (cents[1:, 0] + 0.5) * s - 0.5
-        cy = (cents[1:, 1] + 0.5) * s - 0.5
+        cx = (cents[:, 0] + 0.5) * s - 0.5
+        cy = (cents[:, 1] + 0.5) * s - 0.5
         for ex, ey, er in exclude:
             code[(np.hypot(cx - ex, cy - ey) <= er) & (code >= 0)] = -1
         if region is not None:
@@ -546,6 +536,83 @@ class BlobFinder:
                 break
             sig = max(math.sqrt(float(np.mean(inner * inner))) / trunc, floor)
         return sig
+
+
+def _halve(img: np.ndarray, scale: int) -> np.ndarray:
+    """``img`` reduced ``scale`` (a power of two) times by repeated halving with pixel-area
+    averaging (OpenCV's fast path for a factor of two)."""
+    import cv2
+
+    while scale > 1:
+        img = cv2.resize(img, (img.shape[1] // 2, img.shape[0] // 2), interpolation=cv2.INTER_AREA)
+        scale //= 2
+    return img
+
+
+# Tile side for the connected-component search of sparse masks. [px]
+_TILE = 16
+# Most clusters of active tiles labelled one by one (more: the whole mask at once).
+_MAX_CLUSTERS = 40
+
+
+def _components(mask: np.ndarray, d: np.ndarray):
+    """Connected components (8-connected) of a 0/1 mask: stats rows (x, y, w, h, area),
+    centroids (x, y) and the sum of ``|d|`` over each, all as arrays, background excluded.
+
+    A sparse mask (the usual case: a specimen and a few specks) is labelled cluster by
+    cluster: the mask's nonzero pixels mark tiles of ``_TILE`` pixels, 8-connected clusters of
+    marked tiles are found on the small tile grid, and each cluster's bounding box is
+    labelled on its own.  Two 8-adjacent pixels lie in the same or 8-adjacent tiles, so every
+    component lies within one cluster; components cut by a box but belonging to another
+    cluster are dropped there.  Many clusters: the whole mask is labelled at once.
+    """
+    import cv2
+
+    pts = cv2.findNonZero(mask)
+    if pts is None:
+        z = np.zeros((0, 5), np.int64)
+        return z, np.zeros((0, 2)), np.zeros(0)
+    pts = pts.reshape(-1, 2)
+    h, w = mask.shape
+    tiles = np.zeros(((h + _TILE - 1) // _TILE, (w + _TILE - 1) // _TILE), np.uint8)
+    tiles[pts[:, 1] // _TILE, pts[:, 0] // _TILE] = 1
+    nt, tlab, tst, _ = cv2.connectedComponentsWithStats(tiles, connectivity=8)
+    if nt - 1 > _MAX_CLUSTERS:
+        boxes = [(0, 0, w, h, None)]
+    else:
+        boxes = [
+            (int(tst[c, 0]) * _TILE, int(tst[c, 1]) * _TILE,
+             min(int(tst[c, 0] + tst[c, 2]) * _TILE, w), min(int(tst[c, 1] + tst[c, 3]) * _TILE, h),
+             c)
+            for c in range(1, nt)
+        ]  # fmt: skip
+    stats_out, cents_out, sums_out = [], [], []
+    absd = np.abs(d)
+    for x0, y0, x1, y1, c in boxes:
+        sub = mask[y0:y1, x0:x1]
+        n, lab, st, ce = cv2.connectedComponentsWithStats(sub, connectivity=8)
+        if n <= 1:
+            continue
+        on = cv2.findNonZero(sub).reshape(-1, 2)
+        lv = lab[on[:, 1], on[:, 0]]
+        sums = np.bincount(lv, weights=absd[y0:y1, x0:x1][on[:, 1], on[:, 0]], minlength=n)[1:]
+        st = st[1:].astype(np.int64)
+        ce = ce[1:]
+        if c is not None:
+            # keep the components whose first pixel lies in a tile of this cluster
+            first = np.full(n, -1, np.int64)
+            first[lv[::-1]] = np.arange(len(lv))[::-1]
+            fx, fy = on[first[1:], 0] + x0, on[first[1:], 1] + y0
+            mine = tlab[fy // _TILE, fx // _TILE] == c
+            st, ce, sums = st[mine], ce[mine], sums[mine]
+        st[:, 0] += x0
+        st[:, 1] += y0
+        stats_out.append(st)
+        cents_out.append(ce + np.array([x0, y0], float))
+        sums_out.append(sums)
+    if not stats_out:
+        return np.zeros((0, 5), np.int64), np.zeros((0, 2)), np.zeros(0)
+    return np.concatenate(stats_out), np.concatenate(cents_out), np.concatenate(sums_out)
 
 
 def _refused(area: int, fill: float, code: int, f: BlobFinder) -> Blob:

@@ -72,7 +72,6 @@ from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_s
 POLARITIES = ("either", "brighter", "darker")
 
 
-
 @dataclass(frozen=True, eq=False)
 class Detections:
     """Detected specimen positions, one entry per frame with a confident detection.
