@@ -150,3 +150,26 @@ def test_region_of_interest(with_region):
     assert len(det.other_movers) == (0 if with_region else 1)
     assert errors(det, ra.truth).max() < 0.35
     assert set(det.frame.tolist()) == set(np.flatnonzero(ra.truth.visible).tolist())
+
+
+def test_hand_release_picks_up_the_specimen_from_its_release():
+    """closed-form/independent: a hand carries the ball along its flight and lets go at frame
+    15 (fitdrag.video.synthetic's Hand): no detection lies on the hand-and-ball blob, the
+    ball is detected from a few frames after the release to the end, the hand-and-ball
+    track is reported as another moving object, and its frames say so."""
+    from fitdrag.video.movers import OTHER_ONLY
+    from fitdrag.video.synthetic_scene import Hand
+
+    def toss(t):
+        t = np.asarray(t, dtype=float)
+        return 60.0 + 1500.0 * t, 200.0 - 1200.0 * t + 9000.0 * t * t
+
+    r = FlightRenderer(toss, 80, FPS, shape=SHAPE, radius_px=7.0, exposure=1.0e-3, clutter=12,
+                       seed=3, hand=Hand(release_frame=15))  # fmt: skip
+    det = detect_specimen(np.stack(list(r.iter_frames())))
+    assert errors(det, r.truth).max() < 0.35
+    free = np.flatnonzero(r.truth.visible & (np.arange(80) >= 15))
+    assert det.frame.min() >= 15
+    assert len(set(free.tolist()) - set(det.frame.tolist())) <= 4  # parting from the hand
+    assert any(o.first_frame == 0 and o.last_frame >= 14 for o in det.other_movers)
+    assert dict(det.missing)[5] == OTHER_ONLY

@@ -20,14 +20,17 @@ one frame at a time (:class:`Follower`):
   where the specimen is fully visible rather than at the third frame of its confirmation.
 - **Left the field**: a track whose prediction lies wholly outside the image has left; its
   later frames cost one whole-frame search at the search resolution each (to re-acquire the
-  specimen if it comes back).  A track without a detection for ``max_gap`` frames is lost.
+  specimen if it comes back).  A track without a detection for ``max_gap`` frames is lost;
+  so is one whose blob keeps a new size for three frames (a hand letting go of the specimen,
+  two objects parting), and the parts are then found afresh.
 - **Overlap**: when two followed tracks come within their sizes of each other, neither is
   measured in that frame (the blobs merge or could be swapped); the frames are recorded.
 
 At the end (:meth:`Follower.finish`) the specimen is chosen among the tracks by its motion:
 a free flight (constant acceleration, pointing down the image, significant against the fit's
 scatter) before a straight line or an irregular path, then the longest.  Other tracks of the
-same free flight that do not overlap it in time (the specimen leaving and coming back) join it;
+same size and free flight that do not overlap it in time (the specimen leaving and coming
+back) join it;
 the rest are reported as other moving objects, with where and when they were seen and the
 frames where they overlapped the specimen.
 """
@@ -56,6 +59,8 @@ _WATCH_EVERY = 3
 _MAX_TRACKS = 4
 # Fewest detections for another track to be reported as a moving object.
 _MIN_REPORTED = 5
+# Consecutive frames in which the followed blob keeps one new size before the track ends.
+_RESIZED = 3
 
 NO_BLOB = "no blob stands out from the background"
 NOT_CONFIRMED = "blob not confirmed by consistent motion over three frames"
@@ -65,6 +70,10 @@ STILL = (
 )
 LEFT = "the specimen has left the field of view"
 OVERLAP = "another moving object overlaps the specimen"
+OTHER_ONLY = (
+    "only another moving object was followed here (not of the specimen's size or free flight; "
+    "listed in the summary)"
+)
 
 
 def frame_ranges(frames) -> str:
@@ -199,6 +208,7 @@ class _Track:
         self.accepted: dict[int, tuple[Blob, float]] = {}
         self.miss: dict[int, str] = {}
         self.overlap: dict[int, set[int]] = {}  # other track id -> frames
+        self.resized: list[float] = []  # area ratios of recent blobs refused for their size
 
     def add(self, n: int, b: Blob, g: float) -> None:
         self.accepted[n] = (b, g)
@@ -372,7 +382,14 @@ class Follower:
                 f"blob size {chosen.area:.0f} px differs by {100 * dev:.0f} % from the "
                 f"track's {ref:.0f} px (partly hidden or merged with clutter)"
             )
+            tr.resized.append(chosen.area / ref)
+            # The blob followed has changed size for good (a hand letting go of the
+            # specimen, two objects parting): end the track so the parts are found afresh.
+            last = tr.resized[-_RESIZED:]
+            if len(last) == _RESIZED and max(last) / min(last) < 1.0 + self.size_tol:
+                tr.state, tr.ended = "lost", n
             return False
+        tr.resized.clear()
         tr.add(n, chosen, g)
         return True
 
@@ -520,7 +537,9 @@ class Follower:
                 continue
             lo, hi = min(t.accepted), max(t.accepted)
             apart = all(hi < min(c.accepted) or lo > max(c.accepted) for c in chosen)
-            if apart and (kinds[t.ident] == "free flight" or self._continues(chosen, t)):
+            # The same specimen has the same size (a hand still holding it does not).
+            same = abs(_median_area(t) / _median_area(chosen[0]) - 1.0) <= 2.0 * self.size_tol
+            if apart and same and (kinds[t.ident] == "free flight" or self._continues(chosen, t)):
                 chosen.append(t)
         ids = {t.ident for t in chosen}
         accepted: dict = {}
@@ -557,6 +576,8 @@ class Follower:
                     break
             if why is None and any(0 <= left <= n for _, left in spans):
                 why = LEFT
+            if why is None and any(n in t.accepted for t in tracks if t.ident not in ids):
+                why = OTHER_ONLY
             if why is None:
                 why = self.search_reason.get(n, NO_BLOB)
             missing[n] = why
@@ -578,6 +599,10 @@ class Follower:
         gap = float(np.min(np.abs(fr[near][:, None] - tf[None, :])))
         r = np.hypot(np.polyval(cx, tf) - tx, np.polyval(cy, tf) - ty)
         return bool(np.median(r) <= 4.0 + 0.1 * gap)
+
+
+def _median_area(t: _Track) -> float:
+    return float(np.median([b.area for b, _ in t.accepted.values()]))
 
 
 def _same_size(a: float, b: float) -> bool:
