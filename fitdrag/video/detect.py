@@ -11,13 +11,18 @@ The steps, per run (steps 2, 4 and 5, one frame's blobs, are in :mod:`fitdrag.vi
    (1.4826 times the median absolute residual).  Dividing out the gain normalises
    mains-light flicker; near each blob the gain is estimated again from the surrounding
    background, so lamps need not flicker in step across the frame.
-3. **Search**: until a track is established the whole frame is searched (at half resolution
-   on large frames); a track is confirmed when blobs in three consecutive frames line up in
-   position, agree in size and move (by at least one pixel; the fastest such triple wins, a
-   still blob is a resting specimen or a flaw of the background model).  From then on only
-   a window around the position predicted from the last few detections (a least-squares
-   quadratic in time: constant acceleration) is examined; the window grows with the frames
-   since the last detection, and after ``max_gap`` frames the whole frame is searched again.
+3. **Search and following** (:mod:`fitdrag.video.movers`): until a track is established the
+   whole frame is searched at reduced resolution, the noise measured at that resolution, the
+   connected components gated by their statistics and only the best few kept; candidates are
+   chained frame by frame into short tracklets, and a tracklet of three frames that moves
+   consistently (constant acceleration within a tolerance) is confirmed, measured at full
+   resolution and followed backwards through the frames kept in memory.  From then on only a window around
+   the position predicted from the last few detections (a least-squares quadratic in time) is
+   examined, the whole frame being searched every few frames for other moving objects; a
+   track whose prediction leaves the image has left the field (its later frames cost one
+   reduced search each, to re-acquire the specimen if it comes back).  At the end the
+   specimen is the track in free flight (then the longest); other moving objects are
+   reported, with the frames where they overlap the specimen.
 4. **Blobs**: pixels whose background-subtracted value exceeds ``threshold_sigma`` noise
    levels (brighter, darker or either), grouped into connected components and gated by area,
    fill ratio and elongation.  Rejected: blobs touching the frame edge (a cut ball has a
