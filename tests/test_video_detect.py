@@ -316,3 +316,38 @@ def test_bad_region(footage):
     )
     with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
         detect_specimen(footage.frames[:10], region=(400, 0, 500, 100))
+
+
+def test_coloured_ball_on_a_grey_scene(tmp_path):
+    """closed-form/independent: a red ball (B, G, R = 20, 40, 200) whose grey level (BT.601
+    luma 86) nearly matches the grey background (90), in colour PNG files: read as grey the
+    ball is all but invisible; with the channel chosen from the footage (red) it is found in
+    nearly every fully visible frame, within bounds."""
+    from fitdrag.video.detect import choose_channel
+
+    fo = render(ball_bgr=(20.0, 40.0, 200.0), seed=21)
+    write_frames(fo.frames, tmp_path, ext="png")
+    assert choose_channel(open_source(tmp_path), 0, None) == (0.0, 0.0, 1.0)
+    det = detect_specimen(open_source(tmp_path))
+    visible = set(np.flatnonzero(fo.truth.visible).tolist())
+    assert len(visible - set(det.frame.tolist())) <= 2
+    assert errors(det, fo.truth).max() < 0.6
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.2
+    try:
+        grey = detect_specimen(open_source(tmp_path), channel="grey")
+        assert len(set(grey.frame.tolist()) & visible) < len(visible) // 2
+    except ValueError as exc:  # or nothing at all is found
+        assert "no specimen found in any frame" in str(exc)
+
+
+def test_grey_footage_stored_in_colour_keeps_grey(footage, tmp_path):
+    """regression: grey frames written as a colour video are read as grey (no channel is
+    chosen), and the bad channel setting names the input."""
+    from fitdrag.video.detect import choose_channel
+
+    path = write_video(footage.frames, tmp_path / "grey.avi", 30.0)
+    src = open_source(path)
+    assert src.is_color and choose_channel(src, 0, None) is None
+    with pytest.raises(ValueError, match=r"^channel: 'red' is not one of auto, grey; choose "
+                                         r"one of them\.$"):  # fmt: skip
+        detect_specimen(footage.frames[:10], channel="red")

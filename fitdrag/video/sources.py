@@ -190,9 +190,33 @@ class FrameSource:
     def __iter__(self):
         return self.frames(self.first_frame)
 
+    #: Weights (B, G, R) of the single channel frames are read as (None: BT.601 grey).
+    channel_weights: tuple[float, float, float] | None = None
+
+    def use_channel(self, weights: tuple[float, float, float] | None) -> None:
+        """Read colour frames as the channel ``weights`` (B, G, R; non-negative, summing to 1,
+        so a lamp's flicker scales it as it scales grey) instead of grey; None for grey."""
+        if weights is not None:
+            w = tuple(float(v) for v in weights)
+            if len(w) != 3 or min(w) < 0 or abs(sum(w) - 1.0) > 1e-6:
+                raise InputError(
+                    f"channel weights: expected three non-negative numbers (B, G, R) summing "
+                    f"to 1, got {weights!r}."
+                )
+            weights = w
+        self.channel_weights = weights
+
+    def _grey(self, img: np.ndarray) -> np.ndarray:
+        """One channel of a stored frame: grey, or the chosen channel of a colour frame."""
+        w = self.channel_weights
+        if w is None or img.ndim == 2 or img.shape[2] < 3:
+            return _to_grey(img)
+        m = np.array([w], np.float32)
+        return _cv2().transform(np.ascontiguousarray(img[:, :, :3]), m)
+
     def read_raw(self, frame_number: int) -> np.ndarray:
-        """One frame, grey, native dtype."""
-        return _to_grey(self.read_color(frame_number))
+        """One frame, grey (or the chosen channel), native dtype."""
+        return self._grey(self.read_color(frame_number))
 
     def read(self, frame_number: int) -> np.ndarray:
         """One frame, grey float32, native scale."""
@@ -312,7 +336,11 @@ class VideoSource(FrameSource):
         def decode(pkt):
             # None for a frame that cannot be decoded: it is skipped (and listed by the
             # detector), not a refusal of the whole clip.
-            img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
+            if self.channel_weights is None:
+                img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
+            else:
+                img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED)
+                img = None if img is None else self._grey(img)
             if img is not None and img.shape != self.shape:
                 img = None
             return img
@@ -378,7 +406,7 @@ class VideoSource(FrameSource):
                 ok, img = cap.read()
                 if not ok or img is None:
                     return
-                yield n, _to_grey(img)
+                yield n, self._grey(img)
                 n += 1
         finally:
             cap.release()
@@ -453,7 +481,7 @@ class VideoSource(FrameSource):
                     ok, img = cap.read()
                     if not ok:
                         break
-                    out.append((n, _to_grey(img)))
+                    out.append((n, self._grey(img)))
                 elif not cap.grab():
                     break
                 n += 1
@@ -580,7 +608,7 @@ class FolderSource(FrameSource):
             img = _cv2().imread(str(self._files[i]), _cv2().IMREAD_UNCHANGED)
             if img is None:  # an unreadable file in the middle is skipped (and listed)
                 return k, None
-            return k, _to_grey(self._checked(self._files[i], img))
+            return k, self._grey(self._checked(self._files[i], img))
 
         # Image decoding releases the GIL: two workers keep two cores busy.
         with ThreadPoolExecutor(max_workers=2) as pool:
@@ -647,7 +675,7 @@ class ArraySource(FrameSource):
         i0 = max(start - self.first_frame, 0)
         i1 = self.n_frames if stop is None else min(stop - self.first_frame, self.n_frames)
         for i in range(i0, i1):
-            yield self.first_frame + i, _to_grey(self._arr[i])
+            yield self.first_frame + i, self._grey(self._arr[i])
 
     def frames_raw(self, start=0, stop=None):
         start, stop = self._check_range(start, stop)
