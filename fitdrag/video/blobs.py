@@ -152,6 +152,20 @@ class BlobFinder:
         sigma = 1.4826 * _median(np.abs(f - np.float32(g) * self.grid_bg))
         return g, max(sigma, self.min_sigma)
 
+    def gain_reduced(self, small: np.ndarray, scale: int) -> float:
+        """Brightness gain of a frame decoded ``scale`` times smaller against the background
+        reduced alike: the median of their ratio over a sparse grid of pixels."""
+        bgs = self.background_at(scale)
+        h, w = bgs.shape
+        step = max(1, int(math.sqrt(h * w / GRID_PIXELS)))
+        sl = (slice(step // 2, h, step), slice(step // 2, w, step))
+        b = bgs[sl].reshape(-1)
+        f = small[:h, :w][sl].astype(np.float32).reshape(-1)
+        ok = b >= max(self.bg_floor, 0.25 * float(np.median(b)))
+        if ok.sum() < 50:
+            return 1.0
+        return _median(f[ok] / b[ok])
+
     def _grids(self, h: int, w: int):
         if h > self._yy.shape[0] or w > self._yy.shape[1]:
             n = max(h, w, 2 * self._yy.shape[0])
@@ -404,6 +418,7 @@ class BlobFinder:
         exclude: tuple[tuple[float, float, float], ...] = (),
         region: tuple[float, float, float, float] | None = None,
         scale: int | None = None,
+        reduced: np.ndarray | None = None,
     ) -> Candidates:
         """Candidate blobs anywhere in the frame, found and ranked at the search resolution
         (no full-resolution measurement).
@@ -424,8 +439,9 @@ class BlobFinder:
         if s == 1:
             small, bgs = raw, self.bg
         else:
-            small = _halve(raw, s)
             bgs = self.background_at(s)
+            # ``reduced``: the frame already decoded ``scale`` times smaller
+            small = _halve(raw, s) if reduced is None else reduced[: bgs.shape[0], : bgs.shape[1]]
         d = small.astype(np.float32)
         d -= np.float32(g) * bgs
         sig_s = self.search_noise(d)

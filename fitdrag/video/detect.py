@@ -383,11 +383,20 @@ def detect_specimen(
             it, total=None if expected is None else len(expected), unit="frame", desc="tracking"
         )
     last_n = None
-    for n, raw in it:
-        last_n = n
-        g, sigma = det.gain_and_noise(raw)
-        sigmas.append(sigma)
-        follower.step(n, raw, g, sigma)
+    try:
+        for n, raw in it:
+            last_n = n
+            if raw.shape != (h, w):  # decoded smaller (see FrameSource.reduce_decode)
+                if follower.step_reduced(n, raw, w // raw.shape[1]):
+                    source.reduce_decode = follower.wanted_reduction()
+                    continue
+                raw = source.read_raw(n)
+            g, sigma = det.gain_and_noise(raw)
+            sigmas.append(sigma)
+            follower.step(n, raw, g, sigma)
+            source.reduce_decode = follower.wanted_reduction()
+    finally:
+        source.reduce_decode = 1
     found = follower.finish()
     accepted, missing = found.accepted, dict(found.missing)
     if expected is not None:

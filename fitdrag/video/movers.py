@@ -310,6 +310,8 @@ class Follower:
         self.read: list[int] = []
         self._since_search = 0
         self._scale = finder.scale
+        self._reduced_seen: list[bool] = []  # reduced frames: did they need a whole read
+        self._reread_pause = 0
 
     # -- per frame ------------------------------------------------------------------------
     def step(self, n: int, raw: np.ndarray, g: float, sigma: float) -> None:
@@ -351,6 +353,45 @@ class Follower:
             self._search(n, raw, g, exclude)
         else:
             self.search_reason[n] = self.last_reason
+
+    def wanted_reduction(self) -> int:
+        """How many times smaller frames may be decoded: while nothing is followed after the
+        specimen has left (or been lost), the coarsest resolution that still shows it 3.5
+        pixels across; 1 (whole frames) otherwise, or when reduced frames kept needing a
+        second, whole read (clutter that stands out at low resolution)."""
+        if self.det.scale < 2 or any(t.state == "locked" for t in self.tracks):
+            return 1
+        sizes = [t.extent for t in self.tracks if t.extent > 0]
+        if not sizes or self._reread_pause > 0:
+            self._reread_pause = max(self._reread_pause - 1, 0)
+            return 1
+        r = 2
+        while r < 4 and min(sizes) / (2 * r) >= 3.5:
+            r *= 2
+        return r
+
+    def step_reduced(self, n: int, small: np.ndarray, scale: int) -> bool:
+        """Take frame ``n`` decoded ``scale`` times smaller; True if that was enough (nothing
+        followed and no candidate in it), False if the frame must be read whole."""
+        self._reduced_seen.append(False)
+        if any(t.state == "locked" for t in self.tracks):
+            self._reduced_seen[-1] = True
+            return False
+        det = self.det
+        g = det.gain_reduced(small, scale)
+        c = det.candidates(small, g, keep=KEEP_CANDIDATES, region=self.region, scale=scale,
+                           reduced=small)  # fmt: skip
+        if len(c):
+            self._reduced_seen[-1] = True
+            recent = self._reduced_seen[-20:]
+            if len(recent) == 20 and sum(recent) > 6:
+                self._reread_pause = 50
+                self._reduced_seen.clear()
+            return False
+        self.read.append(n)
+        reason = c.refused[0].reason if c.refused else NO_BLOB
+        self.search_reason[n] = self.last_reason = reason
+        return True
 
     def _measure_track(self, tr, n, raw, g, sigma, px, py, allow) -> bool:
         det = self.det

@@ -192,6 +192,10 @@ class FrameSource:
 
     #: Weights (B, G, R) of the single channel frames are read as (None: BT.601 grey).
     channel_weights: tuple[float, float, float] | None = None
+    #: A hint for the reader: frames may come out this many times smaller (2 or 4; Motion-JPEG
+    #: video only, where the decoder scales the image down itself, much faster).  It applies
+    #: to frames decoded after it is set; the consumer tells them by their shape.
+    reduce_decode: int = 1
 
     def use_channel(self, weights: tuple[float, float, float] | None) -> None:
         """Read colour frames as the channel ``weights`` (B, G, R; non-negative, summing to 1,
@@ -333,14 +337,25 @@ class VideoSource(FrameSource):
         cv2 = _cv2()
         cap = self._open_packets(start)
 
-        def decode(pkt):
+        grey_flags = {1: cv2.IMREAD_GRAYSCALE, 2: cv2.IMREAD_REDUCED_GRAYSCALE_2,
+                      4: cv2.IMREAD_REDUCED_GRAYSCALE_4}  # fmt: skip
+        colour_flags = {1: cv2.IMREAD_UNCHANGED, 2: cv2.IMREAD_REDUCED_COLOR_2,
+                        4: cv2.IMREAD_REDUCED_COLOR_4}  # fmt: skip
+
+        def decode(pkt, r):
             # None for a frame that cannot be decoded: it is skipped (and listed by the
-            # detector), not a refusal of the whole clip.
+            # detector), not a refusal of the whole clip.  r > 1: the JPEG decoder scales the
+            # image down itself (much faster than decoding it whole).
             if self.channel_weights is None:
-                img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
+                img = cv2.imdecode(pkt, grey_flags[r])
             else:
-                img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED)
+                img = cv2.imdecode(pkt, colour_flags[r])
                 img = None if img is None else self._grey(img)
+            h, w = self.shape
+            if img is not None and r > 1:
+                if img.shape[:2] != (-(-h // r), -(-w // r)):
+                    return None
+                return img[: h // r, : w // r]
             if img is not None and img.shape != self.shape:
                 img = None
             return img
@@ -356,7 +371,8 @@ class VideoSource(FrameSource):
                         if not ok or pkt is None:
                             done = True
                             break
-                        pending.append((n, pool.submit(decode, pkt.copy())))
+                        r = self.reduce_decode if self.reduce_decode in (2, 4) else 1
+                        pending.append((n, pool.submit(decode, pkt.copy(), r)))
                         n += 1
                     if stop is not None and n >= stop:
                         done = True
