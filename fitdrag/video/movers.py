@@ -187,10 +187,9 @@ class _Tracklet:
         if k == 2:
             return self.x[-1] + vx * gap, self.y[-1] + vy * gap, 2.0 * s + 0.2 * speed * gap
         f = np.array(self.f[-6:], float) - n
-        deg = 2
-        cx = np.polyfit(f, self.x[-6:], deg)
-        cy = np.polyfit(f, self.y[-6:], deg)
-        return float(cx[-1]), float(cy[-1]), 2.0 * s + 0.05 * speed * gap
+        a = np.vander(f, 3)
+        coef = np.linalg.lstsq(a, np.column_stack([self.x[-6:], self.y[-6:]]), rcond=None)[0]
+        return float(coef[-1, 0]), float(coef[-1, 1]), 2.0 * s + 0.05 * speed * gap
 
 
 class _Track:
@@ -248,9 +247,11 @@ class _Track:
         if deg == 0:
             px, py, speed = x[-1], y[-1], 0.0
         else:
-            cx = np.polyfit(f, x, deg)
-            cy = np.polyfit(f, y, deg)
-            px, py = float(np.polyval(cx, 0.0)), float(np.polyval(cy, 0.0))
+            # least-squares polynomial in time through both coordinates at once; its constant
+            # term is the position at frame n
+            a = np.vander(f, deg + 1)
+            coef = np.linalg.lstsq(a, np.column_stack([x, y]), rcond=None)[0]
+            px, py = float(coef[-1, 0]), float(coef[-1, 1])
             speed = float(np.hypot(x[-1] - x[-2], y[-1] - y[-2]) / max(abs(f[-1] - f[-2]), 1.0))
         gap = abs(int(round(f[near])))
         allowance = 3.0 + 0.5 * (gap - 1) ** 2 + 0.1 * speed * gap
