@@ -51,6 +51,8 @@ __all__ = ["OtherMover", "Follower", "FollowResult", "frame_ranges"]
 _MIN_MOTION_PX = 2.0
 # Most tracklets kept while searching (bounded work per frame).
 _MAX_TRACKLETS = 48
+# Confirmed tracklets checked at full resolution per frame, at most.
+_MAX_CONFIRM = 3
 # Frames kept in memory for following a new track backwards.
 _BUFFER = 40
 # While locked, the whole frame is searched every this many frames.
@@ -495,12 +497,20 @@ class Follower:
         # Longest and most recent first; bounded.
         new.sort(key=lambda t: (-min(len(t.f), 3), -t.f[-1]))
         self.tracklets = new[:_MAX_TRACKLETS]
+        # At most _MAX_CONFIRM full-resolution checks per frame; a tracklet that fails its
+        # check is dropped (it would be checked again in every later frame).
+        tried = 0
         for tl in sorted(confirmed, key=lambda t: -len(t.f)):
-            if tl in self.tracklets and self._start_track(tl):
+            if tl not in self.tracklets or tried >= _MAX_CONFIRM:
+                continue
+            tried += 1
+            if self._start_track(tl):
                 ex, ey = tl.x[-1], tl.y[-1]
                 self.tracklets = [
                     t for t in self.tracklets if math.hypot(t.x[-1] - ex, t.y[-1] - ey) > 4.0 * s
                 ]
+            else:
+                self.tracklets.remove(tl)
 
     def _start_track(self, tl: _Tracklet) -> bool:
         """Measure a confirmed tracklet at full resolution and, if it holds, follow it as a
