@@ -300,5 +300,12 @@ def test_bad_footage_and_files(clip, rolled, tmp_path):
     # 7 frames in the range, the specimen in all of them: one short of MIN_POINTS
     with pytest.raises(ValueError, match=rf"frames: the specimen was found in 7 frame\(s\), "
                        rf"at least {MIN_POINTS} are needed for a track; check the frame range "
-                       r"\(--start/--stop\)"):  # fmt: skip
+                       r"\(--start/--stop\)") as info:  # fmt: skip
         track_footage(clip["folder"], fps=FPS, scale=0.001, start=10, stop=17)
+    # the reasons by frame range, then what to change (issue 12)
+    assert "Frames without it: " in str(info.value) and "To change: " in str(info.value)
+    with pytest.raises(ValueError, match=re.escape(
+            "--region: expected X0,Y0,X1,Y1 (four numbers separated by commas: the upper-left "
+            "and lower-right corners of the region in image pixels), got '1,2,3'; e.g. "
+            "--region 200,0,1280,800.")):  # fmt: skip
+        track_footage(clip["folder"], fps=FPS, scale=0.001, region="1,2,3")

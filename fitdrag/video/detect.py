@@ -560,7 +560,7 @@ def _expected_frames(source: FrameSource, start: int, stop: int | None):
 
 def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
     """The reasons of missing frames, each with the frame ranges it applies to, commonest
-    first: ``"frames 0-14 (15): no blob ...; frames 15-19 (5): ..."``."""
+    first: ``"frames 0-14 (15): no blob ...; frame 17: ..."``."""
     if not missing:
         return "no frames were read"
     by: dict[str, list[int]] = {}
@@ -572,7 +572,7 @@ def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
         txt = frame_ranges(ks)
         if len(txt) > 40:
             txt = txt[:40].rsplit(" ", 1)[0] + " ..."
-        parts.append(f"frames {txt} ({len(ks)}): {why}")
+        parts.append(f"frame {txt}: {why}" if len(ks) == 1 else f"frames {txt} ({len(ks)}): {why}")
     if len(top) > limit:
         parts.append(f"{len(top) - limit} other reason(s)")
     return "; ".join(parts)

@@ -502,7 +502,8 @@ def track_footage(
             f"{name}: the specimen was found in {n_found} frame(s), at least "
             f"{MIN_POINTS} are needed for a track; check the frame range (--start/--stop) "
             f"and that the specimen moves against a steady background. Frames without it: "
-            f"{reasons_by_range(dict(det.missing))}. {_advice(det, rate)}"
+            f"{reasons_by_range(dict(det.missing)) if det.missing else 'none'}. "
+            f"{_advice(det, rate)}"
         )
     x, y = cal.pixel_to_world(det.x_px, det.y_px)
     t = np.asarray(det.frame, dtype=float) / rate
