@@ -120,10 +120,12 @@ class BlobFinder:
         self.grid_bg = np.maximum(bflat[keep], self.bg_floor).astype(np.float32)
         self.grid_inv = (1.0 / self.grid_bg).astype(np.float32)
         self._yy, self._xx = np.indices((64, 64), dtype=np.float32)
-        self.scale = 2 if self.h * self.w >= 400_000 else 1
+        # Whole-frame searches run at reduced resolution on large frames (4K: a quarter).
+        npx = self.h * self.w
+        self.scale = 4 if npx >= 3_000_000 else 2 if npx >= 400_000 else 1
         self._bg_at = {1: background}
         if self.scale > 1:
-            self.bg_small = self.background_at(2)
+            self.bg_small = self.background_at(self.scale)
         self._kernels()
 
     def background_at(self, scale: int) -> np.ndarray:

@@ -219,8 +219,9 @@ class _Track:
         self.ys.append(b.y)
         self.areas.append(b.area)
         self.extent = b.extent
-        order = np.argsort(self.frames) if self.frames[-1] < self.frames[0] else None
-        if order is not None:  # added backwards: keep ascending order
+        late = len(self.frames) > 1 and self.frames[-1] < self.frames[-2]
+        order = np.argsort(self.frames) if late else None
+        if order is not None:  # added backwards or in between: keep ascending order
             for name in ("frames", "xs", "ys", "areas"):
                 lst = getattr(self, name)
                 setattr(self, name, [lst[i] for i in order])
