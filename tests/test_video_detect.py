@@ -391,3 +391,21 @@ def test_frames_after_the_specimen_left_are_decoded_smaller(tmp_path, monkeypatc
     # and there: a few hundredths of a pixel
     np.testing.assert_allclose(det.x_px, ref.x_px, atol=0.1)
     assert dict(det.missing)[79] == dict(ref.missing)[79] == LEFT
+
+
+def test_blur_growing_with_speed_is_not_withdrawn():
+    """closed-form/independent: a ball thrown down and speeding up (vacuum parabola) with a
+    long exposure, so its blur grows from frame to frame (phone-like footage): every fully
+    visible frame is kept (the length check follows the trend of the neighbours' lengths),
+    within bounds."""
+
+    def fall(t):
+        t = np.asarray(t, dtype=float)
+        return 40.0 + 1500.0 * t, 20.0 + 1500.0 * t + 0.5 * 60000.0 * t * t
+
+    fo = render_flight(fall, 30, 250.0, shape=SHAPE, radius_px=7.0, exposure=2.0e-3,
+                       noise_sigma=3.0, flicker=0.0, clutter=12, seed=6)  # fmt: skip
+    assert np.ptp(fo.truth.blur_px[fo.truth.visible]) > 4.0  # the blur does grow
+    det = detect_specimen(fo.frames)
+    assert set(det.frame.tolist()) == set(np.flatnonzero(fo.truth.visible).tolist())
+    assert errors(det, fo.truth).max() < 0.35

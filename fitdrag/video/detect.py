@@ -169,7 +169,8 @@ def _post_check(
 
     Each detection is compared with the median of up to seven neighbours on each side
     (within 20 frames): its integrated coverage (area) and the principal spreads of its
-    weights.  A ball partly hidden behind something loses area and, more tellingly, spread
+    weights (the length along the motion with the straight line through the neighbours'
+    lengths instead, as the blur grows with the speed).  A ball partly hidden behind something loses area and, more tellingly, spread
     across the hiding edge; noise moves the spreads by a fraction of a percent.
     """
     n = len(frames)
@@ -187,6 +188,13 @@ def _post_check(
         ref = float(np.median(areas[sel]))
         dev = abs(areas[i] / ref - 1.0)
         sref = np.median(spreads[sel], axis=0)
+        # The length along the motion grows with the blur, which follows the speed: compare
+        # it with the straight line through the neighbours' lengths (the width keeps the
+        # median).
+        tt = (frames[sel] - frames[i]).astype(float)
+        if np.ptp(tt) > 0:
+            slope, icpt = np.polyfit(tt, spreads[sel, 0], 1)
+            sref[0] = icpt
         sdev = np.abs(spreads[i] / np.maximum(sref, 1e-9) - 1.0)
         j = int(np.argmax(sdev))
         if dev > size_tol:
