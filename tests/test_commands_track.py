@@ -17,7 +17,8 @@ import pytest
 
 from fitdrag.cli import main
 from fitdrag.tracks import read_track
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.footage_files import write_frames, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import parse_origin, parse_reference
 
 FPS = 500.0

@@ -20,7 +20,8 @@ import pytest
 
 from fitdrag.tracks.csv_file import read_track
 from fitdrag.tracks.track import MIN_POINTS
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.footage_files import write_frames, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import (
     FootageTrack,
     footage_sha256,
@@ -299,5 +300,48 @@ def test_bad_footage_and_files(clip, rolled, tmp_path):
     # 7 frames in the range, the specimen in all of them: one short of MIN_POINTS
     with pytest.raises(ValueError, match=rf"frames: the specimen was found in 7 frame\(s\), "
                        rf"at least {MIN_POINTS} are needed for a track; check the frame range "
-                       r"\(--start/--stop\)"):  # fmt: skip
+                       r"\(--start/--stop\)") as info:  # fmt: skip
         track_footage(clip["folder"], fps=FPS, scale=0.001, start=10, stop=17)
+    # the reasons by frame range, then what to change (issue 12)
+    assert "Frames without it: " in str(info.value) and "To change: " in str(info.value)
+    with pytest.raises(ValueError, match=re.escape(
+            "--region: expected X0,Y0,X1,Y1 (four numbers separated by commas: the upper-left "
+            "and lower-right corners of the region in image pixels), got '1,2,3'; e.g. "
+            "--region 200,0,1280,800.")):  # fmt: skip
+        track_footage(clip["folder"], fps=FPS, scale=0.001, region="1,2,3")
+
+
+def test_other_moving_object_in_summary_and_csv_header(tmp_path):
+    """closed-form/independent: a second ball crossing the specimen's flight in a straight
+    line (composited with numpy from two renderers on one scene): the summary and the CSV
+    header say another moving object was seen, where and when, and the CSV's rows are all
+    on the specimen."""
+    from fitdrag.video.detect import reasons_by_range
+    from fitdrag.video.synthetic import FlightRenderer
+
+    def flight(t):
+        t = np.asarray(t, dtype=float)
+        return -12.0 + 2900.0 * t, 70.0 - 400.0 * t + 9000.0 * t * t
+
+    def line(t):
+        t = np.asarray(t, dtype=float)
+        return 330.0 - 2600.0 * t, 30.1 + 800.0 * t
+
+    opts = dict(shape=(240, 320), radius_px=7.0, exposure=1e-3, noise_sigma=0.0, seed=21)
+    ra, rb = FlightRenderer(flight, 60, FPS, **opts), FlightRenderer(line, 60, FPS, **opts)
+    frames = []
+    rng = np.random.default_rng(4)
+    for k in range(60):
+        img = (ra.clean_frame(k) + rb.clean_frame(k) - rb.scene) * ra.truth.gain[k]
+        img = img + rng.normal(0.0, 3.0, img.shape)
+        frames.append(np.clip(np.rint(img), 0, 255).astype(np.uint8))
+    write_frames(np.stack(frames), tmp_path / "f", ext="png")
+    ft = track_footage(tmp_path / "f", fps=FPS, scale=0.001)
+    other = ft.detections.other_movers[0]
+    assert f"  {other.describe()} (not tracked)" in ft.summary().splitlines()
+    text = footage_track_csv_text(ft)
+    assert f"# other_moving_objects: {other.describe()}" in text.splitlines()
+    d = np.hypot(ft.detections.x_px - ra.truth.x_px[ft.detections.frame],
+                 ft.detections.y_px - ra.truth.y_px[ft.detections.frame])  # fmt: skip
+    assert d.max() < 0.5
+    assert reasons_by_range({3: "a", 4: "a", 9: "b"}) == "frames 3-4 (2): a; frame 9: b"
