@@ -246,3 +246,43 @@ def test_detector_registry():
         get_detector("blob")
     with pytest.raises(ValueError, match="already registered"):
         register_detector(DEFAULT_DETECTOR, detect_specimen)
+
+
+def test_model_fit_fallback_keeps_centroid_with_larger_sigma(monkeypatch):
+    """regression: when the model fit fails on every frame, the detector keeps the weighted
+    centroid with three times its propagated sigma and half the quality, and leaves the
+    outline columns blank (NaN, rows -1); with the fit, every frame is measured by it and
+    the outline diameter is within 0.1 px of the generator's 2 * radius_px (oracle:
+    fitdrag.video.synthetic truth)."""
+    import fitdrag.video.blobs as blobs_mod
+    from fitdrag.video.ball_fit import BallFit
+    from fitdrag.video.detect import detect_specimen
+    from fitdrag.video.synthetic import render_flight
+
+    def traj(t):
+        return 20 + 3000 * t, 60 + 1500 * t - 0.5 * 5000 * np.asarray(t) ** 2
+
+    sf = render_flight(
+        traj, 40, 1000.0, shape=(160, 320), radius_px=8.0, exposure=0.6e-3, noise_sigma=3,
+        flicker=0.0, clutter=12, seed=3,
+    )  # fmt: skip
+    good = detect_specimen(sf.frames)
+    assert good.model_fit.all()
+    assert abs(np.mean(good.outline_diameter_px) - 16.0) < 0.1
+    nan = float("nan")
+
+    def failing(blob, angle=None):
+        return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1, nan,
+                       nan, 0, 0, False, "forced failure")  # fmt: skip
+
+    monkeypatch.setattr(blobs_mod, "fit_chosen_blob", failing)
+    bad = detect_specimen(sf.frames)
+    assert not bad.model_fit.any()
+    assert np.all(np.isnan(bad.outline_diameter_px)) and np.all(bad.row_first == -1)
+    # The same blobs, measured by their weighted centroid, sigma x3 and quality /2.
+    common = np.intersect1d(good.frame, bad.frame)
+    assert common.size >= 20
+    assert np.all(bad.sigma_px > 0)
+    ig = np.searchsorted(good.frame, common)
+    ib = np.searchsorted(bad.frame, common)
+    np.testing.assert_allclose(bad.quality[ib], 0.5 * good.quality[ig], rtol=1e-12)

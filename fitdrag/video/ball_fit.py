@@ -296,15 +296,11 @@ def _project(p, u, d, gb, maskimg, mask_idx, h, w, basis, res, coef):
             aty[a] += col[a] * y
             for b in range(a + 1):
                 ata[a, b] += col[a] * col[b]
-    tr = 0.0
-    for a in range(m):
-        tr += ata[a, a]
-    ridge = 1e-9 * tr / m + 1e-30
-    # Cholesky of ata + ridge I (lower triangle).
+    # Cholesky of ata with a relative ridge on its diagonal (lower triangle).
     lo = np.zeros((m, m))
     for a in range(m):
         for b in range(a + 1):
-            s = ata[a, b] + (ridge if a == b else 0.0)
+            s = ata[a, b] + ((1e-10 * ata[a, a] + 1e-300) if a == b else 0.0)
             for k in range(b):
                 s -= lo[a, k] * lo[b, k]
             if a == b:

@@ -85,9 +85,9 @@ class BlobPatch:
 def fit_chosen_blob(blob: Blob, blur_angle: float | None = None):
     """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
 
-    The first guess is the blob's weighted centroid, the radius of a disc swept along the
-    blur that has the blob's integrated coverage (``A = pi r^2 + 2 r L``) and the blur from
-    its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
+    The first guess is the blob's weighted centroid, the radius of a disc of the blob's
+    integrated coverage (``A = pi r^2``: blur moves the coverage, it does not add to it) and
+    the blur from its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
     replaces the moments' direction when given.  Returns the
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
@@ -96,7 +96,7 @@ def fit_chosen_blob(blob: Blob, blur_angle: float | None = None):
 
     pt = blob.patch
     length = pt.blur_length if pt is not None else 0.0
-    radius = (-length + math.sqrt(length * length + math.pi * max(blob.area, 1.0))) / math.pi
+    radius = math.sqrt(max(blob.area, 1.0) / math.pi)
     angle = pt.blur_angle if (pt is not None and blur_angle is None) else (blur_angle or 0.0)
     guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
     if pt is None:
