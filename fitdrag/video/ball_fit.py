@@ -27,7 +27,8 @@ differences of the projected residual computed in one compiled call).
 centre is on the part of the segment within ``r`` of ``p``, an interval found in closed form,
 and the integrals of ``n_x, n_y, n_z`` over that interval are closed forms too (``n_z`` via
 ``integral sqrt(h^2 - t^2) dt = (t sqrt(h^2 - t^2) + h^2 asin(t / h)) / 2``).  The pixel
-average is a 4 x 4 supersample in pixels within 0.75 px of the outline of the swept disc (the
+average is a 12-sample N-rooks pattern (each sample in its own sub-row and sub-column) in
+pixels within 0.75 px of the outline of the swept disc (the
 two end circles and the straight sides), one sample at the pixel centre elsewhere.  Blur
 shorter than 0.25 px is rendered as 0.25 px along the fitted direction (keeps the model
 continuous in the centre; a static ball's centre is unbiased by symmetry).
@@ -71,12 +72,21 @@ import numpy as np
 
 from fitdrag.errors import InputError
 
-__all__ = ["CORRELATION_LAGS", "MODEL_ERROR_CENTRE", "MODEL_ERROR_DIAMETER", "BallFit", "BallGuess", "fit_ball", "render_ball"]
+__all__ = [
+    "CORRELATION_LAGS",
+    "MODEL_ERROR_CENTRE",
+    "MODEL_ERROR_DIAMETER",
+    "BallFit",
+    "BallGuess",
+    "fit_ball",
+    "render_ball",
+]
 
 #: Largest pixel lag (both axes) at which the residual correlation enters the uncertainty.
 CORRELATION_LAGS = 3
-# Supersampling per axis in pixels near the outline.
-_SS = 3
+# Samples per pixel near the outline (an N-rooks pattern) and its column stride.
+_N_SAMPLES = 12
+_ROOK_STRIDE = 5
 # Shortest blur rendered. [px]
 _MIN_BLUR = 0.25
 # Shading basis functions: 1, n_x, n_y, n_z.
@@ -234,9 +244,9 @@ def _render(h, w, cx, cy, r, blen, ux, uy, maskimg, out):
     band = 0.75
     reach = r + half + 1.0
     acc = np.zeros(_N_BASIS)
-    step = 1.0 / _SS
+    step = 1.0 / _N_SAMPLES
     off = 0.5 * step - 0.5
-    norm = 1.0 / (_SS * _SS)
+    norm = 1.0 / _N_SAMPLES
     for i in range(h):
         for j in range(w):
             for k in range(_N_BASIS):
@@ -258,10 +268,12 @@ def _render(h, w, cx, cy, r, blen, ux, uy, maskimg, out):
             for k in range(_N_BASIS):
                 acc[k] = 0.0
             if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
-                for a in range(_SS):
+                # N-rooks pattern: each sample in its own sub-row and sub-column, so edges
+                # along the rows or the columns are resolved in _N_SAMPLES steps.
+                for a in range(_N_SAMPLES):
                     qy = py + off + a * step
-                    for b in range(_SS):
-                        _sample(px + off + b * step, qy, ux, uy, half, r, inv_l, acc)
+                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
+                    _sample(qx, qy, ux, uy, half, r, inv_l, acc)
                 for k in range(_N_BASIS):
                     out[k, i, j] = acc[k] * norm
             else:
@@ -589,9 +601,7 @@ def fit_ball(
     vimg[:, mask_idx] = v.T
     resimg = np.zeros(h * w)
     resimg[mask_idx] = res
-    quad, _rho = _correlated_variance(
-        resimg.reshape(h, w), maskimg, vimg.reshape(3, h, w), _LAGS
-    )
+    quad, _rho = _correlated_variance(resimg.reshape(h, w), maskimg, vimg.reshape(3, h, w), _LAGS)
     var = s2 * quad
     white = s2 * np.einsum("nk,nk->k", v, v)
     if not np.all(np.isfinite(var)) or np.any(var <= 0):
