@@ -154,9 +154,11 @@ def test_sixteen_bit_tiff_folder(tmp_path):
     det16 = detect_specimen(src)
     det8 = detect_specimen(fo.frames)
     np.testing.assert_array_equal(det16.frame, det8.frame + 1)  # files numbered from 1
-    # The 8-bit background is kept in 1/256-level steps, the 16-bit one in floats.
-    np.testing.assert_allclose(det16.x_px, det8.x_px, atol=5e-3)
-    np.testing.assert_allclose(det16.y_px, det8.y_px, atol=5e-3)
+    # The 8-bit background is kept in 1/256-level steps, the 16-bit one in floats; the model
+    # fit follows such differences (and the blur direction taken from the track) to within
+    # a third of its stated sigma (about 0.02 px here).
+    np.testing.assert_allclose(det16.x_px, det8.x_px, atol=1e-2)
+    np.testing.assert_allclose(det16.y_px, det8.y_px, atol=1e-2)
     assert det16.noise_sigma == pytest.approx(257 * det8.noise_sigma, rel=0.02)
 
 
@@ -409,3 +411,43 @@ def test_blur_growing_with_speed_is_not_withdrawn():
     det = detect_specimen(fo.frames)
     assert set(det.frame.tolist()) == set(np.flatnonzero(fo.truth.visible).tolist())
     assert errors(det, fo.truth).max() < 0.35
+
+
+def test_model_fit_fallback_keeps_centroid_with_larger_sigma(monkeypatch):
+    """regression: when the model fit fails on every frame, the detector keeps the weighted
+    centroid with three times its propagated sigma and half the quality, and leaves the
+    outline columns blank (NaN, rows -1); with the fit, every frame is measured by it and
+    the outline diameter is within 0.1 px of the generator's 2 * radius_px (oracle:
+    fitdrag.video.synthetic truth)."""
+    import fitdrag.video.blobs as blobs_mod
+    from fitdrag.video.ball_fit import BallFit
+    from fitdrag.video.detect import detect_specimen
+    from fitdrag.video.synthetic import render_flight
+
+    def traj(t):
+        return 20 + 3000 * t, 60 + 1500 * t - 0.5 * 5000 * np.asarray(t) ** 2
+
+    sf = render_flight(
+        traj, 40, 1000.0, shape=(160, 320), radius_px=8.0, exposure=0.6e-3, noise_sigma=3,
+        flicker=0.0, clutter=12, seed=3,
+    )  # fmt: skip
+    good = detect_specimen(sf.frames)
+    assert good.model_fit.all()
+    assert abs(np.mean(good.outline_diameter_px) - 16.0) < 0.1
+    nan = float("nan")
+
+    def failing(blob, angle=None):
+        return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1, nan,
+                       nan, 0, 0, False, "forced failure")  # fmt: skip
+
+    monkeypatch.setattr(blobs_mod, "fit_chosen_blob", failing)
+    bad = detect_specimen(sf.frames)
+    assert not bad.model_fit.any()
+    assert np.all(np.isnan(bad.outline_diameter_px)) and np.all(bad.row_first == -1)
+    # The same blobs, measured by their weighted centroid, sigma x3 and quality /2.
+    common = np.intersect1d(good.frame, bad.frame)
+    assert common.size >= 20
+    assert np.all(bad.sigma_px > 0)
+    ig = np.searchsorted(good.frame, common)
+    ib = np.searchsorted(bad.frame, common)
+    np.testing.assert_allclose(bad.quality[ib], 0.5 * good.quality[ig], rtol=1e-12)

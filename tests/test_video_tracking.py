@@ -345,3 +345,59 @@ def test_other_moving_object_in_summary_and_csv_header(tmp_path):
                  ft.detections.y_px - ra.truth.y_px[ft.detections.frame])  # fmt: skip
     assert d.max() < 0.5
     assert reasons_by_range({3: "a", 4: "a", 9: "b"}) == "frames 3-4 (2): a; frame 9: b"
+
+
+def test_track_csv_outline_columns_round_trip(tmp_path):
+    """regression: the outline columns written by track_csv_text (diameter, its
+    uncertainty, rows spanned; blank where the model fit failed) are read back by read_track
+    into meta['per_point'], aligned with the points, blanks as NaN without dropping rows."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.video.tracking import track_csv_text
+
+    n = 10
+    frame = np.arange(n)
+    t = frame / 1000.0
+    x = 0.01 * frame
+    y = 1.0 - 0.002 * frame
+    diam = 16.0 + 0.01 * frame
+    diam[3] = np.nan
+    ud = np.full(n, 0.03)
+    ud[3] = np.nan
+    r0 = 50 + frame
+    r1 = 66 + frame
+    r0[3] = r1[3] = -1
+    text = track_csv_text(
+        {"fps": 1000.0}, frame, t, x, y, 10.0 * frame, 20.0 * frame, np.full(n, 0.9),
+        np.full(n, 0.02), diam, ud, r0, r1,
+    )  # fmt: skip
+    header = [ln for ln in text.splitlines() if not ln.startswith("#")][0]
+    assert header.endswith("sigma_px,outline_diameter_px,u_outline_diameter_px,row_first,row_last")
+    p = tmp_path / "track.csv"
+    p.write_text(text)
+    tr = read_track(p)
+    assert len(tr.t) == n
+    pp = tr.meta["per_point"]
+    np.testing.assert_allclose(pp["outline_diameter_px"], diam, atol=5e-5)
+    np.testing.assert_allclose(pp["u_outline_diameter_px"], ud, atol=5e-5)
+    assert np.isnan(pp["row_first"][3]) and np.isnan(pp["row_last"][3])
+    np.testing.assert_array_equal(np.delete(pp["row_first"], 3), np.delete(r0, 3))
+
+
+def test_track_csv_without_outline_columns_loads(tmp_path):
+    """regression: a track CSV in the earlier layout (no outline columns) still loads, with
+    no per_point entry; track_csv_text without outline arrays writes that layout."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.video.tracking import track_csv_text
+
+    n = 10
+    frame = np.arange(n)
+    text = track_csv_text(
+        {}, frame, frame / 1000.0, 0.01 * frame, 1.0 - 0.002 * frame, frame, frame,
+        np.full(n, 0.9), np.full(n, 0.02),
+    )  # fmt: skip
+    assert "outline_diameter_px" not in text
+    p = tmp_path / "old.csv"
+    p.write_text(text)
+    tr = read_track(p)
+    assert "per_point" not in tr.meta
+    np.testing.assert_allclose(tr.x, 0.01 * frame)

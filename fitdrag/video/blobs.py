@@ -18,7 +18,15 @@ import numpy as np
 from fitdrag.video.background import GRID_PIXELS
 from fitdrag.video.sources import FrameSource
 
-__all__ = ["KEEP_CANDIDATES", "MAX_BLIND", "Blob", "BlobFinder", "Candidates"]
+__all__ = [
+    "KEEP_CANDIDATES",
+    "MAX_BLIND",
+    "Blob",
+    "BlobFinder",
+    "BlobPatch",
+    "Candidates",
+    "fit_chosen_blob",
+]
 
 # Noise floor subtracted before weighting, in noise standard deviations.
 _FLOOR_SIGMA = 2.0
@@ -48,6 +56,68 @@ class Blob:
     reason: str | None = None  # why it is not usable
     blind: float = 0.0  # unseen outline pixels per pixel of area
     spread: tuple[float, float] = (0.0, 0.0)  # principal standard deviations of the weights
+    patch: BlobPatch | None = None  # pixels around the blob, for the model fit
+
+
+@dataclass(frozen=True, eq=False)
+class BlobPatch:
+    """Pixels around one blob, kept for the model fit of the chosen blob
+    (:func:`fit_chosen_blob`).
+
+    Attributes
+    ----------
+    diff : ndarray
+        Background-subtracted values ``frame - gain * background``. [grey levels]
+    background : ndarray
+        Background model (without the gain). [grey levels]
+    gain : float
+        Local brightness gain. [1]
+    valid : ndarray of bool
+        Pixels of the blob and its surroundings, other blobs left out.
+    origin : (int, int)
+        Image column and row of the patch's pixel (0, 0).
+    noise_sigma : float
+        Noise level of the frame. [grey levels]
+    blur_length, blur_angle : float
+        Blur length [px] and direction [rad] from the blob's second moments.
+    """
+
+    diff: np.ndarray
+    background: np.ndarray
+    gain: float
+    valid: np.ndarray
+    origin: tuple[int, int]
+    noise_sigma: float
+    blur_length: float
+    blur_angle: float
+
+
+def fit_chosen_blob(blob: Blob, blur_angle: float | None = None):
+    """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
+
+    The first guess is the blob's weighted centroid, the radius of a disc of the blob's
+    integrated coverage (``A = pi r^2``: blur moves the coverage, it does not add to it) and
+    the blur from its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
+    replaces the moments' direction when given.  Returns the
+    :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
+    blob has no patch or the fit fails).
+    """
+    from fitdrag.video.ball_fit import BallGuess, fit_ball
+
+    pt = blob.patch
+    length = pt.blur_length if pt is not None else 0.0
+    radius = math.sqrt(max(blob.area, 1.0) / math.pi)
+    angle = pt.blur_angle if (pt is not None and blur_angle is None) else (blur_angle or 0.0)
+    guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
+    if pt is None:
+        from fitdrag.video.ball_fit import BallFit
+
+        nan = float("nan")
+        return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1,
+                       nan, nan, 0, 0, False, "no pixels kept for the model fit")  # fmt: skip
+    return fit_ball(
+        pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
+    )
 
 
 @dataclass(frozen=True, eq=False)
@@ -324,6 +394,16 @@ class BlobFinder:
             touches_window=touches_window,
             blind=blind,
             spread=(spread_major, spread_minor),
+            patch=BlobPatch(
+                diff=dd,
+                background=b,
+                gain=gl,
+                valid=(region > 0) & ((labels[sy0:sy1, sx0:sx1] == 0) | (comp > 0)),
+                origin=(x0 + sx0, y0 + sy0),
+                noise_sigma=sigma,
+                blur_length=blur,
+                blur_angle=angle,
+            ),
         )
         blob.reason = self._gate(blob)
         return blob

@@ -556,27 +556,69 @@ def _header_value(v) -> str | None:
     return None
 
 
-def track_csv_text(meta: Mapping, frame, t, x, y, x_px, y_px, quality, sigma_px) -> str:
+def _fmt_optional(v: float, fmt: str) -> str:
+    return "" if not math.isfinite(v) else format(v, fmt)
+
+
+def track_csv_text(
+    meta: Mapping,
+    frame,
+    t,
+    x,
+    y,
+    x_px,
+    y_px,
+    quality,
+    sigma_px,
+    outline_diameter_px=None,
+    u_outline_diameter_px=None,
+    row_first=None,
+    row_last=None,
+) -> str:
     """The track CSV: ``# key: value`` header lines, then frame,t,x,y,x_px,y_px,quality,
-    sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down)."""
+    sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down) and,
+    when ``outline_diameter_px`` is given, outline_diameter_px, u_outline_diameter_px [px]
+    (apparent diameter perpendicular to the motion and its standard uncertainty; blank where
+    not measured) and row_first, row_last (image rows the outline spans; blank where not
+    measured)."""
     from fitdrag._version import __version__
 
+    outline = outline_diameter_px is not None
     head = {
         "format": "fitdrag track; t [s]; x, y [m]; world frame, y up; x_px, y_px, sigma_px "
-        "[px], image, y down",
+        "[px], image, y down"
+        + ("; outline_diameter_px, u_outline_diameter_px [px]; row_first, row_last [row]"
+           if outline else ""),
         "written_by": f"fitdrag {__version__} (fitdrag track)",
-    }
+    }  # fmt: skip
     for k, v in meta.items():
         sv = _header_value(v)
         if sv is not None and ":" not in k and k not in head:
             head[k] = sv
     lines = [f"# {k}: {v}".rstrip() for k, v in head.items()]
-    lines.append("frame,t,x,y,x_px,y_px,quality,sigma_px")
-    for row in zip(frame, t, x, y, x_px, y_px, quality, sigma_px):
-        f, tt, xx, yy, u, v, q, s = row
-        lines.append(
-            f"{int(f)},{float(tt)!r},{float(xx)!r},{float(yy)!r},{u:.4f},{v:.4f},{q:.3f},{s:.4f}"
+    names = "frame,t,x,y,x_px,y_px,quality,sigma_px"
+    if outline:
+        names += ",outline_diameter_px,u_outline_diameter_px,row_first,row_last"
+    lines.append(names)
+    n = len(frame)
+    if outline:
+        d = np.asarray(outline_diameter_px, dtype=float)
+        ud = np.asarray(
+            u_outline_diameter_px if u_outline_diameter_px is not None else np.full(n, np.nan),
+            dtype=float,
         )
+        r0 = np.asarray(row_first if row_first is not None else np.full(n, -1), dtype=np.int64)
+        r1 = np.asarray(row_last if row_last is not None else np.full(n, -1), dtype=np.int64)
+    for i, row in enumerate(zip(frame, t, x, y, x_px, y_px, quality, sigma_px)):
+        f, tt, xx, yy, u, v, q, s = row
+        text = f"{int(f)},{float(tt)!r},{float(xx)!r},{float(yy)!r},{u:.4f},{v:.4f},{q:.3f},{s:.4f}"
+        if outline:
+            rows_ok = r0[i] >= 0 and r1[i] >= 0
+            text += (
+                f",{_fmt_optional(float(d[i]), '.4f')},{_fmt_optional(float(ud[i]), '.4f')},"
+                f"{int(r0[i]) if rows_ok else ''},{int(r1[i]) if rows_ok else ''}"
+            )
+        lines.append(text)
     return "\n".join(lines) + "\n"
 
 
@@ -586,13 +628,19 @@ def footage_track_csv_text(ft: FootageTrack) -> str:
     Header lines ``# key: value`` carry the track's metadata (calibration method, scale
     [m/px], ``scale_relative_uncertainty`` [1], reprojection RMS [px], frames missing, ...);
     the columns are frame, t [s], x, y [m] (world, y up), x_px, y_px [px] (image, y down),
-    quality [0..1] and sigma_px [px].  :func:`fitdrag.tracks.read_track` reads it back with
-    the same t, x and y (floats are written with ``repr``).
+    quality [0..1] and sigma_px [px], then, from detectors that measure the outline,
+    outline_diameter_px and u_outline_diameter_px [px] (apparent diameter perpendicular to
+    the motion, blank where the model fit failed) and row_first, row_last (image rows the
+    outline spans).  :func:`fitdrag.tracks.read_track` reads it back with the same t, x and
+    y (floats are written with ``repr``) and keeps the outline columns in
+    ``meta["per_point"]``.
     """
     tr, det = ft.track, ft.detections
     return track_csv_text(
-        tr.meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px
-    )
+        tr.meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px,
+        getattr(det, "outline_diameter_px", None), getattr(det, "u_outline_diameter_px", None),
+        getattr(det, "row_first", None), getattr(det, "row_last", None),
+    )  # fmt: skip
 
 
 # ------------------------------------------------------------------------------------------
