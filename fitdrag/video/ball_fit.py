@@ -18,10 +18,16 @@ and ``S_j`` are the same average of the coverage times the shading basis functio
 ``1, n_x, n_y, n_z`` (the components of the ball's surface normal): a Lambertian ball under a
 distant lamp plus ambient light has the radiance ``a_0 + a_1 n_x + a_2 n_y + a_3 n_z`` where no
 part of the visible face is in shadow [1].  ``k`` absorbs a small error of the local gain.
-The five linear coefficients ``a_j, k`` are eliminated for each trial of the five non-linear
-ones (centre x, y, radius, blur length) by variable projection [2]; the non-linear
-ones are solved with :func:`scipy.optimize.least_squares` (Levenberg-Marquardt, forward
-differences of the projected residual computed in one compiled call).
+The five linear coefficients ``a_j, k`` and the four non-linear ones (centre x, y, radius,
+blur length) are solved together by Levenberg-Marquardt with Marquardt's diagonal scaling
+[2], compiled: the linear ones first by one exact linear step at the guess (the blob's
+weighted centroid, the radius of its area, the blur of its second moments), then all nine;
+the Jacobian is analytic (the derivatives of each sample's closed-form integrals below, so
+exact for the rendered model).  The loop stops when the centre, radius and blur move less
+than :data:`_STEP_TOLERANCE` or the cost falls by less than a hundredth of a noise variance;
+a rejected step of a few hundredths of a pixel also ends it (below that the set of finely
+sampled pixels, which moves with the outline, not the parameters, decides the cost).
+Typically five or six model evaluations.
 
 **Rendering.**  The time average is exact: for a point ``p`` the ball covers it while the
 centre is on the part of the segment within ``r`` of ``p``, an interval found in closed form,
@@ -34,8 +40,9 @@ shorter than 0.25 px is rendered as 0.25 px along the fitted direction (keeps th
 continuous in the centre; a static ball's centre is unbiased by symmetry).
 
 **Uncertainty.**  The covariance of the non-linear parameters is the least-squares sandwich
-``A^-1 J^T V J A^-1`` with ``A = J^T J`` and ``J`` the Jacobian of the projected residual
-(the Schur complement of the full problem, [2] sec. 3), and the noise covariance ``V = s^2 R``
+``A^-1 J^T V J A^-1`` with ``A = J^T J`` and ``J`` the Jacobian of all nine parameters (its
+block for the non-linear ones equals the inverse of the projected problem's Schur complement,
+Golub and Pereyra [2] sec. 3), and the noise covariance ``V = s^2 R``
 [3]: ``s^2`` is the residual variance ``RSS / (n - 10)`` of this fit (so misfit of the model
 raises the stated uncertainty), never below the frame's measured noise level squared times
 ``noise_floor``; ``R`` is the spatial correlation of the noise, measured from this fit's
@@ -54,8 +61,10 @@ References
 ----------
 1. B. K. P. Horn, *Robot Vision*, MIT Press (1986), ch. 10 (Lambertian reflectance,
    radiance ``rho (n . l)`` under a distant source).
-2. G. H. Golub and V. Pereyra, "The differentiation of pseudo-inverses and nonlinear least
-   squares problems whose variables separate", SIAM J. Numer. Anal. 10, 413-432 (1973);
+2. D. W. Marquardt, "An algorithm for least-squares estimation of nonlinear parameters",
+   J. SIAM 11, 431-441 (1963); G. H. Golub and V. Pereyra, "The differentiation of
+   pseudo-inverses and nonlinear least squares problems whose variables separate", SIAM J.
+   Numer. Anal. 10, 413-432 (1973);
    L. Kaufman, "A variable projection method for solving separable nonlinear least squares
    problems", BIT 15, 49-57 (1975).
 3. G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley (1989), sec. 2.1.4 and 6.1
@@ -105,6 +114,13 @@ MODEL_ERROR_CENTRE = 0.015
 MODEL_ERROR_DIAMETER = 0.03
 # Largest move of the centre from the first guess. [px]
 _MAX_SHIFT = 2.0
+# Levenberg-Marquardt: most iterations, and the step in the centre, radius and blur below
+# which it stops [px] ...
+_MAX_ITERATIONS = 30
+_STEP_TOLERANCE = 5e-3
+# ... or when an accepted step lowers the sum of squares by less than this many noise
+# variances (parameters then move by a few per cent of their standard uncertainty). [1]
+_COST_TOLERANCE = 0.01
 
 
 @dataclass(frozen=True)
@@ -282,84 +298,339 @@ def _render(h, w, cx, cy, r, blen, ux, uy, maskimg, out):
                     out[k, i, j] = acc[k]
 
 
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc):
+    """:func:`_sample` with its derivatives: adds d acc[b] / d theta_k to dacc[k, b] for
+    theta = (centre x, centre y, radius, blur length); ``dhalf`` is d half / d blur length."""
+    s0 = qx * ux + qy * uy
+    wx = qx - s0 * ux
+    wy = qy - s0 * uy
+    dp2 = wx * wx + wy * wy
+    r2 = r * r
+    if dp2 >= r2:
+        return
+    h2 = r2 - dp2
+    h = math.sqrt(h2)
+    s1 = max(-half, s0 - h)
+    s2 = min(half, s0 + h)
+    if s2 <= s1:
+        return
+    t1 = s1 - s0
+    t2 = s2 - s0
+    ln = t2 - t1
+    m2 = 0.5 * (t2 * t2 - t1 * t1)
+    z1 = math.sqrt(max(h2 - t1 * t1, 0.0))
+    z2 = math.sqrt(max(h2 - t2 * t2, 0.0))
+    dang = math.atan2(t2 * z1 - t1 * z2, z1 * z2 + t1 * t2)
+    iz = 0.5 * (t2 * z2 - t1 * z1 + h2 * dang)
+    ir = 1.0 / r
+    a0 = ln * inv_l
+    a1 = (wx * ln - ux * m2) * ir * inv_l
+    a2 = (wy * ln - uy * m2) * ir * inv_l
+    a3 = iz * ir * inv_l
+    acc[0] += a0
+    acc[1] += a1
+    acc[2] += a2
+    acc[3] += a3
+    # q = sample point - centre: d q / d cx = (-1, 0), d q / d cy = (0, -1); w . u = 0, so
+    # d dp2 / d c = -2 w and d h2 / d c = 2 w.
+    inv_h = 1.0 / max(h, 1e-9)
+    clip1 = s0 - h <= -half  # t1 = -half - s0, else t1 = -h
+    clip2 = s0 + h >= half  # t2 = half - s0, else t2 = h
+    for k in range(4):
+        if k == 0:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = -ux, ux * ux - 1.0, ux * uy, 2.0 * wx, 0.0, 0.0, 0.0
+        elif k == 1:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = -uy, ux * uy, uy * uy - 1.0, 2.0 * wy, 0.0, 0.0, 0.0
+        elif k == 2:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = 0.0, 0.0, 0.0, 2.0 * r, 0.0, 1.0, 0.0
+        else:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = 0.0, 0.0, 0.0, 0.0, dhalf, 0.0, 2.0 * dhalf
+        dh = 0.5 * dh2 * inv_h
+        dt1 = (-dhf - ds0) if clip1 else -dh
+        dt2 = (dhf - ds0) if clip2 else dh
+        dln = dt2 - dt1
+        dm2 = t2 * dt2 - t1 * dt1
+        diz = z2 * dt2 - z1 * dt1 + 0.5 * dh2 * dang
+        rel = dr * ir + dl * inv_l  # d ln(r L)
+        dacc[k, 0] += dln * inv_l - a0 * dl * inv_l
+        dacc[k, 1] += (dwx * ln + wx * dln - ux * dm2) * ir * inv_l - a1 * rel
+        dacc[k, 2] += (dwy * ln + wy * dln - uy * dm2) * ir * inv_l - a2 * rel
+        dacc[k, 3] += diz * ir * inv_l - a3 * rel
+
+
+@numba.njit(cache=True, fastmath=True)
+def _render_d(h, w, cx, cy, r, blen, ux, uy, maskimg, out, dout):
+    """:func:`_render` and the derivatives of its four images with respect to (centre x,
+    centre y, radius, blur length) into dout[0:4, 0:4, h, w] (sample by sample, so they are
+    the exact derivatives of the rendered model)."""
+    length = max(abs(blen), _MIN_BLUR)
+    # d length / d blen: sign(blen) above the shortest rendered blur, else 0.
+    dlen = (1.0 if blen >= 0 else -1.0) if abs(blen) > _MIN_BLUR else 0.0
+    half = 0.5 * length
+    dhalf = 0.5 * dlen
+    inv_l = 1.0 / length
+    e1x, e1y = cx - half * ux, cy - half * uy
+    e2x, e2y = cx + half * ux, cy + half * uy
+    band = 0.75
+    reach = r + half + 1.0
+    acc = np.zeros(_N_BASIS)
+    dacc = np.zeros((_N_PAR, _N_BASIS))
+    step = 1.0 / _N_SAMPLES
+    off = 0.5 * step - 0.5
+    norm = 1.0 / _N_SAMPLES
+    for i in range(h):
+        for j in range(w):
+            for k in range(_N_BASIS):
+                out[k, i, j] = 0.0
+                for m in range(_N_PAR):
+                    dout[m, k, i, j] = 0.0
+            if not maskimg[i, j]:
+                continue
+            px = j - cx
+            py = i - cy
+            if abs(px) > reach or abs(py) > reach:
+                continue
+            s = px * ux + py * uy
+            sc = min(max(s, -half), half)
+            dseg = math.hypot(px - sc * ux, py - sc * uy)
+            if dseg > r + band:
+                continue
+            d1 = math.hypot(j - e1x, i - e1y)
+            d2 = math.hypot(j - e2x, i - e2y)
+            for k in range(_N_BASIS):
+                acc[k] = 0.0
+                for m in range(_N_PAR):
+                    dacc[m, k] = 0.0
+            if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
+                for a in range(_N_SAMPLES):
+                    qy = py + off + a * step
+                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
+                    _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k] * norm
+                    for m in range(_N_PAR):
+                        dout[m, k, i, j] = dacc[m, k] * norm
+            else:
+                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, acc, dacc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k]
+                    for m in range(_N_PAR):
+                        dout[m, k, i, j] = dacc[m, k]
+
+
 @numba.njit(cache=True)
-def _project(p, u, d, gb, maskimg, mask_idx, h, w, basis, res, coef):
-    """Projected residual of parameters p = (cx, cy, r, blur length) with the blur along the
-    unit vector u: the linear coefficients are solved by least squares (normal equations,
-    Cholesky); returns False if singular."""
-    _render(h, w, p[0], p[1], p[2], p[3], u[0], u[1], maskimg, basis)
-    n = mask_idx.shape[0]
-    m = _N_LIN
+def _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac):
+    """Residuals ``d - model`` and the model's Jacobian (n, 9) for all parameters
+    x = (cx, cy, r, blur length, a_0..a_3, k); returns the sum of squared residuals."""
+    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], maskimg, basis, dbasis)
+    return _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
+
+
+@numba.njit(cache=True)
+def _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac):
+    """Residuals and Jacobian of :func:`_model_and_jacobian` from rendered images."""
     nb = _N_BASIS
-    ata = np.zeros((m, m))
-    aty = np.zeros(m)
-    col = np.empty(m)
-    for q in range(n):
+    kk = x[_N_PAR + nb]
+    rss = 0.0
+    for q in range(mask_idx.shape[0]):
         idx = mask_idx[q]
         i = idx // w
         j = idx - i * w
         c = basis[0, i, j]
         g = gb[i, j]
-        for k in range(nb):
-            col[k] = basis[k, i, j]
-        col[nb] = g * (1.0 - c)
-        y = d[i, j] + g * c
-        for a in range(m):
-            aty[a] += col[a] * y
-            for b in range(a + 1):
-                ata[a, b] += col[a] * col[b]
-    # Cholesky of ata with a relative ridge on its diagonal (lower triangle).
+        model = kk * g * (1.0 - c) - g * c
+        for b in range(nb):
+            model += x[_N_PAR + b] * basis[b, i, j]
+            jac[q, _N_PAR + b] = basis[b, i, j]
+        jac[q, _N_PAR + nb] = g * (1.0 - c)
+        for m in range(_N_PAR):
+            v = -(kk + 1.0) * g * dbasis[m, 0, i, j]
+            for b in range(nb):
+                v += x[_N_PAR + b] * dbasis[m, b, i, j]
+            jac[q, m] = v
+        rr = d[i, j] - model
+        res[q] = rr
+        rss += rr * rr
+    return rss
+
+
+@numba.njit(cache=True)
+def _solve_spd(a, b, out):
+    """Solve a x = b for a symmetric positive definite a (Cholesky); False if not."""
+    m = a.shape[0]
     lo = np.zeros((m, m))
-    for a in range(m):
-        for b in range(a + 1):
-            s = ata[a, b] + ((1e-10 * ata[a, a] + 1e-300) if a == b else 0.0)
-            for k in range(b):
-                s -= lo[a, k] * lo[b, k]
-            if a == b:
+    for i in range(m):
+        for j in range(i + 1):
+            s = a[i, j]
+            for k in range(j):
+                s -= lo[i, k] * lo[j, k]
+            if i == j:
                 if s <= 0.0:
                     return False
-                lo[a, a] = math.sqrt(s)
+                lo[i, i] = math.sqrt(s)
             else:
-                lo[a, b] = s / lo[b, b]
+                lo[i, j] = s / lo[j, j]
     z = np.empty(m)
-    for a in range(m):
-        s = aty[a]
-        for k in range(a):
-            s -= lo[a, k] * z[k]
-        z[a] = s / lo[a, a]
-    for a in range(m - 1, -1, -1):
-        s = z[a]
-        for k in range(a + 1, m):
-            s -= lo[k, a] * coef[k]
-        coef[a] = s / lo[a, a]
-    for q in range(n):
-        idx = mask_idx[q]
-        i = idx // w
-        j = idx - i * w
-        c = basis[0, i, j]
-        g = gb[i, j]
-        model = coef[nb] * g * (1.0 - c) - g * c
-        for k in range(nb):
-            model += coef[k] * basis[k, i, j]
-        res[q] = d[i, j] - model
+    for i in range(m):
+        s = b[i]
+        for k in range(i):
+            s -= lo[i, k] * z[k]
+        z[i] = s / lo[i, i]
+    for i in range(m - 1, -1, -1):
+        s = z[i]
+        for k in range(i + 1, m):
+            s -= lo[k, i] * out[k]
+        out[i] = s / lo[i, i]
     return True
 
 
 @numba.njit(cache=True)
-def _jacobian(p, u, d, gb, maskimg, mask_idx, h, w, basis, r0, steps, jac, coef):
-    """Forward-difference Jacobian of the projected residual (r0 the residual at p)."""
+def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
+    """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
+    (the non-linear ones at the guess, the linear ones solved there).  Returns the
+    solution, its residuals and Jacobian, the model evaluations used and a status:
+    0 converged, 1 too many iterations, 2 singular."""
     n = mask_idx.shape[0]
+    npar = x.shape[0]
+    basis = np.zeros((_N_BASIS, h, w))
+    dbasis = np.zeros((_N_PAR, _N_BASIS, h, w))
     res = np.empty(n)
-    pp = p.copy()
-    ok = True
-    for k in range(p.shape[0]):
-        pp[k] = p[k] + steps[k]
-        if not _project(pp, u, d, gb, maskimg, mask_idx, h, w, basis, res, coef):
-            ok = False
+    jac = np.empty((n, npar))
+    res_t = np.empty(n)
+    jac_t = np.empty((n, npar))
+    rss = _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac)
+    nfev = 1
+    # The linear coefficients at the guess: one exact linear least-squares step.
+    nl = npar - _N_PAR
+    al = np.empty((nl, nl))
+    gl = np.empty(nl)
+    dl = np.empty(nl)
+    for i in range(nl):
+        s = 0.0
         for q in range(n):
-            jac[q, k] = (res[q] - r0[q]) / steps[k]
-        pp[k] = p[k]
-    return ok
+            s += jac[q, _N_PAR + i] * res[q]
+        gl[i] = s
+        for j in range(i + 1):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, _N_PAR + i] * jac[q, _N_PAR + j]
+            al[i, j] = s + ((1e-10 * s + 1e-300) if i == j else 0.0)
+            al[j, i] = al[i, j]
+    if _solve_spd(al, gl, dl):
+        for i in range(nl):
+            x[_N_PAR + i] += dl[i]
+        rss = _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
+    lam = 1e-3
+    a = np.empty((npar, npar))
+    g = np.empty(npar)
+    step = np.empty(npar)
+    xt = np.empty(npar)
+    status = 1
+    for _ in range(max_iter):
+        for i in range(npar):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, i] * res[q]
+            g[i] = s
+            for j in range(i + 1):
+                s = 0.0
+                for q in range(n):
+                    s += jac[q, i] * jac[q, j]
+                a[i, j] = s
+                a[j, i] = s
+        accepted = False
+        done = False
+        while lam < 1e10:
+            ad = a.copy()
+            for i in range(npar):
+                ad[i, i] = a[i, i] * (1.0 + lam) + 1e-12 * (a[i, i] + 1e-300)
+            if not _solve_spd(ad, g, step):
+                lam *= 10.0
+                continue
+            small = True
+            near = True
+            for i in range(_N_PAR):
+                if abs(step[i]) > tol:
+                    small = False
+                if abs(step[i]) > 4.0 * tol:
+                    near = False
+            for i in range(npar):
+                xt[i] = x[i] + step[i]
+            if xt[2] <= 0.2:
+                lam *= 10.0
+                continue
+            rss_t = _model_and_jacobian(
+                xt, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
+            )
+            nfev += 1
+            if rss_t <= rss:
+                accepted = True
+                break
+            pred = 0.0
+            for i in range(npar):
+                pred += step[i] * g[i]
+            if near or pred <= 0.25 * rss / max(n - npar, 1):
+                # Rejected, with a step of a few hundredths of a pixel or at most a quarter
+                # of a noise variance to gain: from here on the model's pixel sampling (the
+                # set of pixels sampled finely moves with the outline), not the parameters,
+                # decides the cost.
+                done = True
+                break
+            lam *= 10.0
+        if done:
+            status = 0
+            break
+        if not accepted:
+            status = 0 if rss > 0 else 2  # no step lowers the cost: at the minimum
+            break
+        x[:] = xt
+        res[:] = res_t
+        jac[:] = jac_t
+        drop = rss - rss_t
+        rss = rss_t
+        lam = max(lam * 0.1, 1e-7)
+        # Stop when the step is negligible, or the cost fell by less than ftol noise
+        # variances (a change that moves no parameter by a noticeable share of its sigma).
+        if small or drop <= ftol * rss / max(n - npar, 1):
+            status = 0
+            break
+    return x, res, jac, nfev, status
+
+
+@numba.njit(cache=True)
+def _sensitivities(jac, mask_idx, h, w, nk):
+    """Images (nk, h, w) of the pixels' influence on the first nk parameters,
+    v_k = J (J^T J)^-1 e_k, and their white-noise quadratic forms v_k^T v_k; False if the
+    normal matrix is singular in those parameters."""
+    n, npar = jac.shape
+    a = np.empty((npar, npar))
+    for i in range(npar):
+        for j in range(i + 1):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, i] * jac[q, j]
+            a[i, j] = s
+            a[j, i] = s
+    for i in range(npar):
+        a[i, i] += 1e-12 * a[i, i] + 1e-300  # a column that is exactly zero stays decoupled
+    vimg = np.zeros((nk, h, w))
+    white = np.zeros(nk)
+    e = np.zeros(npar)
+    col = np.empty(npar)
+    for k in range(nk):
+        e[:] = 0.0
+        e[k] = 1.0
+        if not _solve_spd(a, e, col):
+            return vimg, white, False
+        for q in range(n):
+            v = 0.0
+            for i in range(npar):
+                v += jac[q, i] * col[i]
+            idx = mask_idx[q]
+            vimg[k, idx // w, idx % w] = v
+            white[k] += v * v
+    return vimg, white, True
 
 
 @numba.njit(cache=True)
@@ -505,8 +776,6 @@ def fit_ball(
     InputError
         Arrays of different shapes, or a non-positive noise level or radius guess.
     """
-    from scipy.optimize import least_squares
-
     d = np.ascontiguousarray(diff, dtype=np.float64)
     bg = np.asarray(background, dtype=np.float64)
     if d.ndim != 2 or bg.shape != d.shape:
@@ -533,37 +802,14 @@ def fit_ball(
     ang = float(guess.blur_angle)
     u = np.array([math.cos(ang), math.sin(ang)])
     p0 = np.array([guess.x - ox, guess.y - oy, r0, bl])
-    basis = np.zeros((_N_BASIS, h, w))
-    coef = np.zeros(_N_LIN)
-    res = np.empty(n)
-    jac = np.empty((n, _N_PAR))
-    steps = np.full(_N_PAR, 1e-4)
-    count = [0]
-
-    last = {"p": None, "r": None}
-
-    def fun(p):
-        count[0] += 1
-        if p[2] <= 0.2 or not np.all(np.isfinite(p)):
-            return np.full(n, 1e6)
-        _project(p, u, d, gb, maskimg, mask_idx, h, w, basis, res, coef)
-        last["p"], last["r"] = p.copy(), res.copy()
-        return last["r"]
-
-    def jacf(p):
-        count[0] += 1
-        r_at = last["r"] if last["p"] is not None and np.array_equal(p, last["p"]) else fun(p)
-        _jacobian(p, u, d, gb, maskimg, mask_idx, h, w, basis, r_at, steps, jac, coef)
-        return jac.copy()
-
-    try:
-        sol = least_squares(fun, p0, jac=jacf, method="lm", xtol=1e-6, ftol=1e-6, max_nfev=60)
-    except (ValueError, np.linalg.LinAlgError) as exc:  # pragma: no cover - defensive
-        return _failed(f"least squares failed ({exc})", guess, n, count[0])
-    p = sol.x
-    nfev = count[0]
-    if not sol.success:
-        return _failed(f"fit did not converge ({sol.message})", guess, n, nfev)
+    x0 = np.concatenate([p0, np.zeros(_N_LIN)])  # linear coefficients solved in the loop
+    x, res, jac, nfev, status = _levenberg_marquardt(
+        x0, u, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE, _COST_TOLERANCE
+    )
+    if status != 0:
+        why = "singular normal matrix" if status == 2 else f"{_MAX_ITERATIONS} iterations"
+        return _failed(f"fit did not converge ({why})", guess, n, nfev)
+    p = x[:_N_PAR]
     cx, cy, rr, blen = (float(v) for v in p)
     blen = abs(blen)
     if not (0.5 * r0 <= rr <= 2.0 * r0 + 1.0):
@@ -573,9 +819,6 @@ def fit_ball(
     shift = math.hypot(cx + ox - guess.x, cy + oy - guess.y)
     if shift > _MAX_SHIFT:
         return _failed(f"fitted centre moved {shift:.2f} px from the blob's", guess, n, nfev)
-    ok = _project(p, u, d, gb, maskimg, mask_idx, h, w, basis, res, coef)
-    if not ok:
-        return _failed("shading basis is singular at the solution", guess, n, nfev)
     rss = float(res @ res)
     dof = max(n - _N_PAR - _N_LIN, 1)
     s_res = math.sqrt(rss / dof)
@@ -587,23 +830,19 @@ def fit_ball(
             n,
             nfev,
         )
-    _jacobian(p, u, d, gb, maskimg, mask_idx, h, w, basis, res, steps, jac, coef)
-    a = jac.T @ jac
-    try:
-        ainv = np.linalg.pinv(a, rcond=1e-12)
-    except np.linalg.LinAlgError:  # pragma: no cover - defensive
-        return _failed("singular normal matrix at the solution", guess, n, nfev)
     s2 = max(s_res, noise_floor * noise_sigma) ** 2
     # Sandwich: row k of A^-1 J^T is the sensitivity of parameter k to each pixel's value;
-    # its variance is s^2 v_k^T R v_k with v_k = J A^-1 e_k.
-    v = jac @ ainv[:, :3]  # (n, 3): centre x, y and radius
-    vimg = np.zeros((3, h * w))
-    vimg[:, mask_idx] = v.T
+    # its variance is s^2 v_k^T R v_k with v_k = J A^-1 e_k.  J is the Jacobian of all nine
+    # parameters: the block of (J^T J)^-1 belonging to the non-linear ones is the inverse of
+    # the projected problem's normal matrix [2].
+    vimg, white, ok = _sensitivities(jac, mask_idx, h, w, 3)  # centre x, y and radius
+    if not ok:
+        return _failed("singular normal matrix at the solution", guess, n, nfev)
     resimg = np.zeros(h * w)
     resimg[mask_idx] = res
-    quad, _rho = _correlated_variance(resimg.reshape(h, w), maskimg, vimg.reshape(3, h, w), _LAGS)
+    quad, _rho = _correlated_variance(resimg.reshape(h, w), maskimg, vimg, _LAGS)
     var = s2 * quad
-    white = s2 * np.einsum("nk,nk->k", v, v)
+    white = s2 * white
     if not np.all(np.isfinite(var)) or np.any(var <= 0):
         return _failed("uncertainty could not be computed", guess, n, nfev)
     inflation = math.sqrt(float(var[0] + var[1]) / float(white[0] + white[1]))
