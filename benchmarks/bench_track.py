@@ -20,6 +20,7 @@ For each scenario the benchmark prints, next to the issue's target:
   z RMS      RMS of (error / stated sigma_px), per coordinate, same detections
   fps        frames per second of the whole command (wall time: start-up, decode, writing)
   decode     frames per second of a plain OpenCV grey decode of the same file, same run
+  ratio      whole command / decode-only (less sensitive to the load of a shared machine)
   diam err   RMS error of the outline diameter [px], when the CSV has outline_diameter_px
 
 Run:  python benchmarks/bench_track.py [--scenario a|b|c|d] [--quick] [--keep DIR] [--reuse]
@@ -280,6 +281,7 @@ def main() -> None:
         print(fmt_row("whole command frames/s", f">= {sc.fps_target:g}",
                       f"{n / wall:.0f} ({wall:.1f} s)"))  # fmt: skip
         print(fmt_row("decode-only limit frames/s", "-", f"{dec:.0f}"))
+        print(fmt_row("whole command / decode-only", "-", f"{n / wall / dec:.2f}"))
     tmp.cleanup()
 
 

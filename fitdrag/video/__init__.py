@@ -17,6 +17,7 @@ _WHERE = {
     "FootageTrack": "fitdrag.video.tracking",
     "FrameSource": "fitdrag.video.sources",
     "LensModel": "fitdrag.video.lens",
+    "OtherMover": "fitdrag.video.movers",
     "VideoSource": "fitdrag.video.sources",
     "calibrate_lens": "fitdrag.video.lens",
     "calibration_from_markers": "fitdrag.video.calibration",

@@ -110,7 +110,7 @@ _MAX_RESIDUAL = 4.0
 # uncertainty: the largest bias left by the shading basis on synthetic footage whose lamp
 # puts a crescent of the ball in shadow (lamp 20 degrees off the camera axis; benchmarks and
 # tests/test_video_ball_fit.py). [px]
-MODEL_ERROR_CENTRE = 0.015
+MODEL_ERROR_CENTRE = 0.018
 MODEL_ERROR_DIAMETER = 0.03
 # Largest move of the centre from the first guess. [px]
 _MAX_SHIFT = 2.0
