@@ -40,13 +40,14 @@ from fitdrag.video.sources import open_source  # noqa: E402
 
 
 def recorded_fits(source):
-    """Run the tracker on ``source`` and return the (blob, blur angle) pairs it fitted."""
+    """Run the tracker on ``source`` and return the arguments (blob, blur angle, start) of
+    each model fit it made."""
     seen = []
     original = blobs_module.fit_chosen_blob
 
-    def spy(blob, angle=None):
-        seen.append((blob, angle))
-        return original(blob, angle)
+    def spy(blob, angle=None, start=None):
+        seen.append((blob, angle, start))
+        return original(blob, angle, start)
 
     blobs_module.fit_chosen_blob = spy
     try:
@@ -58,12 +59,12 @@ def recorded_fits(source):
 
 def measure(label: str, pairs, truth, repeat: int) -> None:
     fit = blobs_module.fit_chosen_blob
-    for blob, angle in pairs[:3]:  # compile (or load the cache) outside the timing
-        fit(blob, angle)
+    for args in pairs[:3]:  # compile (or load the cache) outside the timing
+        fit(*args)
     best = math.inf
     for _ in range(repeat):
         t0 = time.process_time()
-        results = [fit(blob, angle) for blob, angle in pairs]
+        results = [fit(*args) for args in pairs]
         best = min(best, time.process_time() - t0)
     # Truth per fit: the nearest truth frame's centre (the blobs carry no frame number).
     tx, ty, td = truth.x_mean_px, truth.y_mean_px, truth.diameter_px

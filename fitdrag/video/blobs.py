@@ -92,13 +92,17 @@ class BlobPatch:
     blur_angle: float
 
 
-def fit_chosen_blob(blob: Blob, blur_angle: float | None = None):
+def fit_chosen_blob(
+    blob: Blob, blur_angle: float | None = None, start: tuple[float, float] | None = None
+):
     """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
 
     The first guess is the blob's weighted centroid, the radius of a disc of the blob's
     integrated coverage (``A = pi r^2``: blur moves the coverage, it does not add to it) and
     the blur from its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
-    replaces the moments' direction when given.  Returns the
+    replaces the moments' direction when given; ``start`` (radius and blur length [px], e.g.
+    from the neighbouring frame's fit) replaces the radius and blur of the first guess, so
+    the fit needs fewer iterations.  Returns the
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
     """
@@ -108,6 +112,8 @@ def fit_chosen_blob(blob: Blob, blur_angle: float | None = None):
     length = pt.blur_length if pt is not None else 0.0
     radius = math.sqrt(max(blob.area, 1.0) / math.pi)
     angle = pt.blur_angle if (pt is not None and blur_angle is None) else (blur_angle or 0.0)
+    if start is not None and all(math.isfinite(v) and v >= 0 for v in start):
+        radius, length = start
     guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
     if pt is None:
         from fitdrag.video.ball_fit import BallFit

@@ -461,7 +461,7 @@ def detect_specimen(
     )
     gains = np.array([accepted[int(k)][1] for k in frames])
     sig = np.array([b.sigma for b in blobs_ok])
-    outline = _fit_kept(blobs_ok, keep, xs, ys, sig, quality)
+    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality)
     out = Detections(
         frame=frames[keep],
         x_px=xs[keep],
@@ -608,11 +608,12 @@ def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
 _FALLBACK_SIGMA_FACTOR = 3.0
 
 
-def _fit_kept(blobs, keep, xs, ys, sig, quality) -> dict:
+def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
     """Model fit of each kept detection (:func:`fitdrag.video.blobs.fit_chosen_blob`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
-    weighted centroid with a larger sigma and halves the quality.  Returns the outline
-    columns of :class:`Detections`."""
+    weighted centroid with a larger sigma and halves the quality.  A fit starts from the
+    radius and blur of the previous frame's fit when that frame was fitted.  Returns the
+    outline columns of :class:`Detections`."""
     from fitdrag.video.blobs import fit_chosen_blob
 
     idx = np.flatnonzero(keep)
@@ -627,9 +628,16 @@ def _fit_kept(blobs, keep, xs, ys, sig, quality) -> dict:
         ang = np.arctan2(np.gradient(ys[idx]), np.gradient(xs[idx]))
     else:
         ang = np.full(n, np.nan)
+    prev_frame, start = None, None
     for j, i in enumerate(idx):
         a = float(ang[j]) if math.isfinite(ang[j]) else None
-        fit = fit_chosen_blob(blobs[i], a)
+        near = prev_frame is not None and int(frames[i]) - prev_frame == 1
+        if near and start is not None:
+            fit = fit_chosen_blob(blobs[i], a, start=start)
+        else:
+            fit = fit_chosen_blob(blobs[i], a)
+        prev_frame = int(frames[i])
+        start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
             diam[j], u_diam[j] = fit.diameter, fit.u_diameter
