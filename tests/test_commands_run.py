@@ -285,7 +285,8 @@ def clip(tmp_path_factory):
     container says 30 frames/s (a playback rate), the job says 200."""
     from scipy.integrate import solve_ivp
 
-    from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_video
+    from fitdrag.video.footage_files import write_video
+    from fitdrag.video.synthetic import MarkerPlacement, render_flight
 
     sc = ref.Scenario(cd=TRUE_CD)
     sol = solve_ivp(

@@ -17,7 +17,8 @@ import pytest
 
 from fitdrag.cli import main
 from fitdrag.tracks import read_track
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.footage_files import write_frames, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import parse_origin, parse_reference
 
 FPS = 500.0
@@ -90,7 +91,10 @@ def test_markers_track_matches_the_true_flight(footage, tmp_path, capsys):
 
     with open(out, encoding="utf-8") as fh:
         rows = list(csv.DictReader(line for line in fh if not line.startswith("#")))
-    assert list(rows[0]) == ["frame", "t", "x", "y", "x_px", "y_px", "quality", "sigma_px"]
+    assert list(rows[0]) == [
+        "frame", "t", "x", "y", "x_px", "y_px", "quality", "sigma_px",
+        "outline_diameter_px", "u_outline_diameter_px", "row_first", "row_last",
+    ]  # fmt: skip
     u_px = np.array([float(r["x_px"]) for r in rows])
     v_px = np.array([float(r["y_px"]) for r in rows])
     truth = footage["truth"]

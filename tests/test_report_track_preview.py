@@ -6,8 +6,9 @@ import numpy as np
 import pytest
 
 from fitdrag.report.track_preview import track_preview_figure
+from fitdrag.video.footage_files import write_video
 from fitdrag.video.sources import open_source
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import track_footage
 
 FPS = 500.0

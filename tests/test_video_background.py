@@ -62,3 +62,16 @@ def test_median_network_matches_numpy():
         np.testing.assert_array_equal(got, np.floor(ref).astype(np.uint16))
         f = [i.astype(np.float32) for i in imgs]
         np.testing.assert_allclose(_median_of(f), ref)
+
+
+@pytest.mark.parametrize("k", [3, 4, 5, 8, 16, 17, 24, 25, 31, 32, 33])
+def test_pruned_median_network_matches_numpy(k):
+    """closed-form/independent: the median network, pruned to the comparators the median
+    needs, gives numpy's median (independent implementation) for k images, odd and even,
+    integer (mean of the middle two rounded down) and float."""
+    rng = np.random.default_rng(k)
+    imgs = [rng.integers(0, 65535, (6, 7)).astype(np.uint16) for _ in range(k)]
+    ref = np.median(np.stack(imgs).astype(np.float64), axis=0)
+    np.testing.assert_array_equal(_median_of(imgs), np.floor(ref).astype(np.uint16))
+    flt = [im.astype(np.float32) for im in imgs]
+    np.testing.assert_allclose(_median_of(flt), ref, rtol=1e-6)

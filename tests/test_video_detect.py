@@ -14,8 +14,9 @@ import numpy as np
 import pytest
 
 from fitdrag.video.detect import detect_specimen
+from fitdrag.video.footage_files import write_frames, write_video
 from fitdrag.video.sources import open_source
-from fitdrag.video.synthetic import render_flight, write_frames, write_video
+from fitdrag.video.synthetic import render_flight
 
 FPS = 500.0
 SHAPE = (240, 320)
@@ -153,9 +154,11 @@ def test_sixteen_bit_tiff_folder(tmp_path):
     det16 = detect_specimen(src)
     det8 = detect_specimen(fo.frames)
     np.testing.assert_array_equal(det16.frame, det8.frame + 1)  # files numbered from 1
-    # The 8-bit background is kept in 1/256-level steps, the 16-bit one in floats.
-    np.testing.assert_allclose(det16.x_px, det8.x_px, atol=5e-3)
-    np.testing.assert_allclose(det16.y_px, det8.y_px, atol=5e-3)
+    # The 8-bit background is kept in 1/256-level steps, the 16-bit one in floats; the model
+    # fit follows such differences (and the blur direction taken from the track) to within
+    # a third of its stated sigma (about 0.02 px here).
+    np.testing.assert_allclose(det16.x_px, det8.x_px, atol=1e-2)
+    np.testing.assert_allclose(det16.y_px, det8.y_px, atol=1e-2)
     assert det16.noise_sigma == pytest.approx(257 * det8.noise_sigma, rel=0.02)
 
 
@@ -197,13 +200,17 @@ def test_frame_range(footage):
 
 
 def test_no_specimen_error():
-    """regression: footage without a moving ball: one clear error naming the range."""
+    """regression: footage without a moving ball: one clear error naming the range, the
+    reasons by frame range and what to change (the message now lists the reasons by frame
+    range and mentions a region of interest: issue 12)."""
     fo = render_flight(lambda t: (np.full_like(t, -50.0), np.full_like(t, -50.0)), 20, FPS,
                        shape=SHAPE, seed=1)  # fmt: skip
     msg = (
-        "footage <frames in memory>: no specimen found in any frame of 0..19 (20 frame(s): no "
-        "blob stands out from the background); check the frame range, the area limits "
-        "(min_area=12, max_area=4800 px) and the threshold (threshold_sigma=5)."
+        "footage <frames in memory>: no specimen found in any frame of 0..19 (frames 0-19 "
+        "(20): no blob stands out from the background); check the frame range (start/stop), "
+        "the area limits (min_area=12, max_area=4800 px: the specimen's size in pixels) and "
+        "the threshold (threshold_sigma=5), or give a region of interest (region) that leaves "
+        "out other moving things."
     )
     with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
         detect_specimen(fo.frames)
@@ -246,3 +253,201 @@ def test_detector_registry():
         get_detector("blob")
     with pytest.raises(ValueError, match="already registered"):
         register_detector(DEFAULT_DETECTOR, detect_specimen)
+
+
+def test_correlated_jpeg_like_noise(tmp_path):
+    """closed-form/independent: noise that is spatially correlated (white noise blurred by a
+    Gaussian of 1.2 px, sigma 4 grey levels) and then compressed as Motion-JPEG at quality 60:
+    every fully visible frame is found, nothing else, centroids within bounds."""
+    import cv2
+
+    fo = render(noise_sigma=0.0, seed=14)
+    out = []
+    for k, img in enumerate(fo.frames):
+        rng = np.random.default_rng([14, k])
+        e = cv2.GaussianBlur(rng.standard_normal(img.shape).astype(np.float32), (0, 0), 1.2)
+        out.append(np.clip(np.rint(img + 4.0 * e / e.std()), 0, 255).astype(np.uint8))
+    path = write_video(np.stack(out), tmp_path / "jpeg_like.avi", 30.0, quality=60)
+    det = detect_specimen(open_source(path))
+    missed = set(np.flatnonzero(fo.truth.visible).tolist()) - set(det.frame.tolist())
+    # The search finds every one; the shape check of the clean-up may withdraw a few of the
+    # noisiest measurements (length or width off its neighbours' by more than 3.5 %).
+    reasons = dict(det.missing)
+    assert len(missed) <= 3
+    assert all(reasons[k].startswith("blob length differs") or
+               reasons[k].startswith("blob width differs") for k in missed)  # fmt: skip
+    assert set(det.frame.tolist()) <= set(np.flatnonzero(fo.truth.visible).tolist())
+    assert errors(det, fo.truth).max() < 0.6
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.2
+
+
+def test_undecodable_frame_is_skipped_and_listed(footage, tmp_path):
+    """regression: one Motion-JPEG frame in the middle made undecodable (its JPEG start
+    marker overwritten): the clip is tracked, that frame is listed as not decoded, the
+    frames around it are detected."""
+    path = write_video(footage.frames, tmp_path / "clip.avi", 30.0)
+    data = bytearray(path.read_bytes())
+    starts = [i for i in range(len(data) - 1) if data[i] == 0xFF and data[i + 1] == 0xD8]
+    assert len(starts) == N
+    data[starts[30] : starts[30] + 2] = b"\x00\x00"
+    bad = tmp_path / "bad.avi"
+    bad.write_bytes(bytes(data))
+    det = detect_specimen(open_source(bad))
+    assert dict(det.missing)[30] == "frame could not be decoded (skipped)"
+    assert {29, 31} <= set(det.frame.tolist())
+    assert len(det) >= int(footage.truth.visible.sum()) - 2
+
+
+def test_folder_with_a_missing_file(footage, tmp_path):
+    """regression: a frames folder with one file removed: that frame number is listed as
+    missing with the reason, the others are tracked."""
+    write_frames(footage.frames, tmp_path, ext="png")
+    files = sorted(tmp_path.glob("*.png"))
+    files[25].unlink()
+    det = detect_specimen(open_source(tmp_path))
+    assert dict(det.missing)[25] == "no image file for this frame number in the folder"
+    assert {24, 26} <= set(det.frame.tolist())
+
+
+def test_bad_region(footage):
+    """regression: a region of interest outside the image names the input and the fix."""
+    msg = (
+        "region: expected (x0, y0, x1, y1) with x0 < x1 and y0 < y1, overlapping the 320x240 "
+        "px image, got (400, 0, 500, 100); give the corners of the region of interest in "
+        "image pixels."
+    )
+    with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
+        detect_specimen(footage.frames[:10], region=(400, 0, 500, 100))
+
+
+def test_coloured_ball_on_a_grey_scene(tmp_path):
+    """closed-form/independent: a red ball (B, G, R = 20, 40, 200) whose grey level (BT.601
+    luma 86) nearly matches the grey background (90), in colour PNG files: read as grey the
+    ball is all but invisible; with the channel chosen from the footage (red) it is found in
+    nearly every fully visible frame, within bounds."""
+    from fitdrag.video.detect import choose_channel
+
+    fo = render(ball_bgr=(20.0, 40.0, 200.0), seed=21)
+    write_frames(fo.frames, tmp_path, ext="png")
+    assert choose_channel(open_source(tmp_path), 0, None) == (0.0, 0.0, 1.0)
+    det = detect_specimen(open_source(tmp_path))
+    visible = set(np.flatnonzero(fo.truth.visible).tolist())
+    assert len(visible - set(det.frame.tolist())) <= 2
+    assert errors(det, fo.truth).max() < 0.6
+    assert float(np.sqrt(np.mean(errors(det, fo.truth) ** 2))) < 0.2
+    try:
+        grey = detect_specimen(open_source(tmp_path), channel="grey")
+        assert len(set(grey.frame.tolist()) & visible) < len(visible) // 2
+    except ValueError as exc:  # or nothing at all is found
+        assert "no specimen found in any frame" in str(exc)
+
+
+def test_grey_footage_stored_in_colour_keeps_grey(footage, tmp_path):
+    """regression: grey frames written as a colour video are read as grey (no channel is
+    chosen), and the bad channel setting names the input."""
+    from fitdrag.video.detect import choose_channel
+
+    path = write_video(footage.frames, tmp_path / "grey.avi", 30.0)
+    src = open_source(path)
+    assert src.is_color and choose_channel(src, 0, None) is None
+    with pytest.raises(ValueError, match=r"^channel: 'red' is not one of auto, grey; choose "
+                                         r"one of them\.$"):  # fmt: skip
+        detect_specimen(footage.frames[:10], channel="red")
+
+
+def test_frames_after_the_specimen_left_are_decoded_smaller(tmp_path, monkeypatch):
+    """regression: on large Motion-JPEG footage, once the ball has left the field the later
+    frames are decoded four times smaller (and need no whole read); the detections and the
+    reasons are those of the same frames read whole (OpenCV's own decoding, in memory)."""
+    import cv2
+
+    from fitdrag.video.movers import LEFT, Follower
+
+    def fast(t):
+        t = np.asarray(t, dtype=float)
+        return 40.0 + 30000.0 * t, 200.0 + 2000.0 * t
+
+    fo = render_flight(fast, 80, 1000.0, shape=(512, 800), radius_px=8.0, exposure=0.5e-3,
+                       noise_sigma=3.0, flicker=0.0, clutter=12, seed=3)  # fmt: skip
+    path = write_video(fo.frames, tmp_path / "fast.avi", 1000.0)
+    calls = []
+    original = Follower.step_reduced
+
+    def spy(self, n, small, scale):
+        calls.append((n, small.shape, scale))
+        return original(self, n, small, scale)
+
+    monkeypatch.setattr(Follower, "step_reduced", spy)
+    det = detect_specimen(open_source(path))
+    assert len(calls) >= 30 and all(s == (128, 200) and k == 4 for _, s, k in calls)
+    cap = cv2.VideoCapture(str(path))
+    whole = []
+    while True:
+        ok, img = cap.read()
+        if not ok:
+            break
+        whole.append(cv2.cvtColor(img, cv2.COLOR_BGR2GRAY))
+    ref = detect_specimen(np.stack(whole))
+    np.testing.assert_array_equal(det.frame, ref.frame)
+    # the JPEG's own grey (its Y plane) and OpenCV's BGR-to-grey differ by a grey level here
+    # and there: a few hundredths of a pixel
+    np.testing.assert_allclose(det.x_px, ref.x_px, atol=0.1)
+    assert dict(det.missing)[79] == dict(ref.missing)[79] == LEFT
+
+
+def test_blur_growing_with_speed_is_not_withdrawn():
+    """closed-form/independent: a ball thrown down and speeding up (vacuum parabola) with a
+    long exposure, so its blur grows from frame to frame (phone-like footage): every fully
+    visible frame is kept (the length check follows the trend of the neighbours' lengths),
+    within bounds."""
+
+    def fall(t):
+        t = np.asarray(t, dtype=float)
+        return 40.0 + 1500.0 * t, 20.0 + 1500.0 * t + 0.5 * 60000.0 * t * t
+
+    fo = render_flight(fall, 30, 250.0, shape=SHAPE, radius_px=7.0, exposure=2.0e-3,
+                       noise_sigma=3.0, flicker=0.0, clutter=12, seed=6)  # fmt: skip
+    assert np.ptp(fo.truth.blur_px[fo.truth.visible]) > 4.0  # the blur does grow
+    det = detect_specimen(fo.frames)
+    assert set(det.frame.tolist()) == set(np.flatnonzero(fo.truth.visible).tolist())
+    assert errors(det, fo.truth).max() < 0.35
+
+
+def test_model_fit_fallback_keeps_centroid_with_larger_sigma(monkeypatch):
+    """regression: when the model fit fails on every frame, the detector keeps the weighted
+    centroid with three times its propagated sigma and half the quality, and leaves the
+    outline columns blank (NaN, rows -1); with the fit, every frame is measured by it and
+    the outline diameter is within 0.1 px of the generator's 2 * radius_px (oracle:
+    fitdrag.video.synthetic truth)."""
+    import fitdrag.video.blobs as blobs_mod
+    from fitdrag.video.ball_fit import BallFit
+    from fitdrag.video.detect import detect_specimen
+    from fitdrag.video.synthetic import render_flight
+
+    def traj(t):
+        return 20 + 3000 * t, 60 + 1500 * t - 0.5 * 5000 * np.asarray(t) ** 2
+
+    sf = render_flight(
+        traj, 40, 1000.0, shape=(160, 320), radius_px=8.0, exposure=0.6e-3, noise_sigma=3,
+        flicker=0.0, clutter=12, seed=3,
+    )  # fmt: skip
+    good = detect_specimen(sf.frames)
+    assert good.model_fit.all()
+    assert abs(np.mean(good.outline_diameter_px) - 16.0) < 0.1
+    nan = float("nan")
+
+    def failing(blob, angle=None):
+        return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1, nan,
+                       nan, 0, 0, False, "forced failure")  # fmt: skip
+
+    monkeypatch.setattr(blobs_mod, "fit_chosen_blob", failing)
+    bad = detect_specimen(sf.frames)
+    assert not bad.model_fit.any()
+    assert np.all(np.isnan(bad.outline_diameter_px)) and np.all(bad.row_first == -1)
+    # The same blobs, measured by their weighted centroid, sigma x3 and quality /2.
+    common = np.intersect1d(good.frame, bad.frame)
+    assert common.size >= 20
+    assert np.all(bad.sigma_px > 0)
+    ig = np.searchsorted(good.frame, common)
+    ib = np.searchsorted(bad.frame, common)
+    np.testing.assert_allclose(bad.quality[ib], 0.5 * good.quality[ig], rtol=1e-12)

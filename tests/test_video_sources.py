@@ -12,6 +12,7 @@ import cv2
 import numpy as np
 import pytest
 
+from fitdrag.video.footage_files import write_frames, write_video
 from fitdrag.video.sources import (
     ArraySource,
     FolderSource,
@@ -19,7 +20,7 @@ from fitdrag.video.sources import (
     check_frame_rate,
     open_source,
 )
-from fitdrag.video.synthetic import render_flight, write_frames, write_video
+from fitdrag.video.synthetic import render_flight
 
 N = 12
 
@@ -230,3 +231,27 @@ def test_error_messages(tmp_path, flight, video):
     )
     with pytest.raises(ValueError, match=f"^{re.escape(msg)}$"):
         src.read(99)
+
+
+def test_undecodable_frames_are_skipped_and_recorded(flight, video, tmp_path):
+    """regression: a Motion-JPEG frame whose JPEG start marker is overwritten, and an image
+    file in a folder that is not an image, are skipped by frames() and recorded in
+    ``undecodable``; the other frames equal OpenCV's own decoding."""
+    data = bytearray(video.read_bytes())
+    starts = [i for i in range(len(data) - 1) if data[i] == 0xFF and data[i + 1] == 0xD8]
+    assert len(starts) == N
+    data[starts[5] : starts[5] + 2] = b"\x00\x00"
+    bad = tmp_path / "bad.avi"
+    bad.write_bytes(bytes(data))
+    src = open_source(bad)
+    got = dict(src.frames_raw())
+    assert sorted(got) == [k for k in range(N) if k != 5] and src.undecodable == {5}
+    ref = decoded_by_opencv(video).astype(np.float32)
+    assert np.abs(got[6] - ref[6]).max() <= 2.0  # decoders may round chroma differently
+    folder = tmp_path / "frames"
+    write_frames(flight.frames, folder, ext="png")
+    files = sorted(folder.glob("*.png"))
+    files[3].write_bytes(b"not an image")
+    src = open_source(folder)
+    nums = [n for n, _ in src.frames_raw()]
+    assert len(nums) == N - 1 and src.undecodable == {int(src.frame_numbers[3])}

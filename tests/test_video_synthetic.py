@@ -18,9 +18,9 @@ from fitdrag.video.synthetic import (
     MarkerPlacement,
     marker_corners_in_image,
     render_flight,
-    write_frames,
-    write_video,
 )
+from fitdrag.video.synthetic_scene import Hand, fabric_texture
+from fitdrag.video.synthetic_truth import Visibility
 
 FPS = 500.0
 G_PX = 4000.0  # px/s^2, an arbitrary constant acceleration in image pixels (y down)
@@ -223,32 +223,7 @@ def test_marker_corners_axis_aligned():
     np.testing.assert_allclose(c, [[10, 20], [40, 20], [40, 50], [10, 50]])
 
 
-def test_write_video_and_frames_round_trip(tmp_path):
-    """closed-form/independent: files read back by OpenCV hold the frames (JPEG loses a few
-    grey levels; PNG/TIFF are exact, 16-bit kept)."""
-    fo = render_flight(parabola, 5, FPS, shape=(64, 96), seed=2)
-    p = write_video(fo.frames, tmp_path / "a.avi", 250.0)
-    cap = cv2.VideoCapture(str(p))
-    assert cap.get(cv2.CAP_PROP_FPS) == pytest.approx(250.0)
-    got = []
-    while True:
-        ok, img = cap.read()
-        if not ok:
-            break
-        got.append(cv2.cvtColor(img, cv2.COLOR_BGR2GRAY))
-    cap.release()
-    assert len(got) == 5
-    assert np.abs(np.stack(got).astype(int) - fo.frames).mean() < 2.0
-    files = write_frames(fo.frames, tmp_path / "png")
-    assert [f.name for f in files][:2] == ["frame_000000.png", "frame_000001.png"]
-    assert np.array_equal(cv2.imread(str(files[3]), cv2.IMREAD_UNCHANGED), fo.frames[3])
-    t16 = write_frames(fo.frames, tmp_path / "tif", ext="tif", bit_depth=16, first=7, digits=3)
-    img = cv2.imread(str(t16[0]), cv2.IMREAD_UNCHANGED)
-    assert t16[0].name == "frame_007.tif" and img.dtype == np.uint16
-    assert np.array_equal(img, fo.frames[0].astype(np.uint16) * 257)
-
-
-def test_bad_input_messages(tmp_path):
+def test_bad_input_messages():
     """regression: bad input raises ValueError naming the input, the value and the fix."""
     with pytest.raises(ValueError, match=r"^fps: expected a positive number \[1/s\], got 0\.0; "
                                          r"give the capture rate\.$"):  # fmt: skip
@@ -264,14 +239,198 @@ def test_bad_input_messages(tmp_path):
         render_flight(parabola, 1, FPS, markers=[MarkerPlacement(50, 1, 1, 20)])
     with pytest.raises(ValueError, match=r"^trajectory_in_world=True needs a homography"):
         render_flight(parabola, 1, FPS, trajectory_in_world=True)
-    with pytest.raises(ValueError, match=r"^bit_depth: JPEG files hold 8 bits only; use png or "
-                                         r"tif for 16-bit\.$"):  # fmt: skip
-        write_frames(np.zeros((1, 8, 8), np.uint8), tmp_path / "j", ext="jpg", bit_depth=16)
-    with pytest.raises(ValueError, match=r"^ext: 'bmp' is not supported; use png, tif, tiff, "):
-        write_frames(np.zeros((1, 8, 8), np.uint8), tmp_path / "j", ext="bmp")
-    (tmp_path / "x.avi").write_bytes(b"")
-    with pytest.raises(ValueError, match=r"x\.avi: file exists; pass overwrite=True to replace"):
-        write_video(np.zeros((1, 8, 8), np.uint8), tmp_path / "x.avi", 30.0)
-    with pytest.raises(ValueError, match=r"^frames: video frames must be uint8, got uint16; use "
-                                         r"write_frames for 16-bit footage\.$"):  # fmt: skip
-        write_video(np.zeros((1, 8, 8), np.uint16), tmp_path / "y.avi", 30.0)
+
+
+# -- scene elements (issue 12) ----------------------------------------------------------------
+
+
+def line(x0, y0, vx, vy):
+    """Straight line at constant velocity (closed form), image pixels."""
+    return lambda t: (x0 + vx * np.asarray(t, float), y0 + vy * np.asarray(t, float))
+
+
+def coverage(renderer, k, level=230.0):
+    """Coverage of an evenly lit ball of grey ``level`` over the scene (clean frame: no
+    rounding)."""
+    return (renderer.clean_frame(k).astype(float) - renderer.scene) / (level - renderer.scene)
+
+
+def test_second_ball_area_centre_and_overlap():
+    """closed-form/independent: the second ball alone in the frame is a disc of area pi R^2
+    centred on its truth; two balls on straight lines overlap exactly in the frames where
+    their centres are at most 2R apart (no exposure blur)."""
+    r = 6.0
+    far = still(-100.0, -100.0)
+    fo = FlightRenderer(far, 1, FPS, radius_px=r, exposure=0.0, second_ball=still(70.3, 55.6),
+                        **clean())  # fmt: skip
+    cov = coverage(fo, 0)[40:72, 55:87]
+    assert cov.sum() == pytest.approx(math.pi * r * r, rel=5e-3)
+    yy, xx = np.indices(cov.shape)
+    assert (cov * (xx + 55)).sum() / cov.sum() == pytest.approx(70.3, abs=0.02)
+    assert (cov * (yy + 40)).sum() / cov.sum() == pytest.approx(55.6, abs=0.02)
+    assert fo.truth.second.x_px[0] == 70.3 and fo.truth.visibility[0] == Visibility.OUTSIDE
+    # Crossing: specimen left to right, second ball top to bottom, meeting at (80, 60) at t = 10/FPS.
+    n = 21
+    a, b = line(80.0 - 3000.0 * 10 / FPS, 60.0, 3000.0, 0.0), line(80.0, 60.0 - 10.0, 0.0, 500.0)
+    fo = render_flight(a, n, FPS, radius_px=r, exposure=0.0, second_ball=b, **clean())
+    t = np.arange(n) / FPS
+    gap = np.hypot(a(t)[0] - b(t)[0], a(t)[1] - b(t)[1])
+    np.testing.assert_array_equal(fo.truth.second.overlap, gap <= 2 * r)
+    np.testing.assert_allclose(fo.truth.second.y_px, b(t)[1], atol=1e-12)
+    assert (fo.truth.second.visibility[fo.truth.second.overlap] == Visibility.PARTLY).all()
+
+
+def test_fabric_texture_pitch_angle_and_mean():
+    """closed-form/independent: the weave's brightness across a thread is periodic with the
+    thread pitch p, so its strongest spatial frequency is 1/p [1/px] along the direction at
+    angle_deg to the image axes (numpy FFT); the pattern has zero mean."""
+    p, ang = 4.0, 10.0
+    tex = fabric_texture((256, 256), 30.0, thread_px=p, angle_deg=ang, seed=1)
+    assert abs(float(tex.mean())) < 1e-3
+    assert 15.0 < float(np.ptp(tex)) < 80.0  # about the requested peak-to-peak, with variation
+    spec = np.abs(np.fft.fft2(tex))
+    spec[0, 0] = 0.0
+    k = np.fft.fftfreq(256)
+    iy, ix = np.unravel_index(np.argmax(spec), spec.shape)
+    f = math.hypot(k[ix], k[iy])
+    assert f == pytest.approx(1 / p, abs=1.5 / 256)
+    direction = math.degrees(math.atan2(abs(k[iy]), abs(k[ix]))) % 90.0
+    assert min(abs(direction - ang), abs(direction - (90 - ang))) < 2.0
+
+
+def _phase_plane_shift(ref, img, kmax=0.08):
+    """Shift of ``img`` against ``ref`` by phase correlation, sub-pixel by a least-squares fit
+    of the plane -2 pi (kx dx + ky dy) to the phase of the normalised cross-power spectrum at
+    low frequencies (Hoge, IEEE Trans. Med. Imaging 22 (2003) 277), Hann-windowed."""
+    h, w = ref.shape
+    win = np.outer(np.hanning(h), np.hanning(w))
+    f0 = np.fft.fft2((ref - ref.mean()) * win)
+    f1 = np.fft.fft2((img - img.mean()) * win)
+    cross = f1 * np.conj(f0)
+    ky, kx = np.meshgrid(np.fft.fftfreq(h), np.fft.fftfreq(w), indexing="ij")
+    sel = (np.hypot(kx, ky) < kmax) & (np.hypot(kx, ky) > 0)
+    sw = np.sqrt(np.abs(cross[sel]))
+    design = np.column_stack([kx[sel], ky[sel]]) * (-2 * np.pi) * sw[:, None]
+    return np.linalg.lstsq(design, np.angle(cross[sel]) * sw, rcond=None)[0]
+
+
+def test_tremble_shifts_the_whole_scene():
+    """closed-form/independent: each trembling frame is the still frame moved by the truth's
+    shift (phase correlation with a phase-plane fit, see _phase_plane_shift, within 0.015 px);
+    shifts stay within +-0.3 px; the ball's truth is the path plus the shift."""
+    far = still(-100.0, -100.0)
+    opts = clean(shape=(160, 200), clutter=6, texture="fabric", seed=5)
+    still_r = FlightRenderer(far, 8, FPS, **opts)
+    shaky = FlightRenderer(far, 8, FPS, tremble_px=0.3, **opts)
+    ref = still_r.clean_frame(0).astype(float)
+    for k in range(8):
+        sx, sy = shaky.truth.shift_x_px[k], shaky.truth.shift_y_px[k]
+        assert abs(sx) <= 0.3 and abs(sy) <= 0.3
+        dx, dy = _phase_plane_shift(ref, shaky.clean_frame(k).astype(float))
+        assert dx == pytest.approx(sx, abs=0.015) and dy == pytest.approx(sy, abs=0.015)
+    fo = render_flight(parabola, 5, FPS, tremble_px=0.3, exposure=0.0, **clean())
+    x, y = parabola(np.arange(5) / FPS)
+    np.testing.assert_allclose(fo.truth.x_px - fo.truth.shift_x_px, x, atol=1e-9)
+    np.testing.assert_allclose(fo.truth.y_px - fo.truth.shift_y_px, y, atol=1e-9)
+    assert np.ptp(fo.truth.shift_x_px) > 0  # it does tremble
+
+
+def test_coloured_ball_on_grey_scene():
+    """closed-form/independent: with ambient light only, the ball's inner pixels are exactly its
+    colour and its coverage (from any channel) integrates to pi R^2; the scene stays grey."""
+    r, bgr = 7.0, (40.0, 200.0, 90.0)
+    fo = render_flight(still(60.0, 50.0), 1, FPS, radius_px=r, exposure=0.0, ball_bgr=bgr,
+                       **clean())  # fmt: skip
+    img = fo.frames[0].astype(float)
+    assert img.shape == (120, 160, 3)
+    np.testing.assert_allclose(img[50, 60], bgr, atol=0.51)
+    far = img[5:20, 5:20]
+    assert (
+        np.abs(far[..., 0] - far[..., 2]).max() <= 1
+        and np.abs(far[..., 1] - far[..., 2]).max() <= 1
+    )
+    win = np.s_[38:63, 48:73]
+    cov = (img[win][..., 1] - fo.scene[win]) / (bgr[1] - fo.scene[win])
+    assert cov.sum() == pytest.approx(math.pi * r * r, rel=5e-3)
+
+
+def test_hand_holds_then_releases_and_moves_away():
+    """closed-form/independent: the hand's blob (symmetric shading) is centred on the ball plus
+    its offset while holding and on release point + away velocity x (t - t_release) after;
+    `held` is true exactly before the release frame."""
+    hand = Hand(release_frame=4, offset_px=(0.0, 20.0), away_px_per_s=(-4000.0, 0.0),
+                half_axes_px=(12.0, 8.0))  # fmt: skip
+    path = line(80.0, 40.0, 1000.0, 0.0)  # 2 px per frame
+    r = FlightRenderer(path, 12, FPS, radius_px=5.0, exposure=0.0, hand=hand, **clean())
+    assert r.truth.held.tolist() == [True] * 4 + [False] * 8
+    t_rel = 4 / FPS
+    for k in (1, 10):
+        tk = k / FPS
+        if k < 4:
+            cx, cy = path(tk)[0] + 0.0, 40.0 + 20.0
+        else:
+            cx, cy = path(t_rel)[0] - 4000.0 * (tk - t_rel), 60.0
+        d = np.abs(r.frame(k).astype(float) - r.scene)[48:73, :]
+        d[d < 1.0] = 0.0
+        yy, xx = np.indices(d.shape)
+        assert (d * xx).sum() / d.sum() == pytest.approx(cx, abs=0.1)
+        assert (d * (yy + 48)).sum() / d.sum() == pytest.approx(cy, abs=0.1)
+
+
+def test_long_clip_ball_leaves_the_field():
+    """closed-form/independent: a ball at constant speed is fully visible, then partly (cut by
+    the right edge at x = w - 0.5), then outside from the frame where its centre passes
+    w - 0.5 + R; frames after that show the still scene only (nothing to draw)."""
+    n, r, w = 700, 5.0, 160
+    fo_r = FlightRenderer(line(20.0, 60.0, 20000.0, 0.0), n, FPS, radius_px=r, exposure=0.0,
+                          **clean())  # fmt: skip
+    x = 20.0 + 20000.0 * np.arange(n) / FPS
+    vis = fo_r.truth.visibility
+    np.testing.assert_array_equal(vis == Visibility.OUTSIDE, x - r >= w - 0.5)
+    np.testing.assert_array_equal(vis == Visibility.FULLY, x + r <= w - 1.5)
+    last_out = n - 1
+    assert np.array_equal(fo_r.clean_frame(last_out), fo_r.scene)
+    assert fo_r.truth.row_first[last_out] == -1
+
+
+def test_diameter_and_rows_of_a_blurred_ball():
+    """closed-form/independent: for a disc moving along x, each row's coverage summed along x is
+    the chord 2 sqrt(R^2 - (y - yc)^2) whatever the blur; its second moment is pi R^4 / 4, so
+    (4 M2 / pi)^(1/4) is R, and the rows with coverage are those the truth lists."""
+    r = 6.3
+    fo = FlightRenderer(line(40.0, 52.2, 8000.0, 0.0), 9, FPS, radius_px=r, exposure=1.0 / FPS,
+                        **clean())  # fmt: skip
+    k = 4
+    cov = coverage(fo, k)[:, 80:130]
+    rows = cov.sum(axis=1)
+    rows[rows < 0.02] = 0.0
+    yc = fo.truth.y_mean_px[k]
+    y = np.arange(len(rows))
+    m2 = float(((y - yc) ** 2 * rows).sum())
+    assert 2 * (4 * m2 / math.pi) ** 0.25 == pytest.approx(fo.truth.diameter_px[k], abs=0.05)
+    assert fo.truth.diameter_px[k] == 2 * r
+    assert fo.truth.top_px[k] == pytest.approx(52.2 - r) and fo.truth.bottom_px[k] == 52.2 + r
+    hit = np.flatnonzero(rows > 0)
+    assert (hit[0], hit[-1]) == (fo.truth.row_first[k], fo.truth.row_last[k]) == (46, 58)
+
+
+def test_visibility_codes_with_an_occluder():
+    """closed-form/independent: a disc behind an opaque rectangle is HIDDEN, half behind it
+    PARTLY, clear of it FULLY (symmetry of the disc)."""
+    occ = [(60.0, 0.0, 100.0, 120.0)]
+    xs = np.array([80.0, 60.0, 30.0])
+    fo = render_flight((xs, np.full(3, 60.0)), 3, FPS, radius_px=6.0, exposure=0.0,
+                       occluders=occ, **clean())  # fmt: skip
+    assert fo.truth.visibility.tolist() == [Visibility.HIDDEN, Visibility.PARTLY, Visibility.FULLY]
+
+
+def test_new_options_bad_input():
+    """regression: bad new options raise ValueError naming the input, the value and the fix."""
+    with pytest.raises(ValueError, match=r"^texture: 'felt' is not known; use None or 'fabric'"):
+        render_flight(parabola, 1, FPS, texture="felt")
+    with pytest.raises(ValueError, match=r"^tremble_px: expected a shift amplitude from 0 to 5"):
+        render_flight(parabola, 1, FPS, tremble_px=-1.0)
+    with pytest.raises(ValueError, match=r"^ball_bgr: expected three levels"):
+        render_flight(parabola, 1, FPS, ball_bgr=(1.0, 2.0))
+    with pytest.raises(ValueError, match=r"^thread_px: expected a thread pitch of at least 2 px"):
+        fabric_texture((20, 20), 10.0, thread_px=1.0)

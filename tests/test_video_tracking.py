@@ -20,7 +20,8 @@ import pytest
 
 from fitdrag.tracks.csv_file import read_track
 from fitdrag.tracks.track import MIN_POINTS
-from fitdrag.video.synthetic import MarkerPlacement, render_flight, write_frames, write_video
+from fitdrag.video.footage_files import write_frames, write_video
+from fitdrag.video.synthetic import MarkerPlacement, render_flight
 from fitdrag.video.tracking import (
     FootageTrack,
     footage_sha256,
@@ -299,5 +300,104 @@ def test_bad_footage_and_files(clip, rolled, tmp_path):
     # 7 frames in the range, the specimen in all of them: one short of MIN_POINTS
     with pytest.raises(ValueError, match=rf"frames: the specimen was found in 7 frame\(s\), "
                        rf"at least {MIN_POINTS} are needed for a track; check the frame range "
-                       r"\(--start/--stop\)"):  # fmt: skip
+                       r"\(--start/--stop\)") as info:  # fmt: skip
         track_footage(clip["folder"], fps=FPS, scale=0.001, start=10, stop=17)
+    # the reasons by frame range, then what to change (issue 12)
+    assert "Frames without it: " in str(info.value) and "To change: " in str(info.value)
+    with pytest.raises(ValueError, match=re.escape(
+            "--region: expected X0,Y0,X1,Y1 (four numbers separated by commas: the upper-left "
+            "and lower-right corners of the region in image pixels), got '1,2,3'; e.g. "
+            "--region 200,0,1280,800.")):  # fmt: skip
+        track_footage(clip["folder"], fps=FPS, scale=0.001, region="1,2,3")
+
+
+def test_other_moving_object_in_summary_and_csv_header(tmp_path):
+    """closed-form/independent: a second ball crossing the specimen's flight in a straight
+    line (composited with numpy from two renderers on one scene): the summary and the CSV
+    header say another moving object was seen, where and when, and the CSV's rows are all
+    on the specimen."""
+    from fitdrag.video.detect import reasons_by_range
+    from fitdrag.video.synthetic import FlightRenderer
+
+    def flight(t):
+        t = np.asarray(t, dtype=float)
+        return -12.0 + 2900.0 * t, 70.0 - 400.0 * t + 9000.0 * t * t
+
+    def line(t):
+        t = np.asarray(t, dtype=float)
+        return 330.0 - 2600.0 * t, 30.1 + 800.0 * t
+
+    opts = dict(shape=(240, 320), radius_px=7.0, exposure=1e-3, noise_sigma=0.0, seed=21)
+    ra, rb = FlightRenderer(flight, 60, FPS, **opts), FlightRenderer(line, 60, FPS, **opts)
+    frames = []
+    rng = np.random.default_rng(4)
+    for k in range(60):
+        img = (ra.clean_frame(k) + rb.clean_frame(k) - rb.scene) * ra.truth.gain[k]
+        img = img + rng.normal(0.0, 3.0, img.shape)
+        frames.append(np.clip(np.rint(img), 0, 255).astype(np.uint8))
+    write_frames(np.stack(frames), tmp_path / "f", ext="png")
+    ft = track_footage(tmp_path / "f", fps=FPS, scale=0.001)
+    other = ft.detections.other_movers[0]
+    assert f"  {other.describe()} (not tracked)" in ft.summary().splitlines()
+    text = footage_track_csv_text(ft)
+    assert f"# other_moving_objects: {other.describe()}" in text.splitlines()
+    d = np.hypot(ft.detections.x_px - ra.truth.x_px[ft.detections.frame],
+                 ft.detections.y_px - ra.truth.y_px[ft.detections.frame])  # fmt: skip
+    assert d.max() < 0.5
+    assert reasons_by_range({3: "a", 4: "a", 9: "b"}) == "frames 3-4 (2): a; frame 9: b"
+
+
+def test_track_csv_outline_columns_round_trip(tmp_path):
+    """regression: the outline columns written by track_csv_text (diameter, its
+    uncertainty, rows spanned; blank where the model fit failed) are read back by read_track
+    into meta['per_point'], aligned with the points, blanks as NaN without dropping rows."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.video.tracking import track_csv_text
+
+    n = 10
+    frame = np.arange(n)
+    t = frame / 1000.0
+    x = 0.01 * frame
+    y = 1.0 - 0.002 * frame
+    diam = 16.0 + 0.01 * frame
+    diam[3] = np.nan
+    ud = np.full(n, 0.03)
+    ud[3] = np.nan
+    r0 = 50 + frame
+    r1 = 66 + frame
+    r0[3] = r1[3] = -1
+    text = track_csv_text(
+        {"fps": 1000.0}, frame, t, x, y, 10.0 * frame, 20.0 * frame, np.full(n, 0.9),
+        np.full(n, 0.02), diam, ud, r0, r1,
+    )  # fmt: skip
+    header = [ln for ln in text.splitlines() if not ln.startswith("#")][0]
+    assert header.endswith("sigma_px,outline_diameter_px,u_outline_diameter_px,row_first,row_last")
+    p = tmp_path / "track.csv"
+    p.write_text(text)
+    tr = read_track(p)
+    assert len(tr.t) == n
+    pp = tr.meta["per_point"]
+    np.testing.assert_allclose(pp["outline_diameter_px"], diam, atol=5e-5)
+    np.testing.assert_allclose(pp["u_outline_diameter_px"], ud, atol=5e-5)
+    assert np.isnan(pp["row_first"][3]) and np.isnan(pp["row_last"][3])
+    np.testing.assert_array_equal(np.delete(pp["row_first"], 3), np.delete(r0, 3))
+
+
+def test_track_csv_without_outline_columns_loads(tmp_path):
+    """regression: a track CSV in the earlier layout (no outline columns) still loads, with
+    no per_point entry; track_csv_text without outline arrays writes that layout."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.video.tracking import track_csv_text
+
+    n = 10
+    frame = np.arange(n)
+    text = track_csv_text(
+        {}, frame, frame / 1000.0, 0.01 * frame, 1.0 - 0.002 * frame, frame, frame,
+        np.full(n, 0.9), np.full(n, 0.02),
+    )  # fmt: skip
+    assert "outline_diameter_px" not in text
+    p = tmp_path / "old.csv"
+    p.write_text(text)
+    tr = read_track(p)
+    assert "per_point" not in tr.meta
+    np.testing.assert_allclose(tr.x, 0.01 * frame)

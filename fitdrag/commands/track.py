@@ -34,7 +34,8 @@ Calibration (choose one):
 
 The CSV has frame, t [s], x, y [m, y up], x_px, y_px [image px, y down], quality and sigma_px
 columns and '# key: value' header lines with the calibration (scale, its relative standard
-uncertainty, reprojection RMS); it loads straight into `fitdrag fit`.
+uncertainty, reprojection RMS) and, when one was seen, the other moving objects (where, when,
+and the frames where they overlap the specimen); it loads straight into `fitdrag fit`.
 
 Exit codes: 0 track written, 1 a bug (with a traceback), 2 bad arguments, footage or
 calibration (e.g. no markers found, too few frames with the specimen).
@@ -61,6 +62,9 @@ def register(sub) -> argparse.ArgumentParser:
     p.add_argument("--start", type=int, default=0, metavar="N", help="first frame (default 0)")
     p.add_argument("--stop", type=int, default=None, metavar="N",
                    help="frame to stop before (default: the end)")  # fmt: skip
+    p.add_argument("--region", metavar="X0,Y0,X1,Y1",
+                   help="region of interest [image px, y down]: only blobs centred inside it "
+                   "start a track (leave out a hand or another moving object)")  # fmt: skip
     p.add_argument("--force", action="store_true", help="overwrite existing output files")
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
     c = p.add_argument_group("calibration (one of --scale, --reference, --markers)")
@@ -151,6 +155,7 @@ def run(args) -> int:
         marker_frame=args.marker_frame,
         lens=args.lens or None,
         scale_uncertainty=args.scale_uncertainty,
+        region=args.region or None,
         progress=not args.no_progress,
     )
     text = footage_track_csv_text(ft)

@@ -74,7 +74,8 @@ from fitdrag.geometry.sphere_image import (
 )
 from fitdrag.geometry.view_truth import ViewFootage, ViewTruth
 from fitdrag.physics.flight3d import Flight3D
-from fitdrag.video.synthetic import finish_frame, flicker_gain, make_scene, render_marker_board
+from fitdrag.video.synthetic import render_marker_board
+from fitdrag.video.synthetic_scene import finish_frame, flicker_gain, make_scene
 
 __all__ = [
     "ViewRenderer",

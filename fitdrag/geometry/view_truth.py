@@ -20,7 +20,7 @@ import numpy as np
 from fitdrag._files import write_text_atomic
 from fitdrag.errors import InputError
 from fitdrag.geometry.camera import Camera
-from fitdrag.video.synthetic import write_video
+from fitdrag.video.footage_files import write_video
 
 __all__ = ["ViewFootage", "ViewTruth", "write_view"]
 

@@ -284,7 +284,8 @@ def make_demo_footage(
     """
     from fitdrag.physics.simulate import Launch, simulate
     from fitdrag.physics.specimen import Sphere
-    from fitdrag.video.synthetic import FlightRenderer, MarkerPlacement, write_video
+    from fitdrag.video.footage_files import write_video
+    from fitdrag.video.synthetic import FlightRenderer, MarkerPlacement
 
     path = Path(path)
     if path.exists() and not overwrite:

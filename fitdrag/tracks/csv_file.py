@@ -280,8 +280,11 @@ def read_track(
     Track
         With ``meta`` holding ``source`` (path), ``sha256`` (of the file's bytes), ``import``
         (the options used), ``dropped_rows`` (1-based line numbers), ``header`` (key/value
-        comment lines) and, if the header states them, ``scale_relative_uncertainty`` [1]
-        and ``roll_uncertainty_deg`` [deg] (floats).
+        comment lines), if the header states them, ``scale_relative_uncertainty`` [1]
+        and ``roll_uncertainty_deg`` [deg] (floats), and, when the file has any of the
+        columns in :data:`PER_POINT_COLUMNS` (footage tracks), ``per_point``: a mapping from
+        each such column's name to a read-only float array with one value per point of the
+        track (NaN where the cell is blank or NaN; such cells do not drop the row).
 
     Raises
     ------
@@ -606,7 +609,41 @@ def read_track(
                     f"{text_!r}; correct that comment line or delete it."
                 )
             meta[key] = v
+    per_point = _per_point_columns(src, header, header_line, lines, kept_lines, delim)
+    if per_point:
+        meta["per_point"] = per_point
     return Track(t=t, x=x, y=y, sigma=sigma, frame=frame, meta=meta)
+
+
+#: Optional per-point columns of the footage track CSV (``fitdrag track``) that
+#: :func:`read_track` keeps in ``meta["per_point"]``: the model fit's apparent diameter of
+#: the specimen perpendicular to its motion and its standard uncertainty [px], and the first
+#: and last image rows its outline spans.
+PER_POINT_COLUMNS = ("outline_diameter_px", "u_outline_diameter_px", "row_first", "row_last")
+
+
+def _per_point_columns(src, header, header_line, lines, kept_lines, delim) -> dict:
+    """The optional per-point columns present in the file, as read-only float arrays
+    aligned with the track's points (NaN for a blank or NaN cell)."""
+    out: dict[str, np.ndarray] = {}
+    for name in PER_POINT_COLUMNS:
+        j = _find_column(src, header, name, name, header_line=header_line)
+        if j is None:
+            continue
+        vals = np.empty(len(kept_lines))
+        for k, lineno in enumerate(kept_lines):
+            cells = _split(lines[lineno - 1], delim)
+            text_ = cells[j] if j < len(cells) else ""
+            v = _parse_cell(text_) if text_.strip() else float("nan")
+            if v is None or math.isinf(v):
+                raise InputError(
+                    f"{src}, line {lineno}, column {header[j]!r}: {text_!r} is not a number; "
+                    f"correct the cell, or leave it blank."
+                )
+            vals[k] = v
+        vals.setflags(write=False)
+        out[name] = vals
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -614,7 +651,7 @@ def read_track(
 # --------------------------------------------------------------------------------------------
 
 #: Metadata entries that describe one particular import and are not written as header lines.
-_NOT_WRITTEN = frozenset({"header", "import", "dropped_rows", "source", "sha256"})
+_NOT_WRITTEN = frozenset({"header", "import", "dropped_rows", "source", "sha256", "per_point"})
 
 
 def _header_key_ok(key: Any) -> bool:

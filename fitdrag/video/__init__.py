@@ -9,12 +9,15 @@ from fitdrag._lazy import lazy_face
 
 _WHERE = {
     "ArraySource": "fitdrag.video.sources",
+    "BallFit": "fitdrag.video.ball_fit",
+    "BallGuess": "fitdrag.video.ball_fit",
     "Calibration": "fitdrag.video.calibration",
     "Detections": "fitdrag.video.detect",
     "FolderSource": "fitdrag.video.sources",
     "FootageTrack": "fitdrag.video.tracking",
     "FrameSource": "fitdrag.video.sources",
     "LensModel": "fitdrag.video.lens",
+    "OtherMover": "fitdrag.video.movers",
     "VideoSource": "fitdrag.video.sources",
     "calibrate_lens": "fitdrag.video.lens",
     "calibration_from_markers": "fitdrag.video.calibration",
@@ -24,6 +27,7 @@ _WHERE = {
     "detect_markers": "fitdrag.video.markers",
     "detect_specimen": "fitdrag.video.detect",
     "estimate_background": "fitdrag.video.background",
+    "fit_ball": "fitdrag.video.ball_fit",
     "footage_sha256": "fitdrag.video.tracking",
     "load_lens": "fitdrag.video.lens",
     "load_marker_layout": "fitdrag.video.calibration",

@@ -93,10 +93,11 @@ def estimate_background(
     # Scale every sample to the common brightness, in 1/256 grey-level fixed point for 8-bit
     # footage (exact enough, and the median network below runs fast on 16-bit integers).
     if source.bit_depth == 8:
+        import cv2
+
+        # cv2.multiply rounds to nearest (half to even, as np.rint) and saturates.
         scaled = [
-            np.rint(img.astype(np.float32) * np.float32(256.0 / gi))
-            .clip(0, 65535)
-            .astype(np.uint16)
+            cv2.multiply(np.ascontiguousarray(img), float(256.0 / gi), dtype=cv2.CV_16U)
             for img, gi in zip(samples, gains, strict=True)
         ]
         bg = _median_of(scaled).astype(np.float32) / np.float32(256.0)
@@ -130,22 +131,56 @@ def _sorting_pairs(n: int) -> list[tuple[int, int]]:
     return pairs
 
 
-def _median_of(images: list[np.ndarray]) -> np.ndarray:
-    """Per-pixel median of equally shaped images with a sorting network of whole-image
-    minimum/maximum operations (much faster than a partition along a stacked axis)."""
-    k = len(images)
+def _median_plan(k: int) -> tuple[list[tuple[str, int, int]], list[int]]:
+    """The comparators of Batcher's network for ``k`` inputs (padded to a power of two with
+    +infinity) that the median needs: those whose outputs never reach the middle position(s)
+    are dropped, a comparator with a padding value is a no-op or a swap of references (the
+    padding always sorts last); returns the steps and the middle positions."""
     n = 1
     while n < k:
         n *= 2
-    top = np.iinfo(images[0].dtype).max if images[0].dtype.kind in "ui" else np.inf
-    vals = list(images) + [np.full_like(images[0], top)] * (n - k)
-    for i, j in _sorting_pairs(n):
+    mids = [k // 2] if k % 2 == 1 else [k // 2 - 1, k // 2]
+    pairs = _sorting_pairs(n)
+    needed = set(mids)
+    keep = []
+    for i, j in reversed(pairs):
+        if i in needed or j in needed:
+            needed.update((i, j))
+            keep.append((i, j))
+    keep.reverse()
+    top = [p >= k for p in range(n)]
+    steps = []
+    for i, j in keep:
+        if top[j]:
+            continue  # min(x, +inf) = x: nothing moves
+        if top[i]:
+            steps.append(("swap", i, j))
+            top[i], top[j] = top[j], top[i]
+            continue
+        steps.append(("cmp", i, j))
+    return steps, mids
+
+
+def _median_of(images: list[np.ndarray]) -> np.ndarray:
+    """Per-pixel median of equally shaped images with a sorting network of whole-image
+    minimum/maximum operations (much faster than a partition along a stacked axis), pruned
+    to the comparators the median needs."""
+    k = len(images)
+    steps, mids = _median_plan(k)
+    n = 1
+    while n < k:
+        n *= 2
+    vals: list = list(images) + [None] * (n - k)
+    for op, i, j in steps:
+        if op == "swap":
+            vals[i], vals[j] = vals[j], vals[i]
+            continue
         lo = np.minimum(vals[i], vals[j])
         vals[j] = np.maximum(vals[i], vals[j])
         vals[i] = lo
-    if k % 2 == 1:
-        return vals[k // 2]
-    a, b = vals[k // 2 - 1], vals[k // 2]
+    if len(mids) == 1:
+        return vals[mids[0]]
+    a, b = vals[mids[0]], vals[mids[1]]
     if a.dtype.kind in "ui":
         return ((a.astype(np.uint32) + b) // 2).astype(a.dtype)
     return 0.5 * (a + b)

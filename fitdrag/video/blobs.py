@@ -18,12 +18,22 @@ import numpy as np
 from fitdrag.video.background import GRID_PIXELS
 from fitdrag.video.sources import FrameSource
 
-__all__ = ["MAX_BLIND", "Blob", "BlobFinder"]
+__all__ = [
+    "KEEP_CANDIDATES",
+    "MAX_BLIND",
+    "Blob",
+    "BlobFinder",
+    "BlobPatch",
+    "Candidates",
+    "fit_chosen_blob",
+]
 
 # Noise floor subtracted before weighting, in noise standard deviations.
 _FLOOR_SIGMA = 2.0
 #: Largest share of unseen outline pixels (per pixel of area) a detection may have.
 MAX_BLIND = 0.1
+#: Candidates measured at full resolution per whole-frame search (the best by contrast).
+KEEP_CANDIDATES = 6
 # Smallest noise level assumed, in 8-bit grey levels (quantisation of noiseless footage).
 _MIN_SIGMA_8BIT = 0.5
 
@@ -46,6 +56,98 @@ class Blob:
     reason: str | None = None  # why it is not usable
     blind: float = 0.0  # unseen outline pixels per pixel of area
     spread: tuple[float, float] = (0.0, 0.0)  # principal standard deviations of the weights
+    patch: BlobPatch | None = None  # pixels around the blob, for the model fit
+
+
+@dataclass(frozen=True, eq=False)
+class BlobPatch:
+    """Pixels around one blob, kept for the model fit of the chosen blob
+    (:func:`fit_chosen_blob`).
+
+    Attributes
+    ----------
+    diff : ndarray
+        Background-subtracted values ``frame - gain * background``. [grey levels]
+    background : ndarray
+        Background model (without the gain). [grey levels]
+    gain : float
+        Local brightness gain. [1]
+    valid : ndarray of bool
+        Pixels of the blob and its surroundings, other blobs left out.
+    origin : (int, int)
+        Image column and row of the patch's pixel (0, 0).
+    noise_sigma : float
+        Noise level of the frame. [grey levels]
+    blur_length, blur_angle : float
+        Blur length [px] and direction [rad] from the blob's second moments.
+    """
+
+    diff: np.ndarray
+    background: np.ndarray
+    gain: float
+    valid: np.ndarray
+    origin: tuple[int, int]
+    noise_sigma: float
+    blur_length: float
+    blur_angle: float
+
+
+def fit_chosen_blob(
+    blob: Blob, blur_angle: float | None = None, start: tuple[float, float] | None = None
+):
+    """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
+
+    The first guess is the blob's weighted centroid, the radius of a disc of the blob's
+    integrated coverage (``A = pi r^2``: blur moves the coverage, it does not add to it) and
+    the blur from its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
+    replaces the moments' direction when given; ``start`` (radius and blur length [px], e.g.
+    from the neighbouring frame's fit) replaces the radius and blur of the first guess, so
+    the fit needs fewer iterations.  Returns the
+    :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
+    blob has no patch or the fit fails).
+    """
+    from fitdrag.video.ball_fit import BallGuess, fit_ball
+
+    pt = blob.patch
+    length = pt.blur_length if pt is not None else 0.0
+    radius = math.sqrt(max(blob.area, 1.0) / math.pi)
+    angle = pt.blur_angle if (pt is not None and blur_angle is None) else (blur_angle or 0.0)
+    if start is not None and all(math.isfinite(v) and v >= 0 for v in start):
+        radius, length = start
+    guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
+    if pt is None:
+        from fitdrag.video.ball_fit import BallFit
+
+        nan = float("nan")
+        return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1,
+                       nan, nan, 0, 0, False, "no pixels kept for the model fit")  # fmt: skip
+    return fit_ball(
+        pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class Candidates:
+    """Candidate blobs of one whole-frame search, best first (full-resolution pixels).
+
+    ``x, y`` component centroids [px]; ``area`` thresholded area [px^2]; ``score`` integrated
+    contrast in noise levels; ``box`` bounding boxes ``(x0, y0, x1, y1)`` [px]; ``refused``
+    the strongest components refused on their statistics (unmeasured :class:`Blob` with the
+    reason); ``noise`` the noise level at the search resolution (native grey scale);
+    ``n_usable`` the components that passed the gates (before keeping the best).
+    """
+
+    x: np.ndarray
+    y: np.ndarray
+    area: np.ndarray
+    score: np.ndarray
+    box: np.ndarray
+    refused: tuple[Blob, ...]
+    noise: float
+    n_usable: int
+
+    def __len__(self) -> int:
+        return len(self.x)
 
 
 class BlobFinder:
@@ -89,17 +191,24 @@ class BlobFinder:
         if keep.sum() < 50:  # a very dark scene: use every grid pixel
             keep[:] = True
         self.grid = idx[keep]
+        self._grid_slices = (slice(step // 2, None, step), slice(step // 2, None, step))
+        self._grid_keep = keep
         self.grid_bg = np.maximum(bflat[keep], self.bg_floor).astype(np.float32)
         self.grid_inv = (1.0 / self.grid_bg).astype(np.float32)
         self._yy, self._xx = np.indices((64, 64), dtype=np.float32)
-        self.scale = 2 if self.h * self.w >= 400_000 else 1
+        # Whole-frame searches run at reduced resolution on large frames (4K: a quarter).
+        npx = self.h * self.w
+        self.scale = 4 if npx >= 3_000_000 else 2 if npx >= 400_000 else 1
+        self._bg_at = {1: background}
         if self.scale > 1:
-            import cv2
-
-            self.bg_small = cv2.resize(
-                background, (self.w // 2, self.h // 2), interpolation=cv2.INTER_AREA
-            )
+            self.bg_small = self.background_at(self.scale)
         self._kernels()
+
+    def background_at(self, scale: int) -> np.ndarray:
+        """The background reduced ``scale`` times (pixel-area averaging), kept once made."""
+        if scale not in self._bg_at:
+            self._bg_at[scale] = _halve(self.bg, scale)
+        return self._bg_at[scale]
 
     def _kernels(self):
         import cv2
@@ -116,12 +225,24 @@ class BlobFinder:
         (a specimen or a passing shadow covers few of them); the noise level is 1.4826 times
         the median absolute residual (the normal-consistent MAD).
         """
-        if not raw.flags.c_contiguous:
-            raw = np.ascontiguousarray(raw)
-        f = raw.reshape(-1)[self.grid].astype(np.float32)
-        g = float(np.median(f * self.grid_inv))
-        sigma = 1.4826 * float(np.median(np.abs(f - np.float32(g) * self.grid_bg)))
+        f = raw[self._grid_slices].astype(np.float32).reshape(-1)[self._grid_keep]
+        g = _median(f * self.grid_inv)
+        sigma = 1.4826 * _median(np.abs(f - np.float32(g) * self.grid_bg))
         return g, max(sigma, self.min_sigma)
+
+    def gain_reduced(self, small: np.ndarray, scale: int) -> float:
+        """Brightness gain of a frame decoded ``scale`` times smaller against the background
+        reduced alike: the median of their ratio over a sparse grid of pixels."""
+        bgs = self.background_at(scale)
+        h, w = bgs.shape
+        step = max(1, int(math.sqrt(h * w / GRID_PIXELS)))
+        sl = (slice(step // 2, h, step), slice(step // 2, w, step))
+        b = bgs[sl].reshape(-1)
+        f = small[:h, :w][sl].astype(np.float32).reshape(-1)
+        ok = b >= max(self.bg_floor, 0.25 * float(np.median(b)))
+        if ok.sum() < 50:
+            return 1.0
+        return _median(f[ok] / b[ok])
 
     def _grids(self, h: int, w: int):
         if h > self._yy.shape[0] or w > self._yy.shape[1]:
@@ -279,6 +400,16 @@ class BlobFinder:
             touches_window=touches_window,
             blind=blind,
             spread=(spread_major, spread_minor),
+            patch=BlobPatch(
+                diff=dd,
+                background=b,
+                gain=gl,
+                valid=(region > 0) & ((labels[sy0:sy1, sx0:sx1] == 0) | (comp > 0)),
+                origin=(x0 + sx0, y0 + sy0),
+                noise_sigma=sigma,
+                blur_length=blur,
+                blur_angle=angle,
+            ),
         )
         blob.reason = self._gate(blob)
         return blob
@@ -366,46 +497,246 @@ class BlobFinder:
             )
         return None
 
-    def search_full(self, raw: np.ndarray, g: float, sigma: float) -> list[Blob]:
-        """Blobs anywhere in the frame (candidates found at half resolution on large frames)."""
-        import cv2
+    def candidates(
+        self,
+        raw: np.ndarray,
+        g: float,
+        *,
+        keep: int = KEEP_CANDIDATES,
+        exclude: tuple[tuple[float, float, float], ...] = (),
+        region: tuple[float, float, float, float] | None = None,
+        scale: int | None = None,
+        reduced: np.ndarray | None = None,
+    ) -> Candidates:
+        """Candidate blobs anywhere in the frame, found and ranked at the search resolution
+        (no full-resolution measurement).
 
-        if self.scale == 1:
-            return self.analyse(raw, g, sigma, 0, 0, self.w, self.h)
-        small = cv2.resize(raw, (self.w // 2, self.h // 2), interpolation=cv2.INTER_AREA)
-        d = small.astype(np.float32) - np.float32(g) * self.bg_small
-        mask = self._mask(d, self.k * sigma / 2.0)
-        n, _, stats, _ = cv2.connectedComponentsWithStats(mask, connectivity=8)
+        On large frames the search runs at half resolution (``scale`` chooses another
+        reduction, e.g. 4 once the specimen is known to be large enough).  The noise level is measured on
+        the difference image at the resolution searched (compressed-video noise is spatially
+        correlated, so averaging pixels lowers it much less than white noise would suggest).
+        Connected components are gated by their statistics (area, fill of the bounding box,
+        touching the frame edge) and ranked by their integrated contrast in noise levels
+        (``sum |d| / (sigma * sqrt(area))``, a matched-filter signal-to-noise ratio); only the
+        best ``keep`` are returned, so the work that follows does not grow with the clutter.
+        Components centred within the ``exclude`` circles ``(x, y, radius)`` [px] (blobs
+        already followed) or outside ``region`` ``(x0, y0, x1, y1)`` [px] are left out.
+        """
+
+        s = self.scale if scale is None else int(scale)
+        if s == 1:
+            small, bgs = raw, self.bg
+        else:
+            bgs = self.background_at(s)
+            # ``reduced``: the frame already decoded ``scale`` times smaller
+            small = _halve(raw, s) if reduced is None else reduced[: bgs.shape[0], : bgs.shape[1]]
+        d = small.astype(np.float32)
+        d -= np.float32(g) * bgs
+        sig_s = self.search_noise(d)
+        mask = self._mask(d, self.k * sig_s)
+        st, cents, sums = _components(mask, d)
+        empty = np.zeros(0)
+        if len(st) == 0:
+            return Candidates(empty, empty, empty, empty, np.zeros((0, 4), int), (), sig_s, 0)
+        bx, by, bw, bh, area = st[:, 0], st[:, 1], st[:, 2], st[:, 3], st[:, 4]
+        speck = max(3.0, 0.25 * self.min_area) / (s * s)
+        score = sums / (sig_s * np.sqrt(np.maximum(area, 1)))
+        fill = area / np.maximum(bw * bh, 1)
+        area_full = area * float(s * s)
+        hs, ws = small.shape[:2]
+        edge = (bx == 0) | (by == 0) | (bx + bw == ws) | (by + bh == hs)
+        code = np.zeros(len(area), np.int8)  # 0 usable, else the gate that refused it
+        code[area_full < 0.5 * self.min_area] = 1
+        code[area_full > 1.5 * self.max_area] = 2
+        code[(code == 0) & (fill < 0.6 * self.min_fill)] = 3
+        code[(code == 0) & edge] = 4
+        code[(area < speck) | (score < 1.5 * self.k)] = -1
+        cx = (cents[:, 0] + 0.5) * s - 0.5
+        cy = (cents[:, 1] + 0.5) * s - 0.5
+        for ex, ey, er in exclude:
+            code[(np.hypot(cx - ex, cy - ey) <= er) & (code >= 0)] = -1
+        if region is not None:
+            rx0, ry0, rx1, ry1 = region
+            code[((cx < rx0) | (cx > rx1) | (cy < ry0) | (cy > ry1)) & (code >= 0)] = -1
+        ok = np.flatnonzero(code == 0)
+        best = ok[np.argsort(-score[ok], kind="stable")[: max(int(keep), 0)]]
+        bad = np.flatnonzero(code > 0)
+        refused = tuple(
+            _refused(int(area_full[j]), float(fill[j]), int(code[j]), self)
+            for j in bad[np.argsort(-score[bad], kind="stable")[:3]]
+        )
+        boxes = np.column_stack([bx[best], by[best], bx[best] + bw[best], by[best] + bh[best]])
+        return Candidates(
+            x=cx[best],
+            y=cy[best],
+            area=area_full[best],
+            score=score[best],
+            box=boxes * s,
+            refused=refused,
+            noise=sig_s,
+            n_usable=len(ok),
+        )
+
+    def measure_near(
+        self, raw: np.ndarray, g: float, sigma: float, box: tuple[int, int, int, int]
+    ) -> list[Blob]:
+        """Blobs measured at full resolution in ``box`` ``(x0, y0, x1, y1)`` [px], widened by
+        a few pixels (the window of a candidate)."""
+        m = 6 if self.scale > 1 else 3
+        x0, y0, x1, y1 = (int(v) for v in box)
+        return self.analyse(raw, g, sigma, x0 - m, y0 - m, x1 + m, y1 + m)
+
+    def search_full(
+        self,
+        raw: np.ndarray,
+        g: float,
+        sigma: float,
+        *,
+        keep: int = KEEP_CANDIDATES,
+        exclude: tuple[tuple[float, float, float], ...] = (),
+    ) -> list[Blob]:
+        """Blobs anywhere in the frame: the best ``keep`` candidates of :meth:`candidates`
+        measured at full resolution, then (unmeasured, with their reason) the three strongest
+        components refused on their statistics, so a frame without a usable blob can say
+        why."""
+        c = self.candidates(raw, g, keep=keep, exclude=exclude)
         blobs: list[Blob] = []
         seen: set[tuple[int, int]] = set()
-        for lab in range(1, n):
-            bx, by, bw, bh, area = (int(v) for v in stats[lab])
-            if area < max(2, 0.25 * self.min_area / 4):
-                continue
-            if area > 4 * self.max_area:
-                blobs.append(
-                    Blob(
-                        0,
-                        0,
-                        4 * area,
-                        0,
-                        0,
-                        0,
-                        0,
-                        0,
-                        0,
-                        False,
-                        False,
-                        f"blob of about {4 * area} px is above max_area={self.max_area:g} px",
-                    )
-                )
-                continue
-            m = 6
-            for b in self.analyse(
-                raw, g, sigma, 2 * bx - m, 2 * by - m, 2 * (bx + bw) + m, 2 * (by + bh) + m
-            ):
+        for box in c.box:
+            for b in self.measure_near(raw, g, sigma, tuple(box)):
                 key = (int(round(b.x)), int(round(b.y)))
                 if key not in seen:
                     seen.add(key)
                     blobs.append(b)
-        return blobs
+        return blobs + list(c.refused)
+
+    def search_noise(self, d: np.ndarray) -> float:
+        """Noise level of a difference image at its own resolution, over a sparse grid of its
+        pixels (a specimen covers few of them): 1.4826 times the median absolute value (the
+        normal-consistent MAD [1]), refined by the root mean square of the values within 3.5
+        noise levels (so integer-valued differences do not round it to whole grey levels).
+
+        References
+        ----------
+        1. P. J. Rousseeuw and C. Croux, "Alternatives to the median absolute deviation",
+           J. Am. Stat. Assoc. 88, 1273-1283 (1993).
+        2. N. L. Johnson, S. Kotz and N. Balakrishnan, *Continuous Univariate Distributions*,
+           vol. 1, 2nd ed. (Wiley, 1994), ch. 13, sec. 10.1 (moments of the truncated normal).
+        """
+        h, w = d.shape
+        step = max(1, int(math.sqrt(h * w / GRID_PIXELS)))
+        v = np.abs(d[step // 2 :: step, step // 2 :: step]).reshape(-1).astype(np.float64)
+        floor = self.min_sigma / max(self.scale, 1)
+        sig = max(1.4826 * float(np.median(v)), floor)
+        # The MAD of integer-valued differences comes in whole grey levels; refine it with the
+        # root mean square of the values within 3.5 of its noise levels, divided by that of a
+        # normal distribution truncated there: 1 - 2 c phi(c) / (2 Phi(c) - 1).
+        c = 3.5
+        trunc = math.sqrt(1.0 - 2 * c * math.exp(-0.5 * c * c) / math.sqrt(2 * math.pi)
+                          / math.erf(c / math.sqrt(2)))  # fmt: skip
+        for _ in range(3):
+            inner = v[v <= c * sig]
+            if inner.size < 50:
+                break
+            sig = max(math.sqrt(float(np.mean(inner * inner))) / trunc, floor)
+        return sig
+
+
+def _median(a: np.ndarray) -> float:
+    """Median of a 1-D array (the mean of the middle two for an even count), by partition
+    without :func:`numpy.median`'s overhead (called twice per frame)."""
+    n = a.size
+    if n % 2:
+        return float(np.partition(a, n // 2)[n // 2])
+    p = np.partition(a, (n // 2 - 1, n // 2))
+    return 0.5 * (float(p[n // 2 - 1]) + float(p[n // 2]))
+
+
+def _halve(img: np.ndarray, scale: int) -> np.ndarray:
+    """``img`` reduced ``scale`` (a power of two) times by repeated halving with pixel-area
+    averaging (OpenCV's fast path for a factor of two)."""
+    import cv2
+
+    while scale > 1:
+        img = cv2.resize(img, (img.shape[1] // 2, img.shape[0] // 2), interpolation=cv2.INTER_AREA)
+        scale //= 2
+    return img
+
+
+# Tile side for the connected-component search of sparse masks. [px]
+_TILE = 16
+# Most clusters of active tiles labelled one by one (more: the whole mask at once).
+_MAX_CLUSTERS = 40
+
+
+def _components(mask: np.ndarray, d: np.ndarray):
+    """Connected components (8-connected) of a 0/1 mask: stats rows (x, y, w, h, area),
+    centroids (x, y) and the sum of ``|d|`` over each, all as arrays, background excluded.
+
+    A sparse mask (the usual case: a specimen and a few specks) is labelled cluster by
+    cluster: the mask's nonzero pixels mark tiles of ``_TILE`` pixels, 8-connected clusters of
+    marked tiles are found on the small tile grid, and each cluster's bounding box is
+    labelled on its own.  Two 8-adjacent pixels lie in the same or 8-adjacent tiles, so every
+    component lies within one cluster; components cut by a box but belonging to another
+    cluster are dropped there.  Many clusters: the whole mask is labelled at once.
+    """
+    import cv2
+
+    pts = cv2.findNonZero(mask)
+    if pts is None:
+        z = np.zeros((0, 5), np.int64)
+        return z, np.zeros((0, 2)), np.zeros(0)
+    pts = pts.reshape(-1, 2)
+    h, w = mask.shape
+    tiles = np.zeros(((h + _TILE - 1) // _TILE, (w + _TILE - 1) // _TILE), np.uint8)
+    tiles[pts[:, 1] // _TILE, pts[:, 0] // _TILE] = 1
+    nt, tlab, tst, _ = cv2.connectedComponentsWithStats(tiles, connectivity=8)
+    if nt - 1 > _MAX_CLUSTERS:
+        boxes = [(0, 0, w, h, None)]
+    else:
+        boxes = [
+            (int(tst[c, 0]) * _TILE, int(tst[c, 1]) * _TILE,
+             min(int(tst[c, 0] + tst[c, 2]) * _TILE, w), min(int(tst[c, 1] + tst[c, 3]) * _TILE, h),
+             c)
+            for c in range(1, nt)
+        ]  # fmt: skip
+    stats_out, cents_out, sums_out = [], [], []
+    absd = np.abs(d)
+    for x0, y0, x1, y1, c in boxes:
+        sub = mask[y0:y1, x0:x1]
+        n, lab, st, ce = cv2.connectedComponentsWithStats(sub, connectivity=8)
+        if n <= 1:
+            continue
+        on = cv2.findNonZero(sub).reshape(-1, 2)
+        lv = lab[on[:, 1], on[:, 0]]
+        sums = np.bincount(lv, weights=absd[y0:y1, x0:x1][on[:, 1], on[:, 0]], minlength=n)[1:]
+        st = st[1:].astype(np.int64)
+        ce = ce[1:]
+        if c is not None:
+            # keep the components whose first pixel lies in a tile of this cluster
+            first = np.full(n, -1, np.int64)
+            first[lv[::-1]] = np.arange(len(lv))[::-1]
+            fx, fy = on[first[1:], 0] + x0, on[first[1:], 1] + y0
+            mine = tlab[fy // _TILE, fx // _TILE] == c
+            st, ce, sums = st[mine], ce[mine], sums[mine]
+        st[:, 0] += x0
+        st[:, 1] += y0
+        stats_out.append(st)
+        cents_out.append(ce + np.array([x0, y0], float))
+        sums_out.append(sums)
+    if not stats_out:
+        return np.zeros((0, 5), np.int64), np.zeros((0, 2)), np.zeros(0)
+    return np.concatenate(stats_out), np.concatenate(cents_out), np.concatenate(sums_out)
+
+
+def _refused(area: int, fill: float, code: int, f: BlobFinder) -> Blob:
+    """An unmeasured blob refused on its connected-component statistics, with the reason."""
+    if code == 1:
+        why = f"blob of {area} px is below min_area={f.min_area:g} px"
+    elif code == 2:
+        why = f"blob of about {area} px is above max_area={f.max_area:g} px"
+    elif code == 3:
+        why = f"blob shape rejected (fill ratio {fill:.2f} < {f.min_fill:g})"
+    else:
+        why = "blob touches the frame edge (entering or leaving the frame)"
+    return Blob(0, 0, area, 0, 0, fill, 0, 0, 0, code == 4, False, why)

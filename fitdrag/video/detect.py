@@ -11,13 +11,18 @@ The steps, per run (steps 2, 4 and 5, one frame's blobs, are in :mod:`fitdrag.vi
    (1.4826 times the median absolute residual).  Dividing out the gain normalises
    mains-light flicker; near each blob the gain is estimated again from the surrounding
    background, so lamps need not flicker in step across the frame.
-3. **Search**: until a track is established the whole frame is searched (at half resolution
-   on large frames); a track is confirmed when blobs in three consecutive frames line up in
-   position, agree in size and move (by at least one pixel; the fastest such triple wins, a
-   still blob is a resting specimen or a flaw of the background model).  From then on only
-   a window around the position predicted from the last few detections (a least-squares
-   quadratic in time: constant acceleration) is examined; the window grows with the frames
-   since the last detection, and after ``max_gap`` frames the whole frame is searched again.
+3. **Search and following** (:mod:`fitdrag.video.movers`): until a track is established the
+   whole frame is searched at reduced resolution, the noise measured at that resolution, the
+   connected components gated by their statistics and only the best few kept; candidates are
+   chained frame by frame into short tracklets, and a tracklet of three frames that moves
+   consistently (constant acceleration within a tolerance) is confirmed, measured at full
+   resolution and followed backwards through the frames kept in memory.  From then on only a window around
+   the position predicted from the last few detections (a least-squares quadratic in time) is
+   examined, the whole frame being searched every few frames for other moving objects; a
+   track whose prediction leaves the image has left the field (its later frames cost one
+   reduced search each, to re-acquire the specimen if it comes back).  At the end the
+   specimen is the track in free flight (then the longest); other moving objects are
+   reported, with the frames where they overlap the specimen.
 4. **Blobs**: pixels whose background-subtracted value exceeds ``threshold_sigma`` noise
    levels (brighter, darker or either), grouped into connected components and gated by area,
    fill ratio and elongation.  Rejected: blobs touching the frame edge (a cut ball has a
@@ -58,21 +63,29 @@ References
 from __future__ import annotations
 
 import math
-from collections import Counter
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import MAX_BLIND, Blob, BlobFinder
+from fitdrag.video.blobs import MAX_BLIND, BlobFinder
+from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
 
 #: Polarities a specimen may have against the background.
 POLARITIES = ("either", "brighter", "darker")
 
-# Least displacement over the three frames that confirm a new track. [px]
-_MIN_MOTION_PX = 1.0
+#: Ways to read colour footage: the most telling channel, or grey.
+CHANNELS = ("auto", "grey")
+
+# Candidate channels for colour footage (B, G, R weights): grey (BT.601 luma), blue, green, red.
+_CHANNEL_WEIGHTS = {
+    "grey": (0.114, 0.587, 0.299),
+    "blue": (1.0, 0.0, 0.0),
+    "green": (0.0, 1.0, 0.0),
+    "red": (0.0, 0.0, 1.0),
+}
 
 
 @dataclass(frozen=True, eq=False)
@@ -114,6 +127,19 @@ class Detections:
         Median noise level of the frames, native grey scale.
     source : str
         Footage the detections come from.
+    other_movers : tuple of OtherMover
+        Other moving objects seen (not the specimen): where, when, and the frames where they
+        overlapped the specimen.
+    outline_diameter_px, u_outline_diameter_px : ndarray or None
+        Apparent diameter of the specimen perpendicular to its motion, from the model fit
+        (:mod:`fitdrag.video.ball_fit`), and its standard uncertainty; NaN where the fit
+        failed; None from detectors that do not measure it. [px]
+    row_first, row_last : ndarray of int or None
+        First and last image rows the specimen's outline spans during the exposure (-1
+        where the fit failed); None from detectors that do not measure them.
+    model_fit : ndarray of bool or None
+        The centroid comes from the model fit (False: the fit failed and the weighted
+        centroid is kept, with three times its propagated sigma and half the quality).
     """
 
     frame: np.ndarray
@@ -128,6 +154,12 @@ class Detections:
     shape: tuple[int, int]
     noise_sigma: float
     source: str = ""
+    other_movers: tuple[OtherMover, ...] = ()
+    outline_diameter_px: np.ndarray | None = None
+    u_outline_diameter_px: np.ndarray | None = None
+    row_first: np.ndarray | None = None
+    row_last: np.ndarray | None = None
+    model_fit: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.frame)
@@ -136,89 +168,6 @@ class Detections:
     def missing_frames(self) -> np.ndarray:
         """Frame numbers listed in :attr:`missing`."""
         return np.array([f for f, _ in self.missing], dtype=np.int64)
-
-
-class _Tracker:
-    """Recent detections of the current track and a constant-acceleration prediction."""
-
-    def __init__(self):
-        self.frames: list[int] = []
-        self.xs: list[float] = []
-        self.ys: list[float] = []
-        self.areas: list[float] = []
-        self.extent = 0.0
-
-    def add(self, n: int, b: Blob) -> None:
-        self.frames.append(n)
-        self.xs.append(b.x)
-        self.ys.append(b.y)
-        self.areas.append(b.area)
-        self.extent = b.extent
-        if len(self.frames) > 15:
-            for lst in (self.frames, self.xs, self.ys, self.areas):
-                del lst[0]
-
-    @property
-    def last(self) -> int:
-        return self.frames[-1]
-
-    @property
-    def ref_area(self) -> float:
-        return float(np.median(self.areas))
-
-    def predict(self, n: int) -> tuple[float, float, float]:
-        f = np.array(self.frames[-5:], dtype=float) - n
-        x = np.array(self.xs[-5:])
-        y = np.array(self.ys[-5:])
-        deg = min(2, len(f) - 1)
-        if deg == 0:
-            px, py, speed = x[-1], y[-1], 0.0
-        else:
-            cx = np.polyfit(f, x, deg)
-            cy = np.polyfit(f, y, deg)
-            px, py = float(np.polyval(cx, 0.0)), float(np.polyval(cy, 0.0))
-            speed = float(np.hypot(x[-1] - x[-2], y[-1] - y[-2]) / max(f[-1] - f[-2], 1.0))
-        gap = n - self.last
-        allowance = 3.0 + 0.5 * (gap - 1) ** 2 + 0.1 * speed * gap
-        if len(f) < 3:
-            allowance += 0.5 * speed * gap + 4.0
-        return px, py, min(allowance, 200.0)
-
-
-def _choose_chain(recent: list[tuple[int, list[Blob]]], size_tol: float, diag: float):
-    """Best triple of blobs in the last three frames read that move consistently (and do move:
-    a still blob is a resting specimen or a flaw of the background model), or None; and
-    whether a consistent but still triple was seen."""
-    if len(recent) < 3:
-        return None, False
-    (n1, c1), (n2, c2), (n3, c3) = recent[-3:]
-    if not (c1 and c2 and c3):
-        return None, False
-    ratio = (n3 - n2) / (n2 - n1)
-    best = None
-    still = False
-    for b1 in c1:
-        for b2 in c2:
-            step = math.hypot(b2.x - b1.x, b2.y - b1.y) / (n2 - n1)
-            if step > 0.25 * diag:
-                continue
-            for b3 in c3:
-                areas = np.array([b1.area, b2.area, b3.area])
-                if areas.min() <= 0 or areas.max() / areas.min() > 1 + size_tol:
-                    continue
-                ex = b2.x + (b2.x - b1.x) * ratio
-                ey = b2.y + (b2.y - b1.y) * ratio
-                res = math.hypot(b3.x - ex, b3.y - ey)
-                if res > 2.0 + 0.1 * step * (n3 - n2):
-                    continue
-                moved = math.hypot(b3.x - b1.x, b3.y - b1.y)
-                if moved < _MIN_MOTION_PX:
-                    still = True  # a resting specimen or a flaw of the background model
-                    continue
-                score = (moved, -res)
-                if best is None or score > best[0]:
-                    best = (score, (b1, b2, b3))
-    return (None, still) if best is None else (best[1], False)
 
 
 def _post_check(
@@ -235,7 +184,8 @@ def _post_check(
 
     Each detection is compared with the median of up to seven neighbours on each side
     (within 20 frames): its integrated coverage (area) and the principal spreads of its
-    weights.  A ball partly hidden behind something loses area and, more tellingly, spread
+    weights (the length along the motion with the straight line through the neighbours'
+    lengths instead, as the blur grows with the speed).  A ball partly hidden behind something loses area and, more tellingly, spread
     across the hiding edge; noise moves the spreads by a fraction of a percent.
     """
     n = len(frames)
@@ -253,6 +203,13 @@ def _post_check(
         ref = float(np.median(areas[sel]))
         dev = abs(areas[i] / ref - 1.0)
         sref = np.median(spreads[sel], axis=0)
+        # The length along the motion grows with the blur, which follows the speed: compare
+        # it with the straight line through the neighbours' lengths (the width keeps the
+        # median).
+        tt = (frames[sel] - frames[i]).astype(float)
+        if np.ptp(tt) > 0:
+            slope, icpt = np.polyfit(tt, spreads[sel, 0], 1)
+            sref[0] = icpt
         sdev = np.abs(spreads[i] / np.maximum(sref, 1e-9) - 1.0)
         j = int(np.argmax(sdev))
         if dev > size_tol:
@@ -324,6 +281,8 @@ def detect_specimen(
     max_gap: int = 10,
     background: np.ndarray | None = None,
     background_frames: int = 25,
+    region: tuple[float, float, float, float] | None = None,
+    channel: str = "auto",
     progress: bool = False,
 ) -> Detections:
     """Find one moving specimen in every frame of ``source`` and measure its centroid.
@@ -358,6 +317,13 @@ def detect_specimen(
         Background model to use instead of estimating one (float, native grey scale).
     background_frames : int
         Frames sampled for the background model.
+    region : (x0, y0, x1, y1), optional
+        Region of interest: only blobs centred inside it start a track (e.g. to leave out a
+        hand or a launcher at one side of the image). [px]
+    channel : str
+        ``"auto"`` (default): on colour footage, the channel (grey, blue, green or red) in
+        which moving things stand out most from the background (see
+        :func:`choose_channel`); ``"grey"``: always grey.
     progress : bool
         Show a progress bar (tqdm).
 
@@ -398,7 +364,15 @@ def detect_specimen(
         )
     if isinstance(max_gap, bool) or not isinstance(max_gap, int) or max_gap < 1:
         raise InputError(f"max_gap: expected a whole number of frames >= 1, got {max_gap!r}.")
+    if region is not None:
+        region = _check_region(region, w, h)
+    if channel not in CHANNELS:
+        raise InputError(
+            f"channel: {channel!r} is not one of {', '.join(CHANNELS)}; choose one of them."
+        )
     start, stop = source._check_range(start, stop)
+    if channel == "auto" and source.is_color and background is None:
+        source.use_channel(choose_channel(source, start, stop))
     if background is None:
         background = estimate_background(source, start, stop, background_frames)
     else:
@@ -420,20 +394,10 @@ def detect_specimen(
         size_tolerance=float(size_tolerance),
         max_gap=max_gap,
     )
-    diag = math.hypot(h, w)
-    accepted: dict[int, tuple[Blob, float]] = {}
-    missing: dict[int, str] = {}
-    recent: list[tuple[int, list[Blob], float]] = []  # last frames read while searching
+    follower = Follower(det, size_tolerance=float(size_tolerance), max_gap=max_gap,
+                        region=region)  # fmt: skip
     sigmas: list[float] = []
-    tracker: _Tracker | None = None
-    if isinstance(source, FolderSource):
-        nums = source.frame_numbers
-        expected = nums[(nums >= start) & ((nums < stop) if stop is not None else True)]
-    elif source.last_frame is not None:
-        end = source.last_frame + 1 if stop is None else min(stop, source.last_frame + 1)
-        expected = np.arange(max(start, source.first_frame), end)
-    else:
-        expected = None
+    expected = _expected_frames(source, start, stop)
     it = source.frames_raw(start, stop)
     if progress:
         from tqdm import tqdm
@@ -442,87 +406,43 @@ def detect_specimen(
             it, total=None if expected is None else len(expected), unit="frame", desc="tracking"
         )
     last_n = None
-    for n, raw in it:
-        last_n = n
-        g, sigma = det.gain_and_noise(raw)
-        sigmas.append(sigma)
-        if tracker is not None and n - tracker.last > max_gap:
-            tracker = None
-        if tracker is not None:
-            px, py, allow = tracker.predict(n)
-            half = 0.5 * tracker.extent + allow + 4.0
-            blobs = []
-            for _attempt in range(3):
-                blobs = det.analyse(
-                    raw,
-                    g,
-                    sigma,
-                    int(px - half),
-                    int(py - half),
-                    int(px + half) + 2,
-                    int(py + half) + 2,
-                )
-                if not any(b.touches_window for b in blobs):
-                    break
-                half *= 2.0
-            near = [b for b in blobs if math.hypot(b.x - px, b.y - py) <= allow + 0.5 * b.extent]
-            near.sort(key=lambda b: math.hypot(b.x - px, b.y - py))
-            chosen = near[0] if near else None
-            if chosen is None:
-                missing[n] = (
-                    f"no blob near the predicted position ({px:.0f}, {py:.0f}) "
-                    f"within {allow:.0f} px"
-                )
-            elif chosen.reason is not None:
-                missing[n] = chosen.reason
+    try:
+        for n, raw in it:
+            last_n = n
+            if raw.shape != (h, w):  # decoded smaller (see FrameSource.reduce_decode)
+                if follower.step_reduced(n, raw, w // raw.shape[1]):
+                    source.reduce_decode = follower.wanted_reduction()
+                    continue
+                raw = source.read_raw(n)
+            g, sigma = det.gain_and_noise(raw)
+            sigmas.append(sigma)
+            follower.step(n, raw, g, sigma)
+            source.reduce_decode = follower.wanted_reduction()
+    finally:
+        source.reduce_decode = 1
+    found = follower.finish()
+    accepted, missing = found.accepted, dict(found.missing)
+    if expected is not None:
+        seen = set(follower.read)
+        files = set(source.frame_numbers.tolist()) if isinstance(source, FolderSource) else ()
+        for k in expected:
+            k = int(k)
+            if k in seen:
+                continue
+            if last_n is None or k > last_n:
+                missing[k] = "frame could not be decoded (the file ends early)"
+            elif isinstance(source, FolderSource) and k not in files:
+                missing[k] = "no image file for this frame number in the folder"
             else:
-                ref = tracker.ref_area
-                dev = abs(chosen.area / ref - 1.0)
-                if dev > size_tolerance:
-                    missing[n] = (
-                        f"blob size {chosen.area:.0f} px differs by {100 * dev:.0f} % from the "
-                        f"track's {ref:.0f} px (partly hidden or merged with clutter)"
-                    )
-                else:
-                    accepted[n] = (chosen, g)
-                    tracker.add(n, chosen)
-            continue
-        # Acquisition: search the whole frame and confirm over three frames.
-        blobs = det.search_full(raw, g, sigma)
-        good = [b for b in blobs if b.reason is None]
-        recent.append((n, good, g))
-        del recent[:-3]
-        chain, still = _choose_chain([(k, c) for k, c, _ in recent], size_tolerance, diag)
-        if chain is not None:
-            tracker = _Tracker()
-            for (k, _, gk), b in zip(recent, chain, strict=True):
-                accepted[k] = (b, gk)
-                missing.pop(k, None)
-                tracker.add(k, b)
-            recent.clear()
-            continue
-        if not blobs:
-            missing[n] = "no blob stands out from the background"
-        elif not good:
-            missing[n] = Counter(b.reason for b in blobs).most_common(1)[0][0]
-        elif still:
-            missing[n] = (
-                "blob does not move over three frames (a specimen at rest becomes part of "
-                "the background model: start after the release)"
-            )
-        else:
-            missing[n] = "blob not confirmed by consistent motion over three frames"
-    if expected is not None and not isinstance(source, FolderSource):
-        for k in expected[expected > (start - 1 if last_n is None else last_n)]:
-            missing[int(k)] = "frame could not be decoded (the file ends early)"
+                missing[k] = "frame could not be decoded (skipped)"
     if not accepted:
-        span = f"{start}..{last_n if last_n is not None else start}"
-        counts = Counter(missing.values()).most_common(3)
-        why = "; ".join(f"{c} frame(s): {r}" for r, c in counts) or "no frames were read"
+        last = last_n if last_n is not None else start
         raise InputError(
-            f"footage {source.name}: no specimen found in any frame of {span} ({why}); check "
-            f"the frame range, the area limits (min_area={min_area:g}, max_area={max_area:g} "
-            f"px) and the threshold (threshold_sigma={threshold_sigma:g})."
+            f"footage {source.name}: no specimen found in any frame of {start}..{last} "
+            f"({reasons_by_range(missing)}); check the frame range (start/stop), the area "
+            f"limits (min_area={min_area:g}, max_area={max_area:g} px: the specimen's size in "
+            f"pixels) and the threshold (threshold_sigma={threshold_sigma:g}), or give a "
+            f"region of interest (region) that leaves out other moving things."
         )
     frames = np.array(sorted(accepted), dtype=np.int64)
     blobs_ok = [accepted[int(k)][0] for k in frames]
@@ -541,6 +461,7 @@ def detect_specimen(
     )
     gains = np.array([accepted[int(k)][1] for k in frames])
     sig = np.array([b.sigma for b in blobs_ok])
+    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality)
     out = Detections(
         frame=frames[keep],
         x_px=xs[keep],
@@ -554,8 +475,184 @@ def detect_specimen(
         shape=(h, w),
         noise_sigma=float(np.median(sigmas)) if sigmas else float("nan"),
         source=source.name,
+        other_movers=found.others,
+        **outline,
     )
     return out
+
+
+def choose_channel(source: FrameSource, start: int, stop: int | None, n_samples: int = 7):
+    """The (B, G, R) weights of the channel in which moving things stand out most, or None
+    for grey.
+
+    Seven frames spread over the range are read in colour; footage whose channels agree
+    within 3 grey levels everywhere is grey (None).  The rest works at half resolution.  For grey (BT.601 luma [1]) and each
+    of blue, green and red, the per-pixel median of the samples is the background and, per
+    sample, the 50th largest ``|frame - background|`` in noise levels (1.4826 times the median
+    absolute difference) measures how well a moving thing of a few hundred pixels stands out.
+    A single colour is chosen only if it stands out at least 1.5 times better than grey (a
+    coloured ball on a grey scene); otherwise grey is kept.
+
+    References
+    ----------
+    1. ITU-R Recommendation BT.601-7, "Studio encoding parameters of digital television for
+       standard 4:3 and wide-screen 16:9 aspect ratios" (2011), luma weights.
+    """
+    import cv2
+
+    last = source.last_frame if stop is None else stop - 1
+    if last is None:
+        return None
+    if hasattr(source, "frame_numbers"):
+        nums = source.frame_numbers
+        nums = nums[(nums >= start) & (nums <= last)]
+        pick = nums[np.unique(np.linspace(0, len(nums) - 1, n_samples).round().astype(int))]
+    else:
+        pick = np.unique(np.linspace(max(start, source.first_frame), last, n_samples).round())
+    from concurrent.futures import ThreadPoolExecutor
+
+    def read(k):
+        try:
+            return source.read_color(k)
+        except (ValueError, FileNotFoundError):
+            return None
+
+    with ThreadPoolExecutor(max_workers=2) as pool:  # decoding releases the GIL
+        raw = [img for img in pool.map(read, pick.astype(int).tolist()) if img is not None]
+    if len(raw) < 3 or any(img.ndim != 3 or img.shape[2] < 3 for img in raw):
+        return None
+    unit = source.full_scale / 255.0
+    spread = max(
+        max(float(cv2.absdiff(img[:, :, 0], img[:, :, 1]).max()),
+            float(cv2.absdiff(img[:, :, 1], img[:, :, 2]).max()))
+        for img in raw
+    )  # fmt: skip
+    if spread <= 3.0 * unit:
+        return None  # grey footage stored in colour
+    stack = np.stack([
+        cv2.resize(img[:, :, :3], (img.shape[1] // 2, img.shape[0] // 2),
+                   interpolation=cv2.INTER_AREA).astype(np.float32)
+        for img in raw
+    ])  # fmt: skip
+    strength = {}
+    for name, wts in _CHANNEL_WEIGHTS.items():
+        ch = stack @ np.asarray(wts, np.float32)
+        bg = np.median(ch, axis=0)
+        best = 0.0
+        for frame in ch:
+            d = np.abs(frame - bg).reshape(-1)
+            sig = max(1.4826 * float(np.median(d)), 0.5 * unit)
+            best = max(best, float(np.partition(d, d.size - 50)[d.size - 50]) / sig)
+        strength[name] = best
+    pick_name = max(strength, key=strength.get)
+    if pick_name == "grey" or strength[pick_name] < 1.5 * strength["grey"]:
+        return None
+    return _CHANNEL_WEIGHTS[pick_name]
+
+
+def _check_region(region, w: int, h: int) -> tuple[float, float, float, float]:
+    try:
+        vals = tuple(float(v) for v in region)
+    except (TypeError, ValueError):
+        vals = ()
+    if (
+        len(vals) != 4
+        or not all(math.isfinite(v) for v in vals)
+        or not (vals[0] < vals[2] and vals[1] < vals[3])
+        or vals[2] < 0
+        or vals[3] < 0
+        or vals[0] > w - 1
+        or vals[1] > h - 1
+    ):
+        raise InputError(
+            f"region: expected (x0, y0, x1, y1) with x0 < x1 and y0 < y1, overlapping the "
+            f"{w}x{h} px image, got {region!r}; give the corners of the region of interest "
+            f"in image pixels."
+        )
+    return vals  # type: ignore[return-value]
+
+
+def _expected_frames(source: FrameSource, start: int, stop: int | None):
+    """Frame numbers the range should hold (None when the length is unknown)."""
+    if isinstance(source, FolderSource):
+        end = source.last_frame + 1 if stop is None else min(stop, source.last_frame + 1)
+        return np.arange(max(start, source.first_frame), end)
+    if source.last_frame is not None:
+        end = source.last_frame + 1 if stop is None else min(stop, source.last_frame + 1)
+        return np.arange(max(start, source.first_frame), end)
+    return None
+
+
+def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
+    """The reasons of missing frames, each with the frame ranges it applies to, commonest
+    first: ``"frames 0-14 (15): no blob ...; frame 17: ..."``."""
+    if not missing:
+        return "no frames were read"
+    by: dict[str, list[int]] = {}
+    for k, why in missing.items():
+        by.setdefault(why, []).append(k)
+    top = sorted(by.items(), key=lambda kv: (-len(kv[1]), min(kv[1])))
+    parts = []
+    for why, ks in top[:limit]:
+        txt = frame_ranges(ks)
+        if len(txt) > 40:
+            txt = txt[:40].rsplit(" ", 1)[0] + " ..."
+        parts.append(f"frame {txt}: {why}" if len(ks) == 1 else f"frames {txt} ({len(ks)}): {why}")
+    if len(top) > limit:
+        parts.append(f"{len(top) - limit} other reason(s)")
+    return "; ".join(parts)
+
+
+# Factor on the weighted centroid's propagated sigma when the model fit fails (the scatter of
+# weighted centroids about the truth is two to three times the propagated value).
+_FALLBACK_SIGMA_FACTOR = 3.0
+
+
+def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
+    """Model fit of each kept detection (:func:`fitdrag.video.blobs.fit_chosen_blob`):
+    replaces the centroid and sigma in place where it succeeds; where it fails keeps the
+    weighted centroid with a larger sigma and halves the quality.  A fit starts from the
+    radius and blur of the previous frame's fit when that frame was fitted.  Returns the
+    outline columns of :class:`Detections`."""
+    from fitdrag.video.blobs import fit_chosen_blob
+
+    idx = np.flatnonzero(keep)
+    n = idx.size
+    diam = np.full(n, np.nan)
+    u_diam = np.full(n, np.nan)
+    first = np.full(n, -1, dtype=np.int64)
+    last = np.full(n, -1, dtype=np.int64)
+    ok = np.zeros(n, bool)
+    # Direction of motion from the neighbouring kept detections (y down).
+    if n >= 2:
+        ang = np.arctan2(np.gradient(ys[idx]), np.gradient(xs[idx]))
+    else:
+        ang = np.full(n, np.nan)
+    prev_frame, start = None, None
+    for j, i in enumerate(idx):
+        a = float(ang[j]) if math.isfinite(ang[j]) else None
+        near = prev_frame is not None and int(frames[i]) - prev_frame == 1
+        if near and start is not None:
+            fit = fit_chosen_blob(blobs[i], a, start=start)
+        else:
+            fit = fit_chosen_blob(blobs[i], a)
+        prev_frame = int(frames[i])
+        start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
+        if fit.success:
+            xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
+            diam[j], u_diam[j] = fit.diameter, fit.u_diameter
+            first[j], last[j] = fit.row_first, fit.row_last
+            ok[j] = True
+        else:
+            sig[i] *= _FALLBACK_SIGMA_FACTOR
+            quality[i] *= 0.5
+    return {
+        "outline_diameter_px": diam,
+        "u_outline_diameter_px": u_diam,
+        "row_first": first,
+        "row_last": last,
+        "model_fit": ok,
+    }
 
 
 # ----------------------------------------------------------------------------- registry

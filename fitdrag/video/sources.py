@@ -127,6 +127,8 @@ class FrameSource:
     is_color: bool
     first_frame: int
     last_frame: int | None
+    #: Frames found undecodable while reading (skipped rather than ending the read).
+    undecodable: set[int]
 
     @property
     def name(self) -> str:
@@ -188,9 +190,37 @@ class FrameSource:
     def __iter__(self):
         return self.frames(self.first_frame)
 
+    #: Weights (B, G, R) of the single channel frames are read as (None: BT.601 grey).
+    channel_weights: tuple[float, float, float] | None = None
+    #: A hint for the reader: frames may come out this many times smaller (2 or 4; Motion-JPEG
+    #: video only, where the decoder scales the image down itself, much faster).  It applies
+    #: to frames decoded after it is set; the consumer tells them by their shape.
+    reduce_decode: int = 1
+
+    def use_channel(self, weights: tuple[float, float, float] | None) -> None:
+        """Read colour frames as the channel ``weights`` (B, G, R; non-negative, summing to 1,
+        so a lamp's flicker scales it as it scales grey) instead of grey; None for grey."""
+        if weights is not None:
+            w = tuple(float(v) for v in weights)
+            if len(w) != 3 or min(w) < 0 or abs(sum(w) - 1.0) > 1e-6:
+                raise InputError(
+                    f"channel weights: expected three non-negative numbers (B, G, R) summing "
+                    f"to 1, got {weights!r}."
+                )
+            weights = w
+        self.channel_weights = weights
+
+    def _grey(self, img: np.ndarray) -> np.ndarray:
+        """One channel of a stored frame: grey, or the chosen channel of a colour frame."""
+        w = self.channel_weights
+        if w is None or img.ndim == 2 or img.shape[2] < 3:
+            return _to_grey(img)
+        m = np.array([w], np.float32)
+        return _cv2().transform(np.ascontiguousarray(img[:, :, :3]), m)
+
     def read_raw(self, frame_number: int) -> np.ndarray:
-        """One frame, grey, native dtype."""
-        return _to_grey(self.read_color(frame_number))
+        """One frame, grey (or the chosen channel), native dtype."""
+        return self._grey(self.read_color(frame_number))
 
     def read(self, frame_number: int) -> np.ndarray:
         """One frame, grey float32, native scale."""
@@ -260,6 +290,7 @@ class VideoSource(FrameSource):
         self._first = img
         self._packets = self._probe_packets(img)
         self._pcap = None  # capture used for random access in packet mode
+        self.undecodable = set()
 
     def _probe_packets(self, first: np.ndarray) -> bool:
         """Whether frames can be read as raw JPEG packets and decoded in parallel.
@@ -306,10 +337,27 @@ class VideoSource(FrameSource):
         cv2 = _cv2()
         cap = self._open_packets(start)
 
-        def decode(pkt):
-            img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)
-            if img is None:
-                raise InputError(f"footage {self.path}: a frame could not be decoded.")
+        grey_flags = {1: cv2.IMREAD_GRAYSCALE, 2: cv2.IMREAD_REDUCED_GRAYSCALE_2,
+                      4: cv2.IMREAD_REDUCED_GRAYSCALE_4}  # fmt: skip
+        colour_flags = {1: cv2.IMREAD_UNCHANGED, 2: cv2.IMREAD_REDUCED_COLOR_2,
+                        4: cv2.IMREAD_REDUCED_COLOR_4}  # fmt: skip
+
+        def decode(pkt, r):
+            # None for a frame that cannot be decoded: it is skipped (and listed by the
+            # detector), not a refusal of the whole clip.  r > 1: the JPEG decoder scales the
+            # image down itself (much faster than decoding it whole).
+            if self.channel_weights is None:
+                img = cv2.imdecode(pkt, grey_flags[r])
+            else:
+                img = cv2.imdecode(pkt, colour_flags[r])
+                img = None if img is None else self._grey(img)
+            h, w = self.shape
+            if img is not None and r > 1:
+                if img.shape[:2] != (-(-h // r), -(-w // r)):
+                    return None
+                return img[: h // r, : w // r]
+            if img is not None and img.shape != self.shape:
+                img = None
             return img
 
         try:
@@ -323,14 +371,19 @@ class VideoSource(FrameSource):
                         if not ok or pkt is None:
                             done = True
                             break
-                        pending.append((n, pool.submit(decode, pkt.copy())))
+                        r = self.reduce_decode if self.reduce_decode in (2, 4) else 1
+                        pending.append((n, pool.submit(decode, pkt.copy(), r)))
                         n += 1
                     if stop is not None and n >= stop:
                         done = True
                     if not pending:
                         return
                     k, fut = pending.pop(0)
-                    yield k, fut.result()
+                    img = fut.result()
+                    if img is None:
+                        self.undecodable.add(k)
+                        continue
+                    yield k, img
         finally:
             cap.release()
 
@@ -369,7 +422,7 @@ class VideoSource(FrameSource):
                 ok, img = cap.read()
                 if not ok or img is None:
                     return
-                yield n, _to_grey(img)
+                yield n, self._grey(img)
                 n += 1
         finally:
             cap.release()
@@ -444,7 +497,7 @@ class VideoSource(FrameSource):
                     ok, img = cap.read()
                     if not ok:
                         break
-                    out.append((n, _to_grey(img)))
+                    out.append((n, self._grey(img)))
                 elif not cap.grab():
                     break
                 n += 1
@@ -525,6 +578,7 @@ class FolderSource(FrameSource):
         self.n_frames = len(self._files)
         self.first_frame = int(self._numbers[0])
         self.last_frame = int(self._numbers[-1])
+        self.undecodable = set()
 
     @property
     def frame_numbers(self) -> np.ndarray:
@@ -546,6 +600,9 @@ class FolderSource(FrameSource):
         img = cv2.imread(str(p), cv2.IMREAD_UNCHANGED)
         if img is None:
             raise InputError(f"footage {p}: not an image OpenCV can read; re-export the frame.")
+        return self._checked(p, img)
+
+    def _checked(self, p: Path, img: np.ndarray) -> np.ndarray:
         if img.shape[:2] != self.shape or img.dtype != self._dtype:
             raise InputError(
                 f"footage {p}: {img.shape[1]}x{img.shape[0]} {img.dtype} differs from the first "
@@ -563,7 +620,11 @@ class FolderSource(FrameSource):
         idx = range(i0, i1)
 
         def load(i):
-            return int(self._numbers[i]), _to_grey(self._load(self._files[i]))
+            k = int(self._numbers[i])
+            img = _cv2().imread(str(self._files[i]), _cv2().IMREAD_UNCHANGED)
+            if img is None:  # an unreadable file in the middle is skipped (and listed)
+                return k, None
+            return k, self._grey(self._checked(self._files[i], img))
 
         # Image decoding releases the GIL: two workers keep two cores busy.
         with ThreadPoolExecutor(max_workers=2) as pool:
@@ -578,7 +639,11 @@ class FolderSource(FrameSource):
                 nxt = next(it, None)
                 if nxt is not None:
                     pending.append(pool.submit(load, nxt))
-                yield fut.result()
+                k, img = fut.result()
+                if img is None:
+                    self.undecodable.add(k)
+                    continue
+                yield k, img
 
 
 class ArraySource(FrameSource):
@@ -611,6 +676,7 @@ class ArraySource(FrameSource):
         self.n_frames = int(arr.shape[0])
         self.first_frame = int(first_frame)
         self.last_frame = self.first_frame + self.n_frames - 1
+        self.undecodable = set()
 
     def read_color(self, frame_number: int) -> np.ndarray:
         i = int(frame_number) - self.first_frame
@@ -625,7 +691,7 @@ class ArraySource(FrameSource):
         i0 = max(start - self.first_frame, 0)
         i1 = self.n_frames if stop is None else min(stop - self.first_frame, self.n_frames)
         for i in range(i0, i1):
-            yield self.first_frame + i, _to_grey(self._arr[i])
+            yield self.first_frame + i, self._grey(self._arr[i])
 
     def frames_raw(self, start=0, stop=None):
         start, stop = self._check_range(start, stop)

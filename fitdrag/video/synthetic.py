@@ -5,6 +5,10 @@ shaded, anti-aliased ball (supersampled) along a trajectory the caller supplies,
 over the exposure time (motion blur), lays it over a static cluttered background (optionally
 with ArUco markers and opaque occluders in front of the ball), multiplies the whole picture by
 a mains-light flicker gain, adds Gaussian sensor noise and quantises to 8 or 16 bits.
+Optional scene elements (drawn by :mod:`fitdrag.video.synthetic_scene`): a woven cloth
+backdrop, a second ball of the same look on its own path (behind the specimen), a hand that
+carries the ball and releases it, a coloured ball on a grey scene, and camera tremble (a
+random sub-pixel shift of the whole picture in each frame).
 
 Coordinates are image pixels, y down, with the centre of pixel ``(row, col)`` at
 ``(x, y) = (col, row)``; the frame covers ``-0.5 <= x <= w - 0.5``.  Grey levels are given on
@@ -12,7 +16,9 @@ the 8-bit scale (0..255) and multiplied by 257 for 16-bit output.  All footage h
 synthetic.
 
 The truth for frame ``k`` is the ball centre at the middle of the exposure, ``t0 + k / fps``,
-plus the centre averaged over the exposure (what the centroid of a blurred blob measures).
+plus the centre averaged over the exposure (what the centroid of a blurred blob measures),
+its visibility, apparent diameter and rows spanned (see
+:class:`fitdrag.video.synthetic_truth.SyntheticTruth`).
 """
 
 from __future__ import annotations
@@ -20,11 +26,31 @@ from __future__ import annotations
 import math
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.video.synthetic_scene import (
+    Hand,
+    SceneShifter,
+    Trajectory,
+    fabric_texture,
+    finish_frame,
+    flicker_gain,
+    luma,
+    make_scene,
+    rect_coverage,
+    sub_positions_outside,
+    swept_disc,
+    swept_ellipse,
+    tremble_shifts,
+)
+from fitdrag.video.synthetic_truth import (
+    SecondBallTruth,
+    SyntheticTruth,
+    Visibility,
+    visibility_codes,
+)
 
 #: ArUco dictionary used for synthetic markers (name of the cv2.aruco constant).
 MARKER_DICTIONARY = "DICT_4X4_50"
@@ -60,57 +86,6 @@ class MarkerPlacement:
     x: float
     y: float
     side: float
-
-
-@dataclass(frozen=True, eq=False)
-class SyntheticTruth:
-    """Exact truth of a synthetic flight, one entry per frame.
-
-    Attributes
-    ----------
-    t : ndarray
-        Mid-exposure time of each frame. [s]
-    x_px, y_px : ndarray
-        Ball centre at mid-exposure, image coordinates, y down. [px]
-    x_mean_px, y_mean_px : ndarray
-        Ball centre averaged over the exposure (equals the mid-exposure centre to within
-        ``a * exposure**2 / 24`` for acceleration ``a``). [px]
-    edge_distance_px : ndarray
-        Smallest distance from the ball's footprint over the exposure to the image boundary;
-        negative when the ball is cut by the frame edge. [px]
-    inside : ndarray of bool
-        The footprint stays clear of the outermost pixel rows and columns
-        (``edge_distance_px >= 1``): a ball that reaches those pixels cannot be told apart
-        from one the frame edge cuts.
-    hidden_fraction : ndarray
-        Fraction of the ball's exposure-integrated image hidden behind occluders (0..1).
-    visible : ndarray of bool
-        ``inside`` and not hidden at all.
-    gain : ndarray
-        Flicker gain applied to the frame, averaged over the exposure (1 = none).
-    blur_px : ndarray
-        Length of the centre's path during the exposure. [px]
-    radius_px : float
-        Ball radius. [px]
-    marker_corners : dict
-        Marker id -> (4, 2) array of its black square's image corners in the order a detector
-        reports them for an upright marker: top-left, top-right, bottom-right, bottom-left.
-        [px]
-    """
-
-    t: np.ndarray
-    x_px: np.ndarray
-    y_px: np.ndarray
-    x_mean_px: np.ndarray
-    y_mean_px: np.ndarray
-    edge_distance_px: np.ndarray
-    inside: np.ndarray
-    hidden_fraction: np.ndarray
-    visible: np.ndarray
-    gain: np.ndarray
-    blur_px: np.ndarray
-    radius_px: float
-    marker_corners: dict
 
 
 @dataclass(frozen=True, eq=False)
@@ -252,173 +227,14 @@ def _draw_marker(scene: np.ndarray, marker_id: int, corners_black: np.ndarray, s
     patch += level
 
 
-def make_scene(
-    shape: tuple[int, int],
-    background_level: float,
-    clutter: int,
-    rng: np.random.Generator,
-    contrast: float = 40.0,
-) -> np.ndarray:
-    """A static cluttered background, float32 on the 8-bit scale, shape ``(h, w)``.
-
-    A smooth illumination fall-off (about -12 % at the corners) under ``clutter`` random
-    rectangles, discs and thin bars whose grey levels lie within ``contrast`` of
-    ``background_level``, drawn from ``rng``.
-    """
-    cv2 = _cv2()
-    h, w = shape
-    yy, xx = np.mgrid[0:h, 0:w].astype(np.float32)
-    # Smooth illumination fall-off towards the corners (about -12 % at the corners).
-    r2 = ((xx - w / 2) / (w / 2)) ** 2 + ((yy - h / 2) / (h / 2)) ** 2
-    scene = (background_level * (1.0 - 0.06 * r2)).astype(np.float32)
-    scale = min(h, w)
-    for _ in range(int(clutter)):
-        level = float(background_level + rng.uniform(-contrast, contrast))
-        kind = rng.integers(3)
-        cx, cy = rng.uniform(0, w), rng.uniform(0, h)
-        if kind == 0:  # rotated rectangle
-            half = rng.uniform(0.03, 0.2, size=2) * scale
-            ang = rng.uniform(0, np.pi)
-            c, s = math.cos(ang), math.sin(ang)
-            pts = np.array(
-                [(-half[0], -half[1]), (half[0], -half[1]), (half[0], half[1]), (-half[0], half[1])]
-            )
-            pts = pts @ np.array([[c, s], [-s, c]]) + (cx, cy)
-            cv2.fillPoly(scene, [np.round(pts * 16).astype(np.int32)], level, cv2.LINE_AA, 4)
-        elif kind == 1:  # disc, sometimes ball-sized
-            rad = rng.uniform(0.02, 0.1) * scale
-            cv2.circle(
-                scene, (int(cx * 16), int(cy * 16)), int(rad * 16), level, -1, cv2.LINE_AA, 4
-            )
-        else:  # thin bar (a stand, a cable)
-            x2, y2 = cx + rng.uniform(-0.4, 0.4) * scale, cy + rng.uniform(-0.4, 0.4) * scale
-            th = int(rng.integers(2, 6))
-            cv2.line(
-                scene,
-                (int(cx * 16), int(cy * 16)),
-                (int(x2 * 16), int(y2 * 16)),
-                level,
-                th,
-                cv2.LINE_AA,
-                4,
-            )
-    return scene
-
-
-def flicker_gain(t_mid, exposure: float, amplitude: float, frequency: float, phase: float):
-    """Mean brightness gain of lamps flickering at ``frequency`` over one exposure.
-
-    The gain ``1 + amplitude cos(omega t + phase)`` averaged over an exposure centred on
-    ``t_mid`` is ``1 + amplitude cos(omega t_mid + phase) sinc(omega exposure / 2)``.
-
-    Parameters
-    ----------
-    t_mid : float or ndarray
-        Middle of the exposure (a frame's, or one image row's). [s]
-    exposure : float
-        Exposure time. [s]
-    amplitude : float
-        Relative flicker amplitude (0.06 = +-6 %). [1]
-    frequency : float
-        Flicker frequency (twice the mains frequency). [Hz]
-    phase : float
-        Phase at t = 0. [rad]
-
-    Returns
-    -------
-    float or ndarray
-        The gain (1 = none). [1]
-    """
-    if amplitude == 0:
-        return 1.0 if np.ndim(t_mid) == 0 else np.ones(np.shape(t_mid))
-    om = 2 * math.pi * frequency
-    half = om * exposure / 2
-    sinc = 1.0 if half == 0 else math.sin(half) / half
-    if np.ndim(t_mid) == 0:
-        return 1.0 + amplitude * math.cos(om * t_mid + phase) * sinc
-    return 1.0 + amplitude * np.cos(om * np.asarray(t_mid, dtype=float) + phase) * sinc
-
-
-def finish_frame(
-    img: np.ndarray, seed: int, k: int, *, noise_sigma: float, bit_depth: int, color: bool
-) -> np.ndarray:
-    """A lit frame (float32, 8-bit scale, flicker applied) as the camera stores it.
-
-    Tints it for colour output (B, G, R gains 0.92, 1.0, 1.06), adds Gaussian sensor noise
-    of ``noise_sigma`` grey levels drawn from the seed sequence ``(seed, 7919, k)``, scales
-    to 16 bits if asked (x 257), clips and rounds.
-
-    Returns
-    -------
-    ndarray
-        ``(h, w)`` or ``(h, w, 3)``, uint8 or uint16.
-    """
-    rng = np.random.default_rng(np.random.SeedSequence([seed, 7919, k]))
-    scale = 257.0 if bit_depth == 16 else 1.0
-    top = 65535.0 if bit_depth == 16 else 255.0
-    dtype = np.uint16 if bit_depth == 16 else np.uint8
-    if color:
-        tint = np.array([0.92, 1.0, 1.06], np.float32)  # B, G, R
-        img = img[:, :, None] * tint
-    if noise_sigma > 0:
-        img = img + rng.standard_normal(img.shape, dtype=np.float32) * np.float32(noise_sigma)
-    img *= np.float32(scale)
-    np.clip(img, 0.0, top, out=img)
-    return np.rint(img).astype(dtype)
-
-
-def _rect_coverage(shape: tuple[int, int], rect: Sequence[float]) -> np.ndarray:
-    """Exact per-pixel area coverage of an axis-aligned rectangle ``(x0, y0, x1, y1)`` [px]."""
-    h, w = shape
-    x0, y0, x1, y1 = (float(v) for v in rect)
-    cols = np.arange(w, dtype=np.float64)
-    rows = np.arange(h, dtype=np.float64)
-    cx = np.clip(np.minimum(cols + 0.5, x1) - np.maximum(cols - 0.5, x0), 0.0, 1.0)
-    cy = np.clip(np.minimum(rows + 0.5, y1) - np.maximum(rows - 0.5, y0), 0.0, 1.0)
-    return np.outer(cy, cx).astype(np.float32)
-
-
-class _Trajectory:
-    def __init__(self, trajectory, n_frames: int, t0: float, fps: float):
-        if callable(trajectory):
-            self._fn = trajectory
-            return
-        try:
-            xs, ys = (np.asarray(v, dtype=float) for v in trajectory)
-        except (TypeError, ValueError) as exc:
-            raise InputError(
-                "trajectory: expected a callable t -> (x_px, y_px) or a pair of arrays "
-                f"(x_px, y_px) with one value per frame, got {type(trajectory).__name__}; "
-                "pass one of those."
-            ) from exc
-        if xs.shape != (n_frames,) or ys.shape != (n_frames,):
-            raise InputError(
-                f"trajectory: arrays of shape {xs.shape} and {ys.shape}, expected ({n_frames},) "
-                f"each (one position per frame); pass one mid-exposure position per frame."
-            )
-        tk = t0 + np.arange(n_frames) / fps
-        if n_frames >= 4:
-            from scipy.interpolate import CubicSpline
-
-            sx, sy = CubicSpline(tk, xs), CubicSpline(tk, ys)
-            self._fn = lambda t: (sx(t), sy(t))
-        else:
-            self._fn = lambda t: (np.interp(t, tk, xs), np.interp(t, tk, ys))
-
-    def __call__(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        x, y = self._fn(np.asarray(t, dtype=float))
-        x = np.broadcast_to(np.asarray(x, dtype=float), np.shape(t))
-        y = np.broadcast_to(np.asarray(y, dtype=float), np.shape(t))
-        return x, y
-
-
 class FlightRenderer:
     """Renderer of one synthetic flight; frames on demand (see :func:`render_flight`).
 
     Build it with the same arguments as :func:`render_flight`; call :meth:`frame` for one
     frame or iterate :meth:`iter_frames` to stream long footage (e.g. into
-    :func:`write_video`) without holding it all in memory.  :attr:`truth` holds the exact
-    truth for all frames.
+    :func:`fitdrag.video.footage_files.write_video`) without holding it all in memory.
+    :attr:`truth` holds the exact truth for all frames.  A frame in which nothing moves in the
+    image (ball, second ball and hand outside, no tremble) costs only its noise.
     """
 
     def __init__(
@@ -450,6 +266,13 @@ class FlightRenderer:
         color: bool = False,
         supersample: int = 4,
         seed: int = 0,
+        second_ball: Callable | tuple | None = None,
+        texture: str | None = None,
+        texture_contrast: float = 30.0,
+        thread_px: float = 3.2,
+        tremble_px: float = 0.0,
+        ball_bgr: tuple[float, float, float] | None = None,
+        hand: Hand | None = None,
     ):
         self.n_frames = int(n_frames)
         if self.n_frames < 1:
@@ -470,6 +293,23 @@ class FlightRenderer:
             raise InputError(
                 f"shape: expected (height, width) of at least 8 px each, got {shape!r}."
             )
+        if texture not in (None, "fabric"):
+            raise InputError(f"texture: {texture!r} is not known; use None or 'fabric'.")
+        self.tremble_px = float(tremble_px)
+        if not (math.isfinite(self.tremble_px) and 0.0 <= self.tremble_px <= 5.0):
+            raise InputError(
+                f"tremble_px: expected a shift amplitude from 0 to 5 [px], got {tremble_px!r}; "
+                f"give the largest whole-scene shift per frame."
+            )
+        if ball_bgr is not None and len(tuple(ball_bgr)) != 3:
+            raise InputError(
+                f"ball_bgr: expected three levels (B, G, R) on the 8-bit scale, got {ball_bgr!r}."
+            )
+        if hand is not None and (not isinstance(hand, Hand) or int(hand.release_frame) < 0):
+            raise InputError(
+                f"hand: expected a Hand with release_frame >= 0, got {hand!r}; pass "
+                f"Hand(release_frame=...)."
+            )
         self.shape = (int(shape[0]), int(shape[1]))
         self.t0 = float(t0)
         self.ball_level = float(ball_level)
@@ -481,7 +321,13 @@ class FlightRenderer:
         self.flicker_hz = 2.0 * float(mains_hz)  # lamps flicker at twice the mains frequency
         self.flicker_phase = float(flicker_phase)
         self.bit_depth = bit_depth
-        self.color = bool(color)
+        self.ball_bgr = None if ball_bgr is None else tuple(float(v) for v in ball_bgr)
+        self.color = bool(color) or self.ball_bgr is not None
+        # The old colour mode tints the whole grey picture; a coloured ball keeps a grey scene.
+        self._tint = (
+            np.array([0.92, 1.0, 1.06], np.float32) if color and self.ball_bgr is None else None
+        )
+        self.hand = hand
         self.ss = int(supersample)
         self.seed = int(seed)
         self._homography = None if homography is None else np.asarray(homography, dtype=float)
@@ -490,12 +336,23 @@ class FlightRenderer:
                 "trajectory_in_world=True needs a homography (world -> image); pass one or give "
                 "the trajectory in pixels."
             )
-        self._traj = _Trajectory(trajectory, self.n_frames, self.t0, self.fps)
+        self._traj = Trajectory(trajectory, self.n_frames, self.t0, self.fps)
+        self._second = (
+            None
+            if second_ball is None
+            else Trajectory(second_ball, self.n_frames, self.t0, self.fps)
+        )
         self._in_world = bool(trajectory_in_world)
+        self._t_release = None if hand is None else self.t0 + int(hand.release_frame) / self.fps
 
         rng = np.random.default_rng(self.seed)
+        tex = None
+        if texture == "fabric":
+            tex = fabric_texture(
+                self.shape, float(texture_contrast), thread_px=float(thread_px), seed=self.seed
+            )
         scene = make_scene(
-            self.shape, float(background_level), clutter, rng, float(clutter_contrast)
+            self.shape, float(background_level), clutter, rng, float(clutter_contrast), tex
         )
         corners = {}
         for m in markers:
@@ -507,64 +364,133 @@ class FlightRenderer:
             c = marker_corners_in_image(m, self._homography)
             _draw_marker(scene, int(m.marker_id), c, 8)
             corners[int(m.marker_id)] = c
+        self._occ_rects = [tuple(float(v) for v in rect) for rect in occluders]
         occ = np.zeros(self.shape, np.float32)
-        for rect in occluders:
-            occ = np.maximum(occ, _rect_coverage(self.shape, rect))
+        for rect in self._occ_rects:
+            occ = np.maximum(occ, rect_coverage(self.shape, rect))
         self._occ = occ
         self._occ_level = float(occluder_level)
         scene_front = scene * (1.0 - occ) + self._occ_level * occ
         self.scene = scene_front.astype(np.float32)
         self._scene_behind = scene.astype(np.float32)
-        self._rng_seed_seq = np.random.SeedSequence(self.seed)
+        self._scene_behind.setflags(write=False)
+        self._shift_x, self._shift_y = tremble_shifts(self.n_frames, self.tremble_px, self.seed)
+        self._shifter = SceneShifter(self._scene_behind) if self.tremble_px > 0 else None
+        if self.ball_bgr is None:
+            self._ball_colour = np.full(3 if self.color else 1, self.ball_level, np.float32)
+        elif self.color:
+            self._ball_colour = np.asarray(self.ball_bgr, np.float32)
+        self._hand_colour = None
+        if hand is not None:
+            bgr = np.asarray(hand.bgr, np.float32)
+            self._hand_colour = bgr if self.color else np.array([luma(hand.bgr)], np.float32)
         self.truth = self._compute_truth(corners)
 
     # -- geometry ---------------------------------------------------------------------------
-    def _sub_times(self, k: int) -> np.ndarray:
+    def _sub_times(self, k: int, where=None) -> np.ndarray:
+        where = where or self._positions
         t_mid = self.t0 + k / self.fps
-        x0, y0 = self._positions(np.array([t_mid - self.exposure / 2, t_mid + self.exposure / 2]))
+        x0, y0 = where(np.array([t_mid - self.exposure / 2, t_mid + self.exposure / 2]))
         path = float(np.hypot(x0[1] - x0[0], y0[1] - y0[0]))
         n_sub = 1 if self.exposure == 0 else int(min(400, max(4, math.ceil(path / 0.1) + 1)))
         frac = (np.arange(n_sub) + 0.5) / n_sub - 0.5
         return t_mid + self.exposure * frac
 
-    def _positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        x, y = self._traj(t)
+    def _to_image(self, x, y) -> tuple[np.ndarray, np.ndarray]:
         if self._in_world:
             p = _apply_homography(self._homography, np.column_stack([x, y]))
             return p[:, 0], p[:, 1]
         return np.asarray(x, dtype=float), np.asarray(y, dtype=float)
 
+    def _positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Specimen centre in the still scene (no tremble) at times ``t``. [px]"""
+        return self._to_image(*self._traj(t))
+
+    def _second_positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return self._to_image(*self._second(t))
+
+    def _hand_positions(self, t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return self.hand.centre(t, self._positions, self._t_release)
+
     def _gain(self, t_mid: float) -> float:
         return flicker_gain(t_mid, self.exposure, self.flicker, self.flicker_hz, self.flicker_phase)
 
+    def _hidden(self, xs: np.ndarray, ys: np.ndarray) -> float:
+        """Exposure-integrated share of a ball at still-scene centres behind the occluders."""
+        if not self._occ.any():
+            return 0.0
+        a, _, (x0, y0) = swept_disc(xs, ys, self.radius, self.shape, self.ss)
+        if a is None:
+            return 0.0
+        occ = self._occ[y0 : y0 + a.shape[0], x0 : x0 + a.shape[1]]
+        tot = float(a.sum())
+        return float((a * occ).sum()) / tot if tot > 0 else 0.0
+
+    def _edge(self, xs: np.ndarray, ys: np.ndarray) -> float:
+        h, w = self.shape
+        d = np.minimum.reduce([xs + 0.5, (w - 0.5) - xs, ys + 0.5, (h - 0.5) - ys])
+        return float(d.min() - self.radius)
+
     def _compute_truth(self, corners: dict) -> SyntheticTruth:
         n = self.n_frames
-        h, w = self.shape
+        h = self.shape[0]
+        r = self.radius
         t = self.t0 + np.arange(n) / self.fps
+        sx, sy = self._shift_x, self._shift_y
         xm, ym = self._positions(t)
-        xa, ya, edge, blur, hidden, gain = (np.empty(n) for _ in range(6))
+        xm, ym = xm + sx, ym + sy
+        xa, ya, edge, blur, hidden, gain, top, bottom = (np.empty(n) for _ in range(8))
+        outside = np.zeros(n, bool)
+        two = self._second is not None
+        if two:
+            x2, y2 = self._second_positions(t)
+            x2, y2 = x2 + sx, y2 + sy
+            xa2, ya2, edge2, hidden2 = (np.empty(n) for _ in range(4))
+            outside2, overlap = np.zeros(n, bool), np.zeros(n, bool)
         for k in range(n):
             ts = self._sub_times(k)
             xs, ys = self._positions(ts)
+            hidden[k] = self._hidden(xs, ys)
+            xs, ys = xs + sx[k], ys + sy[k]
             xa[k], ya[k] = xs.mean(), ys.mean()
-            d = np.minimum.reduce([xs + 0.5, (w - 0.5) - xs, ys + 0.5, (h - 0.5) - ys])
-            edge[k] = float(d.min() - self.radius)
+            edge[k] = self._edge(xs, ys)
+            outside[k] = sub_positions_outside(xs, ys, r, self.shape)
+            top[k], bottom[k] = ys.min() - r, ys.max() + r
             blur[k] = float(np.hypot(np.diff(xs), np.diff(ys)).sum()) * (
                 len(xs) / max(len(xs) - 1, 1)
             )
             gain[k] = self._gain(t[k])
-            if self._occ.any():
-                a, _, (x0, y0) = self._ball_patch(xs, ys, with_intensity=False)
-                if a is None:
-                    hidden[k] = 0.0
-                else:
-                    occ = self._occ[y0 : y0 + a.shape[0], x0 : x0 + a.shape[1]]
-                    tot = float(a.sum())
-                    hidden[k] = float((a * occ).sum()) / tot if tot > 0 else 0.0
-            else:
-                hidden[k] = 0.0
+            if two:
+                ts2 = self._sub_times(k, self._second_positions)
+                u, v = self._second_positions(ts2)
+                hidden2[k] = self._hidden(u, v)
+                u, v = u + sx[k], v + sy[k]
+                xa2[k], ya2[k] = u.mean(), v.mean()
+                edge2[k] = self._edge(u, v)
+                outside2[k] = sub_positions_outside(u, v, r, self.shape)
+                gap = np.hypot(u[:, None] - xs[None, :], v[:, None] - ys[None, :]).min()
+                overlap[k] = bool(gap <= 2 * r)
         inside = edge >= 1.0
-        for arr in (t, xm, ym, xa, ya, edge, hidden, gain, blur, inside):
+        vis_code = visibility_codes(edge, outside, hidden)
+        row_first = np.clip(np.floor(top + 0.5), 0, h - 1).astype(int)
+        row_last = np.clip(np.ceil(bottom - 0.5), 0, h - 1).astype(int)
+        row_first[outside] = -1
+        row_last[outside] = -1
+        held = np.zeros(n, bool)
+        if self.hand is not None:
+            held[: min(int(self.hand.release_frame), n)] = True
+        second = None
+        if two:
+            code2 = visibility_codes(edge2, outside2, hidden2)
+            code2[overlap & (code2 == int(Visibility.FULLY))] = int(Visibility.PARTLY)
+            arrays2 = (x2, y2, xa2, ya2, code2, overlap)
+            for arr in arrays2:
+                arr.setflags(write=False)
+            second = SecondBallTruth(*arrays2)
+        diameter = np.full(n, 2.0 * r)
+        arrays = (t, xm, ym, xa, ya, edge, hidden, gain, blur, inside, vis_code, diameter, top,
+                  bottom, row_first, row_last, sx, sy, held)  # fmt: skip
+        for arr in arrays:
             arr.setflags(write=False)
         return SyntheticTruth(
             t=t,
@@ -575,62 +501,79 @@ class FlightRenderer:
             edge_distance_px=edge,
             inside=inside,
             hidden_fraction=hidden,
-            visible=inside & (hidden <= 0.0),
+            visible=vis_code == int(Visibility.FULLY),
             gain=gain,
             blur_px=blur,
-            radius_px=self.radius,
+            radius_px=r,
             marker_corners=corners,
+            visibility=vis_code,
+            diameter_px=diameter,
+            top_px=top,
+            bottom_px=bottom,
+            row_first=row_first,
+            row_last=row_last,
+            shift_x_px=sx,
+            shift_y_px=sy,
+            held=held,
+            second=second,
         )
 
-    def _ball_patch(self, xs: np.ndarray, ys: np.ndarray, with_intensity: bool = True):
-        """Exposure-averaged coverage (and radiance) of the ball on a pixel patch."""
-        h, w = self.shape
-        r = self.radius
-        x0 = max(int(math.floor(xs.min() - r)) - 2, 0)
-        x1 = min(int(math.ceil(xs.max() + r)) + 3, w)
-        y0 = max(int(math.floor(ys.min() - r)) - 2, 0)
-        y1 = min(int(math.ceil(ys.max() + r)) + 3, h)
-        if x1 <= x0 or y1 <= y0:
-            return None, None, (0, 0)
-        ss = self.ss
-        gx = (x0 + (np.arange((x1 - x0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
-        gy = (y0 + (np.arange((y1 - y0) * ss) + 0.5) / ss - 0.5).astype(np.float64)
-        acc_a = np.zeros((len(gy), len(gx)))
-        acc_i = np.zeros_like(acc_a) if with_intensity else None
-        lx, ly, lz = self.light
-        for xc, yc in zip(xs, ys, strict=True):
-            dx = gx[None, :] - xc
-            dy = gy[:, None] - yc
-            dist = np.sqrt(dx * dx + dy * dy)
-            a = np.clip((r - dist) * ss + 0.5, 0.0, 1.0)
-            acc_a += a
-            if with_intensity:
-                nx, ny = dx / r, dy / r
-                nz = np.sqrt(np.clip(1.0 - nx * nx - ny * ny, 0.0, None))
-                lam = np.clip(nx * lx + ny * ly + nz * lz, 0.0, None)
-                acc_i += a * (self.ambient + (1.0 - self.ambient) * lam)
-        ph, pw = y1 - y0, x1 - x0
-        n = len(xs)
-        cov = acc_a.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n
-        rad = None
-        if with_intensity:
-            rad = acc_i.reshape(ph, ss, pw, ss).mean(axis=(1, 3)) / n * self.ball_level
-        return cov, rad, (x0, y0)
-
     # -- frames -----------------------------------------------------------------------------
+    def _layers(self, k: int) -> list:
+        """What moves in frame ``k``, back to front: (coverage, shade, (x0, y0), colour)."""
+        sx, sy = self._shift_x[k], self._shift_y[k]
+        out = []
+        light = self.light
+        if self._second is not None:
+            u, v = self._second_positions(self._sub_times(k, self._second_positions))
+            cov, shade, off = swept_disc(u + sx, v + sy, self.radius, self.shape, self.ss, light,
+                                         self.ambient)  # fmt: skip
+            if cov is not None:
+                out.append((cov, shade, off, self._ball_colour))
+        if self.hand is not None:
+            u, v = self._hand_positions(self._sub_times(k, self._hand_positions))
+            cov, shade, off = swept_ellipse(u + sx, v + sy, self.hand.half_axes_px, self.shape)
+            if cov is not None:
+                out.append((cov, shade, off, self._hand_colour))
+        xs, ys = self._positions(self._sub_times(k))
+        cov, shade, off = swept_disc(xs + sx, ys + sy, self.radius, self.shape, self.ss, light,
+                                     self.ambient)  # fmt: skip
+        if cov is not None:
+            out.append((cov, shade, off, self._ball_colour))
+        return out
+
+    def _occluders(self, k: int) -> np.ndarray:
+        if self._shifter is None or not self._occ_rects:
+            return self._occ
+        sx, sy = self._shift_x[k], self._shift_y[k]
+        occ = np.zeros(self.shape, np.float32)
+        for x0, y0, x1, y1 in self._occ_rects:
+            occ = np.maximum(occ, rect_coverage(self.shape, (x0 + sx, y0 + sy, x1 + sx, y1 + sy)))
+        return occ
+
     def clean_frame(self, k: int) -> np.ndarray:
-        """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale)."""
+        """Frame ``k`` before flicker, noise and quantisation (float32, 8-bit scale; grey
+        ``(h, w)`` or, for colour footage, ``(h, w, 3)`` before the colour tint)."""
         if not (0 <= k < self.n_frames):
             raise InputError(f"frame: {k!r} is outside 0..{self.n_frames - 1}.")
-        img = self._scene_behind.copy()
-        xs, ys = self._positions(self._sub_times(k))
-        cov, rad, (x0, y0) = self._ball_patch(xs, ys)
-        if cov is not None:
+        if self._shifter is None:
+            base = self._scene_behind
+        else:
+            base = self._shifter(self._shift_x[k], self._shift_y[k])
+        layers = self._layers(k)
+        occ = self._occluders(k)
+        if not layers and not occ.any() and not self.color:
+            return base  # nothing moves: the (read-only) still scene itself
+        img = np.repeat(base[:, :, None], 3, axis=2) if self.color else base.copy()
+        for cov, shade, (x0, y0), colour in layers:
             sl = (slice(y0, y0 + cov.shape[0]), slice(x0, x0 + cov.shape[1]))
-            img[sl] = img[sl] * (1.0 - cov) + rad
-        occ = self._occ
+            if self.color:
+                img[sl] = img[sl] * (1.0 - cov[:, :, None]) + shade[:, :, None] * colour
+            else:
+                img[sl] = img[sl] * (1.0 - cov) + shade * colour[0]
         if occ.any():
-            img = img * (1.0 - occ) + self._occ_level * occ
+            o = occ[:, :, None] if self.color else occ
+            img = img * (1.0 - o) + self._occ_level * o
         return img
 
     def frame(self, k: int) -> np.ndarray:
@@ -638,7 +581,7 @@ class FlightRenderer:
         img = self.clean_frame(k) * np.float32(self.truth.gain[k])
         return finish_frame(
             img, self.seed, k, noise_sigma=self.noise_sigma, bit_depth=self.bit_depth,
-            color=self.color,
+            color=self._tint is not None,
         )  # fmt: skip
 
     def iter_frames(self) -> Iterator[np.ndarray]:
@@ -802,7 +745,26 @@ def render_flight(trajectory, n_frames: int, fps: float, **options) -> Synthetic
     supersample : int
         Supersampling factor for the ball's anti-aliasing.
     seed : int
-        Seed for clutter and noise; the same seed gives identical footage.
+        Seed for clutter, texture, tremble and noise; the same seed gives identical footage.
+    second_ball : callable or (x_px, y_px), optional
+        Path of a second ball of the same size and look (same form as ``trajectory``; it
+        passes behind the specimen).
+    texture : {None, "fabric"}
+        Backdrop: a plain wall, or a woven cloth (:func:`~fitdrag.video.synthetic_scene.
+        fabric_texture`).
+    texture_contrast : float
+        Peak-to-peak brightness of the weave (8-bit scale).
+    thread_px : float
+        Thread pitch of the weave. [px]
+    tremble_px : float
+        Camera tremble: each frame's whole picture is shifted by x and y drawn uniformly in
+        +-``tremble_px`` (truth in ``shift_x_px``, ``shift_y_px``). [px]
+    ball_bgr : (float, float, float), optional
+        Colour of a fully lit patch of the ball (B, G, R, 8-bit scale): BGR frames with a grey
+        scene.
+    hand : Hand, optional
+        A hand (:class:`~fitdrag.video.synthetic_scene.Hand`) that holds the ball until its
+        release frame and then moves away.
 
     Returns
     -------
@@ -814,132 +776,3 @@ def render_flight(trajectory, n_frames: int, fps: float, **options) -> Synthetic
     return SyntheticFootage(
         frames=frames, truth=r.truth, fps=r.fps, exposure=r.exposure, scene=r.scene
     )
-
-
-def write_video(frames, path, fps: float, *, quality: int = 90, overwrite: bool = False) -> Path:
-    """Write frames to a Motion-JPEG AVI file.
-
-    Parameters
-    ----------
-    frames : iterable of ndarray
-        uint8 frames, grey ``(h, w)`` or BGR ``(h, w, 3)``, all the same shape.
-    path : str or Path
-        Output file; ``.avi`` is the safe extension for Motion-JPEG.
-    fps : float
-        Frame rate written into the container. [1/s]
-    quality : int
-        JPEG quality 1..100.
-    overwrite : bool
-        Replace an existing file.
-
-    Returns
-    -------
-    Path
-        The written file.
-    """
-    cv2 = _cv2()
-    path = Path(path)
-    fps = _check_positive("fps", fps, "[1/s]", "give the frame rate to write")
-    if path.exists() and not overwrite:
-        raise InputError(f"{path}: file exists; pass overwrite=True to replace it.")
-    writer = None
-    n = 0
-    try:
-        for img in frames:
-            img = np.asarray(img)
-            if img.dtype != np.uint8:
-                raise InputError(
-                    f"frames: video frames must be uint8, got {img.dtype}; use write_frames for "
-                    f"16-bit footage."
-                )
-            if writer is None:
-                shape = img.shape
-                writer = cv2.VideoWriter(
-                    str(path),
-                    cv2.CAP_OPENCV_MJPEG,
-                    cv2.VideoWriter_fourcc(*"MJPG"),
-                    fps,
-                    (shape[1], shape[0]),
-                    [cv2.VIDEOWRITER_PROP_QUALITY, int(quality), cv2.VIDEOWRITER_PROP_IS_COLOR, 1],
-                )
-                if not writer.isOpened():
-                    raise InputError(f"{path}: cannot open a Motion-JPEG writer there.")
-            elif img.shape != shape:
-                raise InputError(
-                    f"frames: frame {n} has shape {img.shape}, frame 0 had {shape}; all frames "
-                    f"must match."
-                )
-            # OpenCV's own Motion-JPEG writer stores grey frames in a form other decoders
-            # misread: always write three channels.
-            writer.write(img if img.ndim == 3 else cv2.cvtColor(img, cv2.COLOR_GRAY2BGR))
-            n += 1
-    finally:
-        if writer is not None:
-            writer.release()
-    if n == 0:
-        raise InputError("frames: nothing to write; pass at least one frame.")
-    return path
-
-
-def write_frames(
-    frames,
-    folder,
-    *,
-    ext: str = "png",
-    bit_depth: int | None = None,
-    prefix: str = "frame_",
-    first: int = 0,
-    digits: int = 6,
-) -> list[Path]:
-    """Write frames as numbered image files (``frame_000000.png``, ...).
-
-    Parameters
-    ----------
-    frames : iterable of ndarray
-        Grey or BGR frames, uint8 or uint16.
-    folder : str or Path
-        Output folder, created if missing.
-    ext : str
-        ``png``, ``tif``/``tiff`` (written uncompressed) or ``jpg``/``jpeg`` (8-bit only).
-    bit_depth : int, optional
-        8 or 16; default that of the frames.  8-bit frames written as 16 bits are scaled by
-        257 and 16-bit frames written as 8 bits are divided by 257.
-    prefix : str
-        File-name prefix.
-    first : int
-        Number of the first file.
-    digits : int
-        Zero-padded width of the number.
-
-    Returns
-    -------
-    list of Path
-        The files written.
-    """
-    cv2 = _cv2()
-    ext = ext.lower().lstrip(".")
-    if ext not in ("png", "tif", "tiff", "jpg", "jpeg"):
-        raise InputError(f"ext: {ext!r} is not supported; use png, tif, tiff, jpg or jpeg.")
-    if bit_depth not in (None, 8, 16):
-        raise InputError(f"bit_depth: expected 8 or 16, got {bit_depth!r}; choose one.")
-    if bit_depth == 16 and ext in ("jpg", "jpeg"):
-        raise InputError("bit_depth: JPEG files hold 8 bits only; use png or tif for 16-bit.")
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    out = []
-    for i, img in enumerate(frames):
-        img = np.asarray(img)
-        depth = bit_depth or (16 if img.dtype == np.uint16 else 8)
-        if depth == 16 and img.dtype == np.uint8:
-            img = img.astype(np.uint16) * 257
-        elif depth == 8 and img.dtype == np.uint16:
-            img = np.rint(img / 257.0).astype(np.uint8)
-        elif img.dtype not in (np.uint8, np.uint16):
-            raise InputError(f"frames: frame {i} is {img.dtype}; give uint8 or uint16 frames.")
-        p = folder / f"{prefix}{first + i:0{digits}d}.{ext}"
-        # TIFF without compression, as high-speed cameras write it (and fast to read).
-        params = [cv2.IMWRITE_TIFF_COMPRESSION, 1] if ext in ("tif", "tiff") else []
-        if not cv2.imwrite(str(p), img, params):
-            raise InputError(f"{p}: could not write the image; check the folder is writable.")
-        out.append(p)
-    return out

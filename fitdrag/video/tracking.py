@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from fitdrag.errors import InputError, InputFileNotFoundError
+from fitdrag.video.movers import frame_ranges
 
 __all__ = [
     "FootageTrack",
@@ -38,6 +39,7 @@ __all__ = [
     "frame_ranges",
     "parse_origin",
     "parse_reference",
+    "parse_region",
     "track_csv_text",
     "track_footage",
 ]
@@ -109,6 +111,60 @@ def _as_reference(value: Any) -> tuple[float, float, float, float, float]:
     return vals[0], vals[1], vals[2], vals[3], vals[4]
 
 
+def parse_region(text: str) -> tuple[float, float, float, float]:
+    """Parse ``X0,Y0,X1,Y1``: two opposite corners of a region of interest [px, y down].
+
+    Raises
+    ------
+    ValueError
+        Not four finite numbers separated by commas.
+    """
+    vals = _numbers(text)
+    if vals is None or len(vals) != 4:
+        raise InputError(
+            f"--region: expected X0,Y0,X1,Y1 (four numbers separated by commas: the upper-left "
+            f"and lower-right corners of the region in image pixels), got {text!r}; e.g. "
+            f"--region 200,0,1280,800."
+        )
+    return vals[0], vals[1], vals[2], vals[3]
+
+
+def _as_region(value: Any) -> tuple[float, float, float, float]:
+    if isinstance(value, str):
+        return parse_region(value)
+    try:
+        vals = [float(v) for v in value]
+    except (TypeError, ValueError):
+        vals = []
+    if len(vals) != 4 or not all(math.isfinite(v) for v in vals):
+        return parse_region(str(value))  # raises with the usual message
+    return vals[0], vals[1], vals[2], vals[3]
+
+
+def _advice(det, rate: float) -> str:
+    """What to change when too few frames hold the specimen, from the reasons recorded."""
+    why = " ".join(r for _, r in det.missing)
+    tips = []
+    if "not confirmed by consistent motion" in why or getattr(det, "other_movers", ()):
+        tips.append(
+            "if a hand or another object moves in view, give a region of interest around the "
+            "flight (--region X0,Y0,X1,Y1)"
+        )
+    if "below min_area" in why or "above max_area" in why:
+        tips.append("the blobs seen are not of the specimen's size: check the camera set-up "
+                    "and --scale")  # fmt: skip
+    if "no blob near the predicted position" in why:
+        tips.append(
+            f"the specimen moves too far between frames for the rate given: check --fps "
+            f"({rate:g} frames/s)"
+        )
+    if "does not move" in why:
+        tips.append("the specimen rests in view: start after the release (--start)")
+    if not tips:
+        tips.append("choose --start/--stop around the flight")
+    return "To change: " + "; ".join(tips) + "."
+
+
 def _as_origin(value: Any) -> tuple[float, float]:
     if isinstance(value, str):
         return parse_origin(value)
@@ -119,20 +175,6 @@ def _as_origin(value: Any) -> tuple[float, float]:
     if len(vals) != 2 or not all(math.isfinite(v) for v in vals):
         return parse_origin(str(value))  # raises with the usual message
     return vals[0], vals[1]
-
-
-def frame_ranges(frames) -> str:
-    """Compact text of frame numbers: ``'3-7 12 15-16'``."""
-    frames = sorted(int(f) for f in frames)
-    out = []
-    i = 0
-    while i < len(frames):
-        j = i
-        while j + 1 < len(frames) and frames[j + 1] == frames[j] + 1:
-            j += 1
-        out.append(str(frames[i]) if i == j else f"{frames[i]}-{frames[j]}")
-        i = j + 1
-    return " ".join(out)
 
 
 # ------------------------------------------------------------------------------------------
@@ -201,6 +243,8 @@ class FootageTrack:
                 txt = txt[:120] + " ..."
             lines.append(f"  missing: {txt}")
             lines.append("  reasons: " + "; ".join(f"{k} ({n})" for k, n in top))
+        for other in getattr(det, "other_movers", ()):
+            lines.append(f"  {other.describe()} (not tracked)")
         u = cal.scale_relative_uncertainty
         cal_txt = f"calibration: {cal.method}"
         if "ids" in cal.details:
@@ -291,6 +335,7 @@ def track_footage(
     lens: Any = None,
     scale_uncertainty: float = 0.0,
     detector: str = "background-difference",
+    region: str | Sequence[float] | None = None,
     progress: bool = False,
 ) -> FootageTrack:
     """Track the specimen in footage and calibrate its centroids to world metres.
@@ -343,6 +388,9 @@ def track_footage(
     detector : str
         Registered detector (:func:`fitdrag.video.detect.detector_names`); default the
         background-difference detector.
+    region : "X0,Y0,X1,Y1" or four numbers, optional
+        Region of interest: only blobs centred inside it start a track (e.g. to leave out a
+        hand or another moving object at one side of the image). [px, image, y down]
     progress : bool
         Show a progress bar on footage longer than 200 frames (or of unknown length).
 
@@ -363,7 +411,7 @@ def track_footage(
     """
     from fitdrag.tracks.track import MIN_POINTS, Track
     from fitdrag.video.calibration import load_marker_layout
-    from fitdrag.video.detect import get_detector
+    from fitdrag.video.detect import get_detector, reasons_by_range
     from fitdrag.video.lens import LensModel, load_lens
     from fitdrag.video.sources import check_frame_rate, open_source
 
@@ -405,6 +453,7 @@ def track_footage(
     if not math.isfinite(rot):
         raise InputError(f"rotation: expected a finite angle in degrees, got {rotation!r}.")
     origin_px = _as_origin(origin) if origin is not None else None
+    roi = _as_region(region) if region is not None else None
     ref = _as_reference(reference) if reference is not None else None
     if marker_frame is not None and (
         isinstance(marker_frame, bool) or not isinstance(marker_frame, int | np.integer)
@@ -441,7 +490,8 @@ def track_footage(
         )  # fmt: skip
         n_frames = source.n_frames
         bar = bool(progress) and (n_frames is None or n_frames > PROGRESS_MIN_FRAMES)
-        det = get_detector(detector)(source, start=start, stop=stop, progress=bar)
+        extra = {} if roi is None else {"region": roi}
+        det = get_detector(detector)(source, start=start, stop=stop, progress=bar, **extra)
         name = str(source.name)
     finally:
         source.close()
@@ -451,7 +501,9 @@ def track_footage(
         raise InputError(
             f"{name}: the specimen was found in {n_found} frame(s), at least "
             f"{MIN_POINTS} are needed for a track; check the frame range (--start/--stop) "
-            f"and that the specimen moves against a steady background."
+            f"and that the specimen moves against a steady background. Frames without it: "
+            f"{reasons_by_range(dict(det.missing)) if det.missing else 'none'}. "
+            f"{_advice(det, rate)}"
         )
     x, y = cal.pixel_to_world(det.x_px, det.y_px)
     t = np.asarray(det.frame, dtype=float) / rate
@@ -468,6 +520,9 @@ def track_footage(
         meta["missing_frames"] = (
             text if len(text) <= _MISSING_TEXT_LIMIT else text[:_MISSING_TEXT_LIMIT] + " ..."
         )
+    others = getattr(det, "other_movers", ())
+    if others:
+        meta["other_moving_objects"] = "; ".join(o.describe() for o in others)
     meta.update(cal.to_meta())
     if lens_file is not None:
         meta["lens_file"] = lens_file
@@ -501,27 +556,69 @@ def _header_value(v) -> str | None:
     return None
 
 
-def track_csv_text(meta: Mapping, frame, t, x, y, x_px, y_px, quality, sigma_px) -> str:
+def _fmt_optional(v: float, fmt: str) -> str:
+    return "" if not math.isfinite(v) else format(v, fmt)
+
+
+def track_csv_text(
+    meta: Mapping,
+    frame,
+    t,
+    x,
+    y,
+    x_px,
+    y_px,
+    quality,
+    sigma_px,
+    outline_diameter_px=None,
+    u_outline_diameter_px=None,
+    row_first=None,
+    row_last=None,
+) -> str:
     """The track CSV: ``# key: value`` header lines, then frame,t,x,y,x_px,y_px,quality,
-    sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down)."""
+    sigma_px (t [s]; x, y [m], world, y up; x_px, y_px, sigma_px [px], image, y down) and,
+    when ``outline_diameter_px`` is given, outline_diameter_px, u_outline_diameter_px [px]
+    (apparent diameter perpendicular to the motion and its standard uncertainty; blank where
+    not measured) and row_first, row_last (image rows the outline spans; blank where not
+    measured)."""
     from fitdrag._version import __version__
 
+    outline = outline_diameter_px is not None
     head = {
         "format": "fitdrag track; t [s]; x, y [m]; world frame, y up; x_px, y_px, sigma_px "
-        "[px], image, y down",
+        "[px], image, y down"
+        + ("; outline_diameter_px, u_outline_diameter_px [px]; row_first, row_last [row]"
+           if outline else ""),
         "written_by": f"fitdrag {__version__} (fitdrag track)",
-    }
+    }  # fmt: skip
     for k, v in meta.items():
         sv = _header_value(v)
         if sv is not None and ":" not in k and k not in head:
             head[k] = sv
     lines = [f"# {k}: {v}".rstrip() for k, v in head.items()]
-    lines.append("frame,t,x,y,x_px,y_px,quality,sigma_px")
-    for row in zip(frame, t, x, y, x_px, y_px, quality, sigma_px):
-        f, tt, xx, yy, u, v, q, s = row
-        lines.append(
-            f"{int(f)},{float(tt)!r},{float(xx)!r},{float(yy)!r},{u:.4f},{v:.4f},{q:.3f},{s:.4f}"
+    names = "frame,t,x,y,x_px,y_px,quality,sigma_px"
+    if outline:
+        names += ",outline_diameter_px,u_outline_diameter_px,row_first,row_last"
+    lines.append(names)
+    n = len(frame)
+    if outline:
+        d = np.asarray(outline_diameter_px, dtype=float)
+        ud = np.asarray(
+            u_outline_diameter_px if u_outline_diameter_px is not None else np.full(n, np.nan),
+            dtype=float,
         )
+        r0 = np.asarray(row_first if row_first is not None else np.full(n, -1), dtype=np.int64)
+        r1 = np.asarray(row_last if row_last is not None else np.full(n, -1), dtype=np.int64)
+    for i, row in enumerate(zip(frame, t, x, y, x_px, y_px, quality, sigma_px)):
+        f, tt, xx, yy, u, v, q, s = row
+        text = f"{int(f)},{float(tt)!r},{float(xx)!r},{float(yy)!r},{u:.4f},{v:.4f},{q:.3f},{s:.4f}"
+        if outline:
+            rows_ok = r0[i] >= 0 and r1[i] >= 0
+            text += (
+                f",{_fmt_optional(float(d[i]), '.4f')},{_fmt_optional(float(ud[i]), '.4f')},"
+                f"{int(r0[i]) if rows_ok else ''},{int(r1[i]) if rows_ok else ''}"
+            )
+        lines.append(text)
     return "\n".join(lines) + "\n"
 
 
@@ -531,13 +628,19 @@ def footage_track_csv_text(ft: FootageTrack) -> str:
     Header lines ``# key: value`` carry the track's metadata (calibration method, scale
     [m/px], ``scale_relative_uncertainty`` [1], reprojection RMS [px], frames missing, ...);
     the columns are frame, t [s], x, y [m] (world, y up), x_px, y_px [px] (image, y down),
-    quality [0..1] and sigma_px [px].  :func:`fitdrag.tracks.read_track` reads it back with
-    the same t, x and y (floats are written with ``repr``).
+    quality [0..1] and sigma_px [px], then, from detectors that measure the outline,
+    outline_diameter_px and u_outline_diameter_px [px] (apparent diameter perpendicular to
+    the motion, blank where the model fit failed) and row_first, row_last (image rows the
+    outline spans).  :func:`fitdrag.tracks.read_track` reads it back with the same t, x and
+    y (floats are written with ``repr``) and keeps the outline columns in
+    ``meta["per_point"]``.
     """
     tr, det = ft.track, ft.detections
     return track_csv_text(
-        tr.meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px
-    )
+        tr.meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px,
+        getattr(det, "outline_diameter_px", None), getattr(det, "u_outline_diameter_px", None),
+        getattr(det, "row_first", None), getattr(det, "row_last", None),
+    )  # fmt: skip
 
 
 # ------------------------------------------------------------------------------------------

@@ -1,0 +1,875 @@
+"""Model fit of one blurred ball in a small crop: centre, apparent diameter and blur.
+
+The image of a ball during one exposure is known in shape: a disc of the ball's apparent
+radius ``r`` whose centre moves along a short straight segment (the blur vector ``b``) at
+constant speed, shaded by the light on its surface.  :func:`fit_ball` fits that shape to the
+background-subtracted pixels of one blob and returns the segment's midpoint (the centre
+averaged over the exposure, which is what the track needs), the apparent diameter ``2 r``
+(the blob's width perpendicular to the motion), the blur, the image rows the blob spans,
+standard uncertainties and residual statistics.
+
+The model of a pixel's background-subtracted value ``d = f - g B`` (``f`` the frame, ``B`` the
+background model, ``g`` the local brightness gain) is::
+
+    d = sum_j a_j S_j  +  k g B (1 - C)  -  g B C
+
+where ``C`` is the pixel's coverage by the ball averaged over the exposure and the pixel's area
+and ``S_j`` are the same average of the coverage times the shading basis functions
+``1, n_x, n_y, n_z`` (the components of the ball's surface normal): a Lambertian ball under a
+distant lamp plus ambient light has the radiance ``a_0 + a_1 n_x + a_2 n_y + a_3 n_z`` where no
+part of the visible face is in shadow [1].  ``k`` absorbs a small error of the local gain.
+The five linear coefficients ``a_j, k`` and the four non-linear ones (centre x, y, radius,
+blur length) are solved together by Levenberg-Marquardt with Marquardt's diagonal scaling
+[2], compiled: the linear ones first by one exact linear step at the guess (the blob's
+weighted centroid, the radius of its area, the blur of its second moments), then all nine;
+the Jacobian is analytic (the derivatives of each sample's closed-form integrals below, so
+exact for the rendered model).  The loop stops when the centre, radius and blur move less
+than :data:`_STEP_TOLERANCE` or the cost falls by less than a hundredth of a noise variance;
+a rejected step of a few hundredths of a pixel also ends it (below that the set of finely
+sampled pixels, which moves with the outline, not the parameters, decides the cost).
+Typically five or six model evaluations.
+
+**Rendering.**  The time average is exact: for a point ``p`` the ball covers it while the
+centre is on the part of the segment within ``r`` of ``p``, an interval found in closed form,
+and the integrals of ``n_x, n_y, n_z`` over that interval are closed forms too (``n_z`` via
+``integral sqrt(h^2 - t^2) dt = (t sqrt(h^2 - t^2) + h^2 asin(t / h)) / 2``).  The pixel
+average is a 12-sample N-rooks pattern (each sample in its own sub-row and sub-column) in
+pixels within 0.75 px of the outline of the swept disc (the
+two end circles and the straight sides), one sample at the pixel centre elsewhere.  Blur
+shorter than 0.25 px is rendered as 0.25 px along the fitted direction (keeps the model
+continuous in the centre; a static ball's centre is unbiased by symmetry).
+
+**Uncertainty.**  The covariance of the non-linear parameters is the least-squares sandwich
+``A^-1 J^T V J A^-1`` with ``A = J^T J`` and ``J`` the Jacobian of all nine parameters (its
+block for the non-linear ones equals the inverse of the projected problem's Schur complement,
+Golub and Pereyra [2] sec. 3), and the noise covariance ``V = s^2 R``
+[3]: ``s^2`` is the residual variance ``RSS / (n - 10)`` of this fit (so misfit of the model
+raises the stated uncertainty), never below the frame's measured noise level squared times
+``noise_floor``; ``R`` is the spatial correlation of the noise, measured from this fit's
+residuals at lags up to :data:`CORRELATION_LAGS` pixels (compressed video has noise that is
+correlated over neighbouring pixels; with white noise ``R`` is the identity and the sandwich
+is the usual ``s^2 A^-1``).  The residual correlation is taken as stationary over the crop.
+A model error (:data:`MODEL_ERROR_CENTRE`, :data:`MODEL_ERROR_DIAMETER`) is added in
+quadrature: where the lamp leaves part of the visible face in shadow the four shading
+functions cannot follow the shadow's edge exactly.
+
+**Blur direction.**  The direction of the blur is held at the guess (take it from the track's
+motion); the fit adjusts the centre, the radius and the blur length.  A wrong direction moves
+the model symmetrically about its centre, so the centre is unbiased to first order.
+
+References
+----------
+1. B. K. P. Horn, *Robot Vision*, MIT Press (1986), ch. 10 (Lambertian reflectance,
+   radiance ``rho (n . l)`` under a distant source).
+2. D. W. Marquardt, "An algorithm for least-squares estimation of nonlinear parameters",
+   J. SIAM 11, 431-441 (1963); G. H. Golub and V. Pereyra, "The differentiation of
+   pseudo-inverses and nonlinear least squares problems whose variables separate", SIAM J.
+   Numer. Anal. 10, 413-432 (1973);
+   L. Kaufman, "A variable projection method for solving separable nonlinear least squares
+   problems", BIT 15, 49-57 (1975).
+3. G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley (1989), sec. 2.1.4 and 6.1
+   (least squares under correlated errors: covariance ``(J^T J)^-1 J^T V J (J^T J)^-1``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+
+from fitdrag.errors import InputError
+
+__all__ = [
+    "CORRELATION_LAGS",
+    "MODEL_ERROR_CENTRE",
+    "MODEL_ERROR_DIAMETER",
+    "BallFit",
+    "BallGuess",
+    "fit_ball",
+    "render_ball",
+]
+
+#: Largest pixel lag (both axes) at which the residual correlation enters the uncertainty.
+CORRELATION_LAGS = 3
+# Samples per pixel near the outline (an N-rooks pattern) and its column stride.
+_N_SAMPLES = 12
+_ROOK_STRIDE = 5
+# Shortest blur rendered. [px]
+_MIN_BLUR = 0.25
+# Shading basis functions: 1, n_x, n_y, n_z.
+_N_BASIS = 4
+# Linear coefficients: the shading basis and the gain correction.
+_N_LIN = _N_BASIS + 1
+# Non-linear parameters: centre x, y, radius, blur length.
+_N_PAR = 4
+# Largest residual RMS, in measured noise levels, of a fit that is accepted.
+_MAX_RESIDUAL = 4.0
+# Model error of the centre and of the diameter, added in quadrature to the statistical
+# uncertainty: the largest bias left by the shading basis on synthetic footage whose lamp
+# puts a crescent of the ball in shadow (lamp 20 degrees off the camera axis; benchmarks and
+# tests/test_video_ball_fit.py). [px]
+MODEL_ERROR_CENTRE = 0.018
+MODEL_ERROR_DIAMETER = 0.03
+# Largest move of the centre from the first guess. [px]
+_MAX_SHIFT = 2.0
+# Levenberg-Marquardt: most iterations, and the step in the centre, radius and blur below
+# which it stops [px] ...
+_MAX_ITERATIONS = 30
+_STEP_TOLERANCE = 5e-3
+# ... or when an accepted step lowers the sum of squares by less than this many noise
+# variances (parameters then move by a few per cent of their standard uncertainty). [1]
+_COST_TOLERANCE = 0.01
+
+
+@dataclass(frozen=True)
+class BallGuess:
+    """First guess for :func:`fit_ball`, image coordinates (y down).
+
+    Parameters
+    ----------
+    x, y : float
+        Centre of the blob (e.g. its weighted centroid). [px]
+    radius : float
+        Apparent radius of the ball. [px]
+    blur_length : float
+        Length of the centre's path over the exposure. [px]
+    blur_angle : float
+        Direction of that path, from +x towards +y (down). [rad]
+    """
+
+    x: float
+    y: float
+    radius: float
+    blur_length: float = 0.0
+    blur_angle: float = 0.0
+
+
+@dataclass(frozen=True)
+class BallFit:
+    """Result of :func:`fit_ball`, image coordinates (x right, y down, pixel centres at
+    integers).
+
+    Attributes
+    ----------
+    x, y : float
+        Centre of the ball averaged over the exposure (midpoint of the blur segment). [px]
+    u_x, u_y : float
+        Their standard uncertainties. [px]
+    diameter : float
+        Apparent diameter of the ball, ``2 r``: the blob's width perpendicular to the
+        motion. [px]
+    u_diameter : float
+        Its standard uncertainty. [px]
+    blur_length : float
+        Length of the centre's path over the exposure. [px]
+    blur_angle : float
+        Its direction from +x towards +y, in (-pi/2, pi/2]. [rad]
+    top, bottom : float
+        Smallest and largest y the ball's outline reaches during the exposure. [px]
+    row_first, row_last : int
+        First and last image rows the blob spans (the rows holding ``top`` and ``bottom``).
+    residual_rms : float
+        RMS of the fit's residuals in units of the given noise level. [1]
+    noise_inflation : float
+        Factor by which the measured noise correlation enlarges the centre's uncertainty
+        over the white-noise value (1 for white noise). [1]
+    n_pixels : int
+        Pixels fitted.
+    n_evaluations : int
+        Model evaluations used (residuals and Jacobians).
+    success : bool
+        The fit converged to a plausible ball; when False the other figures (except
+        ``reason``) are not to be used.
+    reason : str or None
+        Why the fit failed, else None.
+    """
+
+    x: float
+    y: float
+    u_x: float
+    u_y: float
+    diameter: float
+    u_diameter: float
+    blur_length: float
+    blur_angle: float
+    top: float
+    bottom: float
+    row_first: int
+    row_last: int
+    residual_rms: float
+    noise_inflation: float
+    n_pixels: int
+    n_evaluations: int
+    success: bool
+    reason: str | None = None
+
+    @property
+    def sigma(self) -> float:
+        """Standard uncertainty of one centre coordinate: RMS of ``u_x`` and ``u_y``. [px]"""
+        return math.sqrt(0.5 * (self.u_x**2 + self.u_y**2))
+
+
+# ------------------------------------------------------------------------------ rendering
+
+
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _sample(qx, qy, ux, uy, half, r, inv_l, acc):
+    """Add the exposure average at point q (relative to the segment midpoint) to acc[0:4]:
+    coverage and coverage times n_x, n_y, n_z."""
+    s0 = qx * ux + qy * uy
+    wx = qx - s0 * ux
+    wy = qy - s0 * uy
+    dp2 = wx * wx + wy * wy
+    r2 = r * r
+    if dp2 >= r2:
+        return
+    h2 = r2 - dp2
+    h = math.sqrt(h2)
+    s1 = max(-half, s0 - h)
+    s2 = min(half, s0 + h)
+    if s2 <= s1:
+        return
+    t1 = s1 - s0
+    t2 = s2 - s0
+    ln = t2 - t1
+    m2 = 0.5 * (t2 * t2 - t1 * t1)  # integral of t
+    z1 = math.sqrt(max(h2 - t1 * t1, 0.0))
+    z2 = math.sqrt(max(h2 - t2 * t2, 0.0))
+    # integral of sqrt(h^2 - t^2): (t z + h^2 asin(t / h)) / 2, the two arcsines as one atan2
+    dang = math.atan2(t2 * z1 - t1 * z2, z1 * z2 + t1 * t2)
+    iz = 0.5 * (t2 * z2 - t1 * z1 + h2 * dang)
+    ir = 1.0 / r
+    acc[0] += ln * inv_l
+    acc[1] += (wx * ln - ux * m2) * ir * inv_l
+    acc[2] += (wy * ln - uy * m2) * ir * inv_l
+    acc[3] += iz * ir * inv_l
+
+
+@numba.njit(cache=True, fastmath=True)
+def _render(h, w, cx, cy, r, blen, ux, uy, maskimg, out):
+    """Coverage and shading integrals (see :func:`_sample`) of each masked pixel into
+    out[0:9, h, w]; cx, cy relative to the centre of the crop's pixel (0, 0); the blur is
+    ``blen`` along the unit vector (ux, uy)."""
+    length = max(abs(blen), _MIN_BLUR)
+    half = 0.5 * length
+    inv_l = 1.0 / length
+    e1x, e1y = cx - half * ux, cy - half * uy
+    e2x, e2y = cx + half * ux, cy + half * uy
+    band = 0.75
+    reach = r + half + 1.0
+    acc = np.zeros(_N_BASIS)
+    step = 1.0 / _N_SAMPLES
+    off = 0.5 * step - 0.5
+    norm = 1.0 / _N_SAMPLES
+    for i in range(h):
+        for j in range(w):
+            for k in range(_N_BASIS):
+                out[k, i, j] = 0.0
+            if not maskimg[i, j]:
+                continue
+            px = j - cx
+            py = i - cy
+            if abs(px) > reach or abs(py) > reach:
+                continue
+            # Distance to the segment and to its end points.
+            s = px * ux + py * uy
+            sc = min(max(s, -half), half)
+            dseg = math.hypot(px - sc * ux, py - sc * uy)
+            if dseg > r + band:
+                continue
+            d1 = math.hypot(j - e1x, i - e1y)
+            d2 = math.hypot(j - e2x, i - e2y)
+            for k in range(_N_BASIS):
+                acc[k] = 0.0
+            if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
+                # N-rooks pattern: each sample in its own sub-row and sub-column, so edges
+                # along the rows or the columns are resolved in _N_SAMPLES steps.
+                for a in range(_N_SAMPLES):
+                    qy = py + off + a * step
+                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
+                    _sample(qx, qy, ux, uy, half, r, inv_l, acc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k] * norm
+            else:
+                _sample(px, py, ux, uy, half, r, inv_l, acc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k]
+
+
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc):
+    """:func:`_sample` with its derivatives: adds d acc[b] / d theta_k to dacc[k, b] for
+    theta = (centre x, centre y, radius, blur length); ``dhalf`` is d half / d blur length."""
+    s0 = qx * ux + qy * uy
+    wx = qx - s0 * ux
+    wy = qy - s0 * uy
+    dp2 = wx * wx + wy * wy
+    r2 = r * r
+    if dp2 >= r2:
+        return
+    h2 = r2 - dp2
+    h = math.sqrt(h2)
+    s1 = max(-half, s0 - h)
+    s2 = min(half, s0 + h)
+    if s2 <= s1:
+        return
+    t1 = s1 - s0
+    t2 = s2 - s0
+    ln = t2 - t1
+    m2 = 0.5 * (t2 * t2 - t1 * t1)
+    z1 = math.sqrt(max(h2 - t1 * t1, 0.0))
+    z2 = math.sqrt(max(h2 - t2 * t2, 0.0))
+    dang = math.atan2(t2 * z1 - t1 * z2, z1 * z2 + t1 * t2)
+    iz = 0.5 * (t2 * z2 - t1 * z1 + h2 * dang)
+    ir = 1.0 / r
+    a0 = ln * inv_l
+    a1 = (wx * ln - ux * m2) * ir * inv_l
+    a2 = (wy * ln - uy * m2) * ir * inv_l
+    a3 = iz * ir * inv_l
+    acc[0] += a0
+    acc[1] += a1
+    acc[2] += a2
+    acc[3] += a3
+    # q = sample point - centre: d q / d cx = (-1, 0), d q / d cy = (0, -1); w . u = 0, so
+    # d dp2 / d c = -2 w and d h2 / d c = 2 w.
+    inv_h = 1.0 / max(h, 1e-9)
+    clip1 = s0 - h <= -half  # t1 = -half - s0, else t1 = -h
+    clip2 = s0 + h >= half  # t2 = half - s0, else t2 = h
+    for k in range(4):
+        if k == 0:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = -ux, ux * ux - 1.0, ux * uy, 2.0 * wx, 0.0, 0.0, 0.0
+        elif k == 1:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = -uy, ux * uy, uy * uy - 1.0, 2.0 * wy, 0.0, 0.0, 0.0
+        elif k == 2:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = 0.0, 0.0, 0.0, 2.0 * r, 0.0, 1.0, 0.0
+        else:
+            ds0, dwx, dwy, dh2, dhf, dr, dl = 0.0, 0.0, 0.0, 0.0, dhalf, 0.0, 2.0 * dhalf
+        dh = 0.5 * dh2 * inv_h
+        dt1 = (-dhf - ds0) if clip1 else -dh
+        dt2 = (dhf - ds0) if clip2 else dh
+        dln = dt2 - dt1
+        dm2 = t2 * dt2 - t1 * dt1
+        diz = z2 * dt2 - z1 * dt1 + 0.5 * dh2 * dang
+        rel = dr * ir + dl * inv_l  # d ln(r L)
+        dacc[k, 0] += dln * inv_l - a0 * dl * inv_l
+        dacc[k, 1] += (dwx * ln + wx * dln - ux * dm2) * ir * inv_l - a1 * rel
+        dacc[k, 2] += (dwy * ln + wy * dln - uy * dm2) * ir * inv_l - a2 * rel
+        dacc[k, 3] += diz * ir * inv_l - a3 * rel
+
+
+@numba.njit(cache=True, fastmath=True)
+def _render_d(h, w, cx, cy, r, blen, ux, uy, maskimg, out, dout):
+    """:func:`_render` and the derivatives of its four images with respect to (centre x,
+    centre y, radius, blur length) into dout[0:4, 0:4, h, w] (sample by sample, so they are
+    the exact derivatives of the rendered model)."""
+    length = max(abs(blen), _MIN_BLUR)
+    # d length / d blen: sign(blen) above the shortest rendered blur, else 0.
+    dlen = (1.0 if blen >= 0 else -1.0) if abs(blen) > _MIN_BLUR else 0.0
+    half = 0.5 * length
+    dhalf = 0.5 * dlen
+    inv_l = 1.0 / length
+    e1x, e1y = cx - half * ux, cy - half * uy
+    e2x, e2y = cx + half * ux, cy + half * uy
+    band = 0.75
+    reach = r + half + 1.0
+    acc = np.zeros(_N_BASIS)
+    dacc = np.zeros((_N_PAR, _N_BASIS))
+    step = 1.0 / _N_SAMPLES
+    off = 0.5 * step - 0.5
+    norm = 1.0 / _N_SAMPLES
+    for i in range(h):
+        for j in range(w):
+            for k in range(_N_BASIS):
+                out[k, i, j] = 0.0
+                for m in range(_N_PAR):
+                    dout[m, k, i, j] = 0.0
+            if not maskimg[i, j]:
+                continue
+            px = j - cx
+            py = i - cy
+            if abs(px) > reach or abs(py) > reach:
+                continue
+            s = px * ux + py * uy
+            sc = min(max(s, -half), half)
+            dseg = math.hypot(px - sc * ux, py - sc * uy)
+            if dseg > r + band:
+                continue
+            d1 = math.hypot(j - e1x, i - e1y)
+            d2 = math.hypot(j - e2x, i - e2y)
+            for k in range(_N_BASIS):
+                acc[k] = 0.0
+                for m in range(_N_PAR):
+                    dacc[m, k] = 0.0
+            if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
+                for a in range(_N_SAMPLES):
+                    qy = py + off + a * step
+                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
+                    _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k] * norm
+                    for m in range(_N_PAR):
+                        dout[m, k, i, j] = dacc[m, k] * norm
+            else:
+                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, acc, dacc)
+                for k in range(_N_BASIS):
+                    out[k, i, j] = acc[k]
+                    for m in range(_N_PAR):
+                        dout[m, k, i, j] = dacc[m, k]
+
+
+@numba.njit(cache=True)
+def _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac):
+    """Residuals ``d - model`` and the model's Jacobian (n, 9) for all parameters
+    x = (cx, cy, r, blur length, a_0..a_3, k); returns the sum of squared residuals."""
+    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], maskimg, basis, dbasis)
+    return _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
+
+
+@numba.njit(cache=True)
+def _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac):
+    """Residuals and Jacobian of :func:`_model_and_jacobian` from rendered images."""
+    nb = _N_BASIS
+    kk = x[_N_PAR + nb]
+    rss = 0.0
+    for q in range(mask_idx.shape[0]):
+        idx = mask_idx[q]
+        i = idx // w
+        j = idx - i * w
+        c = basis[0, i, j]
+        g = gb[i, j]
+        model = kk * g * (1.0 - c) - g * c
+        for b in range(nb):
+            model += x[_N_PAR + b] * basis[b, i, j]
+            jac[q, _N_PAR + b] = basis[b, i, j]
+        jac[q, _N_PAR + nb] = g * (1.0 - c)
+        for m in range(_N_PAR):
+            v = -(kk + 1.0) * g * dbasis[m, 0, i, j]
+            for b in range(nb):
+                v += x[_N_PAR + b] * dbasis[m, b, i, j]
+            jac[q, m] = v
+        rr = d[i, j] - model
+        res[q] = rr
+        rss += rr * rr
+    return rss
+
+
+@numba.njit(cache=True)
+def _solve_spd(a, b, out):
+    """Solve a x = b for a symmetric positive definite a (Cholesky); False if not."""
+    m = a.shape[0]
+    lo = np.zeros((m, m))
+    for i in range(m):
+        for j in range(i + 1):
+            s = a[i, j]
+            for k in range(j):
+                s -= lo[i, k] * lo[j, k]
+            if i == j:
+                if s <= 0.0:
+                    return False
+                lo[i, i] = math.sqrt(s)
+            else:
+                lo[i, j] = s / lo[j, j]
+    z = np.empty(m)
+    for i in range(m):
+        s = b[i]
+        for k in range(i):
+            s -= lo[i, k] * z[k]
+        z[i] = s / lo[i, i]
+    for i in range(m - 1, -1, -1):
+        s = z[i]
+        for k in range(i + 1, m):
+            s -= lo[k, i] * out[k]
+        out[i] = s / lo[i, i]
+    return True
+
+
+@numba.njit(cache=True)
+def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
+    """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
+    (the non-linear ones at the guess, the linear ones solved there).  Returns the
+    solution, its residuals and Jacobian, the model evaluations used and a status:
+    0 converged, 1 too many iterations, 2 singular."""
+    n = mask_idx.shape[0]
+    npar = x.shape[0]
+    basis = np.zeros((_N_BASIS, h, w))
+    dbasis = np.zeros((_N_PAR, _N_BASIS, h, w))
+    res = np.empty(n)
+    jac = np.empty((n, npar))
+    res_t = np.empty(n)
+    jac_t = np.empty((n, npar))
+    rss = _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac)
+    nfev = 1
+    # The linear coefficients at the guess: one exact linear least-squares step.
+    nl = npar - _N_PAR
+    al = np.empty((nl, nl))
+    gl = np.empty(nl)
+    dl = np.empty(nl)
+    for i in range(nl):
+        s = 0.0
+        for q in range(n):
+            s += jac[q, _N_PAR + i] * res[q]
+        gl[i] = s
+        for j in range(i + 1):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, _N_PAR + i] * jac[q, _N_PAR + j]
+            al[i, j] = s + ((1e-10 * s + 1e-300) if i == j else 0.0)
+            al[j, i] = al[i, j]
+    if _solve_spd(al, gl, dl):
+        for i in range(nl):
+            x[_N_PAR + i] += dl[i]
+        rss = _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
+    lam = 1e-3
+    a = np.empty((npar, npar))
+    g = np.empty(npar)
+    step = np.empty(npar)
+    xt = np.empty(npar)
+    status = 1
+    for _ in range(max_iter):
+        for i in range(npar):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, i] * res[q]
+            g[i] = s
+            for j in range(i + 1):
+                s = 0.0
+                for q in range(n):
+                    s += jac[q, i] * jac[q, j]
+                a[i, j] = s
+                a[j, i] = s
+        accepted = False
+        done = False
+        while lam < 1e10:
+            ad = a.copy()
+            for i in range(npar):
+                ad[i, i] = a[i, i] * (1.0 + lam) + 1e-12 * (a[i, i] + 1e-300)
+            if not _solve_spd(ad, g, step):
+                lam *= 10.0
+                continue
+            small = True
+            near = True
+            for i in range(_N_PAR):
+                if abs(step[i]) > tol:
+                    small = False
+                if abs(step[i]) > 4.0 * tol:
+                    near = False
+            for i in range(npar):
+                xt[i] = x[i] + step[i]
+            if xt[2] <= 0.2:
+                lam *= 10.0
+                continue
+            rss_t = _model_and_jacobian(
+                xt, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
+            )
+            nfev += 1
+            if rss_t <= rss:
+                accepted = True
+                break
+            pred = 0.0
+            for i in range(npar):
+                pred += step[i] * g[i]
+            if near or pred <= 0.25 * rss / max(n - npar, 1):
+                # Rejected, with a step of a few hundredths of a pixel or at most a quarter
+                # of a noise variance to gain: from here on the model's pixel sampling (the
+                # set of pixels sampled finely moves with the outline), not the parameters,
+                # decides the cost.
+                done = True
+                break
+            lam *= 10.0
+        if done:
+            status = 0
+            break
+        if not accepted:
+            status = 0 if rss > 0 else 2  # no step lowers the cost: at the minimum
+            break
+        x[:] = xt
+        res[:] = res_t
+        jac[:] = jac_t
+        drop = rss - rss_t
+        rss = rss_t
+        lam = max(lam * 0.1, 1e-7)
+        # Stop when the step is negligible, or the cost fell by less than ftol noise
+        # variances (a change that moves no parameter by a noticeable share of its sigma).
+        if small or drop <= ftol * rss / max(n - npar, 1):
+            status = 0
+            break
+    return x, res, jac, nfev, status
+
+
+@numba.njit(cache=True)
+def _sensitivities(jac, mask_idx, h, w, nk):
+    """Images (nk, h, w) of the pixels' influence on the first nk parameters,
+    v_k = J (J^T J)^-1 e_k, and their white-noise quadratic forms v_k^T v_k; False if the
+    normal matrix is singular in those parameters."""
+    n, npar = jac.shape
+    a = np.empty((npar, npar))
+    for i in range(npar):
+        for j in range(i + 1):
+            s = 0.0
+            for q in range(n):
+                s += jac[q, i] * jac[q, j]
+            a[i, j] = s
+            a[j, i] = s
+    for i in range(npar):
+        a[i, i] += 1e-12 * a[i, i] + 1e-300  # a column that is exactly zero stays decoupled
+    vimg = np.zeros((nk, h, w))
+    white = np.zeros(nk)
+    e = np.zeros(npar)
+    col = np.empty(npar)
+    for k in range(nk):
+        e[:] = 0.0
+        e[k] = 1.0
+        if not _solve_spd(a, e, col):
+            return vimg, white, False
+        for q in range(n):
+            v = 0.0
+            for i in range(npar):
+                v += jac[q, i] * col[i]
+            idx = mask_idx[q]
+            vimg[k, idx // w, idx % w] = v
+            white[k] += v * v
+    return vimg, white, True
+
+
+@numba.njit(cache=True)
+def _correlated_variance(resimg, maskimg, vimg, lags):
+    """For each image v_k (k = 0, 1, ...) the quadratic form v_k^T R v_k, R the correlation
+    matrix of the residuals over the masked pixels: stationary, measured at the given lags
+    (and their mirror images), zero beyond them.  Also returns the correlations."""
+    nv, h, w = vimg.shape
+    out = np.zeros(nv)
+    s0 = 0.0
+    n0 = 0
+    for i in range(h):
+        for j in range(w):
+            if maskimg[i, j]:
+                s0 += resimg[i, j] * resimg[i, j]
+                n0 += 1
+                for k in range(nv):
+                    out[k] += vimg[k, i, j] * vimg[k, i, j]
+    var0 = s0 / max(n0, 1)
+    rho = np.zeros(lags.shape[0])
+    for li in range(lags.shape[0]):
+        dy = lags[li, 0]
+        dx = lags[li, 1]
+        s = 0.0
+        cnt = 0
+        cross = np.zeros(nv)
+        for i in range(max(0, -dy), min(h, h - dy)):
+            for j in range(max(0, -dx), min(w, w - dx)):
+                if maskimg[i, j] and maskimg[i + dy, j + dx]:
+                    s += resimg[i, j] * resimg[i + dy, j + dx]
+                    cnt += 1
+                    for k in range(nv):
+                        cross[k] += vimg[k, i, j] * vimg[k, i + dy, j + dx]
+        if cnt < 20 or var0 <= 0.0:
+            continue
+        rr = s / cnt / var0
+        rho[li] = rr
+        for k in range(nv):
+            out[k] += 2.0 * rr * cross[k]
+    return out, rho
+
+
+def _half_plane_lags(k: int) -> np.ndarray:
+    lags = [(0, dx) for dx in range(1, k + 1)]
+    lags += [(dy, dx) for dy in range(1, k + 1) for dx in range(-k, k + 1)]
+    return np.array(lags, dtype=np.int64)
+
+
+_LAGS = _half_plane_lags(CORRELATION_LAGS)
+
+
+def render_ball(
+    shape: tuple[int, int],
+    x: float,
+    y: float,
+    radius: float,
+    blur_length: float = 0.0,
+    blur_angle: float = 0.0,
+) -> np.ndarray:
+    """The model's exposure-averaged coverage and shading integrals on a pixel grid.
+
+    Parameters
+    ----------
+    shape : (int, int)
+        Height and width of the grid. [px]
+    x, y : float
+        Midpoint of the centre's path, relative to the centre of pixel (0, 0), y down. [px]
+    radius : float
+        Apparent radius. [px]
+    blur_length, blur_angle : float
+        Length [px] and direction [rad, from +x towards +y] of the centre's path.
+
+    Returns
+    -------
+    ndarray
+        ``(4, h, w)``: coverage ``C`` (0..1) and the averages of coverage times the surface
+        normal's components ``n_x, n_y, n_z``.
+    """
+    h, w = (int(v) for v in shape)
+    out = np.zeros((_N_BASIS, h, w))
+    ux, uy = math.cos(blur_angle), math.sin(blur_angle)
+    full = np.ones((h, w), np.bool_)
+    _render(h, w, float(x), float(y), float(radius), float(blur_length), ux, uy, full, out)
+    return out
+
+
+# ------------------------------------------------------------------------------ the fit
+
+
+def _failed(reason: str, guess: BallGuess, n_pix: int, nfev: int) -> BallFit:
+    nan = float("nan")
+    return BallFit(
+        x=guess.x, y=guess.y, u_x=nan, u_y=nan, diameter=nan, u_diameter=nan,
+        blur_length=nan, blur_angle=nan, top=nan, bottom=nan, row_first=-1, row_last=-1,
+        residual_rms=nan, noise_inflation=nan, n_pixels=n_pix, n_evaluations=nfev,
+        success=False, reason=reason,
+    )  # fmt: skip
+
+
+def fit_ball(
+    diff: np.ndarray,
+    background: np.ndarray,
+    gain: float,
+    noise_sigma: float,
+    guess: BallGuess,
+    *,
+    origin: tuple[int, int] = (0, 0),
+    valid: np.ndarray | None = None,
+    noise_floor: float = 0.8,
+) -> BallFit:
+    """Fit the blurred-ball model to one blob's background-subtracted crop.
+
+    Parameters
+    ----------
+    diff : ndarray
+        ``(h, w)`` background-subtracted crop ``frame - gain * background`` around the blob,
+        with a margin of background pixels (two or three pixels) on every side. [grey levels]
+    background : ndarray
+        ``(h, w)`` background model over the same crop. [grey levels]
+    gain : float
+        Brightness gain of the frame against the background near the blob. [1]
+    noise_sigma : float
+        Measured noise level of the frame (standard deviation of one pixel). [grey levels]
+    guess : BallGuess
+        First guess, image coordinates. [px]
+    origin : (int, int)
+        Image column and row of the crop's pixel (0, 0).
+    valid : ndarray of bool, optional
+        Pixels to fit (default: all); leave out pixels of other objects.
+    noise_floor : float
+        The noise level used for the uncertainty is at least ``noise_floor * noise_sigma``
+        (the residuals of a fit of few pixels may understate it). [1]
+
+    Returns
+    -------
+    BallFit
+        Centre, diameter, blur, rows spanned, uncertainties and residual statistics; a fit
+        that does not converge or lands on an implausible ball has ``success=False`` and
+        a ``reason``, it does not raise.
+
+    Raises
+    ------
+    InputError
+        Arrays of different shapes, or a non-positive noise level or radius guess.
+    """
+    d = np.ascontiguousarray(diff, dtype=np.float64)
+    bg = np.asarray(background, dtype=np.float64)
+    if d.ndim != 2 or bg.shape != d.shape:
+        raise InputError(
+            f"fit_ball: diff {d.shape} and background {bg.shape} must be 2-D crops of the "
+            f"same shape; pass the same window of both."
+        )
+    if not (math.isfinite(noise_sigma) and noise_sigma > 0):
+        raise InputError(f"noise_sigma: expected a positive level, got {noise_sigma!r}.")
+    if not (math.isfinite(guess.radius) and guess.radius > 0):
+        raise InputError(f"guess.radius: expected a positive radius in px, got {guess.radius!r}.")
+    h, w = d.shape
+    gb = np.ascontiguousarray(float(gain) * bg)
+    maskimg = np.ones((h, w), np.bool_) if valid is None else np.asarray(valid, np.bool_)
+    if maskimg.shape != d.shape:
+        raise InputError(f"valid: shape {maskimg.shape} differs from diff's {d.shape}.")
+    mask_idx = np.flatnonzero(maskimg.ravel()).astype(np.int64)
+    n = mask_idx.size
+    ox, oy = origin
+    r0 = float(guess.radius)
+    if n < 4 * (_N_LIN + _N_PAR):
+        return _failed(f"too few pixels to fit ({n})", guess, n, 0)
+    bl = max(float(guess.blur_length), 0.0)
+    ang = float(guess.blur_angle)
+    u = np.array([math.cos(ang), math.sin(ang)])
+    p0 = np.array([guess.x - ox, guess.y - oy, r0, bl])
+    x0 = np.concatenate([p0, np.zeros(_N_LIN)])  # linear coefficients solved in the loop
+    x, res, jac, nfev, status = _levenberg_marquardt(
+        x0, u, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE, _COST_TOLERANCE
+    )
+    if status != 0:
+        why = "singular normal matrix" if status == 2 else f"{_MAX_ITERATIONS} iterations"
+        return _failed(f"fit did not converge ({why})", guess, n, nfev)
+    p = x[:_N_PAR]
+    cx, cy, rr, blen = (float(v) for v in p)
+    blen = abs(blen)
+    if not (0.5 * r0 <= rr <= 2.0 * r0 + 1.0):
+        return _failed(
+            f"fitted radius {rr:.2f} px is far from the blob's {r0:.2f} px", guess, n, nfev
+        )
+    shift = math.hypot(cx + ox - guess.x, cy + oy - guess.y)
+    if shift > _MAX_SHIFT:
+        return _failed(f"fitted centre moved {shift:.2f} px from the blob's", guess, n, nfev)
+    rss = float(res @ res)
+    dof = max(n - _N_PAR - _N_LIN, 1)
+    s_res = math.sqrt(rss / dof)
+    resid_rms = s_res / noise_sigma
+    if resid_rms > _MAX_RESIDUAL:
+        return _failed(
+            f"the ball model does not match the blob (residual {resid_rms:.1f} noise levels)",
+            guess,
+            n,
+            nfev,
+        )
+    s2 = max(s_res, noise_floor * noise_sigma) ** 2
+    # Sandwich: row k of A^-1 J^T is the sensitivity of parameter k to each pixel's value;
+    # its variance is s^2 v_k^T R v_k with v_k = J A^-1 e_k.  J is the Jacobian of all nine
+    # parameters: the block of (J^T J)^-1 belonging to the non-linear ones is the inverse of
+    # the projected problem's normal matrix [2].
+    vimg, white, ok = _sensitivities(jac, mask_idx, h, w, 3)  # centre x, y and radius
+    if not ok:
+        return _failed("singular normal matrix at the solution", guess, n, nfev)
+    resimg = np.zeros(h * w)
+    resimg[mask_idx] = res
+    quad, _rho = _correlated_variance(resimg.reshape(h, w), maskimg, vimg, _LAGS)
+    var = s2 * quad
+    white = s2 * white
+    if not np.all(np.isfinite(var)) or np.any(var <= 0):
+        return _failed("uncertainty could not be computed", guess, n, nfev)
+    inflation = math.sqrt(float(var[0] + var[1]) / float(white[0] + white[1]))
+    by = blen * u[1]
+    ang = math.atan2(u[1], u[0])
+    if ang > 0.5 * math.pi:
+        ang -= math.pi
+    elif ang <= -0.5 * math.pi:
+        ang += math.pi
+    top = cy + oy - 0.5 * abs(by) - rr
+    bottom = cy + oy + 0.5 * abs(by) + rr
+    return BallFit(
+        x=cx + ox,
+        y=cy + oy,
+        u_x=math.sqrt(var[0] + MODEL_ERROR_CENTRE**2),
+        u_y=math.sqrt(var[1] + MODEL_ERROR_CENTRE**2),
+        diameter=2.0 * rr,
+        u_diameter=math.sqrt(4.0 * var[2] + MODEL_ERROR_DIAMETER**2),
+        blur_length=blen,
+        blur_angle=ang,
+        top=top,
+        bottom=bottom,
+        row_first=int(math.floor(top + 0.5)),
+        row_last=int(math.floor(bottom + 0.5)),
+        residual_rms=resid_rms,
+        noise_inflation=inflation,
+        n_pixels=n,
+        n_evaluations=nfev,
+        success=True,
+    )
