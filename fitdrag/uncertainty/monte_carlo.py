@@ -141,6 +141,12 @@ def _nan_none(x: float) -> float | None:
     return None if not math.isfinite(x) else float(x)
 
 
+#: Student t quantile for the endpoints' batch-means standard errors (h = 10 batches, the
+#: default of interval_standard_error, so 9 degrees of freedom) at 1 − 0.05/4: two-sided
+#: 97.5 % for each endpoint, so that both together hold at 95 % (Bonferroni). [-]
+_ENDPOINT_T = 2.6850
+
+
 def interval_standard_error(
     values: np.ndarray, coverage_probability: float, batches: int = 10
 ) -> tuple[float, float]:
@@ -425,7 +431,12 @@ class GumCheck:
 def compare_with_gum(budget: Budget, mc: MonteCarloResult, n_dig: int = 2) -> GumCheck:
     """Validate the GUM uncertainty framework against the Monte Carlo method (JCGM 101 8.2).
 
-    The GUM interval is taken at the Monte Carlo run's coverage probability.
+    The GUM interval is taken at the Monte Carlo run's coverage probability.  "agree" when
+    both endpoint differences are within the numerical tolerance δ (JCGM 101 8.2); "differ"
+    only when an endpoint difference exceeds δ by more than the Monte Carlo's own endpoint
+    noise explains — its batch-means standard error times the Student t quantile with h − 1
+    degrees of freedom (h batches, JCGM 101 7.9.4) at a joint 95 % for the two endpoints
+    (Bonferroni: 98.75 % each); otherwise "inconclusive" (more trials are needed to tell).
     """
     p = mc.coverage_probability
     g_lo, g_hi = budget.interval(p)
@@ -437,7 +448,7 @@ def compare_with_gum(budget: Budget, mc: MonteCarloResult, n_dig: int = 2) -> Gu
     agrees = bool(d_lo <= delta and d_hi <= delta)
     if agrees:
         status = "agree"
-    elif d_lo > delta + 2.0 * s_lo or d_hi > delta + 2.0 * s_hi:
+    elif d_lo > delta + _ENDPOINT_T * s_lo or d_hi > delta + _ENDPOINT_T * s_hi:
         status = "differ"
     else:
         status = "inconclusive"
