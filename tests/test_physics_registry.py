@@ -8,9 +8,9 @@ from __future__ import annotations
 
 import re
 
-import numba
 import numpy as np
 import pytest
+from test_physics_drag_model import _linear_model, _linear_re_kernel  # the same test law
 
 from fitdrag.physics import registry
 from fitdrag.physics.air import Air
@@ -45,27 +45,6 @@ def test_unknown_model_lists_valid_names():
         get_drag_model("stokes?")
     assert "constant" in drag_model_names()
     assert drag_model_names() == sorted(drag_model_names())
-
-
-@numba.njit(cache=False)
-def _linear_re_kernel(re, p, grad):
-    # C_d = a + b (Re / Re0): a test law with one constant Re0
-    grad[0] = 1.0
-    grad[1] = re / p[2]
-    return p[0] + p[1] * re / p[2], p[1] / p[2]
-
-
-def _linear_model(name):
-    return DragModel(
-        name=name,
-        parameters=("a", "b"),
-        initial=(0.5, 0.0),
-        bounds=((0.0, 5.0), (-1.0, 1.0)),
-        kernel=_linear_re_kernel,
-        constants=("re0",),
-        re_range=(10.0, 1e5),
-        constants_from_re=lambda re: (float(np.max(re)),),
-    )
 
 
 def test_register_and_use_a_new_model(monkeypatch):

@@ -51,9 +51,13 @@ from numba import types
 from fitdrag.errors import InputError
 from fitdrag.physics import _dormand_prince as _dp
 from fitdrag.physics.drag_model import CD_SIGNATURE
-from fitdrag.physics.forces import Conditions, drag_factor, net_gravity
-from fitdrag.physics.registry import get_drag_model
-from fitdrag.physics.simulate import Launch, drag_values
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.simulate import (
+    Launch,
+    drag_values,
+    flight_coefficients,
+    model_and_constants,
+)
 
 __all__ = ["LAUNCH_NAMES_3D", "Flight3D", "FlightModel3D", "Launch3D", "simulate_3d"]
 
@@ -442,14 +446,7 @@ class FlightModel3D:
                     f"time {float(self.t[0])!r} s, got {t0!r}; give the launch time at or "
                     f"before the first sample."
                 )
-        self.model = get_drag_model(model)
-        self.constants = np.asarray(constants, dtype=float).reshape(-1)
-        if self.constants.size != len(self.model.constants):
-            raise InputError(
-                f"constants: drag model {self.model.name!r} needs {len(self.model.constants)} "
-                f"constant(s) {self.model.constants}, got {self.constants.size}; pass them in "
-                f"that order (DragModel.constants_for(re_values) computes them from a flight)."
-            )
+        self.model, self.constants = model_and_constants(model, constants)
         if wind is None:
             self.wind = np.array([conditions.wind, 0.0, 0.0])
         else:
@@ -471,9 +468,7 @@ class FlightModel3D:
         self.parameter_names = (
             LAUNCH_NAMES_3D + self.model.parameters + (("lift_coefficient",) if fit_lift else ())
         )
-        self.k = drag_factor(specimen, conditions.air.density)
-        self.g_net = net_gravity(specimen, conditions)
-        self.re_fac = conditions.air.density * specimen.length / conditions.air.viscosity
+        self.k, self.g_net, self.re_fac = flight_coefficients(specimen, conditions)
         self.rtol = float(rtol)
         self.atol = float(atol)
         self.max_steps = int(max_steps)

@@ -277,6 +277,36 @@ class Flight:
     steps: int
 
 
+def model_and_constants(model, constants) -> tuple:
+    """The registered drag model and its constants as an array, checked to match in number.
+
+    Shared by the planar and the 3-D simulators.
+    """
+    m = get_drag_model(model)
+    c = np.asarray(constants, dtype=float).reshape(-1)
+    if c.size != len(m.constants):
+        raise InputError(
+            f"constants: drag model {m.name!r} needs {len(m.constants)} "
+            f"constant(s) {m.constants}, got {c.size}; pass them in "
+            f"that order (DragModel.constants_for(re_values) computes them from a flight)."
+        )
+    return m, c
+
+
+def flight_coefficients(specimen, conditions: Conditions) -> tuple[float, float, float]:
+    """The integrators' constants: drag factor ½ρA/m_eff [1/m], net gravity [m/s²] and the
+    Reynolds factor ρL/μ [s/m] (Re = factor × air speed); see :mod:`fitdrag.physics.forces`.
+
+    Shared by the planar and the 3-D simulators.
+    """
+    air = conditions.air
+    return (
+        drag_factor(specimen, air.density),
+        net_gravity(specimen, conditions),
+        air.density * specimen.length / air.viscosity,
+    )
+
+
 class FlightModel:
     """A prepared simulation problem: fixed times, specimen, conditions and drag model.
 
@@ -317,14 +347,7 @@ class FlightModel:
                 f"t: sample times must be finite and strictly increasing; t[{bad}] = "
                 f"{float(self.t[bad])!r}; sort the samples and drop repeated or missing times."
             )
-        self.model = get_drag_model(model)
-        self.constants = np.asarray(constants, dtype=float)
-        if self.constants.size != len(self.model.constants):
-            raise InputError(
-                f"constants: drag model {self.model.name!r} needs {len(self.model.constants)} "
-                f"constant(s) {self.model.constants}, got {self.constants.size}; pass them in "
-                f"that order (DragModel.constants_for(re_values) computes them from a flight)."
-            )
+        self.model, self.constants = model_and_constants(model, constants)
         self.specimen = specimen
         self.conditions = conditions
         self.fit_lift = bool(fit_lift)
@@ -332,9 +355,7 @@ class FlightModel:
         self.parameter_names = (
             LAUNCH_NAMES + self.model.parameters + (("lift_coefficient",) if fit_lift else ())
         )
-        self.k = drag_factor(specimen, conditions.air.density)
-        self.g_net = net_gravity(specimen, conditions)
-        self.re_fac = conditions.air.density * specimen.length / conditions.air.viscosity
+        self.k, self.g_net, self.re_fac = flight_coefficients(specimen, conditions)
         self.rtol = float(rtol)
         self.atol = float(atol)
         self.max_steps = int(max_steps)
