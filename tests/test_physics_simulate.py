@@ -506,7 +506,9 @@ def test_energy_never_increases_in_still_air(mass, diameter, cd, cl, speed, angl
     """closed-form/independent (work–energy theorem): for the effective equation (Lamb §92
     added mass, Archimedes buoyancy) in still air the energy ½M|v|² + (m − ρV) g y changes at
     the rate −v·D ≤ 0; lift, perpendicular to v, does no work.  So it never increases, and
-    with C_d = 0 it is conserved.  Tolerance: the integrator's relative 1e-10 on the scale."""
+    with C_d = 0 it is conserved.  Tolerance: the integrator's relative 1e-10 per step on the
+    scale, summed over its steps (a local error bound accumulates along the flight: a very
+    light ball that loops under lift takes thousands of steps)."""
     air = Air(1.2)
     s = Sphere(mass, diameter, added_mass_coefficient=ca)
     c = Conditions(air)
@@ -516,9 +518,10 @@ def test_energy_never_increases_in_still_air(mass, diameter, cd, cl, speed, angl
     assert f.success
     e = _mechanical_energy(f, s, c)
     scale = 0.5 * speed**2 + G * 2.0 * np.max(np.abs(f.y)) + 1.0
-    assert np.all(np.diff(e) <= 1e-9 * scale)
+    tol = 1e-10 * max(f.steps, 10) * scale
+    assert np.all(np.diff(e) <= tol)
     if cd == 0.0:
-        assert np.max(np.abs(e - e[0])) <= 1e-9 * scale
+        assert np.max(np.abs(e - e[0])) <= tol
 
 
 # ----------------------------------------------------------------------------- common practice
