@@ -1,0 +1,279 @@
+"""``fitdrag run`` for throws measured in 3-D: footage seen through calibrated cameras.
+
+For each throw, each camera's footage is tracked (:func:`fitdrag.video.tracking.track_footage`),
+the camera is calibrated from its lens file and the marker board
+(:func:`fitdrag.geometry.footage_view.camera_from_footage`: intrinsics, pose by PnP with its
+covariance, rolling-shutter readout) and its observations become a
+:class:`fitdrag.geometry.views.CameraView`; the throw's 3-D flight is fitted to every camera's
+pixels (:func:`fitdrag.fit.image_fit.fit_views`).  Throws are combined by their weighted mean
+(:func:`fitdrag.fit.view_budget_model.combine_throws`), and the uncertainty budget re-fits every
+throw with each input moved (:class:`fitdrag.fit.view_budget_model.ViewRefitModel`): the
+specimen, the air, gravity, the frame rate, the board's scale, and each camera's pose, focal
+length, readout time and stated time offset.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from fitdrag.errors import ConvergenceError, InputError, InputFileNotFoundError
+from fitdrag.report.content import FootageRecord
+from fitdrag.run.job import Job, ViewSource
+
+__all__ = ["ViewMeasurementFit", "geometry_text", "read_views"]
+
+
+@dataclass(frozen=True, eq=False)
+class ViewMeasurementFit:
+    """The 3-D fits of a job's throws and their combination.
+
+    Attributes
+    ----------
+    throws : tuple of ViewThrow
+        Per throw: its views, the cameras' calibrations and its fit.
+    cd : float
+        Weighted mean of the throws' Cd. [-]
+    u_cd : float
+        Its statistical standard uncertainty (Birge-ratio inflated when the throws scatter
+        more than their fits say). [-]
+    dof : float
+        Its effective degrees of freedom.
+    weights : ndarray
+        The throws' weights. [-]
+    birge_ratio : float
+        Scatter of the throws against their uncertainties (nan with one throw). [-]
+    """
+
+    throws: tuple
+    cd: float
+    u_cd: float
+    dof: float
+    weights: np.ndarray
+    birge_ratio: float
+
+    @property
+    def model(self) -> str:
+        return self.throws[0].result.model
+
+    @property
+    def lift(self) -> bool:
+        return bool(self.throws[0].result.options.get("lift", False))
+
+
+@dataclass(frozen=True, eq=False)
+class ViewInput:
+    """One camera's part of a throw, read from its footage.
+
+    Attributes
+    ----------
+    source : ViewSource
+        The job's view.
+    footage : FootageTrack
+        The tracked footage.
+    view : CameraView
+        The observations through the calibrated camera.
+    calibration : CameraCalibration
+        What the budget needs of the camera's calibration.
+    pose : BoardPose
+        The camera's pose from the board (distance, angle, covariance).
+    sha256 : str
+        SHA-256 of the footage.
+    """
+
+    source: ViewSource
+    footage: Any
+    view: Any
+    calibration: Any
+    pose: Any
+    sha256: str
+
+
+def _where(job: Job, i: int, j: int, src: ViewSource) -> str:
+    loc = f"{job.path.name}, line {src.line}" if src.line else job.path.name
+    th = job.throws[i]
+    which = f"[[throws]] #{i + 1}" + (f" view {j + 1}" if th.kind == "views" else "")
+    return f"{loc}: {which} footage"
+
+
+def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput]], dict]:
+    """Every throw's views (tracked, calibrated), and the SHA-256 of every input file.
+
+    Raises
+    ------
+    ValueError, FileNotFoundError
+        Footage that cannot be tracked or calibrated; the message starts with the job file,
+        the line, the throw and the view.
+    """
+    from fitdrag.fit.view_budget_model import CameraCalibration
+    from fitdrag.geometry.footage_view import camera_from_footage, view_from_footage
+    from fitdrag.run.pipeline import _job_wording
+    from fitdrag.tracks.track import file_sha256
+    from fitdrag.video.lens import load_lens
+    from fitdrag.video.tracking import footage_sha256, track_footage
+
+    hashes = {str(job.path): file_sha256(job.path)}
+    fps = job.camera.fps.value
+    out = []
+    for i, th in enumerate(job.throws):
+        views = []
+        for j, src in enumerate(th.view_sources(job.camera)):
+            readout = src.readout_time or job.camera.readout_time
+            try:
+                ft = track_footage(src.footage, fps=fps, progress=progress,
+                                   **src.tracking_options)  # fmt: skip
+                lens = load_lens(src.lens)
+                cam, pose = camera_from_footage(
+                    ft, lens,
+                    readout_time=0.0 if readout is None else readout.value,
+                    readout_time_uncertainty=0.0 if readout is None else readout.uncertainty,
+                )  # fmt: skip
+                offset = None
+                if j == 0:
+                    offset = 0.0
+                elif src.time_offset is not None:
+                    offset = src.time_offset.value
+                view = view_from_footage(ft, cam, time_offset=offset, name=src.label)
+            except InputError as exc:
+                msg = f"{_where(job, i, j, src)}: {_job_wording(str(exc))}"
+                if isinstance(exc, FileNotFoundError):
+                    raise InputFileNotFoundError(msg) from None
+                raise InputError(msg) from None
+            std = (lens.details or {}).get("std_dev") or {}
+            cal = CameraCalibration(
+                camera_id=src.lens.name,
+                pose_covariance=pose.covariance,
+                focal_length_uncertainty=float(std.get("fx_px", 0.0)),
+                time_offset_uncertainty=(
+                    src.time_offset.uncertainty if (j > 0 and src.time_offset) else 0.0
+                ),
+                marker_corners=pose.details.get("marker_corners"),
+                board=pose.details.get("board"),
+            )
+            digest = footage_sha256(src.footage)
+            hashes[str(src.footage)] = digest
+            for extra in (src.lens, src.marker_layout):
+                hashes[str(extra)] = file_sha256(extra)
+            views.append(ViewInput(src, ft, view, cal, pose, digest))
+        out.append(views)
+    return out, hashes
+
+
+def fit_throws(job: Job, inputs: list[list[ViewInput]]):
+    """Fit every throw in 3-D and combine them: (ViewMeasurementFit, per-throw ViewThrow).
+
+    Raises
+    ------
+    ConvergenceError
+        A throw's fit did not converge.
+    """
+    from fitdrag.fit.image_fit import fit_views
+    from fitdrag.fit.view_budget_model import ViewThrow, combine_throws
+
+    specimen = job.make_specimen()
+    air = job.make_air()
+    opts = job.fit_options()
+    kw: dict[str, Any] = {}
+    for name in ("model", "lift", "noise"):
+        if name in opts:
+            kw[name] = opts[name]
+    if "wind" in opts:
+        kw["wind"] = (float(opts["wind"]), 0.0, 0.0)
+    throws = []
+    for i, views in enumerate(inputs):
+        label = job.throws[i].label
+        r = fit_views([v.view for v in views], specimen, air, gravity=job.gravity(), **kw)
+        if not r.success:
+            raise ConvergenceError(f"the 3-D fit of throw {i + 1} ({label}) did not converge: "
+                                   f"{r.message}")  # fmt: skip
+        throws.append(ViewThrow([v.view for v in views], [v.calibration for v in views], r,
+                                label))  # fmt: skip
+    w, mean, u, dof, birge = combine_throws([t.result.cd for t in throws],
+                                            [t.result.u_cd for t in throws],
+                                            [t.result.dof for t in throws])  # fmt: skip
+    if birge > 1.0:
+        warnings.warn(
+            f"the {len(throws)} throws scatter more than their fits say (Birge ratio "
+            f"{birge:.2f}); the statistical uncertainty is enlarged by that factor.",
+            stacklevel=2,
+        )
+    return ViewMeasurementFit(tuple(throws), mean, u, dof, w, birge)
+
+
+def footage_records(job: Job, inputs: list[list[ViewInput]]) -> tuple[FootageRecord, ...]:
+    """Per view of every throw: the file, its SHA-256 and how it was tracked and calibrated."""
+    out = []
+    for i, views in enumerate(inputs):
+        for v in views:
+            meta = {k: val for k, val in v.footage.track.meta.items()
+                    if k != "source" and isinstance(val, str | int | float | bool)}  # fmt: skip
+            meta["sha256"] = v.sha256
+            meta["camera_distance_to_board_m"] = float(v.pose.distance_to_board)
+            meta["camera_axis_angle_deg"] = math.degrees(float(v.pose.axis_angle))
+            meta["pose_reprojection_rms_px"] = float(v.pose.reprojection_rms_px)
+            label = job.throws[i].label
+            if len(views) > 1:
+                label = f"{label} / {v.source.label}"
+            out.append(FootageRecord(throw=i + 1, label=label, path=str(v.source.footage),
+                                     tracking=meta))  # fmt: skip
+    return tuple(out)
+
+
+def geometry_text(job: Job, inputs: list[list[ViewInput]], fit: ViewMeasurementFit) -> str:
+    """The certificate's account of the cameras and of the flight's measured geometry."""
+    from fitdrag.report.numbers import format_sig, format_with_uncertainty
+
+    cams = []
+    seen = set()
+    for views in inputs:
+        for v in views:
+            key = str(v.source.footage)
+            if key in seen:
+                continue
+            seen.add(key)
+            d, ud = format_with_uncertainty(v.pose.distance_to_board,
+                                            v.pose.distance_to_board_uncertainty, 2)  # fmt: skip
+            ang = math.degrees(v.pose.axis_angle)
+            cam = v.view.camera
+            ro = (f"rolling shutter, readout {format_sig(1e3 * cam.readout_time, 3)} ms"
+                  f" (u {format_sig(1e3 * cam.readout_time_uncertainty, 2)} ms)"
+                  if cam.readout_time > 0 else "global shutter")  # fmt: skip
+            cams.append(
+                f"{v.source.label} ({v.source.lens.name}): {d} m from the board (u {ud} m), "
+                f"axis {ang:.1f}° from its normal, {ro}"
+            )
+    flights = []
+    for k, th in enumerate(fit.throws, start=1):
+        r = th.result
+        a, ua = format_with_uncertainty(r.out_of_plane_angle, r.out_of_plane_angle_uncertainty)
+        z0, z1 = r.depth_range
+        rms = ", ".join(f"{format_sig(vr.residual_rms, 2)}" for vr in r.views)
+        flights.append(
+            f"throw {k}: {a}° out of the board plane (u {ua}°), {1e3 * z0:.0f} to "
+            f"{1e3 * z1:.0f} mm in front of it; residual RMS {rms} px"
+        )
+    n_cam = len(inputs[0])
+    how = ("one camera: the depth from the specimen's apparent diameter against its stated "
+           "diameter" if n_cam == 1 else f"{n_cam} cameras, time offsets "
+           + ("stated" if all(not v.offset_estimated for v in fit.throws[0].result.views[1:])
+              else "estimated from the data"))  # fmt: skip
+    text = (
+        f"Measured in 3-D ({how}). Cameras: " + "; ".join(cams) + ". Flight: "
+        + "; ".join(flights) + ". Camera model: pinhole with the radial-tangential "
+        "distortion of the lens file (OpenCV's model), pose by PnP on all marker corners "
+        "with its covariance (Hartley and Zisserman 2004, ch. 6-7), row r of a frame seen "
+        "at t + (r / rows) × readout time; the flight is fitted to each camera's pixels at "
+        "each observation's own row time."
+    )
+    if len(fit.throws) > 1:
+        text += (
+            f" Throws combined by their weighted mean (Birge ratio "
+            f"{format_sig(fit.birge_ratio, 2)}"
+            + ("; statistical part enlarged by it" if fit.birge_ratio > 1 else "")
+            + ")."
+        )
+    return text
