@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -151,8 +151,7 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
                 time_offset_uncertainty=(
                     src.time_offset.uncertainty if (j > 0 and src.time_offset) else 0.0
                 ),
-                marker_corners=pose.details.get("marker_corners"),
-                board=pose.details.get("board"),
+                **_board_of(ft),
             )
             digest = footage_sha256(src.footage)
             hashes[str(src.footage)] = digest
@@ -161,6 +160,20 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
             views.append(ViewInput(src, ft, view, cal, pose, digest))
         out.append(views)
     return out, hashes
+
+
+def _board_of(ft) -> dict:
+    """The marker corners (recorded image) [px] and the board of tracked footage, so that the
+    budget can re-solve the pose for a changed focal length; empty when not kept."""
+    from fitdrag.geometry.pose import MarkerBoard
+
+    cal = ft.calibration
+    obs = getattr(cal, "markers", ())
+    layout = getattr(cal, "marker_layout", None)
+    if not obs or layout is None:
+        return {}
+    corners = {int(o.id): o.corners_raw for o in obs if int(o.id) in layout}
+    return {"marker_corners": corners, "board": MarkerBoard(cal.marker_size, layout)}
 
 
 def fit_throws(job: Job, inputs: list[list[ViewInput]]):
@@ -262,8 +275,11 @@ def geometry_text(job: Job, inputs: list[list[ViewInput]], fit: ViewMeasurementF
            + ("stated" if all(not v.offset_estimated for v in fit.throws[0].result.views[1:])
               else "estimated from the data"))  # fmt: skip
     text = (
-        f"Measured in 3-D ({how}). Cameras: " + "; ".join(cams) + ". Flight: "
-        + "; ".join(flights) + ". Camera model: pinhole with the radial-tangential "
+        f"Measured in 3-D ({how}). Cameras: "
+        + "; ".join(cams)
+        + ". Flight: "
+        + "; ".join(flights)
+        + ". Camera model: pinhole with the radial-tangential "
         "distortion of the lens file (OpenCV's model), pose by PnP on all marker corners "
         "with its covariance (Hartley and Zisserman 2004, ch. 6-7), row r of a frame seen "
         "at t + (r / rows) × readout time; the flight is fitted to each camera's pixels at "
@@ -277,3 +293,183 @@ def geometry_text(job: Job, inputs: list[list[ViewInput]], fit: ViewMeasurementF
             + ")."
         )
     return text
+
+
+def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, workers=None,
+                  progress: bool = False):  # fmt: skip
+    """:func:`fitdrag.run.pipeline.measure` for a job whose throws are measured in 3-D."""
+    from fitdrag.fit.view_budget_model import ViewRefitModel
+    from fitdrag.report.content import CameraSettings, FitFacts
+    from fitdrag.run.pipeline import (
+        Measurement,
+        _monte_carlo_trials,
+        budget_and_checks,
+        certificate_content,
+    )
+    from fitdrag.uncertainty.gum import InputQuantity
+
+    n_mc = _monte_carlo_trials(job, monte_carlo)
+    inputs_3d, hashes = read_views(job, progress=progress)
+    fit = fit_throws(job, inputs_3d)
+    air = job.make_air()
+    scale_u = [v.source.scale_uncertainty or 0.0 for views in inputs_3d for v in views]
+    u_scale = max(scale_u)
+    quantities = [q for q in job.input_quantities(scale_relative_uncertainty=u_scale,
+                                                  roll_uncertainty=0.0) if q.name != "roll"]  # fmt: skip
+    quantities = [
+        replace(q, description="marker board scale (marker side, relative)")
+        if q.name == "length_scale" else q
+        for q in quantities
+    ]  # fmt: skip
+    nominal = {q.name: q.value for q in quantities}
+    model = ViewRefitModel(list(fit.throws), nominal, length=job.specimen.length,
+                           viscosity=air.viscosity)  # fmt: skip
+    u_cam = model.camera_uncertainties()
+    for name, (unit, text) in model.camera_names.items():
+        if u_cam[name] > 0:
+            quantities.append(InputQuantity(name, model.nominal[name], u_cam[name], unit,
+                                            description=text))  # fmt: skip
+    stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
+    budget, mc, check = budget_and_checks(
+        job, model, quantities, stat, n_mc, adaptive=adaptive, seed=seed, workers=workers,
+        progress=progress,
+    )  # fmt: skip
+    first = fit.throws[0].result
+    launch = first.launch
+    speed = math.sqrt(launch.vx**2 + launch.vy**2 + launch.vz**2)
+    angle = math.degrees(math.atan2(launch.vy, math.hypot(launch.vx, launch.vz)))
+    lc = first.launch_covariance
+    vel = np.array([launch.vx, launch.vy, launch.vz])
+    g_speed = vel / speed
+    h = math.hypot(launch.vx, launch.vz)
+    g_angle = np.array([-launch.vy * launch.vx / h, h, -launch.vy * launch.vz / h]) / speed**2
+    cov_v = lc[3:, 3:]
+    from fitdrag.report.content import Estimate
+
+    re_lo = min(t.result.reynolds_range[0] for t in fit.throws)
+    re_hi = max(t.result.reynolds_range[1] for t in fit.throws)
+    n_used = sum(len(v) for t in fit.throws for v in t.views)
+    facts = FitFacts(
+        throws=len(fit.throws),
+        drag_model=fit.model,
+        reynolds_number=(re_lo, re_hi, math.sqrt(re_lo * re_hi)),
+        launch_speed=Estimate(speed, math.sqrt(max(float(g_speed @ cov_v @ g_speed), 0.0))),
+        launch_angle=Estimate(
+            angle, math.degrees(math.sqrt(max(float(g_angle @ cov_v @ g_angle), 0.0)))
+        ),  # fmt: skip
+        points_used=n_used,
+        points_total=n_used,
+        noise_model=first.noise_model,
+    )
+    summary = {
+        "measured_in": "3-D",
+        "drag_coefficient": fit.cd,
+        "statistical_standard_uncertainty": fit.u_cd,
+        "degrees_of_freedom": fit.dof,
+        "birge_ratio": None if math.isnan(fit.birge_ratio) else fit.birge_ratio,
+        "throws": [_throw_summary(t, w) for t, w in zip(fit.throws, fit.weights)],
+    }
+    camera = CameraSettings(
+        fps=job.camera.fps.estimate(),
+        scale_relative_uncertainty=u_scale,
+        scale_relative_uncertainty_source="marker side (largest of the views' scale_uncertainty)",
+    )
+    content = certificate_content(
+        job, float(fit.cd), budget, mc, check, air=air, wind=job.fit_options().get("wind", 0.0),
+        statistical_u=float(fit.u_cd), camera=camera, footage=footage_records(job, inputs_3d),
+        method=_method_3d(fit, budget, mc, geometry_text(job, inputs_3d, fit)),
+        fit_facts=facts, fit_summary=summary, hashes=hashes,
+    )  # fmt: skip
+    verdict = content.conformity.verdict if content.conformity is not None else None
+    tracks = [v.footage.track for views in inputs_3d for v in views]
+    from fitdrag.report.plots import curves_from_views
+
+    curves = [c for t in fit.throws for c in curves_from_views(t.result, t.views, label=t.label)]
+    return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content, curves)
+
+
+def _throw_summary(th, weight: float) -> dict:
+    """A throw's 3-D fit in plain JSON values."""
+    r = th.result
+    return {
+        "label": th.label,
+        "weight": float(weight),
+        "drag_coefficient": r.cd,
+        "standard_uncertainty": r.u_cd,
+        "coverage_factor": r.coverage_factor,
+        "degrees_of_freedom": r.dof,
+        "out_of_plane_angle_deg": r.out_of_plane_angle,
+        "out_of_plane_angle_uncertainty_deg": r.out_of_plane_angle_uncertainty,
+        "depth_range_m": list(r.depth_range),
+        "reynolds_range": list(r.reynolds_range),
+        "noise_model": r.noise_model,
+        "launch": {
+            "time_s": r.launch_time,
+            "position_m": [r.launch.x, r.launch.y, r.launch.z],
+            "velocity_m_s": [r.launch.vx, r.launch.vy, r.launch.vz],
+        },  # fmt: skip
+        "views": [
+            {
+                "name": v.name,
+                "observations": int(v.t.size),
+                "residual_rms_px": v.residual_rms,
+                "sigma_u_px": v.sigma_u,
+                "sigma_v_px": v.sigma_v,
+                "sigma_diameter_px": v.sigma_diameter,
+                "diameter_used": v.diameter_used,
+                "time_offset_s": v.time_offset,
+                "time_offset_uncertainty_s": v.time_offset_uncertainty,
+                "time_offset_estimated": v.offset_estimated,
+                "distance_m": v.distance,
+            }
+            for v in r.views
+        ],
+    }
+
+
+def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
+    """The method in words for a 3-D measurement."""
+    from fitdrag.physics.registry import get_drag_model
+    from fitdrag.report.content import Method
+
+    dm = get_drag_model(fit.model)
+    lift = fit.lift
+    eq = (
+        "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
+        + (" + lift" if lift else "")
+        + ": Newton's second law in three dimensions for the specimen of mass m, volume V and "
+        "frontal area A in air of density ρ, with gravity g less buoyancy, the added mass of "
+        "the displaced air (coefficient C_a) and quadratic drag (w: wind)"
+        + ("; a constant lift coefficient is fitted too" if lift else "")
+        + "."
+    )
+    fit_method = (
+        "weighted nonlinear least squares in each camera's pixels (Levenberg–Marquardt): the "
+        "predicted centre (and, where used, width) of the sphere's image outline at each "
+        "observation's own time against the tracked blob; noise model "
+        f"{fit.throws[0].result.noise_model}, each camera's noise level estimated from its "
+        "residuals; each throw has its own launch state"
+        + (", Cd combined over throws by their weighted mean" if len(fit.throws) > 1 else "")
+        + "."
+    )
+    unc = (
+        "JCGM 100:2008 (GUM): law of propagation of uncertainty with sensitivity coefficients "
+        "from re-fits (each camera's pose along its direction of greatest effect with its PnP "
+        "covariance, focal length with the pose re-solved from the board, readout time, "
+        "stated time offsets, board scale), Welch–Satterthwaite effective degrees of "
+        f"freedom, coverage factor from the t-distribution at p = "
+        f"{100 * budget.coverage_probability:.2f} %"
+    )
+    if mc is not None:
+        unc += f"; checked by the Monte Carlo method of JCGM 101:2008 ({mc.trials} re-fits)"
+    return Method(
+        model_equation=eq,
+        drag_model=dm.name,
+        drag_model_text=f"{dm.name}: {dm.description}"
+        + (f" ({dm.reference})" if dm.reference else ""),  # fmt: skip
+        integrator="explicit Runge–Kutta 5(4) (Dormand and Prince 1980) with forward "
+        "sensitivities, in three dimensions",
+        fit_method=fit_method,
+        uncertainty_method=unc + ".",
+        geometry=geometry,
+    )
