@@ -323,3 +323,49 @@ def test_lens_file_is_applied_and_checked(footage, tmp_path, capsys):
         "calibrate the lens at the footage's resolution." in err
     )
     assert not (tmp_path / "c.csv").exists()
+
+
+def test_camera_in_the_header_with_markers_layout_and_lens(footage, tmp_path, capsys):
+    """closed-form/independent: the footage was drawn through H = 800 px/m (square on, no
+    roll); with a lens of f = 900 px that is a camera looking square at the board from
+    Z = f / 800 = 1.125 m (H = K [r1 r2 t], Hartley and Zisserman sec. 8.1.1) whose
+    principal point sees world ((cx - 40) / 800, (260 - cy) / 800).  --lens with the markers
+    and their layout writes that camera in the header: the lens's matrix, the pose (centre
+    within 3 mm), the readout time and its uncertainty as given (units parsed); the summary
+    says where the camera stands.  Readout options without markers, layout and lens, or a
+    negative readout time, are refused before any tracking."""
+    from fitdrag.geometry.camera import rotation_from_vector
+    from fitdrag.video.lens import LensModel
+
+    k = np.array([[900.0, 0.0, 239.5], [0.0, 900.0, 199.5], [0.0, 0.0, 1.0]])
+    LensModel(k, np.zeros(5), (480, 400), 0.05).save(tmp_path / "lens.json")
+    layout = tmp_path / "wall.csv"
+    layout.write_text("id,x_m,y_m\n0,0.0,-0.12\n1,0.40,-0.12\n")
+    base = ["track", str(footage["video"]), "--fps", "500", "--markers", "0.05",
+            "--no-progress", "--marker-layout", str(layout)]  # fmt: skip
+    out = tmp_path / "cam.csv"
+    rc, text, err = _run(base + ["--lens", str(tmp_path / "lens.json"), "--readout-time",
+                                 "1.2ms", "--readout-time-uncertainty", "100us", "-o",
+                                 str(out)], capsys)  # fmt: skip
+    assert rc == 0, err
+    cam = read_track(out).meta["camera"]
+    np.testing.assert_array_equal(cam.camera_matrix, k)
+    assert cam.image_size == (480, 400) and cam.marker_frame == 0
+    assert cam.readout_time == pytest.approx(1.2e-3, rel=1e-12)
+    assert cam.readout_time_uncertainty == pytest.approx(1e-4, rel=1e-12)
+    centre = -rotation_from_vector(cam.rotation_vector).T @ cam.translation
+    expected = [(239.5 - 40.0) / 800.0, (260.0 - 199.5) / 800.0, 900.0 / 800.0]
+    assert np.linalg.norm(centre - expected) < 3e-3
+    assert cam.pose_covariance.shape == (6, 6) and np.all(np.diag(cam.pose_covariance) > 0)
+    assert "camera: pose from 2 marker(s)" in text and "m from the board" in text
+    assert "rolling shutter, readout 1.2 ms ± 0.1 ms" in text
+    rc, _, err = _run(["track", str(footage["video"]), "--fps", "500", "--markers", "0.05",
+                       "--readout-time", "1ms", "-o", str(tmp_path / "x.csv")], capsys)  # fmt: skip
+    assert rc == 2 and (
+        "--readout-time: it describes the camera, which is measured from --markers with "
+        "--marker-layout and --lens; give those too, or leave --readout-time out." in err
+    )
+    rc, _, err = _run(base + ["--lens", str(tmp_path / "lens.json"), "--readout-time=-1ms",
+                              "-o", str(tmp_path / "y.csv")], capsys)  # fmt: skip
+    assert rc == 2 and "--readout-time: expected a time >= 0 s, got -0.001 s." in err
+    assert not (tmp_path / "x.csv").exists() and not (tmp_path / "y.csv").exists()

@@ -115,3 +115,39 @@ def test_camera_view_directions_and_times():
     np.testing.assert_allclose(d, np.tile(expected, (10, 1)), atol=1e-12)
     np.testing.assert_allclose(view.frame_times, (np.arange(10) + 3) / 500.0)
     assert view.with_time_offset(1e-3).time_offset == 1e-3
+
+
+def test_camera_view_diameters_not_measured_are_nan():
+    """regression: NaN marks a frame whose diameter was not measured (kept as NaN, with or
+    without a sigma there); too few measured diameters, a negative diameter, or a NaN sigma
+    beside a measured diameter are refused with messages naming the input, value and fix."""
+    d = np.full(10, 16.0)
+    d[[2, 5]] = np.nan
+    s = np.full(10, 0.05)
+    s[2] = np.nan
+    view = _view(diameter=d, diameter_sigma=s)
+    assert np.isnan(view.diameter[[2, 5]]).all() and np.isfinite(view.diameter).sum() == 8
+    assert np.isnan(view.diameter_sigma[2]) and view.diameter_sigma[5] == 0.05
+    d3 = d.copy()
+    d3[7] = np.nan
+    with pytest.raises(InputError) as e:
+        _view(diameter=d3)
+    assert str(e.value) == (
+        "diameter: 7 frame(s) have a measured diameter, at least 8 are needed; leave the "
+        "diameters out (None)."
+    )
+    bad = d.copy()
+    bad[4] = -1.0
+    with pytest.raises(InputError) as e:
+        _view(diameter=bad)
+    assert str(e.value) == (
+        "diameter: every value must be finite and > 0 [px]; item 4 is -1.0; NaN where not measured."
+    )
+    s2 = s.copy()
+    s2[6] = np.nan
+    with pytest.raises(InputError) as e:
+        _view(diameter=d, diameter_sigma=s2)
+    assert str(e.value) == (
+        "diameter_sigma: item 6 is NaN but diameter[6] was measured; give the uncertainty of "
+        "every measured diameter."
+    )

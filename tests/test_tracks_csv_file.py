@@ -725,3 +725,43 @@ def test_header_roll_uncertainty_is_a_number(tmp_path):
     p.write_text("# roll_uncertainty_deg: level\nt,x,y\n" + rows, encoding="utf-8")
     with pytest.raises(ValueError, match=r"header entry 'roll_uncertainty_deg' must be a number"):
         read_track(p)
+
+
+def _camera_lines() -> str:
+    from fitdrag.tracks.camera_header import CameraHeader
+
+    h = CameraHeader((640, 400), [[750.0, 0, 320.5], [0, 750.0, 199.5], [0, 0, 1]],
+                     (-0.08, 0.05, 0.0, 0.0, 0.0), [3.1, 0.02, -0.01], [-0.9, 0.7, 3.1],
+                     np.eye(6) * 1e-8, 1e-3, 1e-4, 0)  # fmt: skip
+    return "".join(f"# {k}: {v}\n" for k, v in h.to_lines().items())
+
+
+def test_camera_header_read_with_the_image_columns(tmp_path):
+    """closed-form/independent: a footage track whose header states its camera reads into
+    meta['camera'] (the numbers written) with the image columns x_px, y_px, sigma_px in
+    meta['per_point'] aligned with the points; write_track leaves the camera lines out (its
+    file has no image columns), so the written file reads back as a planar track."""
+    body = "frame,t,x,y,x_px,y_px,quality,sigma_px\n" + "".join(
+        f"{i},{i / 500},{0.01 * i},{1 - 0.002 * i},{100 + 4.5 * i},{300 - 2 * i},0.9,0.02\n"
+        for i in range(10)
+    )
+    p = write(tmp_path, "# fps: 500.0\n" + _camera_lines() + body)
+    tr = read_track(p)
+    cam = tr.meta["camera"]
+    assert cam.image_size == (640, 400) and cam.readout_time == 1e-3 and cam.marker_frame == 0
+    np.testing.assert_array_equal(cam.translation, [-0.9, 0.7, 3.1])
+    np.testing.assert_array_equal(tr.meta["per_point"]["x_px"], 100 + 4.5 * np.arange(10))
+    np.testing.assert_array_equal(tr.meta["per_point"]["sigma_px"], np.full(10, 0.02))
+    out = write_track(tr, tmp_path / "planar.csv")
+    assert "# camera_" not in out.read_text() and "camera" not in read_track(out).meta
+
+
+def test_camera_header_without_image_columns_is_refused(tmp_path):
+    """regression: camera lines without the image columns the camera saw are refused, naming
+    the file, what is missing and the fix."""
+    p = write(tmp_path, _camera_lines() + rows(10))
+    with pytest.raises(ValueError, match=exact(
+            f"{p}: the header states a camera but the file has no x_px or y_px column (the "
+            f"image position the camera saw); write the track again with fitdrag track, or "
+            f"delete every camera_ line to use it as a planar track.")):  # fmt: skip
+        read_track(p)

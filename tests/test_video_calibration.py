@@ -289,6 +289,25 @@ def test_layout_homography_ignores_unlisted_markers(tilted_scene):
     assert cal.details["missing_ids"] == (33,)
 
 
+def test_markers_and_layout_are_kept_for_the_pose(tilted_scene):
+    """closed-form/independent: the calibration keeps every marker found (their recorded
+    corners within 0.1 px of the render's exact corners, the homography applied by
+    cv2.perspectiveTransform), the marker side and the whole layout given, so the camera's
+    pose can be found from them; a scale calibration keeps none."""
+    img, h = tilted_scene
+    part = {3: LAYOUT[3], 7: LAYOUT[7], 20: LAYOUT[20], 33: (1.0, 1.0)}
+    cal = calibration_from_markers(img, SIZE, layout=part)
+    assert sorted(o.id for o in cal.markers) == [3, 7, 12, 20]
+    for o in cal.markers:
+        np.testing.assert_allclose(o.corners_raw, true_corners(h, *LAYOUT[o.id]), atol=0.1)
+    assert cal.marker_size == SIZE
+    assert dict(cal.marker_layout) == part
+    flat = calibration_from_markers(img, SIZE)
+    assert len(flat.markers) == 4 and flat.marker_layout is None
+    plain = calibration_from_scale(0.001)
+    assert plain.markers == () and plain.marker_size is None and plain.marker_layout is None
+
+
 def test_markers_seen_through_a_distorting_lens():
     """closed-form/independent: the marker image is warped by a known barrel distortion
     (cv2.remap with the exact inverse map); with the lens model the homography still

@@ -10,6 +10,7 @@ import argparse
 import sys
 from pathlib import Path
 
+from fitdrag.commands._options import quantity
 from fitdrag.errors import InputError, InputFileNotFoundError, OutputExistsError
 
 NAME = "track"
@@ -20,7 +21,7 @@ Examples:
   fitdrag track frames/ --fps 2000 --scale 0.00125 --origin 12,790 -o throw2.csv
   fitdrag track throw3.mkv --fps 500 --reference 102.5,640,1180,655.5,1.000 -o throw3.csv
   fitdrag track throw4.avi --fps 1000 --markers 0.08 --marker-layout wall.csv \\
-      --lens lens.json -o throw4.csv
+      --lens lens.json --readout-time 1.2ms --readout-time-uncertainty 0.1ms -o throw4.csv
 
 Calibration (choose one):
   --scale M_PER_PX      known size of one pixel in the plane of flight; the world origin is at
@@ -36,6 +37,12 @@ The CSV has frame, t [s], x, y [m, y up], x_px, y_px [image px, y down], quality
 columns and '# key: value' header lines with the calibration (scale, its relative standard
 uncertainty, reprojection RMS) and, when one was seen, the other moving objects (where, when,
 and the frames where they overlap the specimen); it loads straight into `fitdrag fit`.
+
+Camera: with --markers, --marker-layout and --lens the header also states the camera that took
+the footage (camera_ lines: image size, camera matrix, distortion, pose from all marker
+corners with its covariance, --readout-time and its uncertainty, the markers' frame), and
+`fitdrag fit` measures the throw in 3-D from it (several such files: one throw seen by
+several cameras).
 
 Exit codes: 0 track written, 1 a bug (with a traceback), 2 bad arguments, footage or
 calibration (e.g. no markers found, too few frames with the specimen).
@@ -91,7 +98,14 @@ def register(sub) -> argparse.ArgumentParser:
                    help="frame to find the markers in (default: --start)")  # fmt: skip
     c.add_argument("--lens", metavar="LENS.json",
                    help="lens model from `fitdrag calibrate-lens`: centroids and marker "
-                   "corners are undistorted with it")  # fmt: skip
+                   "corners are undistorted with it; with --markers and --marker-layout the "
+                   "camera's intrinsics and pose are written in the CSV header")  # fmt: skip
+    c.add_argument("--readout-time", type=quantity("s"), default=None, metavar="S",
+                   help="rolling-shutter readout time of the camera, first row to last, from "
+                   "its data sheet [s] (or e.g. 1.2ms; default 0: global shutter)")  # fmt: skip
+    c.add_argument("--readout-time-uncertainty", type=quantity("s"), default=None,
+                   metavar="S", help="standard uncertainty of --readout-time [s] (or e.g. "
+                   "0.1ms; default 0)")  # fmt: skip
     return p
 
 
@@ -126,6 +140,49 @@ def _write_atomic(path: Path, write, force: bool, check=None) -> None:
 
 
 # ------------------------------------------------------------------------------------------
+# The camera
+# ------------------------------------------------------------------------------------------
+
+
+def _camera_wanted(args) -> bool:
+    """Whether the CSV gets the camera (markers, layout and lens given); readout options
+    without them are refused."""
+    wanted = args.markers is not None and bool(args.marker_layout) and bool(args.lens)
+    for opt, value in (("--readout-time", args.readout_time),
+                       ("--readout-time-uncertainty", args.readout_time_uncertainty)):  # fmt: skip
+        if value is None:
+            continue
+        if not wanted:
+            raise InputError(
+                f"{opt}: it describes the camera, which is measured from --markers with "
+                f"--marker-layout and --lens; give those too, or leave {opt} out."
+            )
+        if not value >= 0:
+            raise InputError(f"{opt}: expected a time >= 0 s, got {value!r} s.")
+    return wanted
+
+
+def _camera_text(pose) -> str:
+    """Two lines for people: where the camera stands and how it reads out its rows."""
+    import math
+
+    cam = pose.camera
+    shutter = (
+        "global shutter"
+        if cam.readout_time == 0
+        else f"rolling shutter, readout {1e3 * cam.readout_time:.4g} ms ± "
+        f"{1e3 * cam.readout_time_uncertainty:.2g} ms"
+    )
+    return (
+        f"  camera: pose from {len(pose.ids)} marker(s), reprojection RMS "
+        f"{pose.reprojection_rms_px:.3g} px; {pose.distance_to_board:.4g} m ± "
+        f"{1e3 * pose.distance_to_board_uncertainty:.2g} mm from the board, optical axis "
+        f"{math.degrees(pose.axis_angle):.3g}° ± {math.degrees(pose.axis_angle_uncertainty):.2g}° "
+        f"from its normal\n  camera: {shutter}; written in the CSV header (camera_ lines)"
+    )
+
+
+# ------------------------------------------------------------------------------------------
 # The command
 # ------------------------------------------------------------------------------------------
 
@@ -136,6 +193,7 @@ def run(args) -> int:
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
 
+    with_camera = _camera_wanted(args)
     out = _check_output(args.output, "-o/--output", args.force)
     preview = _check_output(args.preview, "--preview", args.force)
     if preview is not None and preview.resolve() == out.resolve():
@@ -158,7 +216,17 @@ def run(args) -> int:
         region=args.region or None,
         progress=not args.no_progress,
     )
-    text = footage_track_csv_text(ft)
+    pose = None
+    if with_camera:
+        from fitdrag.geometry.footage_view import camera_from_footage, camera_header
+
+        _camera, pose = camera_from_footage(
+            ft,
+            readout_time=args.readout_time or 0.0,
+            readout_time_uncertainty=args.readout_time_uncertainty or 0.0,
+        )
+    header = None if pose is None else camera_header(pose, ft.marker_frame)
+    text = footage_track_csv_text(ft, camera=header)
     _write_atomic(
         out,
         lambda p: Path(p).write_text(text, encoding="utf-8"),
@@ -166,6 +234,8 @@ def run(args) -> int:
         check=read_track,  # the file must load as a track
     )
     summary = ft.summary()
+    if pose is not None:
+        summary += "\n" + _camera_text(pose)
     if preview is not None:
         n_show = ft.preview_frame
         with open_source(args.footage) as source:

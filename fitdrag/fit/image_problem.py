@@ -18,6 +18,10 @@ Jacobian by the chain rule: d(pixel)/d(world point) (closed form) times the simu
 forward sensitivities d(position)/d(θ); for an estimated time offset,
 d(pixel)/d(offset) = d(pixel)/d(point) · velocity.
 
+A view's diameter channel holds only the frames where the diameter was measured (NaN in
+:class:`~fitdrag.geometry.views.CameraView` = not observed); its AR(1) prewhitening runs
+over those frames' gaps.
+
 Parameter layout: the drag law's parameters (then C_L when fitted), the launch state
 (x0, y0, z0, vx0, vy0, vz0) at the reference time ``t_ref``, then one time offset per view
 whose offset is estimated.  Residual layout: per view its noise channels (u, v, then the
@@ -41,9 +45,10 @@ CHANNEL_NAMES = ("u", "v", "diameter")
 class Channel:
     """One noise channel: a view's u, v or diameter series (mutable fit state inside)."""
 
-    def __init__(self, view_index: int, kind: int, observed, stated, gaps):
+    def __init__(self, view_index: int, kind: int, observed, stated, gaps, index=None):
         self.view_index = view_index
         self.kind = kind  # 0 = u, 1 = v, 2 = diameter
+        self.index = index  # observations of the view in this channel (None: all)
         self.observed = np.asarray(observed, float)
         self.stated = None if stated is None else np.asarray(stated, float)
         self.relative = np.ones_like(self.observed) if stated is None else self.stated.copy()
@@ -115,8 +120,12 @@ class ImageProblem:
             gaps = np.diff(v.frames).astype(int)
             self.channels.append(Channel(i, 0, v.u, v.sigma, gaps))
             self.channels.append(Channel(i, 1, v.v, v.sigma, gaps))
-            if self.use_outline[i]:
-                self.channels.append(Channel(i, 2, v.diameter, v.diameter_sigma, gaps))
+            if self.use_outline[i]:  # frames without a measured diameter (NaN) left out
+                k = np.flatnonzero(np.isfinite(v.diameter))
+                ds = None if v.diameter_sigma is None else v.diameter_sigma[k]
+                self.channels.append(
+                    Channel(i, 2, v.diameter[k], ds, np.diff(v.frames[k]).astype(int), k)
+                )
         row = 0
         for ch in self.channels:
             ch.rows = slice(row, row + ch.observed.size)
@@ -196,7 +205,11 @@ class ImageProblem:
         pred, ok = self.predict(theta)
         if not ok:
             return None
-        return [ch.observed - pred[ch.view_index][ch.kind] for ch in self.channels]
+        out = []
+        for ch in self.channels:
+            p = pred[ch.view_index][ch.kind]
+            out.append(ch.observed - (p if ch.index is None else p[ch.index]))
+        return out
 
     # -- evaluation --------------------------------------------------------------------------
     def evaluate(self, theta):
@@ -235,6 +248,8 @@ class ImageProblem:
         for ch in self.channels:
             entry, vel, sj = per_view[ch.view_index]
             pred, dpoint = entry[ch.kind]
+            if ch.index is not None:
+                pred, dpoint, vel, sj = (a[ch.index] for a in (pred, dpoint, vel, sj))
             inv_s = 1.0 / ch.sigma
             r = (ch.observed - pred) * inv_s
             dsim = np.einsum("nk,nkp->np", dpoint, sj)  # d pred / d θ_sim

@@ -62,7 +62,8 @@ __all__ = ["MIN_VIEW_POINTS", "CameraView", "outline_centre", "outline_width"]
 MIN_VIEW_POINTS = 8
 
 
-def _series(name: str, value: Any, n: int | None, unit: str, *, positive: bool = False):
+def _series(name: str, value: Any, n: int | None, unit: str, *, positive: bool = False,
+            missing: bool = False):  # fmt: skip
     try:
         a = np.array(value, dtype=float).reshape(-1)
     except (TypeError, ValueError):
@@ -74,13 +75,15 @@ def _series(name: str, value: Any, n: int | None, unit: str, *, positive: bool =
             f"{name}: expected one value per frame ({n} frames), got {a.size}; give the "
             f"observations of the same frames in the same order."
         )
-    bad = ~np.isfinite(a) | ((a <= 0) if positive else np.zeros(a.size, bool))
+    seen = ~np.isnan(a) if missing else np.ones(a.size, bool)
+    bad = seen & (~np.isfinite(a) | ((a <= 0) if positive else np.zeros(a.size, bool)))
     if np.any(bad):
         i = int(np.flatnonzero(bad)[0])
         need = "finite and > 0" if positive else "finite"
+        fix = ("NaN where not measured" if missing else
+               "drop the frames where the specimen was not measured (do not pass NaN)")  # fmt: skip
         raise InputError(
-            f"{name}: every value must be {need} {unit}; item {i} is {float(a[i])!r}; drop the "
-            f"frames where the specimen was not measured (do not pass NaN)."
+            f"{name}: every value must be {need} {unit}; item {i} is {float(a[i])!r}; {fix}."
         )
     a.setflags(write=False)
     return a
@@ -104,9 +107,11 @@ class CameraView:
         Standard uncertainty of one centroid coordinate; None = estimated from the fit's
         residuals. A stated value is a floor: the fit never uses less. [px]
     diameter : sequence of float, optional
-        Apparent diameter of the blob measured across the direction of motion. [px]
+        Apparent diameter of the blob measured across the direction of motion; NaN where it
+        was not measured (at least ``MIN_VIEW_POINTS`` frames must have one). [px]
     diameter_sigma : float or sequence of float, optional
-        Standard uncertainty of ``diameter``; None = estimated from the residuals. [px]
+        Standard uncertainty of ``diameter`` (NaN allowed where the diameter is NaN); None =
+        estimated from the residuals. [px]
     time_offset : float or None
         Time of this view's frame 0 minus that of the first view's; None = estimate it
         (the first view's is 0 by definition). [s]
@@ -174,22 +179,30 @@ class CameraView:
                 self, "sigma", _series(label + "sigma", self.sigma, n, "[px]", positive=True)
             )
         if self.diameter is not None:
-            object.__setattr__(
-                self,
-                "diameter",
-                _series(label + "diameter", self.diameter, n, "[px]", positive=True),
-            )
+            d = _series(label + "diameter", self.diameter, n, "[px]", positive=True, missing=True)
+            n_measured = int(np.sum(np.isfinite(d)))
+            if n_measured < MIN_VIEW_POINTS:
+                raise InputError(
+                    f"{label}diameter: {n_measured} frame(s) have a measured diameter, at least "
+                    f"{MIN_VIEW_POINTS} are needed; leave the diameters out (None)."
+                )
+            object.__setattr__(self, "diameter", d)
         if self.diameter_sigma is not None:
             if self.diameter is None:
                 raise InputError(
                     f"{label}diameter_sigma: given without a diameter; give the apparent "
                     f"diameters too, or leave diameter_sigma out."
                 )
-            object.__setattr__(
-                self,
-                "diameter_sigma",
-                _series(label + "diameter_sigma", self.diameter_sigma, n, "[px]", positive=True),
-            )
+            ds = _series(label + "diameter_sigma", self.diameter_sigma, n, "[px]",
+                         positive=True, missing=True)  # fmt: skip
+            lacking = np.isfinite(self.diameter) & np.isnan(ds)
+            if np.any(lacking):
+                i = int(np.flatnonzero(lacking)[0])
+                raise InputError(
+                    f"{label}diameter_sigma: item {i} is NaN but diameter[{i}] was measured; "
+                    f"give the uncertainty of every measured diameter."
+                )
+            object.__setattr__(self, "diameter_sigma", ds)
         if self.time_offset is not None:
             try:
                 off = float(self.time_offset)

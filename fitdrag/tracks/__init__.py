@@ -9,6 +9,7 @@ from their modules on first use; code inside fitdrag imports them from those mod
 from fitdrag._lazy import lazy_face
 
 _WHERE = {
+    "CameraHeader": "fitdrag.tracks.camera_header",
     "MIN_POINTS": "fitdrag.tracks.track",
     "OutputExistsError": "fitdrag.errors",
     "Track": "fitdrag.tracks.track",

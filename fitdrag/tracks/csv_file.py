@@ -24,6 +24,7 @@ import numpy as np
 
 from fitdrag._files import check_output, write_text_atomic
 from fitdrag.errors import InputError
+from fitdrag.tracks.camera_header import CAMERA_KEYS, CameraHeader
 from fitdrag.tracks.track import MIN_POINTS, Track, TrackImportWarning, check_input_file
 
 __all__ = ["UNITS", "read_track", "write_track"]
@@ -284,7 +285,10 @@ def read_track(
         and ``roll_uncertainty_deg`` [deg] (floats), and, when the file has any of the
         columns in :data:`PER_POINT_COLUMNS` (footage tracks), ``per_point``: a mapping from
         each such column's name to a read-only float array with one value per point of the
-        track (NaN where the cell is blank or NaN; such cells do not drop the row).
+        track (NaN where the cell is blank or NaN; such cells do not drop the row).  When the
+        header states the camera that took the footage (``camera_`` lines of ``fitdrag
+        track``), ``camera``: a :class:`~fitdrag.tracks.camera_header.CameraHeader`, and
+        ``per_point`` holds the :data:`PIXEL_COLUMNS` (x_px, y_px, sigma_px) as well.
 
     Raises
     ------
@@ -609,7 +613,20 @@ def read_track(
                     f"{text_!r}; correct that comment line or delete it."
                 )
             meta[key] = v
+    camera = CameraHeader.from_lines(header_meta, src)
     per_point = _per_point_columns(src, header, header_line, lines, kept_lines, delim)
+    if camera is not None:
+        pixels = _per_point_columns(src, header, header_line, lines, kept_lines, delim,
+                                    PIXEL_COLUMNS)  # fmt: skip
+        lacking = [c for c in PIXEL_COLUMNS[:2] if c not in pixels]
+        if lacking:
+            raise InputError(
+                f"{src}: the header states a camera but the file has no {' or '.join(lacking)} "
+                f"column (the image position the camera saw); write the track again with "
+                f"fitdrag track, or delete every camera_ line to use it as a planar track."
+            )
+        per_point.update(pixels)
+        meta["camera"] = camera
     if per_point:
         meta["per_point"] = per_point
     return Track(t=t, x=x, y=y, sigma=sigma, frame=frame, meta=meta)
@@ -621,12 +638,18 @@ def read_track(
 #: and last image rows its outline spans.
 PER_POINT_COLUMNS = ("outline_diameter_px", "u_outline_diameter_px", "row_first", "row_last")
 
+#: Per-point columns also kept in ``meta["per_point"]`` when the header states a camera
+#: (:class:`~fitdrag.tracks.camera_header.CameraHeader`): the specimen's centroid in the
+#: recorded image (x right, y down) and its standard uncertainty [px].
+PIXEL_COLUMNS = ("x_px", "y_px", "sigma_px")
 
-def _per_point_columns(src, header, header_line, lines, kept_lines, delim) -> dict:
-    """The optional per-point columns present in the file, as read-only float arrays
-    aligned with the track's points (NaN for a blank or NaN cell)."""
+
+def _per_point_columns(src, header, header_line, lines, kept_lines, delim,
+                       names=PER_POINT_COLUMNS) -> dict:  # fmt: skip
+    """The optional per-point columns ``names`` present in the file, as read-only float
+    arrays aligned with the track's points (NaN for a blank or NaN cell)."""
     out: dict[str, np.ndarray] = {}
-    for name in PER_POINT_COLUMNS:
+    for name in names:
         j = _find_column(src, header, name, name, header_line=header_line)
         if j is None:
             continue
@@ -684,7 +707,8 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
     Leading comment lines ``# key: value`` carry scalar metadata: the format, the writing
     software, the track's source file and its SHA-256 (``source``, ``source_sha256``), the
     entries of ``meta["header"]`` and the other scalar ``meta`` entries (for example
-    ``scale_relative_uncertainty``).
+    ``scale_relative_uncertainty``).  A camera's ``camera_`` lines are not written: they
+    belong with the image columns of a footage track, which this file does not hold.
 
     The file is written to a temporary file in the same directory and moved into place, so a
     reader never sees a half-written file.
@@ -727,7 +751,7 @@ def write_track(track: Track, path: str | os.PathLike, *, force: bool = False) -
     if isinstance(hdr, Mapping):
         for k, v in hdr.items():
             sv = _header_value(v)
-            if _header_key_ok(k) and sv is not None:
+            if _header_key_ok(k) and sv is not None and k.strip() not in CAMERA_KEYS:
                 items[k.strip()] = sv
     for k, v in meta.items():
         if k in _NOT_WRITTEN:

@@ -64,6 +64,7 @@ from fitdrag.errors import InputError, InputFileNotFoundError
 from fitdrag.video.lens import LensModel
 from fitdrag.video.markers import (
     DEFAULT_DICTIONARY,
+    MarkerObservation,
     aruco_dictionary,
     as_grey,
     detect_markers,
@@ -134,6 +135,14 @@ class Calibration:
         Lens model; pixels are undistorted with it before ``homography`` is applied.
     details : mapping
         Method-specific figures: per-marker scales, ids, corner precision, bias bound, ...
+    markers : tuple of MarkerObservation
+        Every marker found (methods "markers" and "homography"; empty otherwise): id, corners
+        in the recorded image and their precision, for the camera's pose from the board.
+    marker_size : float or None
+        Side of the markers' black square (marker methods). [m]
+    marker_layout : mapping of int to (float, float), or None
+        The layout given (method "homography"): marker id -> world position of its
+        lower-left corner. [m]
     """
 
     method: str
@@ -143,6 +152,9 @@ class Calibration:
     reprojection_rms_px: float | None = None
     lens: LensModel | None = None
     details: Any = field(default_factory=dict)
+    markers: tuple[MarkerObservation, ...] = ()
+    marker_size: float | None = None
+    marker_layout: Mapping[int, tuple[float, float]] | None = None
 
     def __post_init__(self) -> None:
         h = np.array(self.homography, dtype=float)
@@ -170,6 +182,9 @@ class Calibration:
         if self.reprojection_rms_px is not None:
             object.__setattr__(self, "reprojection_rms_px", float(self.reprojection_rms_px))
         object.__setattr__(self, "details", MappingProxyType(dict(self.details or {})))
+        object.__setattr__(self, "markers", tuple(self.markers))
+        if self.marker_layout is not None:
+            object.__setattr__(self, "marker_layout", MappingProxyType(dict(self.marker_layout)))
 
     @property
     def scale_uncertainty(self) -> float:
@@ -597,6 +612,8 @@ def _similarity_from_markers(obs, size, ids, scales, lens, common, u_bias, u_siz
         reprojection_rms_px=rms,
         lens=lens,
         details=details,
+        markers=tuple(obs),
+        marker_size=size,
     )
 
 
@@ -705,6 +722,9 @@ def _homography_from_markers(obs, size, layout, lens, common, u_bias, u_size):
         reprojection_rms_px=rms,
         lens=lens,
         details=details,
+        markers=tuple(obs),
+        marker_size=size,
+        marker_layout=layout,
     )
 
 

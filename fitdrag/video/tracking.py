@@ -622,7 +622,7 @@ def track_csv_text(
     return "\n".join(lines) + "\n"
 
 
-def footage_track_csv_text(ft: FootageTrack) -> str:
+def footage_track_csv_text(ft: FootageTrack, camera: Any = None) -> str:
     """The CSV text of a :class:`FootageTrack` as ``fitdrag track`` writes it.
 
     Header lines ``# key: value`` carry the track's metadata (calibration method, scale
@@ -634,10 +634,18 @@ def footage_track_csv_text(ft: FootageTrack) -> str:
     outline spans).  :func:`fitdrag.tracks.read_track` reads it back with the same t, x and
     y (floats are written with ``repr``) and keeps the outline columns in
     ``meta["per_point"]``.
+
+    ``camera`` (a :class:`fitdrag.tracks.camera_header.CameraHeader`, e.g. from
+    :func:`fitdrag.geometry.footage_view.camera_header_from_footage`) adds the camera that
+    took the footage as ``camera_`` header lines; ``read_track`` reads it back into
+    ``meta["camera"]``.
     """
     tr, det = ft.track, ft.detections
+    meta = dict(tr.meta)
+    if camera is not None:
+        meta.update(camera.to_lines())
     return track_csv_text(
-        tr.meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px,
+        meta, tr.frame, tr.t, tr.x, tr.y, det.x_px, det.y_px, det.quality, det.sigma_px,
         getattr(det, "outline_diameter_px", None), getattr(det, "u_outline_diameter_px", None),
         getattr(det, "row_first", None), getattr(det, "row_last", None),
     )  # fmt: skip
