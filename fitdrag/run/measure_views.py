@@ -336,13 +336,13 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     )  # fmt: skip
     first = fit.throws[0].result
     launch = first.launch
-    speed = math.sqrt(launch.vx**2 + launch.vy**2 + launch.vz**2)
-    angle = math.degrees(math.atan2(launch.vy, math.hypot(launch.vx, launch.vz)))
+    speed = math.sqrt(launch.vx0**2 + launch.vy0**2 + launch.vz0**2)
+    angle = math.degrees(math.atan2(launch.vy0, math.hypot(launch.vx0, launch.vz0)))
     lc = first.launch_covariance
-    vel = np.array([launch.vx, launch.vy, launch.vz])
+    vel = np.array([launch.vx0, launch.vy0, launch.vz0])
     g_speed = vel / speed
-    h = math.hypot(launch.vx, launch.vz)
-    g_angle = np.array([-launch.vy * launch.vx / h, h, -launch.vy * launch.vz / h]) / speed**2
+    h = math.hypot(launch.vx0, launch.vz0)
+    g_angle = np.array([-launch.vy0 * launch.vx0 / h, h, -launch.vy0 * launch.vz0 / h]) / speed**2
     cov_v = lc[3:, 3:]
     from fitdrag.report.content import Estimate
 
@@ -405,8 +405,8 @@ def _throw_summary(th, weight: float) -> dict:
         "noise_model": r.noise_model,
         "launch": {
             "time_s": r.launch_time,
-            "position_m": [r.launch.x, r.launch.y, r.launch.z],
-            "velocity_m_s": [r.launch.vx, r.launch.vy, r.launch.vz],
+            "position_m": [r.launch.x0, r.launch.y0, r.launch.z0],
+            "velocity_m_s": [r.launch.vx0, r.launch.vy0, r.launch.vz0],
         },  # fmt: skip
         "views": [
             {

@@ -281,6 +281,14 @@ def job_text(sc: Scenario3D, files: ScenarioFiles, *, test_date: str = "2026-12-
         "[camera]",
         f"fps = {sc.fps!r}                 # Hz, shared by the cameras",
         "fps_uncertainty = 0.005       # Hz",
+        *(
+            [
+                f'readout_time = "{1e3 * sc.cameras[0].readout_time!r} ms"    # data sheet',
+                f'readout_time_uncertainty = "{1e3 * sc.cameras[0].readout_time_uncertainty!r} ms"',
+            ]
+            if len(sc.cameras) == 1 and sc.cameras[0].readout_time > 0
+            else []
+        ),
         "",
         "[[throws]]",
         'label = "throw 1"',
@@ -296,7 +304,7 @@ def job_text(sc: Scenario3D, files: ScenarioFiles, *, test_date: str = "2026-12-
             f"marker_layout = {rel(files.layout)}",
             "scale_uncertainty = 0.001     # relative standard uncertainty of the marker side",
         ]
-        if c.readout_time > 0:
+        if c.readout_time > 0 and not one:
             lines += [
                 f'readout_time = "{1e3 * c.readout_time!r} ms"    # camera data sheet',
                 f'readout_time_uncertainty = "{1e3 * c.readout_time_uncertainty!r} ms"',
