@@ -187,14 +187,15 @@ class ViewSource:
 
     Attributes
     ----------
-    footage : Path
-        Video file or folder of numbered frames.
+    footage : Path or None
+        Video file or folder of numbered frames (None for a track file).
     lens : Path
-        Lens file of ``fitdrag calibrate-lens`` (the camera's intrinsics).
-    markers : float
-        Side of the ArUco markers' black square. [m]
-    marker_layout : Path
-        Each marker's position on the board (the world frame: board plane z = 0).
+        Lens file of ``fitdrag calibrate-lens`` (the camera's intrinsics; for a track file,
+        the uncertainty of its focal length).
+    markers : float or None
+        Side of the ArUco markers' black square (footage). [m]
+    marker_layout : Path or None
+        Each marker's position on the board (the world frame: board plane z = 0; footage).
     label : str
         Name of the view.
     line : int or None
@@ -208,14 +209,18 @@ class ViewSource:
         Relative standard uncertainty of the marker side. [1]
     start, stop, marker_dictionary, marker_frame :
         As for footage throws.
+    track : Path or None
+        A track file written by ``fitdrag track`` with a camera (its header states the
+        camera's intrinsics, pose, pose covariance and readout), instead of footage.
     """
 
-    footage: Path
+    footage: Path | None
     lens: Path
-    markers: float
-    marker_layout: Path
+    markers: float | None
+    marker_layout: Path | None
     label: str
     line: int | None = None
+    track: Path | None = None
     readout_time: Measured | None = None
     time_offset: Measured | None = None
     scale_uncertainty: float | None = None

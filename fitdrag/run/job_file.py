@@ -523,17 +523,31 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
     for j, raw in enumerate(views):
         gi = first + j
         d = parse_table(where, vs, gi, raw, folder)
-        for k in ("footage",) + VIEW_NEEDS:
+        if ("footage" in d) == ("track" in d):
+            fail(
+                f'{where.section(vs, gi)}: give exactly one of footage = "cam1.avi" or '
+                f'track = "cam1.csv" (a track file written by fitdrag track with a camera).'
+            )
+        kind = "footage" if "footage" in d else "track"
+        needs = VIEW_NEEDS if kind == "footage" else ("lens",)
+        for k in needs:
             if k not in d:
                 missing(where, vs, gi, k, _VIEW_HINT[k])
+        if kind == "track":
+            extra = sorted(k for k in d if k in _FOOTAGE_ONLY)
+            if extra:
+                fail(
+                    f"{where.key(vs, gi, extra[0])}: applies to footage; a track file states "
+                    f"its camera (pose, readout) in its header, as fitdrag track wrote it."
+                )
         if "stop" in d and d["stop"] <= d.get("start", 0):
             fail(
                 f"{where.key(vs, gi, 'stop')}: {d['stop']} is not after start "
                 f"{d.get('start', 0)}; stop is the first frame not read."
             )
         if check_files:
-            for k in ("footage", "lens", "marker_layout"):
-                if not d[k].exists() or (k != "footage" and not d[k].is_file()):
+            for k in (kind, "lens", "marker_layout"):
+                if k in d and (not d[k].exists() or (k != "footage" and not d[k].is_file())):
                     raise InputFileNotFoundError(
                         f"{where.key(vs, gi, k)}: no such file {str(d[k])!r}; paths are "
                         f"relative to the job file's folder {str(folder)!r}."
@@ -553,9 +567,9 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
             )
         out.append(
             ViewSource(
-                footage=d["footage"], lens=d["lens"], markers=d["markers"],
-                marker_layout=d["marker_layout"], label=d.get("label") or d["footage"].name,
-                line=where.keys.get((vs, gi, "footage")),
+                footage=d.get("footage"), lens=d["lens"], markers=d.get("markers"),
+                marker_layout=d.get("marker_layout"), label=d.get("label") or d[kind].name,
+                line=where.keys.get((vs, gi, kind)), track=d.get("track"),
                 readout_time=_readout(where, vs, gi, d), time_offset=offset,
                 scale_uncertainty=d.get("scale_uncertainty"), start=d.get("start"),
                 stop=d.get("stop"), marker_dictionary=d.get("marker_dictionary"),
@@ -564,12 +578,16 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
         )  # fmt: skip
     return Throw(
         kind="views",
-        path=out[0].footage,
+        path=out[0].footage or out[0].track,
         label=(label or "").strip() or out[0].label,
         line=where.headers.get((sec, i)),
         views=tuple(out),
     )
 
+
+#: Keys of a view that only footage takes (a track file's header states the camera).
+_FOOTAGE_ONLY = ("markers", "marker_layout", "marker_dictionary", "marker_frame", "start",
+                 "stop", "scale_uncertainty", "readout_time", "readout_time_uncertainty")  # fmt: skip
 
 _VIEW_HINT = {
     "footage": 'give this camera\'s footage, e.g. footage = "cam1.avi".',

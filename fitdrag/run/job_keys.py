@@ -282,6 +282,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     # one camera's footage of a throw measured in 3-D: [[throws.views]]
     "throws.views": {
         "footage": Key("path"),
+        "track": Key("path"),
         "label": Key("str"),
         "lens": Key("path"),
         "markers": _q(

@@ -122,22 +122,27 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
     for i, th in enumerate(job.throws):
         views = []
         for j, src in enumerate(th.view_sources(job.camera)):
-            readout = src.readout_time or job.camera.readout_time
+            offset = None
+            if j == 0:
+                offset = 0.0
+            elif src.time_offset is not None:
+                offset = src.time_offset.value
             try:
-                ft = track_footage(src.footage, fps=fps, progress=progress,
-                                   **src.tracking_options)  # fmt: skip
                 lens = load_lens(src.lens)
-                cam, pose = camera_from_footage(
-                    ft, lens,
-                    readout_time=0.0 if readout is None else readout.value,
-                    readout_time_uncertainty=0.0 if readout is None else readout.uncertainty,
-                )  # fmt: skip
-                offset = None
-                if j == 0:
-                    offset = 0.0
-                elif src.time_offset is not None:
-                    offset = src.time_offset.value
-                view = view_from_footage(ft, cam, time_offset=offset, name=src.label)
+                if src.track is not None:
+                    ft, view, cam, pose = _track_view(src, fps, offset)
+                else:
+                    readout = src.readout_time or job.camera.readout_time
+                    ft = track_footage(src.footage, fps=fps, progress=progress,
+                                       **src.tracking_options)  # fmt: skip
+                    cam, pose = camera_from_footage(
+                        ft, lens,
+                        readout_time=0.0 if readout is None else readout.value,
+                        readout_time_uncertainty=(
+                            0.0 if readout is None else readout.uncertainty
+                        ),
+                    )  # fmt: skip
+                    view = view_from_footage(ft, cam, time_offset=offset, name=src.label)
             except InputError as exc:
                 msg = f"{_where(job, i, j, src)}: {_job_wording(str(exc))}"
                 if isinstance(exc, FileNotFoundError):
@@ -151,15 +156,68 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
                 time_offset_uncertainty=(
                     src.time_offset.uncertainty if (j > 0 and src.time_offset) else 0.0
                 ),
-                **_board_of(ft),
+                **({} if src.track is not None else _board_of(ft)),
             )
-            digest = footage_sha256(src.footage)
-            hashes[str(src.footage)] = digest
+            data = src.footage if src.track is None else src.track
+            digest = footage_sha256(data) if src.track is None else file_sha256(data)
+            hashes[str(data)] = digest
             for extra in (src.lens, src.marker_layout):
-                hashes[str(extra)] = file_sha256(extra)
+                if extra is not None:
+                    hashes[str(extra)] = file_sha256(extra)
             views.append(ViewInput(src, ft, view, cal, pose, digest))
         out.append(views)
     return out, hashes
+
+
+@dataclass(frozen=True, eq=False)
+class TrackPose:
+    """The pose a track file's header states (covariance, and the board distance and axis
+    angle computed from the pose)."""
+
+    covariance: np.ndarray
+    distance_to_board: float
+    distance_to_board_uncertainty: float
+    axis_angle: float
+    reprojection_rms_px: float
+
+
+@dataclass(frozen=True, eq=False)
+class TrackFootage:
+    """A track file standing in for tracked footage (its ``track``)."""
+
+    track: Any
+
+
+def _track_view(src: ViewSource, fps: float, offset):
+    """(TrackFootage, CameraView, Camera, TrackPose) of a view given as a track file."""
+    from fitdrag.geometry.camera import rotation_from_vector
+    from fitdrag.geometry.footage_view import view_from_track
+    from fitdrag.tracks.csv_file import read_track
+
+    tr = read_track(src.track)
+    view = view_from_track(tr, time_offset=offset, name=src.label)
+    if abs(view.fps / fps - 1.0) > 1e-9:
+        raise InputError(
+            f"{src.track.name}: its header says {view.fps:g} frames/s but [camera] fps is "
+            f"{fps:g}; the cameras share the frame rate: state the same rate."
+        )
+    cam = view.camera
+    cov = np.asarray(tr.meta["camera"].pose_covariance, float).reshape(6, 6)
+    centre = cam.centre
+    # d z_centre / d (rvec, t) by central differences of centre = -R^T t (small, exact enough)
+    grad = np.zeros(6)
+    for k in range(6):
+        step = np.zeros(6)
+        step[k] = 1e-7
+        zs = []
+        for sgn in (1.0, -1.0):
+            r = rotation_from_vector(cam.rvec + sgn * step[:3])
+            zs.append(float(-(r.T @ (cam.translation + sgn * step[3:]))[2]))
+        grad[k] = (zs[0] - zs[1]) / 2e-7
+    axis = cam.optical_axis
+    pose = TrackPose(cov, float(centre[2]), float(np.sqrt(max(grad @ cov @ grad, 0.0))),
+                     float(np.arccos(min(1.0, abs(float(axis[2]))))), float("nan"))  # fmt: skip
+    return TrackFootage(tr), view, cam, pose
 
 
 def _board_of(ft) -> dict:
@@ -227,11 +285,13 @@ def footage_records(job: Job, inputs: list[list[ViewInput]]) -> tuple[FootageRec
             meta["sha256"] = v.sha256
             meta["camera_distance_to_board_m"] = float(v.pose.distance_to_board)
             meta["camera_axis_angle_deg"] = math.degrees(float(v.pose.axis_angle))
-            meta["pose_reprojection_rms_px"] = float(v.pose.reprojection_rms_px)
+            if math.isfinite(v.pose.reprojection_rms_px):
+                meta["pose_reprojection_rms_px"] = float(v.pose.reprojection_rms_px)
             label = job.throws[i].label
             if len(views) > 1:
                 label = f"{label} / {v.source.label}"
-            out.append(FootageRecord(throw=i + 1, label=label, path=str(v.source.footage),
+            path = v.source.footage if v.source.track is None else v.source.track
+            out.append(FootageRecord(throw=i + 1, label=label, path=str(path),
                                      tracking=meta))  # fmt: skip
     return tuple(out)
 
@@ -244,7 +304,7 @@ def geometry_text(job: Job, inputs: list[list[ViewInput]], fit: ViewMeasurementF
     seen = set()
     for views in inputs:
         for v in views:
-            key = str(v.source.footage)
+            key = str(v.source.footage or v.source.track)
             if key in seen:
                 continue
             seen.add(key)
