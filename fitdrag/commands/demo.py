@@ -19,10 +19,13 @@ Example:
   fitdrag demo /tmp/try-fitdrag   # or to a directory of your choice
 
 An invented laboratory checks a 65 mm foam training ball from a production lot against the
-stated Cd = 0.50 +- 0.05 (guarded acceptance).  The footage is synthetic: rendered from a
-simulated flight with Cd = 0.49 and a fixed seed, with ArUco markers in the plane of flight.
-Steps: footage -> markers and calibration -> ball detection -> track CSV -> job file ->
-fit -> GUM budget (+ Monte Carlo check) -> decision -> certificate PDF/PNG + JSON -> record.
+stated Cd = 0.50 +- 0.05 (guarded acceptance).  The footage is synthetic: a simulated flight
+with Cd = 0.49, 0.8 degrees out of the marker board's plane, filmed by two cameras 40 degrees
+apart with a rolling shutter and an unknown time offset, rendered with a fixed seed.
+Steps: footage -> per camera: markers, camera pose and ball detection -> track CSVs -> job
+file -> 3-D fit to both cameras -> GUM budget (+ Monte Carlo check) -> decision ->
+certificate PDF/PNG + JSON -> record.  For comparison it also fits one camera's track in
+the board's plane, as a planar measurement would.
 
 Running it again reuses the footage and issues a new certificate number that replaces the
 previous demo certificate (both stay on record).  If you edited a file in DIR, the run stops
@@ -38,10 +41,10 @@ def register(sub) -> argparse.ArgumentParser:
     p = sub.add_parser(
         NAME,
         help="run the whole job on synthetic footage (a demonstration)",
-        description="Run the full measurement on bundled synthetic data: render footage of "
-        "a simulated throw, track the ball, fit Cd, build the uncertainty budget, decide "
-        "conformity, and issue a certificate (PDF/PNG) and a record, all inside DIR. "
-        "Takes about half a minute.",
+        description="Run the full measurement on bundled synthetic data: render two "
+        "cameras' footage of a simulated throw, track the ball and solve each camera's pose, "
+        "fit Cd in 3-D, build the uncertainty budget, decide conformity, and issue a "
+        "certificate (PDF/PNG) and a record, all inside DIR. Takes about half a minute.",
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -94,11 +97,16 @@ def run(args) -> int:
     if res.replaces:
         issued += f", replacing {res.replaces} (an earlier demo run)"
     print(issued)
+    reused = ", reused" if res.footage_reused else ""
     rows = [
-        ("footage", res.footage, "synthetic" + (", reused" if res.footage_reused else "")),
-        ("footage truth", res.truth, "exact positions and parameters"),
-        ("track", res.track, "found in the footage by fitdrag track"),
-        ("track picture", res.preview, "the detected track over one frame"),
+        *((f"footage, {cam}", path, "synthetic" + reused)
+          for cam, path in zip(res.camera_names, res.footage)),
+        ("lens files", ", ".join(display_path(p) for p in res.lenses), "synthetic"),
+        ("marker layout", res.layout, "synthetic board"),
+        ("footage truth", res.truth, "the flight, the cameras, each file's SHA-256"),
+        *((f"track, {cam}", path, "fitdrag track --lens: the camera in its header")
+          for cam, path in zip(res.camera_names, res.tracks)),
+        ("track pictures", ", ".join(display_path(p) for p in res.previews), ""),
         ("job file", res.job, "rerun it with: fitdrag run"),
         ("certificate", res.certificate_pdf, ""),
         ("certificate page 1", res.certificate_png, ""),
@@ -108,9 +116,10 @@ def run(args) -> int:
             res.records,
             f"list it: fitdrag records --records {display_path(res.records)} list",
         ),
-    ]
+    ]  # fmt: skip
     for label, path, note in rows:
-        print(f"  {label:<19} {display_path(path)}" + (f"   ({note})" if note else ""))
+        shown = path if isinstance(path, str) else display_path(path)
+        print(f"  {label:<19} {shown}" + (f"   ({note})" if note else ""))
     diff = res.drag_coefficient - res.true_cd
     inside = abs(diff) <= res.expanded_uncertainty
     print(
@@ -119,5 +128,22 @@ def run(args) -> int:
         + ("inside" if inside else "OUTSIDE")
         + f" the expanded uncertainty U = {res.expanded_uncertainty:.4f}."
     )
+    print(
+        f"  flight {res.true_out_of_plane:g}° out of the board's plane: measured "
+        f"{res.out_of_plane_angle:.3f}° (u {res.out_of_plane_angle_uncertainty:.1g}°); "
+        f"{res.camera_names[1]} camera {1e3 * res.true_time_offset:g} ms late: estimated "
+        f"{1e3 * res.time_offset:.3f} ms (u {1e3 * res.time_offset_uncertainty:.1g} ms)."
+    )
+    planar = res.planar_drag_coefficient
+    head = f"the same flight measured in the board's plane ({res.camera_names[0]} camera's track alone)"
+    if res.planar_refusal:
+        print(f"{head}: refused, {res.planar_refusal.split(': ')[0]};")
+        head = "  forced to white noise"
+    if planar == planar:  # not nan
+        off = 100 * (planar / res.true_cd - 1.0)
+        print(
+            f"{head}: Cd = {planar:.4f} ± {res.planar_expanded_uncertainty:.4f} (statistical U), "
+            f"{abs(off):.0f} % {'below' if off < 0 else 'above'} the truth."
+        )
     print(f"done in {res.elapsed:.0f} s.")
     return exit_code_for_decision(res.decision)

@@ -3,38 +3,51 @@
 An invented laboratory (see :data:`LABORATORY`) checks one specimen from a production lot
 of 65 mm foam training balls against the customer's stated drag coefficient, Cd = 0.50 ±
 0.05 under guarded acceptance.  Nothing here was measured: the footage is rendered by
-:mod:`fitdrag.video.synthetic` from a simulated flight with a known Cd (:data:`TRUE_CD`),
-with a fixed seed, so every run on every machine sees the same frames.
+:mod:`fitdrag.run.scenario_3d` from a simulated 3-D flight with a known Cd
+(:data:`TRUE_CD`), with a fixed seed, so every run on every machine sees the same frames.
+
+The throw is as a hand or a launcher makes it: it leaves 3 cm in front of the marker board
+and flies 0.8° out of the board's plane, towards the cameras (:data:`LAUNCH`).  Two cameras
+40° apart film it (:data:`CAMERAS`) through distorting lenses, each with a rolling shutter
+(1 ms readout, ± 0.05 ms from its data sheet); the second starts its frames 0.42 ms after
+the first, which the job does not state (the fit estimates it).  A measurement in the
+board's plane would be off by several per cent here; the demo measures in 3-D.
 
 :func:`run_demo` does, inside one directory ``DIR``:
 
-1. renders the footage (ArUco markers in the plane of flight, sensor noise, lamp flicker,
-   background clutter, motion blur) to ``DIR/footage/demo_throw.avi`` with its exact truth
-   in ``DIR/footage/demo_throw_truth.json`` — only on the first run (or with ``force``);
-2. tracks it as ``fitdrag track`` does (:func:`fitdrag.video.tracking.track_footage`): finds
-   the markers and calibrates the image to metres (``fitdrag.video.calibration``), detects
-   the ball in every frame (``fitdrag.video.detect``) and writes the track
-   ``DIR/demo_track.csv`` and a picture of it over one frame, ``DIR/demo_track_preview.png``
-   (:func:`fitdrag.report.track_preview.track_preview_figure`);
-3. writes the job file ``DIR/demo_job.toml`` that describes the measurement (its throw
-   names the footage and its marker calibration, so the certificate lists the footage's
-   SHA-256);
-4. runs that job through the machinery of ``fitdrag run``, which tracks the footage again
-   exactly as ``fitdrag track`` did (:func:`fitdrag.run.pipeline.measure`
-   and :func:`fitdrag.run.pipeline.issue`): fit, GUM budget, Monte Carlo check, conformity
-   decision, certificate PDF/PNG and JSON in ``DIR/certificates/``, and a record in
-   ``DIR/certificates/records.sqlite``.
+1. renders each camera's footage to ``DIR/footage/<camera>.avi``, with the lens file a
+   lens calibration would give (``<camera>_lens.json``), the board's layout
+   (``board_layout.csv``), each view's exact truth (``<camera>_truth.json``) and the truth
+   of the whole scene with the SHA-256 of every file (``demo_truth.json``) — only on the
+   first run (or with ``force``);
+2. tracks each camera's footage as ``fitdrag track --lens ... --readout-time ...`` does
+   (:func:`track_command`): finds the markers, solves the camera's pose from them, detects
+   the ball in every frame and writes ``DIR/demo_<camera>_track.csv`` (the camera in its
+   header) and a picture of the track over one frame, ``DIR/demo_<camera>_preview.png``;
+3. writes the job file ``DIR/demo_job.toml``: one throw with a ``[[throws.views]]`` per
+   camera naming its footage, lens, board and readout (so the certificate lists the
+   footage's SHA-256); the time offset is left to the fit;
+4. runs that job through the machinery of ``fitdrag run``
+   (:func:`fitdrag.run.pipeline.measure`, which measures in 3-D: each view tracked and
+   calibrated again, the 3-D flight fitted to both cameras' pixels, GUM budget by re-fit,
+   Monte Carlo check with :data:`MONTE_CARLO_TRIALS` trials, conformity decision);
+5. issues the certificate (PDF/PNG, JSON) in ``DIR/certificates/`` and records it in
+   ``DIR/certificates/records.sqlite`` (:func:`fitdrag.run.pipeline.issue`);
 
-Running it again reuses the footage (after checking its SHA-256 against the truth file),
-recomputes the track, its picture and the job file and checks that they match the files
-already there, and issues a *new* certificate number that replaces the previous demo certificate (the records
-database keeps both, the old one marked as replaced).  If a file in ``DIR`` was changed by
-hand the run stops and says which; ``force=True`` regenerates and overwrites everything the
-demo writes.  Nothing is written outside ``DIR``.
+and, for comparison, fits the first camera's track in the board's plane, as a planar
+measurement would (statistical uncertainty only).
+
+Running it again reuses the footage (after checking every file's SHA-256 against the truth
+file), recomputes the tracks, their pictures and the job file and checks that they match the
+files already there, and issues a *new* certificate number that replaces the previous demo
+certificate (the records database keeps both, the old one marked as replaced).  If a file in
+``DIR`` was changed by hand the run stops and says which; ``force=True`` regenerates and
+overwrites everything the demo writes.  Nothing is written outside ``DIR``.
 """
 
 from __future__ import annotations
 
+import contextlib
 import datetime as _dt
 import json
 import math
@@ -45,17 +58,18 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
-import numpy as np
-
 from fitdrag._files import write_atomic, write_text_atomic
 from fitdrag.errors import ConvergenceError, InputError
 
 __all__ = [
+    "CAMERAS",
     "DEFAULT_DIRECTORY",
     "DemoResult",
     "FOOTAGE",
     "LABORATORY",
+    "LAUNCH",
     "TRUE_CD",
+    "demo_scenario",
     "make_demo_footage",
     "run_demo",
 ]
@@ -63,7 +77,7 @@ __all__ = [
 #: Default directory of ``fitdrag demo``.
 DEFAULT_DIRECTORY = "fitdrag-demo"
 
-#: Seed of the synthetic footage (clutter and noise).
+#: Seed of the synthetic footage (clutter and noise; camera i uses SEED + i).
 SEED = 20260715
 
 #: The invented laboratory and customer (fictitious names and addresses).
@@ -108,27 +122,36 @@ AIR = {
 #: Site of the (fictitious) laboratory: latitude [deg] and height [m] for normal gravity.
 SITE = {"latitude": 51.5, "height": 60.0}
 
-#: The launch at frame 0: position [m] (world, origin at marker 0), speed [m/s], angle [deg].
-LAUNCH = {"x0": -0.16, "y0": 0.25, "speed": 9.0, "angle": 28.0}
+#: The throw, 10 ms before the first camera's frame 0 (board frame: origin at marker 0's
+#: lower-left corner, x along the board, y up, z towards the cameras): speed [m/s],
+#: elevation above the horizontal [deg], angle out of the board's plane towards the cameras
+#: [deg], launch point [m].
+LAUNCH = {"speed": 9.0, "elevation": 28.0, "out_of_plane": 0.8, "start": (-0.05, 0.35, 0.03)}
 
-#: Camera and scene of the synthetic footage.
+#: The two cameras: name, angle of the line of sight from the board's normal [deg], distance
+#: from the middle of the flight [m], focal length [px], rolling-shutter readout and its
+#: data-sheet standard uncertainty [s], start of frame 0 after the first camera's [s].
+CAMERAS = (
+    {"name": "left", "yaw": -20.0, "distance": 3.4, "focal_length": 1100.0,
+     "readout_time": 1.0e-3, "readout_time_uncertainty": 0.05e-3, "time_offset": 0.0},
+    {"name": "right", "yaw": 20.0, "distance": 3.4, "focal_length": 1100.0,
+     "readout_time": 1.0e-3, "readout_time_uncertainty": 0.05e-3, "time_offset": 0.42e-3},
+)  # fmt: skip
+
+#: The footage and the marker board.
 FOOTAGE = {
-    "fps": 500.0,  # Hz, capture rate
+    "fps": 500.0,  # Hz, capture rate (shared by the cameras)
     "fps_uncertainty": 0.005,  # Hz (10 ppm crystal)
-    "container_fps": 30.0,  # Hz, playback rate written into the AVI (as high-speed cameras do)
     "frames": 160,
-    "height_px": 600,
     "width_px": 960,
-    "metres_per_px": 0.0025,  # m/px
-    "origin_px": (60.0, 540.0),  # image point of world (0, 0), px, y down
-    "roll_deg": 0.4,  # camera roll about its axis, deg
+    "height_px": 600,
     "marker_side": 0.100,  # m, side of the markers' black square
     "marker_side_relative_uncertainty": 0.001,  # print tolerance, relative
-    # marker id -> world position of its lower-left corner [m]
-    "markers": {0: (0.0, 0.0), 1: (2.05, 0.0), 2: (0.0, 1.16), 3: (2.05, 1.16)},
+    # marker id -> board position of its lower-left corner [m]
+    "markers": {0: (0.0, 0.0), 1: (2.2, 0.0), 2: (0.0, 1.3), 3: (2.2, 1.3)},
     "noise_sigma": 3.0,  # grey levels
     "flicker": 0.06,  # relative amplitude of the lamps' flicker
-    "jpeg_quality": 90,
+    "jpeg_quality": 92,
 }
 
 #: The customer's specification.
@@ -139,18 +162,39 @@ SPECIFICATION = {
     "reference": "Brightfield drawing FB65 rev. C, clause 4.2 (fictitious)",
 }
 
-#: Monte Carlo trials of the demo's check of the GUM budget (kept modest so it stays fast).
-MONTE_CARLO_TRIALS = 1000
+#: Monte Carlo trials of the demo's check of the GUM budget.  Each trial re-fits the 3-D
+#: flight to both cameras (about 40 ms of CPU, ten times a planar re-fit), so the demo runs
+#: 300 rather than the 1000 of a planar measurement, to stay near half a minute on two cores.
+MONTE_CARLO_TRIALS = 300
 
 #: Prefix of the demo's certificate numbers.
 NUMBER_PREFIX = "DEMO"
 
-FOOTAGE_NAME = "footage/demo_throw.avi"
-TRUTH_NAME = "footage/demo_throw_truth.json"
-TRACK_NAME = "demo_track.csv"
-PREVIEW_NAME = "demo_track_preview.png"
+FOOTAGE_DIR = "footage"
+TRUTH_NAME = "footage/demo_truth.json"
+LAYOUT_NAME = "footage/board_layout.csv"
 JOB_NAME = "demo_job.toml"
 CERTIFICATES = "certificates"
+
+
+def footage_name(camera: str) -> str:
+    """The camera's footage inside the demo directory."""
+    return f"{FOOTAGE_DIR}/{camera}.avi"
+
+
+def lens_name(camera: str) -> str:
+    """The camera's lens file inside the demo directory."""
+    return f"{FOOTAGE_DIR}/{camera}_lens.json"
+
+
+def track_name(camera: str) -> str:
+    """The camera's track CSV inside the demo directory."""
+    return f"demo_{camera}_track.csv"
+
+
+def preview_name(camera: str) -> str:
+    """The picture of the camera's track inside the demo directory."""
+    return f"demo_{camera}_preview.png"
 
 
 @dataclass(frozen=True)
@@ -161,9 +205,13 @@ class DemoResult:
     ----------
     directory : Path
         The demo directory.
-    footage, truth, track, preview, job : Path
-        Synthetic footage (AVI), its exact truth (JSON), the track found in it (CSV), a
-        picture of the detected track over one frame (PNG) and the job file run.
+    footage, lenses, tracks, previews : tuple of Path
+        Per camera: the synthetic footage (AVI), its lens file, the track found in it (CSV,
+        the camera in its header) and a picture of the track over one frame (PNG).
+    truth : Path
+        The scene's exact truth (JSON: flight, cameras, SHA-256 of every rendered file).
+    layout, job : Path
+        The marker board's layout (CSV) and the job file run.
     certificate_number : str
         Number of the certificate issued by this run.
     replaces : str or None
@@ -171,7 +219,7 @@ class DemoResult:
     certificate_pdf, certificate_png, result_json, records : Path
         The certificate, its first page as PNG, the full result and the records database.
     drag_coefficient : float
-        Fitted Cd. [-]
+        Measured Cd. [-]
     expanded_uncertainty : float
         Expanded uncertainty U of Cd. [-]
     coverage_factor : float
@@ -180,6 +228,21 @@ class DemoResult:
         The conformity decision.
     true_cd : float
         The Cd the footage was rendered with. [-]
+    true_out_of_plane : float
+        The flight's true angle out of the board's plane. [deg]
+    out_of_plane_angle, out_of_plane_angle_uncertainty : float
+        The angle measured by the 3-D fit and its standard uncertainty. [deg]
+    true_time_offset : float
+        The second camera's true time offset. [s]
+    time_offset, time_offset_uncertainty : float
+        The offset estimated by the fit and its standard uncertainty. [s]
+    planar_drag_coefficient, planar_expanded_uncertainty : float
+        Cd of the first camera's track fitted in the board's plane (the flight assumed in
+        it) and the planar fit's statistical expanded uncertainty; nan if that fit failed.
+        [-]
+    planar_refusal : str
+        Why the planar fit with the default noise model refused the track ("" if it did
+        not; the planar figures are then from the fit forced to white noise).
     footage_reused : bool
         The footage of an earlier run was used (not rendered again).
     summary : str
@@ -191,10 +254,12 @@ class DemoResult:
     """
 
     directory: Path
-    footage: Path
+    footage: tuple[Path, ...]
+    lenses: tuple[Path, ...]
+    tracks: tuple[Path, ...]
+    previews: tuple[Path, ...]
     truth: Path
-    track: Path
-    preview: Path
+    layout: Path
     job: Path
     certificate_number: str
     replaces: str | None
@@ -207,10 +272,24 @@ class DemoResult:
     coverage_factor: float
     decision: str | None
     true_cd: float
+    true_out_of_plane: float
+    out_of_plane_angle: float
+    out_of_plane_angle_uncertainty: float
+    true_time_offset: float
+    time_offset: float
+    time_offset_uncertainty: float
+    planar_drag_coefficient: float
+    planar_expanded_uncertainty: float
+    planar_refusal: str
     footage_reused: bool
     summary: str
     elapsed: float
     timings: dict
+
+    @property
+    def camera_names(self) -> tuple[str, ...]:
+        """The cameras' names, in the order of :attr:`footage`."""
+        return tuple(p.stem for p in self.footage)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -218,23 +297,43 @@ class DemoResult:
 # ---------------------------------------------------------------------------------------------
 
 
-def _world_to_image(scene: dict) -> np.ndarray:
-    """Homography world (m, y up) -> image (px, y down) of the demo camera."""
-    s = 1.0 / scene["metres_per_px"]
-    a = math.radians(scene["roll_deg"])
-    c, si = math.cos(a), math.sin(a)
-    u0, v0 = scene["origin_px"]
-    # rotate the world by the roll, scale, flip y, shift to the origin's image point
-    return np.array([[s * c, -s * si, u0], [-s * si, -s * c, v0], [0.0, 0.0, 1.0]])
-
-
-def _conditions():
+def _air_and_gravity() -> tuple:
+    """(Air, gravity [m/s²]) of the demo's hall and site."""
     from fitdrag.physics.air import Air, local_gravity
-    from fitdrag.physics.forces import Conditions
 
     air = Air.from_conditions(AIR["temperature"], AIR["pressure"], AIR["relative_humidity"])
-    g = float(local_gravity(SITE["latitude"], SITE["height"]))
-    return Conditions(air=air, gravity=g)
+    return air, float(local_gravity(SITE["latitude"], SITE["height"]))
+
+
+def demo_scenario(seed: int = SEED):
+    """The demo's scene as a :class:`fitdrag.run.scenario_3d.Scenario3D`: the specimen,
+    the hall's air (CIPM-2007 density, Sutherland viscosity) and the site's gravity, the
+    throw, the cameras and the board."""
+    from fitdrag.run.scenario_3d import CameraPlacement, Scenario3D
+
+    air, g = _air_and_gravity()
+    return Scenario3D(
+        cameras=[CameraPlacement(**c) for c in CAMERAS],
+        cd=TRUE_CD,
+        mass=SPECIMEN["mass"],
+        diameter=SPECIMEN["diameter"],
+        air_density=air.density,
+        viscosity=air.viscosity,
+        gravity=g,
+        speed=LAUNCH["speed"],
+        elevation=LAUNCH["elevation"],
+        out_of_plane=LAUNCH["out_of_plane"],
+        start=tuple(LAUNCH["start"]),
+        frames=FOOTAGE["frames"],
+        fps=FOOTAGE["fps"],
+        image_size=(FOOTAGE["width_px"], FOOTAGE["height_px"]),
+        marker_side=FOOTAGE["marker_side"],
+        markers=dict(FOOTAGE["markers"]),
+        noise_sigma=FOOTAGE["noise_sigma"],
+        flicker=FOOTAGE["flicker"],
+        quality=FOOTAGE["jpeg_quality"],
+        seed=seed,
+    )
 
 
 def _sha256(path: Path) -> str:
@@ -243,171 +342,159 @@ def _sha256(path: Path) -> str:
     return file_sha256(path)
 
 
-def make_demo_footage(
-    path: str | os.PathLike,
-    *,
-    frames: int | None = None,
-    seed: int = SEED,
-    scene: dict | None = None,
-    progress: bool = False,
-    overwrite: bool = False,
-) -> dict:
-    """Render the demo's synthetic footage to a Motion-JPEG AVI file and return its truth.
+def make_demo_footage(folder: str | os.PathLike, *, seed: int = SEED,
+                      force: bool = False) -> dict:  # fmt: skip
+    """Render the demo's footage into ``folder`` and return the scene's truth.
 
-    The flight is simulated with :func:`fitdrag.physics.simulate.simulate` (buoyancy, added mass,
-    quadratic drag with Cd = :data:`TRUE_CD`) in the demo's air and gravity, mapped into the
-    image of a camera perpendicular to the plane of flight (scale, roll and origin from
-    :data:`FOOTAGE`) and rendered with :class:`fitdrag.video.synthetic.FlightRenderer`,
-    together with four ArUco markers at known places in the plane of flight.
+    Writes, per camera, ``<camera>.avi`` (Motion-JPEG), ``<camera>_truth.json`` and
+    ``<camera>_lens.json``, and ``board_layout.csv``
+    (:func:`fitdrag.run.scenario_3d.write_scenario` on :func:`demo_scenario`).
 
     Parameters
     ----------
-    path : str or path-like
-        Output AVI file (its folder must exist).
-    frames : int, optional
-        Number of frames (default ``FOOTAGE["frames"]``).
+    folder : str or path-like
+        Where the files go (created if missing).
     seed : int
         Seed of the clutter and the noise; the same seed gives the same frames.
-    scene : dict, optional
-        Entries of :data:`FOOTAGE` to change (image size, metres per pixel, origin, markers,
-        noise, ...), e.g. for a smaller clip.
-    progress : bool
-        Show a progress bar.
-    overwrite : bool
-        Replace an existing file.
+    force : bool
+        Replace files already there.
 
     Returns
     -------
     dict
-        The truth: true Cd, launch, specimen, air, gravity, camera, markers and, per frame,
-        the mid-exposure time [s], world position [m] and image position [px].
+        The truth: true Cd, launch (time, position, velocity), specimen, air, gravity,
+        cameras (placement, readout, time offset, their files) and the SHA-256 of every
+        file written (by name in ``folder``).
+
+    Raises
+    ------
+    ValueError
+        A file exists (without ``force``).
     """
-    from fitdrag.physics.simulate import Launch, simulate
-    from fitdrag.physics.specimen import Sphere
-    from fitdrag.video.footage_files import write_video
-    from fitdrag.video.synthetic import FlightRenderer, MarkerPlacement
+    from fitdrag.physics.flight3d import Launch3D
+    from fitdrag.run.scenario_3d import T_LAUNCH, write_scenario
 
-    path = Path(path)
-    if path.exists() and not overwrite:
-        raise InputError(f"{path}: already exists; pass --force to render the footage again.")
-    sc = {**FOOTAGE, **(scene or {})}
-    unknown = sorted(set(sc) - set(FOOTAGE))
-    if unknown:
-        raise InputError(f"scene: unknown key(s) {unknown}; use keys of fitdrag.run.demo.FOOTAGE.")
-    n = int(sc["frames"] if frames is None else frames)
-    fps = sc["fps"]
-    cond = _conditions()
-    sphere = Sphere(SPECIMEN["mass"], SPECIMEN["diameter"])
-    launch = Launch.from_speed_angle(LAUNCH["speed"], LAUNCH["angle"], LAUNCH["x0"], LAUNCH["y0"])
-    t = np.arange(n) / fps
-    flight = simulate(t, launch, sphere, cond, drag_params=TRUE_CD)
-    if not flight.success:  # pragma: no cover - fixed, well-posed inputs
-        raise RuntimeError(f"demo flight simulation failed: {flight.message}")
-    h = _world_to_image(sc)
-    markers = [
-        MarkerPlacement(mid, x, y, sc["marker_side"]) for mid, (x, y) in sc["markers"].items()
-    ]
-    renderer = FlightRenderer(
-        (flight.x, flight.y),
-        n,
-        fps,
-        shape=(sc["height_px"], sc["width_px"]),
-        radius_px=0.5 * SPECIMEN["diameter"] / sc["metres_per_px"],
-        noise_sigma=sc["noise_sigma"],
-        flicker=sc["flicker"],
-        markers=markers,
-        homography=h,
-        trajectory_in_world=True,
-        seed=seed,
-    )
-    frames_iter = renderer.iter_frames()
-    if progress:
-        from tqdm import tqdm
-
-        frames_iter = tqdm(frames_iter, total=n, desc="rendering", unit="frame", leave=False)
-    tmp = path.with_name(f".{path.name}.partial.avi")
-    try:
-        write_video(
-            frames_iter, tmp, sc["container_fps"], quality=sc["jpeg_quality"],
-            overwrite=True,
-        )  # fmt: skip
-        os.replace(tmp, path)
-    finally:
-        tmp.unlink(missing_ok=True)
-    tr = renderer.truth
+    folder = Path(folder)
+    sc = demo_scenario(seed)
+    files = write_scenario(sc, folder, force=force)
+    launch = Launch3D.from_speed_angles(sc.speed, sc.elevation, sc.out_of_plane, *sc.start)
+    written = [*files.footage, *files.truth, *files.lenses, files.layout]
+    cams = []
+    for c, v, t, lens in zip(CAMERAS, files.footage, files.truth, files.lenses):
+        cams.append({**c, "footage": v.name, "truth": t.name, "lens": lens.name})
     return {
         "synthetic": True,
-        "note": "Synthetic footage rendered by fitdrag.run.demo; no real ball was filmed.",
+        "note": "Synthetic footage of a simulated 3-D flight rendered by fitdrag.run.demo "
+        "(fitdrag.run.scenario_3d); no real ball was filmed.",
         "seed": seed,
         "true_cd": TRUE_CD,
         "drag_model": "constant",
-        "launch": dict(LAUNCH),
+        "launch": {
+            "time_s": T_LAUNCH,
+            "speed_m_s": sc.speed,
+            "elevation_deg": sc.elevation,
+            "out_of_plane_deg": sc.out_of_plane,
+            "position_m": [launch.x0, launch.y0, launch.z0],
+            "velocity_m_s": [launch.vx0, launch.vy0, launch.vz0],
+        },
         "specimen": {k: SPECIMEN[k] for k in ("mass", "diameter")},
-        "air_density": cond.air.density,
-        "air_viscosity": cond.air.viscosity,
-        "gravity": cond.gravity,
+        "air_density": sc.air_density,
+        "air_viscosity": sc.viscosity,
+        "gravity": sc.gravity,
         "buoyancy": True,
-        "added_mass_coefficient": sphere.added_mass_coefficient,
-        "fps": fps,
-        "container_fps": sc["container_fps"],
-        "frames": n,
-        "image_size_px": [sc["width_px"], sc["height_px"]],
-        "metres_per_px": sc["metres_per_px"],
-        "roll_deg": sc["roll_deg"],
-        "ball_radius_px": tr.radius_px,
-        "marker_side_m": sc["marker_side"],
-        "markers_lower_left_m": {str(k): list(v) for k, v in sc["markers"].items()},
-        "world_to_image_homography": h.tolist(),
-        "t": tr.t.tolist(),
-        "x": flight.x.tolist(),
-        "y": flight.y.tolist(),
-        "x_px": tr.x_px.tolist(),
-        "y_px": tr.y_px.tolist(),
-        "visible": tr.visible.tolist(),
-        "sha256": _sha256(path),
+        "added_mass_coefficient": 0.5,
+        "fps": sc.fps,
+        "frames": sc.frames,
+        "image_size_px": list(sc.image_size),
+        "marker_side_m": sc.marker_side,
+        "markers_lower_left_m": {str(k): list(v) for k, v in sc.markers.items()},
+        "cameras": cams,
+        "sha256": {p.name: _sha256(p) for p in written},
     }
 
 
 # ---------------------------------------------------------------------------------------------
-# footage -> track
+# footage -> tracks
 # ---------------------------------------------------------------------------------------------
 
 
-def track_command(footage: str, output: str, preview: str | None = None) -> list[str]:
-    """Arguments of the ``fitdrag track`` command that turns the demo footage into a track."""
-    args = [
-        "track", footage, "--fps", f"{FOOTAGE['fps']:g}",
-        "--markers", f"{FOOTAGE['marker_side']:g}",
+def _ms(seconds: float) -> str:
+    return f"{1e3 * seconds:g}ms"
+
+
+def track_command(camera: dict) -> list[str]:
+    """Arguments of the ``fitdrag track`` command, run inside the demo directory, that turns
+    ``camera``'s footage (an entry of :data:`CAMERAS`) into its track and picture."""
+    name = camera["name"]
+    return [
+        "track", footage_name(name), "--fps", f"{FOOTAGE['fps']:g}",
+        "--markers", f"{FOOTAGE['marker_side']:g}", "--marker-layout", LAYOUT_NAME,
+        "--lens", lens_name(name),
         "--scale-uncertainty", f"{FOOTAGE['marker_side_relative_uncertainty']:g}",
-        "-o", output,
+        "--readout-time", _ms(camera["readout_time"]),
+        "--readout-time-uncertainty", _ms(camera["readout_time_uncertainty"]),
+        "-o", track_name(name), "--preview", preview_name(name),
     ]  # fmt: skip
-    if preview:
-        args += ["--preview", preview]
-    return args
 
 
-def _track_footage(
-    footage: Path, track_path: Path, preview_path: Path, *, progress: bool = False
-) -> str:
-    """Track the demo footage as :func:`track_command` would; write the track CSV and the
-    preview picture (atomically, replacing files there); return the tracking summary."""
+def _track_camera(d: Path, camera: dict, track_path: Path, preview_path: Path, *,
+                  progress: bool = False) -> str:  # fmt: skip
+    """Track one camera's footage as :func:`track_command` would inside ``d``; write the
+    track CSV (with the camera in its header) and the picture (atomically, replacing files
+    there); return the tracking summary."""
+    from fitdrag.geometry.footage_view import camera_from_footage, camera_header
     from fitdrag.report.track_preview import track_preview_figure
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
 
-    ft = track_footage(
-        footage, fps=FOOTAGE["fps"], markers=FOOTAGE["marker_side"],
-        scale_uncertainty=FOOTAGE["marker_side_relative_uncertainty"], progress=progress,
-    )  # fmt: skip
-    text = footage_track_csv_text(ft)
+    name = camera["name"]
+    # inside d, with the command's relative names, so the CSV header is the command's
+    with contextlib.chdir(d):
+        ft = track_footage(
+            footage_name(name), fps=FOOTAGE["fps"], markers=FOOTAGE["marker_side"],
+            marker_layout=LAYOUT_NAME, lens=lens_name(name),
+            scale_uncertainty=FOOTAGE["marker_side_relative_uncertainty"], progress=progress,
+        )  # fmt: skip
+        _cam, pose = camera_from_footage(
+            ft, readout_time=camera["readout_time"],
+            readout_time_uncertainty=camera["readout_time_uncertainty"],
+        )  # fmt: skip
+        text = footage_track_csv_text(ft, camera=camera_header(pose, ft.marker_frame))
+        with open_source(footage_name(name)) as source:
+            image = source.read(ft.preview_frame)
     write_atomic(track_path, lambda p: Path(p).write_text(text, encoding="utf-8"), force=True,
                  check=read_track)  # fmt: skip
-    with open_source(footage) as source:
-        image = source.read(ft.preview_frame)
     fig = track_preview_figure(ft, image)
     write_atomic(preview_path, lambda p: fig.savefig(p, dpi=100, format="png"), force=True)
-    return ft.summary()
+    return (
+        f"{ft.summary()}\ncamera: pose from {len(pose.ids)} marker(s), "
+        f"{pose.distance_to_board:.4g} m from the board, optical axis "
+        f"{math.degrees(pose.axis_angle):.3g}° from its normal"
+    )
+
+
+def _planar_fit(job, track_path: Path) -> tuple[float, float, str]:
+    """``track_path`` fitted in the board's plane, as a planar measurement of the track
+    would: (Cd, its statistical expanded uncertainty, the refusal of the default fit or "").
+
+    The default fit (noise model "auto") refuses a track whose residuals are almost perfectly
+    correlated, as an out-of-plane flight's are; the figures are then those of the fit forced
+    to white noise.  (nan, nan, message) when that fails too.
+    """
+    from fitdrag.fit.fitting import fit_tracks
+    from fitdrag.tracks.csv_file import read_track
+
+    track = read_track(track_path)
+    model = job.fit_options().get("model", "constant")
+    refusal = ""
+    for noise in ("auto", "white"):
+        r = fit_tracks(track, job.make_specimen(), job.make_air(), gravity=job.gravity(),
+                       model=model, noise=noise)  # fmt: skip
+        if r.success:
+            return float(r.cd), float(r.coverage_factor * r.u_cd), refusal
+        refusal = refusal or r.message
+    return math.nan, math.nan, refusal
 
 
 # ---------------------------------------------------------------------------------------------
@@ -419,8 +506,9 @@ def _toml_str(s: str) -> str:
     return json.dumps(s, ensure_ascii=False)
 
 
-def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
-    """The demo's job file (TOML): one footage throw, calibrated by its ArUco markers."""
+def job_text(test_date: str) -> str:
+    """The demo's job file (TOML): one throw seen by two cameras (``[[throws.views]]``),
+    each with its footage, lens file, marker board and rolling-shutter readout."""
     lab, cu, sp, air, sp_ = LABORATORY, CUSTOMER, SPECIMEN, AIR, SPECIFICATION
     lines = [
         "# fitdrag demo job: written by `fitdrag demo` (fitdrag.run.demo).",
@@ -436,8 +524,8 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
         *(f"{k} = {_toml_str(v)}" for k, v in cu.items()),
         f"date = {test_date}",
         'location = "flight hall 1 (fictitious)"',
-        'notes = "Synthetic demonstration: one throw filmed at 500 frames/s in front of four '
-        'ArUco markers in the plane of flight."',
+        'notes = "Synthetic demonstration: one throw filmed at 500 frames/s by two cameras '
+        '40 degrees apart, in front of a board of four ArUco markers; measured in 3-D."',
         "",
         "[specimen]",
         f"id = {_toml_str(sp['id'])}",
@@ -460,16 +548,31 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
         f"height = {SITE['height']!r}                  # m",
         "",
         "[camera]",
-        f"fps = {FOOTAGE['fps']!r}                    # Hz",
+        f"fps = {FOOTAGE['fps']!r}                    # Hz, shared by the two cameras",
         f"fps_uncertainty = {FOOTAGE['fps_uncertainty']!r}        # Hz",
-        "# the length scale and its uncertainty come from the markers in the footage",
         "",
         "[[throws]]",
-        f"footage = {_toml_str(footage_name)}   # tracked by fitdrag run, as fitdrag track does",
-        f"markers = {FOOTAGE['marker_side']!r}                  # m, side of the ArUco markers",
-        f"scale_uncertainty = {FOOTAGE['marker_side_relative_uncertainty']!r}        "
-        "# relative standard uncertainty of the marker side (print tolerance)",
         'label = "throw 1"',
+    ]
+    for cam in CAMERAS:
+        name = cam["name"]
+        lines += [
+            "",
+            "[[throws.views]]          # one camera; fitdrag run tracks its footage and "
+            "solves its pose from the markers",
+            f"label = {_toml_str(name)}",
+            f"footage = {_toml_str(footage_name(name))}",
+            f"lens = {_toml_str(lens_name(name))}   # from the lens calibration",
+            f"markers = {FOOTAGE['marker_side']!r}                  # m, side of the ArUco markers",
+            f"marker_layout = {_toml_str(LAYOUT_NAME)}   # where each marker is on the board",
+            f"scale_uncertainty = {FOOTAGE['marker_side_relative_uncertainty']!r}        "
+            "# relative standard uncertainty of the marker side (print tolerance)",
+            f'readout_time = "{1e3 * cam["readout_time"]:g} ms"      # rolling shutter, '
+            "camera data sheet",
+            f'readout_time_uncertainty = "{1e3 * cam["readout_time_uncertainty"]:g} ms"',
+        ]
+    lines += [
+        "# no time_offset: the cameras are not synchronised; the fit estimates the offset",
         "",
         "[specification]",
         f"drag_coefficient = {sp_['drag_coefficient']!r}",
@@ -479,7 +582,6 @@ def job_text(test_date: str, footage_name: str = FOOTAGE_NAME) -> str:
         "",
         "[fit]",
         'model = "constant"',
-        "robust = true",
         'noise = "auto"',
         "",
         "[uncertainty]",
@@ -544,6 +646,36 @@ def _latest_unreplaced(records_path: Path) -> str | None:
     return recs[-1].number if recs else None
 
 
+def _rendered_files() -> list[str]:
+    """Names (in the demo directory) of every file the rendering step writes."""
+    names = [LAYOUT_NAME]
+    for c in CAMERAS:
+        n = c["name"]
+        names += [footage_name(n), f"{FOOTAGE_DIR}/{n}_truth.json", lens_name(n)]
+    return names
+
+
+def _reuse_footage(d: Path) -> dict:
+    """The truth of footage rendered earlier in ``d``, after checking every rendered file's
+    SHA-256 against it."""
+    truth_path = d / TRUTH_NAME
+    truth = json.loads(truth_path.read_text(encoding="utf-8"))
+    recorded = truth.get("sha256") or {}
+    for name in _rendered_files():
+        p = d / name
+        if not p.exists():
+            raise InputError(
+                f"{p}: missing, so the footage in {d} is incomplete; pass --force to render "
+                f"it again."
+            )
+        if recorded.get(p.name) != _sha256(p):
+            raise InputError(
+                f"{p}: differs from the file the demo rendered (its SHA-256 does not match "
+                f"{truth_path.name}); pass --force to render the footage again."
+            )
+    return truth
+
+
 def run_demo(
     directory: str | os.PathLike = DEFAULT_DIRECTORY,
     *,
@@ -558,7 +690,7 @@ def run_demo(
     directory : str or path-like
         Where everything goes; created if missing.
     force : bool
-        Render the footage again and overwrite the track and job file even if they were
+        Render the footage again and overwrite the tracks and job file even if they were
         changed by hand.
     progress : bool
         Report each step on stderr, with progress bars when stderr is a terminal.
@@ -587,10 +719,9 @@ def run_demo(
     d = Path(directory).expanduser().resolve()
     if d.exists() and not d.is_dir():
         raise InputError(f"{d}: is a file, not a directory; give a directory for the demo.")
-    (d / "footage").mkdir(parents=True, exist_ok=True)
-    footage, truth_path = d / FOOTAGE_NAME, d / TRUTH_NAME
-    track_path, job_path = d / TRACK_NAME, d / JOB_NAME
-    preview_path = d / PREVIEW_NAME
+    (d / FOOTAGE_DIR).mkdir(parents=True, exist_ok=True)
+    truth_path, job_path = d / TRUTH_NAME, d / JOB_NAME
+    names = [c["name"] for c in CAMERAS]
     timings: dict[str, float] = {}
 
     def step(n, what):
@@ -598,53 +729,51 @@ def run_demo(
         return time.perf_counter()
 
     # 1. footage --------------------------------------------------------------------------
-    t0 = step(1, "synthetic footage")
+    t0 = step(1, "synthetic footage of two cameras")
     reused = False
-    truth = None
-    if footage.exists() and truth_path.exists() and not force:
-        truth = json.loads(truth_path.read_text(encoding="utf-8"))
-        if truth.get("sha256") != _sha256(footage):
-            raise InputError(
-                f"{footage}: differs from the footage the demo rendered (its SHA-256 does not "
-                f"match {truth_path.name}); pass --force to render it again."
-            )
+    if truth_path.exists() and not force:
+        truth = _reuse_footage(d)
         reused = True
         when = truth.get("rendered_on")
-        log(f"      reusing {display_path(footage)} (rendered on {when}, SHA-256 checked)")
+        log(f"      reusing the footage in {display_path(d / FOOTAGE_DIR)} (rendered on {when}, "
+            f"SHA-256 of every file checked)")  # fmt: skip
     else:
-        if (footage.exists() or truth_path.exists()) and not force:
-            missing = truth_path if footage.exists() else footage
+        there = [n for n in _rendered_files() if (d / n).exists()]
+        if there and not force:
             raise InputError(
-                f"{missing}: missing, so the footage in {d} cannot be checked; pass --force to "
-                f"render the footage again."
+                f"{truth_path}: missing, so the footage in {d / FOOTAGE_DIR} ({there[0]}, ...) "
+                f"cannot be checked; pass --force to render the footage again."
             )
-        log(f"      rendering {FOOTAGE['frames']} frames of "
-            f"{FOOTAGE['width_px']}x{FOOTAGE['height_px']} px (seed {SEED}) ...")  # fmt: skip
-        truth = make_demo_footage(footage, progress=bars, overwrite=True)
+        log(f"      rendering {FOOTAGE['frames']} frames of {FOOTAGE['width_px']}x"
+            f"{FOOTAGE['height_px']} px per camera (seed {SEED}) ...")  # fmt: skip
+        truth = make_demo_footage(d / FOOTAGE_DIR, force=True)
         truth["rendered_on"] = _dt.date.today().isoformat()
         write_text_atomic(truth_path, json.dumps(truth, indent=1) + "\n", force=True)
-        log(f"      wrote {display_path(footage)} and {truth_path.name}")
+        log(f"      wrote {', '.join(footage_name(n) for n in names)}, the lens files, the "
+            f"board layout and {TRUTH_NAME}")  # fmt: skip
     timings["footage"] = time.perf_counter() - t0
 
-    # 2. track ----------------------------------------------------------------------------
-    t0 = step(2, "markers, calibration and ball detection (fitdrag track: a CSV and a picture)")
-    shown = track_command(FOOTAGE_NAME, TRACK_NAME, PREVIEW_NAME)
-    log(f"      the same as, inside {display_path(d)}:  fitdrag {' '.join(shown)}")
-    tmp_track = d / f".{TRACK_NAME}.new.csv"
-    tmp_preview = d / f".{PREVIEW_NAME}.new.png"
-    try:
-        printed = _track_footage(footage, tmp_track, tmp_preview, progress=bars)
-        for line in printed.splitlines():
-            log(f"      {line.replace(str(footage), FOOTAGE_NAME)}")
-        hint = (
-            "this version of fitdrag finds another track in the footage: edited by hand, or "
-            "made by another version?"
-        )
-        _place_file(tmp_track, track_path, force, hint)
-        _place_file(tmp_preview, preview_path, force, hint)
-    finally:
-        tmp_track.unlink(missing_ok=True)
-        tmp_preview.unlink(missing_ok=True)
+    # 2. tracks ---------------------------------------------------------------------------
+    t0 = step(2, "markers, camera pose and ball detection per camera (fitdrag track --lens: "
+              "a CSV and a picture each)")  # fmt: skip
+    hint = (
+        "this version of fitdrag finds another track in the footage: edited by hand, or "
+        "made by another version?"
+    )
+    for cam in CAMERAS:
+        name = cam["name"]
+        log(f"      the same as, inside {display_path(d)}:  fitdrag {' '.join(track_command(cam))}")
+        tmp_track = d / f".{track_name(name)}.new.csv"
+        tmp_preview = d / f".{preview_name(name)}.new.png"
+        try:
+            printed = _track_camera(d, cam, tmp_track, tmp_preview, progress=bars)
+            for line in printed.splitlines():
+                log(f"      {line}")
+            _place_file(tmp_track, d / track_name(name), force, hint)
+            _place_file(tmp_preview, d / preview_name(name), force, hint)
+        finally:
+            tmp_track.unlink(missing_ok=True)
+            tmp_preview.unlink(missing_ok=True)
     timings["track"] = time.perf_counter() - t0
 
     # 3. job file -------------------------------------------------------------------------
@@ -658,8 +787,8 @@ def run_demo(
     # 4. measurement ----------------------------------------------------------------------
     t0 = step(
         4,
-        "fitdrag run: track the footage named in the job, fit, uncertainty budget, Monte Carlo "
-        f"check ({MONTE_CARLO_TRIALS} trials), decision",
+        "fitdrag run: track the footage of both cameras, fit the flight in 3-D, uncertainty "
+        f"budget, Monte Carlo check ({MONTE_CARLO_TRIALS} trials), decision",
     )
     try:
         meas = measure(job, progress=bars)
@@ -674,14 +803,23 @@ def run_demo(
     rec, db_path = issue(meas, replaces=previous, force=force)
     timings["issue"] = time.perf_counter() - t0
 
+    # the same flight measured in the board's plane, for comparison ------------------------
+    t0 = time.perf_counter()
+    planar_cd, planar_u, planar_refusal = _planar_fit(job, d / track_name(names[0]))
+    timings["planar"] = time.perf_counter() - t0
+
     r = meas.content.result
+    fit3d = meas.fit.throws[0].result
+    late = fit3d.views[1]
     out = {k: Path(v) for k, v in rec.outputs.items()}
     return DemoResult(
         directory=d,
-        footage=footage,
+        footage=tuple(d / footage_name(n) for n in names),
+        lenses=tuple(d / lens_name(n) for n in names),
+        tracks=tuple(d / track_name(n) for n in names),
+        previews=tuple(d / preview_name(n) for n in names),
         truth=truth_path,
-        track=track_path,
-        preview=preview_path,
+        layout=d / LAYOUT_NAME,
         job=job_path,
         certificate_number=rec.number,
         replaces=rec.replaces,
@@ -694,6 +832,15 @@ def run_demo(
         coverage_factor=float(r.coverage_factor),
         decision=meas.decision,
         true_cd=float(truth["true_cd"]),
+        true_out_of_plane=float(truth["launch"]["out_of_plane_deg"]),
+        out_of_plane_angle=float(fit3d.out_of_plane_angle),
+        out_of_plane_angle_uncertainty=float(fit3d.out_of_plane_angle_uncertainty),
+        true_time_offset=float(truth["cameras"][1]["time_offset"]),
+        time_offset=float(late.time_offset),
+        time_offset_uncertainty=float(late.time_offset_uncertainty),
+        planar_drag_coefficient=planar_cd,
+        planar_expanded_uncertainty=planar_u,
+        planar_refusal=planar_refusal,
         footage_reused=reused,
         summary=summary,
         elapsed=time.perf_counter() - t_start,

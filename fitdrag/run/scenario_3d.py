@@ -77,6 +77,8 @@ class Scenario3D:
         The ball. [kg], [m]
     air_density, viscosity : float
         [kg/m³], [Pa s]
+    gravity : float
+        Acceleration of free fall. [m/s²]
     speed, elevation, out_of_plane : float
         Launch speed [m/s], angle above the horizontal [deg], angle of the flight out of the
         board plane towards the cameras [deg].
@@ -104,6 +106,7 @@ class Scenario3D:
     diameter: float = 0.065
     air_density: float = 1.19
     viscosity: float = 1.82e-5
+    gravity: float = 9.80665
     speed: float = 9.0
     elevation: float = 28.0
     out_of_plane: float = 0.8
@@ -167,7 +170,8 @@ def flight(sc: Scenario3D, t_end: float):
     launch = Launch3D.from_speed_angles(sc.speed, sc.elevation, sc.out_of_plane, *sc.start)
     t = np.linspace(T_LAUNCH, t_end, int((t_end - T_LAUNCH) * sc.fps * 8) + 2)
     return simulate_3d(t, launch, Sphere(sc.mass, sc.diameter),
-                       Conditions(Air(sc.air_density, viscosity=sc.viscosity)),
+                       Conditions(Air(sc.air_density, viscosity=sc.viscosity),
+                                  gravity=sc.gravity),
                        drag_params=(sc.cd,), t0=T_LAUNCH)  # fmt: skip
 
 
@@ -278,6 +282,16 @@ def job_text(sc: Scenario3D, files: ScenarioFiles, *, test_date: str = "2026-12-
         "density_uncertainty = 0.004   # kg/m^3",
         f"viscosity = {sc.viscosity!r}        # Pa s",
         "",
+        *(
+            [
+                "[site]",
+                f"gravity = {sc.gravity!r}        # m/s^2, as simulated",
+                "gravity_uncertainty = 0.0005  # m/s^2",
+                "",
+            ]
+            if sc.gravity != 9.80665
+            else []
+        ),
         "[camera]",
         f"fps = {sc.fps!r}                 # Hz, shared by the cameras",
         "fps_uncertainty = 0.005       # Hz",
