@@ -221,7 +221,7 @@ def test_footage_throw_keys_parse(footage_dir):
     may be left out (the calibration brings its own)."""
     text = _footage_job(
         'markers = "50 mm"\nmarker_dictionary = "4x4_50"\nmarker_layout = "wall.csv"\n'
-        'marker_frame = 3\nlens = "lens.json"\nscale_uncertainty = "0.1 %"\nstart = 2\n'
+        'marker_frame = 3\nscale_uncertainty = "0.1 %"\nstart = 2\n'
         'stop = 60\nlabel = "throw A"\n'
         '\n[[throws]]\nfootage = "clip.avi"\nscale = 0.00125\norigin = "12,790"\n'
         'rotation = "0.5 deg"\n'
@@ -240,7 +240,6 @@ def test_footage_throw_keys_parse(footage_dir):
         "marker_dictionary": "DICT_4X4_50",
         "marker_layout": (footage_dir / "wall.csv").resolve(),
         "marker_frame": 3,
-        "lens": (footage_dir / "lens.json").resolve(),
         "scale_uncertainty": pytest.approx(0.001, rel=1e-12),
         "start": 2,
         "stop": 60,
@@ -348,7 +347,7 @@ def test_footage_files_and_track_throw_options(footage_dir):
     """regression: a footage throw's missing lens or layout file is a FileNotFoundError
     naming its line; a footage option on a track CSV throw is refused; track throws still
     need [camera] scale_relative_uncertainty."""
-    text = _footage_job('markers = 0.05\nlens = "nolens.json"\n')
+    text = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "nolens.json"\n')
     with pytest.raises(FileNotFoundError, match=rf"^job\.toml, line {_line(text, 'lens')}: "
                        r"\[\[throws\]\] #1 lens: no such file '.*nolens\.json'; paths are "
                        r"relative to the job file's folder"):  # fmt: skip
@@ -408,3 +407,94 @@ def test_track_csv_needs_the_camera_distance_and_out_of_plane_uncertainty(job_di
     with pytest.raises(ValueError, match=rf"line {_line(text, 'distance = ')}: \[camera\] "
                        r"distance: -3 m is outside the plausible range"):  # fmt: skip
         load_job(_write(job_dir, text))
+
+
+def _views_job(views: str, camera: str = "") -> str:
+    """The template with its track throw replaced by a throw seen by cameras (``views``)."""
+    text = _edit('track = "throw1.csv"', 'label = "throw A"\n' + views)
+    return _edit("[camera]\n", "[camera]\n" + camera, text) if camera else text
+
+
+_VIEW = (
+    '[[throws.views]]\nfootage = "clip.avi"\nlens = "lens.json"\nmarkers = "50 mm"\n'
+    'marker_layout = "wall.csv"\n'
+)
+
+
+def test_views_throw_parses_each_camera(footage_dir):
+    """closed-form/independent: a [[throws]] with two [[throws.views]] becomes one throw of
+    kind "views" with a ViewSource per camera, in SI (pint: 1.2 ms = 1.2e-3 s, 50 mm =
+    0.05 m); the first view's offset is 0 by definition, a second view without time_offset
+    is estimated (None), one with it carries its uncertainty; a footage throw with a lens,
+    markers and layout is its own single view with [camera] readout_time."""
+    text = _views_job(
+        _VIEW
+        + 'readout_time = "1.2 ms"\nreadout_time_uncertainty = "0.05 ms"\n'
+        + _VIEW
+        + 'label = "side"\ntime_offset = "0.4 ms"\ntime_offset_uncertainty = "0.01 ms"\n'
+        + "\n[[throws]]\n"
+        + _VIEW
+        + _VIEW,
+        camera='readout_time = "2 ms"\nreadout_time_uncertainty = "0.1 ms"\n',
+    )
+    job = load_job(_write(footage_dir, text))
+    a, b = job.throws
+    assert a.kind == b.kind == "views" and job.measured_in_3d
+    assert a.label == "throw A" and len(a.views) == 2 and len(b.views) == 2
+    v1, v2 = a.views
+    assert v1.footage == (footage_dir / "clip.avi").resolve()
+    assert v1.markers == pytest.approx(0.05) and v1.lens.name == "lens.json"
+    assert v1.readout_time.value == pytest.approx(1.2e-3)
+    assert v1.readout_time.uncertainty == pytest.approx(5e-5)
+    assert v1.time_offset is None and v2.label == "side"
+    assert v2.readout_time is None  # the pipeline falls back to [camera]
+    assert v2.time_offset.value == pytest.approx(4e-4)
+    assert v2.time_offset.uncertainty == pytest.approx(1e-5)
+    assert job.camera.readout_time.value == pytest.approx(2e-3)
+    assert v1.tracking_options == {"markers": pytest.approx(0.05), "lens": v1.lens,
+                                   "marker_layout": v1.marker_layout}  # fmt: skip
+    single = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "lens.json"\n')
+    job = load_job(_write(footage_dir, single))
+    (th,) = job.throws
+    assert th.kind == "footage" and th.measured_in_3d
+    (src,) = th.view_sources(job.camera)
+    assert src.footage == th.path and src.readout_time is None
+
+
+@pytest.mark.parametrize(
+    "views, message",
+    [
+        (_VIEW.replace('lens = "lens.json"\n', ""),
+         r"\[\[throws\.views\]\] #1 lens: missing; give the camera's lens file"),
+        (_VIEW + "time_offset = 0.001\n",
+         r"line \d+: \[\[throws\.views\]\] #1 time_offset: the first view is the time "
+         r"reference \(offset 0\)"),
+        (_VIEW + _VIEW + "time_offset_uncertainty = 0.001\n",
+         r"\[\[throws\.views\]\] #2 time_offset_uncertainty: given without time_offset"),
+        (_VIEW + "readout_time = 0.001\n",
+         r"\[\[throws\.views\]\] #1 readout_time_uncertainty: missing; give the standard "
+         r"uncertainty of the readout time"),
+        (_VIEW + "fps = 500\n", r"\[\[throws\.views\]\] #1 fps: unknown key; valid keys in "
+                                r"\[\[throws\.views\]\] #1 are footage, label, lens"),
+        ('scale = 0.001\n' + _VIEW, r"\[\[throws\]\] #1 scale: a throw with \[\[throws\.views\]\] "
+                                    r"takes only label"),
+        (_VIEW + "\n[[throws]]\nfootage = \"clip.avi\"\nscale = 0.001\n",
+         r"\[\[throws\]\] #2: this throw is measured in the plane, others in 3-D"),
+    ],
+)  # fmt: skip
+def test_views_throw_bad_input(footage_dir, views, message):
+    """regression: the views contract's refusals name the table (numbered over the file),
+    the key and the fix."""
+    text = _views_job(views)
+    with pytest.raises(ValueError, match=message):
+        load_job(_write(footage_dir, text))
+
+
+def test_lens_without_the_board_is_refused(footage_dir):
+    """regression: a lens measures in 3-D and needs the board's pose: markers and layout."""
+    text = _footage_job('markers = 0.05\nlens = "lens.json"\n')
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {_line(text, 'lens')}: "
+                       r"\[\[throws\]\] #1 lens: with a lens the throw is measured in 3-D, "
+                       r"which needs the camera's pose from the marker board; give "
+                       r"markers = SIDE_M and marker_layout = FILE"):  # fmt: skip
+        load_job(_write(footage_dir, text))

@@ -110,6 +110,33 @@ def curves_from_fit(result, n: int = 400) -> list[ThrowCurves]:
     return out
 
 
+def curves_from_views(result, views, *, label: str = "", n: int = 400) -> list[ThrowCurves]:
+    """One :class:`ThrowCurves` per camera of a 3-D fit (:func:`fitdrag.fit.image_fit.
+    fit_views`): world x and y of the fitted flight, and each observation carried to the
+    fitted depth (:func:`fitdrag.fit.view_curves.view_flights`); residuals in metres at the
+    specimen."""
+    from fitdrag.fit.view_curves import view_flights
+
+    out = []
+    for f in view_flights(result, views, n):
+        res = f.observed - f.fitted
+        out.append(
+            ThrowCurves(
+                label=f"{label} / {f.name}" if label else f.name,
+                t=f.t,
+                x=f.observed[:, 0],
+                y=f.observed[:, 1],
+                used=np.ones(f.t.size, bool),
+                residual_x=res[:, 0],
+                residual_y=res[:, 1],
+                fit_t=f.dense_t,
+                fit_x=f.dense[:, 0],
+                fit_y=f.dense[:, 1],
+            )
+        )
+    return out
+
+
 def _new_figure(size):
     import matplotlib
 

@@ -36,6 +36,7 @@ __all__ = [
     "SpecimenSection",
     "Throw",
     "UncertaintySection",
+    "ViewSource",
 ]
 
 
@@ -165,6 +166,10 @@ class CameraSection:
     out_of_plane_uncertainty : float or None
         Standard uncertainty of each track CSV throw's angle to the image plane (its
         estimate is 0; required with track CSV throws). [deg]
+    readout_time : Measured or None
+        Rolling-shutter readout time (first to last row) with its standard uncertainty, from
+        the camera's data sheet; None = global shutter.  Used by footage measured in 3-D
+        (the views' own ``readout_time`` overrides it). [s]
     """
 
     fps: Measured
@@ -172,11 +177,73 @@ class CameraSection:
     roll_uncertainty: float | None = None
     distance: Measured | None = None
     out_of_plane_uncertainty: float | None = None
+    readout_time: Measured | None = None
+
+
+@dataclass(frozen=True)
+class ViewSource:
+    """One camera's footage of a throw measured in 3-D: a ``[[throws.views]]`` table, or a
+    footage throw with a ``lens`` (its only view).
+
+    Attributes
+    ----------
+    footage : Path or None
+        Video file or folder of numbered frames (None for a track file).
+    lens : Path
+        Lens file of ``fitdrag calibrate-lens`` (the camera's intrinsics; for a track file,
+        the uncertainty of its focal length).
+    markers : float or None
+        Side of the ArUco markers' black square (footage). [m]
+    marker_layout : Path or None
+        Each marker's position on the board (the world frame: board plane z = 0; footage).
+    label : str
+        Name of the view.
+    line : int or None
+        Line of the job file that names the footage.
+    readout_time : Measured or None
+        Rolling-shutter readout time and its standard uncertainty (None = global shutter). [s]
+    time_offset : Measured or None
+        Time of this view's frame 0 minus the first view's, with its standard uncertainty;
+        None = estimated by the fit (views after the first). [s]
+    scale_uncertainty : float or None
+        Relative standard uncertainty of the marker side. [1]
+    start, stop, marker_dictionary, marker_frame :
+        As for footage throws.
+    track : Path or None
+        A track file written by ``fitdrag track`` with a camera (its header states the
+        camera's intrinsics, pose, pose covariance and readout), instead of footage.
+    """
+
+    footage: Path | None
+    lens: Path
+    markers: float | None
+    marker_layout: Path | None
+    label: str
+    line: int | None = None
+    track: Path | None = None
+    readout_time: Measured | None = None
+    time_offset: Measured | None = None
+    scale_uncertainty: float | None = None
+    start: int | None = None
+    stop: int | None = None
+    marker_dictionary: str | None = None
+    marker_frame: int | None = None
+
+    @property
+    def tracking_options(self) -> dict[str, Any]:
+        """Keyword arguments of :func:`fitdrag.video.tracking.track_footage` (without fps)."""
+        out: dict[str, Any] = {"markers": self.markers, "marker_layout": self.marker_layout,
+                               "lens": self.lens}  # fmt: skip
+        for name in ("scale_uncertainty", "start", "stop", "marker_dictionary", "marker_frame"):
+            if getattr(self, name) is not None:
+                out[name] = getattr(self, name)
+        return out
 
 
 @dataclass(frozen=True)
 class Throw:
-    """One ``[[throws]]`` table: a track CSV (``kind == "track"``) or footage.
+    """One ``[[throws]]`` table: a track CSV (``kind == "track"``), footage, or several
+    cameras' footage of one throw (``kind == "views"``, one :class:`ViewSource` each).
 
     The options are those given in the job file (None: not given): the CSV import options
     of :func:`fitdrag.tracks.read_track` for a track, the options of
@@ -186,9 +253,9 @@ class Throw:
     Attributes
     ----------
     kind : str
-        ``"track"`` or ``"footage"``.
+        ``"track"``, ``"footage"`` or ``"views"``.
     path : Path
-        The track CSV or the footage (file or folder of frames).
+        The track CSV, the footage (file or folder of frames), or the first view's footage.
     label : str
         Label of the throw.
     line : int or None
@@ -223,11 +290,36 @@ class Throw:
     marker_frame: int | None = None
     lens: Path | None = None
     scale_uncertainty: float | None = None  # [1]
+    # several cameras (kind "views")
+    views: tuple[ViewSource, ...] = ()
+
+    @property
+    def measured_in_3d(self) -> bool:
+        """Whether the throw is measured in 3-D through camera models (views, or footage
+        with a lens)."""
+        return self.kind == "views" or (self.kind == "footage" and self.lens is not None)
+
+    def view_sources(self, camera: CameraSection) -> tuple[ViewSource, ...]:
+        """The cameras' footage of a throw measured in 3-D (a footage throw with a lens is
+        its own single view, with ``[camera] readout_time``)."""
+        if self.kind == "views":
+            return self.views
+        if not self.measured_in_3d:
+            return ()
+        return (
+            ViewSource(
+                footage=self.path, lens=self.lens, markers=self.markers,
+                marker_layout=self.marker_layout, label=self.label, line=self.line,
+                readout_time=camera.readout_time, scale_uncertainty=self.scale_uncertainty,
+                start=self.start, stop=self.stop, marker_dictionary=self.marker_dictionary,
+                marker_frame=self.marker_frame,
+            ),
+        )  # fmt: skip
 
     @property
     def options(self) -> dict[str, Any]:
         """The import or tracking options given in the job file, by keyword."""
-        skip = ("kind", "path", "label", "line")
+        skip = ("kind", "path", "label", "line", "views")
         return {
             f.name: getattr(self, f.name)
             for f in fields(self)
@@ -347,6 +439,12 @@ class Job:
     def gravity(self) -> float:
         """Local acceleration of free fall. [m/s²]"""
         return self.site.gravity.value
+
+    @property
+    def measured_in_3d(self) -> bool:
+        """Whether the throws are measured in 3-D through camera models (a job measures
+        every throw the same way)."""
+        return any(th.measured_in_3d for th in self.throws)
 
     def fit_options(self) -> dict:
         """Keyword options of the fit from ``[fit]``."""

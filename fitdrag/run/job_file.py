@@ -54,6 +54,7 @@ from fitdrag.run.job import (
     SpecimenSection,
     Throw,
     UncertaintySection,
+    ViewSource,
 )
 from fitdrag.run.job_keys import (
     CSV_OPTIONS,
@@ -130,7 +131,8 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
 
     for sec, value in data.items():
         if sec not in SECTIONS:
-            valid = ", ".join("[[throws]]" if s == "throws" else f"[{s}]" for s in SECTIONS)
+            valid = ", ".join("[[throws]]" if s == "throws" else f"[{s}]" for s in SECTIONS
+                              if s != "throws.views")  # fmt: skip
             if isinstance(value, dict | list):
                 fail(f"{where.section(sec)}: unknown section; valid sections are {valid}.")
             n = where.keys.get(("", None, sec))
@@ -150,7 +152,7 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
 
     parsed = {}
     for sec in SECTIONS:
-        if sec == "throws":
+        if sec in ("throws", "throws.views"):
             continue
         parsed[sec] = parse_table(where, sec, None, data.get(sec, {}), folder)
         for key in REQUIRED.get(sec, ()):
@@ -172,6 +174,7 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
             "or 0 if the track's positions are exact.",
         )
     _planar_statement(where, camera, throws)
+    _one_geometry(where, throws)
     spec, rule = _specification(where, parsed["specification"], "specification" in data)
     fit = FitSection(**parsed["fit"])
     if fit.model is not None:
@@ -383,7 +386,30 @@ def _camera(where, d):
         fail(f"{where.key('camera', None, 'distance_uncertainty')}: given without distance.")
     if "out_of_plane_uncertainty" in d:
         out["out_of_plane_uncertainty"] = d["out_of_plane_uncertainty"]
+    readout = _readout(where, "camera", None, d)
+    if readout is not None:
+        out["readout_time"] = readout
     return CameraSection(**out)
+
+
+def _readout(where, sec, idx, d) -> Measured | None:
+    """``readout_time`` with ``readout_time_uncertainty`` (0 if left out with a global
+    shutter), or None when neither is given."""
+    if "readout_time" not in d:
+        if "readout_time_uncertainty" in d:
+            fail(
+                f"{where.key(sec, idx, 'readout_time_uncertainty')}: given without "
+                f"readout_time; give the readout time too (0 for a global shutter)."
+            )
+        return None
+    r = d["readout_time"]
+    if "readout_time_uncertainty" not in d:
+        if r > 0:
+            missing(where, sec, idx, "readout_time_uncertainty",
+                    "give the standard uncertainty of the readout time in s (e.g. from the "
+                    'camera\'s data sheet: "0.05 ms"), or 0 if it is exact.')  # fmt: skip
+        return Measured(r, 0.0, "s")
+    return Measured(r, d["readout_time_uncertainty"], "s")
 
 
 #: Why a track CSV needs the camera's distance and the out-of-plane uncertainty.
@@ -416,6 +442,7 @@ def _planar_statement(where, camera, throws) -> None:
 
 def _throws(where, items, folder, check_files):
     out = []
+    view_count = 0  # [[throws.views]] tables are numbered over the whole file
     if not items:
         fail(f'{where.path.name}: no [[throws]]; add at least one [[throws]] with track = "...".')
     for i, t in enumerate(items):
@@ -426,6 +453,10 @@ def _throws(where, items, folder, check_files):
                 f"{where.key('throws', i, 'fps')}: unknown key; every throw's frame rate is "
                 f"[camera] fps (with fps_uncertainty); remove fps here."
             )
+        if "views" in t:
+            out.append(_views_throw(where, i, t, folder, check_files, view_count))
+            view_count += len(t["views"]) if isinstance(t["views"], list) else 0
+            continue
         d = parse_table(where, "throws", i, t, folder)
         has_t, has_f = "track" in d, "footage" in d
         if has_t == has_f:
@@ -462,6 +493,131 @@ def _throws(where, items, folder, check_files):
                 )
         out.append(Throw(kind=kind, path=p, label=label, line=line, **d))
     return tuple(out)
+
+
+#: What a view measured in 3-D needs: the camera's intrinsics and its pose from the board.
+VIEW_NEEDS = ("lens", "markers", "marker_layout")
+
+
+def _views_throw(where, i, t, folder, check_files, first) -> Throw:
+    """A ``[[throws]]`` table with ``[[throws.views]]``: one camera's footage each."""
+    sec = "throws"
+    views = t["views"]
+    if not isinstance(views, list) or not views or not all(isinstance(v, dict) for v in views):
+        fail(
+            f"{where.section(sec, i)}: views must be [[throws.views]] tables, one per camera, "
+            f'each with footage = "file.avi", lens, markers and marker_layout.'
+        )
+    rest = {k: v for k, v in t.items() if k != "views"}
+    extra = sorted(k for k in rest if k != "label")
+    if extra:
+        fail(
+            f"{where.key(sec, i, extra[0])}: a throw with [[throws.views]] takes only label; "
+            f"give the footage and its calibration in each view."
+        )
+    label = rest.get("label")
+    if label is not None and not isinstance(label, str):
+        fail(f"{where.key(sec, i, 'label')}: expected text in quotes, got {label!r}.")
+    out = []
+    vs = "throws.views"
+    for j, raw in enumerate(views):
+        gi = first + j
+        d = parse_table(where, vs, gi, raw, folder)
+        if ("footage" in d) == ("track" in d):
+            fail(
+                f'{where.section(vs, gi)}: give exactly one of footage = "cam1.avi" or '
+                f'track = "cam1.csv" (a track file written by fitdrag track with a camera).'
+            )
+        kind = "footage" if "footage" in d else "track"
+        needs = VIEW_NEEDS if kind == "footage" else ("lens",)
+        for k in needs:
+            if k not in d:
+                missing(where, vs, gi, k, _VIEW_HINT[k])
+        if kind == "track":
+            extra = sorted(k for k in d if k in _FOOTAGE_ONLY)
+            if extra:
+                fail(
+                    f"{where.key(vs, gi, extra[0])}: applies to footage; a track file states "
+                    f"its camera (pose, readout) in its header, as fitdrag track wrote it."
+                )
+        if "stop" in d and d["stop"] <= d.get("start", 0):
+            fail(
+                f"{where.key(vs, gi, 'stop')}: {d['stop']} is not after start "
+                f"{d.get('start', 0)}; stop is the first frame not read."
+            )
+        if check_files:
+            for k in (kind, "lens", "marker_layout"):
+                if k in d and (not d[k].exists() or (k != "footage" and not d[k].is_file())):
+                    raise InputFileNotFoundError(
+                        f"{where.key(vs, gi, k)}: no such file {str(d[k])!r}; paths are "
+                        f"relative to the job file's folder {str(folder)!r}."
+                    )
+        offset = None
+        if "time_offset" in d:
+            if j == 0 and d["time_offset"] != 0:
+                fail(
+                    f"{where.key(vs, gi, 'time_offset')}: the first view is the time reference "
+                    f"(offset 0); give the other views' offsets relative to it."
+                )
+            offset = Measured(d["time_offset"], d.get("time_offset_uncertainty", 0.0), "s")
+        elif "time_offset_uncertainty" in d:
+            fail(
+                f"{where.key(vs, gi, 'time_offset_uncertainty')}: given without time_offset; "
+                f"give the offset too, or leave both out to have it estimated."
+            )
+        out.append(
+            ViewSource(
+                footage=d.get("footage"), lens=d["lens"], markers=d.get("markers"),
+                marker_layout=d.get("marker_layout"), label=d.get("label") or d[kind].name,
+                line=where.keys.get((vs, gi, kind)), track=d.get("track"),
+                readout_time=_readout(where, vs, gi, d), time_offset=offset,
+                scale_uncertainty=d.get("scale_uncertainty"), start=d.get("start"),
+                stop=d.get("stop"), marker_dictionary=d.get("marker_dictionary"),
+                marker_frame=d.get("marker_frame"),
+            )
+        )  # fmt: skip
+    return Throw(
+        kind="views",
+        path=out[0].footage or out[0].track,
+        label=(label or "").strip() or out[0].label,
+        line=where.headers.get((sec, i)),
+        views=tuple(out),
+    )
+
+
+#: Keys of a view that only footage takes (a track file's header states the camera).
+_FOOTAGE_ONLY = ("markers", "marker_layout", "marker_dictionary", "marker_frame", "start",
+                 "stop", "scale_uncertainty", "readout_time", "readout_time_uncertainty")  # fmt: skip
+
+_VIEW_HINT = {
+    "footage": 'give this camera\'s footage, e.g. footage = "cam1.avi".',
+    "lens": 'give the camera\'s lens file from fitdrag calibrate-lens, e.g. lens = "cam1.json".',
+    "markers": 'give the side of the markers\' black square, e.g. markers = "50 mm".',
+    "marker_layout": 'give the marker board\'s layout file, e.g. marker_layout = "board.csv".',
+}
+
+
+def _one_geometry(where, throws) -> None:
+    """Refuse a job that mixes throws measured in 3-D with planar ones, and a lens without
+    the marker board that gives the camera's pose."""
+    for i, th in enumerate(throws):
+        if th.kind == "footage" and th.lens is not None:
+            for k in ("markers", "marker_layout"):
+                if getattr(th, k) is None:
+                    fail(
+                        f"{where.key('throws', i, 'lens')}: with a lens the throw is measured "
+                        f"in 3-D, which needs the camera's pose from the marker board; give "
+                        f"markers = SIDE_M and marker_layout = FILE (or leave the lens out to "
+                        f"measure in the markers' plane)."
+                    )
+    kinds = {th.measured_in_3d for th in throws}
+    if len(kinds) > 1:
+        i = next(k for k, th in enumerate(throws) if not th.measured_in_3d)
+        fail(
+            f"{where.section('throws', i)}: this throw is measured in the plane, others in 3-D "
+            f"(footage with a lens, or [[throws.views]]); measure every throw of a job the same "
+            f"way: give each footage its lens, markers and marker_layout, or none a lens."
+        )
 
 
 def _footage_options(where, i, d, folder, check_files) -> None:

@@ -146,6 +146,12 @@ def _u(unit, hi=None, hint=""):
     return Key("unc", unit, 0.0, hi, hint)
 
 
+_READOUT = Key(
+    "qty", "s", 0.0, 1.0,
+    'give the rolling-shutter readout time (first to last row) in s, e.g. "1.2 ms", or 0 '
+    "for a global shutter",
+)  # fmt: skip
+
 SECTIONS: dict[str, dict[str, Key]] = {
     "laboratory": {
         "name": Key("str"),
@@ -231,6 +237,8 @@ SECTIONS: dict[str, dict[str, Key]] = {
             10.0,
             "give the standard uncertainty of the flight's angle to the image plane in degrees",
         ),
+        "readout_time": _READOUT,
+        "readout_time_uncertainty": _u("s", 0.1),
     },
     "throws": {
         "track": Key("path"),
@@ -270,6 +278,42 @@ SECTIONS: dict[str, dict[str, Key]] = {
             "give the relative standard uncertainty of the known length as a fraction "
             '(0.001 for 0.1 %) or "0.1 %"',
         ),
+    },
+    # one camera's footage of a throw measured in 3-D: [[throws.views]]
+    "throws.views": {
+        "footage": Key("path"),
+        "track": Key("path"),
+        "label": Key("str"),
+        "lens": Key("path"),
+        "markers": _q(
+            "m",
+            0.0,
+            10.0,
+            'give the side of the markers\' black square in metres (e.g. 0.05) or "50 mm"',
+        ),
+        "marker_dictionary": Key("dictionary"),
+        "marker_layout": Key("path"),
+        "marker_frame": Key("int", lo=0, hi=10**9),
+        "scale_uncertainty": _u(
+            "dimensionless",
+            0.5,
+            "give the relative standard uncertainty of the marker side as a fraction "
+            '(0.001 for 0.1 %) or "0.1 %"',
+        ),
+        "start": Key("int", lo=0, hi=10**9),
+        "stop": Key("int", lo=1, hi=10**9),
+        "readout_time": _READOUT,
+        "readout_time_uncertainty": _u("s", 0.1),
+        "time_offset": Key(
+            "qty",
+            "s",
+            -60.0,
+            60.0,
+            "give this view's frame 0 time minus the first view's in s (e.g. \"0.4 ms\"), or "
+            "leave it out to have it estimated",
+            lo_open=False,
+        ),  # fmt: skip
+        "time_offset_uncertainty": _u("s", 1.0),
     },
     "specification": {
         "drag_coefficient": Key("qty", "dimensionless", 0.0, 100.0, "the stated Cd"),

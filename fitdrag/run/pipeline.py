@@ -32,7 +32,7 @@ import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from fitdrag._files import temporary_path
 from fitdrag.errors import ConvergenceError, InputError, InputFileNotFoundError
@@ -84,6 +84,8 @@ class Measurement:
         SHA-256 of the job file and of every input file, by path.
     content : CertificateContent
         What the certificate will say (number and date are filled in by :func:`issue`).
+    curves : sequence of ThrowCurves, optional
+        The certificate's plots of the flight and residuals (default: from ``fit``).
     """
 
     job: Job
@@ -95,6 +97,7 @@ class Measurement:
     verdict: Verdict | None
     hashes: Mapping[str, str]
     content: CertificateContent
+    curves: Any = None
 
     @property
     def decision(self) -> str | None:
@@ -403,22 +406,15 @@ def measure(
     InputError
         A negative number of Monte Carlo trials.
     """
-    from fitdrag._version import __version__
     from fitdrag.fit.budget_model import DragRefitModel
     from fitdrag.fit.fitting import fit_tracks
-    from fitdrag.report.numbers import formatter_for
-    from fitdrag.uncertainty.decision import decide
-    from fitdrag.uncertainty.gum import P_K2, budget_from_model
-    from fitdrag.uncertainty.monte_carlo import compare_with_gum, default_workers
-    from fitdrag.uncertainty.monte_carlo import monte_carlo as run_mc
 
-    unc = job.uncertainty
-    n_mc = unc.monte_carlo if monte_carlo is None else monte_carlo
-    if n_mc < 0:
-        raise InputError(
-            f"monte_carlo trials: must be >= 0, got {n_mc}; give 0 (no Monte Carlo check) or a "
-            f"number of trials such as 10000."
-        )
+    if job.measured_in_3d:
+        from fitdrag.run.measure_views import measure_in_3d
+
+        return measure_in_3d(job, monte_carlo=monte_carlo, adaptive=adaptive, seed=seed,
+                             workers=workers, progress=progress)  # fmt: skip
+    n_mc = _monte_carlo_trials(job, monte_carlo)
     tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()
     air = job.make_air()
@@ -435,12 +431,10 @@ def measure(
                            viscosity=air.viscosity)  # fmt: skip
     inputs = _perspective_inputs(model, inputs)
     stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
-    try:
-        budget = budget_from_model(
-            model, inputs, statistical=stat, coverage_probability=P_K2, progress=progress
-        )
-    except RuntimeError as exc:
-        raise ConvergenceError(f"uncertainty budget: {exc}") from exc
+    budget, mc, check = budget_and_checks(
+        job, model, inputs, stat, n_mc, adaptive=adaptive, seed=seed, workers=workers,
+        progress=progress,
+    )  # fmt: skip
     nonlinear = perspective_nonlinear_lines(budget)
     if nonlinear and not n_mc:
         warnings.warn(
@@ -449,7 +443,55 @@ def measure(
             f"Set [uncertainty] monte_carlo = 10000 (JCGM 101:2008) for this job.",
             stacklevel=2,
         )
+    fit_dict = fit.to_dict()
+    content = certificate_content(
+        job, float(fit.cd), budget, mc, check, air=air, wind=fopts.get("wind", 0.0),
+        statistical_u=float(fit.u_cd),
+        camera=CameraSettings(
+            fps=job.camera.fps.estimate(),
+            scale_relative_uncertainty=u_scale,
+            scale_relative_uncertainty_source=u_scale_source,
+            roll_uncertainty_deg=u_roll,
+            roll_uncertainty_source=u_roll_source,
+            distance=None if job.camera.distance is None else job.camera.distance.estimate(),
+            out_of_plane_uncertainty_deg=job.camera.out_of_plane_uncertainty,
+        ),
+        footage=_footage_records(job, tracks),
+        method=_method(fit_dict, fit, budget, mc, planar_geometry_text(job)),
+        fit_facts=FitFacts.from_summary(fit_dict),
+        fit_summary=fit_dict,
+        hashes=hashes,
+    )  # fmt: skip
+    verdict = content.conformity.verdict if content.conformity is not None else None
+    return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content)
 
+
+def _monte_carlo_trials(job: Job, monte_carlo: int | None) -> int:
+    n_mc = job.uncertainty.monte_carlo if monte_carlo is None else monte_carlo
+    if n_mc < 0:
+        raise InputError(
+            f"monte_carlo trials: must be >= 0, got {n_mc}; give 0 (no Monte Carlo check) or a "
+            f"number of trials such as 10000."
+        )
+    return n_mc
+
+
+def budget_and_checks(job: Job, model, inputs, stat, n_mc: int, *, adaptive=None, seed=None,
+                      workers=None, progress=False):  # fmt: skip
+    """The GUM budget of ``model`` over ``inputs`` plus the statistical part ``stat``
+    (u, dof), and the Monte Carlo run and its check when ``n_mc`` > 0:
+    (budget, mc or None, check or None)."""
+    from fitdrag.uncertainty.gum import P_K2, budget_from_model
+    from fitdrag.uncertainty.monte_carlo import compare_with_gum, default_workers
+    from fitdrag.uncertainty.monte_carlo import monte_carlo as run_mc
+
+    unc = job.uncertainty
+    try:
+        budget = budget_from_model(
+            model, inputs, statistical=stat, coverage_probability=P_K2, progress=progress
+        )
+    except RuntimeError as exc:
+        raise ConvergenceError(f"uncertainty budget: {exc}") from exc
     mc = check = None
     if n_mc:
         try:
@@ -463,8 +505,17 @@ def measure(
         except RuntimeError as exc:
             raise ConvergenceError(f"Monte Carlo: {exc}") from exc
         check = compare_with_gum(budget, mc)
+    return budget, mc, check
 
-    cd = float(fit.cd)
+
+def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, statistical_u,
+                        camera, footage, method, fit_facts, fit_summary,
+                        hashes) -> CertificateContent:  # fmt: skip
+    """What the certificate says, and the conformity decision (in ``conformity``)."""
+    from fitdrag._version import __version__
+    from fitdrag.report.numbers import formatter_for
+    from fitdrag.uncertainty.decision import decide
+
     uc = budget.combined_standard_uncertainty
     big_u = budget.expanded_uncertainty
     verdict = None
@@ -476,15 +527,13 @@ def measure(
             standard_uncertainty=uc,
             result_label=f"specimen {job.specimen.id}",
         )  # fmt: skip
-
-    fit_dict = fit.to_dict()
     sp = job.specimen
     a = job.air
 
     def est(m):
         return None if m is None else m.estimate()
 
-    content = CertificateContent(
+    return CertificateContent(
         software_version=__version__,
         laboratory=job.laboratory,
         test=job.test,
@@ -513,22 +562,14 @@ def measure(
             ),
             gravity=job.site.gravity.estimate(),
             gravity_source=job.site.gravity_source,
-            wind=fopts.get("wind", 0.0),
+            wind=wind,
         ),
-        camera=CameraSettings(
-            fps=job.camera.fps.estimate(),
-            scale_relative_uncertainty=u_scale,
-            scale_relative_uncertainty_source=u_scale_source,
-            roll_uncertainty_deg=u_roll,
-            roll_uncertainty_source=u_roll_source,
-            distance=None if job.camera.distance is None else job.camera.distance.estimate(),
-            out_of_plane_uncertainty_deg=job.camera.out_of_plane_uncertainty,
-        ),
-        footage=_footage_records(job, tracks),
-        method=_method(fit_dict, fit, budget, mc, planar_geometry_text(job)),
+        camera=camera,
+        footage=footage,
+        method=method,
         result=Result(
             drag_coefficient=cd,
-            statistical_standard_uncertainty=float(fit.u_cd),
+            statistical_standard_uncertainty=statistical_u,
             combined_standard_uncertainty=uc,
             effective_degrees_of_freedom=budget.effective_dof,
             coverage_factor=budget.coverage_factor,
@@ -536,7 +577,7 @@ def measure(
             expanded_uncertainty=big_u,
             model_value_at_inputs=budget.value,
         ),
-        fit=FitFacts.from_summary(fit_dict),
+        fit=fit_facts,
         budget=budget,
         monte_carlo=None if mc is None else MonteCarloCheck(mc, check),
         conformity=(
@@ -544,11 +585,10 @@ def measure(
             if verdict is None
             else Conformity(verdict, verdict.statement(formatter_for(big_u)))
         ),
-        fit_summary=fit_dict,
+        fit_summary=fit_summary,
         input_hashes=dict(hashes),
         job_path=str(job.path),
     )
-    return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content)
 
 
 def _footage_records(job: Job, tracks) -> tuple[FootageRecord, ...]:
@@ -584,7 +624,7 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
     outdir = Path(job.output_directory)
     outdir.mkdir(parents=True, exist_ok=True)
     db = Records(Path(records_path) if records_path else job.records_path)
-    curves = curves_from_fit(meas.fit)
+    curves = meas.curves if meas.curves is not None else curves_from_fit(meas.fit)
     content = meas.content
 
     def render(number, when):

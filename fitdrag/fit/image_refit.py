@@ -1,0 +1,156 @@
+"""Re-solve a finished image-space fit with changed inputs (:func:`refit_views`): the
+measurement model behind the budget lines and Monte Carlo trials of a 3-D measurement.
+
+The problem of :func:`fitdrag.fit.image_fit.fit_views` is rebuilt from its result — the same
+drag law and constants, lift, wind, spin axis, channels, noise levels and AR(1) coefficients,
+reference time and estimated time offsets — with the changed views (cameras, frame rate,
+known offsets), specimen, air or gravity, and only its final weighted least-squares problem is
+solved again, from the fitted optimum.  The noise state is kept so that a sensitivity
+coefficient measures the change of the inputs, not a change of weights.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+
+from fitdrag.errors import InputError
+from fitdrag.fit.image_problem import ImageProblem
+from fitdrag.fit.refit import Refit
+from fitdrag.fit.results import cd_and_gradient
+from fitdrag.fit.solvers import gauss_newton, trust_region
+from fitdrag.geometry.views import CameraView
+from fitdrag.physics.air import Air
+from fitdrag.physics.forces import Conditions
+from fitdrag.physics.registry import get_drag_model
+
+__all__ = ["median_reynolds", "rebuild_problem", "refit_views"]
+
+
+def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=None,
+                    gravity=None) -> ImageProblem:  # fmt: skip
+    """The final weighted problem of a finished :func:`fit_views`, with replaced inputs.
+
+    Parameters
+    ----------
+    result : ViewFitResult
+        A converged fit.
+    views : sequence of CameraView
+        The views of that fit, or replacements with the same observations' count per view
+        (e.g. other cameras, another frame rate or known time offsets).
+    specimen : Sphere or Body, optional
+        Replacement specimen (mass [kg], size [m]).
+    air : Air, optional
+        Replacement air (density [kg/m³], viscosity [Pa s]).
+    gravity : float, optional
+        Replacement acceleration of free fall. [m/s²]
+
+    Returns
+    -------
+    ImageProblem
+        With the result's parameter names, noise levels and AR(1) coefficients.
+    """
+    views = list(views)
+    if len(views) != len(result.views) or any(
+        len(v) != r.t.size for v, r in zip(views, result.views)
+    ):
+        raise InputError(
+            "views: a re-fit needs the same cameras with the same number of observations as "
+            "the original fit; run fit_views for new data."
+        )
+    c = result.conditions
+    conditions = Conditions(
+        air=c.air if air is None else air,
+        gravity=c.gravity if gravity is None else gravity,
+        wind=c.wind,
+        buoyancy=c.buoyancy,
+    )
+    opts = result.options
+    dm = get_drag_model(result.model)
+    outline = [r.diameter_used for r in result.views]
+    offsets = [None if r.offset_estimated else v.time_offset or 0.0
+               for v, r in zip(views, result.views)]  # fmt: skip
+    offsets[0] = 0.0
+    problem = ImageProblem(
+        views, result.specimen if specimen is None else specimen, conditions, dm,
+        result.constants, opts["lift"], np.asarray(opts["wind"], float),
+        np.asarray(opts["spin_axis"], float), outline, offsets, result.reference_time,
+    )  # fmt: skip
+    problem.names = list(result.parameter_names)
+    if problem.parameter_names() != problem.names:
+        raise InputError(
+            "views: the re-fit's parameters differ from the original fit's "
+            f"({problem.parameter_names()} vs {problem.names}); keep the same views and options."
+        )
+    bounds = [tuple(b) for b in dm.bounds] + ([(-5.0, 5.0)] if opts["lift"] else [])
+    problem.bounds = bounds + [(-np.inf, np.inf)] * (problem.n_params - len(bounds))
+    levels, phis = [], []
+    seen = [0] * len(views)
+    for ch in problem.channels:
+        r = result.views[ch.view_index]
+        sigma = (r.sigma_u, r.sigma_v, r.sigma_diameter)[ch.kind]
+        levels.append(float(sigma) / float(np.median(ch.relative)))
+        k = seen[ch.view_index]
+        seen[ch.view_index] += 1
+        phis.append(float(r.ar1_coefficients[k]) if k < len(r.ar1_coefficients) else 0.0)
+    problem.set_noise(levels=levels, phis=phis)
+    return problem
+
+
+def median_reynolds(problem: ImageProblem, theta) -> float:
+    """Median Reynolds number over the observations of the flight at ``theta``. [-]"""
+    sims, ok = problem.simulate(np.asarray(theta, float), False)
+    if not ok:
+        return float("nan")
+    air = problem.conditions.air
+    speed = np.concatenate([np.linalg.norm(vel - problem.wind, axis=1) for _p, vel, _j in sims])
+    return float(np.median(air.density * speed * problem.specimen.length / air.viscosity))
+
+
+def refit_views(
+    result,
+    views: Sequence[CameraView],
+    *,
+    specimen=None,
+    air: Air | None = None,
+    gravity: float | None = None,
+    reynolds: float | None = None,
+    max_nfev: int = 60,
+) -> Refit:
+    """Re-solve a finished 3-D fit with changed inputs, for sensitivities and Monte Carlo.
+
+    Parameters
+    ----------
+    result : ViewFitResult
+        A converged fit (:func:`fitdrag.fit.image_fit.fit_views`).
+    views : sequence of CameraView
+        Replacement views (same cameras and observation counts).
+    specimen : Sphere or Body, optional
+        Replacement specimen. [kg, m]
+    air : Air, optional
+        Replacement air. [kg/m³, Pa s]
+    gravity : float, optional
+        Replacement acceleration of free fall. [m/s²]
+    reynolds : float, optional
+        Reynolds number at which a Re-dependent law's Cd is stated (default: the median over
+        the re-fitted flight). [-]
+    max_nfev : int
+        Evaluation budget of the fallback solver.
+
+    Returns
+    -------
+    Refit
+        Cd, all parameters (order of ``result.parameter_names``) and success.
+    """
+    if not result.success:
+        raise InputError("result: the fit did not converge; a re-fit needs a converged fit.")
+    problem = rebuild_problem(result, views, specimen=specimen, air=air, gravity=gravity)
+    theta0 = np.asarray(result.values, float)
+    theta, ok = gauss_newton(problem, theta0, problem.bounds)
+    if not ok:
+        theta, ok, _msg, _n = trust_region(problem, theta0, problem.bounds, max_nfev=max_nfev)
+    dm = problem.model
+    re = reynolds if reynolds is not None else median_reynolds(problem, theta)
+    cd, _ = cd_and_gradient(dm, theta, np.asarray(problem.constants, float), re)
+    return Refit(cd=float(cd), values=np.asarray(theta, float), success=bool(ok))

@@ -1,0 +1,436 @@
+"""The drag coefficient's measurement model for a 3-D measurement (throws seen through
+calibrated cameras): Cd as a function of the input quantities — specimen, air, gravity,
+frame rate, and each camera's calibration (pose, focal length, rolling-shutter readout, known
+time offset, the marker board's length scale) — evaluated by re-fitting every throw's
+finished image-space fit (:func:`fitdrag.fit.image_refit.refit_views`).
+
+With several throws the measurand is the weighted mean of the throws' Cd with the weights of
+the statistical fit, ``w_i ∝ 1/u_i²`` held fixed (JCGM 100:2008 4.2: the estimate is a stated
+function of the inputs; the weights are part of that function, not inputs).
+
+Handed to :func:`fitdrag.uncertainty.gum.budget_from_model` and
+:func:`fitdrag.uncertainty.monte_carlo.monte_carlo`, which know nothing of cameras.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+
+from fitdrag.errors import ConvergenceError, InputError
+from fitdrag.fit.image_refit import refit_views
+from fitdrag.geometry.camera import Camera, rotation_from_vector
+from fitdrag.geometry.views import CameraView
+from fitdrag.physics.air import Air
+from fitdrag.physics.specimen import Body, Sphere
+
+__all__ = [
+    "CameraCalibration",
+    "ViewRefitModel",
+    "ViewThrow",
+    "combine_throws",
+    "view_input_names",
+]
+
+#: Inputs shared by every throw, and their units.
+COMMON_INPUTS = {
+    "mass": "kg",
+    "diameter": "m",
+    "area": "m²",
+    "volume": "m³",
+    "added_mass_coefficient": "",
+    "temperature": "°C",
+    "pressure": "Pa",
+    "relative_humidity": "%",
+    "air_density": "kg/m³",
+    "frame_rate": "Hz",
+    "length_scale": "",
+    "gravity": "m/s²",
+}
+
+
+@dataclass(frozen=True, eq=False)
+class CameraCalibration:
+    """What the budget needs to know of one camera's calibration in one throw.
+
+    Parameters
+    ----------
+    camera_id : str
+        Names the physical camera and lens (e.g. the lens file's name): views with the same
+        id share one focal-length and one readout-time input (the same lens file and data
+        sheet), each view keeps its own pose.
+    pose_covariance : array_like, shape (6, 6)
+        Covariance of the pose ``(rvec, t)`` from the marker board. [rad², rad m, m²]
+    focal_length_uncertainty : float
+        Standard uncertainty of the focal length ``fx`` (``fy`` moves in proportion), e.g.
+        the lens calibration's. [px]
+    time_offset_uncertainty : float
+        Standard uncertainty of a stated time offset (views after the first whose offset is
+        given, not fitted). [s]
+    marker_corners : mapping of int to (4, 2) array, optional
+        The marker corners the pose was found from (recorded image) [px]; with ``board``,
+        a changed focal length re-solves the pose from them, as the calibration would have.
+    board : MarkerBoard, optional
+        The marker board of ``marker_corners``.
+    pose_focal_derivative : array_like, shape (6,), optional
+        Without the corners: ``d(rvec, t) / d ln f`` of the re-solved pose (e.g. from a track
+        file's header), applied to first order; with neither, the pose is held (which
+        overstates the focal length's effect). [rad, m]
+    """
+
+    camera_id: str
+    pose_covariance: Any
+    focal_length_uncertainty: float = 0.0
+    time_offset_uncertainty: float = 0.0
+    marker_corners: Mapping[int, Any] | None = None
+    board: Any = None
+    pose_focal_derivative: Any = None
+
+    def __post_init__(self) -> None:
+        cov = np.asarray(self.pose_covariance, float)
+        if cov.shape != (6, 6) or not np.all(np.isfinite(cov)):
+            raise InputError(
+                f"pose_covariance: expected a finite 6x6 matrix of (rvec [rad], t [m]), got "
+                f"shape {cov.shape}; take it from camera_pose_from_markers(...).covariance."
+            )
+        object.__setattr__(self, "pose_covariance", 0.5 * (cov + cov.T))
+        for name in ("focal_length_uncertainty", "time_offset_uncertainty"):
+            v = getattr(self, name)
+            if not (isinstance(v, int | float) and math.isfinite(v) and v >= 0):
+                raise InputError(f"{name}: expected a standard uncertainty >= 0, got {v!r}.")
+
+
+@dataclass(frozen=True, eq=False)
+class ViewThrow:
+    """One throw of a 3-D measurement: its views, their calibrations and its fit.
+
+    Parameters
+    ----------
+    views : sequence of CameraView
+        The cameras' observations, as fitted.
+    calibrations : sequence of CameraCalibration
+        One per view.
+    result : ViewFitResult
+        The converged fit of ``views``.
+    label : str
+        A name for messages.
+    """
+
+    views: Sequence[CameraView]
+    calibrations: Sequence[CameraCalibration]
+    result: Any
+    label: str = ""
+    _pose_dirs: list = field(default_factory=list, repr=False)
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "views", tuple(self.views))
+        object.__setattr__(self, "calibrations", tuple(self.calibrations))
+        if len(self.views) != len(self.calibrations):
+            raise InputError(
+                f"calibrations: one per view is needed, got {len(self.calibrations)} for "
+                f"{len(self.views)} views."
+            )
+        if not getattr(self.result, "success", False):
+            raise InputError(f"result: the fit of throw {self.label!r} did not converge.")
+
+
+def view_input_names(throws: Sequence[ViewThrow]) -> dict[str, tuple[str, str]]:
+    """The camera inputs of a set of throws: name -> (unit, description).
+
+    ``pose_<t>_<v>`` for the pose of view v of throw t (one line along the pose's direction
+    of greatest effect, see :class:`ViewRefitModel`), ``focal_length_<c>`` [relative],
+    ``readout_time_<c>`` [s] for camera c (numbered in order of first appearance of its
+    ``camera_id``), ``time_offset_<t>_<v>`` [s] for a stated offset.
+    """
+    out: dict[str, tuple[str, str]] = {}
+    ids = _camera_ids(throws)
+    for t, th in enumerate(throws, start=1):
+        for v, (view, cal) in enumerate(zip(th.views, th.calibrations), start=1):
+            out[f"pose_{t}_{v}"] = ("", f"pose of camera {view.name or v} in throw {t} "
+                                        f"(board PnP covariance; 1 = one standard deviation "
+                                        f"along its direction of greatest effect)")  # fmt: skip
+            c = ids.index(cal.camera_id) + 1
+            out.setdefault(f"focal_length_{c}", ("", f"focal length of {cal.camera_id} "
+                                                     f"(relative, nominal 1)"))  # fmt: skip
+            out.setdefault(f"readout_time_{c}", ("s", f"rolling-shutter readout of "
+                                                      f"{cal.camera_id}"))  # fmt: skip
+            if v > 1 and not th.result.views[v - 1].offset_estimated:
+                out[f"time_offset_{t}_{v}"] = ("s", f"stated time offset of view {v} in "
+                                                    f"throw {t}")  # fmt: skip
+    return out
+
+
+def _camera_ids(throws) -> list[str]:
+    ids: list[str] = []
+    for th in throws:
+        for cal in th.calibrations:
+            if cal.camera_id not in ids:
+                ids.append(cal.camera_id)
+    return ids
+
+
+def combine_throws(cds: Sequence[float], u_stats: Sequence[float], dofs: Sequence[float]):
+    """The weighted mean of the throws' Cd, its statistical standard uncertainty and dof.
+
+    Weights ``w_i = u_i⁻² / Σ u_j⁻²``.  The internal uncertainty ``(Σ u_i⁻²)^-½`` is
+    compared with the scatter of the throws by the Birge ratio
+    ``R_B = sqrt(Σ (Cd_i − mean)² / u_i² / (n − 1))`` (Birge, Phys. Rev. 40, 207, 1932;
+    Kacker et al., Metrologia 45, 512, 2008): when the throws scatter more than their own
+    uncertainties say (R_B > 1), the uncertainty is multiplied by R_B with n − 1 degrees of
+    freedom; otherwise the dof are those of the fits (Welch–Satterthwaite).
+
+    Parameters
+    ----------
+    cds, u_stats : sequence of float
+        Each throw's Cd and statistical standard uncertainty. [-]
+    dofs : sequence of float
+        Each throw's effective degrees of freedom.
+
+    Returns
+    -------
+    (weights, mean, u, dof, birge_ratio)
+    """
+    cd = np.asarray(cds, float)
+    u = np.asarray(u_stats, float)
+    if cd.size == 0 or cd.shape != u.shape or not np.all(np.isfinite(u)) or np.any(u <= 0):
+        raise InputError(
+            f"u_stats: expected one finite uncertainty > 0 per throw, got {u_stats!r}."
+        )
+    w = u**-2 / np.sum(u**-2)
+    mean = float(w @ cd)
+    u_int = float(np.sum(u**-2) ** -0.5)
+    n = cd.size
+    if n < 2:
+        return w, mean, u_int, float(dofs[0]), math.nan
+    birge = float(math.sqrt(np.sum(((cd - mean) / u) ** 2) / (n - 1)))
+    if birge > 1.0:
+        return w, mean, u_int * birge, float(n - 1), birge
+    nu = np.asarray(dofs, float)
+    ws = float(u_int**4 / np.sum((w * u) ** 4 / nu)) if np.all(nu > 0) else math.inf
+    return w, mean, u_int, ws, birge
+
+
+class ViewRefitModel:
+    """Cd (the weighted mean over throws) as a function of the inputs, by re-fitting.
+
+    Inputs (missing names take their nominal values):
+
+    * ``mass`` [kg], ``diameter`` [m] (sphere; also the size of the outline the cameras see)
+      or ``area`` [m²] and ``volume`` [m³] (body), ``added_mass_coefficient`` [-];
+    * ``temperature`` [°C], ``pressure`` [Pa], ``relative_humidity`` [%], or
+      ``air_density`` [kg/m³]; ``gravity`` [m/s²];
+    * ``frame_rate`` [Hz]: every view's frame rate (frames were timed with the nominal);
+    * ``length_scale`` [-]: a factor (nominal 1) on the marker board's size, hence on every
+      camera's translation (PnP on a board scaled by s gives t·s, R unchanged);
+    * ``pose_<t>_<v>`` [-] (nominal 0, u = 1): the pose of view v of throw t moved by that
+      many standard deviations along ``d = Σ g / sqrt(gᵀ Σ g)``, with Σ the pose covariance
+      and g the gradient of Cd in the pose (found by re-fits when the model is built).  To
+      first order this one line carries the pose's whole contribution ``sqrt(gᵀ Σ g)``
+      (JCGM 100:2008 5.2.2 with the covariance), without one line per pose component;
+    * ``focal_length_<c>`` [-] (nominal 1): fx and fy of camera c times this factor, each
+      pose re-solved from its marker corners when they are known (as the calibration would
+      have given it); ``readout_time_<c>`` [s];
+    * ``time_offset_<t>_<v>`` [s]: a stated time offset.
+
+    Parameters
+    ----------
+    throws : sequence of ViewThrow
+    nominal : mapping
+        Nominal value of every common input used (names of :data:`COMMON_INPUTS`); the
+        camera inputs take their nominal values from the views.
+    length : float, optional
+        Reynolds reference length of a body (kept fixed). [m]
+    viscosity : float, optional
+        Air viscosity to use with ``air_density`` (kept fixed). [Pa s]
+    weights : sequence of float, optional
+        Weights of the throws' Cd (default ``u_i⁻²``, normalised).
+    """
+
+    def __init__(self, throws: Sequence[ViewThrow], nominal: Mapping[str, float], *,
+                 length=None, viscosity=None, weights=None):  # fmt: skip
+        self.throws = list(throws)
+        if not self.throws:
+            raise InputError("throws: at least one throw is needed.")
+        unknown = sorted(k for k in nominal if k not in COMMON_INPUTS)
+        if unknown:
+            raise InputError(
+                f"nominal: unknown input name(s) {unknown}; use names from "
+                f"{', '.join(COMMON_INPUTS)} (camera inputs take their values from the views)."
+            )
+        self.camera_names = view_input_names(self.throws)
+        self.camera_ids = _camera_ids(self.throws)
+        self.nominal = dict(nominal)
+        for name in self.camera_names:
+            self.nominal[name] = self._camera_nominal(name)
+        self.length = length
+        self.viscosity = viscosity
+        if weights is None:
+            weights, *_ = combine_throws([t.result.cd for t in self.throws],
+                                         [t.result.u_cd for t in self.throws],
+                                         [t.result.dof for t in self.throws])  # fmt: skip
+        self.weights = np.asarray(weights, float)
+        self._pose_direction: dict[str, np.ndarray] = {}
+        for t, th in enumerate(self.throws, start=1):
+            for v in range(1, len(th.views) + 1):
+                self._pose_direction[f"pose_{t}_{v}"] = self._direction(t, v)
+
+    # -- nominal values and uncertainties of the camera inputs ---------------------------
+    def _camera_nominal(self, name: str) -> float:
+        if name.startswith("pose_"):
+            return 0.0
+        if name.startswith("focal_length_"):
+            return 1.0
+        if name.startswith("readout_time_"):
+            cam = self._camera_of(int(name.rsplit("_", 1)[1]))
+            return float(cam.readout_time)
+        t, v = (int(x) for x in name.split("_")[2:4])
+        return float(self.throws[t - 1].views[v - 1].time_offset or 0.0)
+
+    def _camera_of(self, c: int) -> Camera:
+        cid = self.camera_ids[c - 1]
+        for th in self.throws:
+            for view, cal in zip(th.views, th.calibrations):
+                if cal.camera_id == cid:
+                    return view.camera
+        raise KeyError(cid)  # pragma: no cover - names come from the same throws
+
+    def camera_uncertainties(self) -> dict[str, float]:
+        """Standard uncertainty of every camera input, by name (units of
+        :func:`view_input_names`)."""
+        out: dict[str, float] = {}
+        for name in self.camera_names:
+            if name.startswith("pose_"):
+                out[name] = 1.0 if np.any(self._pose_direction[name]) else 0.0
+            elif name.startswith(("focal_length_", "readout_time_")):
+                c = int(name.rsplit("_", 1)[1])
+                cam = self._camera_of(c)
+                cal = self._calibration_of(c)
+                out[name] = (cal.focal_length_uncertainty / cam.fx
+                             if name.startswith("focal") else cam.readout_time_uncertainty)  # fmt: skip
+            else:
+                t, v = (int(x) for x in name.split("_")[2:4])
+                out[name] = self.throws[t - 1].calibrations[v - 1].time_offset_uncertainty
+        return out
+
+    def _calibration_of(self, c: int) -> CameraCalibration:
+        cid = self.camera_ids[c - 1]
+        for th in self.throws:
+            for cal in th.calibrations:
+                if cal.camera_id == cid:
+                    return cal
+        raise KeyError(cid)  # pragma: no cover
+
+    # -- the pose's direction of greatest effect -------------------------------------------
+    def _direction(self, t: int, v: int) -> np.ndarray:
+        """``Σ g / sqrt(gᵀ Σ g)`` for the pose of view v of throw t (zeros if no effect)."""
+        th = self.throws[t - 1]
+        cov = th.calibrations[v - 1].pose_covariance
+        sd = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+        if not np.any(sd > 0):
+            return np.zeros(6)
+        base = self._throw_cd(th, t, self.nominal)
+        g = np.zeros(6)
+        for k in range(6):
+            if sd[k] == 0:
+                continue
+            step = np.zeros(6)
+            step[k] = sd[k]
+            up = self._throw_cd(th, t, self.nominal, pose_delta={v: step})
+            dn = self._throw_cd(th, t, self.nominal, pose_delta={v: -step})
+            g[k] = (up - dn) / (2.0 * sd[k])
+        del base
+        q = float(g @ cov @ g)
+        if not q > 0:
+            return np.zeros(6)
+        return cov @ g / math.sqrt(q)
+
+    # -- building the changed inputs -------------------------------------------------------
+    def specimen(self, v):
+        sp0 = self.throws[0].result.specimen
+        ca = v.get("added_mass_coefficient", sp0.added_mass_coefficient)
+        if "diameter" in v:
+            return Sphere(v["mass"], v["diameter"], added_mass_coefficient=ca)
+        if "area" in v:
+            return Body(v["mass"], v["area"], v["volume"], length=self.length,
+                        added_mass_coefficient=ca)  # fmt: skip
+        if "mass" in v:
+            return replace(sp0, mass=v["mass"], added_mass_coefficient=ca)
+        return None
+
+    def air(self, v):
+        if "air_density" in v:
+            kw = {} if self.viscosity is None else {"viscosity": self.viscosity}
+            return Air(v["air_density"], **kw)
+        if "temperature" in v:
+            return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
+        return None
+
+    def _views(self, th: ViewThrow, t: int, v: Mapping[str, float], pose_delta=None):
+        f0 = self.nominal.get("frame_rate")
+        scale = v.get("length_scale", 1.0)
+        out = []
+        for k, (view, cal) in enumerate(zip(th.views, th.calibrations), start=1):
+            c = self.camera_ids.index(cal.camera_id) + 1
+            cam = view.camera
+            focal = v.get(f"focal_length_{c}", 1.0)
+            readout = v.get(f"readout_time_{c}", cam.readout_time)
+            if focal != 1.0:
+                cam = _with_focal(cam, focal, cal)
+            delta = self._pose_direction.get(f"pose_{t}_{k}", np.zeros(6)) * v.get(
+                f"pose_{t}_{k}", 0.0
+            )
+            if pose_delta and k in pose_delta:
+                delta = delta + pose_delta[k]
+            if np.any(delta) or scale != 1.0:
+                rvec = cam.rvec + delta[:3]
+                cam = cam.with_pose(
+                    rotation_from_vector(rvec), (cam.translation + delta[3:]) * scale
+                )
+            if readout != cam.readout_time:
+                cam = replace(cam, readout_time=max(float(readout), 0.0))
+            changes: dict[str, Any] = {}
+            if cam is not view.camera:
+                changes["camera"] = cam
+            if f0 is not None and v.get("frame_rate", f0) != f0:
+                changes["fps"] = view.fps * v["frame_rate"] / f0
+            off_name = f"time_offset_{t}_{k}"
+            if off_name in v and v[off_name] != view.time_offset:
+                changes["time_offset"] = v[off_name]
+            out.append(replace(view, **changes) if changes else view)
+        return out
+
+    def _throw_cd(self, th: ViewThrow, t: int, v, pose_delta=None) -> float:
+        r = refit_views(
+            th.result,
+            self._views(th, t, v, pose_delta),
+            specimen=self.specimen(v),
+            air=self.air(v),
+            gravity=v.get("gravity"),
+        )
+        if not r.success:
+            raise ConvergenceError(f"the re-fit of throw {th.label or t} did not converge")
+        return r.cd
+
+    def __call__(self, values) -> float:
+        v = dict(self.nominal)
+        v.update(values)
+        cds = [self._throw_cd(th, t, v) for t, th in enumerate(self.throws, start=1)]
+        return float(self.weights @ np.asarray(cds))
+
+
+def _with_focal(cam: Camera, factor: float, cal: CameraCalibration) -> Camera:
+    """The camera with fx, fy times ``factor``; its pose re-solved from the marker corners
+    when they are known (the calibration's own response to a different focal length)."""
+    new = replace(cam, fx=cam.fx * factor, fy=cam.fy * factor)
+    if cal.marker_corners is not None and cal.board is not None:
+        from fitdrag.geometry.pose import camera_pose_from_markers
+
+        return camera_pose_from_markers(cal.marker_corners, cal.board, new).camera
+    if cal.pose_focal_derivative is not None:
+        d = np.asarray(cal.pose_focal_derivative, float) * math.log(factor)
+        return new.with_pose(rotation_from_vector(cam.rvec + d[:3]), cam.translation + d[3:])
+    return new
