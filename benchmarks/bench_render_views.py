@@ -44,7 +44,7 @@ def main() -> None:
     n = ap.parse_args().frames
     offset = 0.37 / FPS
     t = np.linspace(-0.001, (n + 2) / FPS, 4 * n)
-    launch = Launch3D.from_speed_angles(9.0, math.radians(10.0), math.radians(1.5))
+    launch = Launch3D.from_speed_angles(9.0, 10.0, 1.5)  # degrees
     launch = Launch3D(0.0, 0.7, 0.1, launch.vx0, launch.vy0, launch.vz0)
     flight = simulate_3d(t, launch, Sphere(0.024, 0.065), Conditions(Air(1.2)), drag_params=0.5,
                          t0=t[0])  # fmt: skip

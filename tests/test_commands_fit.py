@@ -224,3 +224,95 @@ def test_reynolds_dependent_model_also_writes_cd_against_re(track_file, tmp_path
     assert extra.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     png.unlink()
     assert run_fit(track_file, "--model", "power-law", "--plot", png) == 2  # extra exists
+
+
+# ------------------------------------------------------------------------------------------
+# Track files with a camera: the views of one throw, fitted in 3-D
+# ------------------------------------------------------------------------------------------
+
+
+def camera_track_file(path: Path, view) -> Path:
+    """A track CSV as fitdrag track writes it with a camera, from a synthetic CameraView of
+    tests/views_reference.py (no outline columns: two cameras need no diameters)."""
+    from fitdrag.geometry.footage_view import camera_header
+    from fitdrag.video.tracking import track_csv_text
+
+    cam = view.camera
+    world = cam.pixel_to_plane(view.pixels, 0.0, undistorted=False)
+    n = len(view)
+    meta = {"fps": view.fps, **camera_header(cam, 0, np.eye(6) * 1e-10).to_lines()}
+    path.write_text(track_csv_text(meta, view.frames, view.frames / view.fps, world[:, 0],
+                                   world[:, 1], view.u, view.v, np.full(n, 0.9),
+                                   np.full(n, 0.3)), encoding="utf-8")  # fmt: skip
+    return path
+
+
+@pytest.fixture(scope="module")
+def camera_files(tmp_path_factory):
+    import views_reference as vr
+
+    d = tmp_path_factory.mktemp("cams")
+    rng = np.random.default_rng(4)
+    th = vr.launch(2.0)
+    views = [vr.observe(vr.camera_at(yaw), th, offset=1.3e-3 * i, rng=rng, sigma=0.3)
+             for i, yaw in enumerate((-20.0, 20.0))]  # fmt: skip
+    return [camera_track_file(d / f"{name}.csv", v) for name, v in zip("ab", views)]
+
+
+VIEW_ARGS = ["--mass", "24g", "--diameter", "65mm", "--air-density", "1.2"]
+
+
+def test_camera_track_files_are_fitted_in_3d(camera_files, tmp_path, capsys):
+    """closed-form/independent: two cameras' track files (header with the camera, synthetic
+    throw 2° out of the board plane, true Cd 0.50, second camera 1.3 ms late) are fitted as
+    one throw in 3-D: |Cd − 0.50| <= U, the out-of-plane angle within 0.1° of 2°, the offset
+    found within 0.1 frame when not given; the summary and the JSON report the views; the
+    command gives what the library call gives."""
+    from fitdrag.fit.track_views import fit_track_views
+
+    out = tmp_path / "r.json"
+    rc = main(["fit", *map(str, camera_files), *VIEW_ARGS, "--json", str(out)])
+    text = capsys.readouterr().out
+    assert rc == 0, text
+    d = json.loads(out.read_text())
+    cd = d["drag_coefficient"]
+    assert abs(cd["value"] - 0.5) <= cd["expanded_uncertainty"]
+    assert abs(d["out_of_plane_angle_deg"]["value"] - 2.0) < 0.1
+    v2 = d["views"][1]
+    assert v2["time_offset_estimated"] and abs(v2["time_offset_s"]["value"] - 1.3e-3) < 0.2e-3
+    assert [i["source"] for i in d["inputs"]] == list(map(str, camera_files))
+    assert d["inputs"][0]["sha256"] == hashlib.sha256(camera_files[0].read_bytes()).hexdigest()
+    assert text.startswith("3-D fit converged; model: constant; views: 2")
+    assert "view 1 (a.csv): residual RMS" in text and "time reference" in text
+    assert "(estimated)" in text and "out of the board plane" in text
+    lib = fit_track_views([read_track(p) for p in camera_files], Sphere(0.024, 0.065), Air(1.2))
+    assert lib.cd == cd["value"]
+    rc = main(["fit", *map(str, camera_files), *VIEW_ARGS, "--time-offset", "1.3ms"])
+    text = capsys.readouterr().out
+    assert rc == 0 and "time offset 1.3 ms (given)" in text
+
+
+def test_camera_track_files_refusals(camera_files, track_file, capsys):
+    """regression: files with and without a camera mixed, --time-offset for planar tracks or
+    in the wrong number, and --plot with camera files exit 2 with messages naming the input,
+    the value and the fix."""
+    a, b = map(str, camera_files)
+    cases = [
+        ([a, str(track_file)],
+         f"tracks: track {track_file} state(s) no camera while the others do; the views of one "
+         f"throw each need their camera (fitdrag track --markers SIZE_M --marker-layout FILE "
+         f"--lens LENS.json), and planar tracks are fitted on their own."),
+        ([str(track_file), "--time-offset", "1ms"],
+         "--time-offset: it applies to track files with a camera (the views of one throw); "
+         "these files state none; leave it out."),
+        ([a, b, "--time-offset", "1ms", "--time-offset", "estimate"],
+         "--time-offset: given 2 time(s) for 1 view(s) after the first; give one per further "
+         "track file, in order ('estimate' for one the fit should find), or leave it out."),
+        ([a, b, "--plot", "p.png"],
+         "--plot: not available for track files with a camera (the 3-D fit); leave it out and "
+         "use --json."),
+    ]  # fmt: skip
+    for args, message in cases:
+        rc = main(["fit", *args, *VIEW_ARGS])
+        err = capsys.readouterr().err
+        assert rc == 2 and message in err, err

@@ -112,11 +112,11 @@ def test_footage_without_the_board_names_the_view(rendered, tmp_path):
         measure(load_job(path))
 
 
-def test_views_from_track_files(rendered):
+def test_views_from_track_files(rendered, two_camera):
     """closed-form/independent: the same two cameras given as track files written by
-    `fitdrag track --lens --readout-time` (the camera in their headers): the true Cd lies
-    within Cd ± U, and the result agrees with the footage job's within its statistical
-    uncertainty (same centroids, same cameras)."""
+    `fitdrag track --lens --readout-time` (the camera in their headers, with the pose's
+    derivative in the focal length): the true Cd lies within Cd ± U, and Cd and U agree
+    with the footage job's (same centroids, same cameras, same budget lines)."""
     from fitdrag.cli import main
 
     folder, files = rendered
@@ -141,3 +141,8 @@ def test_views_from_track_files(rendered):
     assert abs(res.drag_coefficient - SCENARIO.cd) <= res.expanded_uncertainty
     assert [f.path for f in meas.content.footage] == [str(folder / "left.csv"),
                                                       str(folder / "right.csv")]  # fmt: skip
+    ref = two_camera[1].content.result
+    assert res.drag_coefficient == pytest.approx(
+        ref.drag_coefficient, abs=0.1 * ref.statistical_standard_uncertainty
+    )
+    assert res.expanded_uncertainty == pytest.approx(ref.expanded_uncertainty, rel=0.05)

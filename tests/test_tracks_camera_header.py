@@ -30,7 +30,7 @@ def header(**kw):
 def test_lines_read_back_exactly():
     """closed-form/independent: to_lines writes every number with repr, so from_lines gives
     back the same doubles (Python's shortest repr round trip); keys in CAMERA_KEYS order."""
-    h = header()
+    h = header(pose_focal_derivative=[1e-5, -2e-5, 3e-6, 0.0021, -0.0013, 3.4])
     lines = h.to_lines()
     assert tuple(lines) == CAMERA_KEYS
     assert lines["camera_image_size_px"] == "1280 800"
@@ -42,11 +42,13 @@ def test_lines_read_back_exactly():
     assert back.distortion == h.distortion and back.image_size == (1280, 800)
     assert (back.readout_time, back.readout_time_uncertainty, back.marker_frame) == (
         1.2e-3, 1e-4, 3)  # fmt: skip
+    np.testing.assert_array_equal(back.pose_focal_derivative, h.pose_focal_derivative)
     no_frame = header(marker_frame=None, distortion=())
     lines = no_frame.to_lines()
     assert "camera_marker_frame" not in lines and lines["camera_distortion"] == ""
     back = CameraHeader.from_lines(lines)
     assert back.marker_frame is None and back.distortion == ()
+    assert back.pose_focal_derivative is None  # optional: files without it still read
     assert CameraHeader.from_lines({"fps": "500"}) is None
 
 

@@ -14,7 +14,7 @@ from fitdrag.commands._options import (
     quantity,
     specimen_from_args,
 )
-from fitdrag.errors import OutputExistsError
+from fitdrag.errors import InputError, OutputExistsError
 
 NAME = "fit"
 
@@ -24,6 +24,14 @@ Examples:
       --humidity 45 --json result.json --plot fit.png
   fitdrag fit throw1.csv throw2.csv throw3.csv --mass 0.0027 --diameter 0.040 \\
       --air-density 1.19          # three throws sharing one Cd
+  fitdrag fit left.csv right.csv --mass 24g --diameter 65mm --air-density 1.2 \\
+      --time-offset 1.1ms         # one throw seen by two cameras, fitted in 3-D
+
+Track files from `fitdrag track` with --markers, --marker-layout and --lens state their
+camera (camera_ header lines): such files are the views of ONE throw, one per camera (the
+first is the time reference), fitted in 3-D in each camera's pixels; --time-offset gives each
+further view's frame 0 minus the first's (repeat it per view; 'estimate' to leave one to the
+fit; default all estimated). Files with and without a camera cannot be mixed.
 
 Exit codes: 0 fitted, 1 a bug (with a traceback), 2 bad arguments or input, 3 the fit did
 not converge (the JSON is still written, with "success": false).
@@ -44,7 +52,8 @@ def register(sub) -> argparse.ArgumentParser:
     add_track_fit_inputs(p)
     f = p.add_argument_group("fit")
     f.add_argument("--robust", action=argparse.BooleanOptionalAction, default=True,
-                   help="robust loss and rejection of gross outliers (default on)")  # fmt: skip
+                   help="robust loss and rejection of gross outliers (default on; planar "
+                   "tracks only)")  # fmt: skip
     f.add_argument("--noise", choices=("auto", "white", "ar1"), default="auto",
                    help="noise model: auto detects serially correlated residuals (default)")  # fmt: skip
     f.add_argument("--model", default="constant", metavar="NAME",
@@ -54,6 +63,10 @@ def register(sub) -> argparse.ArgumentParser:
                    help="known constant horizontal wind along +x [m/s] (default still air)")  # fmt: skip
     f.add_argument("--coverage-factor", type=float, default=None, metavar="K",
                    help="force the coverage factor k (default 2, Student-t for few points)")  # fmt: skip
+    f.add_argument("--time-offset", action="append", type=_offset, default=None, metavar="S",
+                   help="track files with a camera: frame 0 of the next view minus that of "
+                   "the first [s] (or e.g. 1.1ms, or 'estimate'); once per view after the "
+                   "first, in order (default: estimated from the data)")  # fmt: skip
     o = p.add_argument_group("output")
     o.add_argument("--json", metavar="OUT.json", help="write the result as JSON")
     o.add_argument("--plot", metavar="OUT.png",
@@ -61,6 +74,16 @@ def register(sub) -> argparse.ArgumentParser:
                    "also OUT_cd_vs_re.png (Cd against Re with its band)")  # fmt: skip
     o.add_argument("--force", action="store_true", help="overwrite existing output files")
     return p
+
+
+def _offset(text: str) -> float | None:
+    """--time-offset: a time [s] (with a unit or not), or 'estimate' (None)."""
+    if text.strip().lower() == "estimate":
+        return None
+    return quantity("s")(text)
+
+
+_offset.__name__ = "time [s] or 'estimate'"
 
 
 def _cd_plot_path(plot: str) -> Path:
@@ -137,13 +160,86 @@ def format_summary(result) -> str:
     return "\n".join(lines)
 
 
+def format_view_summary(result) -> str:
+    """A readable text summary of a 3-D fit of one throw's camera views (for the terminal)."""
+    r = result
+    status = "converged" if r.success else f"DID NOT CONVERGE ({r.message})"
+    lines = [
+        f"3-D fit {status}; model: {r.model}; views: {len(r.views)}; noise model "
+        f"{'AR(1)' if r.noise_model == 'ar1' else 'white'}",
+        f"  drag coefficient Cd = {r.cd:.5g}   u = {r.u_cd:.2g}   U = "
+        f"{r.expanded_uncertainty:.2g} (k = {r.coverage_factor:.3g}, statistical only)",
+        f"  flight {r.out_of_plane_angle:+.3g}° ± {r.out_of_plane_angle_uncertainty:.2g}° out of "
+        f"the board plane (towards the camera +); depth z {r.depth_range[0]:.4g} to "
+        f"{r.depth_range[1]:.4g} m",
+        f"  Reynolds number {r.reynolds_range[0]:.3g} to {r.reynolds_range[1]:.3g}",
+    ]
+    if "lift_coefficient" in r.parameter_names:
+        lc, u = r.parameter("lift_coefficient")
+        lines.append(f"  lift coefficient CL = {lc:.4g} ± {u:.2g}")
+    for i, v in enumerate(r.views):
+        if i == 0:
+            off = "time reference"
+        elif v.offset_estimated:
+            off = (f"time offset {1e3 * v.time_offset:.4g} ms ± "
+                   f"{1e3 * v.time_offset_uncertainty:.2g} ms (estimated)")  # fmt: skip
+        else:
+            off = f"time offset {1e3 * v.time_offset:.4g} ms (given)"
+        diam = "diameters used" if v.diameter_used else "no diameters"
+        lines.append(
+            f"  view {i + 1} ({v.name}): residual RMS {v.residual_rms:.3g} px; {off}; {diam}; "
+            f"{v.distance:.3g} m from the flight"
+        )
+    return "\n".join(lines)
+
+
+def _run_views(args, tracks, specimen, conditions) -> int:
+    from fitdrag.fit.track_views import fit_track_views, view_fit_dict
+
+    if args.plot:
+        raise InputError(
+            "--plot: not available for track files with a camera (the 3-D fit); leave it out "
+            "and use --json."
+        )
+    if args.time_offset is not None and len(args.time_offset) != len(tracks) - 1:
+        raise InputError(
+            f"--time-offset: given {len(args.time_offset)} time(s) for {len(tracks) - 1} "
+            f"view(s) after the first; give one per further track file, in order ('estimate' "
+            f"for one the fit should find), or leave it out."
+        )
+    result = fit_track_views(
+        tracks, specimen, conditions.air, time_offsets=args.time_offset,
+        gravity=conditions.gravity, model=args.model, lift=args.lift,
+        wind=(args.wind, 0.0, 0.0), buoyancy=conditions.buoyancy, noise=args.noise,
+        coverage_factor=args.coverage_factor,
+    )  # fmt: skip
+    print(format_view_summary(result))
+    if args.json:
+        path = Path(args.json)
+        text = json.dumps(view_fit_dict(result, tracks), indent=2, allow_nan=False)
+        _write_atomic(path, lambda p: p.write_text(text + "\n", encoding="utf-8"))
+        print(f"wrote {path}")
+    if not result.success:
+        print(f"fitdrag fit: the fit failed: {result.message}", file=sys.stderr)
+        return 3
+    return 0
+
+
 def run(args) -> int:
     from fitdrag.fit.fitting import fit_tracks
+    from fitdrag.geometry.footage_view import track_has_camera
 
     _check_outputs(args)
     specimen = specimen_from_args(args)
     conditions = conditions_from_args(args, wind=args.wind)
     tracks = read_tracks_from_args(args.tracks, args)
+    if any(track_has_camera(t) for t in tracks):
+        return _run_views(args, tracks, specimen, conditions)
+    if args.time_offset is not None:
+        raise InputError(
+            "--time-offset: it applies to track files with a camera (the views of one throw); "
+            "these files state none; leave it out."
+        )
     result = fit_tracks(
         tracks, specimen, conditions.air, gravity=conditions.gravity, model=args.model,
         lift=args.lift, wind=args.wind, buoyancy=conditions.buoyancy, robust=args.robust,

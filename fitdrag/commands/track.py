@@ -218,14 +218,19 @@ def run(args) -> int:
     )
     pose = None
     if with_camera:
-        from fitdrag.geometry.footage_view import camera_from_footage, camera_header
+        from fitdrag.geometry.footage_view import (
+            camera_from_footage,
+            camera_header,
+            pose_focal_derivative,
+        )
 
-        _camera, pose = camera_from_footage(
+        camera, pose = camera_from_footage(
             ft,
             readout_time=args.readout_time or 0.0,
             readout_time_uncertainty=args.readout_time_uncertainty or 0.0,
         )
-    header = None if pose is None else camera_header(pose, ft.marker_frame)
+        focal = pose_focal_derivative(ft, camera)
+    header = None if pose is None else camera_header(pose, ft.marker_frame, focal_derivative=focal)
     text = footage_track_csv_text(ft, camera=header)
     _write_atomic(
         out,

@@ -76,6 +76,10 @@ class CameraCalibration:
         a changed focal length re-solves the pose from them, as the calibration would have.
     board : MarkerBoard, optional
         The marker board of ``marker_corners``.
+    pose_focal_derivative : array_like, shape (6,), optional
+        Without the corners: ``d(rvec, t) / d ln f`` of the re-solved pose (e.g. from a track
+        file's header), applied to first order; with neither, the pose is held (which
+        overstates the focal length's effect). [rad, m]
     """
 
     camera_id: str
@@ -84,6 +88,7 @@ class CameraCalibration:
     time_offset_uncertainty: float = 0.0
     marker_corners: Mapping[int, Any] | None = None
     board: Any = None
+    pose_focal_derivative: Any = None
 
     def __post_init__(self) -> None:
         cov = np.asarray(self.pose_covariance, float)
@@ -421,8 +426,11 @@ def _with_focal(cam: Camera, factor: float, cal: CameraCalibration) -> Camera:
     """The camera with fx, fy times ``factor``; its pose re-solved from the marker corners
     when they are known (the calibration's own response to a different focal length)."""
     new = replace(cam, fx=cam.fx * factor, fy=cam.fy * factor)
-    if cal.marker_corners is None or cal.board is None:
-        return new
-    from fitdrag.geometry.pose import camera_pose_from_markers
+    if cal.marker_corners is not None and cal.board is not None:
+        from fitdrag.geometry.pose import camera_pose_from_markers
 
-    return camera_pose_from_markers(cal.marker_corners, cal.board, new).camera
+        return camera_pose_from_markers(cal.marker_corners, cal.board, new).camera
+    if cal.pose_focal_derivative is not None:
+        d = np.asarray(cal.pose_focal_derivative, float) * math.log(factor)
+        return new.with_pose(rotation_from_vector(cam.rvec + d[:3]), cam.translation + d[3:])
+    return new

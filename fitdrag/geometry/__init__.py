@@ -9,6 +9,8 @@ The stage between footage (:mod:`fitdrag.video`) and the fit (:mod:`fitdrag.fit`
   corners) with its covariance;
 * :mod:`fitdrag.geometry.views` - :class:`~fitdrag.geometry.views.CameraView` (one camera's
   observations of one throw) and the closed-form centre and width of a sphere's image outline.
+* :mod:`fitdrag.geometry.footage_view` - the camera that took tracked footage (lens, pose from
+  its markers, readout) and its view, directly or through the track CSV's camera header;
 * :mod:`fitdrag.geometry.sphere_image` - the exact image outline of a sphere (vectorised) and
   the supersampled coverage kernel;
 * :mod:`fitdrag.geometry.render_views` - synthetic perspective footage of a flying sphere per

@@ -32,6 +32,7 @@ from __future__ import annotations
 import math
 import os
 from collections.abc import Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -311,8 +312,38 @@ def view_from_footage(
 # ----------------------------------------------------------------------------- track files
 
 
+def pose_focal_derivative(ft: Any, camera: Camera, step: float = 1e-4) -> np.ndarray:
+    """How the pose PnP finds from the footage's markers changes with the focal length:
+    ``d(rvec, t) / d ln f`` by a central difference of re-solved poses with fx and fy
+    times ``1 ± step`` (the pinhole model ties f to the board's apparent size, Hartley and
+    Zisserman 2004, eq. 6.1, so a longer focal length puts the camera further away).
+
+    Parameters
+    ----------
+    ft : FootageTrack
+        Footage tracked with markers and a layout (:func:`camera_from_footage`).
+    camera : Camera
+        Its camera (intrinsics and pose).
+    step : float
+        Relative step of the focal length. [1]
+
+    Returns
+    -------
+    ndarray, shape (6,)
+        [rad] x 3, then [m] x 3, per unit relative change of f.
+    """
+    cal = ft.calibration
+    board = MarkerBoard(cal.marker_size, cal.marker_layout)
+    poses = []
+    for sgn in (1.0, -1.0):
+        cam = replace(camera, fx=camera.fx * (1 + sgn * step), fy=camera.fy * (1 + sgn * step))
+        p = camera_pose_from_markers(list(cal.markers), board, cam).camera
+        poses.append(np.concatenate((p.rvec, p.translation)))
+    return (poses[0] - poses[1]) / (2.0 * step)
+
+
 def camera_header(pose: BoardPose | Camera, marker_frame: int | None = None,
-                  covariance: Any = None) -> CameraHeader:  # fmt: skip
+                  covariance: Any = None, focal_derivative: Any = None) -> CameraHeader:  # fmt: skip
     """The camera as the plain numbers of a track CSV's ``camera_`` header lines.
 
     Parameters
@@ -324,6 +355,8 @@ def camera_header(pose: BoardPose | Camera, marker_frame: int | None = None,
         The frame the pose was measured in. [1]
     covariance : array_like, shape (6, 6), optional
         Covariance of (rotation vector [rad], translation [m]) for a bare Camera.
+    focal_derivative : array_like, shape (6,), optional
+        :func:`pose_focal_derivative`. [rad, m]
     """
     if isinstance(pose, BoardPose):
         cam, cov = pose.camera, pose.covariance
@@ -349,6 +382,7 @@ def camera_header(pose: BoardPose | Camera, marker_frame: int | None = None,
         readout_time=cam.readout_time,
         readout_time_uncertainty=cam.readout_time_uncertainty,
         marker_frame=marker_frame,
+        pose_focal_derivative=focal_derivative,
     )
 
 

@@ -156,7 +156,11 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
                 time_offset_uncertainty=(
                     src.time_offset.uncertainty if (j > 0 and src.time_offset) else 0.0
                 ),
-                **({} if src.track is not None else _board_of(ft)),
+                **(
+                    _board_of(ft)
+                    if src.track is None
+                    else {"pose_focal_derivative": ft.track.meta["camera"].pose_focal_derivative}
+                ),
             )
             data = src.footage if src.track is None else src.track
             digest = footage_sha256(data) if src.track is None else file_sha256(data)

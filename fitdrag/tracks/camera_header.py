@@ -19,6 +19,11 @@ exactly)::
     # camera_readout_time_s: T                          (0 = global shutter)
     # camera_readout_time_uncertainty_s: u(T)
     # camera_marker_frame: N                            (the frame the pose was found in)
+    # camera_pose_focal_derivative: d1 ... d6           (optional: d(rvec, t) / d ln f)
+
+The last line is the change of the pose PnP gives when the focal length is a fraction larger
+(fx and fy together), per unit of that fraction: with it the budget moves the pose with a
+changed focal length as the calibration would have, without the marker corners.
 
 World frame: the marker board plane is z = 0, x along the board, y up, z towards the camera.
 Pose covariance units: [rad^2] for the rotation block, [rad m] across, [m^2] for the
@@ -49,7 +54,11 @@ CAMERA_KEYS = (
     "camera_readout_time_s",
     "camera_readout_time_uncertainty_s",
     "camera_marker_frame",
+    "camera_pose_focal_derivative",
 )
+
+#: Keys a camera header may leave out.
+OPTIONAL_KEYS = ("camera_marker_frame", "camera_pose_focal_derivative")
 
 #: Numbers each key holds (None: 0, 4, 5, 8 or 12 distortion coefficients).
 _COUNTS = {
@@ -62,6 +71,7 @@ _COUNTS = {
     "camera_readout_time_s": 1,
     "camera_readout_time_uncertainty_s": 1,
     "camera_marker_frame": 1,
+    "camera_pose_focal_derivative": 6,
 }
 _DISTORTION_COUNTS = (0, 4, 5, 8, 12)
 
@@ -102,6 +112,9 @@ class CameraHeader:
         Its standard uncertainty. [s]
     marker_frame : int or None
         The frame the markers (and so the pose) were measured in. [1]
+    pose_focal_derivative : array_like, shape (6,), optional
+        ``d(rotation_vector, translation) / d ln f``: the pose's change, re-solved from the
+        markers, per unit relative change of the focal length. [rad, m]
     """
 
     image_size: tuple[int, int]
@@ -113,6 +126,7 @@ class CameraHeader:
     readout_time: float = 0.0
     readout_time_uncertainty: float = 0.0
     marker_frame: int | None = None
+    pose_focal_derivative: Any = None
 
     def __post_init__(self) -> None:
         try:
@@ -148,6 +162,12 @@ class CameraHeader:
             object.__setattr__(self, name, x)
         if self.marker_frame is not None:
             object.__setattr__(self, "marker_frame", int(self.marker_frame))
+        if self.pose_focal_derivative is not None:
+            object.__setattr__(
+                self,
+                "pose_focal_derivative",
+                _array("pose_focal_derivative", self.pose_focal_derivative, (6,)),
+            )
 
     def to_lines(self) -> dict[str, str]:
         """The header lines' keys and values (floats with ``repr``), in :data:`CAMERA_KEYS`
@@ -168,6 +188,8 @@ class CameraHeader:
         }
         if self.marker_frame is not None:
             out["camera_marker_frame"] = str(self.marker_frame)
+        if self.pose_focal_derivative is not None:
+            out["camera_pose_focal_derivative"] = nums(self.pose_focal_derivative)
         return out
 
     @classmethod
@@ -190,7 +212,7 @@ class CameraHeader:
         present = [k for k in CAMERA_KEYS if k in header]
         if not present:
             return None
-        needed = [k for k in CAMERA_KEYS if k != "camera_marker_frame"]
+        needed = [k for k in CAMERA_KEYS if k not in OPTIONAL_KEYS]
         missing = [k for k in needed if k not in header]
         if missing:
             raise InputError(
@@ -237,6 +259,7 @@ class CameraHeader:
                 readout_time=vals["camera_readout_time_s"][0],
                 readout_time_uncertainty=vals["camera_readout_time_uncertainty_s"][0],
                 marker_frame=None if frame is None else int(frame[0]),
+                pose_focal_derivative=vals.get("camera_pose_focal_derivative"),
             )
         except InputError as exc:
             raise InputError(f"{source}: camera header: {exc}") from None
