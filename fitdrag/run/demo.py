@@ -442,7 +442,11 @@ def _track_camera(d: Path, camera: dict, track_path: Path, preview_path: Path, *
     """Track one camera's footage as :func:`track_command` would inside ``d``; write the
     track CSV (with the camera in its header) and the picture (atomically, replacing files
     there); return the tracking summary."""
-    from fitdrag.geometry.footage_view import camera_from_footage, camera_header
+    from fitdrag.geometry.footage_view import (
+        camera_from_footage,
+        camera_header,
+        pose_focal_derivative,
+    )
     from fitdrag.report.track_preview import track_preview_figure
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
@@ -456,11 +460,13 @@ def _track_camera(d: Path, camera: dict, track_path: Path, preview_path: Path, *
             marker_layout=LAYOUT_NAME, lens=lens_name(name),
             scale_uncertainty=FOOTAGE["marker_side_relative_uncertainty"], progress=progress,
         )  # fmt: skip
-        _cam, pose = camera_from_footage(
+        cam, pose = camera_from_footage(
             ft, readout_time=camera["readout_time"],
             readout_time_uncertainty=camera["readout_time_uncertainty"],
         )  # fmt: skip
-        text = footage_track_csv_text(ft, camera=camera_header(pose, ft.marker_frame))
+        header = camera_header(pose, ft.marker_frame,
+                               focal_derivative=pose_focal_derivative(ft, cam))  # fmt: skip
+        text = footage_track_csv_text(ft, camera=header)
         with open_source(footage_name(name)) as source:
             image = source.read(ft.preview_frame)
     write_atomic(track_path, lambda p: Path(p).write_text(text, encoding="utf-8"), force=True,
