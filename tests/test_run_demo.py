@@ -20,7 +20,8 @@ import pytest
 import reference
 
 from fitdrag.cli import main
-from fitdrag.run.demo import CAMERAS, LAUNCH, TRUE_CD, job_text, run_demo, track_command
+from fitdrag.run.demo import job_text, run_demo, track_command
+from fitdrag.run.demo_scene import CAMERAS, LAUNCH, TRUE_CD
 from fitdrag.run.job_file import load_job
 from fitdrag.run.records import Records
 from fitdrag.run.scenario_3d import T_LAUNCH

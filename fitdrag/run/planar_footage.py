@@ -5,8 +5,8 @@ planar scene — a camera square to the plane of flight, four ArUco markers in t
 flight exactly in it — rendered by :class:`fitdrag.video.synthetic.FlightRenderer`.  The
 sample clip ``sample_tracks/foam_ball_clip.avi`` (the README's worked example) is made with
 it.  Everything here is synthetic: the specimen, air and site are the demo's invented ones
-(:data:`fitdrag.run.demo.SPECIMEN`, :data:`~fitdrag.run.demo.AIR`,
-:data:`~fitdrag.run.demo.SITE`), the true Cd :data:`fitdrag.run.demo.TRUE_CD`.
+(:data:`fitdrag.run.demo_scene.SPECIMEN`, :data:`~fitdrag.run.demo_scene.AIR`,
+:data:`~fitdrag.run.demo_scene.SITE`), the true Cd :data:`fitdrag.run.demo_scene.TRUE_CD`.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from fitdrag.errors import InputError
-from fitdrag.run.demo import AIR, SEED, SITE, SPECIMEN, TRUE_CD
+from fitdrag.run.demo_scene import AIR, SEED, SITE, SPECIMEN, TRUE_CD
 
 __all__ = ["LAUNCH", "SCENE", "make_planar_footage"]
 
@@ -75,7 +75,7 @@ def make_planar_footage(
     """Render the planar footage to a Motion-JPEG AVI file and return its truth.
 
     The flight is simulated with :func:`fitdrag.physics.simulate.simulate` (buoyancy, added mass,
-    quadratic drag with Cd = :data:`fitdrag.run.demo.TRUE_CD`) in the demo's air and gravity,
+    quadratic drag with Cd = :data:`fitdrag.run.demo_scene.TRUE_CD`) in the demo's air and gravity,
     mapped into the image of a camera perpendicular to the plane of flight (scale, roll and
     origin from :data:`SCENE`) and rendered with
     :class:`fitdrag.video.synthetic.FlightRenderer`, together with four ArUco markers at
