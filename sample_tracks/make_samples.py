@@ -250,6 +250,7 @@ pressure = 100800
 pressure_uncertainty = 50
 relative_humidity = 45
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665                 # the tracks were simulated with standard gravity
@@ -303,6 +304,7 @@ pressure = 99800
 pressure_uncertainty = 50
 relative_humidity = 60
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -347,6 +349,7 @@ pressure = 101000
 pressure_uncertainty = 50
 relative_humidity = 40
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -388,6 +391,7 @@ pressure = 100500
 pressure_uncertainty = 50
 relative_humidity = 50
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -433,6 +437,7 @@ pressure = 100900
 pressure_uncertainty = 30
 relative_humidity = 48
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 latitude = 51.5
