@@ -145,6 +145,9 @@ class DragRefitModel:
         self.directions = [_flight_direction(th) for th in result.throws]
 
     def specimen(self, v):
+        if not any(k in v for k in ("mass", "diameter", "area", "volume",
+                                    "added_mass_coefficient")):  # fmt: skip
+            return None  # the fit's own specimen
         ca = v.get("added_mass_coefficient", self.result.specimen.added_mass_coefficient)
         if "diameter" in v:
             return Sphere(v["mass"], v["diameter"], added_mass_coefficient=ca)

@@ -364,6 +364,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     """:func:`fitdrag.run.pipeline.measure` for a job whose throws are measured in 3-D."""
     from fitdrag.fit.view_budget_model import ViewRefitModel
     from fitdrag.report.content import CameraSettings, FitFacts
+    from fitdrag.run.flight_physics import flight_physics_3d, still_air_warning
     from fitdrag.run.pipeline import (
         Measurement,
         _monte_carlo_trials,
@@ -373,6 +374,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     from fitdrag.uncertainty.gum import InputQuantity
 
     n_mc = _monte_carlo_trials(job, monte_carlo)
+    still_air_warning(job)
     inputs_3d, hashes = read_views(job, progress=progress)
     fit = fit_throws(job, inputs_3d)
     air = job.make_air()
@@ -393,6 +395,8 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
         if u_cam[name] > 0:
             quantities.append(InputQuantity(name, model.nominal[name], u_cam[name], unit,
                                             description=text))  # fmt: skip
+    physics = flight_physics_3d(job, model, fit)
+    quantities += physics.inputs()
     stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
     budget, mc, check = budget_and_checks(
         job, model, quantities, stat, n_mc, adaptive=adaptive, seed=seed, workers=workers,
@@ -441,8 +445,9 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     content = certificate_content(
         job, float(fit.cd), budget, mc, check, air=air, wind=job.fit_options().get("wind", 0.0),
         statistical_u=float(fit.u_cd), camera=camera, footage=footage_records(job, inputs_3d),
-        method=_method_3d(fit, budget, mc, geometry_text(job, inputs_3d, fit)),
-        fit_facts=facts, fit_summary=summary, hashes=hashes,
+        method=replace(_method_3d(fit, budget, mc, geometry_text(job, inputs_3d, fit)),
+                       flight_physics=physics.text()),
+        fit_facts=facts, fit_summary=summary, hashes=hashes, physics=physics,
     )  # fmt: skip
     verdict = content.conformity.verdict if content.conformity is not None else None
     tracks = [v.footage.track for views in inputs_3d for v in views]

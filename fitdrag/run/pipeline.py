@@ -310,6 +310,7 @@ def perspective_nonlinear_lines(budget) -> list[str]:
         ln.name
         for ln in budget.lines
         if ln.name.startswith("out_of_plane_angle")
+        and ln.standard_uncertainty > 0
         and not ln.nonlinearity <= NONLINEARITY_LIMIT * abs(ln.contribution)
     ]
 
