@@ -416,8 +416,9 @@ class ViewRefitModel:
     def _throw_cd(self, th: ViewThrow, t: int, v, pose_delta=None, model=None) -> float:
         wind = None
         if v.get("air_speed", 0.0):
-            wind = np.asarray(th.result.options["wind"], float) + v["air_speed"] * (
-                self.directions[t - 1]
+            wind = (
+                np.asarray(th.result.options["wind"], float)
+                + v["air_speed"] * (self.directions[t - 1])
             )
         r = refit_views(
             th.result,

@@ -167,9 +167,7 @@ class Layout:
             wanted = b.page_break_before and (
                 b.unless_room is None or y + b.unless_room > PAGE_H - MARGIN_B
             )
-            if (wanted and pages[-1]) or (
-                y + b.height > PAGE_H - MARGIN_B and pages[-1]
-            ):
+            if (wanted and pages[-1]) or (y + b.height > PAGE_H - MARGIN_B and pages[-1]):
                 pages.append([])
                 y = MARGIN_T + 0.3
             if b.height > 0 or not b.page_break_before:

@@ -151,16 +151,17 @@ class FlightPhysics:
 
     def to_dict(self) -> dict:
         lc = self.lift_check
+        cl = None
+        if self.lift_coefficient is not None:
+            cl = {"value": self.lift_coefficient[0],
+                  "standard_uncertainty": self.lift_coefficient[1]}  # fmt: skip
         return {
             "lift": {
                 "tested": lc is not None,
                 "fitted": self.lift_fitted,
-                "lift_coefficient": None if self.lift_coefficient is None else {
-                    "value": self.lift_coefficient[0],
-                    "standard_uncertainty": self.lift_coefficient[1],
-                },
+                "lift_coefficient": cl,
                 **({} if lc is None else {"test": lc.to_dict()}),
-            },  # fmt: skip
+            },
             "air_movement": {
                 "wind_along_x": self.wind,
                 "air_speed_standard_uncertainty": self.air_speed_uncertainty,
