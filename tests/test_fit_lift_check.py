@@ -78,3 +78,36 @@ def test_false_alarm_rate_is_the_level():
     with pytest.raises(ValueError, match=r"^alpha: the false-alarm rate must be between 0 and "
                        r"0\.5, got 0\.7; 0\.01 is usual\.$"):  # fmt: skip
         _check(0.0, alpha=0.7)
+
+
+@pytest.mark.parametrize("cl", [0.0, 0.05])
+def test_lift_test_of_a_3d_measurement(cl):
+    """closed-form/independent: two cameras see a throw (tests/views_reference.py:
+    simulate_3d, checked against scipy DOP853 in tests/test_physics_flight3d.py) with backspin
+    C_L = 0.05 about the board's normal — detected, C_L within 3 u of the truth, the fit with
+    lift kept — or without spin — not detected, and the first-order sensitivity s =
+    cov(Cd, C_L)/u²(C_L) predicts the difference of the fits without and with lift,
+    Cd₀ − Cd₁ = −s Ĉ_L (exact for a linear model; here within u(Cd)/4)."""
+    import views_reference as vref
+
+    from fitdrag.fit.image_fit import fit_views
+    from fitdrag.fit.lift_check import check_lift_views
+
+    rng = np.random.default_rng(11)
+    th = vref.launch(1.0)
+    views = [vref.observe(vref.camera_at(y), th, rng=rng, sigma=0.1, diameter_sigma=0.1,
+                          time_offset="true", name=f"cam {i}", lift=cl)
+             for i, y in enumerate((-20.0, 20.0))]  # fmt: skip
+    check, fits, s = check_lift_views([views], vref.BALL, vref.AIR, noise="white")
+    (r,) = fits
+    assert check.needed == (cl > 0) and r.success
+    assert abs(check.lift_coefficient - cl) < 3 * check.lift_uncertainty
+    assert bool(r.options["lift"]) == (cl > 0)
+    if cl == 0:
+        lifted = fit_views(views, vref.BALL, vref.AIR, lift=True, noise="white")
+        assert abs((r.cd - lifted.cd) + s * check.lift_coefficient) < 0.25 * r.u_cd
+        assert check.input_quantity().standard_uncertainty == pytest.approx(
+            math.hypot(check.lift_coefficient, check.lift_uncertainty)
+        )
+    else:
+        assert s == 0.0 and abs(r.cd - vref.CD) < 3 * r.u_cd

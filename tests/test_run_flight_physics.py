@@ -131,7 +131,7 @@ def test_texts():
                                   "drag-law line). Left out: x (why).")  # fmt: skip
     assert [q.name for q in fp.inputs()] == ["lift_coefficient", "drag_law"]
     lifted = FlightPhysics(None, True, (0.05, 0.0006), 0.0, 1.5, law, measured_in_3d=True)
-    assert lifted.spin_text() == ("Spin: not tested; C_L = 0.05000 (standard uncertainty "
+    assert lifted.spin_text() == ("Spin (about the board's normal): not tested; C_L = 0.05000 (standard uncertainty "
                                   "0.00060) fitted with Cd, as the job states.")  # fmt: skip
     assert lifted.air_text() == ("Air: wind 1.50 m/s along +x, stated as exact (air speed "
                                  "uncertainty 0; no budget line).")  # fmt: skip

@@ -34,12 +34,14 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+import numpy as np
+
 from fitdrag.errors import InputError
 from fitdrag.physics.air import STANDARD_GRAVITY, Air
 from fitdrag.tracks.track import Track
 from fitdrag.uncertainty.gum import InputQuantity
 
-__all__ = ["DEFAULT_FALSE_ALARM_RATE", "LiftCheck", "check_lift"]
+__all__ = ["DEFAULT_FALSE_ALARM_RATE", "LiftCheck", "check_lift", "check_lift_views"]
 
 #: Level of the lift test: the probability of calling lift present in a flight without it. [1]
 DEFAULT_FALSE_ALARM_RATE = 0.01
@@ -196,3 +198,112 @@ def check_lift(
         return LiftCheck(False, alpha, "the fit with lift did not converge (" +
                          (with_lift.note or "no convergence") + "); lift not bounded", **kw)  # fmt: skip
     return LiftCheck(False, alpha, "neither fit converged", **kw)
+
+
+def check_lift_views(throws, specimen, air, *, alpha: float = DEFAULT_FALSE_ALARM_RATE,
+                     **fit_options):  # fmt: skip
+    """The lift test of a 3-D measurement: each throw fitted without and with a lift
+    coefficient about the spin axis (:func:`fitdrag.fit.image_fit.fit_views`, default axis
+    +z, the board's normal: backspin or topspin of a flight along the board).
+
+    The F-test is taken in its Wald form, F = (Ĉ_L / u(Ĉ_L))² against F(1, ν) with ν the fit
+    with lift's degrees of freedom (for one parameter the two agree to first order; Seber
+    and Wild 1989, §5.3), so that each throw needs one more fit only.  The lift is needed
+    when any throw's test rejects C_L = 0 at ``alpha``, or when only the fit with lift
+    follows a throw.  When it is not, the effect of the lift the data allow on Cd is taken to
+    first order from the fit with lift: holding C_L at c instead of Ĉ_L moves Cd by
+    ``s (c − Ĉ_L)`` with ``s = cov(Cd, C_L) / u²(C_L)`` (the regression of the estimates,
+    Seber and Wild 1989, §2.1), the budget's sensitivity to the lift coefficient.
+
+    Parameters
+    ----------
+    throws : sequence of sequence of CameraView
+        The views of each throw.
+    specimen : Sphere or Body
+        The specimen (mass [kg], size [m]).
+    air : Air
+        Air density [kg/m³] and viscosity [Pa s].
+    alpha : float
+        False-alarm rate of each throw's test. [1]
+    **fit_options
+        Further options of :func:`~fitdrag.fit.image_fit.fit_views` (gravity [m/s²], model,
+        wind [m/s], noise, spin_axis).
+
+    Returns
+    -------
+    (LiftCheck, list of ViewFitResult, float)
+        The decision (with the throw of the largest allowed lift), the fit of each throw
+        with or without lift as decided, and the weighted-mean sensitivity ∂Cd/∂C_L of the
+        fits without lift (0 when lift is fitted). [-]
+    """
+    from scipy import stats
+
+    from fitdrag.fit.image_fit import fit_views
+
+    if not (isinstance(alpha, int | float) and 0.0 < alpha < 0.5):
+        raise InputError(
+            f"alpha: the false-alarm rate must be between 0 and 0.5, got {alpha!r}; 0.01 is usual."
+        )
+    plain, lifted, tests = [], [], []
+    for views in throws:
+        r0 = fit_views(views, specimen, air, lift=False, **fit_options)
+        start = r0.as_initial() if r0.success else None
+        r1 = fit_views(views, specimen, air, lift=True, initial=start, **fit_options)
+        plain.append(r0)
+        lifted.append(r1)
+        if r1.success:
+            c, u = r1.parameter("lift_coefficient")
+            f = (c / u) ** 2 if u > 0 else math.inf
+            tests.append((c, u, f, float(stats.f.sf(f, 1, max(r1.dof, 1))), r1))
+        else:
+            tests.append(None)
+    n = len(throws)
+    kept = [t for t in tests if t is not None]
+    k = 2.0
+    if kept:
+        worst = max(kept, key=lambda t: abs(t[0]) + t[4].coverage_factor * t[1])
+        c, u, f, p, r1 = worst
+        k = float(r1.coverage_factor)
+        p_min = min(t[3] for t in kept)
+        f_max = max(t[2] for t in kept)
+        dof = int(min(t[4].dof for t in kept))
+    else:
+        c = u = f_max = p_min = math.nan
+        dof = 0
+    kw = {"lift_coefficient": c, "lift_uncertainty": u, "coverage_factor": k,
+          "f_statistic": f_max, "p_value": p_min, "df1": 1 if kept else 0, "df2": dof}  # fmt: skip
+    lone = [i for i in range(n) if lifted[i].success and not plain[i].success]
+    rejects = [t is not None and t[3] < alpha for t in tests]
+    which = "the throw" if n == 1 else f"each of the {n} throws"
+    if lone:
+        check = LiftCheck(True, alpha, f"only the fit with lift follows throw {lone[0] + 1}",
+                          **kw)  # fmt: skip
+    elif any(rejects):
+        pt = "p < 1e-6" if p_min < 1e-6 else f"p = {p_min:.2g}"
+        check = LiftCheck(True, alpha, f"the F-test (Wald form) on {which} rejects a flight "
+                          f"without lift at the {100 * alpha:g} % false-alarm rate ({pt})",
+                          **kw)  # fmt: skip
+    elif kept:
+        pt = "p < 1e-6" if p_min < 1e-6 else f"p = {p_min:.2g}"
+        check = LiftCheck(False, alpha, f"the F-test (Wald form) on {which} does not reject a "
+                          f"flight without lift at the {100 * alpha:g} % false-alarm rate "
+                          f"(smallest {pt})", **kw)  # fmt: skip
+    else:
+        check = LiftCheck(False, alpha, "the fits with lift did not converge; lift not bounded",
+                          **kw)  # fmt: skip
+    if check.needed:
+        return check, lifted, 0.0
+    sens = []
+    for r1 in lifted:
+        if not r1.success:
+            sens.append(0.0)
+            continue
+        i = r1.parameter_names.index("lift_coefficient")
+        cov = np.asarray(r1.covariance, float)
+        # Cd is proportional to the law's first parameter at the stated Re (constant, scaled
+        # sphere; the power law's C_ref at its reference Re)
+        g0 = r1.cd / r1.values[0] if r1.values[0] else 0.0
+        sens.append(float(g0 * cov[0, i] / cov[i, i]) if cov[i, i] > 0 else 0.0)
+    u_stat = np.array([r.u_cd for r in plain], float)
+    w = u_stat**-2 / np.sum(u_stat**-2) if np.all(u_stat > 0) else np.full(n, 1.0 / n)
+    return check, plain, float(w @ np.asarray(sens))

@@ -53,6 +53,7 @@ COMMON_INPUTS = {
     "air_viscosity": "Pa s",
     "air_speed": "m/s",
     "drag_law": "",
+    "lift_coefficient": "",
 }
 
 
@@ -242,7 +243,9 @@ class ViewRefitModel:
       moving at this speed along each throw's fitted flight (from its first to its last
       observed point), added to the fit's wind vector; ``drag_law`` [-] (nominal 0): an
       additive correction to Cd for the choice of drag law (no re-fit; see
-      :mod:`fitdrag.fit.drag_law_choice`).
+      :mod:`fitdrag.fit.drag_law_choice`); ``lift_coefficient`` [-] (nominal 0): an
+      undetected lift, acting on Cd to first order with ``lift_sensitivity``
+      (:func:`fitdrag.fit.lift_check.check_lift_views`).
 
     Parameters
     ----------
@@ -256,10 +259,13 @@ class ViewRefitModel:
         Air viscosity to use with ``air_density`` (kept fixed). [Pa s]
     weights : sequence of float, optional
         Weights of the throws' Cd (default ``u_i⁻²``, normalised).
+    lift_sensitivity : float
+        ∂Cd/∂C_L of an undetected lift (the ``lift_coefficient`` input). [-]
     """
 
     def __init__(self, throws: Sequence[ViewThrow], nominal: Mapping[str, float], *,
-                 length=None, viscosity=None, weights=None):  # fmt: skip
+                 length=None, viscosity=None, weights=None,
+                 lift_sensitivity: float = 0.0):  # fmt: skip
         self.throws = list(throws)
         if not self.throws:
             raise InputError("throws: at least one throw is needed.")
@@ -276,6 +282,7 @@ class ViewRefitModel:
             self.nominal[name] = self._camera_nominal(name)
         self.length = length
         self.viscosity = viscosity
+        self.lift_sensitivity = float(lift_sensitivity)
         self.directions = [_flight_direction(th) for th in self.throws]
         if weights is None:
             weights, *_ = combine_throws([t.result.cd for t in self.throws],
@@ -444,7 +451,11 @@ class ViewRefitModel:
         v = dict(self.nominal)
         v.update(values)
         cds = [self._throw_cd(th, t, v) for t, th in enumerate(self.throws, start=1)]
-        return float(self.weights @ np.asarray(cds)) + v.get("drag_law", 0.0)
+        return (
+            float(self.weights @ np.asarray(cds))
+            + v.get("drag_law", 0.0)
+            + self.lift_sensitivity * v.get("lift_coefficient", 0.0)
+        )
 
 
 def _flight_direction(th: ViewThrow) -> np.ndarray:

@@ -3,10 +3,12 @@ certificate statements of the air's movement and of the choice of drag law.
 
 * **Spin.**  Unless the job states ``[fit] lift = true`` or ``false``, the throws are tested
   for a lift force (:func:`fitdrag.fit.lift_check.check_lift`, F-test at a 1 % false-alarm
-  rate): when the data need it, the fit includes a constant lift coefficient and the
-  certificate says so; when not, the certificate states the largest lift coefficient the data
-  allow, and the budget carries its effect on Cd (the ``lift_coefficient`` line).  A planar
-  fit sees backspin and topspin only; side spin turns the flight out of the plane (3-D).
+  rate; in 3-D :func:`~fitdrag.fit.lift_check.check_lift_views`, its Wald form): when the
+  data need it, the fit includes a constant lift coefficient and the certificate says so;
+  when not, the certificate states the largest lift coefficient the data allow, and the
+  budget carries its effect on Cd (the ``lift_coefficient`` line: by re-fits in the plane,
+  to first order in 3-D).  A planar fit sees backspin and topspin only; side spin turns the
+  flight out of the plane (3-D; the 3-D test takes the spin axis normal to the board).
 * **Air movement.**  ``[air] air_speed_uncertainty`` is the standard uncertainty of the still
   air (or stated wind) the fit assumes, along the flight; the budget propagates it by
   re-fitting with that wind along the flight (the ``air_speed`` line).  Stated as 0, the air
@@ -19,6 +21,7 @@ certificate statements of the air's movement and of the choice of drag law.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 from dataclasses import dataclass
@@ -49,7 +52,9 @@ class FlightPhysics:
     drag_law : DragLawChoice
         The drag law and the spread over the published correlations.
     measured_in_3d : bool
-        A 3-D measurement (no lift test; wind along the fitted 3-D flight).
+        A 3-D measurement (lift test in Wald form; wind along the fitted 3-D flight).
+    lift_sensitivity : float or None
+        ∂Cd/∂C_L to first order, for a lift line without re-fits (3-D); None: by re-fit. [-]
     """
 
     lift_check: object
@@ -59,6 +64,7 @@ class FlightPhysics:
     wind: float
     drag_law: object
     measured_in_3d: bool = False
+    lift_sensitivity: float | None = None
 
     def inputs(self) -> list:
         """The budget lines of the undetected lift and of the drag-law choice (the air-speed
@@ -66,6 +72,8 @@ class FlightPhysics:
         out = []
         if self.lift_check is not None and not self.lift_fitted:
             q = self.lift_check.input_quantity()
+            if q is not None and self.lift_sensitivity is not None:
+                q = dataclasses.replace(q, sensitivity=self.lift_sensitivity)
             if q is not None:
                 out.append(q)
         q = self.drag_law.input_quantity()
@@ -77,7 +85,8 @@ class FlightPhysics:
         from fitdrag.report.numbers import format_sig, format_with_uncertainty
 
         lc = self.lift_check
-        head = "Spin" if self.measured_in_3d else "Spin (in the plane; side spin needs 3-D)"
+        head = ("Spin (about the board's normal)" if self.measured_in_3d
+                else "Spin (in the plane; side spin needs 3-D)")  # fmt: skip
         fitted = ""
         if self.lift_fitted:
             v, u = format_with_uncertainty(*self.lift_coefficient)
@@ -85,8 +94,7 @@ class FlightPhysics:
         if lc is None:
             if self.lift_fitted:
                 return f"{head}: not tested; {fitted}, as the job states."
-            why = "in a 3-D measurement" if self.measured_in_3d else "(the job states no lift)"
-            return f"{head}: not tested {why}; fitted without lift."
+            return f"{head}: not tested (the job states no lift); fitted without lift."
         test = (
             f"F-test, false-alarm rate {100 * lc.false_alarm_rate:g} %, "
             + ("p < 1e-6" if lc.p_value < 1e-6 else f"p = {lc.p_value:.2g}")
@@ -228,11 +236,12 @@ def flight_physics_3d(job: Job, model, fit) -> FlightPhysics:
     first = fit.throws[0].result
     lifted = bool(first.options.get("lift", False))
     return FlightPhysics(
-        lift_check=None,
+        lift_check=fit.lift_check,
         lift_fitted=lifted,
         lift_coefficient=first.parameter("lift_coefficient") if lifted else None,
         air_speed_uncertainty=float(job.air.air_speed_uncertainty or 0.0),
         wind=float(job.fit_options().get("wind", 0.0)),
         drag_law=choice,
         measured_in_3d=True,
+        lift_sensitivity=fit.lift_sensitivity,
     )

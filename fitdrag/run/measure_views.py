@@ -47,6 +47,10 @@ class ViewMeasurementFit:
         The throws' weights. [-]
     birge_ratio : float
         Scatter of the throws against their uncertainties (nan with one throw). [-]
+    lift_check : LiftCheck or None
+        The lift test, when the job asked for it (``[fit] lift = "auto"``, the default).
+    lift_sensitivity : float
+        ∂Cd/∂C_L of the fits without lift, to first order (0 when lift is fitted). [-]
     """
 
     throws: tuple
@@ -55,6 +59,8 @@ class ViewMeasurementFit:
     dof: float
     weights: np.ndarray
     birge_ratio: float
+    lift_check: Any = None
+    lift_sensitivity: float = 0.0
 
     @property
     def model(self) -> str:
@@ -258,10 +264,21 @@ def fit_throws(job: Job, inputs: list[list[ViewInput]]):
             kw[name] = opts[name]
     if "wind" in opts:
         kw["wind"] = (float(opts["wind"]), 0.0, 0.0)
+    check, sensitivity, results = None, 0.0, None
+    if job.fit.lift_test:
+        from fitdrag.fit.lift_check import check_lift_views
+
+        check, results, sensitivity = check_lift_views(
+            [[v.view for v in views] for views in inputs], specimen, air,
+            gravity=job.gravity(), **kw,
+        )  # fmt: skip
     throws = []
     for i, views in enumerate(inputs):
         label = job.throws[i].label
-        r = fit_views([v.view for v in views], specimen, air, gravity=job.gravity(), **kw)
+        if results is not None:
+            r = results[i]
+        else:
+            r = fit_views([v.view for v in views], specimen, air, gravity=job.gravity(), **kw)
         if not r.success:
             raise ConvergenceError(f"the 3-D fit of throw {i + 1} ({label}) did not converge: "
                                    f"{r.message}")  # fmt: skip
@@ -276,7 +293,7 @@ def fit_throws(job: Job, inputs: list[list[ViewInput]]):
             f"{birge:.2f}); the statistical uncertainty is enlarged by that factor.",
             stacklevel=2,
         )
-    return ViewMeasurementFit(tuple(throws), mean, u, dof, w, birge)
+    return ViewMeasurementFit(tuple(throws), mean, u, dof, w, birge, check, sensitivity)
 
 
 def footage_records(job: Job, inputs: list[list[ViewInput]]) -> tuple[FootageRecord, ...]:
@@ -389,7 +406,8 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     ]  # fmt: skip
     nominal = {q.name: q.value for q in quantities}
     model = ViewRefitModel(list(fit.throws), nominal, length=job.specimen.length,
-                           viscosity=air.viscosity)  # fmt: skip
+                           viscosity=air.viscosity,
+                           lift_sensitivity=fit.lift_sensitivity)  # fmt: skip
     u_cam = model.camera_uncertainties()
     for name, (unit, text) in model.camera_names.items():
         if u_cam[name] > 0:
