@@ -363,6 +363,7 @@ pressure = 100800
 pressure_uncertainty = 50
 relative_humidity = 45
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665                 # the tracks were simulated with standard gravity
@@ -416,6 +417,7 @@ pressure = 99800
 pressure_uncertainty = 50
 relative_humidity = 60
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -460,6 +462,7 @@ pressure = 101000
 pressure_uncertainty = 50
 relative_humidity = 40
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -501,6 +504,7 @@ pressure = 100500
 pressure_uncertainty = 50
 relative_humidity = 50
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 gravity = 9.80665
@@ -546,6 +550,7 @@ pressure = 100900
 pressure_uncertainty = 30
 relative_humidity = 48
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 latitude = 51.5
@@ -593,6 +598,7 @@ pressure = 100200
 pressure_uncertainty = 30
 relative_humidity = 55
 relative_humidity_uncertainty = 3
+air_speed_uncertainty = 0.02       # m/s, room air along the flight (anemometer)
 
 [site]
 latitude = 51.5

@@ -5,7 +5,8 @@ is used here), so that synthetic "truth" does not come from the simulator under 
 
     (m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ A |u| (C_d u − C_L P u),   u = v − w,
 
-with g = (0, −g), w = (wind, 0) and P u = (−u_y, u_x).  With ``buoyancy=False`` the ρ V term
+with g = (0, −g), w = (wind, 0) or a vector ``wind = (w_x, w_y)``, and P u = (−u_y, u_x).
+With ``buoyancy=False`` the ρ V term
 in the weight is dropped (added mass is set separately by ``added_mass_coefficient``).
 
 Sources
@@ -65,13 +66,14 @@ class Body:
                    added_mass_coefficient)  # fmt: skip
 
 
-def rhs(state, body: Body, rho: float, cd: float, *, gravity: float = G0, wind: float = 0.0,
+def rhs(state, body: Body, rho: float, cd: float, *, gravity: float = G0, wind=0.0,
         lift: float = 0.0, buoyancy: bool = True):  # fmt: skip
     """Time derivative of (x, y, vx, vy) [m, m/s] from the equation of motion above."""
     _x, _y, vx, vy = state
     m_inertial = body.mass + body.added_mass_coefficient * rho * body.volume
     weight = (body.mass - (rho * body.volume if buoyancy else 0.0)) * gravity
-    ux, uy = vx - wind, vy
+    wx, wy = (wind, 0.0) if np.isscalar(wind) else wind
+    ux, uy = vx - wx, vy - wy
     q = math.hypot(ux, uy)
     half = 0.5 * rho * body.area * q
     # drag −½ρA|u|C_d u ; lift +½ρA|u|C_L P u with P u = (−u_y, u_x)
@@ -81,7 +83,7 @@ def rhs(state, body: Body, rho: float, cd: float, *, gravity: float = G0, wind: 
 
 
 def flight(t, launch, body: Body, rho: float, cd: float, *, gravity: float = G0,
-           wind: float = 0.0, lift: float = 0.0, buoyancy: bool = True, rtol: float = 1e-12,
+           wind=0.0, lift: float = 0.0, buoyancy: bool = True, rtol: float = 1e-12,
            atol: float = 1e-12, method: str = "DOP853"):  # fmt: skip
     """Positions and velocities at the sample times ``t`` [s] from ``launch`` at ``t[0]``.
 

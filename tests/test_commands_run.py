@@ -43,8 +43,10 @@ def _job_text(**edits) -> str:
                  ("pressure_uncertainty = 50 ", "# pressure_uncertainty = 50 "),
                  ("relative_humidity = 45 ", "# relative_humidity = 45 "),
                  ("relative_humidity_uncertainty = 3 ", "# relative_humidity_uncertainty = 3 "),
-                 ("# density = 1.19 ", "density = 1.225 \nviscosity = 1.789e-5 "),
+                 ("# density = 1.19 ", "density = 1.225 "),
                  ("# density_uncertainty = 0.005 ", "density_uncertainty = 0.004 "),
+                 ("# viscosity = 1.81e-5 ", "viscosity = 1.789e-5 "),
+                 ("# viscosity_uncertainty = 1e-7 ", "viscosity_uncertainty = 0.0 "),
                  # a launcher aligned with the board (the simulated track is in the plane)
                  ("out_of_plane_uncertainty = 0.5 ", "out_of_plane_uncertainty = 0.1 ")):  # fmt: skip
         assert k in text
@@ -88,8 +90,12 @@ def test_run_issues_certificate(job, capsys):
     assert res["combined_standard_uncertainty"] > res["statistical_standard_uncertainty"]
     names = [ln["name"] for ln in rep["uncertainty_budget"]["lines"]]
     assert names == ["statistical", "mass", "diameter", "air_density", "frame_rate",
-                     "length_scale", "camera_distance", "out_of_plane_angle",
-                     "gravity"]  # fmt: skip
+                     "length_scale", "camera_distance", "out_of_plane_angle", "air_speed",
+                     "gravity", "lift_coefficient"]  # fmt: skip
+    # the lift test ran (the independent flight has no spin) and the still-air assumption
+    # is stated and propagated
+    assert rep["flight_physics"]["lift"]["tested"] and not rep["flight_physics"]["lift"]["fitted"]
+    assert rep["conditions"]["air_speed_uncertainty"] == 0.05
     assert rep["certificate"]["number"] == number
     assert rep["conformity"]["decision"] in ("pass", "conditional pass")
     job_hash = hashlib.sha256(job.read_bytes()).hexdigest()
@@ -321,6 +327,8 @@ def _footage_job(folder, clip, **edits):
         "scale_relative_uncertainty = 0.002 ": "# scale_relative_uncertainty = 0.002 ",
         'track = "throw1.csv"': 'footage = "clip.avi"\nmarkers = "200 mm"\n'
         "scale_uncertainty = 0.0005",
+        # the clip's flight is simulated in still air; a quiet room's anemometer reading
+        "air_speed_uncertainty = 0.05 ": "air_speed_uncertainty = 0.01 ",
     }
     base.update(edits)
     p = folder / "job.toml"

@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 
 from fitdrag.fit.budget_model import DragRefitModel
+from fitdrag.physics.registry import get_drag_model
 from fitdrag.uncertainty.gum import InputQuantity, budget_from_model
 from fitdrag.uncertainty.monte_carlo import monte_carlo
 
@@ -162,3 +163,107 @@ def test_out_of_plane_lines_have_sensitivities_by_refit(heavy_fit):
     with pytest.raises(ValueError, match=r"^nominal: out_of_plane_angle_2 names throw 2, but "
                        r"there are 1 tracks"):  # fmt: skip
         DragRefitModel(fit, [track], dict(nominal, out_of_plane_angle_2=0.0))
+
+
+# ---------------------------------------------------------------------------------------------
+# the flight's physics: air movement, an undetected lift, the viscosity, the drag-law choice
+# ---------------------------------------------------------------------------------------------
+
+
+def _fine_track(seed=3, **kw):
+    """A synthetic 40 mm, 2.7 g ball (tests/reference.py Scenario) with 10 µm noise, flown by
+    scipy's DOP853 (tests/reference.py) with the keywords given (wind, lift)."""
+    import reference as ref
+
+    from fitdrag import Track
+
+    sc = ref.Scenario(n=200)
+    s = ref.flight(sc.t, sc.launch, sc.body, ref.RHO, sc.cd, **kw)
+    xy = s[:, :2] + np.random.default_rng(seed).normal(0.0, 1e-5, (sc.n, 2))
+    return sc, Track(sc.t, xy[:, 0], xy[:, 1])
+
+
+def _chord(xy):
+    d = xy[-1] - xy[0]
+    return d / np.hypot(*d)
+
+
+def test_air_speed_is_a_wind_along_the_flight():
+    """closed-form/independent: a flight through air moving at 0.3 m/s along the flight
+    (scipy DOP853, tests/reference.py with a wind vector along the flight's own chord, found
+    by iterating the integration) fitted as if in still air reads Cd far from the truth 0.47;
+    the model re-fitted with air_speed = 0.3 m/s (the change of frame x' = x − w ê t) gives the
+    truth back within 2e-4, and −0.3 m/s moves it the other way."""
+    import reference as ref
+
+    from fitdrag import Air, Sphere, fit_tracks
+
+    sc = ref.Scenario(n=200)
+    w = 0.3
+    e = _chord(ref.flight(sc.t, sc.launch, sc.body, ref.RHO, sc.cd)[:, :2])
+    for _ in range(4):  # the chord of the flight in moving air, self-consistently
+        e = _chord(ref.flight(sc.t, sc.launch, sc.body, ref.RHO, sc.cd, wind=tuple(w * e))[:, :2])
+    _sc, track = _fine_track(wind=tuple(w * e))
+    fit = fit_tracks(track, Sphere(sc.mass, sc.diameter), Air(ref.RHO, ref.MU), robust=False,
+                     noise="white")  # fmt: skip
+    assert fit.success and abs(fit.cd - sc.cd) > 0.01  # still air misreads the moving air
+    model = DragRefitModel(fit, [track], {"air_speed": 0.0})
+    assert model({"air_speed": 0.0}) == pytest.approx(fit.cd, rel=1e-8)
+    assert model({"air_speed": w}) == pytest.approx(sc.cd, abs=2e-4)
+    assert (model({"air_speed": -w}) - fit.cd) * (fit.cd - sc.cd) > 0
+    assert np.allclose(model.directions[0], e, atol=1e-3)
+
+
+def test_lift_coefficient_is_held_in_the_refit():
+    """closed-form/independent: a flight with backspin C_L = 0.02 (scipy DOP853) fitted
+    without lift reads Cd away from the truth; re-fitted with C_L held at 0.02 it gives the
+    truth 0.47 back within 2e-4.  A fit with lift takes no lift_coefficient input."""
+    import reference as ref
+
+    from fitdrag import Air, Sphere, fit_tracks
+
+    sc, track = _fine_track(lift=0.02)
+    sp, air = Sphere(sc.mass, sc.diameter), Air(ref.RHO, ref.MU)
+    fit = fit_tracks(track, sp, air, robust=False, noise="white")
+    assert fit.success and abs(fit.cd - sc.cd) > 1e-3
+    model = DragRefitModel(fit, [track], {"lift_coefficient": 0.0})
+    assert model({"lift_coefficient": 0.02}) == pytest.approx(sc.cd, abs=2e-4)
+    lifted = fit_tracks(track, sp, air, robust=False, noise="white", lift=True)
+    with pytest.raises(ValueError, match=r"^nominal: lift_coefficient is an input only of a fit "
+                       r"without lift"):  # fmt: skip
+        DragRefitModel(lifted, [track], {"lift_coefficient": 0.0})
+
+
+def test_viscosity_and_drag_law_inputs():
+    """closed-form/independent: with a Reynolds-dependent law the re-fit at another stated
+    viscosity equals a full fit with that viscosity (fit_tracks, within u(Cd)/2, while the
+    change itself is over 5 u(Cd)); a constant Cd does not
+    depend on it; the drag-law input adds to Cd without a re-fit; air_viscosity needs
+    air_density."""
+    import reference as ref
+
+    from fitdrag import Air, Sphere, fit_tracks
+
+    sc, track = _fine_track()
+    sp = Sphere(sc.mass, sc.diameter)
+    fit = fit_tracks(track, sp, Air(ref.RHO, ref.MU), model="sphere-scaled", robust=False,
+                     noise="white")  # fmt: skip
+    nominal = {"air_density": ref.RHO, "air_viscosity": ref.MU, "drag_law": 0.0}
+    model = DragRefitModel(fit, [track], nominal, viscosity=ref.MU)
+    mu2 = ref.MU * 1.05
+    full = fit_tracks(track, sp, Air(ref.RHO, mu2), model="sphere-scaled", robust=False,
+                      noise="white")  # fmt: skip
+    re_med = fit.diagnostics["reynolds_median"]
+    # the re-fit states Cd at the original median Re: compare the fitted scale's Cd there
+    expected = full.parameter("scale")[0] * float(
+        get_drag_model("sphere-scaled").cd([re_med], [1.0])[0]
+    )
+    # the same within a fraction of u(Cd) (the full fit re-estimates its noise weights)
+    assert abs(model({"air_viscosity": mu2}) - expected) < 0.5 * fit.u_cd
+    assert abs(model({"air_viscosity": mu2}) - fit.cd) > 5 * fit.u_cd
+    assert model({"drag_law": 0.01}) == pytest.approx(fit.cd + 0.01, rel=1e-10)
+    const = fit_tracks(track, sp, Air(ref.RHO, ref.MU), robust=False, noise="white")
+    m2 = DragRefitModel(const, [track], nominal, viscosity=ref.MU)
+    assert m2({"air_viscosity": mu2}) == pytest.approx(const.cd, rel=1e-9)
+    with pytest.raises(ValueError, match=r"^nominal: air_viscosity needs air_density"):
+        DragRefitModel(const, [track], {"air_viscosity": ref.MU})

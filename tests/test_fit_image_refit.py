@@ -45,20 +45,23 @@ def test_refit_at_the_nominal_inputs_is_the_fit(two_views):
         {"specimen": Sphere(ref.BALL.mass * 1.01, ref.BALL.diameter)},
         {"air": Air(ref.AIR.density * 1.02)},
         {"gravity": 9.80665 * 1.001},
+        {"wind": (0.2, 0.0, 0.0)},
     ],
 )
 def test_refit_agrees_with_a_new_full_fit(two_views, change):
     """closed-form/independent: after a changed mass, air density or gravity, the change of
     the re-solved Cd agrees within 10 % with that of a complete new fit_views run from
     scratch with those inputs (which also re-estimates the noise levels: the only
-    difference, 6 % of the change for gravity, 0.1 % for mass and density), so the shortcut
+    difference, 6 % of the change for gravity, 0.1 % for mass and density), and so does a
+    wind of 0.2 m/s along +x, so the shortcut
     (noise state kept, start at the old optimum) measures the input's effect."""
     views, r = two_views
     a = refit_views(r, views, **change)
     sp = change.get("specimen", ref.BALL)
     air = change.get("air", ref.AIR)
     g = change.get("gravity", 9.80665)
-    full = fit_views(views, sp, air, gravity=g, noise="white")
+    wind = change.get("wind", (0.0, 0.0, 0.0))
+    full = fit_views(views, sp, air, gravity=g, wind=wind, noise="white")
     assert a.success and full.success
     assert abs(a.cd - full.cd) <= 0.1 * abs(full.cd - r.cd)
     assert abs(full.cd - r.cd) > 0.5 * r.u_cd  # the change itself is resolved
@@ -81,3 +84,6 @@ def test_refit_bad_input(two_views):
     with pytest.raises(InputError, match=r"^views: a re-fit needs the same cameras with the "
                                          r"same number of observations"):  # fmt: skip
         refit_views(r, views[:1])
+    with pytest.raises(InputError, match=r"^model: 'power-law' has parameters \('cd_ref', "
+                       r"'exponent'\), the fit's 'constant' \('cd',\)"):  # fmt: skip
+        refit_views(r, views, model="power-law")

@@ -57,3 +57,45 @@ def test_refit_refuses_tracks_of_other_lengths():
            "original fit; run fit_tracks for new data.")  # fmt: skip
     with pytest.raises(ValueError, match="^" + re.escape(msg) + "$"):
         refit(fit, tracks=[short])
+
+
+def test_refit_with_another_correlation_equals_a_full_fit():
+    """closed-form/independent: a sphere-scaled fit re-solved with another correlation's
+    curve (model=...) reaches the optimum a full fit with that model reaches (Cd within u/2,
+    the full fit re-estimating its noise weights), starting from the scale that gives the same
+    Cd; a law of other parameters is refused."""
+    xy = SC.truth() + np.random.default_rng(8).normal(0.0, SC.sigma, (SC.n, 2))
+    track = Track(SC.t, xy[:, 0], xy[:, 1])
+    sphere = Sphere(SC.mass, SC.diameter, added_mass_coefficient=0.0)
+    air = Air(ref.RHO, ref.MU)
+    kw = dict(buoyancy=False, robust=False, noise="white")
+    fit = fit_tracks(track, sphere, air, model="sphere-scaled", **kw)
+    other = "sphere-scaled:clift-gauvin"
+    full = fit_tracks(track, sphere, air, model=other, **kw)
+    out = refit(fit, model=other)
+    assert out.success
+    # the re-fit states Cd at the fit's median Re; the full fit at its own (the same flight)
+    assert abs(out.cd - full.cd) < 0.5 * fit.u_cd
+    assert out.values[0] == pytest.approx(full.parameter("scale")[0], rel=2e-4)
+    with pytest.raises(ValueError, match=r"^model: 'power-law' has parameters \('cd_ref', "
+                       r"'exponent'\)"):  # fmt: skip
+        refit(fit, model="power-law")
+
+
+def test_refit_with_a_fixed_lift_coefficient():
+    """closed-form/independent: a flight with backspin C_L = 0.03 (scipy DOP853) fitted
+    without lift, re-solved with C_L held at 0.03, gives the Cd of the fit with lift within
+    u/2; a fit with a fitted lift refuses a fixed one."""
+    s = ref.flight(SC.t, SC.launch, SC.body, ref.RHO, SC.cd, lift=0.03, buoyancy=False)
+    xy = s[:, :2] + np.random.default_rng(9).normal(0.0, 1e-4, (SC.n, 2))
+    track = Track(SC.t, xy[:, 0], xy[:, 1])
+    sphere = Sphere(SC.mass, SC.diameter, added_mass_coefficient=0.0)
+    kw = dict(buoyancy=False, robust=False, noise="white")
+    plain = fit_tracks(track, sphere, Air(ref.RHO, ref.MU), **kw)
+    lifted = fit_tracks(track, sphere, Air(ref.RHO, ref.MU), lift=True, **kw)
+    assert plain.success and lifted.success
+    held = refit(plain, lift_coefficient=lifted.parameter("lift_coefficient")[0])
+    assert held.success and abs(held.cd - lifted.cd) < 0.5 * lifted.u_cd
+    assert abs(plain.cd - lifted.cd) > 5 * lifted.u_cd
+    with pytest.raises(ValueError, match=r"^lift_coefficient: the fit has a fitted lift"):
+        refit(lifted, lift_coefficient=0.01)

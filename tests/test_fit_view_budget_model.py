@@ -136,3 +136,42 @@ def test_bad_input(throw):
         ViewRefitModel([ViewThrow(views, cals, r)], {"roll": 0.0})
     with pytest.raises(InputError, match=r"^calibrations: one per view is needed, got 1 for 2"):
         ViewThrow(views, cals[:1], r)
+
+
+def test_air_speed_is_a_wind_along_the_fitted_flight():
+    """closed-form/independent: two cameras see a throw through air moving at 0.3 m/s along
+    the flight's own chord (simulate_3d with that wind, itself checked against scipy's DOP853
+    in tests/test_physics_flight3d.py; the chord found by iterating); fitted as if in still
+    air Cd is off by more than 0.01, and the model re-fitted with air_speed = 0.3 m/s gives the
+    truth 0.50 back within 3 u(Cd); its direction is the chord.  With another correlation the
+    re-fit agrees with a full fit (within u/2)."""
+    from fitdrag.physics.flight3d import simulate_3d
+    from fitdrag.physics.forces import Conditions
+
+    th = ref.launch(1.0)
+    t = np.arange(200) / ref.FPS
+    w = 0.3
+    e = np.array([1.0, 0.0, 0.0])
+    for _ in range(5):
+        fl = simulate_3d(t, th, ref.BALL, Conditions(ref.AIR), drag_params=(ref.CD,),
+                         t0=ref.T_LAUNCH, wind=tuple(w * e))  # fmt: skip
+        d = fl.position[-1] - fl.position[0]
+        e = d / np.linalg.norm(d)
+    rng = np.random.default_rng(5)
+    views = [ref.observe(ref.camera_at(y), th, rng=rng, sigma=0.05, diameter_sigma=0.05,
+                         time_offset="true", name=f"cam {i}", wind=tuple(w * e))
+             for i, y in enumerate((-20.0, 20.0))]  # fmt: skip
+    r = fit_views(views, ref.BALL, ref.AIR, noise="white")
+    assert r.success, r.message
+    assert abs(r.cd - ref.CD) > 0.01
+    cals = [CameraCalibration(f"lens {k}", POSE_COV) for k in range(2)]
+    model = ViewRefitModel([ViewThrow(views, cals, r, "1")], {"air_speed": 0.0, "drag_law": 0.0})
+    # the views are seen from the first observed frame on: the chord is nearly the same
+    assert np.allclose(model.directions[0], e, atol=0.02)
+    assert abs(model({"air_speed": w}) - ref.CD) < 3 * r.u_cd
+    assert model({"drag_law": 0.002}) == pytest.approx(r.cd + 0.002, rel=1e-9)
+    other = "sphere-scaled:clift-gauvin"
+    scaled = fit_views(views, ref.BALL, ref.AIR, model="sphere-scaled", noise="white")
+    m2 = ViewRefitModel([ViewThrow(views, cals, scaled, "1")], {})
+    full = fit_views(views, ref.BALL, ref.AIR, model=other, noise="white")
+    assert abs(m2.cd_with_model(other) - full.cd) < 0.5 * scaled.u_cd

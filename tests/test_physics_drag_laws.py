@@ -1,24 +1,21 @@
-"""Tests of fitdrag.physics.drag_laws: smooth-sphere correlations, scaled-sphere and power-law models.
+"""Tests of fitdrag.physics.drag_laws: the scaled-sphere and power-law models (the
+correlations themselves: tests/test_physics_sphere_drag.py).
 
-Oracles: the ``fluids`` library (fluids.drag.drag_sphere, same method), Stokes' law, the
-common-practice subcritical C_d, and an independent scipy ``solve_ivp`` integration of the
-equation of motion written out in this file.
+Oracles: closed forms of the laws, and an independent scipy ``solve_ivp`` integration of
+the equation of motion written out in this file.
 """
 
 from __future__ import annotations
 
 import math
 
-import fluids.drag
 import numpy as np
 import pytest
 from scipy.integrate import solve_ivp
 
 from fitdrag.physics.air import Air
 from fitdrag.physics.drag_laws import (
-    DEFAULT_CORRELATION,
     POWER_LAW,
-    SPHERE_CORRELATIONS,
     SPHERE_SCALED,
     SUBCRITICAL_RE_LIMIT,
     power_law_reference_re,
@@ -30,95 +27,6 @@ from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import drag_model_names, get_drag_model
 from fitdrag.physics.simulate import Launch, simulate
 from fitdrag.physics.specimen import Sphere
-
-RE_GRID = np.logspace(-3, math.log10(2e5), 60)
-
-
-def _grid(name):
-    lo, hi = SPHERE_CORRELATIONS[name].stated_range
-    return RE_GRID[(RE_GRID >= lo) & (RE_GRID <= hi)]
-
-
-# ------------------------------------------------------------------ correlations vs fluids
-
-
-@pytest.mark.parametrize("name", [n for n in sphere_correlation_names() if n != "morrison"])
-def test_correlation_matches_fluids_same_method(name):
-    """closed-form/independent: fluids 1.3 ``drag_sphere(Re, Method=...)`` evaluates the same
-    published formula (Morrison 2010 handout eq. 1; Clift & Gauvin 1970; Haider & Levenspiel
-    1989 eq. 10; Khan & Richardson 1987; Cheng 2009 eq. 12; Barati et al. 2014 eq. 22)."""
-    c = SPHERE_CORRELATIONS[name]
-    re = _grid(name)
-    ours = sphere_drag_coefficient(re, name)
-    ref = np.array([fluids.drag.drag_sphere(r, Method=c.fluids_method) for r in re])
-    np.testing.assert_allclose(ours, ref, rtol=1e-12)
-
-
-def test_morrison_2013_differs_from_fluids_only_in_last_term():
-    """closed-form/independent: fluids' ``Method="Morrison"`` is the 2010 handout form (last term
-    Re^0.8/461000); the 2013 textbook form (Morrison, An Introduction to Fluid Mechanics, CUP
-    2013, eq. 8.83) ends in 0.25 (Re/1e6)/(1 + Re/1e6).  Their difference must be exactly the
-    difference of those two terms."""
-    re = _grid("morrison")
-    ours = sphere_drag_coefficient(re, "morrison")
-    ref = np.array([fluids.drag.drag_sphere(r, Method="Morrison") for r in re])
-    expected = 0.25 * (re / 1e6) / (1 + re / 1e6) - re**0.8 / 461000.0
-    np.testing.assert_allclose(ours - ref, expected, rtol=1e-9, atol=1e-12)
-    assert np.max(np.abs(ours - ref)) < 0.004  # as stated in the module docstring
-    assert DEFAULT_CORRELATION == "morrison"
-
-
-@pytest.mark.parametrize("name", sphere_correlation_names())
-def test_correlation_derivative_matches_finite_difference_of_fluids(name):
-    """closed-form/independent: our analytic dC_d/dRe against central differences of the
-    independent fluids implementation (2013 Morrison: fluids' Morrison plus the exact
-    derivative of the last-term change)."""
-    c = SPHERE_CORRELATIONS[name]
-    re = _grid(name)
-    h = 1e-6 * re
-
-    def ref(r):
-        v = fluids.drag.drag_sphere(r, Method=c.fluids_method)
-        if name == "morrison":
-            v += 0.25 * (r / 1e6) / (1 + r / 1e6) - r**0.8 / 461000.0
-        return v
-
-    fd = np.array([(ref(r + d) - ref(r - d)) / (2 * d) for r, d in zip(re, h)])
-    _, ours = sphere_drag_coefficient(re, name, derivative=True)
-    np.testing.assert_allclose(ours, fd, rtol=2e-6, atol=1e-9)
-
-
-@pytest.mark.parametrize("name", sphere_correlation_names())
-def test_stokes_limit(name):
-    """published-value: C_d = 24/Re for Re << 1 (G. G. Stokes, Trans. Camb. Phil. Soc. 9, 1851);
-    at the low end of each correlation's range (Re = 1e-3, or 0.01 for Khan-Richardson)."""
-    re = max(1e-3, SPHERE_CORRELATIONS[name].stated_range[0])
-    cd = float(sphere_drag_coefficient(re, name))
-    assert cd * re / 24.0 == pytest.approx(1.0, rel=0.01)
-
-
-@pytest.mark.parametrize("name", sphere_correlation_names())
-def test_subcritical_plateau_near_047(name):
-    """regression (common practice, no source): smooth-sphere C_d ≈ 0.47 in the subcritical
-    range; every correlation within ±0.09 over Re 1e3–2e5."""
-    re = np.logspace(3, math.log10(2e5), 25)
-    cd = sphere_drag_coefficient(re, name)
-    assert np.all(np.abs(cd - 0.47) < 0.09)
-
-
-def test_sphere_drag_coefficient_bad_input():
-    """regression: exact error messages for a bad Reynolds number or correlation name."""
-    with pytest.raises(
-        ValueError, match=r"^re: Reynolds numbers must be finite and > 0, got -1\.0"
-    ):
-        sphere_drag_coefficient([10.0, -1.0])
-    with pytest.raises(
-        ValueError,
-        match=r"^correlation: unknown sphere drag correlation 'stokes'; valid names: morrison, "
-        r"morrison-2010, clift-gauvin",
-    ):
-        sphere_drag_coefficient(10.0, "stokes")
-
 
 # ------------------------------------------------------------------------- the registry
 

@@ -47,7 +47,8 @@ AIR = Air(1.2, 1.8e-5)
 
 def _cd_law(law, values):
     """C_d(Re) for the reference: ``law`` is "constant" (cd,), "power" (cd_ref, n, re_ref)
-    or "clift" (scale,) with the Clift–Gauvin sphere curve from the fluids library."""
+    or "clift" (scale,) with the fluids library's Clift_Gauvin sphere curve (the Barati et
+    al. 2014 listing of the Clift–Gauvin form)."""
     if law == "constant":
         (cd,) = values
         return lambda _re: cd
@@ -187,7 +188,7 @@ CASES = [
 _REGISTRY_NAME = {
     "constant": "constant",
     "power": "power-law",
-    "clift": "sphere-scaled:clift-gauvin",
+    "clift": "sphere-scaled:clift-gauvin-barati",
 }
 
 
@@ -267,7 +268,7 @@ def test_sensitivities_match_finite_differences(index):
      ("constant", (0.5,), 0.2, 2.0, 9.0, 20.0, 0.024, 0.065),
      ("constant", (0.3,), -0.1, -3.0, 35.0, 15.0, 0.145, 0.073),
      ("power-law", (0.45, -0.2, 3e4), 0.1, 1.0, 18.0, 35.0, 0.0027, 0.040),
-     ("sphere-scaled:clift-gauvin", (1.05,), 0.05, 0.5, 12.0, 40.0, 0.058, 0.0667)],
+     ("sphere-scaled:clift-gauvin-barati", (1.05,), 0.05, 0.5, 12.0, 40.0, 0.058, 0.0667)],
 )  # fmt: skip
 def test_planar_case_equals_planar_simulator(model, drag, cl, wind, speed, angle, mass, diameter):
     """closed-form/independent: with z0 = vz0 = 0, w_z = 0 and the spin axis along +z the 3-D

@@ -86,6 +86,7 @@ def _content(decision_value=0.4712, rule="guarded", replaces=None):
             air_density=Estimate(1.1892, 0.0015),
             air_viscosity=1.818e-5,
             gravity=Estimate(9.80677, 5e-4),
+            air_speed_uncertainty=0.05,
         ),
         camera=CameraSettings(fps=Estimate(500.0, 0.05), scale_relative_uncertainty=0.002),
         method=Method(
@@ -93,6 +94,7 @@ def _content(decision_value=0.4712, rule="guarded", replaces=None):
             integrator="adaptive RK5(4)",
             fit_method="weighted least squares",
             uncertainty_method="GUM",
+            flight_physics="Spin: no lift detected (synthetic statement).",
         ),
         result=Result(
             drag_coefficient=decision_value,
@@ -169,6 +171,10 @@ def test_pdf_holds_number_result_decision_and_hashes(rendered):
     assert "Tested by: A. Tester" in flat and "Approved by: B. Reviewer" in flat
     assert "Rejected frames (2): 50, 120" in flat
     assert "Uncertainty budget" in flat and "specimen mass" in flat
+    # the flight's physics and the stated air movement (issue: the certificate states them)
+    assert "Spin, drag law Spin: no lift detected (synthetic statement)." in flat
+    assert ("Air movement still air assumed; air speed along the flight: standard uncertainty "
+            "0.050 m/s (stated), propagated by re-fits with that wind along the flight") in flat  # fmt: skip
 
 
 def test_conditional_decision_and_replacement(tmp_path):

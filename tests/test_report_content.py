@@ -24,7 +24,8 @@ from fitdrag.uncertainty.gum import Budget, BudgetLine
 
 #: The top-level keys of the result JSON, in their order (the file format).
 KEYS = ["success", "software_version", "certificate", "job", "laboratory", "test", "specimen",
-        "conditions", "camera", "footage", "method", "result", "uncertainty_budget",
+        "conditions", "camera", "footage", "method", "flight_physics", "result",
+        "uncertainty_budget",
         "monte_carlo", "conformity", "fit", "inputs", "outputs"]  # fmt: skip
 
 
@@ -101,6 +102,7 @@ def test_sections_keep_the_job_files_key_order():
                                        ("operator", "A. Tester")]  # fmt: skip
     assert list(d["specimen"]) == ["id", "description", "shape", "mass", "diameter",
                                    "added_mass_coefficient"]  # fmt: skip
-    assert list(d["conditions"]) == ["air_density", "air_viscosity", "gravity", "wind"]
+    assert list(d["conditions"]) == ["air_density", "air_viscosity", "gravity", "wind",
+                                     "air_speed_uncertainty"]  # fmt: skip
     assert d["conditions"]["air_density"] == {"value": 1.19, "standard_uncertainty": 0.001,
                                               "source": "stated"}  # fmt: skip

@@ -498,3 +498,56 @@ def test_lens_without_the_board_is_refused(footage_dir):
                        r"which needs the camera's pose from the marker board; give "
                        r"markers = SIDE_M and marker_layout = FILE"):  # fmt: skip
         load_job(_write(footage_dir, text))
+
+
+def test_air_speed_viscosity_and_lift_keys(job_dir):
+    """regression: [air] air_speed_uncertainty is required (the fix says why and how), read
+    with a unit; a stated viscosity needs its standard uncertainty and both enter the budget;
+    [fit] lift takes true, false or "auto" (the default: the lift test)."""
+    text = _edit("air_speed_uncertainty = 0.05      # m/s\n", "")
+    n = _line(text, "[air]")
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: \[air\] "
+                       r"air_speed_uncertainty: missing; give the standard uncertainty of the "
+                       r"air's speed along the flight in m/s \(the fit takes the air as still"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("air_speed_uncertainty = 0.05 ", 'air_speed_uncertainty = "3 cm/s" ')
+    job = load_job(_write(job_dir, text))
+    assert job.air.air_speed_uncertainty == pytest.approx(0.03)
+    assert job.fit.lift == "auto" and job.fit.lift_test and "lift" not in job.fit_options()
+    air = {
+        "temperature = 21.0 ": "# temperature = 21.0 ",
+        "temperature_uncertainty = 0.3 ": "# temperature_uncertainty = 0.3 ",
+        "pressure = 100800 ": "# pressure = 100800 ",
+        "pressure_uncertainty = 50 ": "# pressure_uncertainty = 50 ",
+        "relative_humidity = 45 ": "# relative_humidity = 45 ",
+        "relative_humidity_uncertainty = 3 ": "# relative_humidity_uncertainty = 3 ",
+        "# density = 1.19 ": "density = 1.19 ",
+        "# density_uncertainty = 0.005 ": "density_uncertainty = 0.005 ",
+        "# viscosity = 1.81e-5 ": "viscosity = 1.81e-5 ",
+    }
+    text = TEMPLATE
+    for old, new in air.items():
+        text = _edit(old, new, text)
+    n = _line(text, "[air]")
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: \[air\] viscosity_uncertainty: "
+                       r"missing; give the standard uncertainty of viscosity in Pa s"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("# viscosity_uncertainty = 1e-7 ", "viscosity_uncertainty = 1e-7 ", text)
+    text = _edit('lift = "auto" ', "lift = true ", text)
+    job = load_job(_write(job_dir, text))
+    assert job.air.viscosity.value == 1.81e-5 and job.air.viscosity.uncertainty == 1e-7
+    assert job.make_air().viscosity == 1.81e-5
+    names = [q.name for q in job.input_quantities()]
+    assert "air_viscosity" in names and "air_speed" in names
+    assert not job.fit.lift_test and job.fit_options()["lift"] is True
+    bad = _edit('lift = "auto" ', 'lift = "maybe" ')
+    n = _line(bad, "lift =")
+    with pytest.raises(ValueError, match=rf'^job\.toml, line {n}: \[fit\] lift: expected true, '
+                       r'false or "auto", got \'maybe\'; "auto" \(the default\) tests'):  # fmt: skip
+        load_job(_write(job_dir, bad))
+    lone = _edit("air_speed_uncertainty = 0.05 ", "viscosity_uncertainty = 1e-7\n"
+                 "air_speed_uncertainty = 0.05 ")  # fmt: skip
+    n = _line(lone, "viscosity_uncertainty")
+    with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: \[air\] viscosity_uncertainty: "
+                       r"given without viscosity; add viscosity or remove it\.$"):  # fmt: skip
+        load_job(_write(job_dir, lone))

@@ -31,7 +31,8 @@ def test_template_loads(job_dir):
     names = [q.name for q in job.input_quantities()]
     assert names == ["mass", "diameter", "temperature", "pressure", "relative_humidity",
                      "frame_rate", "length_scale", "camera_distance", "out_of_plane_angle",
-                     "gravity"]  # fmt: skip
+                     "air_speed", "gravity"]  # fmt: skip
+    assert job.air.air_speed_uncertainty == 0.05 and job.fit.lift_test
     # WGS84 normal gravity at 47° N, 400 m is about 9.807 m/s² (Moritz, Geodetic Reference
     # System 1980, J. Geodesy 74 (2000); free-air gradient 3.086e-6 s⁻²; from memory)
     assert job.gravity() == pytest.approx(9.8068, abs=5e-4)

@@ -59,7 +59,8 @@ def test_two_cameras_measure_the_tilted_flight(two_camera):
 
 def test_two_camera_budget_and_certificate_state_the_geometry(two_camera, tmp_path):
     """regression: the budget carries each camera's pose, focal length and readout (JCGM
-    100:2008 5.1.2 by re-fit), the statistical part is the fit's; the certificate's method
+    100:2008 5.1.2 by re-fit) and the air movement, the statistical part is the fit's; the
+    lift was tested; the certificate's method
     names the cameras, their distance, the measured out-of-plane angle and the camera model;
     both footage files are listed with their SHA-256; the certificate is issued."""
     job, meas = two_camera
@@ -69,6 +70,13 @@ def test_two_camera_budget_and_certificate_state_the_geometry(two_camera, tmp_pa
               "readout_time_2"):  # fmt: skip
         assert n in names, n
     assert "roll" not in names and "out_of_plane_angle" not in names
+    # the flight's physics: the air movement stated in the job (0.02 m/s) is a line; the lift
+    # was tested (Wald form) and the certificate says what was done
+    assert meas.budget.line("air_speed").standard_uncertainty == 0.02
+    assert meas.budget.line("air_speed").sensitivity != 0
+    assert meas.content.conditions.air_speed_uncertainty == 0.02
+    assert meas.content.flight_physics["lift"]["tested"]
+    assert meas.content.method.flight_physics.startswith("Spin (about the board's normal): ")
     geo = meas.content.method.geometry
     assert geo.startswith("Measured in 3-D (2 cameras, time offsets estimated from the data).")
     assert "left (left_lens.json)" in geo and "right (right_lens.json)" in geo

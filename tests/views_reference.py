@@ -60,12 +60,14 @@ def launch(angle_deg=1.0, *, speed=9.0, elevation=30.0, z0=0.02) -> Launch3D:
 
 
 def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3,
-            diameter_sigma=0.3, rng=None, time_offset="estimate", name="") -> CameraView:  # fmt: skip
+            diameter_sigma=0.3, rng=None, time_offset="estimate", name="",
+            wind=None, lift=0.0) -> CameraView:  # fmt: skip
     """One camera's noisy observations of a throw.
 
     ``offset`` [s] is the true time of this camera's frame 0 relative to t = 0 (the first
     camera's frame 0); ``time_offset`` is what the view states: "estimate" (None), "true"
-    (the true offset) or a number [s].
+    (the true offset) or a number [s]; ``wind`` [m/s], a constant air velocity (3-vector);
+    ``lift``, a lift coefficient about the board's normal +z (backspin for a flight along +x).
     """
     cond = Conditions(AIR)
     frames = np.arange(n)
@@ -74,7 +76,8 @@ def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3
     t = tf.copy()
     for _ in range(40):
         order = np.argsort(t)
-        fl = simulate_3d(t[order], throw, BALL, cond, drag_params=(cd,), t0=T_LAUNCH)
+        fl = simulate_3d(t[order], throw, BALL, cond, drag_params=(cd,), t0=T_LAUNCH, wind=wind,
+                         lift_coefficient=lift)  # fmt: skip
         pos = np.empty((n, 3))
         vel = np.empty((n, 3))
         pos[order], vel[order] = fl.position, fl.velocity

@@ -1,7 +1,15 @@
 """The drag coefficient's measurement model for the uncertainty budget: Cd as a function of
-the input quantities (specimen, air, camera, gravity), evaluated by re-fitting a finished fit
+the input quantities (specimen, air, camera, gravity, and the flight's physics: air movement,
+an undetected lift, the choice of drag law), evaluated by re-fitting a finished fit
 (:func:`fitdrag.fit.refit.refit`).  Handed to :func:`fitdrag.uncertainty.gum.budget_from_model`
 and :func:`fitdrag.uncertainty.monte_carlo.monte_carlo`, which know nothing of drag.
+
+Air movement.  The fit assumes still air (or a stated wind).  A constant air velocity w ê
+along the flight moves the specimen through the air at v − w ê; in the frame moving with the
+air the equation of motion is the same (gravity and buoyancy do not depend on the frame), so
+a fit with that wind equals a still-air fit of the track seen from the moving frame,
+x' = x − w ê (t − t₀) (a Galilean change of frame).  ``air_speed`` re-fits such tracks, ê the
+direction of the fitted flight from its first to its last point.
 """
 
 from __future__ import annotations
@@ -33,6 +41,10 @@ DRAG_INPUTS = {
     "gravity": "m/s²",
     "camera_distance": "m",
     "out_of_plane_angle": "°",
+    "air_viscosity": "Pa s",
+    "air_speed": "m/s",
+    "lift_coefficient": "",
+    "drag_law": "",
 }
 
 #: Per-throw out-of-plane angles: ``out_of_plane_angle_<k>`` for throw k (1-based). [°]
@@ -67,7 +79,16 @@ class DragRefitModel:
       angle about the vertical through its first sample before the re-fit.
       ``out_of_plane_angle`` turns every track; ``out_of_plane_angle_<k>`` only throw k
       (1-based), so that independent throws carry independent angles.  At zero angle the
-      distance has no effect (see :func:`distance_sensitivity`).
+      distance has no effect (see :func:`distance_sensitivity`);
+    * ``air_viscosity`` [Pa s]: with ``air_density``, the air's viscosity (Reynolds number);
+    * ``air_speed`` [m/s] (nominal 0): air moving at this speed along each flight (from its
+      first to its last fitted point) besides any stated wind, by the change of frame of the
+      module notes;
+    * ``lift_coefficient`` [-] (nominal 0): a lift coefficient held fixed in a fit without
+      lift (an undetected spin);
+    * ``drag_law`` [-] (nominal 0): an additive correction to Cd for the choice of the drag
+      law (its uncertainty is the spread of the published correlations,
+      :mod:`fitdrag.fit.drag_law_choice`); it needs no re-fit.
 
     Parameters
     ----------
@@ -106,13 +127,27 @@ class DragRefitModel:
                     f"nominal: {k} names throw {m.group(1)}, but there are {len(tracks)} "
                     f"tracks; number the throws from 1."
                 )
+        if "lift_coefficient" in nominal and result.lift:
+            raise InputError(
+                "nominal: lift_coefficient is an input only of a fit without lift (this fit "
+                "fits the lift coefficient); leave it out."
+            )
+        if "air_viscosity" in nominal and "air_density" not in nominal:
+            raise InputError(
+                "nominal: air_viscosity needs air_density (with temperature, pressure and "
+                "humidity the viscosity follows the temperature); add air_density."
+            )
         self.result = result
         self.tracks = tracks
         self.nominal = dict(nominal)
         self.length = length
         self.viscosity = viscosity
+        self.directions = [_flight_direction(th) for th in result.throws]
 
     def specimen(self, v):
+        if not any(k in v for k in ("mass", "diameter", "area", "volume",
+                                    "added_mass_coefficient")):  # fmt: skip
+            return None  # the fit's own specimen
         ca = v.get("added_mass_coefficient", self.result.specimen.added_mass_coefficient)
         if "diameter" in v:
             return Sphere(v["mass"], v["diameter"], added_mass_coefficient=ca)
@@ -121,7 +156,8 @@ class DragRefitModel:
 
     def air(self, v):
         if "air_density" in v:
-            kw = {} if self.viscosity is None else {"viscosity": self.viscosity}
+            mu = v.get("air_viscosity", self.viscosity)
+            kw = {} if mu is None else {"viscosity": mu}
             return Air(v["air_density"], **kw)
         if "temperature" in v:
             return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
@@ -133,11 +169,12 @@ class DragRefitModel:
         s = v.get("length_scale", 1.0)
         roll = math.radians(v.get("roll", 0.0))
         angles = self.angles(v)
-        if time_factor == 1.0 and s == 1.0 and roll == 0.0 and not any(angles):
+        wind = v.get("air_speed", 0.0)
+        if time_factor == 1.0 and s == 1.0 and roll == 0.0 and not any(angles) and not wind:
             return None
         c, sn = math.cos(roll), math.sin(roll)
         out = []
-        for tr, angle in zip(self.tracks, angles):
+        for tr, angle, (ex, ey) in zip(self.tracks, angles, self.directions):
             sig = None if tr.sigma is None else tr.sigma * s
             dx, dy = tr.x - tr.x[0], tr.y - tr.y[0]
             x = (tr.x[0] + c * dx - sn * dy) * s
@@ -145,7 +182,12 @@ class DragRefitModel:
             if angle:
                 geometry = PlanarGeometry(v["camera_distance"], angle)
                 x, y, sig = flight_plane_track(x, y, geometry, sigma=sig)
-            out.append(Track(tr.t * time_factor, x, y, sig, tr.frame, dict(tr.meta)))
+            t = tr.t * time_factor
+            if wind:
+                # the track seen from the frame moving with the air (module notes)
+                x = x - wind * ex * (t - t[0])
+                y = y - wind * ey * (t - t[0])
+            out.append(Track(t, x, y, sig, tr.frame, dict(tr.meta)))
         return out
 
     def angles(self, v) -> list[float]:
@@ -163,10 +205,19 @@ class DragRefitModel:
             specimen=self.specimen(v),
             air=self.air(v),
             gravity=v.get("gravity"),
+            lift_coefficient=v.get("lift_coefficient"),
         )
         if not r.success:
             raise ConvergenceError("the re-fit did not converge")
-        return float(r.cd)
+        return float(r.cd) + v.get("drag_law", 0.0)
+
+
+def _flight_direction(throw) -> tuple[float, float]:
+    """Unit vector from the first to the last fitted point of a throw (+x if they coincide)."""
+    dx = float(throw.fitted_x[-1] - throw.fitted_x[0])
+    dy = float(throw.fitted_y[-1] - throw.fitted_y[0])
+    n = math.hypot(dx, dy)
+    return (dx / n, dy / n) if n > 0 else (1.0, 0.0)
 
 
 def distance_sensitivity(model: DragRefitModel, u_distance: float, u_angles) -> float:

@@ -29,7 +29,7 @@ __all__ = ["median_reynolds", "rebuild_problem", "refit_views"]
 
 
 def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=None,
-                    gravity=None) -> ImageProblem:  # fmt: skip
+                    gravity=None, wind=None, model=None) -> ImageProblem:  # fmt: skip
     """The final weighted problem of a finished :func:`fit_views`, with replaced inputs.
 
     Parameters
@@ -45,6 +45,11 @@ def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=N
         Replacement air (density [kg/m³], viscosity [Pa s]).
     gravity : float, optional
         Replacement acceleration of free fall. [m/s²]
+    wind : array_like, shape (3,), optional
+        Replacement wind vector (world frame). [m/s]
+    model : str, optional
+        Another drag law with the same fitted parameters (a scaled sphere curve of another
+        correlation).
 
     Returns
     -------
@@ -67,14 +72,21 @@ def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=N
         buoyancy=c.buoyancy,
     )
     opts = result.options
-    dm = get_drag_model(result.model)
+    dm = get_drag_model(result.model if model is None else model)
+    if dm.parameters != get_drag_model(result.model).parameters:
+        raise InputError(
+            f"model: {dm.name!r} has parameters {dm.parameters}, the fit's {result.model!r} "
+            f"{get_drag_model(result.model).parameters}; a re-fit changes the law only between "
+            f"laws of the same parameters."
+        )
+    w = np.asarray(opts["wind"] if wind is None else wind, float)
     outline = [r.diameter_used for r in result.views]
     offsets = [None if r.offset_estimated else v.time_offset or 0.0
                for v, r in zip(views, result.views)]  # fmt: skip
     offsets[0] = 0.0
     problem = ImageProblem(
         views, result.specimen if specimen is None else specimen, conditions, dm,
-        result.constants, opts["lift"], np.asarray(opts["wind"], float),
+        result.constants, opts["lift"], w,
         np.asarray(opts["spin_axis"], float), outline, offsets, result.reference_time,
     )  # fmt: skip
     problem.names = list(result.parameter_names)
@@ -116,6 +128,8 @@ def refit_views(
     air: Air | None = None,
     gravity: float | None = None,
     reynolds: float | None = None,
+    wind=None,
+    model: str | None = None,
     max_nfev: int = 60,
 ) -> Refit:
     """Re-solve a finished 3-D fit with changed inputs, for sensitivities and Monte Carlo.
@@ -135,6 +149,12 @@ def refit_views(
     reynolds : float, optional
         Reynolds number at which a Re-dependent law's Cd is stated (default: the median over
         the re-fitted flight). [-]
+    wind : array_like, shape (3,), optional
+        Replacement wind vector (world frame), e.g. the stated wind plus an air movement
+        along the flight. [m/s]
+    model : str, optional
+        Another drag law of the same parameters; its first parameter starts where it gives
+        the fit's Cd at the fit's median Reynolds number.
     max_nfev : int
         Evaluation budget of the fallback solver.
 
@@ -145,8 +165,17 @@ def refit_views(
     """
     if not result.success:
         raise InputError("result: the fit did not converge; a re-fit needs a converged fit.")
-    problem = rebuild_problem(result, views, specimen=specimen, air=air, gravity=gravity)
-    theta0 = np.asarray(result.values, float)
+    problem = rebuild_problem(result, views, specimen=specimen, air=air, gravity=gravity,
+                              wind=wind, model=model)  # fmt: skip
+    theta0 = np.array(result.values, float)
+    if model is not None:
+        old = get_drag_model(result.model)
+        consts = np.asarray(result.constants, float)
+        re0 = median_reynolds(rebuild_problem(result, views), theta0)
+        p_new = np.concatenate(([1.0], theta0[1 : len(old.parameters)], consts))
+        c_unit = problem.model.kernel(re0, p_new, np.zeros(max(p_new.size, 1)))[0]
+        if c_unit > 0:
+            theta0[0] = float(result.cd) / c_unit
     theta, ok = gauss_newton(problem, theta0, problem.bounds)
     if not ok:
         theta, ok, _msg, _n = trust_region(problem, theta0, problem.bounds, max_nfev=max_nfev)

@@ -80,12 +80,16 @@ class Problem:
         The drag law's fixed constants.
     lift : bool
         Whether a constant lift coefficient is fitted.
+    fixed_lift : float
+        The lift coefficient held fixed when it is not fitted (0: no lift; the uncertainty
+        budget re-fits with a stated one). [-]
     """
 
-    def __init__(self, tracks, specimen, conditions, model, constants, lift):
+    def __init__(self, tracks, specimen, conditions, model, constants, lift, fixed_lift=0.0):
         self.tracks = tracks
         self.model = model
         self.lift = lift
+        self.fixed_lift = float(fixed_lift)
         self.n_shared = len(model.parameters) + (1 if lift else 0)
         self.models = [
             FlightModel(
@@ -151,7 +155,7 @@ class Problem:
         """(status, positions, velocities, sensitivities) of every throw at ``theta``."""
         out = []
         for i, fm in enumerate(self.models):
-            status, pos, vel, jac, _ = fm.run(self.throw_theta(theta, i), sens)
+            status, pos, vel, jac, _ = fm.run(self.throw_theta(theta, i), sens, self.fixed_lift)
             out.append((status, pos, vel, jac))
         return out
 

@@ -48,6 +48,8 @@ def refit(
     specimen=None,
     air: Air | None = None,
     gravity: float | None = None,
+    model: str | None = None,
+    lift_coefficient: float | None = None,
     max_nfev: int = 60,
 ) -> Refit:
     """Re-solve a finished fit with changed inputs, for sensitivity coefficients and Monte Carlo.
@@ -70,6 +72,13 @@ def refit(
         Replacement air (density [kg/m³], viscosity [Pa s]).
     gravity : float, optional
         Replacement acceleration of free fall. [m/s²]
+    model : str, optional
+        Another drag law with the same fitted parameters (e.g. the scaled smooth-sphere
+        curve of another correlation); its first parameter starts where it gives the
+        original fit's Cd at the median Reynolds number.
+    lift_coefficient : float, optional
+        A lift coefficient held fixed in a fit without lift (e.g. the largest the data
+        allow). [-]
     max_nfev : int
         Evaluation budget.
 
@@ -93,16 +102,41 @@ def refit(
     )
     sp = result.specimen if specimen is None else specimen
     dm = get_drag_model(result.model)
-    problem = Problem(tracks, sp, conditions, dm, result.constants, result.lift)
+    re_med = result.diagnostics["reynolds_median"]
+    theta0 = np.array(result._state["theta"], float)
+    if model is not None:
+        new = get_drag_model(model)
+        if new.parameters != dm.parameters or new.constants != dm.constants:
+            raise InputError(
+                f"model: {new.name!r} has parameters {new.parameters} and constants "
+                f"{new.constants}, the fit's {dm.name!r} {dm.parameters} and {dm.constants}; "
+                f"a re-fit changes the law only between laws of the same parameters."
+            )
+        p_old = np.concatenate((theta0[: len(dm.parameters)], result.constants))
+        p_new = p_old.copy()
+        p_new[0] = 1.0
+        g = np.zeros(max(p_old.size, 1))
+        c_old = dm.kernel(re_med, p_old, g)[0]
+        c_unit = new.kernel(re_med, p_new, g)[0]
+        if c_unit > 0:
+            theta0[0] = c_old / c_unit
+        dm = new
+    fixed_lift = 0.0
+    if lift_coefficient is not None:
+        if result.lift:
+            raise InputError(
+                "lift_coefficient: the fit has a fitted lift coefficient; a fixed one applies "
+                "to a fit without lift."
+            )
+        fixed_lift = float(lift_coefficient)
+    problem = Problem(tracks, sp, conditions, dm, result.constants, result.lift, fixed_lift)
     problem.names = old.names
     problem.bounds = old.bounds
     problem.set_state(masks=old.masks, sigmas=old.sigmas, phi=old.phi)
-    theta, ok = gauss_newton(problem, result._state["theta"], old.bounds)
+    theta, ok = gauss_newton(problem, theta0, old.bounds)
     if not ok:
-        theta, ok, _msg, _n = trust_region(problem, result._state["theta"], old.bounds,
-                                           max_nfev=max_nfev)  # fmt: skip
+        theta, ok, _msg, _n = trust_region(problem, theta0, old.bounds, max_nfev=max_nfev)
     n_fit = len(dm.parameters)
-    re_med = result.diagnostics["reynolds_median"]
     p_full = np.concatenate((theta[:n_fit], result.constants)).astype(float)
     cd, _ = dm.kernel(re_med, p_full, np.zeros(max(p_full.size, 1)))
     return Refit(cd=float(cd), values=theta, success=bool(ok))

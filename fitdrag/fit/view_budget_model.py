@@ -50,6 +50,10 @@ COMMON_INPUTS = {
     "frame_rate": "Hz",
     "length_scale": "",
     "gravity": "m/s²",
+    "air_viscosity": "Pa s",
+    "air_speed": "m/s",
+    "drag_law": "",
+    "lift_coefficient": "",
 }
 
 
@@ -234,7 +238,14 @@ class ViewRefitModel:
     * ``focal_length_<c>`` [-] (nominal 1): fx and fy of camera c times this factor, each
       pose re-solved from its marker corners when they are known (as the calibration would
       have given it); ``readout_time_<c>`` [s];
-    * ``time_offset_<t>_<v>`` [s]: a stated time offset.
+    * ``time_offset_<t>_<v>`` [s]: a stated time offset;
+    * ``air_viscosity`` [Pa s] (with ``air_density``); ``air_speed`` [m/s] (nominal 0): air
+      moving at this speed along each throw's fitted flight (from its first to its last
+      observed point), added to the fit's wind vector; ``drag_law`` [-] (nominal 0): an
+      additive correction to Cd for the choice of drag law (no re-fit; see
+      :mod:`fitdrag.fit.drag_law_choice`); ``lift_coefficient`` [-] (nominal 0): an
+      undetected lift, acting on Cd to first order with ``lift_sensitivity``
+      (:func:`fitdrag.fit.lift_check.check_lift_views`).
 
     Parameters
     ----------
@@ -248,10 +259,13 @@ class ViewRefitModel:
         Air viscosity to use with ``air_density`` (kept fixed). [Pa s]
     weights : sequence of float, optional
         Weights of the throws' Cd (default ``u_i⁻²``, normalised).
+    lift_sensitivity : float
+        ∂Cd/∂C_L of an undetected lift (the ``lift_coefficient`` input). [-]
     """
 
     def __init__(self, throws: Sequence[ViewThrow], nominal: Mapping[str, float], *,
-                 length=None, viscosity=None, weights=None):  # fmt: skip
+                 length=None, viscosity=None, weights=None,
+                 lift_sensitivity: float = 0.0):  # fmt: skip
         self.throws = list(throws)
         if not self.throws:
             raise InputError("throws: at least one throw is needed.")
@@ -268,6 +282,8 @@ class ViewRefitModel:
             self.nominal[name] = self._camera_nominal(name)
         self.length = length
         self.viscosity = viscosity
+        self.lift_sensitivity = float(lift_sensitivity)
+        self.directions = [_flight_direction(th) for th in self.throws]
         if weights is None:
             weights, *_ = combine_throws([t.result.cd for t in self.throws],
                                          [t.result.u_cd for t in self.throws],
@@ -363,7 +379,8 @@ class ViewRefitModel:
 
     def air(self, v):
         if "air_density" in v:
-            kw = {} if self.viscosity is None else {"viscosity": self.viscosity}
+            mu = v.get("air_viscosity", self.viscosity)
+            kw = {} if mu is None else {"viscosity": mu}
             return Air(v["air_density"], **kw)
         if "temperature" in v:
             return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
@@ -403,23 +420,60 @@ class ViewRefitModel:
             out.append(replace(view, **changes) if changes else view)
         return out
 
-    def _throw_cd(self, th: ViewThrow, t: int, v, pose_delta=None) -> float:
+    def _throw_cd(self, th: ViewThrow, t: int, v, pose_delta=None, model=None) -> float:
+        wind = None
+        if v.get("air_speed", 0.0):
+            wind = (
+                np.asarray(th.result.options["wind"], float)
+                + v["air_speed"] * (self.directions[t - 1])
+            )
         r = refit_views(
             th.result,
             self._views(th, t, v, pose_delta),
             specimen=self.specimen(v),
             air=self.air(v),
             gravity=v.get("gravity"),
+            wind=wind,
+            model=model,
         )
         if not r.success:
             raise ConvergenceError(f"the re-fit of throw {th.label or t} did not converge")
         return r.cd
 
+    def cd_with_model(self, model: str) -> float:
+        """The weighted mean Cd at the nominal inputs with another drag law of the same
+        parameters (e.g. another correlation's scaled sphere curve). [-]"""
+        cds = [self._throw_cd(th, t, self.nominal, model=model)
+               for t, th in enumerate(self.throws, start=1)]  # fmt: skip
+        return float(self.weights @ np.asarray(cds))
+
     def __call__(self, values) -> float:
         v = dict(self.nominal)
         v.update(values)
         cds = [self._throw_cd(th, t, v) for t, th in enumerate(self.throws, start=1)]
-        return float(self.weights @ np.asarray(cds))
+        return (
+            float(self.weights @ np.asarray(cds))
+            + v.get("drag_law", 0.0)
+            + self.lift_sensitivity * v.get("lift_coefficient", 0.0)
+        )
+
+
+def _flight_direction(th: ViewThrow) -> np.ndarray:
+    """Unit vector from the first to the last observed point of a throw's fitted 3-D flight
+    (+x when they coincide or the flight cannot be simulated)."""
+    from fitdrag.fit.image_refit import rebuild_problem
+
+    r = th.result
+    problem = rebuild_problem(r, th.views)
+    sims, ok = problem.simulate(np.asarray(r.values, float), False)
+    if not ok:
+        return np.array([1.0, 0.0, 0.0])
+    times = problem.observation_times(np.asarray(r.values, float))
+    t = np.concatenate(times)
+    pos = np.concatenate([p for p, _v, _j in sims])
+    d = pos[int(np.argmax(t))] - pos[int(np.argmin(t))]
+    n = float(np.linalg.norm(d))
+    return d / n if n > 0 else np.array([1.0, 0.0, 0.0])
 
 
 def _with_focal(cam: Camera, factor: float, cal: CameraCalibration) -> Camera:

@@ -258,6 +258,8 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         ("Uncertainty", method.uncertainty_method),
         ("Software", f"fitdrag {content.software_version}"),
     ]
+    if method.flight_physics:
+        rows.insert(2, ("Spin, drag law", method.flight_physics))
     if method.geometry:
         rows.insert(4, ("Geometry", method.geometry))
     L.rows(rows, size=8.0)
@@ -275,6 +277,14 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     rows.append(("Air viscosity", _sourced(f"{format_sig(cond.air_viscosity, 4)} Pa s",
                                            cond.air_viscosity_source)))  # fmt: skip
     rows.append(("Gravity", _sourced(_pm(cond.gravity, "m/s²"), cond.gravity_source)))
+    if cond.air_speed_uncertainty is not None:
+        still = ("still air" if not cond.wind
+                 else f"wind {format_sig(cond.wind, 3)} m/s along +x")  # fmt: skip
+        u_air = cond.air_speed_uncertainty
+        how = ("propagated by re-fits with that wind along the flight" if u_air > 0
+               else "taken as exact: no budget line")  # fmt: skip
+        rows.append(("Air movement", f"{still} assumed; air speed along the flight: standard "
+                     f"uncertainty {format_sig(u_air, 2)} m/s (stated), {how}"))  # fmt: skip
     cam = content.camera
     if cam.fps is not None:
         rows.append(("Frame rate", _pm(cam.fps, "Hz")))
@@ -358,8 +368,8 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
             size=8.0,
         )  # fmt: skip
 
-    # ---- page 3 ---------------------------------------------------------------------------
-    L.page_break()
+    # ---- page 3 (the plots follow on the same page when they fit there) --------------------
+    L.page_break(unless_room=5.6)
     L.heading("Trajectory and residuals")
     if curves:
         from fitdrag.report.plots import plot_residuals, plot_trajectory

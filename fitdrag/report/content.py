@@ -203,6 +203,9 @@ class Conditions:
         Where it comes from.
     wind : float
         Wind along +x. [m/s]
+    air_speed_uncertainty : float or None
+        Stated standard uncertainty of the air's speed along the flight (the still air or
+        stated wind the fit assumes). [m/s]
     temperature : Estimate or None
         Air temperature. [°C]
     pressure : Estimate or None
@@ -221,6 +224,7 @@ class Conditions:
     temperature: Estimate | None = None
     pressure: Estimate | None = None
     relative_humidity: Estimate | None = None
+    air_speed_uncertainty: float | None = None
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {}
@@ -232,6 +236,7 @@ class Conditions:
         d["air_viscosity"] = {"value": self.air_viscosity, "source": self.air_viscosity_source}
         d["gravity"] = dict(self.gravity.to_dict(), source=self.gravity_source)
         d["wind"] = self.wind
+        d["air_speed_uncertainty"] = self.air_speed_uncertainty
         return d
 
 
@@ -311,7 +316,8 @@ class FootageRecord:
 
 @dataclass(frozen=True)
 class Method:
-    """How the result was obtained, in words (``geometry``: how the camera saw the flight,
+    """How the result was obtained, in words (``geometry``: how the camera saw the flight;
+    ``flight_physics``: what was done about spin, air movement and the choice of drag law;
     "" when nothing is to be said)."""
 
     model_equation: str
@@ -321,6 +327,7 @@ class Method:
     drag_model: str = ""
     drag_model_text: str = ""
     geometry: str = ""
+    flight_physics: str = ""
 
     def to_dict(self) -> dict:
         return {
@@ -331,6 +338,7 @@ class Method:
             "fit_method": self.fit_method,
             "uncertainty_method": self.uncertainty_method,
             "geometry": self.geometry,
+            "flight_physics": self.flight_physics,
         }
 
 
@@ -575,6 +583,8 @@ class CertificateContent:
         Number and date, once issued.
     outputs : Mapping
         The files written, by kind, once issued.
+    flight_physics : Mapping
+        The lift test, the air movement and the drag-law choice as JSON-ready data.
     """
 
     software_version: str
@@ -595,6 +605,7 @@ class CertificateContent:
     fit_summary: Mapping[str, Any] = field(default_factory=dict)
     issue: Issue | None = None
     outputs: Mapping[str, str] = field(default_factory=dict)
+    flight_physics: Mapping[str, Any] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         """The JSON-ready result (the file beside the certificate; the stored record)."""
@@ -610,6 +621,7 @@ class CertificateContent:
             "camera": self.camera.to_dict(),
             "footage": [f.to_dict() for f in self.footage],
             "method": self.method.to_dict(),
+            "flight_physics": dict(self.flight_physics),
             "result": self.result.to_dict(),
             "uncertainty_budget": self.budget.to_dict(),
             "monte_carlo": None if self.monte_carlo is None else self.monte_carlo.to_dict(),

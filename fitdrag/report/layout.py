@@ -42,6 +42,7 @@ class Block:
     height: float  # [in]
     draw: Callable[[Any, float], None]  # draw(fig, top_y_in)
     page_break_before: bool = False
+    unless_room: float | None = None  # no break when this much room [in] is left
 
 
 class Layout:
@@ -53,8 +54,10 @@ class Layout:
     def add(self, height, draw, page_break_before=False):
         self.blocks.append(Block(height, draw, page_break_before))
 
-    def page_break(self):
-        self.blocks.append(Block(0.0, lambda fig, y: None, True))
+    def page_break(self, unless_room: float | None = None):
+        """Start a new page; with ``unless_room`` [in], only when less room than that is left
+        on the current one."""
+        self.blocks.append(Block(0.0, lambda fig, y: None, True, unless_room))
 
     def space(self, h=0.08):
         self.add(h, lambda fig, y: None)
@@ -156,13 +159,15 @@ class Layout:
 
     def paginate(self) -> list[list[tuple[Block, float]]]:
         """Pages of (block, top [in]): a new page where a block would cross the bottom
-        margin or a page break was asked for; empty pages are dropped."""
+        margin or a page break was asked for (and the room it asks for is not left); empty
+        pages are dropped."""
         pages: list[list[tuple[Block, float]]] = [[]]
         y = MARGIN_T + 0.3
         for b in self.blocks:
-            if (b.page_break_before and pages[-1]) or (
-                y + b.height > PAGE_H - MARGIN_B and pages[-1]
-            ):
+            wanted = b.page_break_before and (
+                b.unless_room is None or y + b.unless_room > PAGE_H - MARGIN_B
+            )
+            if (wanted and pages[-1]) or (y + b.height > PAGE_H - MARGIN_B and pages[-1]):
                 pages.append([])
                 y = MARGIN_T + 0.3
             if b.height > 0 or not b.page_break_before:

@@ -350,6 +350,7 @@ def job_text(test_date: str) -> str:
         f"pressure_uncertainty = {air['pressure_uncertainty']!r}     # Pa",
         f"relative_humidity = {air['relative_humidity']!r}       # %",
         f"relative_humidity_uncertainty = {air['relative_humidity_uncertainty']!r}   # %",
+        "air_speed_uncertainty = 0.02     # m/s, room air along the flight (anemometer)",
         "",
         "[site]",
         f"latitude = {SITE['latitude']!r}                # degrees",

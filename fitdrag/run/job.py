@@ -118,15 +118,20 @@ class AirSection:
         Relative humidity. [%]
     density : Measured or None
         Air density, when stated instead of computed. [kg/m³]
-    viscosity : float or None
-        Dynamic viscosity, when stated (with density only). [Pa s]
+    viscosity : Measured or None
+        Dynamic viscosity with its standard uncertainty, when stated (with density
+        only). [Pa s]
+    air_speed_uncertainty : float or None
+        Standard uncertainty of the still-air assumption: the air's speed along the flight
+        (estimate 0, or the stated wind). [m/s]
     """
 
     temperature: Measured | None = None
     pressure: Measured | None = None
     relative_humidity: Measured | None = None
     density: Measured | None = None
-    viscosity: float | None = None
+    viscosity: Measured | None = None
+    air_speed_uncertainty: float | None = None
 
 
 @dataclass(frozen=True)
@@ -329,18 +334,28 @@ class Throw:
 
 @dataclass(frozen=True)
 class FitSection:
-    """``[fit]``: options of :func:`fitdrag.fit.fitting.fit_tracks` (None: not given)."""
+    """``[fit]``: options of :func:`fitdrag.fit.fitting.fit_tracks` (None: not given).
+
+    ``lift``: True or False fits with or without a lift coefficient; ``"auto"`` (also when
+    not given) tests whether the data need one (:func:`fitdrag.fit.lift_check.check_lift`).
+    """
 
     model: str | None = None
     robust: bool | None = None
     noise: str | None = None
-    lift: bool | None = None
+    lift: bool | str | None = None
     wind: float | None = None  # along +x [m/s]
 
+    @property
+    def lift_test(self) -> bool:
+        """Whether the lift coefficient is to be tested for (``lift = "auto"`` or not given)."""
+        return self.lift is None or self.lift == "auto"
+
     def options(self) -> dict[str, Any]:
-        """The given options, by keyword."""
+        """The given options, by keyword (``lift`` only when stated true or false)."""
         return {f.name: getattr(self, f.name) for f in fields(self)
-                if getattr(self, f.name) is not None}  # fmt: skip
+                if getattr(self, f.name) is not None
+                and not (f.name == "lift" and self.lift_test)}  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -429,7 +444,9 @@ class Job:
         v = self.nominal_values()
         v.update(values or {})
         if "air_density" in v:
-            visc = self.air.viscosity
+            visc = v.get("air_viscosity")
+            if visc is None and self.air.viscosity is not None:
+                visc = self.air.viscosity.value
             if visc is None and self.air.temperature is not None:
                 visc = float(air_viscosity(self.air.temperature.value))
             kw = {"viscosity": visc} if visc is not None else {}
@@ -473,6 +490,8 @@ class Job:
         a = self.air
         if a.density is not None:
             q.append(a.density.input("air_density", "air density"))
+            if a.viscosity is not None and a.viscosity.uncertainty > 0:
+                q.append(a.viscosity.input("air_viscosity", "air viscosity (Reynolds number)"))
         else:
             q.append(a.temperature.input("temperature", "air temperature (density, viscosity)"))
             q.append(a.pressure.input("pressure", "air pressure (density)"))
@@ -501,6 +520,16 @@ class Job:
                 )  # fmt: skip
             )
         q.extend(self.planar_inputs())
+        if a.air_speed_uncertainty:
+            q.append(
+                InputQuantity(
+                    "air_speed",
+                    0.0,
+                    float(a.air_speed_uncertainty),
+                    "m/s",
+                    description="air speed along the flight (air movement)",
+                )  # fmt: skip
+            )
         g = self.site.gravity
         q.append(
             g.input(

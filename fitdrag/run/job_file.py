@@ -36,6 +36,7 @@ rate of footage is ``[camera] fps``.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import tomllib
 from pathlib import Path
@@ -284,7 +285,29 @@ def _specimen(where, d):
     return SpecimenSection(**out)
 
 
+#: Why a job states the air's movement, and how.
+AIR_SPEED_FIX = (
+    "give the standard uncertainty of the air's speed along the flight in m/s (the fit takes "
+    "the air as still, or as the stated [fit] wind; a 0.1 m/s draft moves Cd of a ball at "
+    "9 m/s by about 2 %), e.g. air_speed_uncertainty = 0.05 from an anemometer near the "
+    "flight path; 0 takes the air as exactly still (allowed, with a warning)."
+)
+
+
 def _air(where, d):
+    sec = "air"
+    if "air_speed_uncertainty" not in d:
+        missing(where, sec, None, "air_speed_uncertainty", AIR_SPEED_FIX)
+    if "viscosity_uncertainty" in d and "viscosity" not in d:
+        fail(
+            f"{where.key(sec, None, 'viscosity_uncertainty')}: given without viscosity; add "
+            f"viscosity or remove it."
+        )
+    air = _air_state(where, d)
+    return dataclasses.replace(air, air_speed_uncertainty=d["air_speed_uncertainty"])
+
+
+def _air_state(where, d):
     sec = "air"
     thermo = [k for k in ("temperature", "pressure", "relative_humidity") if k in d]
     if "density" in d:
@@ -298,7 +321,7 @@ def _air(where, d):
             out["temperature"] = Measured(d["temperature"], d.get("temperature_uncertainty", 0.0),
                                           "°C")  # fmt: skip
         if "viscosity" in d:
-            out["viscosity"] = d["viscosity"]
+            out["viscosity"] = measured(where, sec, d, "viscosity", "Pa*s", "")
         for k in ("pressure", "relative_humidity"):
             if k in d:
                 out[k] = Measured(

@@ -129,7 +129,7 @@ class Where:
 
 @dataclass(frozen=True)
 class Key:
-    kind: str  # str, date, bool, int, path, qty, unc, choice, point
+    kind: str  # str, date, bool, lift, int, path, qty, unc, choice, point
     unit: str = "dimensionless"
     lo: float | None = None  # plausible range for numbers (inclusive)
     hi: float | None = None
@@ -206,6 +206,13 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "density": _q("kg/m**3", 0.3, 1.6, "give the air density in kg/m³ (about 1.2)"),
         "density_uncertainty": _u("kg/m**3", 1.0),
         "viscosity": _q("Pa*s", 1e-6, 1e-4, "give the dynamic viscosity in Pa s (about 1.8e-5)"),
+        "viscosity_uncertainty": _u("Pa*s", 1e-4),
+        "air_speed_uncertainty": _u(
+            "m/s",
+            5.0,
+            "give the standard uncertainty of the air's speed along the flight in m/s (e.g. "
+            '0.05, from an anemometer near the flight path) or "5 cm/s"',
+        ),
     },
     "site": {
         "gravity": _q("m/s**2", 9.7, 9.9, "give the local acceleration of free fall in m/s²"),
@@ -327,7 +334,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "model": Key("str"),
         "robust": Key("bool"),
         "noise": Key("choice", choices=("auto", "white", "ar1")),
-        "lift": Key("bool"),
+        "lift": Key("lift"),
         "wind": Key("qty", "m/s", -50.0, 50.0, "give the wind along +x in m/s"),
     },
     "uncertainty": {
@@ -378,6 +385,13 @@ def check_value(where: Where, sec: str, idx, key: str, spec: Key, raw: Any, fold
     if kind == "bool":
         if not isinstance(raw, bool):
             fail(f"{loc}: expected true or false, got {raw!r}.")
+        return raw
+    if kind == "lift":
+        if not (isinstance(raw, bool) or raw == "auto"):
+            fail(
+                f'{loc}: expected true, false or "auto", got {raw!r}; "auto" (the default) tests '
+                f"whether the data need a lift coefficient."
+            )
         return raw
     if kind == "int":
         if isinstance(raw, bool) or not isinstance(raw, int):

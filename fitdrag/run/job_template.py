@@ -65,6 +65,12 @@ relative_humidity_uncertainty = 3 # %
 # or, instead of the three above:
 # density = 1.19                  # kg/m^3
 # density_uncertainty = 0.005     # kg/m^3
+# viscosity = 1.81e-5             # Pa s (with density only; else from the temperature)
+# viscosity_uncertainty = 1e-7    # Pa s
+# Required: the fit takes the air as still (or as the [fit] wind).  Standard uncertainty
+# of the air's speed along the flight, e.g. from an anemometer near the flight path; a
+# 0.1 m/s draft moves Cd of a ball at 9 m/s by about 2 %.  0 = exactly still (a warning).
+air_speed_uncertainty = 0.05      # m/s
 
 [site]
 # local acceleration of free fall; either gravity (+ gravity_uncertainty) or
@@ -132,6 +138,8 @@ reference = "customer specification (synthetic example)"
 model = "constant"                # drag model
 robust = true                     # reject gross outliers
 noise = "auto"                    # "auto", "white" or "ar1"
+lift = "auto"                     # "auto": test whether the data need a lift coefficient
+                                  #    (spin); true / false to fit with / without one
 
 [uncertainty]
 monte_carlo = 0                   # trials of the Monte Carlo check (0 = off; e.g. 10000)

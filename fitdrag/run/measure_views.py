@@ -47,6 +47,10 @@ class ViewMeasurementFit:
         The throws' weights. [-]
     birge_ratio : float
         Scatter of the throws against their uncertainties (nan with one throw). [-]
+    lift_check : LiftCheck or None
+        The lift test, when the job asked for it (``[fit] lift = "auto"``, the default).
+    lift_sensitivity : float
+        ∂Cd/∂C_L of the fits without lift, to first order (0 when lift is fitted). [-]
     """
 
     throws: tuple
@@ -55,6 +59,8 @@ class ViewMeasurementFit:
     dof: float
     weights: np.ndarray
     birge_ratio: float
+    lift_check: Any = None
+    lift_sensitivity: float = 0.0
 
     @property
     def model(self) -> str:
@@ -258,10 +264,21 @@ def fit_throws(job: Job, inputs: list[list[ViewInput]]):
             kw[name] = opts[name]
     if "wind" in opts:
         kw["wind"] = (float(opts["wind"]), 0.0, 0.0)
+    check, sensitivity, results = None, 0.0, None
+    if job.fit.lift_test:
+        from fitdrag.fit.lift_check import check_lift_views
+
+        check, results, sensitivity = check_lift_views(
+            [[v.view for v in views] for views in inputs], specimen, air,
+            gravity=job.gravity(), **kw,
+        )  # fmt: skip
     throws = []
     for i, views in enumerate(inputs):
         label = job.throws[i].label
-        r = fit_views([v.view for v in views], specimen, air, gravity=job.gravity(), **kw)
+        if results is not None:
+            r = results[i]
+        else:
+            r = fit_views([v.view for v in views], specimen, air, gravity=job.gravity(), **kw)
         if not r.success:
             raise ConvergenceError(f"the 3-D fit of throw {i + 1} ({label}) did not converge: "
                                    f"{r.message}")  # fmt: skip
@@ -276,7 +293,7 @@ def fit_throws(job: Job, inputs: list[list[ViewInput]]):
             f"{birge:.2f}); the statistical uncertainty is enlarged by that factor.",
             stacklevel=2,
         )
-    return ViewMeasurementFit(tuple(throws), mean, u, dof, w, birge)
+    return ViewMeasurementFit(tuple(throws), mean, u, dof, w, birge, check, sensitivity)
 
 
 def footage_records(job: Job, inputs: list[list[ViewInput]]) -> tuple[FootageRecord, ...]:
@@ -364,6 +381,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     """:func:`fitdrag.run.pipeline.measure` for a job whose throws are measured in 3-D."""
     from fitdrag.fit.view_budget_model import ViewRefitModel
     from fitdrag.report.content import CameraSettings, FitFacts
+    from fitdrag.run.flight_physics import flight_physics_3d, still_air_warning
     from fitdrag.run.pipeline import (
         Measurement,
         _monte_carlo_trials,
@@ -373,6 +391,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     from fitdrag.uncertainty.gum import InputQuantity
 
     n_mc = _monte_carlo_trials(job, monte_carlo)
+    still_air_warning(job)
     inputs_3d, hashes = read_views(job, progress=progress)
     fit = fit_throws(job, inputs_3d)
     air = job.make_air()
@@ -387,12 +406,15 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     ]  # fmt: skip
     nominal = {q.name: q.value for q in quantities}
     model = ViewRefitModel(list(fit.throws), nominal, length=job.specimen.length,
-                           viscosity=air.viscosity)  # fmt: skip
+                           viscosity=air.viscosity,
+                           lift_sensitivity=fit.lift_sensitivity)  # fmt: skip
     u_cam = model.camera_uncertainties()
     for name, (unit, text) in model.camera_names.items():
         if u_cam[name] > 0:
             quantities.append(InputQuantity(name, model.nominal[name], u_cam[name], unit,
                                             description=text))  # fmt: skip
+    physics = flight_physics_3d(job, model, fit)
+    quantities += physics.inputs()
     stat = (fit.u_cd, fit.dof if fit.dof > 0 else math.inf)
     budget, mc, check = budget_and_checks(
         job, model, quantities, stat, n_mc, adaptive=adaptive, seed=seed, workers=workers,
@@ -441,8 +463,9 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     content = certificate_content(
         job, float(fit.cd), budget, mc, check, air=air, wind=job.fit_options().get("wind", 0.0),
         statistical_u=float(fit.u_cd), camera=camera, footage=footage_records(job, inputs_3d),
-        method=_method_3d(fit, budget, mc, geometry_text(job, inputs_3d, fit)),
-        fit_facts=facts, fit_summary=summary, hashes=hashes,
+        method=replace(_method_3d(fit, budget, mc, geometry_text(job, inputs_3d, fit)),
+                       flight_physics=physics.text()),
+        fit_facts=facts, fit_summary=summary, hashes=hashes, physics=physics,
     )  # fmt: skip
     verdict = content.conformity.verdict if content.conformity is not None else None
     tracks = [v.footage.track for views in inputs_3d for v in views]

@@ -50,6 +50,7 @@ from fitdrag.report.content import (
     MonteCarloCheck,
     Result,
 )
+from fitdrag.run.flight_physics import decide_lift, planar_flight_physics, still_air_warning
 from fitdrag.run.job import Job
 
 if TYPE_CHECKING:  # annotations only
@@ -309,6 +310,7 @@ def perspective_nonlinear_lines(budget) -> list[str]:
         ln.name
         for ln in budget.lines
         if ln.name.startswith("out_of_plane_angle")
+        and ln.standard_uncertainty > 0
         and not ln.nonlinearity <= NONLINEARITY_LIMIT * abs(ln.contribution)
     ]
 
@@ -415,10 +417,13 @@ def measure(
         return measure_in_3d(job, monte_carlo=monte_carlo, adaptive=adaptive, seed=seed,
                              workers=workers, progress=progress)  # fmt: skip
     n_mc = _monte_carlo_trials(job, monte_carlo)
+    still_air_warning(job)
     tracks, hashes = read_throws(job, progress=progress)
     specimen = job.make_specimen()
     air = job.make_air()
     fopts = job.fit_options()
+    lift, lift_check = decide_lift(job, tracks, specimen, air, fopts)
+    fopts["lift"] = lift
     fit = fit_tracks(tracks, specimen, air, gravity=job.gravity(), **fopts)
     if not fit.success:
         raise ConvergenceError(f"the fit did not converge: {fit.message}")
@@ -426,6 +431,8 @@ def measure(
     u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
     u_roll, u_roll_source = roll_uncertainty(job, tracks)
     inputs = job.input_quantities(scale_relative_uncertainty=u_scale, roll_uncertainty=u_roll)
+    physics = planar_flight_physics(job, fit, lift_check)
+    inputs += physics.inputs()
     nominal = {q.name: q.value for q in inputs}
     model = DragRefitModel(fit, tracks, nominal, length=job.specimen.length,
                            viscosity=air.viscosity)  # fmt: skip
@@ -457,10 +464,12 @@ def measure(
             out_of_plane_uncertainty_deg=job.camera.out_of_plane_uncertainty,
         ),
         footage=_footage_records(job, tracks),
-        method=_method(fit_dict, fit, budget, mc, planar_geometry_text(job)),
+        method=dataclasses.replace(_method(fit_dict, fit, budget, mc, planar_geometry_text(job)),
+                                   flight_physics=physics.text()),
         fit_facts=FitFacts.from_summary(fit_dict),
         fit_summary=fit_dict,
         hashes=hashes,
+        physics=physics,
     )  # fmt: skip
     verdict = content.conformity.verdict if content.conformity is not None else None
     return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content)
@@ -509,9 +518,10 @@ def budget_and_checks(job: Job, model, inputs, stat, n_mc: int, *, adaptive=None
 
 
 def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, statistical_u,
-                        camera, footage, method, fit_facts, fit_summary,
-                        hashes) -> CertificateContent:  # fmt: skip
-    """What the certificate says, and the conformity decision (in ``conformity``)."""
+                        camera, footage, method, fit_facts, fit_summary, hashes,
+                        physics=None) -> CertificateContent:  # fmt: skip
+    """What the certificate says, and the conformity decision (in ``conformity``);
+    ``physics`` is the measurement's :class:`fitdrag.run.flight_physics.FlightPhysics`."""
     from fitdrag._version import __version__
     from fitdrag.report.numbers import formatter_for
     from fitdrag.uncertainty.decision import decide
@@ -558,11 +568,14 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
             ),
             air_viscosity=air.viscosity,
             air_viscosity_source=(
-                "stated" if a.viscosity is not None else "Sutherland's law at the air temperature"
+                f"stated, standard uncertainty {a.viscosity.uncertainty:.2g} Pa s"
+                if a.viscosity is not None
+                else "Sutherland's law at the air temperature"
             ),
             gravity=job.site.gravity.estimate(),
             gravity_source=job.site.gravity_source,
             wind=wind,
+            air_speed_uncertainty=a.air_speed_uncertainty,
         ),
         camera=camera,
         footage=footage,
@@ -588,6 +601,7 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
         fit_summary=fit_summary,
         input_hashes=dict(hashes),
         job_path=str(job.path),
+        flight_physics={} if physics is None else physics.to_dict(),
     )
 
 
@@ -700,6 +714,20 @@ def summary(meas: Measurement) -> str:
             for ln in sorted(b.lines, key=lambda x: -x.share)[:4]
         ),
     ]
+    lift = (meas.content.flight_physics or {}).get("lift") or {}
+    if lift.get("tested"):
+        t = lift["test"]
+        p = t["f_test"]["p_value"]
+        ptxt = "" if p is None else ("F-test p < 1e-6" if p < 1e-6 else f"F-test p = {p:.2g}")
+        ptxt += f"{', ' if ptxt else ''}false-alarm rate {100 * t['false_alarm_rate']:g} %"
+        if lift["fitted"]:
+            cl = lift["lift_coefficient"]
+            lines.append(f"  spin: lift detected ({ptxt}); fitted C_L = {cl['value']:.3g} ± "
+                         f"{cl['standard_uncertainty']:.2g}")  # fmt: skip
+        elif t["largest_lift_coefficient_allowed"] is not None:
+            lines.append(f"  spin: no lift detected ({ptxt}); |C_L| <= "
+                         f"{t['largest_lift_coefficient_allowed']:.2g} allowed, its effect in "
+                         f"the budget")  # fmt: skip
     facts = meas.content.fit
     if not facts.identifiable:
         lines.append(f"  WARNING: {facts.identifiability_message}")

@@ -281,6 +281,8 @@ def job_text(sc: Scenario3D, files: ScenarioFiles, *, test_date: str = "2026-12-
         f"density = {sc.air_density!r}            # kg/m^3",
         "density_uncertainty = 0.004   # kg/m^3",
         f"viscosity = {sc.viscosity!r}        # Pa s",
+        "viscosity_uncertainty = 0.0   # Pa s (synthetic: exact)",
+        "air_speed_uncertainty = 0.02  # m/s, room air along the flight (anemometer)",
         "",
         *(
             [
