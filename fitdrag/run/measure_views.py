@@ -244,6 +244,22 @@ def _board_of(ft) -> dict:
     return {"marker_corners": corners, "board": MarkerBoard(cal.marker_size, layout)}
 
 
+def _scale_uncertainty(v: ViewInput) -> float:
+    """Relative standard uncertainty of the board's scale for one view: the stated
+    ``scale_uncertainty`` of the marker side; for a track file without it, the header's
+    ``scale_relative_uncertainty`` (which also counts the corners' precision, already in the
+    pose's covariance: a cautious value)."""
+    if v.source.scale_uncertainty is not None:
+        return float(v.source.scale_uncertainty)
+    if v.source.track is not None:
+        header = dict(v.footage.track.meta.get("header") or {})
+        try:
+            return float(header.get("scale_relative_uncertainty", 0.0))
+        except ValueError:
+            return 0.0
+    return 0.0
+
+
 def fit_throws(job: Job, inputs: list[list[ViewInput]]):
     """Fit every throw in 3-D and combine them: (ViewMeasurementFit, per-throw ViewThrow).
 
@@ -395,8 +411,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     inputs_3d, hashes = read_views(job, progress=progress)
     fit = fit_throws(job, inputs_3d)
     air = job.make_air()
-    scale_u = [v.source.scale_uncertainty or 0.0 for views in inputs_3d for v in views]
-    u_scale = max(scale_u)
+    u_scale = max(_scale_uncertainty(v) for views in inputs_3d for v in views)
     quantities = [q for q in job.input_quantities(scale_relative_uncertainty=u_scale,
                                                   roll_uncertainty=0.0) if q.name != "roll"]  # fmt: skip
     quantities = [
