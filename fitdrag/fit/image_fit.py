@@ -82,6 +82,11 @@ __all__ = ["ViewFitResult", "ViewResult", "fit_views"]
 OFFSET_RANGE_FRAMES = 1.5
 #: Largest whole-frame lag between two cameras searched for the start. [frames]
 MAX_LAG_FRAMES = 25
+#: Range of a fitted diameter measure lam (0 = width across the motion, 1 = equal-area
+#: diameter; a circle fitted to the blob lies between). [1]
+MEASURE_RANGE = (-1.0, 2.0)
+#: The named diameter measures of :func:`fit_views`.
+DIAMETER_MEASURES = {"across_motion": 0.0, "equal_area": 1.0, "estimate": None}
 
 
 @dataclass(frozen=True, eq=False)
@@ -116,6 +121,11 @@ class ViewResult:
         RMS of the u and v residuals. [px]
     distance : float
         Median distance from the camera centre to the fitted flight. [m]
+    diameter_measure, diameter_measure_uncertainty : float
+        What the diameters measured, lam (0 = the outline's width across the motion, 1 = its
+        equal-area diameter), and its standard uncertainty (0 when given); NaN without
+        diameters. [1]
+    diameter_measure_estimated : bool
     """
 
     name: str
@@ -137,6 +147,9 @@ class ViewResult:
     ar1_coefficients: tuple[float, ...]
     residual_rms: float
     distance: float
+    diameter_measure: float = math.nan
+    diameter_measure_uncertainty: float = math.nan
+    diameter_measure_estimated: bool = False
 
 
 @dataclass(frozen=True, eq=False)
@@ -152,7 +165,9 @@ class ViewFitResult:
         Drag model name.
     parameter_names : tuple of str
         Fitted parameters: drag law's (then ``lift_coefficient``), the launch state at
-        ``reference_time``, then ``time_offset_<view number>`` for each estimated offset.
+        ``reference_time``, then ``time_offset_<view number>`` for each estimated offset,
+        then ``diameter_measure_<view number>`` for each view whose diameter measure is
+        fitted.
     values : ndarray
         Their values (SI). The launch state here is at ``reference_time``.
     covariance : ndarray
@@ -282,6 +297,36 @@ def _check_views(views) -> list[CameraView]:
     return views
 
 
+def _diameter_measure(value) -> float | None:
+    if isinstance(value, str):
+        if value not in DIAMETER_MEASURES:
+            raise InputError(
+                f"diameter_measure: unknown measure {value!r}; use 'estimate', "
+                f"'across_motion', 'equal_area' or a number between them (0 to 1)."
+            )
+        return DIAMETER_MEASURES[value]
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
+        return float(value)
+    raise InputError(
+        f"diameter_measure: expected 'estimate', 'across_motion', 'equal_area' or a finite "
+        f"number, got {value!r}."
+    )
+
+
+def _pooled(problem: ImageProblem, sums, counts) -> list[float]:
+    """Noise level of every channel from its sum of squared scaled residuals ``sums`` over
+    ``counts`` residuals, a view's u and v pooled (one centroid sigma per frame)."""
+    out = []
+    for ch in problem.channels:
+        group = [
+            c for c, other in enumerate(problem.channels)
+            if other.view_index == ch.view_index
+            and (other.kind == ch.kind or (other.kind < 2 and ch.kind < 2))
+        ]  # fmt: skip
+        out.append(math.sqrt(sum(sums[c] for c in group) / sum(counts[c] for c in group)))
+    return out
+
+
 # ----------------------------------------------------------------------------- start
 
 
@@ -388,6 +433,7 @@ def fit_views(
     coverage_factor: float | None = None,
     initial: dict | None = None,
     max_nfev: int = 300,
+    diameter_measure: str | float = "estimate",
 ) -> ViewFitResult:
     """Fit the drag law and the 3-D flight to one throw seen by one or more cameras.
 
@@ -426,6 +472,12 @@ def fit_views(
         state there is at the reference time).
     max_nfev : int
         Evaluation budget of each optimiser stage.
+    diameter_measure : {"estimate", "across_motion", "equal_area"} or float
+        What the views' apparent diameters measure: the outline's width across the motion
+        (``"across_motion"``, lam = 0), its equal-area diameter (``"equal_area"``, lam = 1),
+        a given ``lam`` in between, or ``"estimate"``: lam fitted per view (a circle fitted
+        to the elliptic blob of a sphere seen off the optical axis lands between the two,
+        depending on the blur; :mod:`fitdrag.fit.image_problem`). [1]
 
     Returns
     -------
@@ -462,6 +514,7 @@ def fit_views(
     radius = 0.5 * float(specimen.length)
     outline = [bool(use_outline) and v.diameter is not None for v in views]
     given = [0.0] + [v.time_offset for v in views[1:]]
+    lam = _diameter_measure(diameter_measure)
 
     # start: a rough 3-D track, the offsets' whole-frame starts, the reference time
     t_start, pts, off_start = _start_track(views, radius, outline, given)
@@ -472,14 +525,15 @@ def fit_views(
         low = s - OFFSET_RANGE_FRAMES / fps if g is None else g
         lows.append(float(v.camera.row_time(v.frame_times[0] + low, 0.0)))
     t_ref = min(t_first, *lows)
+    measures = [lam] * len(views)
     problem = ImageProblem(views, specimen, conditions, dm, (), lift, wind_v, axis, outline,
-                           given, t_ref)  # fmt: skip
+                           given, t_ref, measures)  # fmt: skip
     constants: tuple[float, ...] = ()
     if dm.constants:
         speed = np.linalg.norm(np.gradient(pts, t_start, axis=0) - wind_v, axis=1)
         constants = dm.constants_for(air.density * speed * specimen.length / air.viscosity)
         problem = ImageProblem(views, specimen, conditions, dm, constants, lift, wind_v, axis,
-                               outline, given, t_ref)  # fmt: skip
+                               outline, given, t_ref, measures)  # fmt: skip
     names = problem.parameter_names()
     problem.names = names
     bounds = [tuple(b) for b in dm.bounds] + ([(-5.0, 5.0)] if lift else [])
@@ -487,10 +541,13 @@ def fit_views(
     for g, s in zip(given, off_start):
         if g is None:
             bounds.append((s - OFFSET_RANGE_FRAMES / fps, s + OFFSET_RANGE_FRAMES / fps))
+    n_measures = sum(j is not None for j in problem.measure_index)
+    bounds += [MEASURE_RANGE] * n_measures
     problem.bounds = bounds
     theta = np.concatenate(
         [np.array(dm.initial, float), [0.0] if lift else np.zeros(0),
-         _launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None]]
+         _launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None],
+         [0.5] * n_measures]
     )  # fmt: skip
     if initial:
         for k, val in initial.items():
@@ -498,14 +555,15 @@ def fit_views(
                 raise InputError(f"initial: unknown parameter {k!r}; valid: {', '.join(names)}.")
             theta[names.index(k)] = float(val)
 
-    # noise levels: a robust first estimate per channel (second differences), stated = floor
+    # noise levels: a robust first estimate per channel (second differences), stated = floor;
+    # a view's u and v share one level (one centroid sigma per frame, as CameraView states)
     levels = []
     for ch in problem.channels:
         if ch.stated is not None:
             levels.append(1.0)
         else:
             levels.append(noise_floor(ch.observed, ch.observed)[0])
-    problem.set_noise(levels=levels)
+    problem.set_noise(levels=_pooled(problem, [lv * lv for lv in levels], [1] * len(levels)))
 
     messages: list[str] = []
     best = None
@@ -533,11 +591,13 @@ def fit_views(
         raw = problem.raw_residuals(th)
         if raw is None:
             return None
-        out = []
-        for ch, r in zip(problem.channels, raw):
-            ratio = float(np.sqrt(np.mean((r / ch.relative) ** 2))) * corr
-            out.append(max(ratio, 1.0) if ch.stated is not None else max(ratio, 1e-9))
-        return out
+        sums = [float(np.sum((r / ch.relative) ** 2)) * corr * corr for ch, r in
+                zip(problem.channels, raw)]  # fmt: skip
+        out = _pooled(problem, sums, [ch.observed.size for ch in problem.channels])
+        return [
+            max(lv, 1.0) if ch.stated is not None else max(lv, 1e-9)
+            for ch, lv in zip(problem.channels, out)
+        ]
 
     previous = np.array([ch.level for ch in problem.channels])
     for _it in range(5):
@@ -615,7 +675,8 @@ def fit_views(
         success = False
         messages.append("the flight cannot be simulated or projected at the fitted parameters")
     return _assemble(problem, theta, cov, sims if ok_eval else None, success, messages,
-                     noise_model, coverage_factor, t_first, noise, use_outline, dof)  # fmt: skip
+                     noise_model, coverage_factor, t_first, noise, use_outline, dof,
+                     diameter_measure)  # fmt: skip
 
 
 # ----------------------------------------------------------------------------- assembly
@@ -633,7 +694,7 @@ def _launch_at(problem: ImageProblem, theta, t: float):
 
 
 def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user, t_first,
-              noise_opt, use_outline, dof_plain) -> ViewFitResult:  # fmt: skip
+              noise_opt, use_outline, dof_plain, measure_opt) -> ViewFitResult:  # fmt: skip
     dm = problem.model
     air = problem.conditions.air
     finite = bool(np.all(np.isfinite(cov)))
@@ -652,6 +713,7 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
 
     # per view results, Reynolds numbers and depth range
     offsets = problem.offsets(theta)
+    lams = problem.measures(theta)
     times = problem.observation_times(theta)
     pred, ok_pred = problem.predict(theta)
     raw = problem.raw_residuals(theta) if ok_pred else None
@@ -660,6 +722,8 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         chans = [(c, ch) for c, ch in enumerate(problem.channels) if ch.view_index == i]
         col = problem.offset_index[i]
         u_off = math.sqrt(max(cov[col, col], 0.0)) if (col is not None and finite) else 0.0
+        mcol = problem.measure_index[i]
+        u_lam = math.sqrt(max(cov[mcol, mcol], 0.0)) if (mcol is not None and finite) else 0.0
         if pred is not None and sims is not None:
             pu, pv, pd = pred[i]
             pos, vel = sims[i][0], sims[i][1]
@@ -697,6 +761,9 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
                 ar1_coefficients=tuple(float(ch.phi) for _c, ch in chans),
                 residual_rms=float(np.sqrt(np.mean(np.concatenate((ru, rv)) ** 2))),
                 distance=dist,
+                diameter_measure=float(lams[i]) if 2 in by_kind else math.nan,
+                diameter_measure_uncertainty=float(u_lam) if 2 in by_kind else math.nan,
+                diameter_measure_estimated=mcol is not None,
             )
         )
     del raw
@@ -731,6 +798,18 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         messages.append(
             f"{', '.join(at_upper)} reached its upper bound: the drag needed to follow the "
             f"observations is implausible; check the mass [kg], size [m], frame rate and cameras"
+        )
+    at_measure_bound = [
+        problem.names[j] for j in problem.measure_index
+        if j is not None and min(abs(theta[j] - b) for b in problem.bounds[j]) < 1e-9
+    ]  # fmt: skip
+    if success and at_measure_bound:
+        success = False
+        messages.append(
+            f"{', '.join(at_measure_bound)} reached the edge of its range {MEASURE_RANGE}: the "
+            f"apparent diameters are neither the outline's width across the motion nor its "
+            f"equal-area diameter nor between them; check the diameters, the specimen's size "
+            f"[m] and the camera, or fit without them (use_outline=False)"
         )
     at_offset_bound = [
         problem.names[j] for j in problem.offset_index
@@ -772,5 +851,6 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         options={
             "model": dm.name, "lift": problem.lift, "spin_axis": tuple(problem.spin_axis),
             "wind": tuple(problem.wind), "noise": noise_opt, "use_outline": bool(use_outline),
+            "diameter_measure": measure_opt,
         },
     )  # fmt: skip

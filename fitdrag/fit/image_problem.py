@@ -20,7 +20,15 @@ d(pixel)/d(offset) = d(pixel)/d(point) · velocity.
 
 Parameter layout: the drag law's parameters (then C_L when fitted), the launch state
 (x0, y0, z0, vx0, vy0, vz0) at the reference time ``t_ref``, then one time offset per view
-whose offset is estimated.  Residual layout: per view its noise channels (u, v, then the
+whose offset is estimated, then one diameter measure per view whose measure is fitted.
+
+The apparent diameter a tracker reports depends on how it measures: a circle fitted to the
+blob of a sphere seen off the optical axis (an ellipse, elongated towards the principal
+point) lands between the ellipse's width across the motion and its equal-area diameter, the
+nearer the latter the shorter the blur.  The diameter channel's prediction is therefore
+``w + lam (d_area - w)`` (:func:`fitdrag.geometry.views.outline_width`,
+:func:`fitdrag.geometry.views.outline_area_diameter`) with ``lam`` given per view or fitted;
+``d pred / d lam = d_area - w``.  Residual layout: per view its noise channels (u, v, then the
 diameter when used), each divided by its noise standard deviation and, under AR(1) noise,
 Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
 """
@@ -31,7 +39,7 @@ import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
 from fitdrag.fit.problem import FAIL_RESIDUAL, FIT_RTOL
-from fitdrag.geometry.views import outline_centre, outline_width
+from fitdrag.geometry.views import outline_area_diameter, outline_centre, outline_width
 from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
 
 #: Names of the noise channels of a view.
@@ -86,10 +94,15 @@ class ImageProblem:
         Per view: the known time offset [s], or None when it is a fitted parameter.
     t_ref : float
         Time of the launch state, at or before every observation. [s]
+    diameter_measures : list of float or None, optional
+        Per view, what its apparent diameters measure: ``lam`` in
+        ``d = w + lam (d_area - w)`` between the outline's width across the motion ``w``
+        (``lam = 0``, the default) and its equal-area diameter ``d_area`` (``lam = 1``); None
+        = a fitted parameter (``diameter_measure_<view number>``). [1]
     """
 
     def __init__(self, views, specimen, conditions, model, constants, lift, wind, spin_axis,
-                 use_outline, offsets, t_ref):  # fmt: skip
+                 use_outline, offsets, t_ref, diameter_measures=None):  # fmt: skip
         self.views = list(views)
         self.specimen = specimen
         self.conditions = conditions
@@ -107,9 +120,16 @@ class ImageProblem:
         for off in self.known_offsets:
             self.offset_index.append(j if off is None else None)
             j += off is None
-        self.n_params = j
         self.use_outline = [bool(u) and v.diameter is not None for u, v in zip(use_outline, views)]
+        measures = [0.0] * len(self.views) if diameter_measures is None else diameter_measures
+        self.known_measures = [None if m is None else float(m) for m in measures]
+        self.measure_index: list[int | None] = []
+        for used, m in zip(self.use_outline, self.known_measures):
+            self.measure_index.append(j if (used and m is None) else None)
+            j += used and m is None
+        self.n_params = j
         self.directions = [v.motion_directions() for v in self.views]
+        self.stretch = [v.row_stretch() for v in self.views]
         self.channels: list[Channel] = []
         for i, v in enumerate(self.views):
             gaps = np.diff(v.frames).astype(int)
@@ -134,6 +154,13 @@ class ImageProblem:
         return [
             float(theta[j]) if j is not None else float(k)
             for j, k in zip(self.offset_index, self.known_offsets)
+        ]
+
+    def measures(self, theta) -> list[float]:
+        """Per view the diameter measure ``lam`` at ``theta`` (0 where not fitted). [1]"""
+        return [
+            float(theta[j]) if j is not None else (0.0 if m is None else m)
+            for j, m in zip(self.measure_index, self.known_measures)
         ]
 
     def sim_theta(self, theta) -> np.ndarray:
@@ -182,11 +209,16 @@ class ImageProblem:
         if not ok:
             return None, False
         out = []
+        lams = self.measures(theta)
         for i, (v, (pos, _vel, _j)) in enumerate(zip(self.views, sims)):
             pix, _, _ = outline_centre(v.camera, pos, self.radius)
             d = None
             if v.diameter is not None:
                 d, _ = outline_width(v.camera, pos, self.radius, self.directions[i])
+                if lams[i] != 0.0:
+                    da, _ = outline_area_diameter(v.camera, pos, self.radius,
+                                                  row_stretch=self.stretch[i])  # fmt: skip
+                    d = d + lams[i] * (da - d)
             ok = ok and bool(np.all(np.isfinite(pix)))
             out.append((pix[:, 0], pix[:, 1], d))
         return out, ok
@@ -209,7 +241,7 @@ class ImageProblem:
         jac = np.zeros((self.n_resid, self.n_params))
         sims, ok = self.simulate(theta, True)
         if ok:
-            ok = self._fill(sims, res, jac)
+            ok = self._fill(sims, res, jac, self.measures(theta))
         if not ok:
             res[:] = FAIL_RESIDUAL
             jac[:] = 0.0
@@ -217,9 +249,10 @@ class ImageProblem:
         self._cache = (res, jac, sims, ok)
         return self._cache
 
-    def _fill(self, sims, res, jac) -> bool:
+    def _fill(self, sims, res, jac, lams) -> bool:
         ns = self.n_shared
         per_view = []
+        measure_cols = {}
         for i, (v, (pos, vel, sj)) in enumerate(zip(self.views, sims)):
             pix, dpix, _ = outline_centre(v.camera, pos, self.radius, jacobians=True)
             if not np.all(np.isfinite(pix)) or not np.all(np.isfinite(dpix)):
@@ -230,6 +263,14 @@ class ImageProblem:
                                       jacobians=True)  # fmt: skip
                 if not (np.all(np.isfinite(w)) and np.all(np.isfinite(dw))):
                     return False
+                if lams[i] != 0.0 or self.measure_index[i] is not None:
+                    da, dda = outline_area_diameter(v.camera, pos, self.radius,
+                                                    row_stretch=self.stretch[i],
+                                                    jacobians=True)  # fmt: skip
+                    if not (np.all(np.isfinite(da)) and np.all(np.isfinite(dda))):
+                        return False
+                    measure_cols[i] = da - w
+                    w, dw = w + lams[i] * (da - w), dw + lams[i] * (dda - dw)
                 entry[2] = (w, dw)
             per_view.append((entry, vel, sj))
         for ch in self.channels:
@@ -244,6 +285,9 @@ class ImageProblem:
             col = self.offset_index[ch.view_index]
             if col is not None:
                 j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
+            mcol = self.measure_index[ch.view_index]
+            if ch.kind == 2 and mcol is not None:
+                j[:, mcol] = measure_cols[ch.view_index]
             j *= -inv_s[:, None]
             if ch.phi != 0.0:
                 r = prais_winsten(r, ch.gaps, ch.phi)
@@ -282,4 +326,7 @@ class ImageProblem:
         names = list(self.model.parameters) + (["lift_coefficient"] if self.lift else [])
         names += list(LAUNCH_NAMES_3D)
         names += [f"time_offset_{i + 1}" for i, j in enumerate(self.offset_index) if j is not None]
+        names += [
+            f"diameter_measure_{i + 1}" for i, j in enumerate(self.measure_index) if j is not None
+        ]
         return names
