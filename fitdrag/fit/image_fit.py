@@ -85,6 +85,8 @@ MAX_LAG_FRAMES = 25
 #: Range of a fitted diameter measure lam (0 = width across the motion, 1 = equal-area
 #: diameter; a circle fitted to the blob lies between). [1]
 MEASURE_RANGE = (-1.0, 2.0)
+#: Range of a fitted diameter scale. [1]
+SCALE_RANGE = (0.5, 2.0)
 #: The named diameter measures of :func:`fit_views`.
 DIAMETER_MEASURES = {"across_motion": 0.0, "equal_area": 1.0, "estimate": None}
 
@@ -126,6 +128,9 @@ class ViewResult:
         equal-area diameter), and its standard uncertainty (0 when given); NaN without
         diameters. [1]
     diameter_measure_estimated : bool
+    diameter_scale, diameter_scale_uncertainty : float
+        Scale of the diameters against the specimen's size (given or fitted) and its
+        standard uncertainty (0 when given); NaN without diameters. [1]
     """
 
     name: str
@@ -150,6 +155,8 @@ class ViewResult:
     diameter_measure: float = math.nan
     diameter_measure_uncertainty: float = math.nan
     diameter_measure_estimated: bool = False
+    diameter_scale: float = math.nan
+    diameter_scale_uncertainty: float = math.nan
 
 
 @dataclass(frozen=True, eq=False)
@@ -167,7 +174,7 @@ class ViewFitResult:
         Fitted parameters: drag law's (then ``lift_coefficient``), the launch state at
         ``reference_time``, then ``time_offset_<view number>`` for each estimated offset,
         then ``diameter_measure_<view number>`` for each view whose diameter measure is
-        fitted.
+        fitted, then ``diameter_scale_<view number>`` for each fitted diameter scale.
     values : ndarray
         Their values (SI). The launch state here is at ``reference_time``.
     covariance : ndarray
@@ -327,6 +334,20 @@ def _pooled(problem: ImageProblem, sums, counts) -> list[float]:
     return out
 
 
+def _diameter_scale(value) -> float | None:
+    if isinstance(value, str) and value == "estimate":
+        return None
+    if (
+        isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+        and value > 0
+    ):  # fmt: skip
+        return float(value)
+    raise InputError(
+        f"diameter_scale: expected 'estimate' or a finite number > 0 (1 = the diameters' "
+        f"absolute size is right), got {value!r}."
+    )
+
+
 # ----------------------------------------------------------------------------- start
 
 
@@ -434,6 +455,7 @@ def fit_views(
     initial: dict | None = None,
     max_nfev: int = 300,
     diameter_measure: str | float = "estimate",
+    diameter_scale: str | float = "estimate",
 ) -> ViewFitResult:
     """Fit the drag law and the 3-D flight to one throw seen by one or more cameras.
 
@@ -478,6 +500,12 @@ def fit_views(
         a given ``lam`` in between, or ``"estimate"``: lam fitted per view (a circle fitted
         to the elliptic blob of a sphere seen off the optical axis lands between the two,
         depending on the blur; :mod:`fitdrag.fit.image_problem`). [1]
+    diameter_scale : "estimate" or float
+        Scale of the views' diameters against the specimen's size: ``"estimate"`` (a fitted
+        scale per view: a constant bias of the tracker's diameters and the specimen's
+        diameter uncertainty then do not move the depth, which follows from the diameter's
+        relative change along the flight and from gravity) or a given scale (1 = trust the
+        diameters' absolute size). [1]
 
     Returns
     -------
@@ -515,6 +543,7 @@ def fit_views(
     outline = [bool(use_outline) and v.diameter is not None for v in views]
     given = [0.0] + [v.time_offset for v in views[1:]]
     lam = _diameter_measure(diameter_measure)
+    scale = _diameter_scale(diameter_scale)
 
     # start: a rough 3-D track, the offsets' whole-frame starts, the reference time
     t_start, pts, off_start = _start_track(views, radius, outline, given)
@@ -526,14 +555,15 @@ def fit_views(
         lows.append(float(v.camera.row_time(v.frame_times[0] + low, 0.0)))
     t_ref = min(t_first, *lows)
     measures = [lam] * len(views)
+    scales = [scale] * len(views)
     problem = ImageProblem(views, specimen, conditions, dm, (), lift, wind_v, axis, outline,
-                           given, t_ref, measures)  # fmt: skip
+                           given, t_ref, measures, scales)  # fmt: skip
     constants: tuple[float, ...] = ()
     if dm.constants:
         speed = np.linalg.norm(np.gradient(pts, t_start, axis=0) - wind_v, axis=1)
         constants = dm.constants_for(air.density * speed * specimen.length / air.viscosity)
         problem = ImageProblem(views, specimen, conditions, dm, constants, lift, wind_v, axis,
-                               outline, given, t_ref, measures)  # fmt: skip
+                               outline, given, t_ref, measures, scales)  # fmt: skip
     names = problem.parameter_names()
     problem.names = names
     bounds = [tuple(b) for b in dm.bounds] + ([(-5.0, 5.0)] if lift else [])
@@ -542,12 +572,13 @@ def fit_views(
         if g is None:
             bounds.append((s - OFFSET_RANGE_FRAMES / fps, s + OFFSET_RANGE_FRAMES / fps))
     n_measures = sum(j is not None for j in problem.measure_index)
-    bounds += [MEASURE_RANGE] * n_measures
+    n_scales = sum(j is not None for j in problem.scale_index)
+    bounds += [MEASURE_RANGE] * n_measures + [SCALE_RANGE] * n_scales
     problem.bounds = bounds
     theta = np.concatenate(
         [np.array(dm.initial, float), [0.0] if lift else np.zeros(0),
          _launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None],
-         [0.5] * n_measures]
+         [0.5] * n_measures, [1.0] * n_scales]
     )  # fmt: skip
     if initial:
         for k, val in initial.items():
@@ -676,7 +707,7 @@ def fit_views(
         messages.append("the flight cannot be simulated or projected at the fitted parameters")
     return _assemble(problem, theta, cov, sims if ok_eval else None, success, messages,
                      noise_model, coverage_factor, t_first, noise, use_outline, dof,
-                     diameter_measure)  # fmt: skip
+                     diameter_measure, diameter_scale)  # fmt: skip
 
 
 # ----------------------------------------------------------------------------- assembly
@@ -694,7 +725,8 @@ def _launch_at(problem: ImageProblem, theta, t: float):
 
 
 def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user, t_first,
-              noise_opt, use_outline, dof_plain, measure_opt) -> ViewFitResult:  # fmt: skip
+              noise_opt, use_outline, dof_plain, measure_opt,
+              scale_opt) -> ViewFitResult:  # fmt: skip
     dm = problem.model
     air = problem.conditions.air
     finite = bool(np.all(np.isfinite(cov)))
@@ -714,6 +746,7 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
     # per view results, Reynolds numbers and depth range
     offsets = problem.offsets(theta)
     lams = problem.measures(theta)
+    scales = problem.scales(theta)
     times = problem.observation_times(theta)
     pred, ok_pred = problem.predict(theta)
     raw = problem.raw_residuals(theta) if ok_pred else None
@@ -724,6 +757,8 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         u_off = math.sqrt(max(cov[col, col], 0.0)) if (col is not None and finite) else 0.0
         mcol = problem.measure_index[i]
         u_lam = math.sqrt(max(cov[mcol, mcol], 0.0)) if (mcol is not None and finite) else 0.0
+        scol = problem.scale_index[i]
+        u_s = math.sqrt(max(cov[scol, scol], 0.0)) if (scol is not None and finite) else 0.0
         if pred is not None and sims is not None:
             pu, pv, pd = pred[i]
             pos, vel = sims[i][0], sims[i][1]
@@ -764,6 +799,8 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
                 diameter_measure=float(lams[i]) if 2 in by_kind else math.nan,
                 diameter_measure_uncertainty=float(u_lam) if 2 in by_kind else math.nan,
                 diameter_measure_estimated=mcol is not None,
+                diameter_scale=float(scales[i]) if 2 in by_kind else math.nan,
+                diameter_scale_uncertainty=float(u_s) if 2 in by_kind else math.nan,
             )
         )
     del raw
@@ -799,17 +836,17 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
             f"{', '.join(at_upper)} reached its upper bound: the drag needed to follow the "
             f"observations is implausible; check the mass [kg], size [m], frame rate and cameras"
         )
-    at_measure_bound = [
-        problem.names[j] for j in problem.measure_index
+    at_diameter_bound = [
+        problem.names[j] for j in problem.measure_index + problem.scale_index
         if j is not None and min(abs(theta[j] - b) for b in problem.bounds[j]) < 1e-9
     ]  # fmt: skip
-    if success and at_measure_bound:
+    if success and at_diameter_bound:
         success = False
         messages.append(
-            f"{', '.join(at_measure_bound)} reached the edge of its range {MEASURE_RANGE}: the "
-            f"apparent diameters are neither the outline's width across the motion nor its "
-            f"equal-area diameter nor between them; check the diameters, the specimen's size "
-            f"[m] and the camera, or fit without them (use_outline=False)"
+            f"{', '.join(at_diameter_bound)} reached the edge of its range (measure "
+            f"{MEASURE_RANGE}, scale {SCALE_RANGE}): the apparent diameters do not follow the "
+            f"sphere's outline; check the diameters, the specimen's size [m] and the camera, or "
+            f"fit without them (use_outline=False)"
         )
     at_offset_bound = [
         problem.names[j] for j in problem.offset_index
@@ -851,6 +888,6 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         options={
             "model": dm.name, "lift": problem.lift, "spin_axis": tuple(problem.spin_axis),
             "wind": tuple(problem.wind), "noise": noise_opt, "use_outline": bool(use_outline),
-            "diameter_measure": measure_opt,
+            "diameter_measure": measure_opt, "diameter_scale": scale_opt,
         },
     )  # fmt: skip

@@ -127,9 +127,9 @@ def planned_camera(target: Sequence[float], distance: float, angle: float, focal
 
 
 def _problem(views, specimen, conditions, dm, constants, use_outline, offsets, t_ref, ar1=0.0,
-             measures=None):  # fmt: skip
+             measures=None, scales=None):  # fmt: skip
     p = ImageProblem(views, specimen, conditions, dm, constants, False, np.zeros(3), _NO_SPIN,
-                     use_outline, offsets, t_ref, measures)  # fmt: skip
+                     use_outline, offsets, t_ref, measures, scales)  # fmt: skip
     p.names = p.parameter_names()
     if ar1:
         p.set_noise(phis=[ar1] * len(p.channels))
@@ -250,7 +250,7 @@ def image_information(views: Sequence[CameraView], specimen, conditions: Conditi
                       launch: Launch3D, *, model="constant", drag_params=(0.47,), t0: float = 0.0,
                       use_outline: bool = True, planar: bool = False, ar1: float = 0.0,
                       offsets: Sequence[float] | None = None, diameter_measure: float = 0.0,
-                      fit_measure: bool = False):  # fmt: skip
+                      fit_measure: bool = False, fit_scale: bool = False):  # fmt: skip
     """Cramér–Rao u(C_d) of one throw seen as ``views`` (e.g. from :func:`planned_views`).
 
     Parameters
@@ -274,6 +274,9 @@ def image_information(views: Sequence[CameraView], specimen, conditions: Conditi
         across the motion, 1 = the equal-area diameter). [1]
     fit_measure : bool
         lam is an unknown of the fit (as ``fit_views(..., diameter_measure="estimate")``).
+    fit_scale : bool
+        The diameters' scale is an unknown of the fit (as ``fit_views(...,
+        diameter_scale="estimate")``; true value 1).
 
     Returns
     -------
@@ -287,12 +290,14 @@ def image_information(views: Sequence[CameraView], specimen, conditions: Conditi
     given = [0.0] + [v.time_offset for v in views[1:]]
     true_offsets = [0.0] * len(views) if offsets is None else [float(o) for o in offsets]
     measures = [None if fit_measure else float(diameter_measure)] * len(views)
+    scales = [None if fit_scale else 1.0] * len(views)
     p = _problem(views, specimen, conditions, dm, dp[n_fit:], [use_outline] * len(views),
-                 given, t0, ar1, measures)  # fmt: skip
+                 given, t0, ar1, measures, scales)  # fmt: skip
     theta = _theta(dm, dp, launch, 0)
     theta = np.concatenate((
         theta, [o for o, g in zip(true_offsets, given) if g is None],
         [float(diameter_measure)] * sum(j is not None for j in p.measure_index),
+        [1.0] * sum(j is not None for j in p.scale_index),
     ))  # fmt: skip
     keep = None
     if planar:
