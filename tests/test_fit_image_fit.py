@@ -187,10 +187,14 @@ def test_result_fields_and_warm_start():
     assert r.depth_range[0] <= r.launch.z0 <= r.depth_range[1]
     assert (
         r.noise_model == "white"
-        and r.dof > 1000
+        and r.dof > 700  # two views of u and v (the diameters are left out with two cameras)
         and r.coverage_factor == pytest.approx(2.0, abs=0.01)
     )
     assert r.time_offsets[0] == 0.0 and len(r.launch_uncertainty) == 6
+    # use_outline="auto": with two cameras the diameters are left out, on request they enter
+    assert not any(v.diameter_used for v in r.views) and r.options["use_outline"] is False
+    both = fit_views(views, ref.BALL, ref.AIR, use_outline=True)
+    assert all(v.diameter_used for v in both.views)
     again = fit_views(views, ref.BALL, ref.AIR, initial=r.as_initial())
     assert again.cd == pytest.approx(r.cd, abs=1e-3 * r.u_cd)
 
@@ -217,6 +221,12 @@ def test_bad_input_messages():
         fit_views([views[0], "left.csv"], ref.BALL, ref.AIR)
     with pytest.raises(InputError, match="noise: unknown noise model 'red'"):
         fit_views(views, ref.BALL, ref.AIR, noise="red")
+    with pytest.raises(InputError) as e:
+        fit_views(views, ref.BALL, ref.AIR, use_outline="yes")
+    assert str(e.value) == (
+        "use_outline: expected True, False or 'auto', got 'yes'; 'auto' fits the apparent "
+        "diameters with one camera only."
+    )
     with pytest.raises(InputError) as e:
         fit_views(views, ref.BALL, ref.AIR, diameter_measure="widest")
     assert str(e.value) == (

@@ -37,9 +37,16 @@ Stages:
 
 One camera: the depth along the optical axis is weakly determined by the perspective of the
 parabola alone; the apparent diameter of the specimen, an extra observation with its own
-estimated noise, measures it (``use_outline``).  Its systematic part (the tracker's diameter
-scale against the specimen's true diameter) is not in this covariance: it belongs in the
-uncertainty budget.
+estimated noise, measures it (``use_outline``).  What a tracker's diameter measures (between
+the outline's width across the motion and its equal-area diameter) and its scale are fitted
+by default, so a constant diameter bias and the specimen's size do not move the depth: the
+depth then rests on the diameter's relative change along the flight (which measures v_z / Z)
+and on gravity.  A drift of the diameters along the flight is read as depth: with one
+camera 3 m away (f = 900 px, 200 frames) a drift of 0.1 px from the first frame to the last
+moves C_d by 4-8 % (benchmarks/coverage_3d.py --bound), so the diameters must be free of drift
+to about 0.02 px for a U/C_d of a few per cent; that systematic part is not in this
+covariance.  With two or more cameras the diameters add almost no information (triangulation
+measures the depth) and are left out by default (``use_outline="auto"``).
 
 References
 ----------
@@ -450,7 +457,7 @@ def fit_views(
     wind: Sequence[float] = (0.0, 0.0, 0.0),
     buoyancy: bool = True,
     noise: str = "auto",
-    use_outline: bool = True,
+    use_outline: bool | str = "auto",
     coverage_factor: float | None = None,
     initial: dict | None = None,
     max_nfev: int = 300,
@@ -483,9 +490,10 @@ def fit_views(
     noise : {"auto", "white", "ar1"}
         Noise model of every channel; "auto" uses AR(1) when the residuals' lag-1
         autocorrelation is significant (p < 0.01).
-    use_outline : bool
+    use_outline : bool or "auto"
         Fit the apparent diameters of the views that have them (needed with one camera for
-        the depth; optional with two or more).
+        the depth; they add almost nothing with two or more, and their systematic errors
+        would only enter).  "auto" (default): with one view only.
     coverage_factor : float, optional
         Force k; default the Student-t factor at p = 95.45 % for the effective degrees of
         freedom.
@@ -540,7 +548,14 @@ def fit_views(
     dm = get_drag_model(model)
     conditions = Conditions(air=air, gravity=gravity, wind=0.0, buoyancy=buoyancy)
     radius = 0.5 * float(specimen.length)
-    outline = [bool(use_outline) and v.diameter is not None for v in views]
+    if use_outline == "auto":
+        use_outline = len(views) == 1
+    elif not isinstance(use_outline, bool):
+        raise InputError(
+            f"use_outline: expected True, False or 'auto', got {use_outline!r}; 'auto' fits the "
+            f"apparent diameters with one camera only."
+        )
+    outline = [use_outline and v.diameter is not None for v in views]
     given = [0.0] + [v.time_offset for v in views[1:]]
     lam = _diameter_measure(diameter_measure)
     scale = _diameter_scale(diameter_scale)
