@@ -11,19 +11,16 @@ the flight's physical parameters, in the sense of Triggs et al. [1]).
 
 Stages:
 
-1. **Start** — a 3-D track from the observations: with two or more cameras, the midpoint of
-   the two rays of the first two cameras at the same frame (linear triangulation, Hartley
-   and Zisserman [2] sec. 12.2), the second camera's whole-frame lag, when its offset is not
-   given, chosen as the one that brings the rays closest together; with one camera, each ray
-   taken to the depth at which a sphere of the specimen's diameter has the observed
-   apparent diameter (or, without diameters, to the board plane).  Polynomials in time
-   through that track give the launch state; unknown time offsets start at the whole-frame
-   lag and may move by 1.5 frames either way.
+1. **Start** — a rough 3-D track (:mod:`fitdrag.fit.image_start`: rays triangulated between
+   two cameras, Hartley and Zisserman [2] sec. 12.2, or taken to the depth of the apparent
+   diameter with one); unknown time offsets start at the whole-frame lag that brings the
+   rays closest and may move by 1.5 frames either way.
 2. **Gaussian fit** — Levenberg–Marquardt from the start (the trust-region solver as its
    fallback), with a few drag levels tried if the first start fails.
-3. **Noise** — per camera and per channel (u, v, diameter) the noise level is estimated from
-   the residuals (a stated sigma is a floor: the level is never set below it) and the
-   problem re-solved until the levels settle; the lag-1 autocorrelation of the normalised
+3. **Noise** — per camera the noise level of the centroids (u and v share one level, as
+   CameraView states one sigma per frame) and of the diameters is estimated from the
+   residuals (a stated sigma is a floor: the level is never set below it) and the problem
+   re-solved until the levels settle; the lag-1 autocorrelation of the normalised
    residuals is tested and, when significant (p < 0.01) or with ``noise="ar1"``, every
    channel gets its own AR(1) coefficient by restricted maximum likelihood with
    Prais–Winsten prewhitening (:mod:`fitdrag.fit.noise`, as in the planar fit).
@@ -73,6 +70,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
+from fitdrag.fit.image_start import launch_from_track, start_track
 from fitdrag.fit.noise import lag1, noise_floor
 from fitdrag.fit.results import COVERAGE_PROBABILITY, cd_and_gradient
 from fitdrag.fit.solvers import gauss_newton, levenberg_marquardt, polish, trust_region
@@ -87,8 +85,6 @@ __all__ = ["ViewFitResult", "ViewResult", "fit_views"]
 
 #: How far an estimated time offset may move from its whole-frame start. [frames]
 OFFSET_RANGE_FRAMES = 1.5
-#: Largest whole-frame lag between two cameras searched for the start. [frames]
-MAX_LAG_FRAMES = 25
 #: Range of a fitted diameter measure lam (0 = width across the motion, 1 = equal-area
 #: diameter; a circle fitted to the blob lies between). [1]
 MEASURE_RANGE = (-1.0, 2.0)
@@ -217,7 +213,8 @@ class ViewFitResult:
         Reynolds numbers over the fitted flight. [-]
     specimen, conditions : the inputs
     options : dict
-        The options of the call (wind, spin axis, lift, noise, use_outline).
+        The options of the call (wind, spin axis, lift, noise, use_outline as resolved,
+        diameter_measure, diameter_scale).
     """
 
     success: bool
@@ -355,93 +352,6 @@ def _diameter_scale(value) -> float | None:
     )
 
 
-# ----------------------------------------------------------------------------- start
-
-
-def _ray_midpoints(o1, d1, o2, d2):
-    """Closest points of pairs of rays: their midpoints (n, 3) [m] and gaps (n,) [m]."""
-    w0 = o1 - o2
-    b = np.einsum("ij,ij->i", d1, d2)
-    d = d1 @ w0
-    e = d2 @ w0
-    den = np.maximum(1.0 - b * b, 1e-12)
-    s = (b * e - d) / den
-    t = (e - b * d) / den
-    p1 = o1 + s[:, None] * d1
-    p2 = o2 + t[:, None] * d2
-    return 0.5 * (p1 + p2), np.linalg.norm(p1 - p2, axis=1)
-
-
-def _matched(v0: CameraView, v1: CameraView, lag: int):
-    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag."""
-    common, i0, i1 = np.intersect1d(v0.frames, v1.frames + lag, return_indices=True)
-    return i0, i1
-
-
-def _best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
-    """The whole-frame lag (frame of v0 = frame of v1 + lag) that brings the rays closest."""
-    best, best_gap = 0, math.inf
-    for lag in range(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1):
-        i0, i1 = _matched(v0, v1, lag)
-        if i0.size < max(8, min(len(v0), len(v1)) // 3):
-            continue
-        _, gap = _ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
-        g = float(np.median(gap))
-        if g < best_gap:
-            best, best_gap = lag, g
-    return best
-
-
-def _start_track(views, radius, use_outline, offsets_given):
-    """A rough 3-D track (times [s], points [m]) and the start of every time offset [s]."""
-    v0 = views[0]
-    r0 = v0.camera.rays(v0.pixels, undistorted=False)
-    starts = [0.0]
-    for k, v in enumerate(views[1:], start=1):
-        if offsets_given[k] is not None:
-            starts.append(offsets_given[k])
-        else:
-            rk = v.camera.rays(v.pixels, undistorted=False)
-            starts.append(_best_lag(v0, v, r0, rk) / v.fps)
-    t0 = v0.camera.row_time(v0.frame_times, v0.v)
-    if len(views) >= 2:
-        v1 = views[1]
-        r1 = v1.camera.rays(v1.pixels, undistorted=False)
-        lag = int(round(starts[1] * v1.fps))
-        i0, i1 = _matched(v0, v1, lag)
-        if i0.size >= 4:
-            pts, _ = _ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
-            return t0[i0], pts, starts
-    cam = v0.camera
-    if use_outline[0] and v0.diameter is not None:
-        f = math.sqrt(cam.fx * cam.fy)
-        depth = np.sqrt((2.0 * radius * f / v0.diameter) ** 2 + radius**2)
-        along = r0.directions @ cam.optical_axis
-        pts = r0.origin + r0.directions * (depth / along)[:, None]
-    else:
-        pts = cam.pixel_to_plane(v0.pixels, 0.0, undistorted=False)
-    ok = np.all(np.isfinite(pts), axis=1)
-    return t0[ok], pts[ok], starts
-
-
-def _launch_from_track(t, pts, t_ref) -> np.ndarray:
-    """Launch state at ``t_ref`` from polynomials through a rough 3-D track."""
-    tau = t - t_ref
-    n = tau.size
-    m = min(n, max(8, n // 2))
-    out_p, out_v = [], []
-    for axis in range(3):
-        if axis == 2:  # depth: a straight line through all points (noisiest coordinate)
-            c = np.polyfit(tau, pts[:, axis], 1)
-            out_p.append(c[1])
-            out_v.append(c[0])
-        else:
-            c = np.polyfit(tau[:m], pts[:m, axis], 2)
-            out_p.append(c[2])
-            out_v.append(c[1])
-    return np.array(out_p + out_v, dtype=float)
-
-
 # ----------------------------------------------------------------------------- front door
 
 
@@ -561,7 +471,7 @@ def fit_views(
     scale = _diameter_scale(diameter_scale)
 
     # start: a rough 3-D track, the offsets' whole-frame starts, the reference time
-    t_start, pts, off_start = _start_track(views, radius, outline, given)
+    t_start, pts, off_start = start_track(views, radius, outline, given)
     fps = views[0].fps
     t_first = float(views[0].frame_times[0])
     lows = []
@@ -592,7 +502,7 @@ def fit_views(
     problem.bounds = bounds
     theta = np.concatenate(
         [np.array(dm.initial, float), [0.0] if lift else np.zeros(0),
-         _launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None],
+         launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None],
          [0.5] * n_measures, [1.0] * n_scales]
     )  # fmt: skip
     if initial:
