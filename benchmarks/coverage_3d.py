@@ -192,7 +192,8 @@ def one_throw(th: Throw, n_cam: int, seed, args) -> Row:
         crb = bound(views, th, "diameter_measure_1" in r.parameter_names,
                     "diameter_scale_1" in r.parameter_names)  # fmt: skip
     off_err = (r.views[1].time_offset - th.offset) * ref.FPS if n_cam == 2 else math.nan
-    lam = np.nanmedian([v.diameter_measure for v in r.views])
+    lams = [v.diameter_measure for v in r.views if v.diameter_used]
+    lam = float(np.median(lams)) if lams else math.nan
     return Row(True, th.readout, r.cd, r.u_cd, r.expanded_uncertainty, crb, off_err, lam,
                tracker)  # fmt: skip
 
@@ -253,7 +254,7 @@ def bound_table(measure_fitted: bool, scale_fitted: bool) -> None:
         if u_rel(sc, lo) > 3.0:
             need = "not reachable"
         elif u_rel(sc, hi) < 3.0:
-            need = "any (3 % without diameters)"
+            need = "any (below 3 % even without them)"
         else:
             for _ in range(40):
                 mid = math.sqrt(lo * hi)
