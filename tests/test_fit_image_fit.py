@@ -108,6 +108,76 @@ def test_coverage_of_thirty_random_throws():
     assert sum(hits) >= 26
 
 
+def test_diameters_of_another_measure_and_scale_are_absorbed():
+    """closed-form/independent: one camera 15° off the board normal, 2° flight; the
+    diameters replaced by the equal-area diameter 2 sqrt(a b) of the exact conic
+    (Camera.sphere_outline) times 1.02 (a tracker's circle fit and a 2 % size bias), 0.05 px
+    noise.  With the default fitted measure and scale, |Cd - 0.50| <= 3 u, lam within 3 u of 1,
+    the scale within 3 u of 1.02 and the diameter residuals at the noise (RMS < 0.06 px);
+    holding lam = 0 and s = 1 instead (trusting the diameters as the width across the motion
+    at the specimen's size; the two differ by up to 1.9 px here) leaves diameter residuals of
+    RMS > 0.5 px, which the fit's noise estimate weights down: u(Cd) at least 1.8 times
+    larger."""
+    th = ref.launch(2.0)
+    cam = ref.camera_at(15.0)
+    radius = 0.5 * ref.BALL.diameter
+    for seed in (0, 1):
+        rng = np.random.default_rng(seed)
+        view = ref.observe(cam, th, rng=rng, sigma=0.05, diameter_sigma=0.05)
+        area = np.array([2.0 * np.sqrt(o.semi_major * o.semi_minor)
+                         for o in (cam.sphere_outline(q, radius) for q in _positions(cam, view))])  # fmt: skip
+        view = replace(view, diameter=1.02 * area + rng.normal(0.0, 0.05, len(view)))
+        r = fit_views(view, ref.BALL, ref.AIR)
+        assert r.success, r.message
+        v = r.views[0]
+        assert v.diameter_measure_estimated and "diameter_scale_1" in r.parameter_names
+        assert abs(r.cd - ref.CD) <= 3.0 * r.u_cd
+        assert abs(v.diameter_measure - 1.0) <= 3.0 * v.diameter_measure_uncertainty
+        assert abs(v.diameter_scale - 1.02) <= 3.0 * v.diameter_scale_uncertainty
+        assert np.sqrt(np.mean(v.residual_diameter**2)) < 0.06
+        held = fit_views(view, ref.BALL, ref.AIR, diameter_measure="across_motion",
+                         diameter_scale=1.0)  # fmt: skip
+        hv = held.views[0]
+        assert held.success and (hv.diameter_measure, hv.diameter_scale) == (0.0, 1.0)
+        assert hv.diameter_measure_uncertainty == 0.0 == hv.diameter_scale_uncertainty
+        assert np.sqrt(np.mean(hv.residual_diameter**2)) > 0.5
+        assert held.u_cd > 1.8 * r.u_cd
+
+
+def _positions(cam, view):
+    """True sphere centres at the row times of a view's observations (truth of views_reference:
+    simulate_3d, itself checked against scipy in tests/test_physics_flight3d.py)."""
+    from fitdrag.physics.flight3d import simulate_3d
+    from fitdrag.physics.forces import Conditions
+
+    exact = ref.observe(cam, ref.launch(2.0), sigma=0.0, diameter_sigma=0.0)
+    keep = np.isin(exact.frames, view.frames)
+    t = cam.row_time(exact.frame_times[keep], exact.v[keep])
+    order = np.argsort(t)
+    fl = simulate_3d(t[order], ref.launch(2.0), ref.BALL, Conditions(ref.AIR),
+                     drag_params=(ref.CD,), t0=ref.T_LAUNCH)  # fmt: skip
+    pos = np.empty((t.size, 3))
+    pos[order] = fl.position
+    return pos
+
+
+def test_u_and_v_share_one_estimated_noise_level():
+    """regression: without stated sigmas a view's u and v get one noise level (CameraView
+    states one centroid sigma per frame): the RMS of both residual series (2 % for the
+    parameters' share), here 0.2 px within 10 %; the diameter channel keeps its own
+    (0.05 px within 15 %)."""
+    view = ref.observe(ref.camera_at(0.0), ref.launch(1.0), rng=np.random.default_rng(4),
+                       sigma=0.2, diameter_sigma=0.05)  # fmt: skip
+    assert view.sigma is None and view.diameter_sigma is None
+    r = fit_views(view, ref.BALL, ref.AIR, noise="white")
+    v = r.views[0]
+    assert v.sigma_u == v.sigma_v
+    rms = np.sqrt(np.mean(np.concatenate((v.residual_u, v.residual_v)) ** 2))
+    assert v.sigma_u == pytest.approx(rms, rel=0.02)
+    assert v.sigma_u == pytest.approx(0.2, rel=0.1)
+    assert v.sigma_diameter == pytest.approx(0.05, rel=0.15)
+
+
 def test_result_fields_and_warm_start():
     """regression: the launch is reported at the first view's first frame, the depth range
     brackets the launch depth, and a re-fit from the result's values returns to them."""
@@ -117,10 +187,14 @@ def test_result_fields_and_warm_start():
     assert r.depth_range[0] <= r.launch.z0 <= r.depth_range[1]
     assert (
         r.noise_model == "white"
-        and r.dof > 1000
+        and r.dof > 700  # two views of u and v (the diameters are left out with two cameras)
         and r.coverage_factor == pytest.approx(2.0, abs=0.01)
     )
     assert r.time_offsets[0] == 0.0 and len(r.launch_uncertainty) == 6
+    # use_outline="auto": with two cameras the diameters are left out, on request they enter
+    assert not any(v.diameter_used for v in r.views) and r.options["use_outline"] is False
+    both = fit_views(views, ref.BALL, ref.AIR, use_outline=True)
+    assert all(v.diameter_used for v in both.views)
     again = fit_views(views, ref.BALL, ref.AIR, initial=r.as_initial())
     assert again.cd == pytest.approx(r.cd, abs=1e-3 * r.u_cd)
 
@@ -147,3 +221,21 @@ def test_bad_input_messages():
         fit_views([views[0], "left.csv"], ref.BALL, ref.AIR)
     with pytest.raises(InputError, match="noise: unknown noise model 'red'"):
         fit_views(views, ref.BALL, ref.AIR, noise="red")
+    with pytest.raises(InputError) as e:
+        fit_views(views, ref.BALL, ref.AIR, use_outline="yes")
+    assert str(e.value) == (
+        "use_outline: expected True, False or 'auto', got 'yes'; 'auto' fits the apparent "
+        "diameters with one camera only."
+    )
+    with pytest.raises(InputError) as e:
+        fit_views(views, ref.BALL, ref.AIR, diameter_measure="widest")
+    assert str(e.value) == (
+        "diameter_measure: unknown measure 'widest'; use 'estimate', 'across_motion', "
+        "'equal_area' or a number between them (0 to 1)."
+    )
+    with pytest.raises(InputError) as e:
+        fit_views(views, ref.BALL, ref.AIR, diameter_scale=0.0)
+    assert str(e.value) == (
+        "diameter_scale: expected 'estimate' or a finite number > 0 (1 = the diameters' "
+        "absolute size is right), got 0.0."
+    )

@@ -13,17 +13,20 @@ from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
 
 
-def _problem(phi=0.0):
+def _problem(phi=0.0, diameter=False):
     th = ref.launch(2.0)
     cams = [ref.camera_at(-20.0, readout=1e-3), ref.camera_at(20.0, readout=0.6e-3)]
     cams[1] = replace(cams[1], distortion=(-0.1, 0.05, 0.0, 0.0, 0.0))
     views = [ref.observe(c, th, n=60, offset=1e-3 * i, rng=np.random.default_rng(i))
              for i, c in enumerate(cams)]  # fmt: skip
+    measures, scales = ([None, 0.3], [1.02, None]) if diameter else (None, None)
     p = ImageProblem(views, ref.BALL, Conditions(ref.AIR), get_drag_model("constant"), (),
                      True, np.array([0.3, 0.0, -0.2]), np.array([0.1, 0.2, 1.0]) / 1.025,
-                     [True, True], [0.0, None], -0.01)  # fmt: skip
+                     [True, True], [0.0, None], -0.01, measures, scales)  # fmt: skip
     p.set_noise(levels=[0.3, 0.4, 0.5, 0.3, 0.3, 0.2], phis=[phi, -phi, phi / 2, phi, 0, phi])
     theta = np.concatenate(([0.48, 0.05], th.as_array() + 0.01, [1.1e-3]))
+    if diameter:  # lam of view 1, scale of view 2
+        theta = np.concatenate((theta, [0.6, 0.98]))
     return p, theta
 
 
@@ -65,6 +68,58 @@ def test_residuals_vanish_at_the_truth_without_noise():
     for name, r in zip(names, raw):
         assert float(np.abs(r).max()) < (1e-6 if name != "diameter" else 0.01)
     assert p.parameter_names() == ["cd", "x0", "y0", "z0", "vx0", "vy0", "vz0", "time_offset_2"]
+
+
+def test_jacobian_of_the_diameter_measure_and_scale():
+    """closed-form/independent: with the diameters' measure lam (between the width across the
+    motion and the equal-area diameter) fitted for one view and their scale for the other,
+    the analytic Jacobian (every column, AR(1) whitening on) against central differences of
+    the residual function, to 1e-5 of each column's scale."""
+    p, theta = _problem(0.4, diameter=True)
+    assert p.parameter_names()[-2:] == ["diameter_measure_1", "diameter_scale_2"]
+    assert p.measures(theta) == [0.6, 0.3] and p.scales(theta) == [1.02, 0.98]
+    _r, jac, _s, ok = p.evaluate(theta)
+    assert ok and jac.shape == (p.n_resid, 2 + 6 + 1 + 2)
+    steps = [1e-6, 1e-6, 1e-7, 1e-7, 1e-7, 1e-6, 1e-6, 1e-6, 1e-8, 1e-6, 1e-6]
+    for j, h in enumerate(steps):
+        e = np.zeros_like(theta)
+        e[j] = h
+        fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
+        scale = np.abs(jac[:, j]).max()
+        assert scale > 0
+        np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * scale, err_msg=p.parameter_names()[j])
+    # the new columns touch only the diameter rows of their own view
+    diameter_rows = [ch.rows for ch in p.channels if ch.kind == 2]
+    lam_col, scale_col = jac[:, -2], jac[:, -1]
+    assert np.all(lam_col[diameter_rows[1]] == 0) and np.any(lam_col[diameter_rows[0]] != 0)
+    assert np.all(scale_col[diameter_rows[0]] == 0) and np.any(scale_col[diameter_rows[1]] != 0)
+    assert np.all(lam_col[p.channels[0].rows] == 0) and np.all(scale_col[p.channels[4].rows] == 0)
+
+
+def test_equal_area_diameters_are_reproduced_with_lam_one():
+    """closed-form/independent: diameters made as 2 sqrt(a b) of the exact conic
+    (Camera.sphere_outline, with the rolling shutter's area factor 1 / (1 - (readout / rows)
+    dv/dt) from the true image velocity) and scaled by 1.03 are reproduced by the problem at
+    lam = 1, s = 1.03, to 2e-3 px (the problem takes dv/dt from the observed track)."""
+    th = ref.launch(2.0)
+    cam = ref.camera_at(15.0, readout=1e-3)
+    view = ref.observe(cam, th, sigma=0.0, diameter_sigma=0.0, n=80)
+    p = ImageProblem([view], ref.BALL, Conditions(ref.AIR), get_drag_model("constant"), (),
+                     False, np.zeros(3), np.array([0.0, 0.0, 1.0]), [True], [0.0],
+                     ref.T_LAUNCH, [1.0], [1.03])  # fmt: skip
+    theta = np.concatenate(([ref.CD], th.as_array()))
+    sims, ok = p.simulate(theta, sens=True)
+    pos, vel = sims[0][0], sims[0][1]
+    img_vel = np.einsum("nij,nj->ni", cam.project(pos, jacobians=True).d_point, vel)
+    factor = 1.0 / (1.0 - cam.readout_time / cam.rows * img_vel[:, 1])
+    area = np.array([np.sqrt(o.semi_major * o.semi_minor)
+                     for o in (cam.sphere_outline(q, 0.5 * ref.BALL.diameter) for q in pos)])  # fmt: skip
+    made = 1.03 * 2.0 * area * np.sqrt(factor)
+    pred, ok = p.predict(theta)
+    assert ok
+    np.testing.assert_allclose(pred[0][2], made, atol=2e-3)
+    # across the motion and equal-area differ by far more than that here
+    assert float(np.max(np.abs(made / 1.03 - view.diameter))) > 0.1
 
 
 @pytest.mark.parametrize("phi", [0.0, 0.6])

@@ -46,8 +46,11 @@ def _predicted(cameras, throw, offsets, diameter_noise):
     views = planned_views(cameras, ref.BALL, COND, throw, fps=ref.FPS, frames=FRAMES,
                           pixel_noise=0.3, diameter_noise=diameter_noise, drag_params=(ref.CD,),
                           t0=ref.T_LAUNCH, offsets=offsets)  # fmt: skip
+    # fit_views estimates what the diameters measure (lam) and their scale by default: unknowns
+    # here too
     return image_information(views, ref.BALL, COND, throw, drag_params=(ref.CD,),
-                             t0=ref.T_LAUNCH)[0]  # fmt: skip
+                             t0=ref.T_LAUNCH, offsets=offsets, fit_measure=True,
+                             fit_scale=True)[0]  # fmt: skip
 
 
 @pytest.mark.parametrize("yaws", [(0.0,), (-20.0, 20.0)], ids=["one camera", "two cameras"])

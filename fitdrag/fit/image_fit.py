@@ -11,19 +11,16 @@ the flight's physical parameters, in the sense of Triggs et al. [1]).
 
 Stages:
 
-1. **Start** — a 3-D track from the observations: with two or more cameras, the midpoint of
-   the two rays of the first two cameras at the same frame (linear triangulation, Hartley
-   and Zisserman [2] sec. 12.2), the second camera's whole-frame lag, when its offset is not
-   given, chosen as the one that brings the rays closest together; with one camera, each ray
-   taken to the depth at which a sphere of the specimen's diameter has the observed
-   apparent diameter (or, without diameters, to the board plane).  Polynomials in time
-   through that track give the launch state; unknown time offsets start at the whole-frame
-   lag and may move by 1.5 frames either way.
+1. **Start** — a rough 3-D track (:mod:`fitdrag.fit.image_start`: rays triangulated between
+   two cameras, Hartley and Zisserman [2] sec. 12.2, or taken to the depth of the apparent
+   diameter with one); unknown time offsets start at the whole-frame lag that brings the
+   rays closest and may move by 1.5 frames either way.
 2. **Gaussian fit** — Levenberg–Marquardt from the start (the trust-region solver as its
    fallback), with a few drag levels tried if the first start fails.
-3. **Noise** — per camera and per channel (u, v, diameter) the noise level is estimated from
-   the residuals (a stated sigma is a floor: the level is never set below it) and the
-   problem re-solved until the levels settle; the lag-1 autocorrelation of the normalised
+3. **Noise** — per camera the noise level of the centroids (u and v share one level, as
+   CameraView states one sigma per frame) and of the diameters is estimated from the
+   residuals (a stated sigma is a floor: the level is never set below it) and the problem
+   re-solved until the levels settle; the lag-1 autocorrelation of the normalised
    residuals is tested and, when significant (p < 0.01) or with ``noise="ar1"``, every
    channel gets its own AR(1) coefficient by restricted maximum likelihood with
    Prais–Winsten prewhitening (:mod:`fitdrag.fit.noise`, as in the planar fit).
@@ -37,9 +34,16 @@ Stages:
 
 One camera: the depth along the optical axis is weakly determined by the perspective of the
 parabola alone; the apparent diameter of the specimen, an extra observation with its own
-estimated noise, measures it (``use_outline``).  Its systematic part (the tracker's diameter
-scale against the specimen's true diameter) is not in this covariance: it belongs in the
-uncertainty budget.
+estimated noise, measures it (``use_outline``).  What a tracker's diameter measures (between
+the outline's width across the motion and its equal-area diameter) and its scale are fitted
+by default, so a constant diameter bias and the specimen's size do not move the depth: the
+depth then rests on the diameter's relative change along the flight (which measures v_z / Z)
+and on gravity.  A drift of the diameters along the flight is read as depth: with one
+camera 3 m away (f = 900 px, 200 frames) a drift of 0.1 px from the first frame to the last
+moves C_d by 4-8 % (benchmarks/coverage_3d.py --bound), so the diameters must be free of drift
+to about 0.02 px for a U/C_d of a few per cent; that systematic part is not in this
+covariance.  With two or more cameras the diameters add almost no information (triangulation
+measures the depth) and are left out by default (``use_outline="auto"``).
 
 References
 ----------
@@ -66,6 +70,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
+from fitdrag.fit.image_start import launch_from_track, start_track
 from fitdrag.fit.noise import lag1, noise_floor
 from fitdrag.fit.results import COVERAGE_PROBABILITY, cd_and_gradient
 from fitdrag.fit.solvers import gauss_newton, levenberg_marquardt, polish, trust_region
@@ -80,8 +85,13 @@ __all__ = ["ViewFitResult", "ViewResult", "fit_views"]
 
 #: How far an estimated time offset may move from its whole-frame start. [frames]
 OFFSET_RANGE_FRAMES = 1.5
-#: Largest whole-frame lag between two cameras searched for the start. [frames]
-MAX_LAG_FRAMES = 25
+#: Range of a fitted diameter measure lam (0 = width across the motion, 1 = equal-area
+#: diameter; a circle fitted to the blob lies between). [1]
+MEASURE_RANGE = (-1.0, 2.0)
+#: Range of a fitted diameter scale. [1]
+SCALE_RANGE = (0.5, 2.0)
+#: The named diameter measures of :func:`fit_views`.
+DIAMETER_MEASURES = {"across_motion": 0.0, "equal_area": 1.0, "estimate": None}
 
 
 @dataclass(frozen=True, eq=False)
@@ -116,6 +126,14 @@ class ViewResult:
         RMS of the u and v residuals. [px]
     distance : float
         Median distance from the camera centre to the fitted flight. [m]
+    diameter_measure, diameter_measure_uncertainty : float
+        What the diameters measured, lam (0 = the outline's width across the motion, 1 = its
+        equal-area diameter), and its standard uncertainty (0 when given); NaN without
+        diameters. [1]
+    diameter_measure_estimated : bool
+    diameter_scale, diameter_scale_uncertainty : float
+        Scale of the diameters against the specimen's size (given or fitted) and its
+        standard uncertainty (0 when given); NaN without diameters. [1]
     """
 
     name: str
@@ -137,6 +155,11 @@ class ViewResult:
     ar1_coefficients: tuple[float, ...]
     residual_rms: float
     distance: float
+    diameter_measure: float = math.nan
+    diameter_measure_uncertainty: float = math.nan
+    diameter_measure_estimated: bool = False
+    diameter_scale: float = math.nan
+    diameter_scale_uncertainty: float = math.nan
 
 
 @dataclass(frozen=True, eq=False)
@@ -152,7 +175,9 @@ class ViewFitResult:
         Drag model name.
     parameter_names : tuple of str
         Fitted parameters: drag law's (then ``lift_coefficient``), the launch state at
-        ``reference_time``, then ``time_offset_<view number>`` for each estimated offset.
+        ``reference_time``, then ``time_offset_<view number>`` for each estimated offset,
+        then ``diameter_measure_<view number>`` for each view whose diameter measure is
+        fitted, then ``diameter_scale_<view number>`` for each fitted diameter scale.
     values : ndarray
         Their values (SI). The launch state here is at ``reference_time``.
     covariance : ndarray
@@ -188,7 +213,8 @@ class ViewFitResult:
         Reynolds numbers over the fitted flight. [-]
     specimen, conditions : the inputs
     options : dict
-        The options of the call (wind, spin axis, lift, noise, use_outline).
+        The options of the call (wind, spin axis, lift, noise, use_outline as resolved,
+        diameter_measure, diameter_scale).
     """
 
     success: bool
@@ -282,91 +308,48 @@ def _check_views(views) -> list[CameraView]:
     return views
 
 
-# ----------------------------------------------------------------------------- start
+def _diameter_measure(value) -> float | None:
+    if isinstance(value, str):
+        if value not in DIAMETER_MEASURES:
+            raise InputError(
+                f"diameter_measure: unknown measure {value!r}; use 'estimate', "
+                f"'across_motion', 'equal_area' or a number between them (0 to 1)."
+            )
+        return DIAMETER_MEASURES[value]
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
+        return float(value)
+    raise InputError(
+        f"diameter_measure: expected 'estimate', 'across_motion', 'equal_area' or a finite "
+        f"number, got {value!r}."
+    )
 
 
-def _ray_midpoints(o1, d1, o2, d2):
-    """Closest points of pairs of rays: their midpoints (n, 3) [m] and gaps (n,) [m]."""
-    w0 = o1 - o2
-    b = np.einsum("ij,ij->i", d1, d2)
-    d = d1 @ w0
-    e = d2 @ w0
-    den = np.maximum(1.0 - b * b, 1e-12)
-    s = (b * e - d) / den
-    t = (e - b * d) / den
-    p1 = o1 + s[:, None] * d1
-    p2 = o2 + t[:, None] * d2
-    return 0.5 * (p1 + p2), np.linalg.norm(p1 - p2, axis=1)
+def _pooled(problem: ImageProblem, sums, counts) -> list[float]:
+    """Noise level of every channel from its sum of squared scaled residuals ``sums`` over
+    ``counts`` residuals, a view's u and v pooled (one centroid sigma per frame)."""
+    out = []
+    for ch in problem.channels:
+        group = [
+            c for c, other in enumerate(problem.channels)
+            if other.view_index == ch.view_index
+            and (other.kind == ch.kind or (other.kind < 2 and ch.kind < 2))
+        ]  # fmt: skip
+        out.append(math.sqrt(sum(sums[c] for c in group) / sum(counts[c] for c in group)))
+    return out
 
 
-def _matched(v0: CameraView, v1: CameraView, lag: int):
-    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag."""
-    common, i0, i1 = np.intersect1d(v0.frames, v1.frames + lag, return_indices=True)
-    return i0, i1
-
-
-def _best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
-    """The whole-frame lag (frame of v0 = frame of v1 + lag) that brings the rays closest."""
-    best, best_gap = 0, math.inf
-    for lag in range(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1):
-        i0, i1 = _matched(v0, v1, lag)
-        if i0.size < max(8, min(len(v0), len(v1)) // 3):
-            continue
-        _, gap = _ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
-        g = float(np.median(gap))
-        if g < best_gap:
-            best, best_gap = lag, g
-    return best
-
-
-def _start_track(views, radius, use_outline, offsets_given):
-    """A rough 3-D track (times [s], points [m]) and the start of every time offset [s]."""
-    v0 = views[0]
-    r0 = v0.camera.rays(v0.pixels, undistorted=False)
-    starts = [0.0]
-    for k, v in enumerate(views[1:], start=1):
-        if offsets_given[k] is not None:
-            starts.append(offsets_given[k])
-        else:
-            rk = v.camera.rays(v.pixels, undistorted=False)
-            starts.append(_best_lag(v0, v, r0, rk) / v.fps)
-    t0 = v0.camera.row_time(v0.frame_times, v0.v)
-    if len(views) >= 2:
-        v1 = views[1]
-        r1 = v1.camera.rays(v1.pixels, undistorted=False)
-        lag = int(round(starts[1] * v1.fps))
-        i0, i1 = _matched(v0, v1, lag)
-        if i0.size >= 4:
-            pts, _ = _ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
-            return t0[i0], pts, starts
-    cam = v0.camera
-    if use_outline[0] and v0.diameter is not None:
-        f = math.sqrt(cam.fx * cam.fy)
-        depth = np.sqrt((2.0 * radius * f / v0.diameter) ** 2 + radius**2)
-        along = r0.directions @ cam.optical_axis
-        pts = r0.origin + r0.directions * (depth / along)[:, None]
-    else:
-        pts = cam.pixel_to_plane(v0.pixels, 0.0, undistorted=False)
-    ok = np.all(np.isfinite(pts), axis=1)
-    return t0[ok], pts[ok], starts
-
-
-def _launch_from_track(t, pts, t_ref) -> np.ndarray:
-    """Launch state at ``t_ref`` from polynomials through a rough 3-D track."""
-    tau = t - t_ref
-    n = tau.size
-    m = min(n, max(8, n // 2))
-    out_p, out_v = [], []
-    for axis in range(3):
-        if axis == 2:  # depth: a straight line through all points (noisiest coordinate)
-            c = np.polyfit(tau, pts[:, axis], 1)
-            out_p.append(c[1])
-            out_v.append(c[0])
-        else:
-            c = np.polyfit(tau[:m], pts[:m, axis], 2)
-            out_p.append(c[2])
-            out_v.append(c[1])
-    return np.array(out_p + out_v, dtype=float)
+def _diameter_scale(value) -> float | None:
+    if isinstance(value, str) and value == "estimate":
+        return None
+    if (
+        isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+        and value > 0
+    ):  # fmt: skip
+        return float(value)
+    raise InputError(
+        f"diameter_scale: expected 'estimate' or a finite number > 0 (1 = the diameters' "
+        f"absolute size is right), got {value!r}."
+    )
 
 
 # ----------------------------------------------------------------------------- front door
@@ -384,10 +367,12 @@ def fit_views(
     wind: Sequence[float] = (0.0, 0.0, 0.0),
     buoyancy: bool = True,
     noise: str = "auto",
-    use_outline: bool = True,
+    use_outline: bool | str = "auto",
     coverage_factor: float | None = None,
     initial: dict | None = None,
     max_nfev: int = 300,
+    diameter_measure: str | float = "estimate",
+    diameter_scale: str | float = "estimate",
 ) -> ViewFitResult:
     """Fit the drag law and the 3-D flight to one throw seen by one or more cameras.
 
@@ -415,9 +400,10 @@ def fit_views(
     noise : {"auto", "white", "ar1"}
         Noise model of every channel; "auto" uses AR(1) when the residuals' lag-1
         autocorrelation is significant (p < 0.01).
-    use_outline : bool
+    use_outline : bool or "auto"
         Fit the apparent diameters of the views that have them (needed with one camera for
-        the depth; optional with two or more).
+        the depth; they add almost nothing with two or more, and their systematic errors
+        would only enter).  "auto" (default): with one view only.
     coverage_factor : float, optional
         Force k; default the Student-t factor at p = 95.45 % for the effective degrees of
         freedom.
@@ -426,6 +412,18 @@ def fit_views(
         state there is at the reference time).
     max_nfev : int
         Evaluation budget of each optimiser stage.
+    diameter_measure : {"estimate", "across_motion", "equal_area"} or float
+        What the views' apparent diameters measure: the outline's width across the motion
+        (``"across_motion"``, lam = 0), its equal-area diameter (``"equal_area"``, lam = 1),
+        a given ``lam`` in between, or ``"estimate"``: lam fitted per view (a circle fitted
+        to the elliptic blob of a sphere seen off the optical axis lands between the two,
+        depending on the blur; :mod:`fitdrag.fit.image_problem`). [1]
+    diameter_scale : "estimate" or float
+        Scale of the views' diameters against the specimen's size: ``"estimate"`` (a fitted
+        scale per view: a constant bias of the tracker's diameters and the specimen's
+        diameter uncertainty then do not move the depth, which follows from the diameter's
+        relative change along the flight and from gravity) or a given scale (1 = trust the
+        diameters' absolute size). [1]
 
     Returns
     -------
@@ -460,11 +458,20 @@ def fit_views(
     dm = get_drag_model(model)
     conditions = Conditions(air=air, gravity=gravity, wind=0.0, buoyancy=buoyancy)
     radius = 0.5 * float(specimen.length)
-    outline = [bool(use_outline) and v.diameter is not None for v in views]
+    if use_outline == "auto":
+        use_outline = len(views) == 1
+    elif not isinstance(use_outline, bool):
+        raise InputError(
+            f"use_outline: expected True, False or 'auto', got {use_outline!r}; 'auto' fits the "
+            f"apparent diameters with one camera only."
+        )
+    outline = [use_outline and v.diameter is not None for v in views]
     given = [0.0] + [v.time_offset for v in views[1:]]
+    lam = _diameter_measure(diameter_measure)
+    scale = _diameter_scale(diameter_scale)
 
     # start: a rough 3-D track, the offsets' whole-frame starts, the reference time
-    t_start, pts, off_start = _start_track(views, radius, outline, given)
+    t_start, pts, off_start = start_track(views, radius, outline, given)
     fps = views[0].fps
     t_first = float(views[0].frame_times[0])
     lows = []
@@ -472,14 +479,16 @@ def fit_views(
         low = s - OFFSET_RANGE_FRAMES / fps if g is None else g
         lows.append(float(v.camera.row_time(v.frame_times[0] + low, 0.0)))
     t_ref = min(t_first, *lows)
+    measures = [lam] * len(views)
+    scales = [scale] * len(views)
     problem = ImageProblem(views, specimen, conditions, dm, (), lift, wind_v, axis, outline,
-                           given, t_ref)  # fmt: skip
+                           given, t_ref, measures, scales)  # fmt: skip
     constants: tuple[float, ...] = ()
     if dm.constants:
         speed = np.linalg.norm(np.gradient(pts, t_start, axis=0) - wind_v, axis=1)
         constants = dm.constants_for(air.density * speed * specimen.length / air.viscosity)
         problem = ImageProblem(views, specimen, conditions, dm, constants, lift, wind_v, axis,
-                               outline, given, t_ref)  # fmt: skip
+                               outline, given, t_ref, measures, scales)  # fmt: skip
     names = problem.parameter_names()
     problem.names = names
     bounds = [tuple(b) for b in dm.bounds] + ([(-5.0, 5.0)] if lift else [])
@@ -487,10 +496,14 @@ def fit_views(
     for g, s in zip(given, off_start):
         if g is None:
             bounds.append((s - OFFSET_RANGE_FRAMES / fps, s + OFFSET_RANGE_FRAMES / fps))
+    n_measures = sum(j is not None for j in problem.measure_index)
+    n_scales = sum(j is not None for j in problem.scale_index)
+    bounds += [MEASURE_RANGE] * n_measures + [SCALE_RANGE] * n_scales
     problem.bounds = bounds
     theta = np.concatenate(
         [np.array(dm.initial, float), [0.0] if lift else np.zeros(0),
-         _launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None]]
+         launch_from_track(t_start, pts, t_ref), [s for g, s in zip(given, off_start) if g is None],
+         [0.5] * n_measures, [1.0] * n_scales]
     )  # fmt: skip
     if initial:
         for k, val in initial.items():
@@ -498,14 +511,15 @@ def fit_views(
                 raise InputError(f"initial: unknown parameter {k!r}; valid: {', '.join(names)}.")
             theta[names.index(k)] = float(val)
 
-    # noise levels: a robust first estimate per channel (second differences), stated = floor
+    # noise levels: a robust first estimate per channel (second differences), stated = floor;
+    # a view's u and v share one level (one centroid sigma per frame, as CameraView states)
     levels = []
     for ch in problem.channels:
         if ch.stated is not None:
             levels.append(1.0)
         else:
             levels.append(noise_floor(ch.observed, ch.observed)[0])
-    problem.set_noise(levels=levels)
+    problem.set_noise(levels=_pooled(problem, [lv * lv for lv in levels], [1] * len(levels)))
 
     messages: list[str] = []
     best = None
@@ -533,11 +547,13 @@ def fit_views(
         raw = problem.raw_residuals(th)
         if raw is None:
             return None
-        out = []
-        for ch, r in zip(problem.channels, raw):
-            ratio = float(np.sqrt(np.mean((r / ch.relative) ** 2))) * corr
-            out.append(max(ratio, 1.0) if ch.stated is not None else max(ratio, 1e-9))
-        return out
+        sums = [float(np.sum((r / ch.relative) ** 2)) * corr * corr for ch, r in
+                zip(problem.channels, raw)]  # fmt: skip
+        out = _pooled(problem, sums, [ch.observed.size for ch in problem.channels])
+        return [
+            max(lv, 1.0) if ch.stated is not None else max(lv, 1e-9)
+            for ch, lv in zip(problem.channels, out)
+        ]
 
     previous = np.array([ch.level for ch in problem.channels])
     for _it in range(5):
@@ -615,7 +631,8 @@ def fit_views(
         success = False
         messages.append("the flight cannot be simulated or projected at the fitted parameters")
     return _assemble(problem, theta, cov, sims if ok_eval else None, success, messages,
-                     noise_model, coverage_factor, t_first, noise, use_outline, dof)  # fmt: skip
+                     noise_model, coverage_factor, t_first, noise, use_outline, dof,
+                     diameter_measure, diameter_scale)  # fmt: skip
 
 
 # ----------------------------------------------------------------------------- assembly
@@ -633,7 +650,8 @@ def _launch_at(problem: ImageProblem, theta, t: float):
 
 
 def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user, t_first,
-              noise_opt, use_outline, dof_plain) -> ViewFitResult:  # fmt: skip
+              noise_opt, use_outline, dof_plain, measure_opt,
+              scale_opt) -> ViewFitResult:  # fmt: skip
     dm = problem.model
     air = problem.conditions.air
     finite = bool(np.all(np.isfinite(cov)))
@@ -652,6 +670,8 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
 
     # per view results, Reynolds numbers and depth range
     offsets = problem.offsets(theta)
+    lams = problem.measures(theta)
+    scales = problem.scales(theta)
     times = problem.observation_times(theta)
     pred, ok_pred = problem.predict(theta)
     raw = problem.raw_residuals(theta) if ok_pred else None
@@ -660,6 +680,10 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         chans = [(c, ch) for c, ch in enumerate(problem.channels) if ch.view_index == i]
         col = problem.offset_index[i]
         u_off = math.sqrt(max(cov[col, col], 0.0)) if (col is not None and finite) else 0.0
+        mcol = problem.measure_index[i]
+        u_lam = math.sqrt(max(cov[mcol, mcol], 0.0)) if (mcol is not None and finite) else 0.0
+        scol = problem.scale_index[i]
+        u_s = math.sqrt(max(cov[scol, scol], 0.0)) if (scol is not None and finite) else 0.0
         if pred is not None and sims is not None:
             pu, pv, pd = pred[i]
             pos, vel = sims[i][0], sims[i][1]
@@ -697,6 +721,11 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
                 ar1_coefficients=tuple(float(ch.phi) for _c, ch in chans),
                 residual_rms=float(np.sqrt(np.mean(np.concatenate((ru, rv)) ** 2))),
                 distance=dist,
+                diameter_measure=float(lams[i]) if 2 in by_kind else math.nan,
+                diameter_measure_uncertainty=float(u_lam) if 2 in by_kind else math.nan,
+                diameter_measure_estimated=mcol is not None,
+                diameter_scale=float(scales[i]) if 2 in by_kind else math.nan,
+                diameter_scale_uncertainty=float(u_s) if 2 in by_kind else math.nan,
             )
         )
     del raw
@@ -731,6 +760,18 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         messages.append(
             f"{', '.join(at_upper)} reached its upper bound: the drag needed to follow the "
             f"observations is implausible; check the mass [kg], size [m], frame rate and cameras"
+        )
+    at_diameter_bound = [
+        problem.names[j] for j in problem.measure_index + problem.scale_index
+        if j is not None and min(abs(theta[j] - b) for b in problem.bounds[j]) < 1e-9
+    ]  # fmt: skip
+    if success and at_diameter_bound:
+        success = False
+        messages.append(
+            f"{', '.join(at_diameter_bound)} reached the edge of its range (measure "
+            f"{MEASURE_RANGE}, scale {SCALE_RANGE}): the apparent diameters do not follow the "
+            f"sphere's outline; check the diameters, the specimen's size [m] and the camera, or "
+            f"fit without them (use_outline=False)"
         )
     at_offset_bound = [
         problem.names[j] for j in problem.offset_index
@@ -772,5 +813,6 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
         options={
             "model": dm.name, "lift": problem.lift, "spin_axis": tuple(problem.spin_axis),
             "wind": tuple(problem.wind), "noise": noise_opt, "use_outline": bool(use_outline),
+            "diameter_measure": measure_opt, "diameter_scale": scale_opt,
         },
     )  # fmt: skip

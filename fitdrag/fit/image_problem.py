@@ -24,7 +24,19 @@ over those frames' gaps.
 
 Parameter layout: the drag law's parameters (then C_L when fitted), the launch state
 (x0, y0, z0, vx0, vy0, vz0) at the reference time ``t_ref``, then one time offset per view
-whose offset is estimated.  Residual layout: per view its noise channels (u, v, then the
+whose offset is estimated, then one diameter measure per view whose measure is fitted, then
+one diameter scale per view whose scale is fitted.
+
+The apparent diameter a tracker reports depends on how it measures: a circle fitted to the
+blob of a sphere seen off the optical axis (an ellipse, elongated towards the principal
+point) lands between the ellipse's width across the motion and its equal-area diameter, the
+nearer the latter the shorter the blur.  The diameter channel's prediction is therefore
+``s (w + lam (d_area - w))`` (:func:`fitdrag.geometry.views.outline_width`,
+:func:`fitdrag.geometry.views.outline_area_diameter`) with ``lam`` given per view or fitted;
+``d pred / d lam = s (d_area - w)``.  The scale ``s`` (given, 1 by default, or fitted) takes a
+tracker's constant diameter bias and the specimen's diameter uncertainty off the depth: the
+flight's depth then follows from the diameter's relative change along the flight (which
+measures v_z / Z) and from gravity, which sets the flight's size in metres.  Residual layout: per view its noise channels (u, v, then the
 diameter when used), each divided by its noise standard deviation and, under AR(1) noise,
 Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
 """
@@ -35,7 +47,7 @@ import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
 from fitdrag.fit.problem import FAIL_RESIDUAL, FIT_RTOL
-from fitdrag.geometry.views import outline_centre, outline_width
+from fitdrag.geometry.views import outline_area_diameter, outline_centre, outline_width
 from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
 
 #: Names of the noise channels of a view.
@@ -91,10 +103,20 @@ class ImageProblem:
         Per view: the known time offset [s], or None when it is a fitted parameter.
     t_ref : float
         Time of the launch state, at or before every observation. [s]
+    diameter_measures : list of float or None, optional
+        Per view, what its apparent diameters measure: ``lam`` in
+        ``d = s (w + lam (d_area - w))`` between the outline's width across the motion ``w``
+        (``lam = 0``, the default) and its equal-area diameter ``d_area`` (``lam = 1``); None
+        = a fitted parameter (``diameter_measure_<view number>``). [1]
+    diameter_scales : list of float or None, optional
+        Per view, the scale ``s`` of its diameters (default 1: the tracker's diameters
+        against the specimen's true size); None = a fitted parameter
+        (``diameter_scale_<view number>``). [1]
     """
 
     def __init__(self, views, specimen, conditions, model, constants, lift, wind, spin_axis,
-                 use_outline, offsets, t_ref):  # fmt: skip
+                 use_outline, offsets, t_ref, diameter_measures=None,
+                 diameter_scales=None):  # fmt: skip
         self.views = list(views)
         self.specimen = specimen
         self.conditions = conditions
@@ -112,9 +134,22 @@ class ImageProblem:
         for off in self.known_offsets:
             self.offset_index.append(j if off is None else None)
             j += off is None
-        self.n_params = j
         self.use_outline = [bool(u) and v.diameter is not None for u, v in zip(use_outline, views)]
+        measures = [0.0] * len(self.views) if diameter_measures is None else diameter_measures
+        self.known_measures = [None if m is None else float(m) for m in measures]
+        self.measure_index: list[int | None] = []
+        for used, m in zip(self.use_outline, self.known_measures):
+            self.measure_index.append(j if (used and m is None) else None)
+            j += used and m is None
+        scales = [1.0] * len(self.views) if diameter_scales is None else diameter_scales
+        self.known_scales = [None if m is None else float(m) for m in scales]
+        self.scale_index: list[int | None] = []
+        for used, m in zip(self.use_outline, self.known_scales):
+            self.scale_index.append(j if (used and m is None) else None)
+            j += used and m is None
+        self.n_params = j
         self.directions = [v.motion_directions() for v in self.views]
+        self.stretch = [v.row_stretch() for v in self.views]
         self.channels: list[Channel] = []
         for i, v in enumerate(self.views):
             gaps = np.diff(v.frames).astype(int)
@@ -144,6 +179,41 @@ class ImageProblem:
             float(theta[j]) if j is not None else float(k)
             for j, k in zip(self.offset_index, self.known_offsets)
         ]
+
+    def measures(self, theta) -> list[float]:
+        """Per view the diameter measure ``lam`` at ``theta`` (0 where not used). [1]"""
+        return [
+            float(theta[j]) if j is not None else (0.0 if m is None else m)
+            for j, m in zip(self.measure_index, self.known_measures)
+        ]
+
+    def scales(self, theta) -> list[float]:
+        """Per view the diameter scale ``s`` at ``theta`` (1 where not used). [1]"""
+        return [
+            float(theta[j]) if j is not None else (1.0 if m is None else m)
+            for j, m in zip(self.scale_index, self.known_scales)
+        ]
+
+    def diameter(self, i: int, pos, theta, jacobians: bool = False):
+        """Predicted diameter of view ``i`` at sphere centres ``pos`` [px]; with
+        ``jacobians`` also d/d(point) (n, 3) [px/m], d/d lam and d/d s (n,) [px]."""
+        v = self.views[i]
+        lam = self.measures(theta)[i]
+        scale = self.scales(theta)[i]
+        w, dw = outline_width(v.camera, pos, self.radius, self.directions[i],
+                              jacobians=jacobians)  # fmt: skip
+        d_lam = np.zeros_like(w)
+        if lam != 0.0 or self.measure_index[i] is not None:
+            da, dda = outline_area_diameter(v.camera, pos, self.radius,
+                                            row_stretch=self.stretch[i],
+                                            jacobians=jacobians)  # fmt: skip
+            d_lam = da - w
+            w = w + lam * d_lam
+            if jacobians:
+                dw = dw + lam * (dda - dw)
+        if not jacobians:
+            return scale * w
+        return scale * w, scale * dw, scale * d_lam, w
 
     def sim_theta(self, theta) -> np.ndarray:
         ns = self.n_shared
@@ -193,9 +263,7 @@ class ImageProblem:
         out = []
         for i, (v, (pos, _vel, _j)) in enumerate(zip(self.views, sims)):
             pix, _, _ = outline_centre(v.camera, pos, self.radius)
-            d = None
-            if v.diameter is not None:
-                d, _ = outline_width(v.camera, pos, self.radius, self.directions[i])
+            d = None if v.diameter is None else self.diameter(i, pos, theta)
             ok = ok and bool(np.all(np.isfinite(pix)))
             out.append((pix[:, 0], pix[:, 1], d))
         return out, ok
@@ -222,7 +290,7 @@ class ImageProblem:
         jac = np.zeros((self.n_resid, self.n_params))
         sims, ok = self.simulate(theta, True)
         if ok:
-            ok = self._fill(sims, res, jac)
+            ok = self._fill(sims, res, jac, theta)
         if not ok:
             res[:] = FAIL_RESIDUAL
             jac[:] = 0.0
@@ -230,20 +298,23 @@ class ImageProblem:
         self._cache = (res, jac, sims, ok)
         return self._cache
 
-    def _fill(self, sims, res, jac) -> bool:
+    def _fill(self, sims, res, jac, theta) -> bool:
         ns = self.n_shared
         per_view = []
+        extra_cols = {}
         for i, (v, (pos, vel, sj)) in enumerate(zip(self.views, sims)):
             pix, dpix, _ = outline_centre(v.camera, pos, self.radius, jacobians=True)
             if not np.all(np.isfinite(pix)) or not np.all(np.isfinite(dpix)):
                 return False
             entry = {0: (pix[:, 0], dpix[:, 0, :]), 1: (pix[:, 1], dpix[:, 1, :])}
             if self.use_outline[i]:
-                w, dw = outline_width(v.camera, pos, self.radius, self.directions[i],
-                                      jacobians=True)  # fmt: skip
-                if not (np.all(np.isfinite(w)) and np.all(np.isfinite(dw))):
+                d, dd, d_lam, d_scale = self.diameter(i, pos, theta, jacobians=True)
+                if not (np.all(np.isfinite(d)) and np.all(np.isfinite(dd))):
                     return False
-                entry[2] = (w, dw)
+                if not (np.all(np.isfinite(d_lam)) and np.all(np.isfinite(d_scale))):
+                    return False
+                extra_cols[i] = ((self.measure_index[i], d_lam), (self.scale_index[i], d_scale))
+                entry[2] = (d, dd)
             per_view.append((entry, vel, sj))
         for ch in self.channels:
             entry, vel, sj = per_view[ch.view_index]
@@ -259,6 +330,10 @@ class ImageProblem:
             col = self.offset_index[ch.view_index]
             if col is not None:
                 j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
+            if ch.kind == 2:
+                for c, values in extra_cols[ch.view_index]:
+                    if c is not None:
+                        j[:, c] = values
             j *= -inv_s[:, None]
             if ch.phi != 0.0:
                 r = prais_winsten(r, ch.gaps, ch.phi)
@@ -297,4 +372,10 @@ class ImageProblem:
         names = list(self.model.parameters) + (["lift_coefficient"] if self.lift else [])
         names += list(LAUNCH_NAMES_3D)
         names += [f"time_offset_{i + 1}" for i, j in enumerate(self.offset_index) if j is not None]
+        names += [
+            f"diameter_measure_{i + 1}" for i, j in enumerate(self.measure_index) if j is not None
+        ]
+        names += [
+            f"diameter_scale_{i + 1}" for i, j in enumerate(self.scale_index) if j is not None
+        ]
         return names

@@ -84,10 +84,21 @@ def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=N
     offsets = [None if r.offset_estimated else v.time_offset or 0.0
                for v, r in zip(views, result.views)]  # fmt: skip
     offsets[0] = 0.0
+    measures = [
+        (None if r.diameter_measure_estimated else float(r.diameter_measure))
+        if r.diameter_used else 0.0
+        for r in result.views
+    ]  # fmt: skip
+    scale_fitted = opts.get("diameter_scale", "estimate") == "estimate"
+    scales = [
+        (None if scale_fitted else float(r.diameter_scale)) if r.diameter_used else 1.0
+        for r in result.views
+    ]
     problem = ImageProblem(
         views, result.specimen if specimen is None else specimen, conditions, dm,
         result.constants, opts["lift"], w,
         np.asarray(opts["spin_axis"], float), outline, offsets, result.reference_time,
+        measures, scales,
     )  # fmt: skip
     problem.names = list(result.parameter_names)
     if problem.parameter_names() != problem.names:

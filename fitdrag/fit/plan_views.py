@@ -126,9 +126,10 @@ def planned_camera(target: Sequence[float], distance: float, angle: float, focal
                   rotation=rot, translation=-rot @ centre, readout_time=readout_time)  # fmt: skip
 
 
-def _problem(views, specimen, conditions, dm, constants, use_outline, offsets, t_ref, ar1=0.0):
+def _problem(views, specimen, conditions, dm, constants, use_outline, offsets, t_ref, ar1=0.0,
+             measures=None, scales=None):  # fmt: skip
     p = ImageProblem(views, specimen, conditions, dm, constants, False, np.zeros(3), _NO_SPIN,
-                     use_outline, offsets, t_ref)  # fmt: skip
+                     use_outline, offsets, t_ref, measures, scales)  # fmt: skip
     p.names = p.parameter_names()
     if ar1:
         p.set_noise(phis=[ar1] * len(p.channels))
@@ -247,7 +248,9 @@ def _fisher_u(problem: ImageProblem, theta, keep=None):
 
 def image_information(views: Sequence[CameraView], specimen, conditions: Conditions,
                       launch: Launch3D, *, model="constant", drag_params=(0.47,), t0: float = 0.0,
-                      use_outline: bool = True, planar: bool = False, ar1: float = 0.0):  # fmt: skip
+                      use_outline: bool = True, planar: bool = False, ar1: float = 0.0,
+                      offsets: Sequence[float] | None = None, diameter_measure: float = 0.0,
+                      fit_measure: bool = False, fit_scale: bool = False):  # fmt: skip
     """Cramér–Rao u(C_d) of one throw seen as ``views`` (e.g. from :func:`planned_views`).
 
     Parameters
@@ -263,6 +266,17 @@ def image_information(views: Sequence[CameraView], specimen, conditions: Conditi
         The flight is held in the board plane (z0 and vz0 not fitted).
     ar1 : float
         Lag-1 correlation of successive frames' errors in every channel. [-]
+    offsets : sequence of float, optional
+        True time offset of each view (the first 0), where the information is evaluated
+        (default all 0). [s]
+    diameter_measure : float
+        What the diameters measure, lam of :mod:`fitdrag.fit.image_problem` (0 = the width
+        across the motion, 1 = the equal-area diameter). [1]
+    fit_measure : bool
+        lam is an unknown of the fit (as ``fit_views(..., diameter_measure="estimate")``).
+    fit_scale : bool
+        The diameters' scale is an unknown of the fit (as ``fit_views(...,
+        diameter_scale="estimate")``; true value 1).
 
     Returns
     -------
@@ -273,10 +287,18 @@ def image_information(views: Sequence[CameraView], specimen, conditions: Conditi
     dm = get_drag_model(model)
     dp = tuple(float(v) for v in np.atleast_1d(drag_params))
     n_fit = len(dm.parameters)
-    offsets = [0.0] + [v.time_offset for v in views[1:]]
+    given = [0.0] + [v.time_offset for v in views[1:]]
+    true_offsets = [0.0] * len(views) if offsets is None else [float(o) for o in offsets]
+    measures = [None if fit_measure else float(diameter_measure)] * len(views)
+    scales = [None if fit_scale else 1.0] * len(views)
     p = _problem(views, specimen, conditions, dm, dp[n_fit:], [use_outline] * len(views),
-                 offsets, t0, ar1)  # fmt: skip
-    theta = _theta(dm, dp, launch, sum(o is None for o in offsets))
+                 given, t0, ar1, measures, scales)  # fmt: skip
+    theta = _theta(dm, dp, launch, 0)
+    theta = np.concatenate((
+        theta, [o for o, g in zip(true_offsets, given) if g is None],
+        [float(diameter_measure)] * sum(j is not None for j in p.measure_index),
+        [1.0] * sum(j is not None for j in p.scale_index),
+    ))  # fmt: skip
     keep = None
     if planar:
         keep = [i for i, n in enumerate(p.names) if n not in ("z0", "vz0")]

@@ -56,7 +56,13 @@ import numpy as np
 from fitdrag.errors import InputError
 from fitdrag.geometry.camera import Camera
 
-__all__ = ["MIN_VIEW_POINTS", "CameraView", "outline_centre", "outline_width"]
+__all__ = [
+    "MIN_VIEW_POINTS",
+    "CameraView",
+    "outline_area_diameter",
+    "outline_centre",
+    "outline_width",
+]
 
 #: Fewest observed frames a view must have.
 MIN_VIEW_POINTS = 8
@@ -245,6 +251,22 @@ class CameraView:
         d[norm == 0] = (1.0, 0.0)
         return d
 
+    def row_stretch(self) -> np.ndarray:
+        """Area factor of the rolling shutter at each frame, ``1 / (1 - (readout / rows)
+        dv/dt)`` (see :func:`outline_area_diameter`), with the blob's speed down the rows
+        ``dv/dt`` from the observed centroids (differences over about four frames on either
+        side, as :meth:`motion_directions`); ones for a global shutter. [1]"""
+        cam = self.camera
+        n = len(self)
+        if cam.readout_time == 0.0:
+            return np.ones(n)
+        k = min(4, n - 1)
+        idx = np.arange(n)
+        hi = np.minimum(idx + k, n - 1)
+        lo = np.maximum(idx - k, 0)
+        speed = (self.v[hi] - self.v[lo]) / ((self.frames[hi] - self.frames[lo]) / self.fps)
+        return 1.0 / (1.0 - (cam.readout_time / cam.rows) * speed)
+
     def with_time_offset(self, time_offset: float | None) -> CameraView:
         """The same view with another time offset [s] (None = estimate it)."""
         return replace(self, time_offset=time_offset)
@@ -308,7 +330,8 @@ def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobian
     return pix, jac, c
 
 
-def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.ndarray):
+def _shape_recorded(camera: Camera, pc: np.ndarray, radius: float) -> np.ndarray:
+    """Shape matrices ``J M J^T`` (n, 2, 2) of the outlines in the recorded image. [px^2]"""
     a, b, c = pc[:, 0], pc[:, 1], pc[:, 2]
     rho2 = float(radius) ** 2
     den = c * c - rho2
@@ -320,11 +343,15 @@ def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.nda
     m = scale[:, None, None] * (
         np.eye(2)[None] + w[:, :, None] * w[:, None, :] / den[:, None, None]
     )
-    mr = dd @ m @ np.transpose(dd, (0, 2, 1))
+    return dd @ m @ np.transpose(dd, (0, 2, 1))
+
+
+def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.ndarray):
+    mr = _shape_recorded(camera, pc, radius)
     q = np.einsum("ni,nij,nj->n", normals, mr, normals)
     with np.errstate(invalid="ignore"):
         out = 2.0 * np.sqrt(q)
-    return np.where(c > float(radius), out, np.nan)
+    return np.where(pc[:, 2] > float(radius), out, np.nan)
 
 
 def outline_width(
@@ -374,3 +401,78 @@ def outline_width(
         dn = _width_camera(camera, pc - step, radius, normals)
         dcam[:, k] = (up - dn) / (2.0 * h)
     return width, dcam @ camera.rotation
+
+
+def _area_camera(camera: Camera, pc: np.ndarray, radius: float):
+    mr = _shape_recorded(camera, pc, radius)
+    det = mr[:, 0, 0] * mr[:, 1, 1] - mr[:, 0, 1] * mr[:, 1, 0]
+    with np.errstate(invalid="ignore"):
+        out = 2.0 * np.sqrt(np.sqrt(det))
+    return np.where(pc[:, 2] > float(radius), out, np.nan)
+
+
+def outline_area_diameter(
+    camera: Camera, points_world: Any, radius: float, *, row_stretch: Any = None,
+    jacobians=False,
+):  # fmt: skip
+    """Diameter of the circle with the area of a sphere's image outline, ``2 sqrt(a b)``.
+
+    The outline's area is ``pi sqrt(det(F M F))`` (the ellipse of the module notes, through
+    the distortion's local Jacobian); motion blur does not change it (a blurred blob's
+    integrated coverage is the area of the sharp one), a rolling shutter stretches it.  The
+    apparent diameter of a circle fitted to an elliptic blob lies between this diameter and
+    the width across the motion (:func:`outline_width`): near this one when the blur is short
+    against the blob, near the width when the blur is long.
+
+    Parameters
+    ----------
+    camera : Camera
+    points_world : array_like, shape (n, 3)
+        Sphere centres, world frame. [m]
+    radius : float
+        Sphere radius. [m]
+    row_stretch : array_like, shape (n,), optional
+        Area factor of the rolling shutter, ``1 / (1 - (readout / rows) dv/dt)`` with
+        ``dv/dt`` the blob's image speed down the rows (see
+        :meth:`CameraView.row_stretch`); default 1 (global shutter). [1]
+    jacobians : bool
+        Also return d(diameter)/d(point), shape (n, 3), by central differences of the closed
+        form in the camera frame (step 1e-6 of the depth).
+
+    Returns
+    -------
+    (ndarray, ndarray or None)
+        Diameters (n,) [px] (NaN where the sphere is not wholly in front of the camera) and
+        the Jacobian [px/m] or None.
+
+    Notes
+    -----
+    The rolling-shutter factor: a point of the outline ``delta`` from the centre (in rows
+    ``delta_v``) is read ``(readout / rows) delta_v`` later and has moved on by the image
+    velocity times that, so the recorded blob is ``(I + k vel e_v^T) delta`` with
+    ``k = (readout / rows) / (1 - (readout / rows) vel_v)``, a map of determinant
+    ``1 / (1 - (readout / rows) vel_v)`` (row-sequential readout, Liang, Chang and Chen,
+    IEEE Trans. Image Process. 17(8), 2008).
+    """
+    pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
+    factor = np.ones(pw.shape[0])
+    if row_stretch is not None:
+        factor = np.sqrt(np.asarray(row_stretch, dtype=float).reshape(-1))
+        if factor.shape != (pw.shape[0],) or not np.all(np.isfinite(factor)):
+            raise InputError(
+                f"row_stretch: expected one finite area factor > 0 per point ({pw.shape[0]}), "
+                f"got {np.shape(row_stretch)}."
+            )
+    pc = camera.to_camera(pw)
+    diameter = _area_camera(camera, pc, radius) * factor
+    if not jacobians:
+        return diameter, None
+    h = 1e-6 * np.maximum(np.abs(pc[:, 2]), 1e-3)
+    dcam = np.empty((pw.shape[0], 3))
+    for k in range(3):
+        step = np.zeros_like(pc)
+        step[:, k] = h
+        up = _area_camera(camera, pc + step, radius)
+        dn = _area_camera(camera, pc - step, radius)
+        dcam[:, k] = (up - dn) / (2.0 * h) * factor
+    return diameter, dcam @ camera.rotation
