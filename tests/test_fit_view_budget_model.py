@@ -63,11 +63,22 @@ def test_nominal_value_and_input_names(throw):
     one pose line per view, a focal length and a readout per camera id."""
     m = _model(throw)
     assert m({}) == pytest.approx(throw[1].cd, rel=1e-10)
-    assert list(m.camera_names) == ["pose_1_1", "focal_length_1", "readout_time_1",
-                                    "pose_1_2", "focal_length_2", "readout_time_2"]  # fmt: skip
+    assert list(m.camera_names) == [
+        "pose_1_1",
+        "focal_length_1",
+        "readout_time_1",
+        "centroid_u_1_1",
+        "centroid_v_1_1",
+        "pose_1_2",
+        "focal_length_2",
+        "readout_time_2",
+        "centroid_u_1_2",
+        "centroid_v_1_2",
+    ]  # fmt: skip (two cameras: the fit leaves the diameters out, so no diameter drift)
     u = m.camera_uncertainties()
     assert u["pose_1_1"] == 1.0 and u["readout_time_1"] == 0.0
     assert u["focal_length_2"] == pytest.approx(1.0 / 900.0)
+    assert u["centroid_v_1_2"] == 0.1  # the tracker's validated systematic error [px]
     assert m.nominal["readout_time_1"] == pytest.approx(1e-3)
 
 
@@ -175,3 +186,24 @@ def test_air_speed_is_a_wind_along_the_fitted_flight():
     m2 = ViewRefitModel([ViewThrow(views, cals, scaled, "1")], {})
     full = fit_views(views, ref.BALL, ref.AIR, model=other, noise="white")
     assert abs(m2.cd_with_model(other) - full.cd) < 0.5 * scaled.u_cd
+
+
+def test_tracker_systematic_lines(throw):
+    """closed-form/independent: a constant shift of every centroid of one camera moves Cd only
+    through perspective (a shift of both cameras' images by the same pixels is not a rigid
+    motion of the flight), so its line is resolved but small against the pose's; with one
+    camera the diameters are used and a diameter drift line appears, whose effect on Cd is
+    of the order the validation study found (4.5-7.9 % per 0.1 px)."""
+    m = _model(throw)
+    cd0 = m({})
+    shift = abs(m({"centroid_v_1_1": 0.1}) - cd0)
+    assert 0 < shift < 0.01 * cd0
+    views, r = throw
+    one = fit_views(views[:1], ref.BALL, ref.AIR, noise="white")
+    assert one.success and one.views[0].diameter_used
+    cal = CameraCalibration("lens 0", POSE_COV)
+    nominal = {"mass": ref.BALL.mass, "diameter": ref.BALL.diameter}
+    m1 = ViewRefitModel([ViewThrow(views[:1], [cal], one, "1")], nominal)
+    assert "diameter_drift_1_1" in m1.camera_names
+    drift = (m1({"diameter_drift_1_1": 0.1}) - m1({})) / m1({})
+    assert 0.005 < abs(drift) < 0.2

@@ -36,6 +36,19 @@ __all__ = [
     "view_input_names",
 ]
 
+#: Standard uncertainty of a tracker's systematic centroid error, per image coordinate, as
+#: a constant shift over the flight. [px]  Type B, from the tracker's own validation on
+#: rendered footage (``benchmarks/coverage_3d.py --source footage``): actual centroid error
+#: RMS 0.093-0.104 px per coordinate against a stated 0.03 px, mostly a smooth offset from
+#: the ball's shading; a flat 0.1 px is taken.
+TRACKER_CENTROID_SYSTEMATIC = 0.1
+
+#: Standard uncertainty of a drift of the tracker's apparent diameters from the first
+#: observation to the last (linear). [px]  Type B, from the same study: drift +0.08 ± 0.08 px
+#: over the flight after the fit's diameter measure and scale (RMS about 0.11 px); with one
+#: camera the depth rests on the diameters' change, so this line carries that error.
+TRACKER_DIAMETER_DRIFT = 0.1
+
 #: Inputs shared by every throw, and their units.
 COMMON_INPUTS = {
     "mass": "kg",
@@ -84,6 +97,12 @@ class CameraCalibration:
         Without the corners: ``d(rvec, t) / d ln f`` of the re-solved pose (e.g. from a track
         file's header), applied to first order; with neither, the pose is held (which
         overstates the focal length's effect). [rad, m]
+    centroid_systematic_uncertainty : float
+        Standard uncertainty of the tracker's systematic centroid error, per coordinate, as
+        a constant shift (default :data:`TRACKER_CENTROID_SYSTEMATIC`). [px]
+    diameter_drift_uncertainty : float
+        Standard uncertainty of a linear drift of the apparent diameters over the flight,
+        for views whose diameters the fit uses (default :data:`TRACKER_DIAMETER_DRIFT`). [px]
     """
 
     camera_id: str
@@ -93,6 +112,8 @@ class CameraCalibration:
     marker_corners: Mapping[int, Any] | None = None
     board: Any = None
     pose_focal_derivative: Any = None
+    centroid_systematic_uncertainty: float = TRACKER_CENTROID_SYSTEMATIC
+    diameter_drift_uncertainty: float = TRACKER_DIAMETER_DRIFT
 
     def __post_init__(self) -> None:
         cov = np.asarray(self.pose_covariance, float)
@@ -102,7 +123,8 @@ class CameraCalibration:
                 f"shape {cov.shape}; take it from camera_pose_from_markers(...).covariance."
             )
         object.__setattr__(self, "pose_covariance", 0.5 * (cov + cov.T))
-        for name in ("focal_length_uncertainty", "time_offset_uncertainty"):
+        for name in ("focal_length_uncertainty", "time_offset_uncertainty",
+                     "centroid_systematic_uncertainty", "diameter_drift_uncertainty"):  # fmt: skip
             v = getattr(self, name)
             if not (isinstance(v, int | float) and math.isfinite(v) and v >= 0):
                 raise InputError(f"{name}: expected a standard uncertainty >= 0, got {v!r}.")
@@ -165,6 +187,14 @@ def view_input_names(throws: Sequence[ViewThrow]) -> dict[str, tuple[str, str]]:
             if v > 1 and not th.result.views[v - 1].offset_estimated:
                 out[f"time_offset_{t}_{v}"] = ("s", f"stated time offset of view {v} in "
                                                     f"throw {t}")  # fmt: skip
+            for axis in ("u", "v"):
+                out[f"centroid_{axis}_{t}_{v}"] = (
+                    "px", f"tracker's systematic centroid error along {axis}, camera "
+                          f"{view.name or v} in throw {t} (constant shift)")  # fmt: skip
+            if th.result.views[v - 1].diameter_used:
+                out[f"diameter_drift_{t}_{v}"] = (
+                    "px", f"drift of the tracker's apparent diameters over the flight, camera "
+                          f"{view.name or v} in throw {t} (first to last)")  # fmt: skip
     return out
 
 
@@ -296,7 +326,7 @@ class ViewRefitModel:
 
     # -- nominal values and uncertainties of the camera inputs ---------------------------
     def _camera_nominal(self, name: str) -> float:
-        if name.startswith("pose_"):
+        if name.startswith(("pose_", "centroid_", "diameter_drift_")):
             return 0.0
         if name.startswith("focal_length_"):
             return 1.0
@@ -329,7 +359,13 @@ class ViewRefitModel:
                              if name.startswith("focal") else cam.readout_time_uncertainty)  # fmt: skip
             else:
                 t, v = (int(x) for x in name.split("_")[2:4])
-                out[name] = self.throws[t - 1].calibrations[v - 1].time_offset_uncertainty
+                cal = self.throws[t - 1].calibrations[v - 1]
+                if name.startswith("centroid_"):
+                    out[name] = cal.centroid_systematic_uncertainty
+                elif name.startswith("diameter_drift_"):
+                    out[name] = cal.diameter_drift_uncertainty
+                else:
+                    out[name] = cal.time_offset_uncertainty
         return out
 
     def _calibration_of(self, c: int) -> CameraCalibration:
@@ -417,6 +453,16 @@ class ViewRefitModel:
             off_name = f"time_offset_{t}_{k}"
             if off_name in v and v[off_name] != view.time_offset:
                 changes["time_offset"] = v[off_name]
+            du, dv = v.get(f"centroid_u_{t}_{k}", 0.0), v.get(f"centroid_v_{t}_{k}", 0.0)
+            if du:
+                changes["u"] = view.u + du
+            if dv:
+                changes["v"] = view.v + dv
+            drift = v.get(f"diameter_drift_{t}_{k}", 0.0)
+            if drift and view.diameter is not None:
+                f = view.frames.astype(float)
+                ramp = (f - f[0]) / max(f[-1] - f[0], 1.0) - 0.5
+                changes["diameter"] = view.diameter + drift * ramp
             out.append(replace(view, **changes) if changes else view)
         return out
 
