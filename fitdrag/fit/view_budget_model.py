@@ -22,6 +22,7 @@ from typing import Any
 import numpy as np
 
 from fitdrag.errors import ConvergenceError, InputError
+from fitdrag.fit.budget_model import DRAG_INPUTS
 from fitdrag.fit.image_refit import refit_views
 from fitdrag.geometry.camera import Camera, rotation_from_vector
 from fitdrag.geometry.views import CameraView
@@ -51,22 +52,9 @@ TRACKER_DIAMETER_DRIFT = 0.1
 
 #: Inputs shared by every throw, and their units.
 COMMON_INPUTS = {
-    "mass": "kg",
-    "diameter": "m",
-    "area": "m²",
-    "volume": "m³",
-    "added_mass_coefficient": "",
-    "temperature": "°C",
-    "pressure": "Pa",
-    "relative_humidity": "%",
-    "air_density": "kg/m³",
-    "frame_rate": "Hz",
-    "length_scale": "",
-    "gravity": "m/s²",
-    "air_viscosity": "Pa s",
-    "air_speed": "m/s",
-    "drag_law": "",
-    "lift_coefficient": "",
+    name: unit
+    for name, unit in DRAG_INPUTS.items()
+    if name not in ("roll", "camera_distance", "out_of_plane_angle")  # planar tracks only
 }
 
 

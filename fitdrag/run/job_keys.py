@@ -152,6 +152,10 @@ _READOUT = Key(
     "for a global shutter",
 )  # fmt: skip
 
+_MARKERS = _q(
+    "m", 0.0, 10.0, 'give the side of the markers\' black square in metres (e.g. 0.05) or "50 mm"'
+)
+
 SECTIONS: dict[str, dict[str, Key]] = {
     "laboratory": {
         "name": Key("str"),
@@ -269,12 +273,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
             "qty", "deg", -180.0, 180.0, "give the camera roll in degrees", lo_open=False
         ),
         "reference": Key("reference"),
-        "markers": _q(
-            "m",
-            0.0,
-            10.0,
-            'give the side of the markers\' black square in metres (e.g. 0.05) or "50 mm"',
-        ),
+        "markers": _MARKERS,
         "marker_dictionary": Key("dictionary"),
         "marker_layout": Key("path"),
         "marker_frame": Key("int", lo=0, hi=10**9),
@@ -292,12 +291,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "track": Key("path"),
         "label": Key("str"),
         "lens": Key("path"),
-        "markers": _q(
-            "m",
-            0.0,
-            10.0,
-            'give the side of the markers\' black square in metres (e.g. 0.05) or "50 mm"',
-        ),
+        "markers": _MARKERS,
         "marker_dictionary": Key("dictionary"),
         "marker_layout": Key("path"),
         "marker_frame": Key("int", lo=0, hi=10**9),

@@ -536,15 +536,9 @@ def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
 
     dm = get_drag_model(fit.model)
     lift = fit.lift
-    eq = (
-        "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
-        + (" + lift" if lift else "")
-        + ": Newton's second law in three dimensions for the specimen of mass m, volume V and "
-        "frontal area A in air of density ρ, with gravity g less buoyancy, the added mass of "
-        "the displaced air (coefficient C_a) and quadratic drag (w: wind)"
-        + ("; a constant lift coefficient is fitted too" if lift else "")
-        + "."
-    )
+    from fitdrag.run.pipeline import model_equation_text
+
+    eq = model_equation_text(lift, " in three dimensions")
     fit_method = (
         "weighted nonlinear least squares in each camera's pixels (Levenberg–Marquardt): the "
         "predicted centre (and, where used, width) of the sphere's image outline at each "

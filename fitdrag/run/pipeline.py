@@ -315,21 +315,27 @@ def perspective_nonlinear_lines(budget) -> list[str]:
     ]
 
 
+def model_equation_text(lift: bool, where: str = "") -> str:
+    """The certificate's statement of the equation of motion (``where``: e.g. " in three
+    dimensions")."""
+    return (
+        "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
+        + (" + lift" if lift else "")
+        + f": Newton's second law{where} for the specimen of mass m, volume V and frontal area "
+        "A in air of density ρ, with gravity g less buoyancy, the added mass of the displaced "
+        "air (coefficient C_a) and quadratic drag (w: wind)"
+        + ("; a constant lift coefficient is fitted too" if lift else "")
+        + "."
+    )
+
+
 def _method(fit_dict: dict, fit_result, budget, mc, geometry: str = "") -> Method:
     """The method in words, from the fit's summary, the fit, the budget and the Monte Carlo
     run."""
     from fitdrag.physics.registry import get_drag_model
 
     dm = get_drag_model(fit_result.model)
-    eq = (
-        "(m + C_a ρ V) dv/dt = (m − ρ V) g − ½ ρ C_d A |v − w| (v − w)"
-        + (" + lift" if fit_result.lift else "")
-        + ": Newton's second law for the specimen of mass m, volume V and frontal area A in "
-        "air of density ρ, with gravity g less buoyancy, the added mass of the displaced air "
-        "(coefficient C_a) and quadratic drag (w: wind)"
-        + ("; a constant lift coefficient is fitted too" if fit_result.lift else "")
-        + "."
-    )
+    eq = model_equation_text(bool(fit_result.lift))
     f = fit_dict.get("fit", {})
     resid = fit_dict.get("residuals", {})
     noise = resid.get("noise_model", "white")
