@@ -420,9 +420,12 @@ def test_model_fit_fallback_keeps_centroid_with_larger_sigma(monkeypatch):
     the outline diameter is within 0.1 px of the generator's 2 * radius_px (oracle:
     fitdrag.video.synthetic truth)."""
     import fitdrag.video.blobs as blobs_mod
+    import fitdrag.video.fit_worker as fit_worker
     from fitdrag.video.ball_fit import BallFit
     from fitdrag.video.detect import detect_specimen
     from fitdrag.video.synthetic import render_flight
+
+    monkeypatch.setattr(fit_worker, "_in_process", lambda: True)  # the patched fit runs here
 
     def traj(t):
         return 20 + 3000 * t, 60 + 1500 * t - 0.5 * 5000 * np.asarray(t) ** 2

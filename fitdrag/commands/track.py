@@ -131,7 +131,9 @@ def _write_atomic(path: Path, write, force: bool, check=None) -> None:
 
 
 def run(args) -> int:
-    from fitdrag.report.track_preview import track_preview_figure
+    from fitdrag.video.fit_worker import prepare_fits
+
+    prepare_fits()  # the blob model fit gets ready while the rest loads and runs
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
@@ -167,6 +169,8 @@ def run(args) -> int:
     )
     summary = ft.summary()
     if preview is not None:
+        from fitdrag.report.track_preview import track_preview_figure
+
         n_show = ft.preview_frame
         with open_source(args.footage) as source:
             image = source.read(n_show)

@@ -89,6 +89,7 @@ __all__ = [
     "BallGuess",
     "fit_ball",
     "render_ball",
+    "warm_up",
 ]
 
 #: Largest pixel lag (both axes) at which the residual correlation enters the uncertainty.
@@ -485,7 +486,7 @@ def _solve_spd(a, b, out):
     return True
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
     """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
     (the non-linear ones at the guess, the linear ones solved there).  Returns the
@@ -598,7 +599,7 @@ def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ft
     return x, res, jac, nfev, status
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _sensitivities(jac, mask_idx, h, w, nk):
     """Images (nk, h, w) of the pixels' influence on the first nk parameters,
     v_k = J (J^T J)^-1 e_k, and their white-noise quadratic forms v_k^T v_k; False if the
@@ -633,7 +634,7 @@ def _sensitivities(jac, mask_idx, h, w, nk):
     return vimg, white, True
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _correlated_variance(resimg, maskimg, vimg, lags):
     """For each image v_k (k = 0, 1, ...) the quadratic form v_k^T R v_k, R the correlation
     matrix of the residuals over the masked pixels: stationary, measured at the given lags
@@ -873,3 +874,28 @@ def fit_ball(
         n_evaluations=nfev,
         success=True,
     )
+
+
+def warm_up() -> bool:
+    """Make the compiled kernels of :func:`fit_ball` ready (loaded from numba's cache, or
+    compiled) by one fit of a small synthetic ball; True if that fit succeeded.
+
+    Loading the kernels costs most of a second on a first call in a process (numba sets up
+    its compiler); a caller can run this in a background thread while it does other work, so
+    the fits that follow find the kernels ready.
+    """
+    h, w = 15, 17
+    yy, xx = np.indices((h, w), dtype=np.float64)
+    # A disc of radius 4 px (coverage from a 4x4 sub-pixel grid) on a flat background, with
+    # a fixed pattern of noise so that the residuals and their correlation are not zero.
+    sub = (np.arange(4) + 0.5) / 4 - 0.5
+    cover = np.zeros((h, w))
+    for sy in sub:
+        for sx in sub:
+            cover += np.hypot(xx + sx - 8.3, yy + sy - 7.1) < 4.0
+    cover /= sub.size**2
+    bg = np.full((h, w), 100.0)
+    noise = np.sin(3.7 * xx + 1.3 * yy * yy)
+    diff = 60.0 * cover + noise
+    fit = fit_ball(diff, bg, 1.0, 1.0, BallGuess(8.0, 7.0, 4.2, 0.5, 0.3))
+    return fit.success

@@ -25,6 +25,7 @@ __all__ = [
     "BlobFinder",
     "BlobPatch",
     "Candidates",
+    "fit_blob_sequence",
     "fit_chosen_blob",
 ]
 
@@ -124,6 +125,51 @@ def fit_chosen_blob(
     return fit_ball(
         pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
     )
+
+
+#: Kept detections are fitted in this many parts of the sequence (each on its own thread).
+FIT_PARTS = 2
+# Fewest detections per part: shorter sequences are fitted in one part.
+_MIN_PART = 16
+
+
+def fit_blob_sequence(blobs, frames, angles, *, threads: int = FIT_PARTS) -> list:
+    """Model fits (:func:`fit_chosen_blob`) of a track's detections, in frame order.
+
+    ``blobs`` the measured blobs, ``frames`` their frame numbers (ascending), ``angles`` the
+    track's direction of motion at each [rad, y down] (None or NaN: the blob's own).  A fit
+    starts from the radius and blur of the previous frame's fit when that frame was fitted
+    (fewer iterations).  The sequence is cut into :data:`FIT_PARTS` parts of consecutive
+    detections whose first fit starts afresh, fitted on up to ``threads`` threads (the
+    compiled fit releases the interpreter lock); the result does not depend on ``threads``.
+    Returns one :class:`~fitdrag.video.ball_fit.BallFit` per blob.
+    """
+    n = len(blobs)
+    parts = FIT_PARTS if n >= FIT_PARTS * _MIN_PART else 1
+    cuts = [round(k * n / parts) for k in range(parts + 1)]
+
+    def part(k: int) -> list:
+        out = []
+        prev_frame, start = None, None
+        for i in range(cuts[k], cuts[k + 1]):
+            a = angles[i]
+            a = float(a) if a is not None and math.isfinite(a) else None
+            near = prev_frame is not None and int(frames[i]) - prev_frame == 1
+            if near and start is not None:
+                fit = fit_chosen_blob(blobs[i], a, start=start)
+            else:
+                fit = fit_chosen_blob(blobs[i], a)
+            prev_frame = int(frames[i])
+            start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
+            out.append(fit)
+        return out
+
+    if threads <= 1 or parts == 1:
+        return [fit for k in range(parts) for fit in part(k)]
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=min(threads, parts)) as pool:
+        return [fit for fits in pool.map(part, range(parts)) for fit in fits]
 
 
 @dataclass(frozen=True, eq=False)

@@ -70,6 +70,7 @@ import numpy as np
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
 from fitdrag.video.blobs import MAX_BLIND, BlobFinder
+from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
 
@@ -371,6 +372,7 @@ def detect_specimen(
             f"channel: {channel!r} is not one of {', '.join(CHANNELS)}; choose one of them."
         )
     start, stop = source._check_range(start, stop)
+    prepare_fits()  # the model fit gets ready while the frames are read
     if channel == "auto" and source.is_color and background is None:
         source.use_channel(choose_channel(source, start, stop))
     if background is None:
@@ -609,13 +611,10 @@ _FALLBACK_SIGMA_FACTOR = 3.0
 
 
 def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
-    """Model fit of each kept detection (:func:`fitdrag.video.blobs.fit_chosen_blob`):
+    """Model fit of each kept detection (:func:`fitdrag.video.fit_worker.fit_blobs`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
-    weighted centroid with a larger sigma and halves the quality.  A fit starts from the
-    radius and blur of the previous frame's fit when that frame was fitted.  Returns the
-    outline columns of :class:`Detections`."""
-    from fitdrag.video.blobs import fit_chosen_blob
-
+    weighted centroid with a larger sigma and halves the quality.  Returns the outline
+    columns of :class:`Detections`."""
     idx = np.flatnonzero(keep)
     n = idx.size
     diam = np.full(n, np.nan)
@@ -628,16 +627,8 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
         ang = np.arctan2(np.gradient(ys[idx]), np.gradient(xs[idx]))
     else:
         ang = np.full(n, np.nan)
-    prev_frame, start = None, None
-    for j, i in enumerate(idx):
-        a = float(ang[j]) if math.isfinite(ang[j]) else None
-        near = prev_frame is not None and int(frames[i]) - prev_frame == 1
-        if near and start is not None:
-            fit = fit_chosen_blob(blobs[i], a, start=start)
-        else:
-            fit = fit_chosen_blob(blobs[i], a)
-        prev_frame = int(frames[i])
-        start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
+    fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist())
+    for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
             diam[j], u_diam[j] = fit.diameter, fit.u_diameter
