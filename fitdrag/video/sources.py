@@ -427,29 +427,45 @@ class VideoSource(FrameSource):
         finally:
             cap.release()
 
-    def read_color(self, frame_number: int) -> np.ndarray:
-        cv2 = _cv2()
+    def _check_number(self, frame_number: int) -> int:
         frame_number = int(frame_number)
         if frame_number < 0 or (self.n_frames is not None and frame_number >= self.n_frames):
             raise InputError(
                 f"frame: {frame_number} is outside the footage {self.path} "
                 f"(frames 0..{self.last_frame}); choose a frame inside that range."
             )
+        return frame_number
+
+    def _decode_packet(self, frame_number: int, flag: int) -> np.ndarray:
+        """Frame ``frame_number`` decoded from its Motion-JPEG packet with ``flag``."""
+        cv2 = _cv2()
+        with self._lock:
+            if self._pcap is None:
+                self._pcap = self._open_packets(0)
+            self._pcap.set(cv2.CAP_PROP_POS_FRAMES, frame_number)
+            ok, pkt = self._pcap.read()
+            pkt = pkt.copy() if ok and pkt is not None else None  # the next read reuses it
+        img = cv2.imdecode(pkt, flag) if pkt is not None else None
+        if img is None or img.shape[:2] != self.shape:
+            raise InputError(
+                f"frame: {frame_number} of {self.path} could not be decoded; the file may "
+                f"be shorter than its header says."
+            )
+        return img
+
+    def read_raw(self, frame_number: int) -> np.ndarray:
+        if self._packets and self.channel_weights is None:
+            # Straight to grey, as the frames are read in sequence (and faster than colour).
+            return self._decode_packet(self._check_number(frame_number), _cv2().IMREAD_GRAYSCALE)
+        return super().read_raw(frame_number)
+
+    def read_color(self, frame_number: int) -> np.ndarray:
+        cv2 = _cv2()
+        frame_number = self._check_number(frame_number)
         if frame_number == 0:
             return self._first.copy()
         if self._packets:
-            with self._lock:
-                if self._pcap is None:
-                    self._pcap = self._open_packets(0)
-                self._pcap.set(cv2.CAP_PROP_POS_FRAMES, frame_number)
-                ok, pkt = self._pcap.read()
-            img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED) if ok and pkt is not None else None
-            if img is None:
-                raise InputError(
-                    f"frame: {frame_number} of {self.path} could not be decoded; the file may "
-                    f"be shorter than its header says."
-                )
-            return img
+            return self._decode_packet(frame_number, cv2.IMREAD_UNCHANGED)
         with self._lock:
             cap = self._cap
             if frame_number != self._next:
