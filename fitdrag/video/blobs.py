@@ -107,7 +107,7 @@ def fit_chosen_blob(
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
     """
-    from fitdrag.video.ball_fit import BallGuess, fit_ball
+    from fitdrag.video.ball_result import BallFit, BallGuess
 
     pt = blob.patch
     length = pt.blur_length if pt is not None else 0.0
@@ -117,11 +117,11 @@ def fit_chosen_blob(
         radius, length = start
     guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
     if pt is None:
-        from fitdrag.video.ball_fit import BallFit
-
         nan = float("nan")
         return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1,
                        nan, nan, 0, 0, False, "no pixels kept for the model fit")  # fmt: skip
+    from fitdrag.video.ball_fit import fit_ball
+
     return fit_ball(
         pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
     )
