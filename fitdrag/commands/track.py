@@ -7,6 +7,7 @@ write the CSV (and the preview picture) atomically, print a summary.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -131,6 +132,9 @@ def _write_atomic(path: Path, write, force: bool, check=None) -> None:
 
 
 def run(args) -> int:
+    # Tracking does small linear algebra only: a BLAS thread pool would cost more to start
+    # (when numpy loads, just below) than it could save.  A value the user set is kept.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     from fitdrag.video.fit_worker import prepare_fits
 
     prepare_fits()  # the blob model fit gets ready while the rest loads and runs
