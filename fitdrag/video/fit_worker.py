@@ -73,14 +73,15 @@ def _start() -> subprocess.Popen | None:
 def fit_blobs(blobs, frames, angles) -> list:
     """Model fits of a track's detections in frame order
     (:func:`fitdrag.video.blobs.fit_blob_sequence`), by the helper process when one is
-    running, else here; the results are the same either way."""
+    running and numba is not loaded here, else here; the results are the same either
+    way."""
     global _HELPER
     from fitdrag.video.blobs import fit_blob_sequence
 
     frames = [int(k) for k in frames]
     angles = [None if a is None else float(a) for a in angles]
     with _LOCK:
-        helper = _HELPER
+        helper = None if _in_process() else _HELPER
         if helper is not None:
             if helper.poll() is None:
                 try:
