@@ -110,3 +110,24 @@ def test_warm_up_makes_the_compiled_fit_ready():
     for kernel in (ball_fit._levenberg_marquardt, ball_fit._sensitivities,
                    ball_fit._correlated_variance):  # fmt: skip
         assert kernel.signatures
+
+
+def test_helper_start_up_skips_the_scipy_linalg_package():
+    """regression: in a fresh interpreter, the helper's light BLAS check loads
+    scipy.linalg.cython_blas without running scipy.linalg's __init__ (no solve), and the
+    compiled fit then loads and fits as usual."""
+    import subprocess
+    import sys
+
+    code = (
+        "import sys\n"
+        "from fitdrag.video.fit_worker import _light_blas_check\n"
+        "_light_blas_check()\n"
+        "from fitdrag.video.ball_fit import warm_up\n"
+        "ok = warm_up()\n"
+        "lin = sys.modules['scipy.linalg']\n"
+        "print(ok, 'scipy.linalg.cython_blas' in sys.modules, hasattr(lin, 'solve'))\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         timeout=300, check=True)  # fmt: skip
+    assert out.stdout.split() == ["True", "True", "False"]

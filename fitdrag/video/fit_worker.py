@@ -112,6 +112,7 @@ def _serve() -> None:
     out = os.fdopen(os.dup(sys.stdout.fileno()), "wb")
     os.dup2(sys.stderr.fileno(), sys.stdout.fileno())
     inp = sys.stdin.buffer
+    _light_blas_check()
     from fitdrag.video.ball_fit import warm_up
     from fitdrag.video.blobs import fit_blob_sequence
 
@@ -123,6 +124,34 @@ def _serve() -> None:
             return
         pickle.dump(fit_blob_sequence(blobs, frames, angles), out, protocol=5)
         out.flush()
+
+
+def _light_blas_check() -> None:
+    """Let numba's set-up check for BLAS without importing all of scipy.linalg (helper only).
+
+    numba's set-up imports ``scipy.linalg.cython_blas`` to learn that a BLAS is there for its
+    own linear algebra, which the fit does not use; the import runs the whole
+    ``scipy.linalg`` package first (a fifth of the helper's start-up).  Here the package is
+    registered without running its ``__init__`` and only ``cython_blas`` is loaded, so the
+    check passes at a fraction of the cost.  Nothing in the helper uses scipy.linalg itself;
+    on any failure everything is undone and the normal import happens later.
+    """
+    import importlib
+    import importlib.util
+
+    if "scipy.linalg" in sys.modules:
+        return
+    try:
+        spec = importlib.util.find_spec("scipy.linalg")
+        if spec is None or spec.submodule_search_locations is None:
+            return
+        sys.modules["scipy.linalg"] = importlib.util.module_from_spec(spec)
+        importlib.import_module("scipy.linalg.cython_blas")
+    except Exception:
+        for name in [
+            m for m in sys.modules if m == "scipy.linalg" or m.startswith("scipy.linalg.")
+        ]:
+            del sys.modules[name]
 
 
 if __name__ == "__main__":
