@@ -69,7 +69,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import MAX_BLIND, BlobFinder
+from fitdrag.video.blobs import MAX_BLIND, BlobFinder, fast_median
 from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
@@ -204,10 +204,10 @@ def _post_check(
         sel = sel[np.abs(frames[sel] - frames[i]) <= 20]
         if len(sel) < 3:
             continue
-        ref = _median_of(areas[sel])
+        ref = fast_median(areas[sel])
         dev = abs(areas[i] / ref - 1.0)
         sp = spreads[sel]
-        sref = np.array([_median_of(sp[:, 0]), _median_of(sp[:, 1])])
+        sref = np.array([fast_median(sp[:, 0]), fast_median(sp[:, 1])])
         # The length along the motion grows with the blur, which follows the speed: compare
         # it with the straight line through the neighbours' lengths (the width keeps the
         # median).
@@ -575,17 +575,6 @@ def choose_channel(source: FrameSource, start: int, stop: int | None, n_samples:
     if pick_name == "grey" or strength[pick_name] < 1.5 * strength["grey"]:
         return None
     return _CHANNEL_WEIGHTS[pick_name]
-
-
-def _median_of(a: np.ndarray) -> float:
-    """:func:`numpy.median` of a 1-D float array without NaN (the same number: the middle
-    value, or the mean of the middle two in the array's own precision), without its
-    overhead."""
-    k = a.size
-    if k % 2:
-        return float(np.partition(a, k // 2)[k // 2])
-    p = np.partition(a, (k // 2 - 1, k // 2))
-    return float((p[k // 2 - 1] + p[k // 2]) / 2)
 
 
 def _check_region(region, w: int, h: int) -> tuple[float, float, float, float]:
