@@ -79,7 +79,8 @@ def test_sequence_fits_match_the_truth_and_do_not_depend_on_threads(track):
 
 def test_helper_process_gives_the_same_fits(track, monkeypatch):
     """regression: fits made by the helper process equal, number for number, those made in
-    this process; a helper that has died is replaced by fitting here, with the same result."""
+    this process; a copy of the process (fork) does not use the helper of the process that
+    started it; a helper that has died is replaced by fitting here, with the same result."""
     blobs, frames, angles, _tr = track
     here = fit_blob_sequence(blobs, frames, angles)
     monkeypatch.setattr(fit_worker, "_in_process", lambda: False)
@@ -91,6 +92,12 @@ def test_helper_process_gives_the_same_fits(track, monkeypatch):
         there = fit_worker.fit_blobs(blobs, frames, angles)
         assert fit_worker._HELPER is helper and helper.poll() is None  # it answered
         np.testing.assert_array_equal(_rows(there), _rows(here))
+        owner = fit_worker._OWNER
+        monkeypatch.setattr(fit_worker, "_OWNER", owner + 1)  # as seen from a forked copy
+        fork = fit_worker.fit_blobs(blobs, frames, angles)
+        assert fit_worker._HELPER is helper and helper.poll() is None  # left alone
+        np.testing.assert_array_equal(_rows(fork), _rows(here))
+        monkeypatch.setattr(fit_worker, "_OWNER", owner)
         helper.kill()
         helper.wait(timeout=10)
         again = fit_worker.fit_blobs(blobs, frames, angles)

@@ -26,6 +26,7 @@ __all__ = ["fit_blobs", "prepare_fits"]
 
 _LOCK = threading.Lock()
 _HELPER: subprocess.Popen | None = None
+_OWNER = 0  # the process that started the helper (a forked child must not share its pipes)
 
 
 def _in_process() -> bool:
@@ -36,11 +37,15 @@ def _in_process() -> bool:
 
 def prepare_fits() -> None:
     """Start the helper process (once per process) unless the fits will run here."""
-    global _HELPER
+    global _HELPER, _OWNER
     with _LOCK:
-        if _in_process() or (_HELPER is not None and _HELPER.poll() is None):
+        if _in_process() or (_owned(_HELPER) and _HELPER.poll() is None):
             return
-        _HELPER = _start()
+        _HELPER, _OWNER = _start(), os.getpid()
+
+
+def _owned(helper: subprocess.Popen | None) -> bool:
+    return helper is not None and _OWNER == os.getpid()
 
 
 def _start() -> subprocess.Popen | None:
@@ -66,7 +71,7 @@ def _start() -> subprocess.Popen | None:
         )
     except (OSError, ValueError):
         return None
-    atexit.register(_stop, helper)  # not left running its set-up after this process ends
+    atexit.register(_stop, helper, os.getpid())  # not left running after this process ends
     return helper
 
 
@@ -81,7 +86,7 @@ def fit_blobs(blobs, frames, angles) -> list:
     frames = [int(k) for k in frames]
     angles = [None if a is None else float(a) for a in angles]
     with _LOCK:
-        helper = None if _in_process() else _HELPER
+        helper = _HELPER if _owned(_HELPER) and not _in_process() else None
         if helper is not None:
             if helper.poll() is None:
                 try:
@@ -97,7 +102,9 @@ def fit_blobs(blobs, frames, angles) -> list:
     return fit_blob_sequence(blobs, frames, angles)
 
 
-def _stop(helper: subprocess.Popen) -> None:
+def _stop(helper: subprocess.Popen, owner: int | None = None) -> None:
+    if owner is not None and owner != os.getpid():
+        return  # a forked copy of the process that started it
     try:
         helper.kill()
         helper.wait(timeout=5)
