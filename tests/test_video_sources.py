@@ -84,6 +84,25 @@ def test_video_frame_range(video):
     np.testing.assert_array_equal(samples[1][1].astype(np.float32), all_frames[6])
 
 
+def test_sampled_frames_are_not_decoded_again(video):
+    """regression: Motion-JPEG frames decoded by sample() are handed to the sequential read
+    that follows (the same image objects, not decoded again), and they equal the frames a
+    fresh source decodes (oracle: a second, independent read of the file); a frame read
+    at reduced resolution is decoded afresh."""
+    src = open_source(video)
+    fresh = dict(open_source(video).frames_raw())
+    samples = dict(src.sample([3, 8]))
+    seq = dict(src.frames_raw())
+    assert seq[3] is samples[3] and seq[8] is samples[8]
+    for n, img in seq.items():
+        np.testing.assert_array_equal(img, fresh[n])
+    assert src._kept == {}  # handed over once
+    src.sample([5])
+    src.reduce_decode = 2
+    small = dict(src.frames_raw(start=4, stop=7))
+    assert small[5].shape == (36, 48) and src._kept == {}
+
+
 def test_folder_natural_order_and_gaps(flight, tmp_path):
     """closed-form/independent: frame numbers come from the digits in the names, ordered
     numerically (frame_2 before frame_10), gaps kept."""

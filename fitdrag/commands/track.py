@@ -7,6 +7,7 @@ write the CSV (and the preview picture) atomically, print a summary.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 from pathlib import Path
 
@@ -188,7 +189,12 @@ def _camera_text(pose) -> str:
 
 
 def run(args) -> int:
-    from fitdrag.report.track_preview import track_preview_figure
+    # Tracking does small linear algebra only: a BLAS thread pool would cost more to start
+    # (when numpy loads, just below) than it could save.  A value the user set is kept.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+    from fitdrag.video.fit_worker import prepare_fits
+
+    prepare_fits()  # the blob model fit gets ready while the rest loads and runs
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
@@ -242,6 +248,8 @@ def run(args) -> int:
     if pose is not None:
         summary += "\n" + _camera_text(pose)
     if preview is not None:
+        from fitdrag.report.track_preview import track_preview_figure
+
         n_show = ft.preview_frame
         with open_source(args.footage) as source:
             image = source.read(n_show)

@@ -74,12 +74,12 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 
 import numba
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.video.ball_result import BallFit, BallGuess
 
 __all__ = [
     "CORRELATION_LAGS",
@@ -89,6 +89,7 @@ __all__ = [
     "BallGuess",
     "fit_ball",
     "render_ball",
+    "warm_up",
 ]
 
 #: Largest pixel lag (both axes) at which the residual correlation enters the uncertainty.
@@ -121,94 +122,6 @@ _STEP_TOLERANCE = 5e-3
 # ... or when an accepted step lowers the sum of squares by less than this many noise
 # variances (parameters then move by a few per cent of their standard uncertainty). [1]
 _COST_TOLERANCE = 0.01
-
-
-@dataclass(frozen=True)
-class BallGuess:
-    """First guess for :func:`fit_ball`, image coordinates (y down).
-
-    Parameters
-    ----------
-    x, y : float
-        Centre of the blob (e.g. its weighted centroid). [px]
-    radius : float
-        Apparent radius of the ball. [px]
-    blur_length : float
-        Length of the centre's path over the exposure. [px]
-    blur_angle : float
-        Direction of that path, from +x towards +y (down). [rad]
-    """
-
-    x: float
-    y: float
-    radius: float
-    blur_length: float = 0.0
-    blur_angle: float = 0.0
-
-
-@dataclass(frozen=True)
-class BallFit:
-    """Result of :func:`fit_ball`, image coordinates (x right, y down, pixel centres at
-    integers).
-
-    Attributes
-    ----------
-    x, y : float
-        Centre of the ball averaged over the exposure (midpoint of the blur segment). [px]
-    u_x, u_y : float
-        Their standard uncertainties. [px]
-    diameter : float
-        Apparent diameter of the ball, ``2 r``: the blob's width perpendicular to the
-        motion. [px]
-    u_diameter : float
-        Its standard uncertainty. [px]
-    blur_length : float
-        Length of the centre's path over the exposure. [px]
-    blur_angle : float
-        Its direction from +x towards +y, in (-pi/2, pi/2]. [rad]
-    top, bottom : float
-        Smallest and largest y the ball's outline reaches during the exposure. [px]
-    row_first, row_last : int
-        First and last image rows the blob spans (the rows holding ``top`` and ``bottom``).
-    residual_rms : float
-        RMS of the fit's residuals in units of the given noise level. [1]
-    noise_inflation : float
-        Factor by which the measured noise correlation enlarges the centre's uncertainty
-        over the white-noise value (1 for white noise). [1]
-    n_pixels : int
-        Pixels fitted.
-    n_evaluations : int
-        Model evaluations used (residuals and Jacobians).
-    success : bool
-        The fit converged to a plausible ball; when False the other figures (except
-        ``reason``) are not to be used.
-    reason : str or None
-        Why the fit failed, else None.
-    """
-
-    x: float
-    y: float
-    u_x: float
-    u_y: float
-    diameter: float
-    u_diameter: float
-    blur_length: float
-    blur_angle: float
-    top: float
-    bottom: float
-    row_first: int
-    row_last: int
-    residual_rms: float
-    noise_inflation: float
-    n_pixels: int
-    n_evaluations: int
-    success: bool
-    reason: str | None = None
-
-    @property
-    def sigma(self) -> float:
-        """Standard uncertainty of one centre coordinate: RMS of ``u_x`` and ``u_y``. [px]"""
-        return math.sqrt(0.5 * (self.u_x**2 + self.u_y**2))
 
 
 # ------------------------------------------------------------------------------ rendering
@@ -485,7 +398,7 @@ def _solve_spd(a, b, out):
     return True
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
     """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
     (the non-linear ones at the guess, the linear ones solved there).  Returns the
@@ -598,7 +511,7 @@ def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ft
     return x, res, jac, nfev, status
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _sensitivities(jac, mask_idx, h, w, nk):
     """Images (nk, h, w) of the pixels' influence on the first nk parameters,
     v_k = J (J^T J)^-1 e_k, and their white-noise quadratic forms v_k^T v_k; False if the
@@ -633,7 +546,7 @@ def _sensitivities(jac, mask_idx, h, w, nk):
     return vimg, white, True
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def _correlated_variance(resimg, maskimg, vimg, lags):
     """For each image v_k (k = 0, 1, ...) the quadratic form v_k^T R v_k, R the correlation
     matrix of the residuals over the masked pixels: stationary, measured at the given lags
@@ -873,3 +786,28 @@ def fit_ball(
         n_evaluations=nfev,
         success=True,
     )
+
+
+def warm_up() -> bool:
+    """Make the compiled kernels of :func:`fit_ball` ready (loaded from numba's cache, or
+    compiled) by one fit of a small synthetic ball; True if that fit succeeded.
+
+    Loading the kernels costs most of a second on a first call in a process (numba sets up
+    its compiler); a caller can run this in a background thread while it does other work, so
+    the fits that follow find the kernels ready.
+    """
+    h, w = 15, 17
+    yy, xx = np.indices((h, w), dtype=np.float64)
+    # A disc of radius 4 px (coverage from a 4x4 sub-pixel grid) on a flat background, with
+    # a fixed pattern of noise so that the residuals and their correlation are not zero.
+    sub = (np.arange(4) + 0.5) / 4 - 0.5
+    cover = np.zeros((h, w))
+    for sy in sub:
+        for sx in sub:
+            cover += np.hypot(xx + sx - 8.3, yy + sy - 7.1) < 4.0
+    cover /= sub.size**2
+    bg = np.full((h, w), 100.0)
+    noise = np.sin(3.7 * xx + 1.3 * yy * yy)
+    diff = 60.0 * cover + noise
+    fit = fit_ball(diff, bg, 1.0, 1.0, BallGuess(8.0, 7.0, 4.2, 0.5, 0.3))
+    return fit.success

@@ -25,6 +25,8 @@ __all__ = [
     "BlobFinder",
     "BlobPatch",
     "Candidates",
+    "fast_median",
+    "fit_blob_sequence",
     "fit_chosen_blob",
 ]
 
@@ -106,7 +108,7 @@ def fit_chosen_blob(
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
     """
-    from fitdrag.video.ball_fit import BallGuess, fit_ball
+    from fitdrag.video.ball_result import BallFit, BallGuess
 
     pt = blob.patch
     length = pt.blur_length if pt is not None else 0.0
@@ -116,14 +118,59 @@ def fit_chosen_blob(
         radius, length = start
     guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
     if pt is None:
-        from fitdrag.video.ball_fit import BallFit
-
         nan = float("nan")
         return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1,
                        nan, nan, 0, 0, False, "no pixels kept for the model fit")  # fmt: skip
+    from fitdrag.video.ball_fit import fit_ball
+
     return fit_ball(
         pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
     )
+
+
+#: Kept detections are fitted in this many parts of the sequence (each on its own thread).
+FIT_PARTS = 2
+# Fewest detections per part: shorter sequences are fitted in one part.
+_MIN_PART = 16
+
+
+def fit_blob_sequence(blobs, frames, angles, *, threads: int = FIT_PARTS) -> list:
+    """Model fits (:func:`fit_chosen_blob`) of a track's detections, in frame order.
+
+    ``blobs`` the measured blobs, ``frames`` their frame numbers (ascending), ``angles`` the
+    track's direction of motion at each [rad, y down] (None or NaN: the blob's own).  A fit
+    starts from the radius and blur of the previous frame's fit when that frame was fitted
+    (fewer iterations).  The sequence is cut into :data:`FIT_PARTS` parts of consecutive
+    detections whose first fit starts afresh, fitted on up to ``threads`` threads (the
+    compiled fit releases the interpreter lock); the result does not depend on ``threads``.
+    Returns one :class:`~fitdrag.video.ball_fit.BallFit` per blob.
+    """
+    n = len(blobs)
+    parts = FIT_PARTS if n >= FIT_PARTS * _MIN_PART else 1
+    cuts = [round(k * n / parts) for k in range(parts + 1)]
+
+    def part(k: int) -> list:
+        out = []
+        prev_frame, start = None, None
+        for i in range(cuts[k], cuts[k + 1]):
+            a = angles[i]
+            a = float(a) if a is not None and math.isfinite(a) else None
+            near = prev_frame is not None and int(frames[i]) - prev_frame == 1
+            if near and start is not None:
+                fit = fit_chosen_blob(blobs[i], a, start=start)
+            else:
+                fit = fit_chosen_blob(blobs[i], a)
+            prev_frame = int(frames[i])
+            start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
+            out.append(fit)
+        return out
+
+    if threads <= 1 or parts == 1:
+        return [fit for k in range(parts) for fit in part(k)]
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=min(threads, parts)) as pool:
+        return [fit for fits in pool.map(part, range(parts)) for fit in fits]
 
 
 @dataclass(frozen=True, eq=False)
@@ -313,7 +360,7 @@ class BlobFinder:
         # Local gain from the background around the blob (lamps need not flicker in step).
         outside = (region == 0) & (b > self.bg_floor)
         if int(np.count_nonzero(outside)) >= 20:
-            gl = float(np.median(f[outside] / b[outside]))
+            gl = fast_median(f[outside] / b[outside])
         else:
             gl = g
         bb = np.float32(gl) * b
@@ -385,7 +432,7 @@ class BlobFinder:
         # the outline there is not seen, so the centroid may be pulled.
         blind = float(np.count_nonzero((region > 0) & ~reliable & (closed == 0))) / area_cov
         fill = area / float(bw * bh)
-        snr = float(np.median(absk[core])) / sigma if core.any() else float(absk.max()) / sigma
+        snr = fast_median(absk[core]) / sigma if core.any() else float(absk.max()) / sigma
         blob = Blob(
             x=x0 + sx0 + cx,
             y=y0 + sy0 + cy,
@@ -650,6 +697,17 @@ def _median(a: np.ndarray) -> float:
         return float(np.partition(a, n // 2)[n // 2])
     p = np.partition(a, (n // 2 - 1, n // 2))
     return 0.5 * (float(p[n // 2 - 1]) + float(p[n // 2]))
+
+
+def fast_median(a: np.ndarray) -> float:
+    """:func:`numpy.median` of a 1-D float array without NaN, the same number (the middle
+    value, or the mean of the middle two in the array's own precision), without its
+    overhead."""
+    k = a.size
+    if k % 2:
+        return float(np.partition(a, k // 2)[k // 2])
+    p = np.partition(a, (k // 2 - 1, k // 2))
+    return float((p[k // 2 - 1] + p[k // 2]) / 2)
 
 
 def _halve(img: np.ndarray, scale: int) -> np.ndarray:

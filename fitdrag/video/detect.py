@@ -69,7 +69,8 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import MAX_BLIND, BlobFinder
+from fitdrag.video.blobs import MAX_BLIND, BlobFinder, fast_median
+from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
 
@@ -187,6 +188,9 @@ def _post_check(
     weights (the length along the motion with the straight line through the neighbours'
     lengths instead, as the blur grows with the speed).  A ball partly hidden behind something loses area and, more tellingly, spread
     across the hiding edge; noise moves the spreads by a fraction of a percent.
+    Then, worst first, detections off the smooth path of their neighbours (a least-squares
+    quadratic in time through up to six detections on each side, within 12 frames,
+    evaluated at the detection's frame) by more than ``path_tol`` are withdrawn.
     """
     n = len(frames)
     keep = np.ones(n, bool)
@@ -200,16 +204,19 @@ def _post_check(
         sel = sel[np.abs(frames[sel] - frames[i]) <= 20]
         if len(sel) < 3:
             continue
-        ref = float(np.median(areas[sel]))
+        ref = fast_median(areas[sel])
         dev = abs(areas[i] / ref - 1.0)
-        sref = np.median(spreads[sel], axis=0)
+        sp = spreads[sel]
+        sref = np.array([fast_median(sp[:, 0]), fast_median(sp[:, 1])])
         # The length along the motion grows with the blur, which follows the speed: compare
         # it with the straight line through the neighbours' lengths (the width keeps the
         # median).
         tt = (frames[sel] - frames[i]).astype(float)
         if np.ptp(tt) > 0:
-            slope, icpt = np.polyfit(tt, spreads[sel, 0], 1)
-            sref[0] = icpt
+            tc = tt - tt.mean()
+            y0 = sp[:, 0]
+            slope = float(tc @ (y0 - y0.mean())) / float(tc @ tc)
+            sref[0] = y0.mean() - slope * tt.mean()  # the line's value at this frame
         sdev = np.abs(spreads[i] / np.maximum(sref, 1e-9) - 1.0)
         j = int(np.argmax(sdev))
         if dev > size_tol:
@@ -228,22 +235,39 @@ def _post_check(
         size_term[i] = max(0.0, 1.0 - max(dev / size_tol, sdev[j] / spread_tol) ** 2)
 
     def residuals(active: np.ndarray) -> np.ndarray:
+        """Distance of each active detection from the quadratic through its neighbours, all
+        at once (normal equations of each small fit; times relative to the detection's own
+        frame, positions relative to its own)."""
         r = np.full(n, np.nan)
         idx = np.flatnonzero(active)
-        for j, i in enumerate(idx):
-            sel = np.r_[idx[max(0, j - 6) : j], idx[j + 1 : j + 7]]
-            sel = sel[np.abs(frames[sel] - frames[i]) <= 12]
-            if len(sel) < 5:
-                continue
-            t = (frames[sel] - frames[i]).astype(float)
-            # Quadratic through the neighbours, evaluated at this frame.
-            a = np.column_stack([np.ones_like(t), t, t * t])
-            cx, *_ = np.linalg.lstsq(a, xs[sel], rcond=None)
-            cy, *_ = np.linalg.lstsq(a, ys[sel], rcond=None)
-            r[i] = math.hypot(xs[i] - cx[0], ys[i] - cy[0])
+        m = idx.size
+        if m == 0:
+            return r
+        off = np.r_[-6:0, 1:7]
+        pos = np.arange(m)[:, None] + off[None, :]
+        ok = (pos >= 0) & (pos < m)
+        nb = idx[np.clip(pos, 0, m - 1)]
+        t = (frames[nb] - frames[idx][:, None]).astype(float)
+        ok &= np.abs(t) <= 12
+        use = ok.sum(axis=1) >= 5
+        if not use.any():
+            return r
+        w = ok[use].astype(float)
+        t = t[use]
+        dx = xs[nb[use]] - xs[idx[use]][:, None]
+        dy = ys[nb[use]] - ys[idx[use]][:, None]
+        tp = [w, w * t, w * t * t, w * t**3, w * t**4]
+        mom = [p.sum(axis=1) for p in tp]
+        a = np.stack([np.stack(mom[k : k + 3], axis=-1) for k in range(3)], axis=-2)
+        rhs = np.stack([np.stack([(p * dx).sum(axis=1) for p in tp[:3]], axis=-1),
+                        np.stack([(p * dy).sum(axis=1) for p in tp[:3]], axis=-1)],
+                       axis=-1)  # fmt: skip
+        c = np.linalg.solve(a, rhs)  # (k, 3, 2): constant terms in c[:, 0, :]
+        r[idx[use]] = np.hypot(c[:, 0, 0], c[:, 0, 1])
         return r
 
     active = keep.copy()
+    r = None
     for _ in range(max(1, n // 4)):
         r = residuals(active)
         rr = np.where(active, r, np.nan)
@@ -258,7 +282,9 @@ def _post_check(
             f"off the smooth path of its neighbours by {rr[worst]:.1f} px "
             f"(path_tolerance={path_tol:g} px)"
         )
-    r = residuals(active)
+        r = None  # the path changed: its residuals are computed afresh
+    if r is None:
+        r = residuals(active)
     ok = ~np.isnan(r)
     path_term[ok] = np.clip(1.0 - (r[ok] / path_tol) ** 2, 0.0, 1.0)
     return keep, reasons, size_term, path_term
@@ -371,6 +397,7 @@ def detect_specimen(
             f"channel: {channel!r} is not one of {', '.join(CHANNELS)}; choose one of them."
         )
     start, stop = source._check_range(start, stop)
+    prepare_fits()  # the model fit gets ready while the frames are read
     if channel == "auto" and source.is_color and background is None:
         source.use_channel(choose_channel(source, start, stop))
     if background is None:
@@ -609,13 +636,10 @@ _FALLBACK_SIGMA_FACTOR = 3.0
 
 
 def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
-    """Model fit of each kept detection (:func:`fitdrag.video.blobs.fit_chosen_blob`):
+    """Model fit of each kept detection (:func:`fitdrag.video.fit_worker.fit_blobs`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
-    weighted centroid with a larger sigma and halves the quality.  A fit starts from the
-    radius and blur of the previous frame's fit when that frame was fitted.  Returns the
-    outline columns of :class:`Detections`."""
-    from fitdrag.video.blobs import fit_chosen_blob
-
+    weighted centroid with a larger sigma and halves the quality.  Returns the outline
+    columns of :class:`Detections`."""
     idx = np.flatnonzero(keep)
     n = idx.size
     diam = np.full(n, np.nan)
@@ -628,16 +652,8 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
         ang = np.arctan2(np.gradient(ys[idx]), np.gradient(xs[idx]))
     else:
         ang = np.full(n, np.nan)
-    prev_frame, start = None, None
-    for j, i in enumerate(idx):
-        a = float(ang[j]) if math.isfinite(ang[j]) else None
-        near = prev_frame is not None and int(frames[i]) - prev_frame == 1
-        if near and start is not None:
-            fit = fit_chosen_blob(blobs[i], a, start=start)
-        else:
-            fit = fit_chosen_blob(blobs[i], a)
-        prev_frame = int(frames[i])
-        start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
+    fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist())
+    for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
             diam[j], u_diam[j] = fit.diameter, fit.u_diameter

@@ -22,7 +22,9 @@ one frame at a time (:class:`Follower`):
   later frames cost one whole-frame search at the search resolution each (to re-acquire the
   specimen if it comes back).  A track without a detection for ``max_gap`` frames is lost;
   so is one whose blob keeps a new size for three frames (a hand letting go of the specimen,
-  two objects parting), and the parts are then found afresh.
+  two objects parting), and the parts are then found afresh; when the blob shrank, the part
+  it still follows (the specimen going on along the hand's path, at 30 frames/s soon far
+  from the hand) becomes a track of its own from those three frames at once.
 - **Overlap**: when two followed tracks come within their sizes of each other, neither is
   measured in that frame (the blobs merge or could be swapped); the frames are recorded.
 
@@ -210,6 +212,7 @@ class _Track:
         self.miss: dict[int, str] = {}
         self.overlap: dict[int, set[int]] = {}  # other track id -> frames
         self.resized: list[float] = []  # area ratios of recent blobs refused for their size
+        self.parted: list[tuple[int, Blob]] = []  # and those blobs, with their frames
 
     def add(self, n: int, b: Blob, g: float) -> None:
         self.accepted[n] = (b, g)
@@ -347,7 +350,7 @@ class Follower:
             if tr.ident in clash:
                 tr.miss[n] = f"{OVERLAP} (frames listed in the summary)"
                 continue
-            self._measure_track(tr, n, raw, g, sigma, px, py, allow)
+            self._measure_track(tr, n, raw, g, sigma, px, py, allow, forward=True)
         following = [t for t in self.tracks if t.state == "locked"]
         self._since_search += 1
         if not following or self._since_search >= _WATCH_EVERY:
@@ -397,7 +400,7 @@ class Follower:
         self.search_reason[n] = self.last_reason = reason
         return True
 
-    def _measure_track(self, tr, n, raw, g, sigma, px, py, allow) -> bool:
+    def _measure_track(self, tr, n, raw, g, sigma, px, py, allow, forward=False) -> bool:
         det = self.det
         half = 0.5 * tr.extent + allow + 4.0
         blobs: list[Blob] = []
@@ -428,13 +431,19 @@ class Follower:
                 f"track's {ref:.0f} px (partly hidden or merged with clutter)"
             )
             tr.resized.append(chosen.area / ref)
+            tr.parted.append((n, chosen))
             # The blob followed has changed size for good (a hand letting go of the
             # specimen, two objects parting): end the track so the parts are found afresh.
             last = tr.resized[-_RESIZED:]
             if len(last) == _RESIZED and max(last) / min(last) < 1.0 + self.size_tol:
                 tr.state, tr.ended = "lost", n
+                if forward and max(last) < 1.0:
+                    # It shrank: a part went on along the track's path (the specimen let go
+                    # of): follow that part as a track of its own from those frames.
+                    self._start_part(tr.parted[-_RESIZED:])
             return False
         tr.resized.clear()
+        tr.parted.clear()
         tr.add(n, chosen, g)
         return True
 
@@ -547,6 +556,24 @@ class Follower:
         self._fill_between(tr, frames)
         self._follow_back(tr, frames)
         return True
+
+    def _start_part(self, parted: list[tuple[int, Blob]]) -> None:
+        """Start a track from the blobs of consecutive frames in which a followed blob had
+        shrunk to a new size (confirmed at full resolution as any tracklet)."""
+        frames = [k for k, _ in parted]
+        if frames != list(range(frames[0], frames[0] + len(frames))):
+            return
+        if any(b.reason is not None for _, b in parted):
+            return
+        tl = None
+        for k, b in parted:
+            r = 0.5 * b.extent + 2.0
+            box = (b.x - r, b.y - r, b.x + r + 1.0, b.y + r + 1.0)
+            tl = _Tracklet(k, b.x, b.y, b.area, box) if tl is None else tl.extended(
+                k, b.x, b.y, b.area, box)  # fmt: skip
+        moved = math.hypot(tl.x[-1] - tl.x[0], tl.y[-1] - tl.y[0])
+        if moved >= _MIN_MOTION_PX:
+            self._start_track(tl)
 
     def _fill_between(self, tr: _Track, frames: dict) -> None:
         """Measure the frames between the confirming detections (searched only every few

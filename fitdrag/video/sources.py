@@ -17,7 +17,7 @@ import queue
 import re
 import threading
 from collections.abc import Iterable, Iterator, Sequence
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -34,6 +34,8 @@ _NUMBER = re.compile(r"(\d+)(?!.*\d)")
 
 # Frames read ahead of the consumer by the decoding thread.
 _PREFETCH = 6
+# Most bytes of sampled frames kept for the sequential read that follows (Motion-JPEG).
+_KEEP_BYTES = 64 * 2**20
 
 
 def _cv2():
@@ -290,6 +292,8 @@ class VideoSource(FrameSource):
         self._first = img
         self._packets = self._probe_packets(img)
         self._pcap = None  # capture used for random access in packet mode
+        # Frames decoded by sample(), with the channel weights used, kept for frames_raw().
+        self._kept: dict[int, tuple[object, np.ndarray]] = {}
         self.undecodable = set()
 
     def _probe_packets(self, first: np.ndarray) -> bool:
@@ -311,11 +315,10 @@ class VideoSource(FrameSource):
             ok, pkt = cap.read()
             if not ok or pkt is None:
                 return False
-            img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED)
-            if img is None or img.shape[:2] != first.shape[:2]:
+            img = cv2.imdecode(pkt, cv2.IMREAD_GRAYSCALE)  # as the frames will be read
+            if img is None or img.shape[:2] != first.shape[:2] or img.dtype != first.dtype:
                 return False
-            diff = np.abs(_to_grey(img).astype(np.int16) - _to_grey(first).astype(np.int16))
-            return float(diff.mean()) < 2.0
+            return float(cv2.absdiff(img, _to_grey(first)).mean()) < 2.0
         finally:
             cap.release()
 
@@ -372,7 +375,13 @@ class VideoSource(FrameSource):
                             done = True
                             break
                         r = self.reduce_decode if self.reduce_decode in (2, 4) else 1
-                        pending.append((n, pool.submit(decode, pkt.copy(), r)))
+                        kept = self._kept.pop(n, None)
+                        if r == 1 and kept is not None and kept[0] == self.channel_weights:
+                            ready: Future = Future()
+                            ready.set_result(kept[1])  # decoded by sample(): the same image
+                            pending.append((n, ready))
+                        else:
+                            pending.append((n, pool.submit(decode, pkt.copy(), r)))
                         n += 1
                     if stop is not None and n >= stop:
                         done = True
@@ -427,29 +436,45 @@ class VideoSource(FrameSource):
         finally:
             cap.release()
 
-    def read_color(self, frame_number: int) -> np.ndarray:
-        cv2 = _cv2()
+    def _check_number(self, frame_number: int) -> int:
         frame_number = int(frame_number)
         if frame_number < 0 or (self.n_frames is not None and frame_number >= self.n_frames):
             raise InputError(
                 f"frame: {frame_number} is outside the footage {self.path} "
                 f"(frames 0..{self.last_frame}); choose a frame inside that range."
             )
+        return frame_number
+
+    def _decode_packet(self, frame_number: int, flag: int) -> np.ndarray:
+        """Frame ``frame_number`` decoded from its Motion-JPEG packet with ``flag``."""
+        cv2 = _cv2()
+        with self._lock:
+            if self._pcap is None:
+                self._pcap = self._open_packets(0)
+            self._pcap.set(cv2.CAP_PROP_POS_FRAMES, frame_number)
+            ok, pkt = self._pcap.read()
+            pkt = pkt.copy() if ok and pkt is not None else None  # the next read reuses it
+        img = cv2.imdecode(pkt, flag) if pkt is not None else None
+        if img is None or img.shape[:2] != self.shape:
+            raise InputError(
+                f"frame: {frame_number} of {self.path} could not be decoded; the file may "
+                f"be shorter than its header says."
+            )
+        return img
+
+    def read_raw(self, frame_number: int) -> np.ndarray:
+        if self._packets and self.channel_weights is None:
+            # Straight to grey, as the frames are read in sequence (and faster than colour).
+            return self._decode_packet(self._check_number(frame_number), _cv2().IMREAD_GRAYSCALE)
+        return super().read_raw(frame_number)
+
+    def read_color(self, frame_number: int) -> np.ndarray:
+        cv2 = _cv2()
+        frame_number = self._check_number(frame_number)
         if frame_number == 0:
             return self._first.copy()
         if self._packets:
-            with self._lock:
-                if self._pcap is None:
-                    self._pcap = self._open_packets(0)
-                self._pcap.set(cv2.CAP_PROP_POS_FRAMES, frame_number)
-                ok, pkt = self._pcap.read()
-            img = cv2.imdecode(pkt, cv2.IMREAD_UNCHANGED) if ok and pkt is not None else None
-            if img is None:
-                raise InputError(
-                    f"frame: {frame_number} of {self.path} could not be decoded; the file may "
-                    f"be shorter than its header says."
-                )
-            return img
+            return self._decode_packet(frame_number, cv2.IMREAD_UNCHANGED)
         with self._lock:
             cap = self._cap
             if frame_number != self._next:
@@ -470,7 +495,9 @@ class VideoSource(FrameSource):
 
     def sample(self, frame_numbers):
         """Frames at ``frame_numbers``; reads straight through when they are close together
-        (cheaper than seeking), seeks otherwise."""
+        (cheaper than seeking), seeks otherwise.  Motion-JPEG frames are decoded on two
+        threads and kept (up to 64 MB) for the next sequential read (:meth:`frames_raw`),
+        which then does not decode them again."""
         nums = sorted(set(int(v) for v in frame_numbers))
         if not nums:
             return []
@@ -483,7 +510,15 @@ class VideoSource(FrameSource):
                     return None
 
             with ThreadPoolExecutor(max_workers=2) as pool:
-                return [r for r in pool.map(one, nums) if r is not None]
+                out = [r for r in pool.map(one, nums) if r is not None]
+            self._kept.clear()
+            size = 0
+            for k, img in out:
+                size += img.nbytes
+                if size > _KEEP_BYTES:
+                    break
+                self._kept[k] = (self.channel_weights, img)
+            return out
         stride = (nums[-1] - nums[0]) / max(len(nums) - 1, 1)
         if stride > 12:
             return super().sample(nums)
@@ -506,6 +541,7 @@ class VideoSource(FrameSource):
         return out
 
     def close(self) -> None:
+        self._kept.clear()
         self._cap.release()
         if self._pcap is not None:
             self._pcap.release()
