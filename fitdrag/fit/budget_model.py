@@ -56,6 +56,19 @@ def angle_input_name(throw: int | None) -> str:
     return "out_of_plane_angle" if throw is None else f"out_of_plane_angle_{throw}"
 
 
+def air_from_inputs(v, viscosity=None) -> Air | None:
+    """The air of a budget's input values: ``air_density`` [kg/m³] (with ``air_viscosity``
+    or ``viscosity`` [Pa s] when given), or ``temperature`` [°C], ``pressure`` [Pa] and
+    ``relative_humidity`` [%] through the CIPM-2007 density; None when neither is given."""
+    if "air_density" in v:
+        mu = v.get("air_viscosity", viscosity)
+        kw = {} if mu is None else {"viscosity": mu}
+        return Air(v["air_density"], **kw)
+    if "temperature" in v:
+        return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
+    return None
+
+
 class DragRefitModel:
     """Cd as a function of the inputs, by re-solving a finished fit (a picklable callable).
 
@@ -155,13 +168,7 @@ class DragRefitModel:
                     added_mass_coefficient=ca)  # fmt: skip
 
     def air(self, v):
-        if "air_density" in v:
-            mu = v.get("air_viscosity", self.viscosity)
-            kw = {} if mu is None else {"viscosity": mu}
-            return Air(v["air_density"], **kw)
-        if "temperature" in v:
-            return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
-        return None
+        return air_from_inputs(v, self.viscosity)
 
     def transformed_tracks(self, v):
         f0 = self.nominal.get("frame_rate")

@@ -17,12 +17,11 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
-from fitdrag.fit.refit import Refit
+from fitdrag.fit.refit import Refit, conditions_with
 from fitdrag.fit.results import cd_and_gradient
 from fitdrag.fit.solvers import gauss_newton, trust_region
 from fitdrag.geometry.views import CameraView
 from fitdrag.physics.air import Air
-from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
 
 __all__ = ["median_reynolds", "rebuild_problem", "refit_views"]
@@ -64,13 +63,7 @@ def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=N
             "views: a re-fit needs the same cameras with the same number of observations as "
             "the original fit; run fit_views for new data."
         )
-    c = result.conditions
-    conditions = Conditions(
-        air=c.air if air is None else air,
-        gravity=c.gravity if gravity is None else gravity,
-        wind=c.wind,
-        buoyancy=c.buoyancy,
-    )
+    conditions = conditions_with(result.conditions, air, gravity)
     opts = result.options
     dm = get_drag_model(result.model if model is None else model)
     if dm.parameters != get_drag_model(result.model).parameters:

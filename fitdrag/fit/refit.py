@@ -41,6 +41,17 @@ class Refit:
     success: bool
 
 
+def conditions_with(c: Conditions, air: Air | None = None,
+                    gravity: float | None = None) -> Conditions:  # fmt: skip
+    """``c`` with its air [kg/m³, Pa s] and gravity [m/s²] replaced where given."""
+    return Conditions(
+        air=c.air if air is None else air,
+        gravity=c.gravity if gravity is None else gravity,
+        wind=c.wind,
+        buoyancy=c.buoyancy,
+    )
+
+
 def refit(
     result: FitResult,
     *,
@@ -93,13 +104,7 @@ def refit(
             "tracks: refit needs tracks with the same number of throws and samples as the "
             "original fit; run fit_tracks for new data."
         )
-    c = result.conditions
-    conditions = Conditions(
-        air=c.air if air is None else air,
-        gravity=c.gravity if gravity is None else gravity,
-        wind=c.wind,
-        buoyancy=c.buoyancy,
-    )
+    conditions = conditions_with(result.conditions, air, gravity)
     sp = result.specimen if specimen is None else specimen
     dm = get_drag_model(result.model)
     re_med = result.diagnostics["reynolds_median"]

@@ -22,11 +22,10 @@ from typing import Any
 import numpy as np
 
 from fitdrag.errors import ConvergenceError, InputError
-from fitdrag.fit.budget_model import DRAG_INPUTS
+from fitdrag.fit.budget_model import DRAG_INPUTS, air_from_inputs
 from fitdrag.fit.image_refit import refit_views
 from fitdrag.geometry.camera import Camera, rotation_from_vector
 from fitdrag.geometry.views import CameraView
-from fitdrag.physics.air import Air
 from fitdrag.physics.specimen import Body, Sphere
 
 __all__ = [
@@ -402,13 +401,7 @@ class ViewRefitModel:
         return None
 
     def air(self, v):
-        if "air_density" in v:
-            mu = v.get("air_viscosity", self.viscosity)
-            kw = {} if mu is None else {"viscosity": mu}
-            return Air(v["air_density"], **kw)
-        if "temperature" in v:
-            return Air.from_conditions(v["temperature"], v["pressure"], v["relative_humidity"])
-        return None
+        return air_from_inputs(v, self.viscosity)
 
     def _views(self, th: ViewThrow, t: int, v: Mapping[str, float], pose_delta=None):
         f0 = self.nominal.get("frame_rate")

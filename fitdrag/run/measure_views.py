@@ -453,7 +453,7 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
     facts = FitFacts(
         throws=len(fit.throws),
         drag_model=fit.model,
-        reynolds_number=(re_lo, re_hi, math.sqrt(re_lo * re_hi)),
+        reynolds_number=(re_lo, re_hi, _median_reynolds(fit)),
         launch_speed=Estimate(speed, math.sqrt(max(float(g_speed @ cov_v @ g_speed), 0.0))),
         launch_angle=Estimate(
             angle, math.degrees(math.sqrt(max(float(g_angle @ cov_v @ g_angle), 0.0)))
@@ -488,6 +488,15 @@ def measure_in_3d(job: Job, *, monte_carlo=None, adaptive=None, seed=None, worke
 
     curves = [c for t in fit.throws for c in curves_from_views(t.result, t.views, label=t.label)]
     return Measurement(job, tracks, fit, budget, mc, check, verdict, hashes, content, curves)
+
+
+def _median_reynolds(fit: ViewMeasurementFit) -> float:
+    """Median Reynolds number over the first throw's observations (the certificate's
+    figure; each throw's fit states its Cd at its own median). [-]"""
+    from fitdrag.fit.image_refit import median_reynolds, rebuild_problem
+
+    th = fit.throws[0]
+    return median_reynolds(rebuild_problem(th.result, th.views), th.result.values)
 
 
 def _throw_summary(th, weight: float) -> dict:
@@ -536,7 +545,7 @@ def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
 
     dm = get_drag_model(fit.model)
     lift = fit.lift
-    from fitdrag.run.pipeline import model_equation_text
+    from fitdrag.run.pipeline import drag_model_text, model_equation_text
 
     eq = model_equation_text(lift, " in three dimensions")
     fit_method = (
@@ -561,8 +570,7 @@ def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
     return Method(
         model_equation=eq,
         drag_model=dm.name,
-        drag_model_text=f"{dm.name}: {dm.description}"
-        + (f" ({dm.reference})" if dm.reference else ""),  # fmt: skip
+        drag_model_text=drag_model_text(dm),
         integrator="explicit Runge–Kutta 5(4) (Dormand and Prince 1980) with forward "
         "sensitivities, in three dimensions",
         fit_method=fit_method,

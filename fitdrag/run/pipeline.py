@@ -315,6 +315,11 @@ def perspective_nonlinear_lines(budget) -> list[str]:
     ]
 
 
+def drag_model_text(dm) -> str:
+    """The certificate's naming of a drag law: name, description and source."""
+    return f"{dm.name}: {dm.description}" + (f" ({dm.reference})" if dm.reference else "")
+
+
 def model_equation_text(lift: bool, where: str = "") -> str:
     """The certificate's statement of the equation of motion (``where``: e.g. " in three
     dimensions")."""
@@ -367,8 +372,7 @@ def _method(fit_dict: dict, fit_result, budget, mc, geometry: str = "") -> Metho
     return Method(
         model_equation=eq,
         drag_model=dm.name,
-        drag_model_text=f"{dm.name}: {dm.description}"
-        + (f" ({dm.reference})" if dm.reference else ""),  # fmt: skip
+        drag_model_text=drag_model_text(dm),
         integrator=f.get("integrator", ""),
         fit_method=fit_method,
         uncertainty_method=unc + ".",
