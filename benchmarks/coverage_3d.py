@@ -103,7 +103,7 @@ class Row:
     crb: float = math.nan
     offset_error: float = math.nan  # [frames]
     measure: float = math.nan
-    tracker: tuple = ()  # footage: centroid RMS error, diameter error vs width, vs area [px]
+    tracker: tuple = ()  # footage: centroid RMS error, stated, diameter RMS, drift [px]
 
 
 def draw(rng: np.random.Generator, centroid, diameter) -> Throw:
@@ -134,6 +134,7 @@ def footage_views(th: Throw, n_cam: int, seed: int):
     from fitdrag.geometry.render_views import ViewRenderer
     from fitdrag.physics.flight3d import simulate_3d
     from fitdrag.video.detect import detect_specimen
+    from fitdrag.video.lens import LensModel
 
     t = np.linspace(ref.T_LAUNCH, (FRAMES + 4) / ref.FPS + 3e-3, 8 * FRAMES)
     flight = simulate_3d(t, th.launch, ref.BALL, COND, drag_params=(ref.CD,), t0=ref.T_LAUNCH)
@@ -143,21 +144,26 @@ def footage_views(th: Throw, n_cam: int, seed: int):
         r = ViewRenderer(flight, cam, FRAMES, ref.FPS, radius=0.5 * ref.BALL.diameter,
                          exposure=th.exposure, time_offset=th.offset if i else 0.0,
                          seed=seed + i)  # fmt: skip
-        det = detect_specimen(np.stack([r.frame(k) for k in range(FRAMES)]))
+        lens = LensModel(cam.camera_matrix, np.array(cam.distortion or (0.0,) * 5),
+                         cam.image_size, 0.1)  # fmt: skip
+        det = detect_specimen(np.stack([r.frame(k) for k in range(FRAMES)]), lens=lens,
+                              readout_time=th.readout, fps=ref.FPS)  # fmt: skip
         ok = np.isfinite(det.outline_diameter_px)
         f = det.frame[ok]
         tr = r.truth
         e = np.hypot(det.x_px[ok] - tr.u_px[f], det.y_px[ok] - tr.v_px[f]) / math.sqrt(2.0)
         d = det.outline_diameter_px[ok]
-        area = 2.0 * np.sqrt(tr.semi_major_px[f] * tr.semi_minor_px[f])
+        rho = 0.5 * ref.BALL.diameter
+        depth = 2.0 * math.sqrt(cam.fx * cam.fy) * rho / np.sqrt(tr.depth[f] ** 2 - rho**2)
+        res = d - depth * np.sum(d * depth) / np.sum(depth**2)  # after the fit's scale
+        drift = np.polyfit(f - f.mean(), res, 1)[0] * float(np.ptp(f))
         errs.append((float(np.sqrt(np.mean(e**2))), float(np.median(det.sigma_px[ok])),
-                     float(np.sqrt(np.mean((d - tr.diameter_px[f]) ** 2))),
-                     float(np.sqrt(np.mean((d - area) ** 2))),
+                     float(np.sqrt(np.mean(res**2))), drift,
                      float(np.median(det.u_outline_diameter_px[ok]))))  # fmt: skip
         views.append(CameraView(cam, f, ref.FPS, det.x_px[ok], det.y_px[ok],
                                 sigma=det.sigma_px[ok], diameter=d,
                                 diameter_sigma=det.u_outline_diameter_px[ok],
-                                name=f"camera {i + 1}"))  # fmt: skip
+                                name=f"camera {i + 1}", outline_kind="depth"))  # fmt: skip
     return views, tuple(np.mean(errs, axis=0))
 
 
@@ -349,10 +355,12 @@ def main() -> None:
         tr = [r.tracker for r in rows if r.tracker]
         if tr:
             m = np.mean(tr, axis=0)
+            drift = np.array([t[3] for t in tr])
             print(f"tracker: centroid RMS error {m[0]:.3f} px per coordinate (stated median "
-                  f"{m[1]:.3f}); diameter RMS error against the width across the motion "
-                  f"{m[2]:.3f} px, against the equal-area diameter {m[3]:.3f} px (stated "
-                  f"median {m[4]:.3f})")  # fmt: skip
+                  f"{m[1]:.3f}); diameter RMS error against the depth diameter (after a "
+                  f"scale) {m[2]:.3f} px (stated median {m[4]:.3f}); its linear drift over "
+                  f"the flight: mean {drift.mean():+.3f} px, RMS "
+                  f"{np.sqrt(np.mean(drift**2)):.3f} px, largest {np.abs(drift).max():.3f} px")  # fmt: skip
     if len(table) > 1:
         print("\none camera vs two cameras (the same throws):")
         print(HEADER)

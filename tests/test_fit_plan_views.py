@@ -46,17 +46,16 @@ def _predicted(cameras, throw, offsets, diameter_noise):
     views = planned_views(cameras, ref.BALL, COND, throw, fps=ref.FPS, frames=FRAMES,
                           pixel_noise=0.3, diameter_noise=diameter_noise, drag_params=(ref.CD,),
                           t0=ref.T_LAUNCH, offsets=offsets)  # fmt: skip
-    # fit_views estimates what the diameters measure (lam) and their scale by default: unknowns
-    # here too
+    # fit_views estimates the diameters' scale by default: an unknown here too (depth
+    # diameters have no measure lam)
     return image_information(views, ref.BALL, COND, throw, drag_params=(ref.CD,),
-                             t0=ref.T_LAUNCH, offsets=offsets, fit_measure=True,
-                             fit_scale=True)[0]  # fmt: skip
+                             t0=ref.T_LAUNCH, offsets=offsets, fit_scale=True)[0]  # fmt: skip
 
 
 @pytest.mark.parametrize("yaws", [(0.0,), (-20.0, 20.0)], ids=["one camera", "two cameras"])
 def test_predicted_u_matches_the_scatter_of_replicate_fits(yaws):
     """closed-form/independent: the Cramér–Rao u(Cd) of a throw 1° out of the plane, cameras
-    3 m away (one with the apparent diameter; two 40° apart with an unknown time offset), is
+    3 m away (one with the apparent depth diameter; two 40° apart with an unknown time offset), is
     within 25 % of the standard deviation of Cd over 40 seeded replicate fits by fit_views
     (the efficient estimator's covariance, Kay 1993 ch. 3)."""
     throw = ref.launch(1.0)
@@ -68,7 +67,8 @@ def test_predicted_u_matches_the_scatter_of_replicate_fits(yaws):
     for seed in range(REPLICATES):
         rng = np.random.default_rng(500 + seed)
         views = [ref.observe(c, throw, n=FRAMES, offset=o, rng=rng, sigma=0.3,
-                             diameter_sigma=0.3) for c, o in zip(cams, offsets)]  # fmt: skip
+                             diameter_sigma=0.3, outline="depth")
+                 for c, o in zip(cams, offsets)]  # fmt: skip
         if two:
             views = [replace(v, diameter=None) for v in views]
         r = fit_views(views, ref.BALL, ref.AIR, noise="white")

@@ -457,7 +457,7 @@ def test_model_fit_fallback_keeps_centroid_with_larger_sigma(monkeypatch):
     assert abs(np.mean(good.outline_diameter_px) - 16.0) < 0.1
     nan = float("nan")
 
-    def failing(blob, angle=None):
+    def failing(blob, angle=None, **_):
         return BallFit(blob.x, blob.y, nan, nan, nan, nan, nan, nan, nan, nan, -1, -1, nan,
                        nan, 0, 0, False, "forced failure")  # fmt: skip
 

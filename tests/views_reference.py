@@ -61,13 +61,16 @@ def launch(angle_deg=1.0, *, speed=9.0, elevation=30.0, z0=0.02) -> Launch3D:
 
 def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3,
             diameter_sigma=0.3, rng=None, time_offset="estimate", name="",
-            wind=None, lift=0.0) -> CameraView:  # fmt: skip
+            wind=None, lift=0.0, outline="across_motion") -> CameraView:  # fmt: skip
     """One camera's noisy observations of a throw.
 
     ``offset`` [s] is the true time of this camera's frame 0 relative to t = 0 (the first
     camera's frame 0); ``time_offset`` is what the view states: "estimate" (None), "true"
     (the true offset) or a number [s]; ``wind`` [m/s], a constant air velocity (3-vector);
-    ``lift``, a lift coefficient about the board's normal +z (backspin for a flight along +x).
+    ``lift``, a lift coefficient about the board's normal +z (backspin for a flight along +x);
+    ``outline``, what the diameters are: the outline's width across the motion
+    ("across_motion") or, as a tracker fitting the sphere's camera outline reports, its
+    depth diameter ("depth": twice the conic's semi-minor axis, the cameras having fx = fy).
     """
     cond = Conditions(AIR)
     frames = np.arange(n)
@@ -91,6 +94,9 @@ def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3
     w, h = cam.image_size
     dirs = np.einsum("nij,nj->ni", cam.project(pos, jacobians=True).d_point, vel)
     diam = np.array([o.diameter_across(d) for o, d in zip(outlines, dirs)])
+    if outline == "depth":
+        assert cam.fx == cam.fy
+        diam = np.array([2.0 * o.semi_minor for o in outlines])
     rng = np.random.default_rng(0) if rng is None else rng
     u = centres[:, 0] + rng.normal(0.0, sigma, n)
     v = centres[:, 1] + rng.normal(0.0, sigma, n)
@@ -102,4 +108,4 @@ def observe(cam: Camera, throw: Launch3D, *, n=200, offset=0.0, cd=CD, sigma=0.3
     margin = 0.6 * diam
     seen = np.all((centres > margin[:, None]) & (centres < np.array([w, h]) - margin[:, None]), 1)
     return CameraView(cam, frames[seen], FPS, u[seen], v[seen], diameter=d[seen],
-                      time_offset=stated, name=name)  # fmt: skip
+                      time_offset=stated, name=name, outline_kind=outline)  # fmt: skip

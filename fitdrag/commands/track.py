@@ -221,6 +221,7 @@ def run(args) -> int:
         scale_uncertainty=args.scale_uncertainty,
         region=args.region or None,
         progress=not args.no_progress,
+        readout_time=args.readout_time or 0.0,
     )
     pose = None
     if with_camera:

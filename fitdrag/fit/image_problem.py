@@ -33,7 +33,9 @@ point) lands between the ellipse's width across the motion and its equal-area di
 nearer the latter the shorter the blur.  The diameter channel's prediction is therefore
 ``s (w + lam (d_area - w))`` (:func:`fitdrag.geometry.views.outline_width`,
 :func:`fitdrag.geometry.views.outline_area_diameter`) with ``lam`` given per view or fitted;
-``d pred / d lam = s (d_area - w)``.  The scale ``s`` (given, 1 by default, or fitted) takes a
+``d pred / d lam = s (d_area - w)``.  A tracker that fits the outline the camera gives a
+sphere (``outline_kind = "depth"``) reports the depth diameter, predicted as ``s`` times
+:func:`fitdrag.geometry.views.outline_depth_diameter`, with no ``lam``.  The scale ``s`` (given, 1 by default, or fitted) takes a
 tracker's constant diameter bias and the specimen's diameter uncertainty off the depth: the
 flight's depth then follows from the diameter's relative change along the flight (which
 measures v_z / Z) and from gravity, which sets the flight's size in metres.  Residual layout: per view its noise channels (u, v, then the
@@ -47,7 +49,12 @@ import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
 from fitdrag.fit.problem import FAIL_RESIDUAL, FIT_RTOL
-from fitdrag.geometry.views import outline_area_diameter, outline_centre, outline_width
+from fitdrag.geometry.views import (
+    outline_area_diameter,
+    outline_centre,
+    outline_depth_diameter,
+    outline_width,
+)
 from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
 
 #: Names of the noise channels of a view.
@@ -136,6 +143,9 @@ class ImageProblem:
             j += off is None
         self.use_outline = [bool(u) and v.diameter is not None for u, v in zip(use_outline, views)]
         measures = [0.0] * len(self.views) if diameter_measures is None else diameter_measures
+        # a depth diameter (a tracker that fits the sphere's camera outline) has no measure
+        self.depth_kind = [v.outline_kind == "depth" for v in self.views]
+        measures = [0.0 if dk else m for m, dk in zip(measures, self.depth_kind)]
         self.known_measures = [None if m is None else float(m) for m in measures]
         self.measure_index: list[int | None] = []
         for used, m in zip(self.use_outline, self.known_measures):
@@ -200,6 +210,11 @@ class ImageProblem:
         v = self.views[i]
         lam = self.measures(theta)[i]
         scale = self.scales(theta)[i]
+        if self.depth_kind[i]:
+            w, dw = outline_depth_diameter(v.camera, pos, self.radius, jacobians=jacobians)
+            if not jacobians:
+                return scale * w
+            return scale * w, scale * dw, np.zeros_like(w), w
         w, dw = outline_width(v.camera, pos, self.radius, self.directions[i],
                               jacobians=jacobians)  # fmt: skip
         d_lam = np.zeros_like(w)

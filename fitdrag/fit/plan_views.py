@@ -69,7 +69,7 @@ from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
 from fitdrag.fit.results import cd_and_gradient
 from fitdrag.geometry.camera import Camera
-from fitdrag.geometry.views import CameraView, outline_centre, outline_width
+from fitdrag.geometry.views import CameraView, outline_centre, outline_depth_diameter
 from fitdrag.physics.flight3d import Launch3D, simulate_3d
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.registry import get_drag_model
@@ -149,7 +149,8 @@ def planned_views(cameras: Sequence[Camera], specimen, conditions: Conditions, l
 
     The centroid is the centre of the sphere's outline at the observation's row time (the
     rolling-shutter row iterated to the predicted one) and, for the first camera when
-    ``diameter_noise`` is given, the outline's width across the motion.
+    ``diameter_noise`` is given, the outline's depth diameter (what the tracker reports with
+    a lens, :func:`fitdrag.geometry.views.outline_depth_diameter`).
 
     Parameters
     ----------
@@ -200,9 +201,7 @@ def planned_views(cameras: Sequence[Camera], specimen, conditions: Conditions, l
                 break
             row = pix[:, 1]
         if i == 0 and diameter_noise is not None:
-            v0 = CameraView(cam, fr, fps, pix[:, 0], pix[:, 1])
-            diam, _ = outline_width(cam, pos, 0.5 * float(specimen.length),
-                                    v0.motion_directions())  # fmt: skip
+            diam, _ = outline_depth_diameter(cam, pos, 0.5 * float(specimen.length))
         views.append(
             CameraView(
                 cam,
@@ -215,6 +214,7 @@ def planned_views(cameras: Sequence[Camera], specimen, conditions: Conditions, l
                 diameter_sigma=diameter_noise if diam is not None else None,
                 time_offset=offs[i] if i == 0 else None,
                 name=f"camera {i + 1}",
+                outline_kind="depth",
             )  # fmt: skip
         )
     return views
@@ -649,7 +649,9 @@ def plan_views(specimen, conditions: Conditions, *, speed: float, elevation: flo
     kw = dict(model=dm, drag_params=dp, ar1=ar1)
     u_plane1, cd, _n, _c = image_information(v_one, specimen, conditions, launch,
                                              use_outline=False, planar=True, **kw)  # fmt: skip
-    u_one1 = image_information(v_one, specimen, conditions, launch, **kw)[0]
+    # one camera: the diameters' scale is an unknown, as in the fit (a tracker's constant
+    # bias and the specimen's size uncertainty are kept off the depth)
+    u_one1 = image_information(v_one, specimen, conditions, launch, fit_scale=True, **kw)[0]
     u_two1 = image_information(v_two, specimen, conditions, launch, **kw)[0]
     root = math.sqrt(throws)
     u_plane, u_one, u_two = u_plane1 / root, u_one1 / root, u_two1 / root

@@ -33,6 +33,7 @@ __all__ = [
     "ViewRefitModel",
     "ViewThrow",
     "combine_throws",
+    "tracker_systematics",
     "view_input_names",
 ]
 
@@ -48,6 +49,25 @@ TRACKER_CENTROID_SYSTEMATIC = 0.1
 #: over the flight after the fit's diameter measure and scale (RMS about 0.11 px); with one
 #: camera the depth rests on the diameters' change, so this line carries that error.
 TRACKER_DIAMETER_DRIFT = 0.1
+
+#: The same two figures for a tracker that fits the outline the camera gives a sphere
+#: (diameters measuring depth, ``CameraView.outline_kind == "depth"``). [px]  Type B, from
+#: ``benchmarks/coverage_3d.py --source footage`` (24 throws, one lamp about 20 degrees off
+#: the camera axis, 0.2-2 ms exposure, rolling shutter on most): centroid error RMS 0.028 px
+#: per coordinate against a stated 0.023 px; drift of the diameters over the flight after
+#: the fit's scale RMS 0.023 px, mean +0.015 px, largest 0.041 px.  0.03 px is taken for both.
+SPHERE_TRACKER_CENTROID_SYSTEMATIC = 0.03
+SPHERE_TRACKER_DIAMETER_DRIFT = 0.03
+
+
+def tracker_systematics(outline_kind: str) -> tuple[float, float]:
+    """(centroid systematic, diameter drift) standard uncertainties [px] of a view's tracker,
+    by what its diameters measure (``"depth"``: a tracker fitting the sphere's camera
+    outline; otherwise a circular disc)."""
+    if outline_kind == "depth":
+        return SPHERE_TRACKER_CENTROID_SYSTEMATIC, SPHERE_TRACKER_DIAMETER_DRIFT
+    return TRACKER_CENTROID_SYSTEMATIC, TRACKER_DIAMETER_DRIFT
+
 
 #: Inputs shared by every throw, and their units.
 COMMON_INPUTS = {

@@ -41,7 +41,7 @@ import numpy as np
 from fitdrag.errors import InputError
 from fitdrag.geometry.camera import Camera, rotation_from_vector
 from fitdrag.geometry.pose import BoardPose, MarkerBoard, camera_pose_from_markers
-from fitdrag.geometry.views import MIN_VIEW_POINTS, CameraView, outline_width
+from fitdrag.geometry.views import MIN_VIEW_POINTS, OUTLINE_KINDS, CameraView, outline_width
 from fitdrag.tracks.camera_header import CameraHeader
 from fitdrag.tracks.track import Track
 from fitdrag.video.lens import LensModel, load_lens
@@ -216,8 +216,10 @@ def outline_axes_ratio(camera: Camera, pixels: Any, directions: Any) -> np.ndarr
 TRACKER_DIAMETER_LAMBDA = (0.25, 1.25)
 
 
-def _outline(camera: Camera, u, v, frames, fps, diameter, sigma):
-    """The tracker's diameters as widths across the motion, with their uncertainty.
+def _outline(camera: Camera, u, v, frames, fps, diameter, sigma, kind="across_motion"):
+    """The tracker's diameters as widths across the motion, with their uncertainty (as
+    measured when ``kind`` is ``"depth"``: a tracker that fitted the outline the camera
+    gives a sphere, :mod:`fitdrag.video.sphere_outline`, needs no conversion).
 
     The tracker's model is a circular disc blurred along the motion
     (:mod:`fitdrag.video.ball_fit`); the outline of a sphere off the optical axis is an
@@ -235,8 +237,8 @@ def _outline(camera: Camera, u, v, frames, fps, diameter, sigma):
     fit's per-frame weighting understates it: the budget should carry it.
     """
     d, s = _measured(diameter, sigma)
-    if d is None:
-        return None, None
+    if d is None or kind == "depth":
+        return d, s
     bare = CameraView(camera=camera, frames=frames, fps=fps, u=u, v=v)
     excess = outline_axes_ratio(camera, bare.pixels, bare.motion_directions()) - 1.0
     lo, hi = TRACKER_DIAMETER_LAMBDA
@@ -292,9 +294,10 @@ def view_from_footage(
             f"{_label(ft)} is {size[0]}x{size[1]} px; use the camera that took this footage."
         )
     det = ft.detections
+    kind = getattr(det, "outline_measure", "across_motion")
     d, ds = _outline(camera, det.x_px, det.y_px, det.frame, ft.fps,
                      getattr(det, "outline_diameter_px", None),
-                     getattr(det, "u_outline_diameter_px", None))  # fmt: skip
+                     getattr(det, "u_outline_diameter_px", None), kind)  # fmt: skip
     return CameraView(
         camera=camera,
         frames=det.frame,
@@ -306,6 +309,7 @@ def view_from_footage(
         diameter_sigma=ds,
         time_offset=time_offset,
         name=name or str(getattr(ft, "source", "")),
+        outline_kind=kind,
     )
 
 
@@ -470,8 +474,16 @@ def view_from_track(
         )
     pp = track.meta.get("per_point") or {}
     camera = camera_from_header(header)
+    kind = str(dict(track.meta.get("header") or {}).get("outline_measure", "across_motion"))
+    if kind not in OUTLINE_KINDS:
+        raise InputError(
+            f"{label}: header entry 'outline_measure' must be one of "
+            f"{', '.join(OUTLINE_KINDS)}, got {kind!r}; write the track again with fitdrag "
+            f"track."
+        )
     d, ds = _outline(camera, pp["x_px"], pp["y_px"], track.frame, fps,
-                     pp.get("outline_diameter_px"), pp.get("u_outline_diameter_px"))  # fmt: skip
+                     pp.get("outline_diameter_px"), pp.get("u_outline_diameter_px"),
+                     kind)  # fmt: skip
     src = track.meta.get("source")
     return CameraView(
         camera=camera,
@@ -484,6 +496,7 @@ def view_from_track(
         diameter_sigma=ds,
         time_offset=time_offset,
         name=name if name is not None else (Path(src).name if src else ""),
+        outline_kind=kind,
     )
 
 

@@ -58,14 +58,19 @@ from fitdrag.geometry.camera import Camera
 
 __all__ = [
     "MIN_VIEW_POINTS",
+    "OUTLINE_KINDS",
     "CameraView",
     "outline_area_diameter",
+    "outline_depth_diameter",
     "outline_centre",
     "outline_width",
 ]
 
 #: Fewest observed frames a view must have.
 MIN_VIEW_POINTS = 8
+
+#: What a view's apparent diameters measure (see :class:`CameraView`).
+OUTLINE_KINDS = ("across_motion", "depth")
 
 
 def _series(name: str, value: Any, n: int | None, unit: str, *, positive: bool = False,
@@ -113,7 +118,7 @@ class CameraView:
         Standard uncertainty of one centroid coordinate; None = estimated from the fit's
         residuals. A stated value is a floor: the fit never uses less. [px]
     diameter : sequence of float, optional
-        Apparent diameter of the blob measured across the direction of motion; NaN where it
+        Apparent diameter of the blob (what it measures: ``outline_kind``); NaN where it
         was not measured (at least ``MIN_VIEW_POINTS`` frames must have one). [px]
     diameter_sigma : float or sequence of float, optional
         Standard uncertainty of ``diameter`` (NaN allowed where the diameter is NaN); None =
@@ -123,6 +128,11 @@ class CameraView:
         (the first view's is 0 by definition). [s]
     name : str
         A label for messages and reports.
+    outline_kind : str
+        What ``diameter`` measures: ``"across_motion"`` (default), the blob's width across
+        the direction of motion (a circular disc fitted to it), or ``"depth"``, the depth
+        diameter ``2 f rho / sqrt(Z^2 - rho^2)`` of a tracker that fits the outline the
+        camera gives a sphere (:func:`outline_depth_diameter`).
     """
 
     camera: Camera
@@ -135,9 +145,15 @@ class CameraView:
     diameter_sigma: Any = None
     time_offset: float | None = None
     name: str = ""
+    outline_kind: str = "across_motion"
 
     def __post_init__(self) -> None:
         label = f"view {self.name!r}: " if self.name else ""
+        if self.outline_kind not in OUTLINE_KINDS:
+            raise InputError(
+                f"{label}outline_kind: {self.outline_kind!r} is not one of "
+                f"{', '.join(OUTLINE_KINDS)}; say what the diameters measure."
+            )
         if not isinstance(self.camera, Camera):
             raise InputError(
                 f"{label}camera: expected a fitdrag.Camera, got {type(self.camera).__name__}; "
@@ -476,3 +492,44 @@ def outline_area_diameter(
         dn = _area_camera(camera, pc - step, radius)
         dcam[:, k] = (up - dn) / (2.0 * h) * factor
     return diameter, dcam @ camera.rotation
+
+
+def outline_depth_diameter(camera: Camera, points_world: Any, radius: float, *,
+                           jacobians: bool = False):  # fmt: skip
+    """Depth diameter of a sphere's image: ``2 f b`` with ``b = rho / sqrt(Z^2 - rho^2)``.
+
+    ``b`` is the semi-minor axis of the sphere's outline ellipse in normalised image
+    coordinates (the cone of rays tangent to the sphere cut by the plane ``z = 1``, Hartley
+    and Zisserman 2004, sec. 8.3: ``b = sin(alpha) / sqrt(cos^2(theta) - sin^2(alpha))`` with
+    ``sin(alpha) = rho / D`` and ``cos(theta) = Z / D``, ``D`` the distance to the centre),
+    ``Z`` the centre's depth along the optical axis and ``f = sqrt(f_x f_y)``.  It depends on
+    the depth alone, wherever the sphere is in the image: what a tracker that fits the
+    outline the camera gives a sphere reports (:mod:`fitdrag.video.sphere_outline`).
+
+    Parameters
+    ----------
+    camera : Camera
+    points_world : array_like, shape (n, 3)
+        Sphere centres, world frame. [m]
+    radius : float
+        Sphere radius ``rho``. [m]
+    jacobians : bool
+        Also return d(diameter)/d(point), shape (n, 3) (closed form). [px/m]
+
+    Returns
+    -------
+    (ndarray, ndarray or None)
+        Diameters (n,) [px] (NaN where the sphere is not wholly in front of the camera) and
+        the Jacobian [px/m] or None.
+    """
+    pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
+    rho = float(radius)
+    z = camera.to_camera(pw)[:, 2]
+    f = math.sqrt(camera.fx * camera.fy)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        q = np.where(z > rho, z * z - rho * rho, np.nan)
+        d = 2.0 * f * rho / np.sqrt(q)
+        if not jacobians:
+            return d, None
+        dz = -2.0 * f * rho * z / q**1.5
+    return d, dz[:, None] * camera.rotation[2][None, :]

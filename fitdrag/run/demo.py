@@ -261,6 +261,7 @@ def _track_camera(d: Path, camera: dict, track_path: Path, preview_path: Path, *
             footage_name(name), fps=FOOTAGE["fps"], markers=FOOTAGE["marker_side"],
             marker_layout=LAYOUT_NAME, lens=lens_name(name),
             scale_uncertainty=FOOTAGE["marker_side_relative_uncertainty"], progress=progress,
+            readout_time=camera["readout_time"],
         )  # fmt: skip
         cam, pose = camera_from_footage(
             ft, readout_time=camera["readout_time"],

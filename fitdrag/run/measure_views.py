@@ -115,7 +115,7 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
         Footage that cannot be tracked or calibrated; the message starts with the job file,
         the line, the throw and the view.
     """
-    from fitdrag.fit.view_budget_model import CameraCalibration
+    from fitdrag.fit.view_budget_model import CameraCalibration, tracker_systematics
     from fitdrag.geometry.footage_view import camera_from_footage, view_from_footage
     from fitdrag.run.pipeline import _job_wording
     from fitdrag.tracks.track import file_sha256
@@ -140,6 +140,7 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
                 else:
                     readout = src.readout_time or job.camera.readout_time
                     ft = track_footage(src.footage, fps=fps, progress=progress,
+                                       readout_time=0.0 if readout is None else readout.value,
                                        **src.tracking_options)  # fmt: skip
                     cam, pose = camera_from_footage(
                         ft, lens,
@@ -155,8 +156,11 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
                     raise InputFileNotFoundError(msg) from None
                 raise InputError(msg) from None
             std = (lens.details or {}).get("std_dev") or {}
+            centroid_sys, drift = tracker_systematics(view.outline_kind)
             cal = CameraCalibration(
                 camera_id=src.lens.name,
+                centroid_systematic_uncertainty=centroid_sys,
+                diameter_drift_uncertainty=drift,
                 pose_covariance=pose.covariance,
                 focal_length_uncertainty=float(std.get("fx_px", 0.0)),
                 time_offset_uncertainty=(

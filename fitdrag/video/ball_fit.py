@@ -69,6 +69,9 @@ References
    problems", BIT 15, 49-57 (1975).
 3. G. A. F. Seber and C. J. Wild, *Nonlinear Regression*, Wiley (1989), sec. 2.1.4 and 6.1
    (least squares under correlated errors: covariance ``(J^T J)^-1 J^T V J (J^T J)^-1``).
+4. R. Ramamoorthi and P. Hanrahan, "An efficient representation for irradiance environment
+   maps", Proc. SIGGRAPH 2001, 497-500 (the light a Lambertian surface reflects is
+   represented by the spherical harmonics of order up to two).
 """
 
 from __future__ import annotations
@@ -99,10 +102,12 @@ _N_SAMPLES = 12
 _ROOK_STRIDE = 5
 # Shortest blur rendered. [px]
 _MIN_BLUR = 0.25
-# Shading basis functions: 1, n_x, n_y, n_z.
-_N_BASIS = 4
-# Linear coefficients: the shading basis and the gain correction.
-_N_LIN = _N_BASIS + 1
+# Shading basis functions: 1, n_x, n_y, n_z (first order), then n_x^2, n_y^2, n_x n_y,
+# n_x n_z, n_y n_z (second order).
+_N_BASIS = 9
+_N_FIRST = 4
+# Linear coefficients: the shading basis of the first order and the gain correction.
+_N_LIN = _N_FIRST + 1
 # Non-linear parameters: centre x, y, radius, blur length.
 _N_PAR = 4
 # Largest residual RMS, in measured noise levels, of a fit that is accepted.
@@ -128,9 +133,10 @@ _COST_TOLERANCE = 0.01
 
 
 @numba.njit(cache=True, fastmath=True, inline="always")
-def _sample(qx, qy, ux, uy, half, r, inv_l, acc):
-    """Add the exposure average at point q (relative to the segment midpoint) to acc[0:4]:
-    coverage and coverage times n_x, n_y, n_z."""
+def _sample(qx, qy, ux, uy, half, r, inv_l, nb, acc):
+    """Add the exposure average at point q (relative to the segment midpoint) to acc[0:nb]:
+    coverage and coverage times n_x, n_y, n_z (and with nb = 9 times n_x^2, n_y^2, n_x n_y,
+    n_x n_z, n_y n_z)."""
     s0 = qx * ux + qy * uy
     wx = qx - s0 * ux
     wy = qy - s0 * uy
@@ -158,63 +164,100 @@ def _sample(qx, qy, ux, uy, half, r, inv_l, acc):
     acc[1] += (wx * ln - ux * m2) * ir * inv_l
     acc[2] += (wy * ln - uy * m2) * ir * inv_l
     acc[3] += iz * ir * inv_l
+    if nb > _N_FIRST:
+        # (w - u t) and z = sqrt(h^2 - t^2) products: integrals of t^2 and of t z in closed
+        # form, integral of t z = -(h^2 - t^2)^(3/2) / 3.
+        m3 = (t2 * t2 * t2 - t1 * t1 * t1) / 3.0
+        itz = (z1 * z1 * z1 - z2 * z2 * z2) / 3.0
+        ir2 = ir * ir * inv_l
+        acc[4] += (wx * wx * ln - 2.0 * wx * ux * m2 + ux * ux * m3) * ir2
+        acc[5] += (wy * wy * ln - 2.0 * wy * uy * m2 + uy * uy * m3) * ir2
+        acc[6] += (wx * wy * ln - (wx * uy + wy * ux) * m2 + ux * uy * m3) * ir2
+        acc[7] += (wx * iz - ux * itz) * ir2
+        acc[8] += (wy * iz - uy * itz) * ir2
 
 
 @numba.njit(cache=True, fastmath=True)
-def _render(h, w, cx, cy, r, blen, ux, uy, maskimg, out):
+def _render(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out):
     """Coverage and shading integrals (see :func:`_sample`) of each masked pixel into
-    out[0:9, h, w]; cx, cy relative to the centre of the crop's pixel (0, 0); the blur is
-    ``blen`` along the unit vector (ux, uy)."""
+    out[0:nb, h, w]; cx, cy relative to the centre of the crop's pixel (0, 0); ``tm`` the
+    2x2 map from image offsets to the disc's frame, where the blur is ``blen`` along the
+    unit vector (ux, uy)."""
     length = max(abs(blen), _MIN_BLUR)
     half = 0.5 * length
     inv_l = 1.0 / length
-    e1x, e1y = cx - half * ux, cy - half * uy
-    e2x, e2y = cx + half * ux, cy + half * uy
-    band = 0.75
-    reach = r + half + 1.0
+    t00, t01, t10, t11 = tm[0, 0], tm[0, 1], tm[1, 0], tm[1, 1]
+    band = 0.75 * _largest_stretch(tm)
+    reach = r + half + band + 0.5
     acc = np.zeros(_N_BASIS)
-    step = 1.0 / _N_SAMPLES
-    off = 0.5 * step - 0.5
+    sx, sy = _rook_offsets(tm)
     norm = 1.0 / _N_SAMPLES
     for i in range(h):
         for j in range(w):
-            for k in range(_N_BASIS):
+            for k in range(nb):
                 out[k, i, j] = 0.0
             if not maskimg[i, j]:
                 continue
-            px = j - cx
-            py = i - cy
+            ix = j - cx
+            iy = i - cy
+            px = t00 * ix + t01 * iy
+            py = t10 * ix + t11 * iy
             if abs(px) > reach or abs(py) > reach:
                 continue
-            # Distance to the segment and to its end points.
+            # Distance to the segment and to its end points (in the disc's frame).
             s = px * ux + py * uy
             sc = min(max(s, -half), half)
             dseg = math.hypot(px - sc * ux, py - sc * uy)
             if dseg > r + band:
                 continue
-            d1 = math.hypot(j - e1x, i - e1y)
-            d2 = math.hypot(j - e2x, i - e2y)
-            for k in range(_N_BASIS):
+            d1 = math.hypot(px + half * ux, py + half * uy)
+            d2 = math.hypot(px - half * ux, py - half * uy)
+            for k in range(nb):
                 acc[k] = 0.0
             if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
-                # N-rooks pattern: each sample in its own sub-row and sub-column, so edges
-                # along the rows or the columns are resolved in _N_SAMPLES steps.
+                # N-rooks pattern: each sample in its own sub-row and sub-column of the
+                # image pixel, so edges along the rows or the columns are resolved in
+                # _N_SAMPLES steps.
                 for a in range(_N_SAMPLES):
-                    qy = py + off + a * step
-                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
-                    _sample(qx, qy, ux, uy, half, r, inv_l, acc)
-                for k in range(_N_BASIS):
+                    _sample(px + sx[a], py + sy[a], ux, uy, half, r, inv_l, nb, acc)
+                for k in range(nb):
                     out[k, i, j] = acc[k] * norm
             else:
-                _sample(px, py, ux, uy, half, r, inv_l, acc)
-                for k in range(_N_BASIS):
+                _sample(px, py, ux, uy, half, r, inv_l, nb, acc)
+                for k in range(nb):
                     out[k, i, j] = acc[k]
 
 
+@numba.njit(cache=True, inline="always")
+def _largest_stretch(tm):
+    """Largest singular value of the 2x2 matrix tm (how much it lengthens a distance)."""
+    a, b, c, d = tm[0, 0], tm[0, 1], tm[1, 0], tm[1, 1]
+    s = a * a + b * b + c * c + d * d
+    det = a * d - b * c
+    return math.sqrt(0.5 * (s + math.sqrt(max(s * s - 4.0 * det * det, 0.0))))
+
+
+@numba.njit(cache=True, inline="always")
+def _rook_offsets(tm):
+    """The N-rooks sample offsets within a pixel, mapped by tm into the disc's frame."""
+    step = 1.0 / _N_SAMPLES
+    off = 0.5 * step - 0.5
+    sx = np.empty(_N_SAMPLES)
+    sy = np.empty(_N_SAMPLES)
+    for a in range(_N_SAMPLES):
+        qy = off + a * step
+        qx = off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
+        sx[a] = tm[0, 0] * qx + tm[0, 1] * qy
+        sy[a] = tm[1, 0] * qx + tm[1, 1] * qy
+    return sx, sy
+
+
 @numba.njit(cache=True, fastmath=True, inline="always")
-def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc):
+def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc):
     """:func:`_sample` with its derivatives: adds d acc[b] / d theta_k to dacc[k, b] for
-    theta = (centre x, centre y, radius, blur length); ``dhalf`` is d half / d blur length."""
+    theta = (centre x, centre y, radius, blur length); ``dhalf`` is d half / d blur length,
+    ``cq`` = (d q / d centre x, d q / d centre y) in the disc's frame (``-tm[:, 0]``,
+    ``-tm[:, 1]``)."""
     s0 = qx * ux + qy * uy
     wx = qx - s0 * ux
     wy = qy - s0 * uy
@@ -245,16 +288,34 @@ def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc):
     acc[1] += a1
     acc[2] += a2
     acc[3] += a3
-    # q = sample point - centre: d q / d cx = (-1, 0), d q / d cy = (0, -1); w . u = 0, so
-    # d dp2 / d c = -2 w and d h2 / d c = 2 w.
+    second = nb > _N_FIRST
+    m3 = itz = ir2 = q4 = q5 = q6 = q7 = q8 = 0.0
+    if second:
+        m3 = (t2 * t2 * t2 - t1 * t1 * t1) / 3.0
+        itz = (z1 * z1 * z1 - z2 * z2 * z2) / 3.0
+        ir2 = ir * ir * inv_l
+        q4 = wx * wx * ln - 2.0 * wx * ux * m2 + ux * ux * m3
+        q5 = wy * wy * ln - 2.0 * wy * uy * m2 + uy * uy * m3
+        q6 = wx * wy * ln - (wx * uy + wy * ux) * m2 + ux * uy * m3
+        q7 = wx * iz - ux * itz
+        q8 = wy * iz - uy * itz
+        acc[4] += q4 * ir2
+        acc[5] += q5 * ir2
+        acc[6] += q6 * ir2
+        acc[7] += q7 * ir2
+        acc[8] += q8 * ir2
+    # q = sample point - centre in the disc's frame: d q / d c_k = cq[k] (for the identity
+    # map (-1, 0) and (0, -1)); w . u = 0, so d dp2 / d c = 2 w . dq and d h2 / d c = -2 w . dq.
     inv_h = 1.0 / max(h, 1e-9)
     clip1 = s0 - h <= -half  # t1 = -half - s0, else t1 = -h
     clip2 = s0 + h >= half  # t2 = half - s0, else t2 = h
     for k in range(4):
-        if k == 0:
-            ds0, dwx, dwy, dh2, dhf, dr, dl = -ux, ux * ux - 1.0, ux * uy, 2.0 * wx, 0.0, 0.0, 0.0
-        elif k == 1:
-            ds0, dwx, dwy, dh2, dhf, dr, dl = -uy, ux * uy, uy * uy - 1.0, 2.0 * wy, 0.0, 0.0, 0.0
+        if k < 2:
+            qa = cq[k, 0]
+            qb = cq[k, 1]
+            ds0 = qa * ux + qb * uy
+            dwx, dwy = qa - ds0 * ux, qb - ds0 * uy
+            dh2, dhf, dr, dl = -2.0 * (wx * qa + wy * qb), 0.0, 0.0, 0.0
         elif k == 2:
             ds0, dwx, dwy, dh2, dhf, dr, dl = 0.0, 0.0, 0.0, 2.0 * r, 0.0, 1.0, 0.0
         else:
@@ -270,10 +331,27 @@ def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc):
         dacc[k, 1] += (dwx * ln + wx * dln - ux * dm2) * ir * inv_l - a1 * rel
         dacc[k, 2] += (dwy * ln + wy * dln - uy * dm2) * ir * inv_l - a2 * rel
         dacc[k, 3] += diz * ir * inv_l - a3 * rel
+        if second:
+            dm3 = t2 * t2 * dt2 - t1 * t1 * dt1
+            ditz = t2 * z2 * dt2 - t1 * z1 * dt1 + 0.5 * dh2 * (z1 - z2)
+            rel2 = 2.0 * dr * ir + dl * inv_l  # d ln(r^2 L)
+            d4 = 2.0 * wx * dwx * ln + wx * wx * dln - 2.0 * ux * (dwx * m2 + wx * dm2)
+            d4 += ux * ux * dm3
+            d5 = 2.0 * wy * dwy * ln + wy * wy * dln - 2.0 * uy * (dwy * m2 + wy * dm2)
+            d5 += uy * uy * dm3
+            d6 = (dwx * wy + wx * dwy) * ln + wx * wy * dln - (dwx * uy + dwy * ux) * m2
+            d6 += -(wx * uy + wy * ux) * dm2 + ux * uy * dm3
+            d7 = dwx * iz + wx * diz - ux * ditz
+            d8 = dwy * iz + wy * diz - uy * ditz
+            dacc[k, 4] += d4 * ir2 - q4 * ir2 * rel2
+            dacc[k, 5] += d5 * ir2 - q5 * ir2 * rel2
+            dacc[k, 6] += d6 * ir2 - q6 * ir2 * rel2
+            dacc[k, 7] += d7 * ir2 - q7 * ir2 * rel2
+            dacc[k, 8] += d8 * ir2 - q8 * ir2 * rel2
 
 
 @numba.njit(cache=True, fastmath=True)
-def _render_d(h, w, cx, cy, r, blen, ux, uy, maskimg, out, dout):
+def _render_d(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out, dout):
     """:func:`_render` and the derivatives of its four images with respect to (centre x,
     centre y, radius, blur length) into dout[0:4, 0:4, h, w] (sample by sample, so they are
     the exact derivatives of the rendered model)."""
@@ -283,25 +361,27 @@ def _render_d(h, w, cx, cy, r, blen, ux, uy, maskimg, out, dout):
     half = 0.5 * length
     dhalf = 0.5 * dlen
     inv_l = 1.0 / length
-    e1x, e1y = cx - half * ux, cy - half * uy
-    e2x, e2y = cx + half * ux, cy + half * uy
-    band = 0.75
-    reach = r + half + 1.0
+    t00, t01, t10, t11 = tm[0, 0], tm[0, 1], tm[1, 0], tm[1, 1]
+    cq = np.empty((2, 2))
+    cq[0, 0], cq[0, 1], cq[1, 0], cq[1, 1] = -t00, -t10, -t01, -t11
+    band = 0.75 * _largest_stretch(tm)
+    reach = r + half + band + 0.5
     acc = np.zeros(_N_BASIS)
     dacc = np.zeros((_N_PAR, _N_BASIS))
-    step = 1.0 / _N_SAMPLES
-    off = 0.5 * step - 0.5
+    sx, sy = _rook_offsets(tm)
     norm = 1.0 / _N_SAMPLES
     for i in range(h):
         for j in range(w):
-            for k in range(_N_BASIS):
+            for k in range(nb):
                 out[k, i, j] = 0.0
                 for m in range(_N_PAR):
                     dout[m, k, i, j] = 0.0
             if not maskimg[i, j]:
                 continue
-            px = j - cx
-            py = i - cy
+            ix = j - cx
+            iy = i - cy
+            px = t00 * ix + t01 * iy
+            py = t10 * ix + t11 * iy
             if abs(px) > reach or abs(py) > reach:
                 continue
             s = px * ux + py * uy
@@ -309,41 +389,41 @@ def _render_d(h, w, cx, cy, r, blen, ux, uy, maskimg, out, dout):
             dseg = math.hypot(px - sc * ux, py - sc * uy)
             if dseg > r + band:
                 continue
-            d1 = math.hypot(j - e1x, i - e1y)
-            d2 = math.hypot(j - e2x, i - e2y)
-            for k in range(_N_BASIS):
+            d1 = math.hypot(px + half * ux, py + half * uy)
+            d2 = math.hypot(px - half * ux, py - half * uy)
+            for k in range(nb):
                 acc[k] = 0.0
                 for m in range(_N_PAR):
                     dacc[m, k] = 0.0
             if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
                 for a in range(_N_SAMPLES):
-                    qy = py + off + a * step
-                    qx = px + off + ((a * _ROOK_STRIDE) % _N_SAMPLES) * step
-                    _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, acc, dacc)
-                for k in range(_N_BASIS):
+                    _sample_d(px + sx[a], py + sy[a], ux, uy, half, dhalf, r, inv_l, cq, nb,
+                              acc, dacc)  # fmt: skip
+                for k in range(nb):
                     out[k, i, j] = acc[k] * norm
                     for m in range(_N_PAR):
                         dout[m, k, i, j] = dacc[m, k] * norm
             else:
-                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, acc, dacc)
-                for k in range(_N_BASIS):
+                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc)
+                for k in range(nb):
                     out[k, i, j] = acc[k]
                     for m in range(_N_PAR):
                         dout[m, k, i, j] = dacc[m, k]
 
 
 @numba.njit(cache=True)
-def _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac):
+def _model_and_jacobian(x, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac):
     """Residuals ``d - model`` and the model's Jacobian (n, 9) for all parameters
-    x = (cx, cy, r, blur length, a_0..a_3, k); returns the sum of squared residuals."""
-    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], maskimg, basis, dbasis)
+    x = (cx, cy, r, blur length, a_0..a_{nb-1}, k); returns the sum of squared residuals."""
+    nb = x.shape[0] - _N_PAR - 1
+    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], tm, nb, maskimg, basis, dbasis)
     return _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
 
 
 @numba.njit(cache=True)
 def _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac):
     """Residuals and Jacobian of :func:`_model_and_jacobian` from rendered images."""
-    nb = _N_BASIS
+    nb = x.shape[0] - _N_PAR - 1
     kk = x[_N_PAR + nb]
     rss = 0.0
     for q in range(mask_idx.shape[0]):
@@ -399,7 +479,7 @@ def _solve_spd(a, b, out):
 
 
 @numba.njit(cache=True, nogil=True)
-def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
+def _levenberg_marquardt(x, u, tm, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
     """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
     (the non-linear ones at the guess, the linear ones solved there).  Returns the
     solution, its residuals and Jacobian, the model evaluations used and a status:
@@ -412,7 +492,7 @@ def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ft
     jac = np.empty((n, npar))
     res_t = np.empty(n)
     jac_t = np.empty((n, npar))
-    rss = _model_and_jacobian(x, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac)
+    rss = _model_and_jacobian(x, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac)
     nfev = 1
     # The linear coefficients at the guess: one exact linear least-squares step.
     nl = npar - _N_PAR
@@ -474,7 +554,7 @@ def _levenberg_marquardt(x, u, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ft
                 lam *= 10.0
                 continue
             rss_t = _model_and_jacobian(
-                xt, u, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
+                xt, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
             )
             nfev += 1
             if rss_t <= rss:
@@ -602,6 +682,8 @@ def render_ball(
     radius: float,
     blur_length: float = 0.0,
     blur_angle: float = 0.0,
+    outline_map: np.ndarray | None = None,
+    shading_order: int = 1,
 ) -> np.ndarray:
     """The model's exposure-averaged coverage and shading integrals on a pixel grid.
 
@@ -614,19 +696,29 @@ def render_ball(
     radius : float
         Apparent radius. [px]
     blur_length, blur_angle : float
-        Length [px] and direction [rad, from +x towards +y] of the centre's path.
+        Length [px] and direction [rad, from +x towards +y] of the centre's path, in the
+        disc's frame (the image when ``outline_map`` is None).
+    outline_map : ndarray, optional
+        ``(2, 2)`` map from image offsets to the frame where the outline is a circle of
+        ``radius`` (see :func:`fit_ball`); default the identity. [1]
+    shading_order : int
+        1 or 2 (see :func:`fit_ball`).
 
     Returns
     -------
     ndarray
         ``(4, h, w)``: coverage ``C`` (0..1) and the averages of coverage times the surface
-        normal's components ``n_x, n_y, n_z``.
+        normal's components ``n_x, n_y, n_z``; with ``shading_order=2`` ``(9, h, w)``, then
+        the averages of coverage times ``n_x^2, n_y^2, n_x n_y, n_x n_z, n_y n_z``.
     """
     h, w = (int(v) for v in shape)
-    out = np.zeros((_N_BASIS, h, w))
+    nb = _N_FIRST if shading_order == 1 else _N_BASIS
+    out = np.zeros((nb, h, w))
     ux, uy = math.cos(blur_angle), math.sin(blur_angle)
     full = np.ones((h, w), np.bool_)
-    _render(h, w, float(x), float(y), float(radius), float(blur_length), ux, uy, full, out)
+    tm = _map("outline_map", outline_map)
+    _render(h, w, float(x), float(y), float(radius), float(blur_length), ux, uy, tm, nb, full,
+            out)  # fmt: skip
     return out
 
 
@@ -653,6 +745,9 @@ def fit_ball(
     origin: tuple[int, int] = (0, 0),
     valid: np.ndarray | None = None,
     noise_floor: float = 0.8,
+    outline_map: np.ndarray | None = None,
+    motion_map: np.ndarray | None = None,
+    shading_order: int = 1,
 ) -> BallFit:
     """Fit the blurred-ball model to one blob's background-subtracted crop.
 
@@ -676,6 +771,21 @@ def fit_ball(
     noise_floor : float
         The noise level used for the uncertainty is at least ``noise_floor * noise_sigma``
         (the residuals of a fit of few pixels may understate it). [1]
+    outline_map : ndarray, optional
+        ``(2, 2)`` linear map from image offsets (x right, y down, from the ball's centre)
+        to the frame in which the ball's outline is a circle of radius ``r`` swept along a
+        straight segment (:func:`fitdrag.video.sphere_outline.outline_maps`: the ellipse of
+        a sphere seen off the optical axis, the lens's local distortion and the rolling
+        shutter's shear); default the identity (a circular disc in the image).  The
+        reported ``diameter`` is then ``2 r`` in that frame. [1]
+    motion_map : ndarray, optional
+        ``(2, 2)`` map of the image direction of motion (``guess.blur_angle``) into that
+        frame (without the rolling shutter's part); default ``outline_map``. [1]
+    shading_order : int
+        1: the ball's brightness is ``a_0 + a_1 n_x + a_2 n_y + a_3 n_z``; 2: plus the five
+        products ``n_x^2, n_y^2, n_x n_y, n_x n_z, n_y n_z`` (the spherical harmonics to
+        order two: the light a Lambertian ball reflects from any distant lamps, its shadow's
+        edge included, to a few per cent [4]).
 
     Returns
     -------
@@ -700,6 +810,12 @@ def fit_ball(
         raise InputError(f"noise_sigma: expected a positive level, got {noise_sigma!r}.")
     if not (math.isfinite(guess.radius) and guess.radius > 0):
         raise InputError(f"guess.radius: expected a positive radius in px, got {guess.radius!r}.")
+    if shading_order not in (1, 2):
+        raise InputError(
+            f"shading_order: expected 1 or 2, got {shading_order!r}; 2 follows a lamp's "
+            f"shadow on the ball better."
+        )
+    n_lin = (_N_FIRST if shading_order == 1 else _N_BASIS) + 1
     h, w = d.shape
     gb = np.ascontiguousarray(float(gain) * bg)
     maskimg = np.ones((h, w), np.bool_) if valid is None else np.asarray(valid, np.bool_)
@@ -709,16 +825,22 @@ def fit_ball(
     n = mask_idx.size
     ox, oy = origin
     r0 = float(guess.radius)
-    if n < 4 * (_N_LIN + _N_PAR):
+    if n < 4 * (n_lin + _N_PAR):
         return _failed(f"too few pixels to fit ({n})", guess, n, 0)
+    tm = _map("outline_map", outline_map)
+    mm = tm if motion_map is None else _map("motion_map", motion_map)
+    back = np.linalg.inv(tm)  # disc frame -> image offsets
     bl = max(float(guess.blur_length), 0.0)
     ang = float(guess.blur_angle)
-    u = np.array([math.cos(ang), math.sin(ang)])
-    p0 = np.array([guess.x - ox, guess.y - oy, r0, bl])
-    x0 = np.concatenate([p0, np.zeros(_N_LIN)])  # linear coefficients solved in the loop
+    u = mm @ np.array([math.cos(ang), math.sin(ang)])
+    stretch = float(np.hypot(u[0], u[1]))
+    u /= stretch
+    p0 = np.array([guess.x - ox, guess.y - oy, r0, bl * stretch])
+    x0 = np.concatenate([p0, np.zeros(n_lin)])  # linear coefficients solved in the loop
     x, res, jac, nfev, status = _levenberg_marquardt(
-        x0, u, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE, _COST_TOLERANCE
-    )
+        x0, u, tm, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE,
+        _COST_TOLERANCE,
+    )  # fmt: skip
     if status != 0:
         why = "singular normal matrix" if status == 2 else f"{_MAX_ITERATIONS} iterations"
         return _failed(f"fit did not converge ({why})", guess, n, nfev)
@@ -733,7 +855,7 @@ def fit_ball(
     if shift > _MAX_SHIFT:
         return _failed(f"fitted centre moved {shift:.2f} px from the blob's", guess, n, nfev)
     rss = float(res @ res)
-    dof = max(n - _N_PAR - _N_LIN, 1)
+    dof = max(n - _N_PAR - n_lin, 1)
     s_res = math.sqrt(rss / dof)
     resid_rms = s_res / noise_sigma
     if resid_rms > _MAX_RESIDUAL:
@@ -759,14 +881,16 @@ def fit_ball(
     if not np.all(np.isfinite(var)) or np.any(var <= 0):
         return _failed("uncertainty could not be computed", guess, n, nfev)
     inflation = math.sqrt(float(var[0] + var[1]) / float(white[0] + white[1]))
-    by = blen * u[1]
-    ang = math.atan2(u[1], u[0])
+    # The blur and the rows spanned in the image: the disc frame mapped back.
+    bx, by = back @ (blen * u)
+    ang = math.atan2(by, bx)
     if ang > 0.5 * math.pi:
         ang -= math.pi
     elif ang <= -0.5 * math.pi:
         ang += math.pi
-    top = cy + oy - 0.5 * abs(by) - rr
-    bottom = cy + oy + 0.5 * abs(by) + rr
+    reach_y = rr * math.hypot(back[1, 0], back[1, 1])
+    top = cy + oy - 0.5 * abs(by) - reach_y
+    bottom = cy + oy + 0.5 * abs(by) + reach_y
     return BallFit(
         x=cx + ox,
         y=cy + oy,
@@ -774,7 +898,7 @@ def fit_ball(
         u_y=math.sqrt(var[1] + MODEL_ERROR_CENTRE**2),
         diameter=2.0 * rr,
         u_diameter=math.sqrt(4.0 * var[2] + MODEL_ERROR_DIAMETER**2),
-        blur_length=blen,
+        blur_length=math.hypot(bx, by),
         blur_angle=ang,
         top=top,
         bottom=bottom,
@@ -786,6 +910,19 @@ def fit_ball(
         n_evaluations=nfev,
         success=True,
     )
+
+
+def _map(name: str, value) -> np.ndarray:
+    """A 2x2 map, checked: finite and invertible (identity for None)."""
+    if value is None:
+        return np.eye(2)
+    m = np.asarray(value, dtype=np.float64)
+    if m.shape != (2, 2) or not np.all(np.isfinite(m)) or abs(np.linalg.det(m)) < 1e-6:
+        raise InputError(
+            f"{name}: expected a finite, invertible 2x2 matrix, got {value!r}; pass None for "
+            f"a circular disc in the image."
+        )
+    return np.ascontiguousarray(m)
 
 
 def warm_up() -> bool:

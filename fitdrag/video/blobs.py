@@ -95,7 +95,10 @@ class BlobPatch:
 
 
 def fit_chosen_blob(
-    blob: Blob, blur_angle: float | None = None, start: tuple[float, float] | None = None
+    blob: Blob,
+    blur_angle: float | None = None,
+    start: tuple[float, float] | None = None,
+    maps: tuple[np.ndarray, np.ndarray] | None = None,
 ):
     """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
 
@@ -104,7 +107,10 @@ def fit_chosen_blob(
     the blur from its second moments; ``blur_angle`` (the track's direction of motion [rad], y down)
     replaces the moments' direction when given; ``start`` (radius and blur length [px], e.g.
     from the neighbouring frame's fit) replaces the radius and blur of the first guess, so
-    the fit needs fewer iterations.  Returns the
+    the fit needs fewer iterations; ``maps`` (outline map, motion map, see
+    :func:`fitdrag.video.sphere_outline.outline_maps`) fits the outline a calibrated camera
+    gives the ball instead of a circular disc, with the second-order shading (the
+    diameters then measure depth to a few thousandths of a pixel).  Returns the
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
     """
@@ -114,6 +120,11 @@ def fit_chosen_blob(
     length = pt.blur_length if pt is not None else 0.0
     radius = math.sqrt(max(blob.area, 1.0) / math.pi)
     angle = pt.blur_angle if (pt is not None and blur_angle is None) else (blur_angle or 0.0)
+    outline_map = motion_map = None
+    if maps is not None:
+        outline_map, motion_map = maps
+        # The blob's area is the outline's: its radius in the circle's frame.
+        radius *= math.sqrt(abs(float(np.linalg.det(outline_map))))
     if start is not None and all(math.isfinite(v) and v >= 0 for v in start):
         radius, length = start
     guess = BallGuess(blob.x, blob.y, max(radius, 0.5), length, angle)
@@ -124,8 +135,9 @@ def fit_chosen_blob(
     from fitdrag.video.ball_fit import fit_ball
 
     return fit_ball(
-        pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid
-    )
+        pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid,
+        outline_map=outline_map, motion_map=motion_map, shading_order=1 if maps is None else 2,
+    )  # fmt: skip
 
 
 #: Kept detections are fitted in this many parts of the sequence (each on its own thread).
@@ -134,11 +146,13 @@ FIT_PARTS = 2
 _MIN_PART = 16
 
 
-def fit_blob_sequence(blobs, frames, angles, *, threads: int = FIT_PARTS) -> list:
+def fit_blob_sequence(blobs, frames, angles, maps=None, *, threads: int = FIT_PARTS) -> list:
     """Model fits (:func:`fit_chosen_blob`) of a track's detections, in frame order.
 
     ``blobs`` the measured blobs, ``frames`` their frame numbers (ascending), ``angles`` the
-    track's direction of motion at each [rad, y down] (None or NaN: the blob's own).  A fit
+    track's direction of motion at each [rad, y down] (None or NaN: the blob's own),
+    ``maps`` None or per blob the (outline map, motion map) of a calibrated camera (see
+    :func:`fit_chosen_blob`).  A fit
     starts from the radius and blur of the previous frame's fit when that frame was fitted
     (fewer iterations).  The sequence is cut into :data:`FIT_PARTS` parts of consecutive
     detections whose first fit starts afresh, fitted on up to ``threads`` threads (the
@@ -156,10 +170,11 @@ def fit_blob_sequence(blobs, frames, angles, *, threads: int = FIT_PARTS) -> lis
             a = angles[i]
             a = float(a) if a is not None and math.isfinite(a) else None
             near = prev_frame is not None and int(frames[i]) - prev_frame == 1
+            m = None if maps is None else maps[i]
             if near and start is not None:
-                fit = fit_chosen_blob(blobs[i], a, start=start)
+                fit = fit_chosen_blob(blobs[i], a, start=start, maps=m)
             else:
-                fit = fit_chosen_blob(blobs[i], a)
+                fit = fit_chosen_blob(blobs[i], a, maps=m)
             prev_frame = int(frames[i])
             start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
             out.append(fit)

@@ -141,6 +141,12 @@ class Detections:
     model_fit : ndarray of bool or None
         The centroid comes from the model fit (False: the fit failed and the weighted
         centroid is kept, with three times its propagated sigma and half the quality).
+    outline_measure : str
+        What ``outline_diameter_px`` measures: ``"across_motion"``, the diameter of a
+        circular disc fitted to the blob (its width across the motion), or ``"depth"``, with
+        a lens model, ``2 f b``: the sphere's outline fitted as the ellipse the camera
+        gives it, ``b`` its semi-minor axis in normalised image coordinates
+        (:mod:`fitdrag.video.sphere_outline`; a function of the ball's depth alone).
     """
 
     frame: np.ndarray
@@ -161,6 +167,7 @@ class Detections:
     row_first: np.ndarray | None = None
     row_last: np.ndarray | None = None
     model_fit: np.ndarray | None = None
+    outline_measure: str = "across_motion"
 
     def __len__(self) -> int:
         return len(self.frame)
@@ -310,6 +317,9 @@ def detect_specimen(
     region: tuple[float, float, float, float] | None = None,
     channel: str = "auto",
     progress: bool = False,
+    lens=None,
+    readout_time: float = 0.0,
+    fps: float | None = None,
 ) -> Detections:
     """Find one moving specimen in every frame of ``source`` and measure its centroid.
 
@@ -352,6 +362,16 @@ def detect_specimen(
         :func:`choose_channel`); ``"grey"``: always grey.
     progress : bool
         Show a progress bar (tqdm).
+    lens : LensModel, optional
+        The camera's intrinsics and distortion: the model fit then fits the outline a
+        sphere has in this camera (an ellipse off the optical axis, distorted by the lens,
+        sheared by a rolling shutter) and reports its depth diameter (see
+        :attr:`Detections.outline_measure`).
+    readout_time : float
+        Rolling-shutter readout time, first row to last; used with ``lens``. [s]
+    fps : float, optional
+        Frame rate, for the ball's image velocity under a rolling shutter (default the
+        source's). [1/s]
 
     Returns
     -------
@@ -488,7 +508,17 @@ def detect_specimen(
     )
     gains = np.array([accepted[int(k)][1] for k in frames])
     sig = np.array([b.sigma for b in blobs_ok])
-    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality)
+    rate = fps if fps is not None else source.container_fps
+    shape_of = None
+    if lens is not None:
+        if tuple(lens.image_size) != (w, h):
+            raise InputError(
+                f"lens: the lens model is for {lens.image_size[0]}x{lens.image_size[1]} px "
+                f"images but the footage is {w}x{h} px; use the lens model of this camera."
+            )
+        shutter = float(readout_time) if rate else 0.0
+        shape_of = (lens, shutter, float(rate or 0.0))
+    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of)
     out = Detections(
         frame=frames[keep],
         x_px=xs[keep],
@@ -635,11 +665,13 @@ def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
 _FALLBACK_SIGMA_FACTOR = 3.0
 
 
-def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
+def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
     """Model fit of each kept detection (:func:`fitdrag.video.fit_worker.fit_blobs`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
-    weighted centroid with a larger sigma and halves the quality.  Returns the outline
-    columns of :class:`Detections`."""
+    weighted centroid with a larger sigma and halves the quality.  ``shape_of`` = (lens,
+    readout time [s], frame rate [1/s]) fits the outline the camera gives a sphere
+    (:func:`fitdrag.video.sphere_outline.outline_maps`).  Returns the outline columns of
+    :class:`Detections`."""
     idx = np.flatnonzero(keep)
     n = idx.size
     diam = np.full(n, np.nan)
@@ -652,7 +684,20 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
         ang = np.arctan2(np.gradient(ys[idx]), np.gradient(xs[idx]))
     else:
         ang = np.full(n, np.nan)
-    fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist())
+    maps = None
+    if shape_of is not None and n:
+        from fitdrag.video.sphere_outline import outline_maps
+
+        lens, readout, rate = shape_of
+        vx = vy = np.zeros(n)
+        if n >= 2 and rate > 0:  # image velocity from the neighbouring detections
+            t = frames[idx].astype(float) / rate
+            vx, vy = np.gradient(xs[idx], t), np.gradient(ys[idx], t)
+        radius = np.sqrt(np.maximum(np.array([blobs[i].area for i in idx]), 1.0) / np.pi)
+        outline_m, motion_m = outline_maps(lens, xs[idx], ys[idx], radius, vx=vx, vy=vy,
+                                           readout_time=readout)  # fmt: skip
+        maps = list(zip(outline_m, motion_m, strict=True))
+    fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist(), maps)
     for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
@@ -668,6 +713,7 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality) -> dict:
         "row_first": first,
         "row_last": last,
         "model_fit": ok,
+        "outline_measure": "across_motion" if shape_of is None else "depth",
     }
 
 

@@ -318,6 +318,17 @@ def _calibration(source, *, scale, origin, rotation, reference, markers, marker_
 # ------------------------------------------------------------------------------------------
 
 
+def _takes(function: Any, name: str) -> bool:
+    """Whether ``function`` accepts the keyword argument ``name``."""
+    import inspect
+
+    try:
+        params = inspect.signature(function).parameters
+    except (TypeError, ValueError):
+        return False
+    return name in params or any(p.kind is p.VAR_KEYWORD for p in params.values())
+
+
 def track_footage(
     path: str | os.PathLike,
     *,
@@ -337,6 +348,7 @@ def track_footage(
     detector: str = "background-difference",
     region: str | Sequence[float] | None = None,
     progress: bool = False,
+    readout_time: float = 0.0,
 ) -> FootageTrack:
     """Track the specimen in footage and calibrate its centroids to world metres.
 
@@ -381,7 +393,9 @@ def track_footage(
         Frame to find the markers in (default: ``start``, or the first frame if later). [1]
     lens : path or LensModel, optional
         Lens model (file from ``fitdrag calibrate-lens``); centroids and marker corners are
-        undistorted with it.
+        undistorted with it, and a detector that takes it fits the outline this camera
+        gives a sphere (diameters then measure depth, header line ``outline_measure:
+        depth``; see :mod:`fitdrag.video.sphere_outline`).
     scale_uncertainty : float
         Relative standard uncertainty of the known length (the scale, the reference distance
         or the marker side), e.g. 0.001. [1]
@@ -393,6 +407,9 @@ def track_footage(
         hand or another moving object at one side of the image). [px, image, y down]
     progress : bool
         Show a progress bar on footage longer than 200 frames (or of unknown length).
+    readout_time : float
+        Rolling-shutter readout time, first row to last (with ``lens``: the detector models
+        the shear it gives a moving ball); 0 = global shutter. [s]
 
     Returns
     -------
@@ -490,8 +507,11 @@ def track_footage(
         )  # fmt: skip
         n_frames = source.n_frames
         bar = bool(progress) and (n_frames is None or n_frames > PROGRESS_MIN_FRAMES)
-        extra = {} if roi is None else {"region": roi}
-        det = get_detector(detector)(source, start=start, stop=stop, progress=bar, **extra)
+        extra: dict[str, Any] = {} if roi is None else {"region": roi}
+        find = get_detector(detector)
+        if lens is not None and _takes(find, "lens"):
+            extra.update(lens=lens, readout_time=float(readout_time), fps=float(rate))
+        det = find(source, start=start, stop=stop, progress=bar, **extra)
         name = str(source.name)
     finally:
         source.close()
@@ -524,6 +544,8 @@ def track_footage(
     if others:
         meta["other_moving_objects"] = "; ".join(o.describe() for o in others)
     meta.update(cal.to_meta())
+    if getattr(det, "outline_measure", "across_motion") == "depth":
+        meta["outline_measure"] = "depth"
     if lens_file is not None:
         meta["lens_file"] = lens_file
     if used_marker_frame is not None:
