@@ -104,6 +104,7 @@ class Row:
     offset_error: float = math.nan  # [frames]
     measure: float = math.nan
     tracker: tuple = ()  # footage: centroid RMS error, stated, diameter RMS, drift [px]
+    expanded_tracker: float = math.nan  # footage: U with the tracker's systematic lines
 
 
 def draw(rng: np.random.Generator, centroid, diameter) -> Throw:
@@ -200,8 +201,34 @@ def one_throw(th: Throw, n_cam: int, seed, args) -> Row:
     off_err = (r.views[1].time_offset - th.offset) * ref.FPS if n_cam == 2 else math.nan
     lams = [v.diameter_measure for v in r.views if v.diameter_used]
     lam = float(np.median(lams)) if lams else math.nan
+    u_tr = math.nan
+    if args.source == "footage":
+        u_tr = tracker_lines(views, r, measure, scale)
     return Row(True, th.readout, r.cd, r.u_cd, r.expanded_uncertainty, crb, off_err, lam,
-               tracker)  # fmt: skip
+               tracker, 2.0 * math.hypot(r.u_cd, u_tr))  # fmt: skip
+
+
+def tracker_lines(views, r, measure, scale) -> float:
+    """The tracker's systematic lines of the job budget, by re-fit (as
+    fitdrag.fit.view_budget_model does): per view a constant centroid shift in u and in v
+    and, where the diameters are used, a linear drift over the flight, each of the standard
+    uncertainty tracker_systematics gives; their root sum of squares of Cd changes."""
+    from fitdrag.fit.view_budget_model import tracker_systematics
+
+    total = 0.0
+    for i, v in enumerate(views):
+        s_c, s_d = tracker_systematics(v.outline_kind)
+        changed = [replace(v, u=v.u + s_c), replace(v, v=v.v + s_c)]
+        if r.views[i].diameter_used:
+            f = v.frames.astype(float)
+            ramp = (f - f[0]) / max(f[-1] - f[0], 1.0) - 0.5
+            changed.append(replace(v, diameter=v.diameter + s_d * ramp))
+        for vv in changed:
+            moved = [vv if j == i else w for j, w in enumerate(views)]
+            rr = fit_views(moved, ref.BALL, ref.AIR, diameter_measure=measure,
+                           diameter_scale=scale)  # fmt: skip
+            total += (rr.cd - r.cd) ** 2 if rr.success else math.inf
+    return math.sqrt(total)
 
 
 def clopper_pearson(k: int, n: int) -> tuple[float, float]:
@@ -224,6 +251,14 @@ def summary(label: str, rows: list[Row]) -> str:
     crb = np.array([r.u / r.crb for r in ok])
     off = np.array([r.offset_error for r in ok])
     lam = np.array([r.measure for r in ok])
+    s_tr = ""
+    big = np.array([r.expanded_tracker for r in ok])
+    if np.all(np.isfinite(big)):
+        h2 = int(np.sum(np.abs(err) <= big))
+        lo2, hi2 = clopper_pearson(h2, n)
+        s_tr = (f"\n{'':18s} with the tracker's systematic lines: coverage "
+                f"{100 * h2 / n:5.1f} % ({100 * lo2:4.1f}-{100 * hi2:5.1f}), U/Cd median "
+                f"{np.median(big / cd) * 100:.2f} %, largest {np.max(big / cd) * 100:.2f} %")  # fmt: skip
     s = (f"{label:18s} {n:4d} {len(rows) - n:3d}  {100 * hits / n:5.1f} % "
          f"({100 * lo:4.1f}-{100 * hi:5.1f})  {np.median(rel):5.2f} {np.max(rel):6.2f}  "
          f"{100 * np.mean(err) / ref.CD:+6.2f} %  {math.sqrt(np.mean(z**2)):4.2f} "
@@ -231,7 +266,7 @@ def summary(label: str, rows: list[Row]) -> str:
     s += f"  {np.median(crb):5.2f}" if np.all(np.isfinite(crb)) else "      -"
     s += f"  {math.sqrt(np.mean(off**2)):6.3f}" if np.all(np.isfinite(off)) else "       -"
     s += f"  {np.nanmedian(lam):5.2f}" if np.any(np.isfinite(lam)) else "      -"
-    return s
+    return s + s_tr
 
 
 HEADER = ("set-up            fits fail  coverage (95 % CI)    U/Cd % med    max  mean err  "

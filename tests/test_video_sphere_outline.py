@@ -121,3 +121,29 @@ def test_without_a_lens_the_maps_are_identities_and_bad_input_is_named():
         outline_maps(lens, 1.0, 2.0, 5.0, readout_time=-1.0)
     with pytest.raises(InputError, match="x, y, radius: expected finite pixel values"):
         outline_maps(lens, math.nan, 2.0, 5.0)
+
+
+def test_disc_axes_point_the_shading_basis_at_the_sphere_surface():
+    """closed-form/independent: the frame's axes are orthonormal with z = -(ray to the
+    blob); the sphere's surface point whose normal is the frame's x (or y) axis, projected
+    by the pinhole camera (Camera.project), lies from the outline's centre along the image
+    direction the outline map sends to the circle's x (or y) axis, within 0.5 degree, up
+    to 35 degrees off the axis (square pixels)."""
+    from fitdrag.video.sphere_outline import disc_axes
+
+    cam = _camera(fy=1500.0)
+    pos = _positions()
+    ell = outline_ellipses(cam, pos, RHO)
+    axes = disc_axes(_lens(cam), ell.centre[:, 0], ell.centre[:, 1])
+    out, _ = outline_maps(_lens(cam), ell.centre[:, 0], ell.centre[:, 1], ell.semi_minor)
+    for k in range(len(pos)):
+        np.testing.assert_allclose(axes[k].T @ axes[k], np.eye(3), atol=1e-12)
+        ray = pos[k] / np.linalg.norm(pos[k])
+        np.testing.assert_allclose(axes[k][:, 2], -ray, atol=2e-3)  # the blob's ray vs centre
+        back = np.linalg.inv(out[k])  # circle frame -> image offsets
+        for j in (0, 1):
+            p = cam.project(pos[k] + RHO * axes[k][:, j]).pixels.reshape(2)
+            got = p - ell.centre[k]
+            want = back[:, j]
+            cosang = got @ want / np.linalg.norm(got) / np.linalg.norm(want)
+            assert math.degrees(math.acos(min(1.0, cosang))) < 0.5

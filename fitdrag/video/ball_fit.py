@@ -106,6 +106,8 @@ _MIN_BLUR = 0.25
 # n_x n_z, n_y n_z (second order).
 _N_BASIS = 9
 _N_FIRST = 4
+# With a lamp of known direction: the first-order basis and max(n . L, 0).
+_N_LAMP = 5
 # Linear coefficients: the shading basis of the first order and the gain correction.
 _N_LIN = _N_FIRST + 1
 # Non-linear parameters: centre x, y, radius, blur length.
@@ -133,7 +135,69 @@ _COST_TOLERANCE = 0.01
 
 
 @numba.njit(cache=True, fastmath=True, inline="always")
-def _sample(qx, qy, ux, uy, half, r, inv_l, nb, acc):
+def _lit(a, b, c, h2, t):
+    """g(t) = a - b t + c sqrt(h^2 - t^2)."""
+    return a - b * t + c * math.sqrt(max(h2 - t * t, 0.0))
+
+
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _lit_root(a, b, c, h2, t, t1, t2):
+    """t if it lies strictly inside (t1, t2) and solves a - b t = -c sqrt(h^2 - t^2) (not the
+    squared equation's other branch), else NaN."""
+    if not (t1 < t < t2):
+        return math.nan
+    v1 = a - b * t
+    v2 = -c * math.sqrt(max(h2 - t * t, 0.0))
+    return t if abs(v1 - v2) <= abs(v1 + v2) else math.nan
+
+
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _lamp_integrals(a, b, c, h2, t1, t2):
+    """Integrals over [t1, t2] of g(t)+ = max(a - b t + c sqrt(h^2 - t^2), 0) (the lit part of
+    a Lambertian ball's brightness along the exposure, n . L times r): returns (the integral
+    of g+, the length and the integral of 1 / sqrt(h^2 - t^2) over the lit parts).  The roots
+    of g split the interval (squaring gives (b^2 + c^2) t^2 - 2 a b t + a^2 - c^2 h^2 = 0);
+    each piece is lit or not as g at its middle."""
+    q = b * b + c * c
+    ra = math.nan
+    rb = math.nan
+    if q > 0.0:
+        disc = q * h2 - a * a
+        if disc >= 0.0:
+            sq = abs(c) * math.sqrt(disc)
+            ra = _lit_root(a, b, c, h2, (a * b - sq) / q, t1, t2)
+            rb = _lit_root(a, b, c, h2, (a * b + sq) / q, t1, t2)
+    if math.isnan(ra):
+        ra = rb
+    if math.isnan(rb):
+        rb = ra
+    if math.isnan(ra):
+        ra = t2
+        rb = t2
+    if rb < ra:
+        ra, rb = rb, ra
+    total = 0.0
+    length = 0.0
+    inv_s = 0.0
+    h = math.sqrt(h2)
+    lo = t1
+    for k in range(3):
+        hi = ra if k == 0 else (rb if k == 1 else t2)
+        if hi > lo and _lit(a, b, c, h2, 0.5 * (lo + hi)) > 0.0:
+            s_lo = math.sqrt(max(h2 - lo * lo, 0.0))
+            s_hi = math.sqrt(max(h2 - hi * hi, 0.0))
+            dang = math.atan2(hi * s_lo - lo * s_hi, s_lo * s_hi + lo * hi)
+            total += a * (hi - lo) - 0.5 * b * (hi * hi - lo * lo)
+            total += c * 0.5 * (hi * s_hi - lo * s_lo + h2 * dang)
+            length += hi - lo
+            if h > 0.0:
+                inv_s += dang
+        lo = max(lo, hi)
+    return total, length, inv_s
+
+
+@numba.njit(cache=True, fastmath=True, inline="always")
+def _sample(qx, qy, ux, uy, half, r, inv_l, nb, lamp, acc):
     """Add the exposure average at point q (relative to the segment midpoint) to acc[0:nb]:
     coverage and coverage times n_x, n_y, n_z (and with nb = 9 times n_x^2, n_y^2, n_x n_y,
     n_x n_z, n_y n_z)."""
@@ -164,7 +228,11 @@ def _sample(qx, qy, ux, uy, half, r, inv_l, nb, acc):
     acc[1] += (wx * ln - ux * m2) * ir * inv_l
     acc[2] += (wy * ln - uy * m2) * ir * inv_l
     acc[3] += iz * ir * inv_l
-    if nb > _N_FIRST:
+    if nb == _N_LAMP:
+        lit, _len, _inv = _lamp_integrals(wx * lamp[0] + wy * lamp[1], ux * lamp[0] + uy * lamp[1],
+                                          lamp[2], h2, t1, t2)  # fmt: skip
+        acc[4] += lit * ir * inv_l
+    elif nb > _N_FIRST:
         # (w - u t) and z = sqrt(h^2 - t^2) products: integrals of t^2 and of t z in closed
         # form, integral of t z = -(h^2 - t^2)^(3/2) / 3.
         m3 = (t2 * t2 * t2 - t1 * t1 * t1) / 3.0
@@ -178,7 +246,7 @@ def _sample(qx, qy, ux, uy, half, r, inv_l, nb, acc):
 
 
 @numba.njit(cache=True, fastmath=True)
-def _render(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out):
+def _render(h, w, cx, cy, r, blen, ux, uy, tm, nb, lamp, maskimg, out):
     """Coverage and shading integrals (see :func:`_sample`) of each masked pixel into
     out[0:nb, h, w]; cx, cy relative to the centre of the crop's pixel (0, 0); ``tm`` the
     2x2 map from image offsets to the disc's frame, where the blur is ``blen`` along the
@@ -219,11 +287,11 @@ def _render(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out):
                 # image pixel, so edges along the rows or the columns are resolved in
                 # _N_SAMPLES steps.
                 for a in range(_N_SAMPLES):
-                    _sample(px + sx[a], py + sy[a], ux, uy, half, r, inv_l, nb, acc)
+                    _sample(px + sx[a], py + sy[a], ux, uy, half, r, inv_l, nb, lamp, acc)
                 for k in range(nb):
                     out[k, i, j] = acc[k] * norm
             else:
-                _sample(px, py, ux, uy, half, r, inv_l, nb, acc)
+                _sample(px, py, ux, uy, half, r, inv_l, nb, lamp, acc)
                 for k in range(nb):
                     out[k, i, j] = acc[k]
 
@@ -253,7 +321,7 @@ def _rook_offsets(tm):
 
 
 @numba.njit(cache=True, fastmath=True, inline="always")
-def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc):
+def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, lamp, acc, dacc):
     """:func:`_sample` with its derivatives: adds d acc[b] / d theta_k to dacc[k, b] for
     theta = (centre x, centre y, radius, blur length); ``dhalf`` is d half / d blur length,
     ``cq`` = (d q / d centre x, d q / d centre y) in the disc's frame (``-tm[:, 0]``,
@@ -288,7 +356,15 @@ def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc):
     acc[1] += a1
     acc[2] += a2
     acc[3] += a3
-    second = nb > _N_FIRST
+    second = nb > _N_LAMP
+    lit = lit_len = lit_inv = a4 = 0.0
+    la = lb = 0.0
+    if nb == _N_LAMP:
+        la = wx * lamp[0] + wy * lamp[1]
+        lb = ux * lamp[0] + uy * lamp[1]
+        lit, lit_len, lit_inv = _lamp_integrals(la, lb, lamp[2], h2, t1, t2)
+        a4 = lit * ir * inv_l
+        acc[4] += a4
     m3 = itz = ir2 = q4 = q5 = q6 = q7 = q8 = 0.0
     if second:
         m3 = (t2 * t2 * t2 - t1 * t1 * t1) / 3.0
@@ -331,6 +407,15 @@ def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc):
         dacc[k, 1] += (dwx * ln + wx * dln - ux * dm2) * ir * inv_l - a1 * rel
         dacc[k, 2] += (dwy * ln + wy * dln - uy * dm2) * ir * inv_l - a2 * rel
         dacc[k, 3] += diz * ir * inv_l - a3 * rel
+        if nb == _N_LAMP:
+            # d of the lit integral: the ends' values (roots move where g = 0, adding nothing)
+            # plus the integrand's own change, d a = dw . L (b and c fixed), d sqrt(h^2 - t^2)
+            # = (d h^2 / 2) / sqrt(h^2 - t^2)
+            g1 = max(_lit(la, lb, lamp[2], h2, t1), 0.0)
+            g2 = max(_lit(la, lb, lamp[2], h2, t2), 0.0)
+            dla = dwx * lamp[0] + dwy * lamp[1]
+            dlit = g2 * dt2 - g1 * dt1 + dla * lit_len + lamp[2] * 0.5 * dh2 * lit_inv
+            dacc[k, 4] += dlit * ir * inv_l - a4 * rel
         if second:
             dm3 = t2 * t2 * dt2 - t1 * t1 * dt1
             ditz = t2 * z2 * dt2 - t1 * z1 * dt1 + 0.5 * dh2 * (z1 - z2)
@@ -351,7 +436,7 @@ def _sample_d(qx, qy, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc):
 
 
 @numba.njit(cache=True, fastmath=True)
-def _render_d(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out, dout):
+def _render_d(h, w, cx, cy, r, blen, ux, uy, tm, nb, lamp, maskimg, out, dout):
     """:func:`_render` and the derivatives of its four images with respect to (centre x,
     centre y, radius, blur length) into dout[0:4, 0:4, h, w] (sample by sample, so they are
     the exact derivatives of the rendered model)."""
@@ -398,13 +483,13 @@ def _render_d(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out, dout):
             if abs(dseg - r) < band or abs(d1 - r) < band or abs(d2 - r) < band:
                 for a in range(_N_SAMPLES):
                     _sample_d(px + sx[a], py + sy[a], ux, uy, half, dhalf, r, inv_l, cq, nb,
-                              acc, dacc)  # fmt: skip
+                              lamp, acc, dacc)  # fmt: skip
                 for k in range(nb):
                     out[k, i, j] = acc[k] * norm
                     for m in range(_N_PAR):
                         dout[m, k, i, j] = dacc[m, k] * norm
             else:
-                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, cq, nb, acc, dacc)
+                _sample_d(px, py, ux, uy, half, dhalf, r, inv_l, cq, nb, lamp, acc, dacc)
                 for k in range(nb):
                     out[k, i, j] = acc[k]
                     for m in range(_N_PAR):
@@ -412,11 +497,12 @@ def _render_d(h, w, cx, cy, r, blen, ux, uy, tm, nb, maskimg, out, dout):
 
 
 @numba.njit(cache=True)
-def _model_and_jacobian(x, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac):
+def _model_and_jacobian(x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res,
+                        jac):  # fmt: skip
     """Residuals ``d - model`` and the model's Jacobian (n, 9) for all parameters
     x = (cx, cy, r, blur length, a_0..a_{nb-1}, k); returns the sum of squared residuals."""
     nb = x.shape[0] - _N_PAR - 1
-    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], tm, nb, maskimg, basis, dbasis)
+    _render_d(h, w, x[0], x[1], x[2], x[3], u[0], u[1], tm, nb, lamp, maskimg, basis, dbasis)
     return _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
 
 
@@ -479,7 +565,7 @@ def _solve_spd(a, b, out):
 
 
 @numba.njit(cache=True, nogil=True)
-def _levenberg_marquardt(x, u, tm, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
+def _levenberg_marquardt(x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
     """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
     (the non-linear ones at the guess, the linear ones solved there).  Returns the
     solution, its residuals and Jacobian, the model evaluations used and a status:
@@ -492,7 +578,9 @@ def _levenberg_marquardt(x, u, tm, d, gb, maskimg, mask_idx, h, w, max_iter, tol
     jac = np.empty((n, npar))
     res_t = np.empty(n)
     jac_t = np.empty((n, npar))
-    rss = _model_and_jacobian(x, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac)
+    rss = _model_and_jacobian(
+        x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res, jac
+    )
     nfev = 1
     # The linear coefficients at the guess: one exact linear least-squares step.
     nl = npar - _N_PAR
@@ -554,7 +642,7 @@ def _levenberg_marquardt(x, u, tm, d, gb, maskimg, mask_idx, h, w, max_iter, tol
                 lam *= 10.0
                 continue
             rss_t = _model_and_jacobian(
-                xt, u, tm, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
+                xt, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, basis, dbasis, res_t, jac_t
             )
             nfev += 1
             if rss_t <= rss:
@@ -684,6 +772,7 @@ def render_ball(
     blur_angle: float = 0.0,
     outline_map: np.ndarray | None = None,
     shading_order: int = 1,
+    lamp: np.ndarray | None = None,
 ) -> np.ndarray:
     """The model's exposure-averaged coverage and shading integrals on a pixel grid.
 
@@ -703,6 +792,9 @@ def render_ball(
         ``radius`` (see :func:`fit_ball`); default the identity. [1]
     shading_order : int
         1 or 2 (see :func:`fit_ball`).
+    lamp : array_like, optional
+        Unit direction towards a lamp in the disc's frame (see :func:`fit_ball`); adds the
+        image of ``max(n . L, 0)`` after the first-order four. [1]
 
     Returns
     -------
@@ -713,12 +805,17 @@ def render_ball(
     """
     h, w = (int(v) for v in shape)
     nb = _N_FIRST if shading_order == 1 else _N_BASIS
+    lamp_v = np.zeros(3)
+    if lamp is not None:
+        nb = _N_LAMP
+        lamp_v = np.asarray(lamp, dtype=np.float64).reshape(3)
+        lamp_v = lamp_v / np.linalg.norm(lamp_v)
     out = np.zeros((nb, h, w))
     ux, uy = math.cos(blur_angle), math.sin(blur_angle)
     full = np.ones((h, w), np.bool_)
     tm = _map("outline_map", outline_map)
-    _render(h, w, float(x), float(y), float(radius), float(blur_length), ux, uy, tm, nb, full,
-            out)  # fmt: skip
+    _render(h, w, float(x), float(y), float(radius), float(blur_length), ux, uy, tm, nb, lamp_v,
+            full, out)  # fmt: skip
     return out
 
 
@@ -748,6 +845,7 @@ def fit_ball(
     outline_map: np.ndarray | None = None,
     motion_map: np.ndarray | None = None,
     shading_order: int = 1,
+    lamp: np.ndarray | None = None,
 ) -> BallFit:
     """Fit the blurred-ball model to one blob's background-subtracted crop.
 
@@ -786,6 +884,11 @@ def fit_ball(
         products ``n_x^2, n_y^2, n_x n_y, n_x n_z, n_y n_z`` (the spherical harmonics to
         order two: the light a Lambertian ball reflects from any distant lamps, its shadow's
         edge included, to a few per cent [4]).
+    lamp : array_like, optional
+        Unit direction towards a lamp in the disc's frame (x, y as the frame's axes, z
+        towards the camera): the brightness is then the first-order basis plus
+        ``a_4 max(n . L, 0)``, a Lambertian ball under that lamp with its shadow's edge
+        exact [1] (``shading_order`` is then not used). [1]
 
     Returns
     -------
@@ -816,6 +919,17 @@ def fit_ball(
             f"shadow on the ball better."
         )
     n_lin = (_N_FIRST if shading_order == 1 else _N_BASIS) + 1
+    lamp_v = np.zeros(3)
+    if lamp is not None:
+        lamp_v = np.asarray(lamp, dtype=np.float64).reshape(-1)
+        norm = float(np.linalg.norm(lamp_v)) if lamp_v.shape == (3,) else math.nan
+        if not (math.isfinite(norm) and norm > 0):
+            raise InputError(
+                f"lamp: expected a direction (x, y, z) towards the lamp, got {lamp!r}; pass "
+                f"None to fit the shading without a lamp."
+            )
+        lamp_v = lamp_v / norm
+        n_lin = _N_LAMP + 1
     h, w = d.shape
     gb = np.ascontiguousarray(float(gain) * bg)
     maskimg = np.ones((h, w), np.bool_) if valid is None else np.asarray(valid, np.bool_)
@@ -838,7 +952,7 @@ def fit_ball(
     p0 = np.array([guess.x - ox, guess.y - oy, r0, bl * stretch])
     x0 = np.concatenate([p0, np.zeros(n_lin)])  # linear coefficients solved in the loop
     x, res, jac, nfev, status = _levenberg_marquardt(
-        x0, u, tm, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE,
+        x0, u, tm, lamp_v, d, gb, maskimg, mask_idx, h, w, _MAX_ITERATIONS, _STEP_TOLERANCE,
         _COST_TOLERANCE,
     )  # fmt: skip
     if status != 0:
@@ -909,6 +1023,7 @@ def fit_ball(
         n_pixels=n,
         n_evaluations=nfev,
         success=True,
+        shading=tuple(float(v) for v in x[_N_PAR:]),
     )
 
 

@@ -73,6 +73,10 @@ class BallFit:
         ``reason``) are not to be used.
     reason : str or None
         Why the fit failed, else None.
+    shading : tuple of float
+        The linear coefficients of the fitted brightness: those of the shading basis
+        (``1, n_x, n_y, n_z``, then the second-order or lamp terms) and the gain correction.
+        [grey levels, the last 1]
     """
 
     x: float
@@ -93,6 +97,7 @@ class BallFit:
     n_evaluations: int
     success: bool
     reason: str | None = None
+    shading: tuple[float, ...] = ()
 
     @property
     def sigma(self) -> float:

@@ -99,6 +99,7 @@ def fit_chosen_blob(
     blur_angle: float | None = None,
     start: tuple[float, float] | None = None,
     maps: tuple[np.ndarray, np.ndarray] | None = None,
+    lamp: np.ndarray | None = None,
 ):
     """Model fit (:func:`fitdrag.video.ball_fit.fit_ball`) of a measured blob.
 
@@ -109,8 +110,9 @@ def fit_chosen_blob(
     from the neighbouring frame's fit) replaces the radius and blur of the first guess, so
     the fit needs fewer iterations; ``maps`` (outline map, motion map, see
     :func:`fitdrag.video.sphere_outline.outline_maps`) fits the outline a calibrated camera
-    gives the ball instead of a circular disc, with the second-order shading (the
-    diameters then measure depth to a few thousandths of a pixel).  Returns the
+    gives the ball instead of a circular disc, with the second-order shading, or with
+    ``lamp`` (direction towards the lamp in the disc's frame) the brightness of a
+    Lambertian ball under that lamp.  Returns the
     :class:`~fitdrag.video.ball_fit.BallFit` (``success=False`` with a reason when the
     blob has no patch or the fit fails).
     """
@@ -137,6 +139,7 @@ def fit_chosen_blob(
     return fit_ball(
         pt.diff, pt.background, pt.gain, pt.noise_sigma, guess, origin=pt.origin, valid=pt.valid,
         outline_map=outline_map, motion_map=motion_map, shading_order=1 if maps is None else 2,
+        lamp=lamp,
     )  # fmt: skip
 
 
@@ -146,13 +149,14 @@ FIT_PARTS = 2
 _MIN_PART = 16
 
 
-def fit_blob_sequence(blobs, frames, angles, maps=None, *, threads: int = FIT_PARTS) -> list:
+def fit_blob_sequence(blobs, frames, angles, maps=None, lamps=None, *,
+                      threads: int = FIT_PARTS) -> list:  # fmt: skip
     """Model fits (:func:`fit_chosen_blob`) of a track's detections, in frame order.
 
     ``blobs`` the measured blobs, ``frames`` their frame numbers (ascending), ``angles`` the
     track's direction of motion at each [rad, y down] (None or NaN: the blob's own),
     ``maps`` None or per blob the (outline map, motion map) of a calibrated camera (see
-    :func:`fit_chosen_blob`).  A fit
+    :func:`fit_chosen_blob`), ``lamps`` None or per blob its lamp direction.  A fit
     starts from the radius and blur of the previous frame's fit when that frame was fitted
     (fewer iterations).  The sequence is cut into :data:`FIT_PARTS` parts of consecutive
     detections whose first fit starts afresh, fitted on up to ``threads`` threads (the
@@ -171,10 +175,11 @@ def fit_blob_sequence(blobs, frames, angles, maps=None, *, threads: int = FIT_PA
             a = float(a) if a is not None and math.isfinite(a) else None
             near = prev_frame is not None and int(frames[i]) - prev_frame == 1
             m = None if maps is None else maps[i]
+            lamp = None if lamps is None else lamps[i]
             if near and start is not None:
-                fit = fit_chosen_blob(blobs[i], a, start=start, maps=m)
+                fit = fit_chosen_blob(blobs[i], a, start=start, maps=m, lamp=lamp)
             else:
-                fit = fit_chosen_blob(blobs[i], a, maps=m)
+                fit = fit_chosen_blob(blobs[i], a, maps=m, lamp=lamp)
             prev_frame = int(frames[i])
             start = (0.5 * fit.diameter, fit.blur_length) if fit.success else None
             out.append(fit)

@@ -147,6 +147,9 @@ class Detections:
         a lens model, ``2 f b``: the sphere's outline fitted as the ellipse the camera
         gives it, ``b`` its semi-minor axis in normalised image coordinates
         (:mod:`fitdrag.video.sphere_outline`; a function of the ball's depth alone).
+    lamp_direction : tuple of float or None
+        With a lens model: the direction towards the lamp in camera axes (x right, y down,
+        z forward) found from the ball's shading (:mod:`fitdrag.video.lamp`); None otherwise.
     """
 
     frame: np.ndarray
@@ -168,6 +171,7 @@ class Detections:
     row_last: np.ndarray | None = None
     model_fit: np.ndarray | None = None
     outline_measure: str = "across_motion"
+    lamp_direction: tuple[float, float, float] | None = None
 
     def __len__(self) -> int:
         return len(self.frame)
@@ -685,6 +689,7 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
     else:
         ang = np.full(n, np.nan)
     maps = None
+    lamp = None
     if shape_of is not None and n:
         from fitdrag.video.sphere_outline import outline_maps
 
@@ -698,6 +703,13 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
                                            readout_time=readout)  # fmt: skip
         maps = list(zip(outline_m, motion_m, strict=True))
     fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist(), maps)
+    if maps is not None:  # the lamp's direction, then every blob under it
+        from fitdrag.video.lamp import lamp_refits
+        from fitdrag.video.sphere_outline import disc_axes
+
+        fits, lamp = lamp_refits([blobs[i] for i in idx], [int(k) for k in frames[idx]],
+                                  ang.tolist(), maps, disc_axes(lens, xs[idx], ys[idx]), fits,
+                                  fit_blobs)  # fmt: skip
     for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
@@ -714,6 +726,7 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
         "row_last": last,
         "model_fit": ok,
         "outline_measure": "across_motion" if shape_of is None else "depth",
+        "lamp_direction": None if lamp is None else tuple(float(v) for v in lamp),
     }
 
 

@@ -75,7 +75,7 @@ def _start() -> subprocess.Popen | None:
     return helper
 
 
-def fit_blobs(blobs, frames, angles, maps=None) -> list:
+def fit_blobs(blobs, frames, angles, maps=None, lamps=None) -> list:
     """Model fits of a track's detections in frame order
     (:func:`fitdrag.video.blobs.fit_blob_sequence`), by the helper process when one is
     running and numba is not loaded here, else here; the results are the same either
@@ -90,7 +90,8 @@ def fit_blobs(blobs, frames, angles, maps=None) -> list:
         if helper is not None:
             if helper.poll() is None:
                 try:
-                    pickle.dump((list(blobs), frames, angles, maps), helper.stdin, protocol=5)
+                    pickle.dump((list(blobs), frames, angles, maps, lamps), helper.stdin,
+                                protocol=5)  # fmt: skip
                     helper.stdin.flush()
                     fits = pickle.load(helper.stdout)
                     if isinstance(fits, list) and len(fits) == len(blobs):
@@ -99,7 +100,7 @@ def fit_blobs(blobs, frames, angles, maps=None) -> list:
                     pass
             _stop(helper)  # it failed or has ended: fit here from now on
             _HELPER = None
-    return fit_blob_sequence(blobs, frames, angles, maps)
+    return fit_blob_sequence(blobs, frames, angles, maps, lamps)
 
 
 def _stop(helper: subprocess.Popen, owner: int | None = None) -> None:
@@ -126,10 +127,10 @@ def _serve() -> None:
     warm_up()
     while True:
         try:
-            blobs, frames, angles, maps = pickle.load(inp)
+            blobs, frames, angles, maps, lamps = pickle.load(inp)
         except EOFError:
             return
-        pickle.dump(fit_blob_sequence(blobs, frames, angles, maps), out, protocol=5)
+        pickle.dump(fit_blob_sequence(blobs, frames, angles, maps, lamps), out, protocol=5)
         out.flush()
 
 

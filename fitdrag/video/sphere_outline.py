@@ -39,7 +39,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 
-__all__ = ["outline_maps"]
+__all__ = ["disc_axes", "outline_maps"]
 
 # Step of the central difference for the lens's local Jacobian. [normalised units]
 _STEP = 1e-6
@@ -139,3 +139,45 @@ def outline_maps(
     shutter[:, 0, 1] = -np.nan_to_num(vx) * tau
     shutter[:, 1, 1] = 1.0 - np.nan_to_num(vy) * tau
     return motion @ shutter, motion
+
+
+def disc_axes(lens: Any, x: Any, y: Any) -> np.ndarray:
+    """Per detection, the camera-frame directions of the circle frame's axes (columns x, y and
+    z, z pointing back to the camera): how the tracker's shading basis ``n_x, n_y, n_z`` sits
+    in the camera's axes (x right, y down, z forward).
+
+    The sphere's visible face, seen along the ray ``d`` to its centre, is a hemisphere about
+    ``-d``; the outline's minor axis (across the radial image direction ``e``) is the 3-D
+    direction ``(-e_y, e_x, 0)`` of both the image and the plane across ``d``, its major axis
+    the direction ``e_r`` across ``d`` towards ``(e_x, e_y, 0)``; the circle frame's image x
+    and y axes are ``e_x e_r - e_y e_perp`` and ``e_y e_r + e_x e_perp`` (the lens's local
+    distortion is taken as a uniform scale here).
+
+    Parameters
+    ----------
+    lens : LensModel
+        The camera's intrinsics and distortion.
+    x, y : array_like
+        Blob centres in the recorded image. [px]
+
+    Returns
+    -------
+    ndarray, shape (n, 3, 3)
+        Columns: unit vectors of the frame's x, y and z axes in camera axes. [1]
+    """
+    x = np.atleast_1d(np.asarray(x, dtype=float))
+    y = np.atleast_1d(np.asarray(y, dtype=float))
+    xn, yn = _normalised(lens, x, y)
+    d = np.stack([xn, yn, np.ones_like(xn)], axis=-1)
+    d /= np.linalg.norm(d, axis=-1, keepdims=True)
+    rad = np.hypot(xn, yn)
+    safe = np.where(rad > 0, rad, 1.0)
+    ex = np.where(rad > 0, xn / safe, 1.0)
+    ey = np.where(rad > 0, yn / safe, 0.0)
+    flat = np.stack([ex, ey, np.zeros_like(ex)], axis=-1)
+    er = flat - d * np.sum(flat * d, axis=-1, keepdims=True)
+    er /= np.linalg.norm(er, axis=-1, keepdims=True)
+    ep = np.stack([-ey, ex, np.zeros_like(ex)], axis=-1)
+    ax = ex[:, None] * er - ey[:, None] * ep
+    ay = ey[:, None] * er + ex[:, None] * ep
+    return np.stack([ax, ay, -d], axis=-1)

@@ -546,6 +546,9 @@ def track_footage(
     meta.update(cal.to_meta())
     if getattr(det, "outline_measure", "across_motion") == "depth":
         meta["outline_measure"] = "depth"
+    lamp = getattr(det, "lamp_direction", None)
+    if lamp is not None:  # towards the lamp, camera axes, from the ball's shading
+        meta["lamp_direction"] = ",".join(f"{v:.4f}" for v in lamp)
     if lens_file is not None:
         meta["lens_file"] = lens_file
     if used_marker_frame is not None:

@@ -1,0 +1,87 @@
+"""The lamp's direction from a track's blobs, and the blobs fitted again under it.
+
+A specimen lit by one lamp (plus diffuse light) is brighter where its surface faces the lamp
+and evenly lit beyond the shadow's edge (Lambert's cosine law, ``a_0 + a_4 max(n . L, 0)``);
+a polynomial shading basis follows that edge only roughly, and where the edge lies near the
+outline the misfit moves the fitted outline by a few hundredths of a pixel, differently as
+the ball crosses the field.  The lamp is fixed in the camera's axes for the whole flight:
+:func:`lamp_refits` finds its direction once, from the first fits' shading (the first-order
+coefficients point along ``L`` in each blob's circle frame,
+:func:`fitdrag.video.sphere_outline.disc_axes` turns them into camera axes) refined by the
+least total misfit of a few blobs spread over the flight (Nelder–Mead over the direction's
+two angles [1]), then fits every blob again with that lamp
+(:func:`fitdrag.video.ball_fit.fit_ball` ``lamp=``): the brightness model is then exact for a
+Lambertian ball under a distant lamp.
+
+References
+----------
+1. J. A. Nelder and R. Mead, "A simplex method for function minimization", Comput. J. 7,
+   308-313 (1965).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+__all__ = ["LAMP_PROBES", "lamp_refits"]
+
+#: Blobs, spread over the flight, whose total misfit decides the lamp's direction.
+LAMP_PROBES = 24
+
+
+def _direction(angles) -> np.ndarray:
+    """Unit vector of (azimuth about z from x, elevation from the x-y plane) [rad]."""
+    az, el = angles
+    return np.array([math.cos(el) * math.cos(az), math.cos(el) * math.sin(az), math.sin(el)])
+
+
+def _angles(v: np.ndarray) -> tuple[float, float]:
+    v = v / np.linalg.norm(v)
+    return math.atan2(v[1], v[0]), math.asin(max(-1.0, min(1.0, v[2])))
+
+
+def lamp_refits(blobs, frames, angles, maps, axes, fits, fit_blobs):
+    """The fits again under the lamp's direction found from them (see the module notes).
+
+    ``blobs``, ``frames``, ``angles``, ``maps`` as given to ``fit_blobs`` (the function that
+    fits blobs, :func:`fitdrag.video.fit_worker.fit_blobs`); ``axes`` (n, 3, 3) the circle
+    frames' axes in camera axes; ``fits`` the first fits (second-order shading).  Returns
+    (the fits, with each blob's lamp fit where it succeeded and the first fit elsewhere; the
+    lamp's direction in camera axes, or None when fewer than three first fits succeeded).
+    """
+    ok = [i for i, f in enumerate(fits) if f.success and len(f.shading) >= 4]
+    if len(ok) < 3:
+        return list(fits), None
+    # first guess: the first-order shading coefficients, in camera axes, averaged
+    dirs = []
+    for i in ok:
+        c = np.asarray(fits[i].shading[1:4], dtype=float)
+        norm = float(np.linalg.norm(c))
+        if norm > 0:
+            dirs.append(axes[i] @ (c / norm))
+    if not dirs:
+        return list(fits), None
+    mean = np.mean(dirs, axis=0)
+    start = mean if np.linalg.norm(mean) > 1e-6 else np.array([0.0, 0.0, -1.0])
+    probes = [ok[int(round(k))] for k in np.linspace(0, len(ok) - 1, min(LAMP_PROBES, len(ok)))]
+    probes = sorted(set(probes))
+
+    def misfit(ang) -> float:
+        lamp = _direction(ang)
+        got = fit_blobs([blobs[i] for i in probes], [frames[i] for i in probes],
+                        [angles[i] for i in probes], [maps[i] for i in probes],
+                        [axes[i].T @ lamp for i in probes])  # fmt: skip
+        if not all(f.success for f in got):
+            return math.inf
+        return float(sum(f.residual_rms**2 * f.n_pixels for f in got))
+
+    from scipy.optimize import minimize
+
+    best = minimize(misfit, _angles(start), method="Nelder-Mead",
+                    options={"xatol": 2e-3, "fatol": 0.5, "maxfev": 60,
+                             "initial_simplex": None})  # fmt: skip
+    lamp = _direction(best.x)
+    again = fit_blobs(blobs, frames, angles, maps, [axes[i].T @ lamp for i in range(len(blobs))])
+    return [g if g.success else f for f, g in zip(fits, again, strict=True)], lamp
