@@ -41,13 +41,16 @@ from fitdrag.video.sources import open_source  # noqa: E402
 
 def recorded_fits(source):
     """Run the tracker on ``source`` and return the arguments (blob, blur angle, start) of
-    each model fit it made."""
+    each model fit it made (numba is loaded first, so the tracker fits in this process,
+    where the spy sees the fits, not in its helper process)."""
+    import numba  # noqa: F401
+
     seen = []
     original = blobs_module.fit_chosen_blob
 
-    def spy(blob, angle=None, start=None):
+    def spy(blob, angle=None, start=None, **kw):
         seen.append((blob, angle, start))
-        return original(blob, angle, start)
+        return original(blob, angle, start, **kw)
 
     blobs_module.fit_chosen_blob = spy
     try:
