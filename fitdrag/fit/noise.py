@@ -80,6 +80,13 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
     restricted likelihood, adequate because the weights already equalise the channels' noise
     levels.  A channel is an axis of a track (x, y) or of a camera's image (u, v, diameter).
 
+    Computation: with a = [J r] the augmented rows, every Prais–Winsten row of gap d is
+    (aᵢ − φ^d aᵢ₋₁)/√(1 − φ^(2d)), so the whitened cross-product [J̃ r̃]ᵀ[J̃ r̃] is
+    Σ_d (1 − φ^(2d))⁻¹ (S₀₀ − φ^d (S₀₁ + S₀₁ᵀ) + φ^(2d) S₁₁)_d plus the first rows'
+    a₀a₀ᵀ, with the lagged products S per channel and gap computed once.  Each trial φ then
+    costs a (P+1)×(P+1) Cholesky factorisation (J̃ᵀJ̃ = LLᵀ, S = r̃ᵀr̃ − |L⁻¹J̃ᵀr̃|²), not a
+    QR of the whole whitened Jacobian; the result is the same likelihood.
+
     Parameters
     ----------
     r0 : ndarray
@@ -96,32 +103,73 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
 
     n, p = j0.shape
     phi = list(start)
+    n_ch = len(phi)
+    # columns scaled to unit norm (the likelihood's argmin does not depend on the scale; the
+    # cross-products stay well conditioned)
+    scale = np.linalg.norm(j0, axis=0)
+    scale[scale == 0] = 1.0
+    aug = np.column_stack((j0 / scale, r0))
+    first = [np.zeros((p + 1, p + 1)) for _ in range(n_ch)]
+    # per channel: {gap: (count, S00, S01 + S01ᵀ, S11)}
+    lagged: list[dict] = [dict() for _ in range(n_ch)]
+    for rows, ch, gaps in blocks:
+        a = aug[rows]
+        if a.shape[0] == 0:
+            continue
+        first[ch] += np.outer(a[0], a[0])
+        if a.shape[0] < 2:
+            continue
+        gaps = np.asarray(gaps)
+        for d in np.unique(gaps):
+            sel = np.flatnonzero(gaps == d)
+            cur, prev = a[sel + 1], a[sel]
+            s01 = cur.T @ prev
+            entry = (sel.size, cur.T @ cur, s01 + s01.T, prev.T @ prev)
+            old = lagged[ch].get(int(d))
+            if old is not None:
+                entry = tuple(x + y for x, y in zip(old, entry))
+            lagged[ch][int(d)] = entry
 
-    def objective(value, axis):
-        trial = list(phi)
-        trial[axis] = value
-        r = np.empty_like(r0)
-        j = np.empty_like(j0)
+    def channel(ch, f):
+        """(whitened cross-product, Σ ln(1 − φ^(2d))) of channel ``ch`` at φ = f."""
+        m = first[ch].copy()
         logdet = 0.0
-        for rows, ax, gaps in blocks:
-            f = trial[ax]
-            r[rows] = prais_winsten(r0[rows], gaps, f)
-            j[rows] = prais_winsten(j0[rows], gaps, f)
-            if f != 0.0:
-                logdet += float(np.sum(np.log1p(-(f ** (2 * gaps)))))
-        q, rr = np.linalg.qr(j)
-        resid = r - q @ (q.T @ r)
-        ss = float(resid @ resid)
-        sign, ld = np.linalg.slogdet(rr.T @ rr)
-        if ss <= 0 or sign <= 0:
+        for d, (count, s00, s01, s11) in lagged[ch].items():
+            if f == 0.0:
+                m += s00
+                continue
+            pd = f**d
+            c = 1.0 - pd * pd
+            m += (s00 - pd * s01 + (pd * pd) * s11) / c
+            logdet += count * math.log(c)
+        return m, logdet
+
+    def objective(value, axis, fixed, fixed_logdet):
+        m, logdet = channel(axis, value)
+        m += fixed
+        try:
+            low = np.linalg.cholesky(m[:p, :p])
+        except np.linalg.LinAlgError:
             return np.inf
-        return (n - p) * math.log(ss) + logdet + ld
+        z = np.linalg.solve(low, m[:p, p])
+        ss = float(m[p, p] - z @ z)
+        if not ss > 0:
+            return np.inf
+        ld = 2.0 * float(np.sum(np.log(np.diag(low))))
+        return (n - p) * math.log(ss) + logdet + fixed_logdet + ld
 
     for _round in range(2):
-        for axis in range(len(phi)):
+        for axis in range(n_ch):
+            fixed = np.zeros((p + 1, p + 1))
+            fixed_logdet = 0.0
+            for other in range(n_ch):
+                if other != axis:
+                    m, ld = channel(other, phi[other])
+                    fixed += m
+                    fixed_logdet += ld
             out = minimize_scalar(
-                objective, bounds=(-0.98, 0.98), args=(axis,), method="bounded",
-                options={"xatol": 1e-4},
+                objective, bounds=(-0.98, 0.98), args=(axis, fixed, fixed_logdet),
+                method="bounded", options={"xatol": 1e-4},
             )  # fmt: skip
             phi[axis] = float(out.x)
     return tuple(phi)
