@@ -5,8 +5,8 @@ the front door (:func:`fit_tracks`) that runs the stages below and assembles the
 
 The fit is a weighted nonlinear least-squares problem (:mod:`fitdrag.fit.problem`) using the
 simulator's exact sensitivities as the Jacobian, solved in stages by the optimisers of
-:mod:`fitdrag.fit.solvers`, the last through lmfit (MINPACK's Levenberg–Marquardt), whose
-``MinimizerResult`` is kept on the result.  Every throw has its own launch state
+:mod:`fitdrag.fit.solvers` (lmfit's ``MinimizerResult`` of the solved problem is available
+on demand as ``FitResult.minimizer_result``).  Every throw has its own launch state
 (x0, y0, vx0, vy0); all throws share the drag parameters (and the lift coefficient when
 fitted).  The residual statistics come from :mod:`fitdrag.fit.noise`.
 
@@ -82,7 +82,6 @@ from fitdrag.fit.results import (
 from fitdrag.fit.solvers import (
     gauss_newton,
     levenberg_marquardt,
-    lmfit_stage,
     polish,
     robust_solve,
     trust_region,
@@ -253,7 +252,6 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
                 out.append((tr.x - pos[:, 0], tr.y - pos[:, 1]))
         return out
 
-    total_nfev = 0
     messages = []
     set_sigmas(floors)
     # a guarded start: the drag-free guess first with the shared parameters at their initial
@@ -269,16 +267,13 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
                 th0[0] = cd_try
         # a quick Gaussian pass brings the drag-free guess close; the robust loss then
         # discounts gross outliers from there
-        before = problem.n_evaluations
         th, ok = levenberg_marquardt(problem, th0, bounds, max_iter=max(max_nfev // 4, 1))
         msg = "converged" if ok else "the first Gaussian pass did not converge"
         if not ok:
             th, ok, msg, _ = trust_region(problem, th0, bounds, max_nfev=max(max_nfev // 4, 1),
                                           tol=1e-4)  # fmt: skip
-        total_nfev += problem.n_evaluations - before
         if robust and np.all(np.isfinite(th)):
-            th1, ok, msg, nfev = robust_solve(problem, th if ok else th0, bounds, max_nfev)
-            total_nfev += nfev
+            th1, ok, msg, _ = robust_solve(problem, th if ok else th0, bounds, max_nfev)
             th = th1
         cost = float(np.sum(problem.evaluate(th)[0] ** 2))
         if best is None or (ok and (not best[1] or cost < best[2])):
@@ -333,8 +328,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
             problem.set_state(masks=masks)
             if not given_sigma:
                 set_sigmas(scales)
-            th, ok, msg, nfev = robust_solve(problem, theta, bounds, max_nfev)
-            total_nfev += nfev
+            th, ok, msg, _ = robust_solve(problem, theta, bounds, max_nfev)
             if ok:
                 theta = th
 
@@ -363,8 +357,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     noise_model = "white"
     previous = np.array([[np.median(sg[:, 0]), np.median(sg[:, 1])] for sg in problem.sigmas])
     for _it in range(4):
-        th, ok, msg, nfev = polish(problem, theta, bounds, max_nfev)
-        total_nfev += nfev
+        th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
         if not ok:
             success = False
             messages.append(msg)
@@ -402,8 +395,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
         for _it in range(8):
             new_phi = problem.reml_ar1(theta)
             problem.set_state(phi=new_phi)
-            th, ok, msg, nfev = polish(problem, theta, bounds, max_nfev)
-            total_nfev += nfev
+            th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
             if not ok:
                 success = False
                 messages.append(msg)
@@ -418,21 +410,19 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
             phi = new_phi
         phi = problem.phi
 
-    # the final, reported stage through lmfit, from the converged point; lmfit's result is
-    # kept for the analyst (FitResult.minimizer_result)
-    minimizer_result = None
+    # a last Gauss–Newton re-solve under the final noise levels (the loops above stop once the
+    # weights settle, after their last re-estimate): typically one step or none
     if success:
-        th, ok, msg, nfev, minimizer_result = lmfit_stage(problem, theta, bounds, max_nfev)
-        total_nfev += nfev
+        th, ok = gauss_newton(problem, theta, bounds)
         if ok:
-            # a last Gauss–Newton step settles the optimum to ~1e-10 (MINPACK stops on its
-            # own tolerances, lmfit's bound mapping adds round-off), so that re-fits for the
-            # uncertainty budget start from, and return to, the same point
-            th2, ok2 = gauss_newton(problem, th, bounds)
-            theta = th2 if ok2 else th
+            theta = th
         else:
-            success = False
-            messages.append(msg)
+            th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
+            if ok:
+                theta = th
+            else:
+                success = False
+                messages.append(msg)
 
     # covariance: sigma of whitened residuals, J~^T J~ inverse
     res, jac, sims, ok_eval = problem.evaluate(theta)
@@ -464,8 +454,8 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     result = _assemble(
         tracks, specimen, conditions, dm, constants, lift, theta, cov, dof, coverage_factor,
         success, messages, masks, rejection, problem, sims, noise_model, phi, given_sigma,
-        sig_white, chi2_red, r1_all, p_r1, lb_q, lb_p, z_limit, total_nfev, robust, noise,
-        minimizer_result,
+        sig_white, chi2_red, r1_all, p_r1, lb_q, lb_p, z_limit, problem.n_evaluations, robust,
+        noise,
     )  # fmt: skip
     return result
 
@@ -476,7 +466,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
 def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof, k_user,
               success, messages, masks, rejection, problem, sims, noise_model, phi,
               given_sigma, sig_white, chi2_red, r1_all, p_r1, lb_q, lb_p, z_limit,
-              total_nfev, robust, noise_opt, minimizer_result=None):  # fmt: skip
+              total_nfev, robust, noise_opt):  # fmt: skip
     names = tuple(problem.names)
     n_shared = problem.n_shared
     air = conditions.air
@@ -703,5 +693,4 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
         lift=lift,
         options=options,
         _state=state,
-        minimizer_result=minimizer_result,
     )

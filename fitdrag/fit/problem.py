@@ -115,6 +115,10 @@ class Problem:
         self._refresh_layout()
         self._cache_theta = None
         self._cache = None
+        # the last flights with sensitivities, kept across changes of weights, masks and
+        # noise model (they depend on theta alone)
+        self._sims_theta = None
+        self._sims = None
         self.n_evaluations = 0
 
     def _refresh_layout(self):
@@ -162,17 +166,27 @@ class Problem:
     def cached_flights(self, theta):
         """The flights at ``theta`` without sensitivities, reusing the last evaluation."""
         theta = np.asarray(theta, float)
-        if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
-            return self._cache[2]  # the last evaluation: the same flight, already computed
+        if self._sims_theta is not None and np.array_equal(theta, self._sims_theta):
+            return self._sims  # the last evaluation: the same flight, already computed
         return self.simulate_all(theta, False)
+
+    def _flights(self, theta):
+        """The flights with sensitivities at ``theta``, integrated only when ``theta`` is new
+        (a change of weights, kept samples or noise model needs no new integration)."""
+        if self._sims_theta is not None and np.array_equal(theta, self._sims_theta):
+            return self._sims
+        sims = self.simulate_all(theta, True)
+        self.n_evaluations += 1
+        self._sims_theta = theta.copy()
+        self._sims = sims
+        return sims
 
     def evaluate(self, theta):
         """(residuals, Jacobian, flights, ok) at ``theta``; cached for a repeated ``theta``."""
         theta = np.asarray(theta, float)
         if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
             return self._cache
-        sims = self.simulate_all(theta, True)
-        self.n_evaluations += 1
+        sims = self._flights(theta)
         res = np.empty(self.n_resid)
         jac = np.zeros((self.n_resid, self.n_params))
         row = 0

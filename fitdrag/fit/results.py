@@ -126,13 +126,13 @@ class FitResult:
     specimen, conditions :
         The inputs.
     minimizer_result : lmfit.minimizer.MinimizerResult or None
-        lmfit's own result of the final stage (MINPACK Levenberg–Marquardt on the whitened,
-        weighted problem): its fit report (``lmfit.fit_report``), parameter correlations and
-        information criteria, for the analyst.  Its best values equal ``values`` to a
-        negligible fraction of their standard uncertainties (the last Gauss–Newton step,
-        see :mod:`fitdrag.fit.solvers`); its error bars use lmfit's own scaling, the
-        reported ``covariance`` is fitdrag's.  None when the fit failed before that stage.  Not part
-        of :meth:`to_dict` (not JSON).
+        lmfit's own result (MINPACK Levenberg–Marquardt on the whitened, weighted problem,
+        run from the fitted values when first asked for, then kept): its fit report
+        (``lmfit.fit_report``), parameter correlations and information criteria, for the
+        analyst.  Its best values equal ``values`` to a negligible fraction of their standard
+        uncertainties (both are converged optima of the same problem); its error bars use
+        lmfit's own scaling, the reported ``covariance`` is fitdrag's.  None when the fit
+        failed.  Not part of :meth:`to_dict` (not JSON).
     """
 
     success: bool
@@ -154,7 +154,20 @@ class FitResult:
     lift: bool = False
     options: dict = field(default_factory=dict)
     _state: dict = field(default_factory=dict, repr=False)
-    minimizer_result: Any = field(default=None, repr=False, compare=False)
+
+    @property
+    def minimizer_result(self):
+        """lmfit's ``MinimizerResult`` of the fitted problem, computed on first use (see the
+        class docstring); None when the fit failed."""
+        if "minimizer_result" not in self._state:
+            out = None
+            problem = self._state.get("problem")
+            if self.success and problem is not None:
+                from fitdrag.fit.solvers import lmfit_stage
+
+                out = lmfit_stage(problem, self.values, problem.bounds)[4]
+            self._state["minimizer_result"] = out
+        return self._state["minimizer_result"]
 
     @property
     def expanded_uncertainty(self) -> float:
@@ -349,7 +362,8 @@ def result_dict(r: FitResult) -> dict:
             "sensitivities: a Levenberg-Marquardt pass from a drag-free start, a robust "
             "soft-L1 stage (iteratively reweighted) with outlier rejection, Gauss-Newton "
             "re-solves with the noise re-estimated, AR(1) prewhitening when the residuals "
-            "are serially correlated, and a final lmfit (MINPACK) stage",
+            "are serially correlated, and a last Gauss-Newton re-solve under the final noise "
+            "levels",
             "integrator": f"adaptive Dormand-Prince RK5(4) with forward sensitivities, rtol "
             f"{FIT_RTOL:g}, quartic dense output at the sample times",
         },
