@@ -267,3 +267,33 @@ def test_viscosity_and_drag_law_inputs():
     assert m2({"air_viscosity": mu2}) == pytest.approx(const.cd, rel=1e-9)
     with pytest.raises(ValueError, match=r"^nominal: air_viscosity needs air_density"):
         DragRefitModel(const, [track], {"air_viscosity": ref.MU})
+
+
+def test_fixed_jacobian_trials_equal_full_refits(heavy_fit):
+    """closed-form/independent: on 40 random trials over every kind of input (specimen, air,
+    frame rate, length scale, roll, gravity, the out-of-plane angle at 0.3° — tens of u(Cd)
+    — and air speed), the default re-solve (fixed Jacobian, flights without sensitivities,
+    one exact last step) gives the Cd of a full re-fit (DragRefitModel.full: Gauss–Newton
+    with the exact Jacobian at every step) to 1e-3 u(Cd).  The model pickles without its
+    prepared problem, which each process builds on first use."""
+    import pickle
+
+    fit, track, sc = heavy_fit
+    nominal = {"mass": sc.mass, "diameter": sc.diameter, "air_density": 1.225,
+               "frame_rate": 400.0, "length_scale": 1.0, "roll": 0.0, "gravity": 9.80665,
+               "camera_distance": 3.0, "out_of_plane_angle": 0.0, "air_speed": 0.0}  # fmt: skip
+    spread = {"mass": 2e-5, "diameter": 1e-4, "air_density": 0.01, "frame_rate": 0.05,
+              "length_scale": 1e-3, "roll": 0.1, "gravity": 5e-4, "camera_distance": 0.05,
+              "out_of_plane_angle": 0.3, "air_speed": 0.02}  # fmt: skip
+    model = DragRefitModel(fit, [track], nominal, viscosity=1.789e-5)
+    rng = np.random.default_rng(4)
+    worst = 0.0
+    for _ in range(40):
+        v = {k: nominal[k] + spread[k] * rng.normal() for k in spread}
+        worst = max(worst, abs(model(v) - model.full(v)))
+    assert worst < 1e-3 * fit.u_cd
+    assert "_session" in model.__dict__
+    copy = pickle.loads(pickle.dumps(model))
+    assert "_session" not in copy.__dict__
+    v = {"out_of_plane_angle": 0.3}
+    assert copy(v) == pytest.approx(model(v), abs=1e-9)

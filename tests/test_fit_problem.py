@@ -117,3 +117,25 @@ def test_parameter_layout_of_several_throws(n_throws):
     assert p.n_params == 1 + 4 * n_throws and jac.shape == (2 * SC.n * n_throws, 9)
     assert np.all(jac[: 2 * SC.n, 5:] == 0.0) and np.all(jac[2 * SC.n :, 1:5] == 0.0)
     np.testing.assert_allclose(p.throw_theta(theta, 1), np.concatenate((SC.launch, [SC.cd])))
+
+
+def test_residual_only_evaluation_matches_the_full_one_under_ar1_and_new_observations():
+    """closed-form/independent: the residuals from flights integrated without sensitivities
+    (the fixed-Jacobian re-solve's evaluation) equal the full evaluation's, with weights, a
+    mask and AR(1) prewhitening, to the integrator's tolerance (1e-5 in noise units, a few
+    1e-9 m); after replacing the observations both see the new ones (and the noise-free
+    track's residuals vanish, as in test_residuals_vanish_at_the_true_parameters)."""
+    xy = truth()
+    noisy = xy + np.random.default_rng(2).normal(0.0, SC.sigma, xy.shape)
+    p = problem_for(Track(SC.t, noisy[:, 0], noisy[:, 1]))
+    mask = np.ones(SC.n, bool)
+    mask[[5, 40, 41]] = False
+    p.set_state(masks=[mask], sigmas=[np.full((SC.n, 2), SC.sigma)], phi=(0.5, 0.3))
+    full = p.evaluate(SC.theta)[0]
+    cheap, ok = p.residuals(SC.theta)
+    assert ok and np.max(np.abs(cheap - full)) < 1e-5
+    p.set_observations(0, xy[:, 0], xy[:, 1])
+    p.forget()
+    cheap, ok = p.residuals(SC.theta)
+    assert ok and np.max(np.abs(cheap)) < 1e-7 / SC.sigma
+    assert np.max(np.abs(p.evaluate(SC.theta)[0] - cheap)) < 1e-5

@@ -7,6 +7,7 @@ noise synthetic from a fixed seed.
 from __future__ import annotations
 
 import functools
+import math
 import re
 
 import numpy as np
@@ -14,7 +15,7 @@ import pytest
 import reference as ref
 
 from fitdrag import Air, Sphere, Track, fit_tracks
-from fitdrag.fit.refit import Refit, refit
+from fitdrag.fit.refit import Refit, RefitSession, refit
 
 SC = ref.Scenario(added_mass_coefficient=0.0, buoyancy=False, n=200)
 
@@ -99,3 +100,51 @@ def test_refit_with_a_fixed_lift_coefficient():
     assert abs(plain.cd - lifted.cd) > 5 * lifted.u_cd
     with pytest.raises(ValueError, match=r"^lift_coefficient: the fit has a fitted lift"):
         refit(lifted, lift_coefficient=0.01)
+
+
+def _moved_inputs(fit, track):
+    """Changed inputs of a typical budget trial: 2 % heavier specimen, thinner air, stronger
+    gravity, positions scaled by 1 + 1e-3 and turned by 0.2°, times by 1 + 2e-4."""
+    a = math.radians(0.2)
+    dx, dy = track.x - track.x[0], track.y - track.y[0]
+    x = (track.x[0] + math.cos(a) * dx - math.sin(a) * dy) * 1.001
+    y = (track.y[0] + math.sin(a) * dx + math.cos(a) * dy) * 1.001
+    t = track.t * 1.0002
+    return {
+        "specimen": Sphere(SC.mass * 1.02, SC.diameter, added_mass_coefficient=0.0),
+        "air": Air(ref.RHO * 0.995, ref.MU),
+        "gravity": 9.812,
+    }, Track(t, x, y)
+
+
+def test_fixed_jacobian_session_equals_a_full_refit():
+    """closed-form/independent: the fixed-Jacobian re-solve (chord steps, then one exact
+    Gauss–Newton step) returns the optimum of a full re-fit (Gauss–Newton with the exact
+    Jacobian at every step, fitdrag.fit.refit.refit) to 1e-3 of u(Cd) for changed specimen,
+    air, gravity, sample times and positions — an effect of tens of u(Cd) — and the fit's own
+    optimum when nothing changes; without the exact last step it still agrees to 0.05 u(Cd)
+    for these small changes (the chord's fixed point is off by a second-order amount)."""
+    fit, track = fitted()
+    kw, moved = _moved_inputs(fit, track)
+    full = refit(fit, tracks=[moved], **kw)
+    assert full.success and abs(full.cd - fit.cd) > 3 * fit.u_cd
+    session = RefitSession(fit)
+    fast = session.solve(times=[moved.t], positions=[(moved.x, moved.y)], **kw)
+    assert fast is not None and fast.success
+    assert abs(fast.cd - full.cd) < 1e-3 * fit.u_cd
+    same = session.solve()
+    assert same.cd == pytest.approx(fit.cd, abs=1e-6 * fit.u_cd)
+    chord = RefitSession(fit, exact_step=False).solve(
+        times=[moved.t], positions=[(moved.x, moved.y)], **kw
+    )
+    assert abs(chord.cd - full.cd) < 0.05 * fit.u_cd
+
+
+def test_fixed_jacobian_session_gives_up_rather_than_guess():
+    """regression: a chord iteration allowed a single step cannot meet its tolerance after a
+    change of several u(Cd), and says so (None) so that the caller re-fits in full."""
+    fit, track = fitted()
+    kw, moved = _moved_inputs(fit, track)
+    session = RefitSession(fit)
+    assert session.solve(times=[moved.t], positions=[(moved.x, moved.y)], max_iter=1,
+                         **kw) is None  # fmt: skip

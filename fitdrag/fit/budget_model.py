@@ -74,7 +74,8 @@ class DragRefitModel:
 
     ``model(values) -> Cd`` rebuilds the specimen, the air, the gravity and the tracks from
     ``values`` (missing names take their nominal values) and re-solves the fit from its
-    optimum with :func:`fitdrag.fit.refit.refit` (same rejected frames and noise model).
+    optimum (same rejected frames and noise model): by default with the fit's Jacobian held
+    fixed (``fixed_jacobian``), else with :func:`fitdrag.fit.refit.refit`.
 
     * ``mass`` [kg], ``diameter`` [m] (sphere) or ``area`` [m²] and ``volume`` [m³] (body),
       ``added_mass_coefficient`` [-]: the specimen;
@@ -115,9 +116,15 @@ class DragRefitModel:
         Reynolds reference length of a body (kept fixed). [m]
     viscosity : float, optional
         Air viscosity to use with ``air_density`` (kept fixed). [Pa s]
+    fixed_jacobian : bool
+        Re-solve each trial by chord steps with the original fit's Jacobian and flights
+        integrated without sensitivities (:class:`fitdrag.fit.refit.RefitSession`, one
+        prepared problem per process), falling back to a full re-fit when that does not
+        settle; False re-fits in full every time (:meth:`full`).
     """
 
-    def __init__(self, result, tracks, nominal, *, length=None, viscosity=None):
+    def __init__(self, result, tracks, nominal, *, length=None, viscosity=None,
+                 fixed_jacobian=True):  # fmt: skip
         tracks = list(tracks)
         unknown = sorted(k for k in nominal if k not in DRAG_INPUTS and not _ANGLE_RE.match(k))
         if unknown:
@@ -156,6 +163,7 @@ class DragRefitModel:
         self.length = length
         self.viscosity = viscosity
         self.directions = [_flight_direction(th) for th in result.throws]
+        self.fixed_jacobian = bool(fixed_jacobian)
 
     def specimen(self, v):
         if not any(k in v for k in ("mass", "diameter", "area", "volume",
@@ -171,6 +179,16 @@ class DragRefitModel:
         return air_from_inputs(v, self.viscosity)
 
     def transformed_tracks(self, v):
+        """The tracks as a trial's inputs see them (None when unchanged): see the class notes."""
+        arrays = self.transformed_arrays(v)
+        if arrays is None:
+            return None
+        return [Track(t, x, y, sig, tr.frame, dict(tr.meta))
+                for tr, (t, x, y, sig) in zip(self.tracks, arrays)]  # fmt: skip
+
+    def transformed_arrays(self, v):
+        """Per track (t [s], x [m], y [m], sigma [m] or None) as the inputs ``v`` see them;
+        None when no input changes the tracks."""
         f0 = self.nominal.get("frame_rate")
         time_factor = 1.0 if f0 is None else f0 / v.get("frame_rate", f0)
         s = v.get("length_scale", 1.0)
@@ -194,7 +212,7 @@ class DragRefitModel:
                 # the track seen from the frame moving with the air (module notes)
                 x = x - wind * ex * (t - t[0])
                 y = y - wind * ey * (t - t[0])
-            out.append(Track(t, x, y, sig, tr.frame, dict(tr.meta)))
+            out.append((t, x, y, sig))
         return out
 
     def angles(self, v) -> list[float]:
@@ -206,6 +224,10 @@ class DragRefitModel:
     def __call__(self, values) -> float:
         v = dict(self.nominal)
         v.update(values)
+        if self.fixed_jacobian:
+            r = self._fast(v)
+            if r is not None:
+                return float(r.cd) + v.get("drag_law", 0.0)
         r = refit(
             self.result,
             tracks=self.transformed_tracks(v),
@@ -217,6 +239,39 @@ class DragRefitModel:
         if not r.success:
             raise ConvergenceError("the re-fit did not converge")
         return float(r.cd) + v.get("drag_law", 0.0)
+
+    def full(self, values) -> float:
+        """Cd of ``values`` by a full re-fit (Gauss–Newton with the exact Jacobian at every
+        step), never the fixed-Jacobian re-solve: the reference that checks it."""
+        saved = self.fixed_jacobian
+        self.fixed_jacobian = False
+        try:
+            return self(values)
+        finally:
+            self.fixed_jacobian = saved
+
+    def _fast(self, v):
+        """The fixed-Jacobian re-solve of :class:`fitdrag.fit.refit.RefitSession` (built on
+        first use, once per process); None when it does not settle."""
+        from fitdrag.fit.refit import RefitSession
+
+        session = self.__dict__.get("_session")
+        if session is None:
+            session = self.__dict__["_session"] = RefitSession(self.result)
+        arrays = self.transformed_arrays(v)
+        return session.solve(
+            times=None if arrays is None else [a[0] for a in arrays],
+            positions=None if arrays is None else [(a[1], a[2]) for a in arrays],
+            specimen=self.specimen(v),
+            air=self.air(v),
+            gravity=v.get("gravity"),
+            lift_coefficient=v.get("lift_coefficient"),
+        )
+
+    def __getstate__(self):
+        state = dict(self.__dict__)
+        state.pop("_session", None)  # rebuilt in each process on first use
+        return state
 
 
 def _flight_direction(throw) -> tuple[float, float]:

@@ -287,9 +287,9 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     rejection: list[dict] = [dict() for _ in tracks]
     masks = [np.ones(len(tr), bool) for tr in tracks]
     n_resid_total = 2 * sum(len(tr) for tr in tracks)
-    from scipy import stats
+    from scipy import special  # the distributions' functions without scipy.stats' overhead
 
-    z_limit = max(4.0, float(stats.norm.isf(0.01 / (2.0 * n_resid_total))))
+    z_limit = max(4.0, float(-special.ndtri(0.01 / (2.0 * n_resid_total))))  # normal isf
 
     if robust and success:
         for _round in range(4):
@@ -387,7 +387,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
     series = normalised_series(theta)
     r1_all, pairs = lag1(series[0] + series[1])
     z_r1 = r1_all * math.sqrt(max(pairs, 1))
-    p_r1 = float(2.0 * stats.norm.sf(abs(z_r1)))
+    p_r1 = float(2.0 * special.ndtr(-abs(z_r1)))  # two-sided normal tail
     lb_q, lb_p = ljung_box(series[0] + series[1])
     use_ar1 = noise == "ar1" or (noise == "auto" and p_r1 < 0.01)
     if use_ar1 and success:

@@ -215,6 +215,42 @@ class Problem:
         self._cache = (res, jac, sims, ok)
         return self._cache
 
+    def forget(self) -> None:
+        """Drop the cached evaluation and flights (after changing the flight models)."""
+        self._cache_theta = None
+        self._sims_theta = None
+
+    def set_observations(self, i: int, x, y) -> None:
+        """Replace throw ``i``'s observed positions [m] (same samples; weights, kept samples
+        and noise model unchanged), without rebuilding the problem."""
+        sel, m, base, axes = self._pre[i]
+        self._pre[i] = (sel, m, base, [(np.ascontiguousarray(np.asarray(obs, float)[sel]), inv)
+                                       for obs, (_old, inv) in zip((x, y), axes)])  # fmt: skip
+        self._cache_theta = None
+
+    def residuals(self, theta) -> tuple[np.ndarray, bool]:
+        """(weighted, whitened residuals, ok) at ``theta`` from flights integrated without
+        sensitivities (nothing cached): the cheap evaluation of a re-solve with a fixed
+        Jacobian."""
+        theta = np.asarray(theta, float)
+        res = np.empty(self.n_resid)
+        row = 0
+        ok = True
+        for i, (sel, m, _base, axes) in enumerate(self._pre):
+            status, pos, _vel, _j, _steps = self.models[i].run(
+                self.throw_theta(theta, i), False, self.fixed_lift
+            )
+            if status != 0 or not np.all(np.isfinite(pos)):
+                return res, False
+            for axis, (obs, inv_s) in enumerate(axes):
+                r = (obs - pos[sel, axis]) * inv_s
+                f = self.phi[axis]
+                if f != 0.0:
+                    r = prais_winsten(r, self.gaps[i], f)
+                res[row : row + m] = r
+                row += m
+        return res, ok
+
     def axis_blocks(self) -> list[tuple[slice, int, np.ndarray]]:
         """Per throw and axis: (rows of the residual vector, axis, frame gaps)."""
         blocks = []

@@ -145,3 +145,130 @@ def refit(
     p_full = np.concatenate((theta[:n_fit], result.constants)).astype(float)
     cd, _ = dm.kernel(re_med, p_full, np.zeros(max(p_full.size, 1)))
     return Refit(cd=float(cd), values=theta, success=bool(ok))
+
+
+class RefitSession:
+    """A finished fit prepared for many re-solves with a fixed Jacobian (Monte Carlo trials).
+
+    The problem (flight models, kept samples, weights, AR(1) coefficients) is built once;
+    each :meth:`solve` only replaces what a trial changes — the specimen's and the air's
+    coefficients, gravity, a held lift coefficient, the sample times and the observed
+    positions — and re-solves by chord (simplified Gauss–Newton) steps
+    θ ← θ − (J₀ᵀJ₀)⁻¹J₀ᵀ r(θ) with J₀ the whitened Jacobian at the original optimum and r
+    from flights integrated without sensitivities [1, §10.2].  The fixed point solves
+    J₀ᵀ r(θ) = 0 instead of J(θ)ᵀ r(θ) = 0: for the small changes of an uncertainty budget the
+    two optima differ by a second-order amount, (J₀ᵀJ₀)⁻¹ (J − J₀)ᵀ r, a small fraction of
+    the parameters' own standard uncertainties (verified against full re-fits in the tests
+    and in ``benchmarks/bench_budget.py``).  :meth:`solve` returns None when the chord
+    iteration does not settle within ``max_iter`` steps, leaves the bounds or a flight cannot
+    be simulated; the caller then re-fits in full (:func:`refit`).
+
+    References
+    ----------
+    1. J. E. Dennis and R. B. Schnabel, *Numerical Methods for Unconstrained Optimization and
+       Nonlinear Equations*, SIAM 1996 (chord method: Newton's method with the derivative
+       held at the starting point, linearly convergent near the solution).
+
+    Parameters
+    ----------
+    result : FitResult
+        A converged fit.
+    exact_step : bool
+        Finish each re-solve with one Gauss–Newton step at the exact Jacobian (one
+        integration with sensitivities), which removes that offset; False leaves the chord
+        iteration's fixed point.
+    """
+
+    def __init__(self, result: FitResult, exact_step: bool = True):
+        old: Problem = result._state["problem"]
+        self.result = result
+        self.dm = get_drag_model(result.model)
+        self.theta0 = np.array(result._state["theta"], float)
+        self.re_med = result.diagnostics["reynolds_median"]
+        problem = Problem(list(old.tracks), result.specimen, result.conditions, self.dm,
+                          result.constants, result.lift, 0.0)  # fmt: skip
+        problem.names = old.names
+        problem.bounds = old.bounds
+        problem.set_state(masks=old.masks, sigmas=old.sigmas, phi=old.phi)
+        _r, jac, _sims, ok = problem.evaluate(self.theta0)
+        if not ok:
+            raise InputError("result: the fit's flights cannot be simulated at its optimum.")
+        q, rr = np.linalg.qr(jac)
+        #: (J₀ᵀJ₀)⁻¹J₀ᵀ, the chord step's matrix
+        self.step_matrix = np.linalg.solve(rr, q.T)
+        rinv = np.linalg.solve(rr, np.eye(rr.shape[0]))
+        #: standard uncertainty scale of each parameter (unit noise), for the stopping rule
+        self.scale = np.sqrt(np.sum(rinv * rinv, axis=1))
+        self.lo = np.array([b[0] for b in old.bounds], float)
+        self.hi = np.array([b[1] for b in old.bounds], float)
+        self.problem = problem
+        self.n_fit = len(self.dm.parameters)
+        #: finish every re-solve with one Gauss–Newton step at the exact Jacobian
+        self.exact_step = exact_step
+
+    def solve(self, *, times=None, positions=None, specimen=None, air: Air | None = None,
+              gravity: float | None = None, lift_coefficient: float | None = None,
+              max_iter: int = 12, tol: float = 1e-2) -> Refit | None:  # fmt: skip
+        """Re-solve with changed inputs; None when the fixed-Jacobian iteration fails.
+
+        Parameters
+        ----------
+        times : sequence of ndarray, optional
+            Each throw's sample times (same number of samples). [s]
+        positions : sequence of (ndarray, ndarray), optional
+            Each throw's observed (x, y). [m]
+        specimen, air, gravity, lift_coefficient :
+            As for :func:`refit`.
+        max_iter : int
+            Chord steps before giving up.
+        tol : float
+            Stop once no parameter moves by more than ``tol`` of its standard uncertainty. [-]
+        """
+        from fitdrag.physics.simulate import flight_coefficients
+
+        result = self.result
+        problem = self.problem
+        conditions = conditions_with(result.conditions, air, gravity)
+        sp = result.specimen if specimen is None else specimen
+        k, g_net, re_fac = flight_coefficients(sp, conditions)
+        for i, fm in enumerate(problem.models):
+            fm.k, fm.g_net, fm.re_fac = k, g_net, re_fac
+            fm.conditions = conditions
+            fm.t = np.array(problem.tracks[i].t if times is None else times[i], float)
+        if positions is None:
+            positions = [(tr.x, tr.y) for tr in problem.tracks]
+        for i, (x, y) in enumerate(positions):
+            problem.set_observations(i, x, y)
+        problem.fixed_lift = 0.0 if lift_coefficient is None else float(lift_coefficient)
+        problem.forget()
+        theta = self.theta0.copy()
+        for _ in range(max_iter):
+            res, ok = problem.residuals(theta)
+            if not ok:
+                return None
+            step = -(self.step_matrix @ res)
+            theta += step
+            if np.any(theta < self.lo) or np.any(theta > self.hi):
+                return None
+            if np.all(np.abs(step) <= tol * self.scale):
+                break
+        else:
+            return None
+        if self.exact_step:
+            # one Gauss–Newton step with the exact Jacobian at the chord's point removes the
+            # fixed Jacobian's second-order offset (quadratic convergence from there)
+            res, jac, _sims, ok = problem.evaluate(theta)
+            if not ok:
+                return None
+            jtj = jac.T @ jac
+            d = np.sqrt(np.diag(jtj))
+            d[d == 0] = 1.0
+            try:
+                theta = theta - np.linalg.solve(jtj / np.outer(d, d), (jac.T @ res) / d) / d
+            except np.linalg.LinAlgError:
+                return None
+            if np.any(theta < self.lo) or np.any(theta > self.hi):
+                return None
+        p_full = np.concatenate((theta[: self.n_fit], result.constants)).astype(float)
+        cd, _ = self.dm.kernel(self.re_med, p_full, np.zeros(max(p_full.size, 1)))
+        return Refit(cd=float(cd), values=theta, success=True)

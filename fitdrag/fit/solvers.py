@@ -229,12 +229,13 @@ def gauss_newton(problem, theta, bounds, max_iter: int = 12, tol: float = 1e-9):
     for _ in range(max_iter):
         if not ok:
             return theta, False
-        # normal equations with column scaling (P is small; J is well scaled after it)
-        scale = np.linalg.norm(jac, axis=0)
+        # normal equations with column scaling (P is small; J is well scaled after it), the
+        # scaled products formed from one JᵀJ rather than a scaled copy of J
+        jtj = jac.T @ jac
+        scale = np.sqrt(np.diag(jtj))
         scale[scale == 0] = 1.0
-        js = jac / scale
         try:
-            step = np.linalg.solve(js.T @ js, -(js.T @ res)) / scale
+            step = np.linalg.solve(jtj / np.outer(scale, scale), -(jac.T @ res) / scale) / scale
         except np.linalg.LinAlgError:
             return theta, False
         if np.all(np.abs(step) <= tol * (np.abs(theta) + 1e-3)):

@@ -92,6 +92,13 @@ class DragModel:
         grad = np.zeros(max(len(p), 1))
         return np.array([self.kernel(float(r), p, grad)[0] for r in re])
 
+    def __getstate__(self):
+        # the compiled callback is rebuilt on first use after unpickling (a cfunc does not
+        # pickle)
+        state = dict(self.__dict__)
+        state.pop("callback", None)
+        return state
+
     @functools.cached_property
     def callback(self):
         """The kernel wrapped as a C callback of fixed signature for the integrator."""

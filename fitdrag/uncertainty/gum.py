@@ -277,7 +277,9 @@ def coverage_factor(
     float
         k. [-]
     """
-    from scipy import stats
+    # scipy.special's quantile functions (what scipy.stats' norm.ppf and t.ppf evaluate,
+    # without their per-call overhead)
+    from scipy import special
 
     p = float(coverage_probability)
     if not 0.0 < p < 1.0:
@@ -290,10 +292,10 @@ def coverage_factor(
         raise InputError(f"dof: must be > 0 or inf, got {dof!r}.")
     q = 0.5 * (1.0 + p)
     if math.isinf(nu):
-        return float(stats.norm.ppf(q))
+        return float(special.ndtri(q))
     if truncate:
         nu = max(1.0, math.floor(nu))
-    return float(stats.t.ppf(q, nu))
+    return float(special.stdtrit(nu, q))
 
 
 @dataclass(frozen=True)
