@@ -208,7 +208,7 @@ class RefitSession:
 
     def solve(self, *, times=None, positions=None, specimen=None, air: Air | None = None,
               gravity: float | None = None, lift_coefficient: float | None = None,
-              max_iter: int = 12, tol: float = 1e-2) -> Refit | None:  # fmt: skip
+              max_iter: int = 12, tol: float = 0.3) -> Refit | None:  # fmt: skip
         """Re-solve with changed inputs; None when the fixed-Jacobian iteration fails.
 
         Parameters

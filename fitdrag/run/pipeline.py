@@ -520,6 +520,8 @@ def budget_and_checks(job: Job, model, inputs, stat, n_mc: int, *, adaptive=None
                 workers=default_workers() if workers is None else workers,
                 adaptive=unc.adaptive if adaptive is None else adaptive,
                 progress=progress,
+                # adaptive runs go on until the check below can tell (agree or differ)
+                until=lambda so_far: compare_with_gum(budget, so_far).status != "inconclusive",
             )  # fmt: skip
         except RuntimeError as exc:
             raise ConvergenceError(f"Monte Carlo: {exc}") from exc

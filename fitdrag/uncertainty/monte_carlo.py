@@ -206,6 +206,43 @@ class _Evaluator:
             )
 
     def __call__(self, rows: np.ndarray) -> np.ndarray:
+        return self.collect(self.submit(rows))
+
+    def submit(self, rows: np.ndarray):
+        """Start evaluating ``rows`` (in the pool: as a few big chunks per worker); a handle
+        for :meth:`collect`.  In-process evaluation happens at :meth:`collect`."""
+        if self.vectorized or self.pool is None:
+            return ("here", rows)
+        # big chunks (about eight per worker and batch) keep the per-chunk cost of the pool
+        # small; the next batch is submitted before this one is collected, so no worker
+        # idles at a batch's end
+        chunk = max(10, -(-rows.shape[0] // (8 * self.workers)))
+        futures = {self.pool.submit(_eval_block, rows[s : s + chunk]): s
+                   for s in range(0, rows.shape[0], chunk)}  # fmt: skip
+        return ("pool", rows.shape[0], futures)
+
+    def collect(self, handle) -> np.ndarray:
+        """The model values of a :meth:`submit` handle, in the order of its rows."""
+        if handle[0] == "here":
+            return self._here(handle[1])
+        _kind, n, futures = handle
+        out = np.empty(n)
+        from concurrent.futures import as_completed
+
+        for fut in as_completed(futures):
+            s = futures[fut]
+            res = fut.result()
+            out[s : s + res.size] = res
+            self.bar.update(res.size)
+        return out
+
+    def cancel(self, handle) -> None:
+        """Drop a submitted batch that is no longer needed."""
+        if handle is not None and handle[0] == "pool":
+            for fut in handle[2]:
+                fut.cancel()
+
+    def _here(self, rows: np.ndarray) -> np.ndarray:
         if self.vectorized:
             cols = {n: rows[:, j] for j, n in enumerate(self.names)}
             y = np.asarray(self.fn(cols), dtype=float)
@@ -216,24 +253,11 @@ class _Evaluator:
                 )
             self.bar.update(rows.shape[0])
             return y
-        if self.pool is None:
-            out = np.empty(rows.shape[0])
-            chunk = 50
-            for s in range(0, rows.shape[0], chunk):
-                out[s : s + chunk] = _eval_rows(self.fn, self.names, rows[s : s + chunk])
-                self.bar.update(min(chunk, rows.shape[0] - s))
-            return out
-        chunk = max(10, min(250, rows.shape[0] // (8 * self.workers) or 10))
-        starts = list(range(0, rows.shape[0], chunk))
-        futures = {self.pool.submit(_eval_block, rows[s : s + chunk]): s for s in starts}
         out = np.empty(rows.shape[0])
-        from concurrent.futures import as_completed
-
-        for fut in as_completed(futures):
-            s = futures[fut]
-            res = fut.result()
-            out[s : s + res.size] = res
-            self.bar.update(res.size)
+        chunk = 50
+        for s in range(0, rows.shape[0], chunk):
+            out[s : s + chunk] = _eval_rows(self.fn, self.names, rows[s : s + chunk])
+            self.bar.update(min(chunk, rows.shape[0] - s))
         return out
 
     def close(self) -> None:
@@ -266,6 +290,7 @@ def monte_carlo(
     progress: bool = False,
     keep_values: bool = False,
     unit: str = "",
+    until: Callable[[MonteCarloResult], bool] | None = None,
 ) -> MonteCarloResult:
     """Propagate the input distributions through ``fn`` by the Monte Carlo method (JCGM 101).
 
@@ -303,6 +328,11 @@ def monte_carlo(
         Show a progress bar (tqdm, on stderr).
     keep_values : bool
         Keep the model values in the result (``values``).
+    until : callable, optional
+        Adaptive only: a further condition for stopping, ``until(result so far) -> bool``,
+        asked once the results are stable (JCGM 101 7.9.4); e.g. that the check against the
+        GUM interval is conclusive (:func:`compare_with_gum`).  The run goes on, batch by
+        batch up to ``trials``, while it returns False.
 
     Returns
     -------
@@ -334,18 +364,48 @@ def monte_carlo(
     failures = 0
     converged: bool | None = None
     batch_stats: list[tuple[float, float, float, float]] = []
+
+    def result(values, done_converged) -> MonteCarloResult:
+        u = float(values.std(ddof=1))
+        return MonteCarloResult(
+            trials=int(values.size),
+            failures=failures,
+            mean=float(values.mean()),
+            standard_uncertainty=u,
+            coverage_probability=p,
+            interval=symmetric_interval(values, p),
+            interval_standard_error=interval_standard_error(values, p),
+            adaptive=adaptive,
+            converged=done_converged,
+            tolerance=numerical_tolerance(u, n_dig),
+            elapsed=time.perf_counter() - t0,
+            workers=ev.workers,
+            values=values if keep_values else None,
+        )
+
+    def draw(done):
+        m = min(batch_size if adaptive else trials, trials - done)
+        if m <= 0:
+            return None
+        rows, extra = _draw(inputs, stat, rng, m)
+        return m, extra, ev.submit(rows)
+
+    done = 0
+    pending = None
     try:
-        done = 0
-        while done < trials:
-            m = batch_size if adaptive else trials
-            m = min(m, trials - done)
-            rows, extra = _draw(inputs, stat, rng, m)
-            y = ev(rows) + extra
+        current = draw(0)
+        while current is not None:
+            m, extra, handle = current
+            # the next batch is drawn (in the same order as without look-ahead, so the
+            # values do not depend on it) and started before this one is collected
+            pending = draw(done + m) if adaptive else None
+            y = ev.collect(handle) + extra
             good = np.isfinite(y)
             failures += int(m - good.sum())
             y = y[good]
             chunks.append(y)
             done += m
+            current, pending = pending, None
             if not adaptive:
                 break
             if y.size >= j_min:
@@ -357,12 +417,15 @@ def monte_carlo(
                 s = arr.std(axis=0, ddof=1) / math.sqrt(h)
                 all_y = np.concatenate(chunks)
                 delta = numerical_tolerance(float(all_y.std(ddof=1)), n_dig)
-                if np.all(2.0 * s <= delta):
+                if np.all(2.0 * s <= delta) and (until is None or until(result(all_y, True))):
                     converged = True
+                    ev.cancel(current)
+                    current = None
                     break
         if adaptive and converged is None:
             converged = False
     finally:
+        ev.cancel(pending)
         ev.close()
         bar.close()
     values = np.concatenate(chunks) if chunks else np.empty(0)
@@ -371,22 +434,7 @@ def monte_carlo(
             f"Monte Carlo: only {values.size} of {done} model evaluations succeeded "
             f"({failures} failed); too few for a coverage interval."
         )
-    u = float(values.std(ddof=1))
-    return MonteCarloResult(
-        trials=int(values.size),
-        failures=failures,
-        mean=float(values.mean()),
-        standard_uncertainty=u,
-        coverage_probability=p,
-        interval=symmetric_interval(values, p),
-        interval_standard_error=interval_standard_error(values, p),
-        adaptive=adaptive,
-        converged=converged,
-        tolerance=numerical_tolerance(u, n_dig),
-        elapsed=time.perf_counter() - t0,
-        workers=ev.workers,
-        values=values if keep_values else None,
-    )
+    return result(values, converged)
 
 
 @dataclass(frozen=True)
