@@ -1,6 +1,8 @@
-"""Tests of fitdrag.physics.drag_model: a drag law's validity range and its constants.
+"""Tests of fitdrag.physics.drag_model: a drag law's validity range and its constants, and
+its callback called by address.
 
-regression only: the messages and the range rule are this project's own.
+Labels: regression (the messages and the range rule are this project's own),
+closed-form/independent (the callback against the kernel).
 """
 
 from __future__ import annotations
@@ -11,7 +13,7 @@ import numba
 import numpy as np
 import pytest
 
-from fitdrag.physics.drag_model import DragModel
+from fitdrag.physics.drag_model import DragModel, call_law
 
 
 def _exact(message: str) -> str:
@@ -56,3 +58,35 @@ def test_re_range_and_constants_errors():
         "DragModel(constants_from_re=...) when registering it."
     )):  # fmt: skip
         no_rule.constants_for([1.0])
+
+
+@numba.njit
+def _sum_through_address(address, re, p, grad, dre):
+    s = 0.0
+    for i in range(5):
+        s += call_law(address, re * (1.0 + i), p, grad, dre)
+    return s
+
+
+def test_call_law_by_address_equals_the_kernel():
+    """closed-form/independent: a law called from compiled code through its callback's
+    address (as the integrators call it) returns the kernel's own C_d, ∂C_d/∂p and dC_d/dRe
+    (the kernel called from Python) for a law of the test and a built-in one; the callback
+    is rebuilt after pickling (a compiled callback is not picklable)."""
+    import pickle
+
+    from fitdrag.physics.registry import get_drag_model
+
+    for model, p in ((_linear_model("linear-address"), np.array([0.4, 0.1, 2e4])),
+                     (get_drag_model("power-law"), np.array([0.5, -0.2, 3e4]))):  # fmt: skip
+        grad, dre = np.zeros(3), np.zeros(1)
+        got = _sum_through_address(model.callback.address, 1e4, p, grad, dre)
+        g_ref = np.zeros(3)
+        want = sum(model.kernel(1e4 * (1.0 + i), p, g_ref)[0] for i in range(5))
+        assert got == pytest.approx(want, rel=1e-14)
+        # the last call's derivatives (Re = 5e4)
+        cd, d_re = model.kernel(5e4, p, g_ref)
+        np.testing.assert_allclose(grad[:2], g_ref[:2], rtol=1e-14)
+        assert dre[0] == pytest.approx(d_re, rel=1e-14)
+    copy = pickle.loads(pickle.dumps(model))  # the built-in law (the test's has a lambda)
+    assert "callback" not in copy.__dict__ and copy.callback.address != 0

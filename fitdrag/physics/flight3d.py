@@ -50,7 +50,7 @@ from numba import types
 
 from fitdrag.errors import InputError
 from fitdrag.physics import _dormand_prince as _dp
-from fitdrag.physics.drag_model import CD_SIGNATURE
+from fitdrag.physics.drag_model import call_law
 from fitdrag.physics.forces import Conditions
 from fitdrag.physics.simulate import (
     Launch,
@@ -74,7 +74,7 @@ def _rhs3(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, w, ax_, re_fac, n_par, gra
     sz = ax_[2]
     q = math.sqrt(ux * ux + uy * uy + uz * uz)
     re = re_fac * q
-    cd = cd_fn(re, p, grad, dre)
+    cd = call_law(cd_fn, re, p, grad, dre)
     dcd_dre = dre[0]
     # c = ŝ × u
     cx = sy * uz - sz * uy
@@ -135,17 +135,16 @@ def _rhs3(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, w, ax_, re_fac, n_par, gra
 _F64 = types.float64
 _VEC = types.float64[::1]
 _MAT = types.float64[:, ::1]
-_CD_FUNCTION = types.FunctionType(CD_SIGNATURE)
 _INTEGRATE3_SIGNATURE = types.UniTuple(types.int64, 2)(
-    _CD_FUNCTION, _F64, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _VEC,
+    types.int64, _F64, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _VEC,
     _VEC, _F64, types.int64, _F64, _F64, types.int64, _MAT, _MAT, types.float64[:, :, ::1],
     _MAT, _VEC, _MAT,
 )  # fmt: skip
 
 
-# As in fitdrag.physics.simulate: the drag law arrives as a fixed-signature C callback, so
-# the integrator is compiled once (on first use, see _compiled_integrator_3d) and cached on
-# disk for every drag model.
+# As in fitdrag.physics.simulate: the drag law arrives as the address of its fixed-signature
+# C callback, so the integrator is compiled once (on first use, see _compiled_integrator_3d)
+# and cached on disk for every drag model.
 def _integrate3(
     cd_fn, t0, t_out, s0, p, n_fit, cl, fit_lift, k, g_net, wind, axis, re_fac, n_par,
     rtol, atol, max_steps, pos, vel, sens, A, E, P,
@@ -494,7 +493,7 @@ class FlightModel3D:
         vel = np.empty((n, 3))
         sens = np.empty((n, 6, max(n_par, 1)))
         status, steps = _compiled_integrator_3d()(
-            self.model.callback, self.t0, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
+            self.model.callback.address, self.t0, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
             self.g_net, self.wind, self.spin_axis, self.re_fac, n_par, self.rtol, self.atol,
             self.max_steps, pos, vel, sens, _dp.A, _dp.E, _dp.P,
         )  # fmt: skip

@@ -35,7 +35,7 @@ from numba import types
 
 from fitdrag.errors import InputError
 from fitdrag.physics import _dormand_prince as _dp
-from fitdrag.physics.drag_model import CD_SIGNATURE
+from fitdrag.physics.drag_model import call_law
 from fitdrag.physics.forces import Conditions, drag_factor, net_gravity
 from fitdrag.physics.registry import get_drag_model
 
@@ -52,7 +52,7 @@ def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, 
     uy = y[3]
     q = math.sqrt(ux * ux + uy * uy)
     re = re_fac * q
-    cd = cd_fn(re, p, grad, dre)
+    cd = call_law(cd_fn, re, p, grad, dre)
     dcd_dre = dre[0]
     out[0] = y[2]
     out[1] = y[3]
@@ -98,17 +98,18 @@ def _rhs(cd_fn, y, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par, grad, 
 _F64 = types.float64
 _VEC = types.float64[::1]
 _MAT = types.float64[:, ::1]
-_CD_FUNCTION = types.FunctionType(CD_SIGNATURE)
 _INTEGRATE_SIGNATURE = types.UniTuple(types.int64, 2)(
-    _CD_FUNCTION, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _F64, _F64,
+    types.int64, _VEC, _VEC, _VEC, types.int64, _F64, types.boolean, _F64, _F64, _F64, _F64,
     types.int64, _F64, _F64, types.int64, _MAT, _MAT, types.float64[:, :, ::1], _MAT, _VEC,
     _VEC, _VEC, _MAT,
 )  # fmt: skip
 
 
-# The drag law arrives as a first-class function (a C callback with a fixed signature), so
-# that the compiled integrator is cached once on disk for every drag model.  It is compiled
-# (or loaded from the on-disk cache) on first use, not at import: see _compiled_integrator.
+# The drag law arrives as the address of its C callback of fixed signature (called through
+# fitdrag.physics.drag_model.call_law), so that the compiled integrator is cached once on
+# disk for every drag model and a call passes only numbers and arrays (no per-call typing of
+# a function object).  It is compiled (or loaded from the on-disk cache) on first use, not
+# at import: see _compiled_integrator.
 def _integrate(
     cd_fn, t_out, s0, p, n_fit, cl, fit_lift, k, g_net, wind, re_fac, n_par,
     rtol, atol, max_steps, pos, vel, sens, A, B, C, E, P,
@@ -379,7 +380,7 @@ class FlightModel:
         vel = np.empty((n, 2))
         sens = np.empty((n, 2, max(n_par, 1)))
         status, steps = _compiled_integrator()(
-            self.model.callback, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
+            self.model.callback.address, self.t, s0, p, self.n_fit, cl, self.fit_lift, self.k,
             self.g_net, self.conditions.wind, self.re_fac, n_par, self.rtol, self.atol,
             self.max_steps, pos, vel, sens, _A, _B, _C, _E, _P,
         )  # fmt: skip
