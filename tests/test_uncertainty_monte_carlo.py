@@ -182,3 +182,26 @@ def test_gum_check_rarely_reports_differ_for_an_exact_gum_interval():
     runs = [monte_carlo(f, q, trials=1000, seed=s, vectorized=True) for s in range(300)]
     false = sum(compare_with_gum(b, mc).status == "differ" for mc in runs)
     assert false / len(runs) <= 0.03
+
+
+def test_adaptive_monte_carlo_waits_for_its_until_condition():
+    """closed-form/independent: y = x, x ~ N(0, 1), batches of 2000 with n_dig = 1
+    stabilise after two batches (test_adaptive_monte_carlo_stops); a further condition that
+    asks for 8000 values is asked only at stable points, keeps the run going past 8000 to the
+    next stable batch, and the values are those of the same seed without the condition (the
+    look-ahead batch does not change the draws)."""
+    q = [InputQuantity("x", 0.0, 1.0)]
+    seen = []
+
+    def enough(so_far):
+        seen.append(so_far.trials)
+        return so_far.trials >= 8000
+
+    kw = dict(trials=100_000, adaptive=True, batch_size=2000, n_dig=1, seed=2,
+              vectorized=True, keep_values=True)  # fmt: skip
+    plain = monte_carlo(lambda v: v["x"], q, **kw)
+    mc = monte_carlo(lambda v: v["x"], q, until=enough, **kw)
+    assert plain.converged is True and plain.trials == seen[0] < 8000
+    assert mc.converged is True and mc.trials == seen[-1] >= 8000 and mc.trials % 2000 == 0
+    assert all(t < 8000 for t in seen[:-1])
+    np.testing.assert_array_equal(mc.values[: plain.trials], plain.values)
