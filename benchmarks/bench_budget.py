@@ -6,9 +6,18 @@ uncertainties of the job template.  Prints the median time of one re-fit, the ti
 GUM budget, the wall time of the Monte Carlo run on the given number of processes, and the
 GUM and Monte Carlo results side by side.
 
-Target (issue 5): 10 000 Monte Carlo trials in under a minute on 2 cores.
+Then the three-throw sample (sample_tracks/training_ball.toml) as ``fitdrag run`` measures
+it: the notebook baseline fit of its first throw (lmfit over solve_ivp, as in
+bench_fit.py) timed in the same run; the fixed-Jacobian re-fits checked against full re-fits
+on a sample of trials; and the adaptive Monte Carlo procedure of JCGM 101 7.9, up to
+``--sample-trials`` trials on ``--workers`` processes, run until its check against the GUM
+interval is conclusive (agree or differ), with its wall time in notebook-fit times.
+
+Targets (issue 5, issue 15): 10 000 Monte Carlo trials in under a minute on 2 cores; 10⁵
+re-fits of the three-throw sample in ≤ 2 500 notebook-fit times with a conclusive check.
 
 Usage:  python benchmarks/bench_budget.py [--trials 10000] [--workers 2] [--points 400]
+        [--sample-trials 100000] [--verify 200]
 """
 
 from __future__ import annotations
@@ -28,6 +37,10 @@ def main() -> None:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--points", type=int, default=400)
     ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--sample-trials", type=int, default=100_000,
+                    help="cap of the adaptive Monte Carlo run of the three-throw sample (0: skip)")
+    ap.add_argument("--verify", type=int, default=200,
+                    help="trials re-fitted both ways (fixed Jacobian and full)")
     args = ap.parse_args()
 
     from fitdrag import Air, Sphere, Track, fit_tracks
@@ -125,6 +138,90 @@ def main() -> None:
     print(f"  JCGM 101 8.2 check, n_dig=2: d_low {check.d_low:.2g}, d_high {check.d_high:.2g}, "
           f"delta {check.tolerance:.2g} -> {check.status}")  # fmt: skip
     print(f"  JCGM 101 8.2 check, n_dig=1: delta {check1.tolerance:.2g} -> {check1.status}")
+    if args.sample_trials:
+        print()
+        three_throw_sample(args)
+
+
+def three_throw_sample(args) -> None:
+    """The three-throw sample: notebook baseline, fixed-Jacobian check, adaptive Monte Carlo."""
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    sys.path.insert(0, str(root / "tests"))
+    sys.path.insert(0, str(root / "benchmarks"))
+    import reference as ref
+    from bench_fit import reference_fit
+
+    from fitdrag.run import pipeline
+    from fitdrag.run.job_file import load_job
+
+    job = load_job(root / "sample_tracks" / "training_ball.toml")
+    captured = {}
+    real = pipeline.budget_and_checks
+
+    def capture(job, model, inputs, stat, n_mc, **kw):
+        # the run's own measurement model and inputs, kept for the check below
+        captured.update(model=model, inputs=inputs, stat=stat)
+        return real(job, model, inputs, stat, n_mc, **kw)
+
+    pipeline.budget_and_checks = capture
+    try:
+        t0 = time.perf_counter()
+        meas = pipeline.measure(job, monte_carlo=args.sample_trials, adaptive=True,
+                                seed=args.seed, workers=args.workers)  # fmt: skip
+        t_run = time.perf_counter() - t0
+    finally:
+        pipeline.budget_and_checks = real
+    fit, mc, check, budget = meas.fit, meas.monte_carlo, meas.gum_check, meas.budget
+    model, inputs = captured["model"], captured["inputs"]
+
+    # the notebook baseline on the sample's first throw, timed in this run
+    tr = meas.tracks[0]
+    sp = fit.specimen
+    body = ref.Body(sp.mass, sp.area, sp.volume, sp.added_mass_coefficient)
+    rho = fit.conditions.air.density
+    reference_fit(tr.t, tr.x, tr.y, body, rho, 1e-9)
+    nb = []
+    for _ in range(3):
+        s0 = time.perf_counter()
+        reference_fit(tr.t, tr.x, tr.y, body, rho, 1e-9)
+        nb.append(time.perf_counter() - s0)
+    t_nb = statistics.median(nb)
+
+    # fixed-Jacobian re-fits against full re-fits on a sample of trials
+    rng = np.random.default_rng(args.seed + 1)
+    rows = [{q.name: float(q.sample(rng, 1)[0]) for q in inputs} for _ in range(args.verify)]
+    fast, full, t_fast, t_full = [], [], 0.0, 0.0
+    for v in rows:
+        s0 = time.process_time()
+        fast.append(model(v))
+        t_fast += time.process_time() - s0
+        s0 = time.process_time()
+        full.append(model.full(v))
+        t_full += time.process_time() - s0
+    diff = np.abs(np.array(fast) - np.array(full))
+    u_c = budget.combined_standard_uncertainty
+
+    print(f"three-throw sample ({job.path.name}): Cd {fit.cd:.6f}, u(Cd) statistical "
+          f"{fit.u_cd:.2g}, GUM u_c {u_c:.4g} ({len(inputs)} inputs)")  # fmt: skip
+    print(f"  notebook baseline fit of throw 1 (lmfit over solve_ivp): {t_nb:.3f} s")
+    print(f"  re-fit check on {len(rows)} trials: fixed Jacobian {1e3 * t_fast / len(rows):.2f} "
+          f"ms CPU, full re-fit {1e3 * t_full / len(rows):.2f} ms CPU per trial; largest "
+          f"|dCd| {diff.max():.2g} = {diff.max() / fit.u_cd:.3f} u(Cd) statistical = "
+          f"{diff.max() / check.tolerance:.3f} of the tolerance delta {check.tolerance:.2g}")  # fmt: skip
+    print(f"  adaptive Monte Carlo (JCGM 101 7.9, cap {args.sample_trials}): {mc.trials} re-fits "
+          f"({mc.failures} failed) in {mc.elapsed:.1f} s on {mc.workers} process(es), "
+          f"{1e3 * mc.elapsed / max(mc.trials, 1):.3f} ms per re-fit; stable: {mc.converged}")  # fmt: skip
+    per_1e5 = mc.elapsed / max(mc.trials, 1) * 1e5
+    print(f"  10^5 re-fits at this rate: {per_1e5:.0f} s = {per_1e5 / t_nb:.0f} notebook-fit "
+          f"times (target <= 2500); whole run {t_run:.1f} s")  # fmt: skip
+    lo, hi = mc.interval
+    glo, ghi = check.gum_interval
+    print(f"  95 % intervals: MC [{lo:.6f}, {hi:.6f}] GUM [{glo:.6f}, {ghi:.6f}]; d_low "
+          f"{check.d_low:.2g}, d_high {check.d_high:.2g}, delta {check.tolerance:.2g} -> "
+          f"{check.status}")  # fmt: skip
 
 
 if __name__ == "__main__":
