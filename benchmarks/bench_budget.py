@@ -37,10 +37,18 @@ def main() -> None:
     ap.add_argument("--workers", type=int, default=2)
     ap.add_argument("--points", type=int, default=400)
     ap.add_argument("--seed", type=int, default=1)
-    ap.add_argument("--sample-trials", type=int, default=100_000,
-                    help="cap of the adaptive Monte Carlo run of the three-throw sample (0: skip)")
-    ap.add_argument("--verify", type=int, default=200,
-                    help="trials re-fitted both ways (fixed Jacobian and full)")
+    ap.add_argument(
+        "--sample-trials",
+        type=int,
+        default=100_000,
+        help="cap of the adaptive Monte Carlo run of the three-throw sample (0: skip)",
+    )
+    ap.add_argument(
+        "--verify",
+        type=int,
+        default=200,
+        help="trials re-fitted both ways (fixed Jacobian and full)",
+    )
     args = ap.parse_args()
 
     from fitdrag import Air, Sphere, Track, fit_tracks
