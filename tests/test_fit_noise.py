@@ -175,3 +175,33 @@ def test_noise_floor_estimates_white_noise_on_a_parabola():
                          5.0 * t - 4.9 * t**2 + rng.normal(0, 2e-3, t.size))  # fmt: skip
     assert sx == pytest.approx(1e-3, rel=0.05)
     assert sy == pytest.approx(2e-3, rel=0.05)
+
+
+def test_reml_ar1_from_a_nearby_start_finds_the_same_coefficients():
+    """regression: the estimate does not depend on where the search starts — from zero,
+    from near the answer (as in a fit's later iterations, which search ± 0.1 about the
+    start first), or 0.15 away from it on both channels (the window's edge sends the search
+    back to the whole range, and the rounds over the channels go on until they settle) —
+    to 5e-4, far inside its standard error √((1 − φ²)/n) ≈ 0.03."""
+    rng = np.random.default_rng(9)
+    n, phi = 600, 0.6
+    t = np.linspace(0.0, 1.0, n)
+    design = np.column_stack((np.ones(n), t, t * t))
+    blocks, r_all = [], []
+    for axis in (0, 1):
+        e = np.empty(n)
+        e[0] = rng.normal()
+        for i in range(1, n):
+            e[i] = phi * e[i - 1] + math.sqrt(1.0 - phi * phi) * rng.normal()
+        coef, *_ = np.linalg.lstsq(design, e, rcond=None)
+        r_all.append(e - design @ coef)
+        blocks.append((slice(axis * n, (axis + 1) * n), axis, np.ones(n - 1, int)))
+    j0 = np.zeros((2 * n, 6))
+    j0[:n, :3] = -design
+    j0[n:, 3:] = -design
+    r0 = np.concatenate(r_all)
+    ref_phi = reml_ar1(r0, j0, blocks, (0.0, 0.0))
+    assert ref_phi == pytest.approx((phi, phi), abs=0.06)
+    for start in ((ref_phi[0] + 0.03, ref_phi[1] - 0.02), (ref_phi[0] - 0.15, ref_phi[1] + 0.15)):
+        got = reml_ar1(r0, j0, blocks, start)
+        np.testing.assert_allclose(got, ref_phi, atol=5e-4)

@@ -75,7 +75,8 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
 
     with S the minimum whitened sum of squares of the linearised problem, d the frame gap
     of each whitened row and J̃ the whitened Jacobian (noise levels held at their current
-    estimates).  Minimised per channel in turn over φ ∈ (−0.98, 0.98).  One variance is
+    estimates).  Minimised per channel in turn over φ ∈ (−0.98, 0.98), in rounds until no
+    coefficient moves by more than 2e-4.  One variance is
     profiled over all channels while φ is per channel — an approximation to the full
     restricted likelihood, adequate because the weights already equalise the channels' noise
     levels.  A channel is an axis of a track (x, y) or of a camera's image (u, v, diameter).
@@ -161,7 +162,7 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
         ld = 2.0 * float(np.sum(np.log(low.diagonal())))
         return (n - p) * math.log(ss) + logdet + fixed_logdet + ld
 
-    for _round in range(2):
+    for _round in range(12):
         before = list(phi)
         for axis in range(n_ch):
             fixed = np.zeros((p + 1, p + 1))
@@ -171,15 +172,25 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
                     m, ld = channel(other, phi[other])
                     fixed += m
                     fixed_logdet += ld
-            out = minimize_scalar(
-                objective, bounds=(-0.98, 0.98), args=(axis, fixed, fixed_logdet),
-                method="bounded", options={"xatol": 1e-4},
-            )  # fmt: skip
-            phi[axis] = float(out.x)
-        # a second round only when the first moved a coefficient by more than 1e-3 (the
-        # channels couple only through the shared variance: a smaller move changes the others'
-        # optima by far less than the 1e-4 tolerance)
-        if max(abs(a - b) for a, b in zip(phi, before)) <= 1e-3:
+            args = (axis, fixed, fixed_logdet)
+            # from a non-zero start (a fit's later iterations) first within ± 0.1 of it; the
+            # whole range again when the minimum lands on that window's edge
+            lo, hi = max(-0.98, phi[axis] - 0.1), min(0.98, phi[axis] + 0.1)
+            x = None
+            if phi[axis] != 0.0:
+                out = minimize_scalar(objective, bounds=(lo, hi), args=args, method="bounded",
+                                      options={"xatol": 1e-4})  # fmt: skip
+                x = float(out.x)
+                if (x - lo < 1e-3 and lo > -0.98) or (hi - x < 1e-3 and hi < 0.98):
+                    x = None
+            if x is None:
+                out = minimize_scalar(objective, bounds=(-0.98, 0.98), args=args,
+                                      method="bounded", options={"xatol": 1e-4})  # fmt: skip
+                x = float(out.x)
+            phi[axis] = x
+        # rounds over the channels until none moves by more than 2e-4 (the channels couple
+        # through the shared variance, so one round from a distant start is not enough)
+        if max(abs(a - b) for a, b in zip(phi, before)) <= 2e-4:
             break
     return tuple(phi)
 
