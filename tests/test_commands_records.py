@@ -1,4 +1,4 @@
-"""Tests of the ``fitdrag records`` command (list, show, export)."""
+"""Tests of the ``fitdrag records`` command (list, show, export, verify)."""
 
 from __future__ import annotations
 
@@ -29,6 +29,7 @@ def db_path(tmp_path):
         input_hashes={"/d/t1.csv": "0" * 64},
         job_text="# synthetic job\n",
         issued_at=when,
+        approved_by="R. Checker",
         summary={
             "specimen_id": "SYN-7",
             "drag_coefficient": 0.4712,
@@ -37,7 +38,7 @@ def db_path(tmp_path):
             "decision": "pass",
         },
     )
-    db.issue(result={}, input_hashes={}, issued_at=when, replaces=a.number)
+    db.issue(result={}, input_hashes={}, issued_at=when, replaces=a.number, reason="typo")
     return path
 
 
@@ -45,9 +46,11 @@ def test_list(db_path, capsys):
     """regression: one line per record with the replacement noted."""
     assert _run(["records", "--records", str(db_path), "list"]) == 0
     out = capsys.readouterr().out.splitlines()
-    assert out[1].startswith("FD-2026-000001") and "SYN-7" in out[1] and "0.4712" in out[1]
-    assert "[replaced by FD-2026-000002]" in out[1]
-    assert "(replaces FD-2026-000001)" in out[2]
+    assert out[0] == f"records: {db_path} (--records)"
+    assert out[2].startswith("FD-2026-000001") and "SYN-7" in out[2] and "0.4712" in out[2]
+    assert "R. Checker" in out[2]  # who released it
+    assert "[replaced by FD-2026-000002]" in out[2]
+    assert "(replaces FD-2026-000001: typo)" in out[3]
     assert _run(["records", "list", "--records", str(db_path)]) == 0  # option after the action
     assert capsys.readouterr().out.splitlines() == out
 
@@ -82,3 +85,46 @@ def test_missing_database(tmp_path):
     with pytest.raises(FileNotFoundError, match=r"records: no records database at"):
         _run(["records", "--records", str(missing), "list"])
     assert not missing.exists()
+
+
+def test_lab_database_is_the_default(tmp_path, monkeypatch, capsys):
+    """regression: without --records the command reads the laboratory's database named by
+    FITDRAG_RECORDS."""
+    lab = tmp_path / "lab.sqlite"
+    Records(lab).issue(result={}, input_hashes={}, approved_by="A")
+    monkeypatch.setenv("FITDRAG_RECORDS", str(lab))
+    assert _run(["records", "list"]) == 0
+    out = capsys.readouterr().out
+    assert f"records: {lab} (laboratory database, from FITDRAG_RECORDS)" in out
+
+
+def test_hostile_text_is_shown_escaped(tmp_path, capsys):
+    """regression: terminal escape codes and a right-to-left override stored in a record are
+    printed as \\u escapes, never raw (common practice, no source)."""
+    path = tmp_path / "r.sqlite"
+    Records(path).issue(result={}, input_hashes={},
+                        summary={"specimen_id": "X\x1b[2J\u202eevil"})  # fmt: skip
+    assert _run(["records", "--records", str(path), "list"]) == 0
+    out = capsys.readouterr().out
+    assert "\x1b" not in out and "\u202e" not in out
+    assert "X\\u001b[2J\\u202eevil" in out
+    assert cmd.shown("plain") == "plain" and cmd.shown(None) == "-"
+
+
+def test_verify_exit_codes(db_path, capsys):
+    """regression: verify exits 0 on an intact database and 7 naming the altered record."""
+    import sqlite3
+
+    assert _run(["records", "--records", str(db_path), "verify"]) == 0
+    assert "records intact: 2 record(s), 0 file(s)" in capsys.readouterr().out
+    con = sqlite3.connect(db_path)
+    con.execute("DROP TRIGGER certificates_never_updated")
+    con.execute("UPDATE certificates SET drag_coefficient = 0.45 WHERE seq = 1")
+    con.commit()
+    con.close()
+    assert _run(["records", "--records", str(db_path), "verify"]) == 7
+    out = capsys.readouterr().out
+    assert "records NOT intact: 2 problem(s)" in out
+    assert "  database: the trigger certificates_never_updated that refuses changes" in out
+    assert ("  FD-2026-000001: altered: its content no longer matches its record hash"
+            in out)  # fmt: skip

@@ -396,10 +396,11 @@ def test_track_csv_needs_the_camera_distance_and_out_of_plane_uncertainty(job_di
     text += '\n[[throws]]\ntrack = "throw1.csv"\n'
     job = load_job(_write(job_dir, text))
     assert job.camera.distance.value == pytest.approx(3.0)
-    assert job.camera.distance.uncertainty == 0.05
+    # the bare 0.05 beside "300 cm" is in cm (the unit of its value): 0.0005 m
+    assert job.camera.distance.uncertainty == pytest.approx(0.0005, rel=1e-12)
     assert job.camera.out_of_plane_uncertainty == pytest.approx(0.25)
     q = {x.name: x for x in job.input_quantities()}
-    assert q["camera_distance"].standard_uncertainty == 0.05
+    assert q["camera_distance"].standard_uncertainty == pytest.approx(0.0005, rel=1e-12)
     assert [q[f"out_of_plane_angle_{k}"].standard_uncertainty for k in (1, 2)] == [
         pytest.approx(0.25), pytest.approx(0.25)]  # fmt: skip
     assert q["out_of_plane_angle_1"].value == 0.0 and "out_of_plane_angle" not in q
@@ -551,3 +552,43 @@ def test_air_speed_viscosity_and_lift_keys(job_dir):
     with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: \[air\] viscosity_uncertainty: "
                        r"given without viscosity; add viscosity or remove it\.$"):  # fmt: skip
         load_job(_write(job_dir, lone))
+
+
+def test_bare_uncertainty_takes_the_unit_of_its_value(job_dir):
+    """closed-form/independent: "every *_uncertainty is in the same unit as its value": a
+    bare number beside "24.00 g" is in grams (pint: 0.02 g = 2e-5 kg; 0.5 hPa = 50 Pa;
+    0.2 mm = 2e-4 m); a value without a unit keeps SI."""
+    text = _edit("mass = 0.0027 ", 'mass = "2.70 g" ')
+    text = _edit("mass_uncertainty = 0.00001 ", "mass_uncertainty = 0.02 ", text)
+    text = _edit("pressure = 100800 ", 'pressure = "1008 hPa" ', text)
+    text = _edit("pressure_uncertainty = 50 ", "pressure_uncertainty = 0.5 ", text)
+    text = _edit("diameter = 0.040 ", 'diameter = "40 mm" ', text)
+    text = _edit("diameter_uncertainty = 0.00005 ", 'diameter_uncertainty = "0.2" ', text)
+    job = load_job(_write(job_dir, text))
+    assert job.specimen.mass.uncertainty == pytest.approx(2e-5, rel=1e-12)
+    assert job.air.pressure.uncertainty == pytest.approx(50.0, rel=1e-12)
+    assert job.specimen.diameter.uncertainty == pytest.approx(2e-4, rel=1e-12)
+    assert job.air.temperature.uncertainty == 0.3  # no unit on the value: SI as before
+
+
+def test_implausibly_large_relative_uncertainty_needs_confirmation(job_dir):
+    """regression: 0.02 kg beside a mass of 24 g (an uncertainty in kg beside grams: 83 %) is
+    refused, naming the line and the way to confirm it; confirmed, it is taken."""
+    text = _edit("mass = 0.0027 ", "mass = 0.024 ")
+    text = _edit("mass_uncertainty = 0.00001 ", "mass_uncertainty = 0.02 ", text)
+    n = _line(text, "mass_uncertainty")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {n}: [specimen] mass_uncertainty: 0.02 kg is 83 % of the mass 0.024 kg "
+        f"(more than 10 %): a unit slip? A bare number is in the unit of its value; write e.g. "
+        f'"0.02 g". If it is right, confirm it with large_uncertainty_confirmed = true in '
+        f"[specimen]."
+    )
+    text = _edit("[specimen]\n", "[specimen]\nlarge_uncertainty_confirmed = true\n", text)
+    text = _edit("mass_uncertainty = 0.02 ", "mass_uncertainty = 0.012 ", text)
+    assert load_job(_write(job_dir, text)).specimen.mass.uncertainty == 0.012
+    text = _edit("diameter_uncertainty = 0.00005 ", "diameter_uncertainty = 0.005 ")
+    with pytest.raises(ValueError, match=r"\[specimen\] diameter_uncertainty: 0.005 m is 12 % "
+                       r"of the diameter 0.04 m"):  # fmt: skip
+        load_job(_write(job_dir, text))

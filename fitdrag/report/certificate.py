@@ -125,11 +125,18 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         L.paragraph(f"Accreditation: {lab.accreditation}", size=8)
     L.space(0.12)
     L.paragraph(TITLE, size=13, weight="bold")
-    L.rows([("Certificate number", cert.number if cert else "—"),
-            ("Date of issue", _date(cert.issued_at if cert else None))])  # fmt: skip
+    if cert and cert.draft:
+        L.rows([("Certificate number", "none: DRAFT for review, not a certificate"),
+                ("Drafted", _date(cert.issued_at))])  # fmt: skip
+    else:
+        L.rows([("Certificate number", cert.number if cert else "—"),
+                ("Date of issue", _date(cert.issued_at if cert else None))])  # fmt: skip
+    if cert and cert.record_hash:
+        L.paragraph(f"Record hash (SHA-256): {cert.record_hash}", size=7.0)
     if cert and cert.replaces:
         L.paragraph(
-            f"This certificate replaces certificate {cert.replaces}, which is withdrawn.",
+            f"This certificate replaces certificate {cert.replaces}, which is withdrawn"
+            + (f" (reason: {cert.reason})." if cert.reason else "."),
             size=8.5,
             weight="bold",
         )
@@ -406,7 +413,9 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     def signatures(fig, y):
         half = BODY_W / 2
         for i, (role, name) in enumerate(
-            (("Tested by", test.operator), ("Approved by", test.approved_by or ""))
+            (("Tested by", test.operator),
+             ("Approved by", (cert.approved_by if cert and cert.approved_by
+                              else test.approved_by) or ""))  # fmt: skip
         ):
             x0 = MARGIN_L + i * half
             fig.add_artist(hline(fig, x0, x0 + half - 0.4, y + 0.35, lw=0.6))
@@ -483,10 +492,20 @@ def render_certificate(
                          size=7.5)  # fmt: skip
                 put_text(fig, PAGE_W - MARGIN_R, PAGE_H - MARGIN_B + 0.27, f"Page {i + 1} of {n}",
                          size=7.5, ha="right")  # fmt: skip
+                if cert is not None and cert.draft:
+                    _draft_mark(fig)
                 pdf.savefig(fig)
                 if i == 0 and png_path is not None:
                     fig.savefig(png_path, format="png", dpi=dpi, facecolor="white")
     return n
+
+
+def _draft_mark(fig) -> None:
+    """A large diagonal "DRAFT" across the page, and a line in the header."""
+    fig.text(0.5, 0.5, "DRAFT", fontsize=110, color=(0.85, 0.1, 0.1), alpha=0.22,
+             rotation=52, ha="center", va="center", weight="bold")  # fmt: skip
+    put_text(fig, PAGE_W / 2, MARGIN_T - 0.35, "DRAFT: not reviewed, not for release",
+             size=8.0, ha="center", weight="bold")  # fmt: skip
 
 
 def write_certificate(

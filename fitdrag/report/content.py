@@ -534,12 +534,27 @@ class Issue:
     issued_at: str
     replaces: str | None = None
     pages: int | None = None
+    #: The record's hash in the records database (SHA-256, hex), printed on the certificate.
+    record_hash: str | None = None
+    #: The identifier of the records database that holds the record.
+    records_id: str | None = None
+    #: Why this certificate replaces ``replaces``.
+    reason: str | None = None
+    #: Who reviewed and authorised the release, and when (a released draft).
+    approved_by: str | None = None
+    #: True for a draft: no number, not for release ("DRAFT" on every page).
+    draft: bool = False
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {"number": self.number, "issued_at": self.issued_at,
                              "replaces": self.replaces}  # fmt: skip
         if self.pages is not None:
             d["pages"] = self.pages
+        for k in ("record_hash", "records_id", "reason", "approved_by"):
+            if getattr(self, k) is not None:
+                d[k] = getattr(self, k)
+        if self.draft:
+            d["draft"] = True
         return d
 
 

@@ -414,9 +414,11 @@ class Job:
 
     @property
     def records_path(self) -> Path:
-        from fitdrag.run.records import DEFAULT_FILENAME
+        """The records database: the job's ``[output] records``, else the laboratory's
+        (:func:`fitdrag.run.records.lab_records`)."""
+        from fitdrag.run.records import lab_records
 
-        return self.output.records or self.output_directory / DEFAULT_FILENAME
+        return lab_records(None, self.output.records).path
 
     # -- objects for the fit --------------------------------------------------------------
 

@@ -231,6 +231,28 @@ _REQUIRED_HINT = {
 }
 
 
+#: Largest relative standard uncertainty of the specimen's mass, diameter, area or volume taken
+#: without confirmation: a larger one is more often a unit slip (an uncertainty in kg beside a
+#: mass in g) than a real weighing or gauging (common practice, no source). [1]
+PLAUSIBLE_RELATIVE_UNCERTAINTY = 0.10
+
+
+def _plausible_uncertainty(where, d, m: Measured, key: str) -> None:
+    """Refuse u/value above :data:`PLAUSIBLE_RELATIVE_UNCERTAINTY` unless the job confirms it
+    with ``[specimen] large_uncertainty_confirmed = true``."""
+    if d.get("large_uncertainty_confirmed") or not m.value > 0:
+        return
+    rel = m.uncertainty / m.value
+    if rel > PLAUSIBLE_RELATIVE_UNCERTAINTY:
+        fail(
+            f"{where.key('specimen', None, key + '_uncertainty')}: {m.uncertainty:.3g} {m.unit} "
+            f"is {100 * rel:.0f} % of the {key} {m.value:.4g} {m.unit} (more than "
+            f"{100 * PLAUSIBLE_RELATIVE_UNCERTAINTY:.0f} %): a unit slip? A bare number is in "
+            f"the unit of its value; write e.g. \"0.02 g\". If it is right, confirm it with "
+            f"large_uncertainty_confirmed = true in [specimen]."
+        )
+
+
 def _specimen(where, d):
     sec = "specimen"
     out: dict[str, Any] = {"id": d["id"], "description": d["description"]}
@@ -240,6 +262,7 @@ def _specimen(where, d):
             f"{where.key(sec, None, 'mass_uncertainty')}: {out['mass'].uncertainty:g} kg is not "
             f"smaller than the mass {out['mass'].value:g} kg; check the units."
         )
+    _plausible_uncertainty(where, d, out["mass"], "mass")
     has_d = "diameter" in d
     has_av = "area" in d or "volume" in d
     if has_d and has_av:
@@ -249,6 +272,7 @@ def _specimen(where, d):
         )
     if has_d:
         out["diameter"] = measured(where, sec, d, "diameter", "m", "")
+        _plausible_uncertainty(where, d, out["diameter"], "diameter")
         if "length" in d:
             fail(
                 f"{where.key(sec, None, 'length')}: a sphere's reference length is its "
@@ -264,6 +288,8 @@ def _specimen(where, d):
                 unit,
                 f"give the specimen's {key} in {unit_symbol(unit)} (with {key}_uncertainty).",
             )
+        for key in ("area", "volume"):
+            _plausible_uncertainty(where, d, out[key], key)
         if "length" in d:
             out["length"] = d["length"]
     else:

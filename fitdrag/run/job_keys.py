@@ -22,7 +22,7 @@ from typing import Any
 from fitdrag.errors import InputError
 from fitdrag.run.job import Measured
 from fitdrag.uncertainty.decision import RULES
-from fitdrag.units import parse_quantity, unit_symbol, unit_word
+from fitdrag.units import parse_quantity, unit_of_text, unit_symbol, unit_word
 
 CSV_OPTIONS = (
     "t_col",
@@ -174,6 +174,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
     "specimen": {
         "id": Key("str"),
+        "large_uncertainty_confirmed": Key("bool"),
         "description": Key("str"),
         "mass": _q("kg", 0.0, 100.0, 'give the specimen mass in kg (e.g. 0.0027) or "2.7 g"'),
         "mass_uncertainty": _u("kg"),
@@ -512,6 +513,22 @@ def parse_table(where, sec, idx, table, folder) -> dict:
                 f"{where.section_name(sec, idx)} are {', '.join(sorted(keys))}."
             )
         out[key] = check_value(where, sec, idx, key, keys[key], raw, folder)
+    for key, raw in table.items():
+        # "every *_uncertainty is in the same unit as its value": a bare number beside a value
+        # written with a unit ("24.00 g") is in that unit (0.02 means 0.02 g, not 0.02 kg)
+        ukey = f"{key}_uncertainty"
+        utext = unit_of_text(raw) if isinstance(raw, str) else ""
+        if not utext or ukey not in table or keys.get(ukey) is None:
+            continue
+        uraw = table[ukey]
+        bare = isinstance(uraw, int | float) and not isinstance(uraw, bool)
+        if isinstance(uraw, str) and not unit_of_text(uraw):
+            try:
+                uraw, bare = float(uraw), True
+            except ValueError:
+                bare = False
+        if bare:
+            out[ukey] = check_value(where, sec, idx, ukey, keys[ukey], f"{uraw!r} {utext}", folder)
     return out
 
 

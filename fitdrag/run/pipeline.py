@@ -27,6 +27,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+import os
 import re
 import warnings
 from collections.abc import Mapping
@@ -632,56 +633,119 @@ def _footage_records(job: Job, tracks) -> tuple[FootageRecord, ...]:
 # ---------------------------------------------------------------------------------------------
 
 
-def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
+def _render_files(meas: Measurement, finals: Mapping[str, Path], issue_: Issue):
+    """Render the certificate (PDF, page-1 PNG) and the JSON of ``meas`` to temporary files
+    beside ``finals``; returns ``{kind: temporary path}`` (nothing left behind on failure)."""
+    from fitdrag.report.certificate import render_certificate
+    from fitdrag.report.plots import curves_from_fit
+
+    curves = meas.curves if meas.curves is not None else curves_from_fit(meas.fit)
+    tmps = {k: temporary_path(f) for k, f in finals.items()}
+    issued = dataclasses.replace(
+        meas.content,
+        issue=issue_,
+        outputs={k: str(Path(f).resolve()) for k, f in finals.items()},
+    )
+    try:
+        pages = render_certificate(
+            issued, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
+        )
+        issued = dataclasses.replace(issued, issue=dataclasses.replace(issued.issue, pages=pages))
+        text = json.dumps(issued.to_dict(), indent=2, allow_nan=False, default=str)
+        tmps["result_json"].write_text(text + "\n", encoding="utf-8")
+    except BaseException:
+        for t in tmps.values():
+            t.unlink(missing_ok=True)
+        raise
+    return tmps
+
+
+def check_edited(job: Job) -> None:
+    """Refuse to certify a job that still holds the template's invented laboratory, customer
+    or specimen (``fitdrag new-job`` without edits), naming each such value."""
+    from fitdrag.run.job_template import placeholders_left
+
+    left = placeholders_left(job)
+    if left:
+        raise InputError(
+            f"{job.path.name}: still holds the template's invented value(s) {'; '.join(left)}; "
+            f"replace them with your laboratory's, customer's and specimen's before a "
+            f"certificate or draft is made."
+        )
+
+
+def approver(job: Job, approved_by: str | None = None) -> str:
+    """Who authorises the release: ``approved_by`` (a reviewer releasing a draft), else the
+    job's ``[test] approved_by``; neither is an error."""
+    name = (approved_by or job.test.approved_by or "").strip()
+    if not name:
+        raise InputError(
+            f"{job.path.name}: [test] approved_by: missing; a certificate is released by "
+            f"a named person: name them in the job, or run with --draft and have the reviewer "
+            f"release the draft with 'fitdrag release DRAFT.json --approved-by NAME'."
+        )
+    return name
+
+
+def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, approved_by=None,
+          draft_sha256=None, force=False):  # fmt: skip
     """Number, render and record the certificate of a measurement (one transaction).
+
+    The records database is ``records_path``, else the job's ``[output] records``, else the
+    laboratory's (:func:`fitdrag.run.records.lab_records`).  Refused: a job without
+    ``approved_by`` (unless ``approved_by`` is given: a released draft), and an identical
+    re-run (the same job text and input files as a certificate on record) unless it
+    ``replaces`` a certificate, with a ``reason``.  Issued certificate files are never
+    overwritten (``force`` is kept for the callers' other files).
 
     Returns
     -------
-    (Record, Path)
-        The record (its ``decision`` is the conformity decision) and the records database.
+    (Record, RecordsLocation)
+        The record (its ``decision`` is the conformity decision) and where the records
+        database is, and why there.
     """
-    from fitdrag.report.certificate import render_certificate
-    from fitdrag.report.plots import curves_from_fit
-    from fitdrag.run.records import PendingFile, Records
+    from fitdrag.run.records import PendingFile, Records, clean_leftovers, lab_records
 
+    del force  # issued certificate files are never overwritten
     job = meas.job
+    check_edited(job)
+    name = approver(job, approved_by)
+    where = lab_records(records_path, job.output.records)
     outdir = Path(job.output_directory)
     outdir.mkdir(parents=True, exist_ok=True)
-    db = Records(Path(records_path) if records_path else job.records_path)
-    curves = meas.curves if meas.curves is not None else curves_from_fit(meas.fit)
+    where.path.parent.mkdir(parents=True, exist_ok=True)
+    db = Records(where.path)
+    clean_leftovers(outdir)
+    if replaces is None:
+        same = db.find_inputs(meas.hashes, job.text)
+        if same:
+            first = same[-1]
+            raise InputError(
+                f"{job.path.name}: the same job and input files (SHA-256) were certified as "
+                f"{first.number} on {first.issued_at}; an identical re-run is not issued again. "
+                f"To correct that certificate, run with --replaces {first.number} --reason "
+                f'"...".'
+            )
     content = meas.content
 
-    def render(number, when):
+    def render(number, when, record_hash):
         finals = {
             "certificate_pdf": outdir / f"{number}.pdf",
             "certificate_png": outdir / f"{number}.png",
             "result_json": outdir / f"{number}.json",
         }
         for f in finals.values():
-            if f.exists() and not force:
+            if f.exists():
                 raise InputError(
-                    f"{f}: already exists (left by an earlier, interrupted run?); move it away "
-                    f"or pass --force."
+                    f"{f}: already exists; an issued certificate file is never overwritten. "
+                    f"Is another records database numbering into this folder? Use the "
+                    f"laboratory's one database (FITDRAG_RECORDS), or another [output] directory."
                 )
-        tmps = {k: temporary_path(f) for k, f in finals.items()}
-        issued = dataclasses.replace(
-            content,
-            issue=Issue(number, when.isoformat(timespec="seconds"), replaces),
-            outputs={k: str(f.resolve()) for k, f in finals.items()},
-        )
-        try:
-            pages = render_certificate(
-                issued, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
-            )
-            issued = dataclasses.replace(
-                issued, issue=dataclasses.replace(issued.issue, pages=pages)
-            )
-            text = json.dumps(issued.to_dict(), indent=2, allow_nan=False, default=str)
-            tmps["result_json"].write_text(text + "\n", encoding="utf-8")
-        except BaseException:
-            for t in tmps.values():
-                t.unlink(missing_ok=True)
-            raise
+        stamp = Issue(
+            number, when.isoformat(timespec="seconds"), replaces, record_hash=record_hash,
+            records_id=db.id, reason=reason if replaces else None, approved_by=name,
+        )  # fmt: skip
+        tmps = _render_files(meas, finals, stamp)
         return {k: PendingFile(tmps[k], finals[k]) for k in finals}
 
     res = content.result
@@ -692,6 +756,9 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
         job_text=job.text,
         job_path=str(job.path),
         replaces=replaces,
+        reason=reason,
+        approved_by=name,
+        draft_sha256=draft_sha256,
         prefix=job.number_prefix,
         summary={
             "customer": job.test.customer,
@@ -703,7 +770,140 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
             "software_version": content.software_version,
         },
     )
-    return rec, db.path
+    return rec, where
+
+
+#: Keys of a draft's JSON section ``draft``: how it was measured, for its release.
+DRAFT_FORMAT = "fitdrag draft 1"
+
+
+def write_draft(meas: Measurement, *, options: Mapping[str, Any] | None = None,
+                force: bool = False) -> dict[str, Path]:  # fmt: skip
+    """A draft for review: PDF and PNG marked DRAFT on every page, and the JSON; no number,
+    no record.  ``options`` (Monte Carlo trials, seed, ...) are kept in the JSON for the
+    release to measure again the same way.  Returns ``{kind: path}``.
+    """
+    from datetime import datetime
+
+    from fitdrag.run.records import clean_leftovers
+
+    job = meas.job
+    check_edited(job)
+    outdir = Path(job.output_directory)
+    outdir.mkdir(parents=True, exist_ok=True)
+    clean_leftovers(outdir)
+    when = datetime.now().astimezone()
+    stem = f"DRAFT-{job.path.stem}-{when.strftime('%Y%m%dT%H%M%S')}"
+    finals = {
+        "certificate_pdf": outdir / f"{stem}.pdf",
+        "certificate_png": outdir / f"{stem}.png",
+        "result_json": outdir / f"{stem}.json",
+    }
+    for f in finals.values():
+        if f.exists() and not force:
+            raise InputError(f"{f}: already exists; pass --force to overwrite the draft.")
+    stamp = Issue("DRAFT", when.isoformat(timespec="seconds"), draft=True)
+    tmps = _render_files(meas, finals, stamp)
+    # the JSON gets the section the release reads
+    data = json.loads(tmps["result_json"].read_text(encoding="utf-8"))
+    data["draft"] = {
+        "format": DRAFT_FORMAT,
+        "job_path": str(Path(job.path).resolve()),
+        "input_sha256": {str(Path(k).resolve()): v for k, v in meas.hashes.items()},
+        "options": dict(options or {}),
+    }
+    tmps["result_json"].write_text(json.dumps(data, indent=2, allow_nan=False) + "\n",
+                                   encoding="utf-8")  # fmt: skip
+    for k, f in finals.items():
+        os.replace(tmps[k], f)
+    return finals
+
+
+#: Largest draft JSON file read by :func:`read_draft`. [byte]
+DRAFT_MAX_BYTES = 50_000_000
+
+
+@dataclass(frozen=True)
+class Draft:
+    """A draft read back for release: its file, SHA-256, job, inputs and reported result."""
+
+    path: Path
+    sha256: str
+    job_path: Path
+    input_sha256: Mapping[str, str]
+    options: Mapping[str, Any]
+    reported: Mapping[str, str]
+    decision: str | None
+
+
+def read_draft(path) -> Draft:
+    """Read a draft's JSON (written by :func:`write_draft`) and check its inputs are unchanged.
+
+    Raises
+    ------
+    InputError
+        Not a draft; an input file changed since the draft (its SHA-256 differs) or is gone.
+    """
+    from fitdrag.run.records import sha256_file
+    from fitdrag.tracks.track import file_sha256
+
+    p = Path(path)
+    if not p.is_file():
+        raise InputFileNotFoundError(f"{p}: no such draft; give the DRAFT-....json that "
+                                     f"'fitdrag run JOB --draft' wrote.")  # fmt: skip
+    if p.stat().st_size > DRAFT_MAX_BYTES:
+        raise InputError(f"{p}: larger than {DRAFT_MAX_BYTES} bytes: not a draft's JSON.")
+    try:
+        data = json.loads(p.read_text(encoding="utf-8"))
+        d = data["draft"]
+        if d.get("format") != DRAFT_FORMAT or not data["certificate"].get("draft"):
+            raise KeyError("format")
+        job_path = Path(d["job_path"])
+        hashes = {str(k): str(v) for k, v in d["input_sha256"].items()}
+        reported = data["result"]["reported"]
+        decision = (data.get("conformity") or {}).get("decision")
+    except (ValueError, KeyError, TypeError, AttributeError):
+        raise InputError(
+            f"{p}: not a draft written by 'fitdrag run JOB --draft' (no readable 'draft' "
+            f"section); release the draft's .json file."
+        ) from None
+    for fp, digest in hashes.items():
+        f = Path(fp)
+        if not f.exists():
+            raise InputFileNotFoundError(
+                f"{p}: input {f} is gone since the draft; restore it or make a new draft."
+            )
+        if f.is_dir():
+            from fitdrag.video.tracking import footage_sha256
+
+            now = footage_sha256(f)
+        else:
+            now = file_sha256(f)
+        if now != digest:
+            raise InputError(
+                f"{p}: input {f} changed since the draft (SHA-256 {now[:16]}... instead of "
+                f"{digest[:16]}...); the draft is not released: make a new draft and review it."
+            )
+    return Draft(p, sha256_file(p), job_path, hashes, dict(d.get("options") or {}),
+                 dict(reported), decision)  # fmt: skip
+
+
+def check_release(draft: Draft, meas: Measurement) -> None:
+    """Refuse a release whose measurement, made again from the same inputs, differs from the
+    draft the reviewer saw (input hashes, reported Cd and U, decision)."""
+    if sorted(meas.hashes.values()) != sorted(draft.input_sha256.values()):
+        raise InputError(f"{draft.path}: the release's input files differ from the draft's; "
+                         f"make a new draft.")  # fmt: skip
+    now = meas.content.to_dict()["result"]["reported"]
+    for k, v in draft.reported.items():
+        if now.get(k) != v:
+            raise InputError(
+                f"{draft.path}: measured again, {k} is {now.get(k)} where the draft says {v}; "
+                f"the draft is not released: make a new draft and review it."
+            )
+    if meas.decision != draft.decision:
+        raise InputError(f"{draft.path}: measured again, the decision is {meas.decision} "
+                         f"where the draft says {draft.decision}; make a new draft.")  # fmt: skip
 
 
 def summary(meas: Measurement) -> str:
