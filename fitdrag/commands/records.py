@@ -70,7 +70,6 @@ def register(subparsers) -> argparse.ArgumentParser:
     return p
 
 
-
 _CONTROL = re.compile(r"[\x00-\x1f\x7f-\x9f\u200e\u200f\u202a-\u202e\u2066-\u2069]")
 
 

@@ -413,9 +413,13 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     def signatures(fig, y):
         half = BODY_W / 2
         for i, (role, name) in enumerate(
-            (("Tested by", test.operator),
-             ("Approved by", (cert.approved_by if cert and cert.approved_by
-                              else test.approved_by) or ""))  # fmt: skip
+            (
+                ("Tested by", test.operator),
+                (
+                    "Approved by",
+                    (cert.approved_by if cert and cert.approved_by else test.approved_by) or "",
+                ),
+            )  # fmt: skip
         ):
             x0 = MARGIN_L + i * half
             fig.add_artist(hline(fig, x0, x0 + half - 0.4, y + 0.35, lw=0.6))

@@ -248,7 +248,7 @@ def _plausible_uncertainty(where, d, m: Measured, key: str) -> None:
             f"{where.key('specimen', None, key + '_uncertainty')}: {m.uncertainty:.3g} {m.unit} "
             f"is {100 * rel:.0f} % of the {key} {m.value:.4g} {m.unit} (more than "
             f"{100 * PLAUSIBLE_RELATIVE_UNCERTAINTY:.0f} %): a unit slip? A bare number is in "
-            f"the unit of its value; write e.g. \"0.02 g\". If it is right, confirm it with "
+            f'the unit of its value; write e.g. "0.02 g". If it is right, confirm it with '
             f"large_uncertainty_confirmed = true in [specimen]."
         )
 
