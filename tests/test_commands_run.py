@@ -556,3 +556,28 @@ def test_draft_review_release(job, capsys):
     # not a draft
     assert main(["release", str(outdir / f"{number}.json"), "--approved-by", "X"]) == 2
     assert "not a draft written by 'fitdrag run JOB --draft'" in capsys.readouterr().err
+
+
+def test_track_header_conflicts_are_refused_and_its_footage_hashed(job, capsys):
+    """regression: a track whose header states another frame rate than [camera] fps is refused
+    naming both; with the header's rate, the footage the header names is among the input
+    hashes (hashlib's SHA-256)."""
+    track = job.parent / "throw1.csv"
+    body = track.read_text()
+    track.write_text("# fps: 500.0\n# footage: clip.avi\n" + body)
+    (job.parent / "clip.avi").write_bytes(b"synthetic footage bytes")
+    assert main(["run", str(job), "--quiet"]) == 2
+    line = next(n for n, ln in enumerate(_job_text().splitlines(), start=1)
+                if ln.startswith('track = "throw1.csv"'))  # fmt: skip
+    assert capsys.readouterr().err == (
+        f"fitdrag run: error: job.toml, line {line}: [[throws]] #1 track: throw1.csv's "
+        "header says fps: 500.0 (the frame rate of the footage it was tracked from), but "
+        "[camera] fps is 400 Hz (standard uncertainty 0.05 Hz); they must agree: correct "
+        "[camera] fps, or use the track file of this footage.\n"
+    )
+    assert not (job.parent / "certificates").exists()
+    track.write_text("# fps: 400.0\n# footage: clip.avi\n" + body)
+    assert main(["run", str(job), "--quiet"]) == 0
+    rep = json.loads(next((job.parent / "certificates").glob("FD-*.json")).read_text())
+    clip_hash = hashlib.sha256(b"synthetic footage bytes").hexdigest()
+    assert rep["inputs"]["sha256"][str((job.parent / "clip.avi").resolve())] == clip_hash

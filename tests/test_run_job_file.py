@@ -224,10 +224,11 @@ def test_footage_throw_keys_parse(footage_dir):
         'marker_frame = 3\nscale_uncertainty = "0.1 %"\nstart = 2\n'
         'stop = 60\nlabel = "throw A"\n'
         '\n[[throws]]\nfootage = "clip.avi"\nscale = 0.00125\norigin = "12,790"\n'
-        'rotation = "0.5 deg"\n'
+        'rotation = "0.5 deg"\nscale_uncertainty = 0.002\n'
         '\n[[throws]]\nfootage = "clip.avi"\nreference = [1, 2, 3, 4, 0.5]\n'
+        "scale_uncertainty = 0\n"
         '\n[[throws]]\nfootage = "clip.avi"\nreference = "102.5,640,1180,655.5,1.000"\n'
-        "origin = [0, 10]\n",
+        "origin = [0, 10]\nscale_uncertainty = 0.001\n",
         _edit(_CAMERA_U, ""),
     )
     job = load_job(_write(footage_dir, text))
@@ -245,10 +246,10 @@ def test_footage_throw_keys_parse(footage_dir):
         "stop": 60,
     }
     assert b.options == {"scale": 0.00125, "origin": (12.0, 790.0),
-                               "rotation": pytest.approx(0.5)}  # fmt: skip
-    assert c.options == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5)}
+                         "rotation": pytest.approx(0.5), "scale_uncertainty": 0.002}  # fmt: skip
+    assert c.options == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5), "scale_uncertainty": 0.0}
     assert d.options == {"reference": (102.5, 640.0, 1180.0, 655.5, 1.0),
-                               "origin": (0.0, 10.0)}  # fmt: skip
+                         "origin": (0.0, 10.0), "scale_uncertainty": 0.001}  # fmt: skip
     assert job.camera.scale_relative_uncertainty is None
     # the track_footage signature takes every option a footage throw may carry
     import inspect
@@ -418,7 +419,7 @@ def _views_job(views: str, camera: str = "") -> str:
 
 _VIEW = (
     '[[throws.views]]\nfootage = "clip.avi"\nlens = "lens.json"\nmarkers = "50 mm"\n'
-    'marker_layout = "wall.csv"\n'
+    'marker_layout = "wall.csv"\nscale_uncertainty = 0.001\n'
 )
 
 
@@ -453,8 +454,10 @@ def test_views_throw_parses_each_camera(footage_dir):
     assert v2.time_offset.uncertainty == pytest.approx(1e-5)
     assert job.camera.readout_time.value == pytest.approx(2e-3)
     assert v1.tracking_options == {"markers": pytest.approx(0.05), "lens": v1.lens,
-                                   "marker_layout": v1.marker_layout}  # fmt: skip
-    single = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "lens.json"\n')
+                                   "marker_layout": v1.marker_layout,
+                                   "scale_uncertainty": 0.001}  # fmt: skip
+    single = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "lens.json"\n'
+                          "scale_uncertainty = 0.001\n")  # fmt: skip
     job = load_job(_write(footage_dir, single))
     (th,) = job.throws
     assert th.kind == "footage" and th.measured_in_3d
@@ -592,3 +595,19 @@ def test_implausibly_large_relative_uncertainty_needs_confirmation(job_dir):
     with pytest.raises(ValueError, match=r"\[specimen\] diameter_uncertainty: 0.005 m is 12 % "
                        r"of the diameter 0.04 m"):  # fmt: skip
         load_job(_write(job_dir, text))
+
+
+def test_footage_throw_needs_its_scale_uncertainty(footage_dir):
+    """regression: a footage throw without scale_uncertainty (and no [camera]
+    scale_relative_uncertainty) is refused: the marker side is never taken as exact silently."""
+    text = _footage_job('markers = "50 mm"\n', _edit(_CAMERA_U, ""))
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(footage_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, '[[throws]]')}: [[throws]] #1 scale_uncertainty: missing; "
+        "give the relative standard uncertainty of the calibration's known length (the "
+        "markers' side, the reference distance or the scale), e.g. scale_uncertainty = 0.001 "
+        "(write 0 if you take it as exact). Or state [camera] scale_relative_uncertainty for "
+        "every throw."
+    )
+    assert load_job(_write(footage_dir, _footage_job('markers = "50 mm"\n'))).throws

@@ -174,6 +174,12 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
             "give the relative standard uncertainty of the track's length scale (e.g. 0.002), "
             "or 0 if the track's positions are exact.",
         )
+    if camera.scale_relative_uncertainty is None:
+        # no silent exact calibration: each planar footage throw states its length's uncertainty
+        for i, th in enumerate(throws):
+            if th.kind == "footage" and "scale_uncertainty" not in th.options:
+                missing(where, "throws", i, "scale_uncertainty", SCALE_UNCERTAINTY_FIX
+                        + " Or state [camera] scale_relative_uncertainty for every throw.")  # fmt: skip
     _planar_statement(where, camera, throws)
     _one_geometry(where, throws)
     spec, rule = _specification(where, parsed["specification"], "specification" in data)
@@ -578,10 +584,10 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
                 f'track = "cam1.csv" (a track file written by fitdrag track with a camera).'
             )
         kind = "footage" if "footage" in d else "track"
-        needs = VIEW_NEEDS if kind == "footage" else ("lens",)
+        needs = VIEW_NEEDS + ("scale_uncertainty",) if kind == "footage" else ("lens",)
         for k in needs:
             if k not in d:
-                missing(where, vs, gi, k, _VIEW_HINT[k])
+                missing(where, vs, gi, k, _VIEW_HINT.get(k, SCALE_UNCERTAINTY_FIX))
         if kind == "track":
             extra = sorted(k for k in d if k in _FOOTAGE_ONLY)
             if extra:
@@ -667,6 +673,15 @@ def _one_geometry(where, throws) -> None:
             f"(footage with a lens, or [[throws.views]]); measure every throw of a job the same "
             f"way: give each footage its lens, markers and marker_layout, or none a lens."
         )
+
+
+#: How to give a footage throw's calibration length uncertainty (required: no silent exact
+#: marker side, reference distance or scale).
+SCALE_UNCERTAINTY_FIX = (
+    "give the relative standard uncertainty of the calibration's known length (the "
+    "markers' side, the reference distance or the scale), e.g. scale_uncertainty = 0.001 "
+    "(write 0 if you take it as exact)."
+)
 
 
 def _footage_options(where, i, d, folder, check_files) -> None:

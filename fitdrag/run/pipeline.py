@@ -161,9 +161,64 @@ def read_throws(job: Job, *, progress: bool = False) -> tuple[list, dict]:
             # the camera's frame rate is offered for files without a time column only
             warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
             tr = read_track(th.path, fps=fps, **opts)
+        check_track_header(job, i, th, tr)
         tracks.append(tr)
         hashes[str(th.path)] = file_sha256(th.path)
+        behind = footage_behind(th.path, tr)
+        if behind is not None:
+            from fitdrag.video.tracking import footage_sha256
+
+            hashes[str(behind)] = footage_sha256(behind)
     return tracks, hashes
+
+
+def footage_behind(track_path, track) -> Path | None:
+    """The footage a track file's header names (``# footage: NAME``, relative to the track's
+    folder), when it is there: its SHA-256 joins the input hashes."""
+    name = (track.meta.get("header") or {}).get("footage")
+    if not name:
+        return None
+    p = Path(name)
+    p = p if p.is_absolute() else Path(track_path).parent / p
+    return p.resolve() if p.exists() else None
+
+
+def check_track_header(job: Job, i: int, th, track) -> None:
+    """Refuse a track file whose header states a frame rate or an image scale that the job
+    contradicts: the certificate would state the job's value for data taken at another.
+
+    The frame rate conflicts when the header's ``fps`` lies more than 3 standard
+    uncertainties (``[camera] fps_uncertainty``) from ``[camera] fps`` (or differs at all
+    when that is 0); the scale when the throw's ``scale`` differs from the header's
+    ``scale_m_per_px`` by more than 1e-6 of it (common practice, no source).
+    """
+    head = track.meta.get("header") or {}
+    loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
+    where = f"{loc}: [[throws]] #{i + 1} track: {Path(th.path).name}'s header says"
+
+    def number(key):
+        try:
+            v = float(head[key])
+        except (KeyError, TypeError, ValueError):
+            return None
+        return v if math.isfinite(v) else None
+
+    fps = job.camera.fps
+    h = number("fps")
+    if h is not None and abs(h - fps.value) > max(3.0 * fps.uncertainty, 1e-9 * fps.value):
+        raise InputError(
+            f"{where} fps: {head['fps']} (the frame rate of the footage it was tracked from), "
+            f"but [camera] fps is {fps.value:g} Hz (standard uncertainty {fps.uncertainty:g} Hz); "
+            f"they must agree: correct [camera] fps, or use the track file of this footage."
+        )
+    h = number("scale_m_per_px")
+    stated = th.options.get("scale")
+    if h is not None and stated is not None and abs(stated - h) > 1e-6 * abs(h):
+        raise InputError(
+            f"{where} scale_m_per_px: {head['scale_m_per_px']}, but the throw's scale is "
+            f"{stated:g} m/px; they must agree: remove scale (the header's calibration "
+            f"applies) or correct it."
+        )
 
 
 # command-line spellings in track_footage's messages -> the job file's keys
@@ -437,7 +492,11 @@ def measure(
     fopts["lift"] = lift
     fit = fit_tracks(tracks, specimen, air, gravity=job.gravity(), **fopts)
     if not fit.success:
-        raise ConvergenceError(f"the fit did not converge: {fit.message}")
+        from fitdrag.fit.diagnose import likely_cause
+
+        cause = likely_cause(tracks)
+        raise ConvergenceError(f"the fit did not converge: {fit.message}"
+                               + (f"; most likely cause: {cause}" if cause else ""))  # fmt: skip
 
     u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
     u_roll, u_roll_source = roll_uncertainty(job, tracks)
