@@ -581,3 +581,38 @@ def test_track_header_conflicts_are_refused_and_its_footage_hashed(job, capsys):
     rep = json.loads(next((job.parent / "certificates").glob("FD-*.json")).read_text())
     clip_hash = hashlib.sha256(b"synthetic footage bytes").hexdigest()
     assert rep["inputs"]["sha256"][str((job.parent / "clip.avi").resolve())] == clip_hash
+
+
+def test_text_the_certificate_font_cannot_draw_is_refused(job, capsys):
+    """regression: a customer in CJK characters is refused before any work, naming the key,
+    the characters and the font (the certificate would show empty boxes)."""
+    job.write_text(_job_text(**{'customer = "Fictitious Sports Goods Ltd (edited)"':
+                                'customer = "株式会社 Sports"'}))  # fmt: skip
+    assert main(["run", str(job), "--quiet"]) == 2
+    assert capsys.readouterr().err == (
+        "fitdrag run: error: job.toml: [test] customer: the certificate's font DejaVu Sans "
+        "cannot draw '株' (U+682A CJK UNIFIED IDEOGRAPH-682A), '式' (U+5F0F CJK UNIFIED "
+        "IDEOGRAPH-5F0F), '会' (U+4F1A CJK UNIFIED IDEOGRAPH-4F1A), '社' (U+793E CJK UNIFIED "
+        "IDEOGRAPH-793E); the certificate would show empty boxes instead: write the text in "
+        "characters it can draw (e.g. a Latin transliteration).\n"
+    )
+    assert not (job.parent / "certificates").exists()
+
+
+def test_leftovers_of_a_killed_run_are_removed_by_the_next(job, capsys):
+    """regression: the temporary files a run killed mid-way left (a complete-looking page-1
+    PNG among them) are removed by the next run in that folder; the folder then holds only
+    finished certificates."""
+    import subprocess
+    import sys
+
+    outdir = job.parent / "certificates"
+    outdir.mkdir()
+    code = ("import os, sys; from pathlib import Path; from fitdrag._files import temporary_path;"
+            "d = Path(sys.argv[1]); [temporary_path(d / f'FD-2026-000009.{e}').write_bytes(b'x')"
+            " for e in ('pdf', 'png', 'json')]; os.kill(os.getpid(), 9)")  # fmt: skip
+    proc = subprocess.run([sys.executable, "-c", code, str(outdir)], check=False)
+    assert proc.returncode == -9
+    assert len(list(outdir.glob(".FD-2026-000009.*.tmp"))) == 3
+    assert main(["run", str(job), "--quiet"]) == 0
+    assert sorted(p.suffix for p in outdir.iterdir()) == [".json", ".pdf", ".png"]

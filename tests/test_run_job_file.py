@@ -611,3 +611,32 @@ def test_footage_throw_needs_its_scale_uncertainty(footage_dir):
         "every throw."
     )
     assert load_job(_write(footage_dir, _footage_job('markers = "50 mm"\n'))).throws
+
+
+@pytest.mark.parametrize(
+    "text_value, code, pos",
+    [
+        ('"SYN-\\u001b[2J-7"', "001B", 5),  # a terminal escape sequence (TOML escape)
+        ('"ABC\u202eFED"', "202E", 4),  # a right-to-left override, written raw
+        ('"A\\u2066B"', "2066", 2),  # a left-to-right isolate (TOML escape)
+    ],
+)
+def test_text_with_control_or_direction_characters_is_refused(job_dir, text_value, code, pos):
+    """regression: escape codes and bidirectional overrides in a text value (Unicode UAX #9
+    formatting characters) are refused with the line, the code point and its position."""
+    text = _edit('id = "SYN-BALL-001"', f"id = {text_value}")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, 'id = ')}: [specimen] id: holds the control or direction "
+        f"character U+{code} at position {pos} (terminal escape codes and right-to-left "
+        f"overrides make the text shown differ from the text stored); write the text without "
+        f"it."
+    )
+
+
+def test_multi_line_notes_and_accents_are_text(job_dir):
+    """regression: line breaks, tabs and accented letters are ordinary text."""
+    text = _edit('notes = "Three throws', 'notes = """Grüße,\n\tthree throws')
+    text = text.replace('indoor hall."', 'indoor hall."""', 1)
+    assert load_job(_write(job_dir, text)).test.notes.startswith("Grüße,\n\tthree")

@@ -147,7 +147,14 @@ def print_issued(rec, where) -> None:
 
 def run(args) -> int:
     from fitdrag.run.job_file import load_job
-    from fitdrag.run.pipeline import approver, check_edited, issue, summary, write_draft
+    from fitdrag.run.pipeline import (
+        approver,
+        check_drawable,
+        check_edited,
+        issue,
+        summary,
+        write_draft,
+    )
 
     check_replacement(args)
     if args.draft and (args.replaces or args.records):
@@ -155,6 +162,7 @@ def run(args) -> int:
                          "--reason and --records to 'fitdrag release'.")  # fmt: skip
     job = load_job(args.job)
     check_edited(job)
+    check_drawable(job, {"--reason": args.reason})
     if not args.draft:
         approver(job)  # a job without approved_by is refused before any work
     seed = args.seed

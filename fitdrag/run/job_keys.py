@@ -127,6 +127,16 @@ class Where:
 # ---------------------------------------------------------------------------------------------
 
 
+#: Characters refused in text values: C0 and C1 control characters (except line feed and
+#: tab), DEL, and the bidirectional marks, embeddings, overrides and isolates of Unicode
+#: (UAX #9: U+061C, U+200E, U+200F, U+202A to U+202E, U+2066 to U+2069).
+HIDDEN_TEXT = re.compile(
+    "[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]"
+)
+#: Longest text value of a job file (characters).
+MAX_TEXT_CHARS = 2000
+
+
 @dataclass(frozen=True)
 class Key:
     kind: str  # str, date, bool, lift, int, path, qty, unc, choice, point
@@ -365,6 +375,16 @@ def check_value(where: Where, sec: str, idx, key: str, spec: Key, raw: Any, fold
     if kind == "str":
         if not isinstance(raw, str):
             fail(f'{loc}: expected text in quotes, got {raw!r}; write {key} = "...".')
+        bad = HIDDEN_TEXT.search(raw)
+        if bad:
+            ch = bad.group()
+            fail(
+                f"{loc}: holds the control or direction character U+{ord(ch):04X} at position "
+                f"{bad.start() + 1} (terminal escape codes and right-to-left overrides make the "
+                f"text shown differ from the text stored); write the text without it."
+            )
+        if len(raw) > MAX_TEXT_CHARS:
+            fail(f"{loc}: {len(raw)} characters, more than {MAX_TEXT_CHARS}; shorten it.")
         return raw.strip()
     if kind == "date":
         if isinstance(raw, _dt.datetime):

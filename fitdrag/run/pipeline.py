@@ -733,6 +733,41 @@ def check_edited(job: Job) -> None:
         )
 
 
+def check_drawable(job: Job, extra: Mapping[str, str | None] | None = None) -> None:
+    """Refuse text the certificate's font cannot draw (it would show empty boxes, not the
+    text stored), naming the key, the characters and the font."""
+    from fitdrag.report.fonts import certificate_font, font_gaps
+
+    texts = {}
+    for sec, obj in (("laboratory", job.laboratory), ("test", job.test),
+                     ("specimen", job.specimen)):  # fmt: skip
+        for f in dataclasses.fields(obj):
+            v = getattr(obj, f.name)
+            if isinstance(v, str):
+                texts[f"[{sec}] {f.name}"] = v
+    from fitdrag.run.job_keys import HIDDEN_TEXT
+
+    for k, v in (extra or {}).items():
+        bad = HIDDEN_TEXT.search(v or "")
+        if bad:
+            raise InputError(
+                f"{k}: holds the control or direction character U+{ord(bad.group()):04X}; "
+                f"write the text without it."
+            )
+        if v:
+            texts[k] = v
+    gaps = font_gaps(texts)
+    if gaps:
+        name, chars = next(iter(gaps.items()))
+        more = f" (and in {', '.join(list(gaps)[1:])})" if len(gaps) > 1 else ""
+        raise InputError(
+            f"{job.path.name}: {name}: the certificate's font {certificate_font()[0]} cannot "
+            f"draw {', '.join(chars[:5])}{' ...' if len(chars) > 5 else ''}{more}; the "
+            f"certificate would show empty boxes instead: write the text in characters it can "
+            f"draw (e.g. a Latin transliteration)."
+        )
+
+
 def approver(job: Job, approved_by: str | None = None) -> str:
     """Who authorises the release: ``approved_by`` (a reviewer releasing a draft), else the
     job's ``[test] approved_by``; neither is an error."""
@@ -768,6 +803,7 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, a
     del force  # issued certificate files are never overwritten
     job = meas.job
     check_edited(job)
+    check_drawable(job, {"--approved-by": approved_by, "--reason": reason})
     name = approver(job, approved_by)
     where = lab_records(records_path, job.output.records)
     outdir = Path(job.output_directory)
@@ -848,6 +884,7 @@ def write_draft(meas: Measurement, *, options: Mapping[str, Any] | None = None,
 
     job = meas.job
     check_edited(job)
+    check_drawable(job)
     outdir = Path(job.output_directory)
     outdir.mkdir(parents=True, exist_ok=True)
     clean_leftovers(outdir)
