@@ -446,3 +446,48 @@ def test_lab_records_location(tmp_path, monkeypatch):
     settings.write_text("records = 3\n")
     with pytest.raises(ValueError, match=r"settings.toml: records: 3 is not a path"):
         lab_records()
+
+
+# The version-1 schema (before the hash chain), as fitdrag 0.1 created it.
+_V1_SCHEMA = """
+CREATE TABLE certificates (
+    number TEXT PRIMARY KEY, prefix TEXT NOT NULL, year INTEGER NOT NULL, seq INTEGER NOT NULL,
+    issued_at TEXT NOT NULL, replaces TEXT UNIQUE REFERENCES certificates(number),
+    job_path TEXT, job_text TEXT, input_hashes TEXT NOT NULL, result_json TEXT NOT NULL,
+    outputs TEXT NOT NULL, customer TEXT, specimen_id TEXT, drag_coefficient REAL,
+    expanded_uncertainty REAL, coverage_factor REAL, decision TEXT, software_version TEXT,
+    UNIQUE (prefix, year, seq));
+CREATE TRIGGER certificates_never_updated BEFORE UPDATE ON certificates
+BEGIN SELECT RAISE(ABORT, 'never changed'); END;
+CREATE TRIGGER certificates_never_deleted BEFORE DELETE ON certificates
+BEGIN SELECT RAISE(ABORT, 'never deleted'); END;
+PRAGMA user_version = 1;
+"""
+
+
+def test_version_1_database_is_chained_on_first_use(tmp_path):
+    """regression: a database made before the hash chain keeps its records, in the order
+    stored, chained with the SHA-256 of their files as found; it verifies and numbers on."""
+    path = tmp_path / "old.sqlite"
+    pdf = tmp_path / "FD-2026-000001.pdf"
+    pdf.write_bytes(b"%PDF old certificate")
+    con = sqlite3.connect(path)
+    con.executescript(_V1_SCHEMA)
+    for seq, replaces in ((1, None), (2, "FD-2026-000001")):
+        con.execute(
+            "INSERT INTO certificates (number, prefix, year, seq, issued_at, replaces, "
+            "input_hashes, result_json, outputs, drag_coefficient) VALUES (?, 'FD', 2026, ?, "
+            "'2026-03-04T10:00:00+00:00', ?, '{}', '{}', ?, 0.47)",
+            (f"FD-2026-{seq:06d}", seq, replaces,
+             json.dumps({"certificate_pdf": str(pdf)}) if seq == 1 else "{}"),
+        )  # fmt: skip
+    con.commit()
+    con.close()
+    db = Records(path)
+    a, b = db.list()
+    assert (a.chain_index, b.chain_index) == (1, 2) and b.previous_seal == a.seal
+    assert a.file_hashes == {"certificate_pdf": hashlib.sha256(pdf.read_bytes()).hexdigest()}
+    assert a.replaced_by == b.number and a.drag_coefficient == 0.47
+    assert db.verify().ok
+    assert _issue(db).number == "FD-2026-000003"
+    assert db.verify().ok

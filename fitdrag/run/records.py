@@ -403,7 +403,10 @@ class Records:
                 )
         try:
             with self._connect() as con:
-                self._ensure_schema(con)
+                if self._ensure_schema(con):  # a version-1 database, now chained: its head
+                    con.execute("BEGIN IMMEDIATE")
+                    self._write_head(con)
+                    con.execute("COMMIT")
                 row = con.execute("SELECT value FROM database_info WHERE key = 'id'").fetchone()
         except sqlite3.DatabaseError as exc:
             raise InputError(
@@ -418,22 +421,27 @@ class Records:
         return _Connection(self.path, self.timeout)
 
     @staticmethod
-    def _ensure_schema(con: sqlite3.Connection) -> None:
+    def _ensure_schema(con: sqlite3.Connection) -> bool:
+        """Create the schema, or move a version-1 database to it; True after a move."""
         version = con.execute("PRAGMA user_version").fetchone()[0]
         if version == _SCHEMA_VERSION:
-            return
-        if version not in (0, _SCHEMA_VERSION):
+            return False
+        if version not in (0, 1, _SCHEMA_VERSION):
             raise InputError(
                 f"records: database schema version {version} is not supported (expected "
-                f"{_SCHEMA_VERSION}); version 1 databases (before the hash chain) are read by "
-                f"the fitdrag version that created them: keep them, and start a new database "
-                f"with --records or FITDRAG_RECORDS."
+                f"{_SCHEMA_VERSION}); use the fitdrag version that created it."
             )
         con.execute("BEGIN IMMEDIATE")
         try:
-            if con.execute("PRAGMA user_version").fetchone()[0] == _SCHEMA_VERSION:
+            version = con.execute("PRAGMA user_version").fetchone()[0]
+            if version == _SCHEMA_VERSION:
                 con.execute("COMMIT")  # another process created it meanwhile
-                return
+                return False
+            if version == 1:
+                _migrate_v1(con)
+                con.execute(f"PRAGMA user_version = {_SCHEMA_VERSION}")
+                con.execute("COMMIT")
+                return True
             tables = {
                 r[0] for r in con.execute("SELECT name FROM sqlite_master WHERE type='table'")
             }
@@ -449,6 +457,7 @@ class Records:
             )
             con.execute(f"PRAGMA user_version = {_SCHEMA_VERSION}")
             con.execute("COMMIT")
+            return False
         except BaseException:
             con.execute("ROLLBACK")
             raise
@@ -919,8 +928,59 @@ def lab_records(explicit: str | os.PathLike | None = None,
     folder.mkdir(parents=True, exist_ok=True)
     return RecordsLocation(
         folder / DEFAULT_FILENAME,
-        f"laboratory database in the user's data folder (set {ENV_VAR} or {sp} to move it)",
+        f"laboratory database in the user's data folder; set {ENV_VAR}, or records in {sp}, "
+        f"to move it",
     )
+
+
+_V1_COLUMNS = (
+    "number, issued_at, replaces, job_path, job_text, input_hashes, result_json, outputs, "
+    "customer, specimen_id, drag_coefficient, expanded_uncertainty, coverage_factor, decision, "
+    "software_version"
+)
+
+
+def _migrate_v1(con: sqlite3.Connection) -> None:
+    """Move a version-1 database (no hash chain) to version 2 inside the caller's transaction:
+    its records are chained in the order they were stored, each with the SHA-256 of its files
+    as they are now (a file already missing gets no hash and is reported by verify)."""
+    rows = con.execute(f"SELECT {_V1_COLUMNS} FROM certificates ORDER BY rowid").fetchall()
+    con.execute("DROP TRIGGER IF EXISTS certificates_never_updated")
+    con.execute("DROP TRIGGER IF EXISTS certificates_never_deleted")
+    con.execute("ALTER TABLE certificates RENAME TO certificates_v1")
+    for statement in _SCHEMA:
+        con.execute(statement)
+    con.execute("INSERT INTO database_info (key, value) VALUES ('id', ?)", (str(uuid.uuid4()),))
+    con.execute(
+        "INSERT INTO database_info (key, value) VALUES ('migrated_from_v1', ?)",
+        (datetime.now().astimezone().isoformat(timespec="seconds"),),
+    )
+    previous = GENESIS
+    for index, r in enumerate(rows, start=1):
+        outputs = json.loads(r[7])
+        file_hashes = {k: sha256_file(v) for k, v in outputs.items() if Path(v).is_file()}
+        rec = Record(
+            number=r[0], issued_at=r[1], replaces=r[2], job_path=r[3], job_text=r[4],
+            input_hashes=json.loads(r[5]), result=json.loads(r[6]), outputs=outputs,
+            customer=r[8], specimen_id=r[9], drag_coefficient=r[10],
+            expanded_uncertainty=r[11], coverage_factor=r[12], decision=r[13],
+            software_version=r[14], chain_index=index, previous_seal=previous,
+        )  # fmt: skip
+        h = record_hash(previous, rec.content())
+        seal = seal_of(h, outputs, file_hashes)
+        prefix, year, seq = parse_number(rec.number)
+        con.execute(
+            "INSERT INTO certificates (number, kind, chain_index, prefix, year, seq, issued_at, "
+            "replaces, job_path, job_text, input_hashes, result_json, outputs, file_hashes, "
+            "customer, specimen_id, drag_coefficient, expanded_uncertainty, coverage_factor, "
+            "decision, software_version, previous_seal, record_hash, seal) VALUES "
+            "(?, 'certificate', ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
+            (rec.number, index, prefix, year, seq, rec.issued_at, rec.replaces, rec.job_path,
+             rec.job_text, r[5], r[6], r[7], _json("file_hashes", file_hashes), *r[8:15],
+             previous, h, seal),
+        )  # fmt: skip
+        previous = seal
+    con.execute("DROP TABLE certificates_v1")
 
 
 def _split_subject(text: str) -> tuple[str, str]:
