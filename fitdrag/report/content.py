@@ -158,6 +158,9 @@ class ItemTested:
         Frontal area [m²] and volume [m³] of a body.
     length : float or None
         Reference length of a body for the Reynolds number. [m]
+    shown_units : mapping
+        The unit the job gave for mass, diameter, area or volume (e.g. ``{"mass": "g"}``):
+        the certificate shows the value in it.
     """
 
     id: str
@@ -169,6 +172,7 @@ class ItemTested:
     area: Estimate | None = None
     volume: Estimate | None = None
     length: float | None = None
+    shown_units: Mapping[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {"id": self.id, "description": self.description,
@@ -524,6 +528,15 @@ class Conformity:
 # ---------------------------------------------------------------------------------------------
 # the whole content
 # ---------------------------------------------------------------------------------------------
+
+
+def noise_words(model: str | None) -> str:
+    """The fit's noise model in the trade's words, for the certificate (the JSON keeps the
+    internal name)."""
+    if model == "ar1":
+        return ("position errors correlated from frame to frame, allowed for by a first-order "
+                "autoregressive model")  # fmt: skip
+    return "position errors independent from frame to frame"
 
 
 @dataclass(frozen=True)

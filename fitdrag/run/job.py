@@ -97,6 +97,9 @@ class SpecimenSection:
     area: Measured | None = None
     volume: Measured | None = None
     length: float | None = None
+    #: The units the job wrote mass, diameter, area or volume in ("g", "mm"), by key: the
+    #: certificate shows them so.
+    shown_units: tuple[tuple[str, str], ...] = ()
 
     @property
     def shape(self) -> str:

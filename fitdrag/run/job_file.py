@@ -71,7 +71,7 @@ from fitdrag.run.job_keys import (
     parse_table,
 )
 from fitdrag.uncertainty.decision import Specification
-from fitdrag.units import unit_symbol
+from fitdrag.units import unit_of_text, unit_symbol
 
 __all__ = ["NORMAL_GRAVITY_UNCERTAINTY", "UNKNOWN_SITE_GRAVITY_HALF_WIDTH", "load_job"]
 
@@ -161,6 +161,10 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
                 missing(where, sec, None, key, _REQUIRED_HINT.get((sec, key), "it is required."))
 
     specimen = _specimen(where, parsed["specimen"])
+    raw_specimen = data.get("specimen") or {}
+    shown = tuple((k, unit_of_text(raw_specimen[k])) for k in ("mass", "diameter", "area", "volume")
+                  if isinstance(raw_specimen.get(k), str) and unit_of_text(raw_specimen[k]))  # fmt: skip
+    specimen = dataclasses.replace(specimen, shown_units=shown)
     air = _air(where, parsed["air"])
     site = _site(where, parsed["site"])
     camera = _camera(where, parsed["camera"])

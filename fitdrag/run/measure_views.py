@@ -549,15 +549,16 @@ def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
 
     dm = get_drag_model(fit.model)
     lift = fit.lift
+    from fitdrag.report.content import noise_words
     from fitdrag.run.pipeline import drag_model_text, model_equation_text
 
     eq = model_equation_text(lift, " in three dimensions")
     fit_method = (
         "weighted nonlinear least squares in each camera's pixels (Levenberg–Marquardt): the "
         "predicted centre (and, where used, width) of the sphere's image outline at each "
-        "observation's own time against the tracked blob; noise model "
-        f"{fit.throws[0].result.noise_model}, each camera's noise level estimated from its "
-        "residuals; each throw has its own launch state"
+        "observation's own time against the tracked blob; "
+        f"{noise_words(fit.throws[0].result.noise_model)}, each camera's noise level estimated "
+        "from its residuals; each throw has its own launch state"
         + (", Cd combined over throws by their weighted mean" if len(fit.throws) > 1 else "")
         + "."
     )

@@ -400,10 +400,13 @@ def _method(fit_dict: dict, fit_result, budget, mc, geometry: str = "") -> Metho
     f = fit_dict.get("fit", {})
     resid = fit_dict.get("residuals", {})
     noise = resid.get("noise_model", "white")
+    from fitdrag.report.content import noise_words
+
     fit_method = (
-        f"{f.get('method', 'weighted nonlinear least squares')}; "
-        f"{'robust stage with outlier rejection' if f.get('robust') else 'no robust stage'}; "
-        f"noise model {noise}; all throws share C_d, each has its own launch state."
+        "weighted nonlinear least squares (Levenberg–Marquardt) of the modelled flight to the "
+        "measured positions; "
+        f"{'outliers rejected by a robust stage' if f.get('robust') else 'no outlier rejection'}"
+        f"; {noise_words(noise)}; all throws share C_d, each has its own launch state."
     )
     unc = (
         "JCGM 100:2008 (GUM): law of propagation of uncertainty with sensitivity coefficients "
@@ -627,6 +630,7 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
             area=est(sp.area),
             volume=est(sp.volume),
             length=sp.length,
+            shown_units=dict(sp.shown_units),
         ),  # fmt: skip
         conditions=Conditions(
             temperature=est(a.temperature),
@@ -1004,7 +1008,7 @@ def check_release(draft: Draft, meas: Measurement) -> None:
 
 def summary(meas: Measurement) -> str:
     """A few lines on the result: Cd ± U, the largest contributions, the checks, the decision."""
-    from fitdrag.report.numbers import format_sig
+    from fitdrag.report.numbers import format_probability, format_sig
 
     cd_s, u_s = meas.content.result.reported
     b = meas.budget
@@ -1050,7 +1054,7 @@ def summary(meas: Measurement) -> str:
         v = meas.verdict
         lines.append(
             f"  decision: {v.decision.upper()} ({v.rule} acceptance; probability of conformity "
-            f"{100 * v.probability_of_conformity:.1f} %)"
+            f"{format_probability(v.probability_of_conformity)})"
         )
     else:
         lines.append("  no [specification]: no conformity decision")
