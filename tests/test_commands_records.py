@@ -128,3 +128,32 @@ def test_verify_exit_codes(db_path, capsys):
     assert "  database: the trigger certificates_never_updated that refuses changes" in out
     assert ("  FD-2026-000001: altered: its content no longer matches its record hash"
             in out)  # fmt: skip
+
+
+def test_withdraw_keeps_both_records_with_the_reason(tmp_path, capsys):
+    """regression: a withdrawal is a record of its own (its number, the reason, who decided),
+    chained and verified; the withdrawn certificate can then be neither withdrawn nor replaced
+    again; a reason with a control character is refused."""
+    path = tmp_path / "r.sqlite"
+    db = Records(path)
+    a = db.issue(result={}, input_hashes={"/d/t.csv": "1" * 64}, approved_by="R. Checker")
+    args = ["records", "--records", str(path), "withdraw", a.number, "--approved-by", "Q. Lead"]
+    assert _run([*args, "--reason", "wrong specimen measured"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith(f"certificate {a.number} withdrawn by Q. Lead (withdrawal record "
+                          f"FD-{a.number[3:7]}-000002, record hash ")  # fmt: skip
+    w = db.get(f"FD-{a.number[3:7]}-000002")
+    assert (w.kind, w.replaces, w.reason, w.approved_by) == (
+        "withdrawal",
+        a.number,
+        "wrong specimen measured",
+        "Q. Lead",
+    )
+    assert db.get(a.number).replaced_by == w.number
+    assert _run(["records", "--records", str(path), "list"]) == 0
+    assert f"(withdraws {a.number}: wrong specimen measured)" in capsys.readouterr().out
+    with pytest.raises(ValueError, match=rf"replaces: certificate '{a.number}' was withdrawn"):
+        _run([*args, "--reason", "again"])
+    with pytest.raises(ValueError, match=r"--reason: give plain text \(no control characters\)"):
+        _run([*args, "--reason", "x\x1b[2J"])
+    assert db.verify().ok

@@ -640,3 +640,18 @@ def test_multi_line_notes_and_accents_are_text(job_dir):
     text = _edit('notes = "Three throws', 'notes = """Grüße,\n\tthree throws')
     text = text.replace('indoor hall."', 'indoor hall."""', 1)
     assert load_job(_write(job_dir, text)).test.notes.startswith("Grüße,\n\tthree")
+
+
+def test_specimen_denser_than_any_solid_is_refused(job_dir):
+    """published-value: 24 kg in a 40 mm sphere (π d³/6 = 3.351e-5 m³) is 7.16e5 kg/m³, far
+    above osmium's 22 590 kg/m³ (CRC Handbook, 97th ed., 2016): refused as a unit slip; the
+    template's 2.7 g ball (81 kg/m³) is taken."""
+    text = _edit("mass = 0.0027 ", "mass = 24 ")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, 'mass = ')}: [specimen] mass: 24 kg in a diameter of 0.04 m "
+        "is 7.16e+05 kg/m³, denser than any solid (osmium, 22590 kg/m³): a unit slip? Give the "
+        'mass in kg (e.g. 0.024) or with its unit ("24 g"), and the diameter likewise.'
+    )
+    assert load_job(_write(job_dir, TEMPLATE)).specimen.mass.value == 0.0027

@@ -491,3 +491,38 @@ def test_version_1_database_is_chained_on_first_use(tmp_path):
     assert db.verify().ok
     assert _issue(db).number == "FD-2026-000003"
     assert db.verify().ok
+
+
+def _folder_worker(args):
+    path, folder, n = args
+    Path(folder).mkdir(exist_ok=True)
+    db = Records(path)
+    make = _files_render(Path(folder))(db)
+    return [db.issue(make, result=RESULT, input_hashes=HASHES, issued_at=WHEN).number
+            for _ in range(n)]  # fmt: skip
+
+
+def test_concurrent_runs_from_several_folders_share_one_chain(tmp_path):
+    """regression: 4 processes, each issuing 5 certificates with files into its own folder,
+    on one laboratory database: 20 distinct gap-free numbers, no file overwritten, and the
+    chain and all 60 files verify."""
+    path = tmp_path / "lab.sqlite"
+    jobs = [(str(path), str(tmp_path / f"folder{i}"), 5) for i in range(4)]
+    with mp.get_context("fork").Pool(4) as pool:
+        results = pool.map(_folder_worker, jobs)
+    numbers = [n for r in results for n in r]
+    assert sorted(parse_number(n)[2] for n in numbers) == list(range(1, 21))
+    v = Records(path).verify()
+    assert v.ok, v.findings
+    assert v.records == 20 and v.files == 60
+
+
+def test_find_inputs_matches_the_same_files_and_job_text(tmp_path):
+    """regression: an identical re-run is the same input digests (in any order of paths) and
+    the same job text; another job text or another file is not."""
+    db = Records(tmp_path / "r.sqlite")
+    a = _issue(db, input_hashes={"/a/job.toml": "1" * 64, "/a/t.csv": "2" * 64}, job_text="J")
+    _issue(db, input_hashes={"/a/job.toml": "1" * 64, "/a/t.csv": "3" * 64}, job_text="J")
+    moved = {"/b/t.csv": "2" * 64, "/b/job.toml": "1" * 64}
+    assert [r.number for r in db.find_inputs(moved, "J")] == [a.number]
+    assert db.find_inputs(moved, "J edited") == []

@@ -8,7 +8,7 @@ import math
 import re
 from pathlib import Path
 
-from fitdrag.errors import EXIT_RECORDS_NOT_INTACT
+from fitdrag.errors import EXIT_RECORDS_NOT_INTACT, InputError
 
 #: The default records database: fitdrag.run.records.DEFAULT_FILENAME, written out so that
 #: building the parser does not load the records module (a test checks that the two agree).
@@ -61,6 +61,14 @@ def register(subparsers) -> argparse.ArgumentParser:
     exp = sub.add_parser("export", parents=[common], help="write a CSV summary of every record")
     exp.add_argument("csv", metavar="CSV", help="output CSV file")
     exp.add_argument("--force", action="store_true", help="overwrite an existing CSV file")
+    wd = sub.add_parser(
+        "withdraw", parents=[common],
+        help="withdraw a certificate without a replacement (a withdrawal record with the reason)",
+    )  # fmt: skip
+    wd.add_argument("number", metavar="NUMBER", help="certificate to withdraw")
+    wd.add_argument("--reason", metavar="TEXT", required=True, help="why (kept in the records)")
+    wd.add_argument("--approved-by", metavar="NAME", required=True,
+                    help="who decided the withdrawal")  # fmt: skip
     ver = sub.add_parser(
         "verify", parents=[common],
         help="re-compute the hash chain and the files' hashes; exit 7 naming what was altered",
@@ -102,7 +110,8 @@ def run(args) -> int:
                 f"{'Cd':>8} {'U':>8}  decision")  # fmt: skip
         print(head)
         for r in recs:
-            note = f" (replaces {r.replaces}: {shown(r.reason)})" if r.replaces else ""
+            verb = "withdraws" if r.kind == "withdrawal" else "replaces"
+            note = f" ({verb} {r.replaces}: {shown(r.reason)})" if r.replaces else ""
             note += f" [replaced by {r.replaced_by}]" if r.replaced_by else ""
             print(
                 f"{r.number:<16} {shown(r.issued_at):<25} {shown(r.approved_by):<16} "
@@ -144,6 +153,15 @@ def run(args) -> int:
         if args.job:
             print("job file text:")
             print(shown_block(r.job_text or ""))
+        return 0
+    if args.action == "withdraw":
+        for name, text in (("--reason", args.reason), ("--approved-by", args.approved_by)):
+            if not (text or "").strip() or shown(text) != text:
+                raise InputError(f"{name}: give plain text (no control characters), got "
+                                 f"{shown(text)!r}.")  # fmt: skip
+        rec = db.withdraw(args.number, reason=args.reason.strip(), approved_by=args.approved_by)
+        print(f"certificate {args.number} withdrawn by {rec.approved_by} (withdrawal record "
+              f"{rec.number}, record hash {rec.record_hash})")  # fmt: skip
         return 0
     if args.action == "verify":
         v = db.verify(check_files=not args.no_files)

@@ -241,6 +241,11 @@ _REQUIRED_HINT = {
 }
 
 
+#: Density of osmium, the densest element, at 20 °C (CRC Handbook of Chemistry and Physics,
+#: 97th ed., 2016, "Physical constants of inorganic compounds": 22.59 g/cm³): a specimen
+#: denser than this is a unit slip. [kg/m³]
+DENSEST_SOLID = 22_590.0
+
 #: Largest relative standard uncertainty of the specimen's mass, diameter, area or volume taken
 #: without confirmation: a larger one is more often a unit slip (an uncertainty in kg beside a
 #: mass in g) than a real weighing or gauging (common practice, no source). [1]
@@ -314,6 +319,17 @@ def _specimen(where, d):
         base = key.removesuffix("_uncertainty")
         if key.endswith("_uncertainty") and base not in d:
             fail(f"{where.key(sec, None, key)}: given without {base}; add {base} or remove it.")
+    volume = (math.pi / 6.0 * out["diameter"].value ** 3 if "diameter" in out
+              else out["volume"].value)  # fmt: skip
+    density = out["mass"].value / volume
+    if density > DENSEST_SOLID:
+        key = "diameter" if "diameter" in out else "volume"
+        fail(
+            f"{where.key(sec, None, 'mass')}: {out['mass'].value:.4g} kg in a {key} of "
+            f"{out[key].value:.4g} {out[key].unit} is {density:.3g} kg/m³, denser than any "
+            f"solid (osmium, {DENSEST_SOLID:g} kg/m³): a unit slip? Give the mass in kg "
+            f'(e.g. 0.024) or with its unit ("24 g"), and the {key} likewise.'
+        )
     ca = d.get("added_mass_coefficient", 0.5)
     out["added_mass_coefficient"] = Measured(
         ca, d.get("added_mass_coefficient_uncertainty", 0.0), ""

@@ -63,8 +63,9 @@ DEFAULT_FILENAME = "records.sqlite"
 #: The ``previous_seal`` of the first record of a chain.
 GENESIS = "0" * 64
 
-#: Record kinds this version writes (``kind`` column).
-KINDS = ("certificate",)
+#: Record kinds this version writes (``kind`` column): an issued certificate, and the notice
+#: that withdraws one without a replacement (its ``replaces`` names the certificate).
+KINDS = ("certificate", "withdrawal")
 
 _SCHEMA_VERSION = 2
 
@@ -620,6 +621,23 @@ class Records:
             _publish(Path(pf.temporary), Path(pf.final))
         return self.get(number)
 
+    def withdraw(self, number: str, *, reason: str, approved_by: str,
+                 prefix: str | None = None) -> Record:  # fmt: skip
+        """Withdraw certificate ``number`` without a replacement: a withdrawal record (its own
+        number, ``replaces`` = ``number``, the reason and who decided), chained like any
+        record; the certificate's record stays as it was."""
+        if not (approved_by or "").strip():
+            raise InputError("approved_by: a withdrawal is decided by a named person; give it.")
+        return self.issue(
+            result={"withdraws": number, "reason": reason},
+            input_hashes={},
+            replaces=number,
+            reason=reason,
+            approved_by=approved_by.strip(),
+            prefix=prefix or parse_number(number)[0],
+            kind="withdrawal",
+        )
+
     def _write_head(self, con: sqlite3.Connection) -> None:
         """Write the head file from the database's last record (inside a transaction that
         holds the write lock, so heads are written in the order of the records)."""
@@ -677,8 +695,13 @@ class Records:
                 f"number with 'fitdrag records list'."
             )
         row = con.execute(
-            "SELECT number FROM certificates WHERE replaces = ?", (number,)
+            "SELECT number, kind FROM certificates WHERE replaces = ?", (number,)
         ).fetchone()
+        if row is not None and row[1] == "withdrawal":
+            raise InputError(
+                f"replaces: certificate {number!r} was withdrawn (withdrawal record "
+                f"{row[0]!r}); issue a new certificate instead, without --replaces."
+            )
         if row is not None:
             raise InputError(
                 f"replaces: certificate {number!r} was already replaced by {row[0]!r}; "
@@ -749,8 +772,13 @@ class Records:
         """Records made from the same input files (same SHA-256 digests) and the same job
         text: an identical re-run."""
         want = sorted(input_hashes.values())
-        return [r for r in self.list() if sorted(r.input_hashes.values()) == want
-                and (r.job_text or "") == (job_text or "")]  # fmt: skip
+        with self._connect() as con:
+            rows = con.execute(
+                "SELECT number, input_hashes, job_text FROM certificates ORDER BY chain_index"
+            ).fetchall()
+        same = [n for n, h, text in rows
+                if sorted(json.loads(h).values()) == want and (text or "") == (job_text or "")]  # fmt: skip
+        return [self.get(n) for n in same]
 
     def __len__(self) -> int:
         with self._connect() as con:
