@@ -526,3 +526,13 @@ def test_find_inputs_matches_the_same_files_and_job_text(tmp_path):
     moved = {"/b/t.csv": "2" * 64, "/b/job.toml": "1" * 64}
     assert [r.number for r in db.find_inputs(moved, "J")] == [a.number]
     assert db.find_inputs(moved, "J edited") == []
+
+
+def test_whole_numbers_in_the_summary_hash_as_stored(tmp_path):
+    """regression: a coverage factor given as the int 2 is stored as REAL 2.0; the record
+    hash is of the value read back, so the chain verifies; a non-finite Cd is refused."""
+    db = Records(tmp_path / "r.sqlite")
+    rec = _issue(db, summary={"coverage_factor": 2, "drag_coefficient": 1})
+    assert rec.coverage_factor == 2.0 and db.verify().ok
+    with pytest.raises(ValueError, match=r"summary: drag_coefficient must be finite, got nan"):
+        _issue(db, summary={"drag_coefficient": float("nan")})

@@ -44,6 +44,7 @@ import csv
 import hashlib
 import io
 import json
+import math
 import os
 import re
 import sqlite3
@@ -528,6 +529,14 @@ class Records:
         unknown = set(summary) - set(_SUMMARY_FIELDS)
         if unknown:
             raise InputError(f"summary: unknown field(s) {sorted(unknown)}.")
+        for k in ("drag_coefficient", "expanded_uncertainty", "coverage_factor"):
+            # stored as SQLite REAL: hashed as the float it reads back as (2 -> 2.0)
+            v = summary.get(k)
+            if v is not None:
+                v = float(v)
+                if not math.isfinite(v):
+                    raise InputError(f"summary: {k} must be finite, got {v!r}.")
+                summary[k] = v
         result = json.loads(_json("result", dict(result)))
         input_hashes = json.loads(_json("input_hashes", dict(input_hashes)))
         if replaces is not None:
