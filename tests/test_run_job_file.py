@@ -475,6 +475,9 @@ def test_views_throw_parses_each_camera(footage_dir):
          r"reference \(offset 0\)"),
         (_VIEW + _VIEW + "time_offset_uncertainty = 0.001\n",
          r"\[\[throws\.views\]\] #2 time_offset_uncertainty: given without time_offset"),
+        (_VIEW + _VIEW + "time_offset = 0.0004\n",
+         r"\[\[throws\.views\]\] #2 time_offset_uncertainty: missing; give the standard "
+         r"uncertainty of the stated time offset"),
         (_VIEW + "readout_time = 0.001\n",
          r"\[\[throws\.views\]\] #1 readout_time_uncertainty: missing; give the standard "
          r"uncertainty of the readout time"),
@@ -655,3 +658,16 @@ def test_specimen_denser_than_any_solid_is_refused(job_dir):
         'mass in kg (e.g. 0.024) or with its unit ("24 g"), and the diameter likewise.'
     )
     assert load_job(_write(job_dir, TEMPLATE)).specimen.mass.value == 0.0027
+
+
+def test_stated_values_need_their_uncertainty(job_dir):
+    """regression: an added-mass coefficient stated without its uncertainty is refused (no
+    silent exact input); left out, the sphere's 0.5 is the model's constant."""
+    text = _edit("# added_mass_coefficient = 0.5 ", "added_mass_coefficient = 0.5 ")
+    with pytest.raises(ValueError, match=r"\[specimen\] added_mass_coefficient_uncertainty: "
+                       r"missing; give the standard uncertainty of the stated added-mass "
+                       r"coefficient"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("# added_mass_coefficient_uncertainty = 0.0", "added_mass_coefficient_uncertainty"
+                 " = 0.02", text)  # fmt: skip
+    assert load_job(_write(job_dir, text)).specimen.added_mass_coefficient.uncertainty == 0.02

@@ -330,6 +330,10 @@ def _specimen(where, d):
             f"solid (osmium, {DENSEST_SOLID:g} kg/m³): a unit slip? Give the mass in kg "
             f'(e.g. 0.024) or with its unit ("24 g"), and the {key} likewise.'
         )
+    if "added_mass_coefficient" in d and "added_mass_coefficient_uncertainty" not in d:
+        missing(where, sec, None, "added_mass_coefficient_uncertainty",
+                "give the standard uncertainty of the stated added-mass coefficient (write 0 if "
+                "you take it as exact), or leave both out for a sphere's 0.5.")  # fmt: skip
     ca = d.get("added_mass_coefficient", 0.5)
     out["added_mass_coefficient"] = Measured(
         ca, d.get("added_mass_coefficient_uncertainty", 0.0), ""
@@ -634,6 +638,11 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
                     f"{where.key(vs, gi, 'time_offset')}: the first view is the time reference "
                     f"(offset 0); give the other views' offsets relative to it."
                 )
+            if j > 0 and "time_offset_uncertainty" not in d:
+                missing(where, vs, gi, "time_offset_uncertainty",
+                        "give the standard uncertainty of the stated time offset in s (e.g. "
+                        '"0.01 ms"; write 0 if you take it as exact), or leave time_offset out '
+                        "to have it estimated.")  # fmt: skip
             offset = Measured(d["time_offset"], d.get("time_offset_uncertainty", 0.0), "s")
         elif "time_offset_uncertainty" in d:
             fail(
