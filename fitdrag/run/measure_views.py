@@ -175,6 +175,12 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
             data = src.footage if src.track is None else src.track
             digest = footage_sha256(data) if src.track is None else file_sha256(data)
             hashes[str(data)] = digest
+            if src.track is not None:  # the footage the track's header names, when present
+                from fitdrag.run.pipeline import footage_behind
+
+                behind = footage_behind(src.track, ft.track)
+                if behind is not None:
+                    hashes[str(behind)] = footage_sha256(behind)
             for extra in (src.lens, src.marker_layout):
                 if extra is not None:
                     hashes[str(extra)] = file_sha256(extra)
