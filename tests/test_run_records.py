@@ -7,6 +7,7 @@ import dataclasses
 import hashlib
 import json
 import multiprocessing as mp
+import os
 import sqlite3
 import time
 from datetime import UTC, datetime
@@ -536,3 +537,33 @@ def test_whole_numbers_in_the_summary_hash_as_stored(tmp_path):
     assert rec.coverage_factor == 2.0 and db.verify().ok
     with pytest.raises(ValueError, match=r"summary: drag_coefficient must be finite, got nan"):
         _issue(db, summary={"drag_coefficient": float("nan")})
+
+
+def _die_after_commit(args):
+    import fitdrag.run.records as records_module
+
+    path, folder = args
+    records_module._publish = lambda tmp, final: os._exit(9)  # killed before the renaming
+    db = Records(path)
+    db.issue(_files_render(Path(folder))(db), result=RESULT, input_hashes=HASHES, issued_at=WHEN)
+
+
+def test_files_of_a_run_killed_after_its_commit_are_completed(tmp_path):
+    """regression: a run killed between the commit and the renaming leaves a record whose
+    files are temporary; verify names them missing; the next run in the folder gives them
+    their final names (SHA-256 as recorded) and removes every other leftover."""
+    path = tmp_path / "r.sqlite"
+    proc = mp.get_context("fork").Process(target=_die_after_commit, args=((path, tmp_path),))
+    proc.start()
+    proc.join()
+    assert proc.exitcode == 9
+    db = Records(path)
+    (rec,) = db.list()
+    assert not Path(rec.outputs["certificate_pdf"]).exists()
+    assert len(list(tmp_path.glob(".FD-*.tmp"))) == 3
+    assert any("is missing" in str(f) for f in db.verify().findings)
+    stray = tmp_path / f".FD-2026-000099.pdf.{proc.pid}.tmp"
+    stray.write_text("not a recorded file")
+    done = db.finish_interrupted(tmp_path)
+    assert sorted(p.name for p in done) == [f"{rec.number}.{e}" for e in ("json", "pdf", "png")]
+    assert db.verify().ok and not list(tmp_path.glob(".*.tmp"))

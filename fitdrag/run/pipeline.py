@@ -802,7 +802,7 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, a
         The record (its ``decision`` is the conformity decision) and where the records
         database is, and why there.
     """
-    from fitdrag.run.records import PendingFile, Records, clean_leftovers, lab_records
+    from fitdrag.run.records import PendingFile, Records, lab_records
 
     del force  # issued certificate files are never overwritten
     job = meas.job
@@ -814,7 +814,7 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, a
     outdir.mkdir(parents=True, exist_ok=True)
     where.path.parent.mkdir(parents=True, exist_ok=True)
     db = Records(where.path)
-    clean_leftovers(outdir)
+    db.finish_interrupted(outdir)  # files of a run killed after its commit; other leftovers go
     if replaces is None:
         same = db.find_inputs(meas.hashes, job.text)
         if same:

@@ -647,6 +647,33 @@ class Records:
             kind="withdrawal",
         )
 
+    def finish_interrupted(self, folder: str | os.PathLike) -> list[Path]:
+        """Give their final names to the files of committed records that a run killed between
+        its commit and the renaming left as temporary files in ``folder`` (their SHA-256 must
+        be the one recorded), then remove every other leftover of a dead process
+        (:func:`clean_leftovers`).  Returns the files completed."""
+        folder = Path(folder)
+        if not folder.is_dir():
+            return []
+        wanted: dict[str, str] = {}
+        with self._connect() as con:
+            for outputs, hashes in con.execute("SELECT outputs, file_hashes FROM certificates"):
+                outs, hs = json.loads(outputs), json.loads(hashes)
+                for k, path in outs.items():
+                    if Path(path).parent == folder.resolve() and k in hs:
+                        wanted[Path(path).name] = hs[k]
+        done = []
+        for tmp in folder.glob(".*.tmp"):
+            m = re.match(r"^\.(.+)\.(\d+)\.tmp$", tmp.name)
+            if not m or m.group(1) not in wanted or _process_alive(int(m.group(2))):
+                continue
+            final = folder / m.group(1)
+            if not final.exists() and sha256_file(tmp) == wanted[m.group(1)]:
+                _publish(tmp, final)
+                done.append(final)
+        clean_leftovers(folder)
+        return done
+
     def _write_head(self, con: sqlite3.Connection) -> None:
         """Write the head file from the database's last record (inside a transaction that
         holds the write lock, so heads are written in the order of the records)."""
