@@ -226,11 +226,13 @@ def test_customer_document_wording(tmp_path):
         specimen=dataclasses.replace(content.specimen, mass=Estimate(0.024, 2e-5),
                                      shown_units={"mass": "g"}),
         fit=dataclasses.replace(content.fit, noise_model="ar1"),
+        conditions=dataclasses.replace(content.conditions, shown_units={"pressure": "hPa"}),
     )  # fmt: skip
     pdf = tmp_path / "c.pdf"
     n = render_certificate(content, pdf, curves=_curves())
     flat = " ".join(_text(pdf)[1].replace("\xa0", " ").split())
     assert "Mass 24.000 g (standard uncertainty 0.020 g)" in flat
+    assert "Air pressure 1008.00 hPa (standard uncertainty 0.50 hPa)" in flat  # 100800 ± 50 Pa
     assert "0.002700 0.000010 kg" in flat
     assert "noise model ar1" not in flat and "ar1" not in flat
     assert "position errors correlated from frame to frame" in flat

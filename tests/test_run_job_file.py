@@ -50,6 +50,9 @@ def test_units_in_strings_are_converted(job_dir):
     assert job.air.temperature.uncertainty == pytest.approx(0.3)
     assert job.specimen.diameter.value == pytest.approx(0.040)
     assert job.camera.scale_relative_uncertainty == pytest.approx(0.002)
+    # the units as written, for the certificate to show them so
+    assert dict(job.specimen.shown_units) == {"mass": "g", "diameter": "mm"}
+    assert dict(job.air.shown_units) == {"pressure": "hPa"}
 
 
 @pytest.mark.parametrize(

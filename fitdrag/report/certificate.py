@@ -318,7 +318,10 @@ def build_layout(
         (cond.pressure, "Air pressure", "Pa"),
         (cond.relative_humidity, "Relative humidity", "%"),
     ):
-        if est is not None:
+        if est is not None and label == "Air pressure":
+            shown = (cond.shown_units or {}).get("pressure")
+            rows.append((label, _pm_shown(est, "Pa", shown, "Pa")))
+        elif est is not None:
             rows.append((label, _pm(est, unit)))
     rows.append(("Air density", _sourced(_pm(cond.air_density, "kg/m³"),
                                          cond.air_density_source)))  # fmt: skip

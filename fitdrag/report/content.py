@@ -229,6 +229,8 @@ class Conditions:
     pressure: Estimate | None = None
     relative_humidity: Estimate | None = None
     air_speed_uncertainty: float | None = None
+    #: The unit the job gave the pressure in (``{"pressure": "hPa"}``), for the certificate.
+    shown_units: Mapping[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {}

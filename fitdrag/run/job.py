@@ -135,6 +135,8 @@ class AirSection:
     density: Measured | None = None
     viscosity: Measured | None = None
     air_speed_uncertainty: float | None = None
+    #: The unit the job wrote the pressure in ("hPa"): the certificate shows it so.
+    shown_units: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)

@@ -166,6 +166,10 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
                   if isinstance(raw_specimen.get(k), str) and unit_of_text(raw_specimen[k]))  # fmt: skip
     specimen = dataclasses.replace(specimen, shown_units=shown)
     air = _air(where, parsed["air"])
+    raw_air = data.get("air") or {}
+    if isinstance(raw_air.get("pressure"), str) and unit_of_text(raw_air["pressure"]):
+        air = dataclasses.replace(air, shown_units=(("pressure",
+                                                     unit_of_text(raw_air["pressure"])),))  # fmt: skip
     site = _site(where, parsed["site"])
     camera = _camera(where, parsed["camera"])
     throws = _throws(where, data["throws"], folder, check_files)

@@ -650,6 +650,7 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
             gravity_source=job.site.gravity_source,
             wind=wind,
             air_speed_uncertainty=a.air_speed_uncertainty,
+            shown_units=dict(a.shown_units),
         ),
         camera=camera,
         footage=footage,
