@@ -525,21 +525,24 @@ def render_certificate(
             meta["CreationDate"] = datetime.fromisoformat(str(issued))
         except ValueError:
             pass
+    draft = cert is not None and cert.draft
+    running = "DRAFT: not reviewed, not for release" if draft else f"Certificate {number}"
+    running_weight = "bold" if draft else "normal"
     with matplotlib.rc_context({"pdf.fonttype": 42}):
         with PdfPages(pdf_path, metadata=meta) as pdf:
             for i, page in enumerate(pages):
                 fig = Figure(figsize=(PAGE_W, PAGE_H))
                 put_text(fig, MARGIN_L, MARGIN_T - 0.35, lab, size=7.5, style="italic")
-                put_text(fig, PAGE_W - MARGIN_R, MARGIN_T - 0.35, f"Certificate {number}",
-                         size=7.5, ha="right")  # fmt: skip
+                put_text(fig, PAGE_W - MARGIN_R, MARGIN_T - 0.35, running,
+                         size=7.5, ha="right", weight=running_weight)  # fmt: skip
                 fig.add_artist(hline(fig, MARGIN_L, PAGE_W - MARGIN_R, MARGIN_T - 0.15, lw=0.4))
                 for block, y in page:
                     block.draw(fig, y)
                 fig.add_artist(
                     hline(fig, MARGIN_L, PAGE_W - MARGIN_R, PAGE_H - MARGIN_B + 0.2, lw=0.4)
                 )
-                put_text(fig, MARGIN_L, PAGE_H - MARGIN_B + 0.27, f"Certificate {number}",
-                         size=7.5)  # fmt: skip
+                put_text(fig, MARGIN_L, PAGE_H - MARGIN_B + 0.27, running, size=7.5,
+                         weight=running_weight)  # fmt: skip
                 put_text(fig, PAGE_W - MARGIN_R, PAGE_H - MARGIN_B + 0.27, f"Page {i + 1} of {n}",
                          size=7.5, ha="right")  # fmt: skip
                 if cert is not None and cert.draft:
@@ -551,11 +554,9 @@ def render_certificate(
 
 
 def _draft_mark(fig) -> None:
-    """A large diagonal "DRAFT" across the page, and a line in the header."""
+    """A large diagonal "DRAFT" across the page (the running header and footer say it too)."""
     fig.text(0.5, 0.5, "DRAFT", fontsize=110, color=(0.85, 0.1, 0.1), alpha=0.22,
              rotation=52, ha="center", va="center", weight="bold")  # fmt: skip
-    put_text(fig, PAGE_W / 2, MARGIN_T - 0.35, "DRAFT: not reviewed, not for release",
-             size=8.0, ha="center", weight="bold")  # fmt: skip
 
 
 def write_certificate(
