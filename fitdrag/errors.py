@@ -21,6 +21,7 @@ __all__ = [
     "EXIT_FAIL",
     "EXIT_NO_CONVERGENCE",
     "EXIT_OK",
+    "EXIT_OUT_OF_CONTROL",
     "FitdragError",
     "InputError",
     "InputFileNotFoundError",
@@ -42,6 +43,8 @@ EXIT_FAIL = 4
 EXIT_CONDITIONAL_PASS = 5
 #: Certificate issued; the decision is a conditional fail (guarded acceptance).
 EXIT_CONDITIONAL_FAIL = 6
+#: ``fitdrag records chart``: the latest result of the check standard is out of control.
+EXIT_OUT_OF_CONTROL = 7
 
 
 #: Each conformity decision (the strings of :mod:`fitdrag.uncertainty.decision`) and the exit

@@ -108,4 +108,10 @@ def run(args) -> int:
     for kind, path in rec.outputs.items():
         print(f"  {kind:<16} {path}")
     print(f"  {'record':<16} {db_path}")
+    if job.test.check_standard:
+        from fitdrag.run.check_standard import check_standard_warning
+
+        note = check_standard_warning(job, db_path)
+        if note:
+            print(f"fitdrag run: WARNING: {note}", file=sys.stderr)
     return exit_code_for_decision(None if meas.verdict is None else meas.verdict.decision)

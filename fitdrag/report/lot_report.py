@@ -203,4 +203,3 @@ def render_lot_report(data: Mapping, pdf_path: str | os.PathLike,
                 if i == 0 and png_path is not None:
                     fig.savefig(png_path, format="png", dpi=dpi, facecolor="white")
     return n
-

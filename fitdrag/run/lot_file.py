@@ -329,7 +329,7 @@ def load_lot(path: str | Path, *, check_files: bool = True) -> Lot:
         if not isinstance(throws, list) or not throws:
             raise InputError(
                 f"{at('specimens', i, 'throws' if 'throws' in sp else None)}: {name} throws: "
-                f'missing or empty; give a list of track or footage files, e.g. throws = '
+                f"missing or empty; give a list of track or footage files, e.g. throws = "
                 f'["{sid}_throw1.csv", "{sid}_throw2.csv"].'
             )
         tables = []

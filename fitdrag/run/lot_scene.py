@@ -180,8 +180,7 @@ def write_lot(folder: str | os.PathLike, scene: LotScene = LotScene(), *,
         "",
         "[lot]",
         f'id = "{lot_id}"',
-        'description = "Training ball, 40 mm, smooth plastic shell, lot of July 2026 '
-        '(synthetic)"',
+        'description = "Training ball, 40 mm, smooth plastic shell, lot of July 2026 (synthetic)"',
         f'job = "{name}_base.toml"',
         "coverage = 0.95",
         "confidence = 0.95",
@@ -225,9 +224,16 @@ def write_lot(folder: str | os.PathLike, scene: LotScene = LotScene(), *,
     lot_file.write_text("\n".join(lines) + "\n", encoding="utf-8")
     base = folder / f"{name}_base.toml"
     base.write_text(
-        BASE_JOB.format(temperature=sc.temperature, pressure=sc.pressure,
-                        relative_humidity=sc.relative_humidity, gravity=sc.gravity, fps=sc.fps,
-                        lower=sc.lower, upper=sc.upper, output=output),  # fmt: skip
+        BASE_JOB.format(
+            temperature=sc.temperature,
+            pressure=sc.pressure,
+            relative_humidity=sc.relative_humidity,
+            gravity=sc.gravity,
+            fps=sc.fps,
+            lower=sc.lower,
+            upper=sc.upper,
+            output=output,
+        ),  # fmt: skip
         encoding="utf-8",
     )
     truth["true_spread_of_these_specimens"] = float(np.std(list(true_cd.values()), ddof=1))
