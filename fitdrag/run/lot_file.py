@@ -347,7 +347,14 @@ def load_lot(path: str | Path, *, check_files: bool = True) -> Lot:
             for k in _PATH_KEYS:
                 if isinstance(th.get(k), str):
                     p = Path(th[k]).expanduser()
-                    th[k] = str(p if p.is_absolute() else folder / p)
+                    p = p if p.is_absolute() else folder / p
+                    if check_files and k in ("track", "footage") and not p.exists():
+                        raise InputFileNotFoundError(
+                            f"{at('specimens', i, 'throws')}: {name} throws #{j + 1} {k}: no "
+                            f"such file {str(p)!r}; paths are relative to the lot file's folder "
+                            f"{str(folder)!r}."
+                        )
+                    th[k] = str(p)
             th.setdefault("label", f"{sid} throw {j + 1}")
             tables.append(th)
         own.setdefault("description", description or f"specimen of lot {lot['id']}")

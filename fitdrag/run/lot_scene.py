@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-__all__ = ["LotScene", "SyntheticLot", "write_lot"]
+__all__ = ["LotScene", "SyntheticLot", "write_footage_lot", "write_lot"]
 
 
 @dataclass(frozen=True)
@@ -240,3 +240,58 @@ def write_lot(folder: str | os.PathLike, scene: LotScene = LotScene(), *,
     tf = folder / f"{name}_truth.json"
     tf.write_text(json.dumps(truth, indent=1) + "\n", encoding="utf-8")
     return SyntheticLot(lot_file, base, true_cd, tf)
+
+
+def write_footage_lot(folder: str | os.PathLike, base_job: str | os.PathLike,
+                      footage: str | os.PathLike, *, specimens: int = 4, throws: int = 2,
+                      mass: float = 0.0240, mass_uncertainty: float = 0.00002,
+                      diameter: float = 0.0650, diameter_uncertainty: float = 0.00008,
+                      throw_options: dict | None = None) -> Path:  # fmt: skip
+    """Write a lot file whose every throw is the same footage file (for the task machinery
+    and its throughput: each throw is still tracked on its own).
+
+    Parameters
+    ----------
+    folder : path-like
+        Where the lot file goes (``footage_lot.toml``).
+    base_job, footage : path-like
+        The base job and the footage (e.g. ``sample_tracks/foam_ball_clip.toml`` and its
+        clip).
+    specimens, throws : int
+        Specimens, and throws per specimen.
+    mass, mass_uncertainty : float
+        Every specimen's stated mass and its standard uncertainty. [kg]
+    diameter, diameter_uncertainty : float
+        Stated diameter and its standard uncertainty. [m]
+    throw_options : dict, optional
+        ``[lot.throw_options]`` (default: markers of 0.16 m, relative uncertainty 0.001, as
+        the sample clip).
+    """
+    folder = Path(folder)
+    opts = throw_options or {"markers": 0.16, "scale_uncertainty": 0.001}
+    fp = Path(footage).resolve()
+    lines = [
+        "# A lot whose every throw is the same synthetic clip (SYNTHETIC: for the task",
+        "# machinery and its throughput; every throw is tracked on its own).",
+        "[lot]",
+        'id = "CLIP-LOT"',
+        'description = "Foam training balls (synthetic clip, repeated)"',
+        f"job = {json.dumps(str(Path(base_job).resolve()))}",
+        "",
+        "[lot.throw_options]",
+        *(f"{k} = {v!r}" for k, v in opts.items()),
+    ]
+    for i in range(specimens):
+        lines += [
+            "",
+            "[[specimens]]",
+            f'id = "FB-{i + 1:02d}"',
+            f"mass = {mass!r}",
+            f"mass_uncertainty = {mass_uncertainty!r}",
+            f"diameter = {diameter!r}",
+            f"diameter_uncertainty = {diameter_uncertainty!r}",
+            "throws = [" + ", ".join([json.dumps(str(fp))] * throws) + "]",
+        ]
+    out = folder / "footage_lot.toml"
+    out.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return out

@@ -18,8 +18,8 @@ tasks ran: each task is a pure function of its arguments.
 from __future__ import annotations
 
 import os
-from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 from typing import Any
 
 from fitdrag.errors import InputError
@@ -81,7 +81,6 @@ class TaskOutcome:
     value: Any = None
     error: BaseException | None = None
     failed_task: str = ""
-    extra: Mapping = field(default_factory=dict)
 
     @property
     def ok(self) -> bool:
@@ -190,7 +189,7 @@ def run_tasks(tasks: Sequence[Task], *, scheduler: str | None = None,
 
         if scheduler is not None:
             try:
-                client = Client(scheduler, timeout="20s")
+                client = Client(scheduler, timeout="10s")
             except OSError as exc:
                 raise InputError(
                     f"--scheduler: no Dask scheduler answers at {scheduler!r} ({exc}); give the "

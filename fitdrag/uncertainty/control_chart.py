@@ -115,7 +115,7 @@ def limits_from_baseline(values: Sequence[float], n: int) -> ChartLimits:
     mr = float(np.mean(np.abs(np.diff(b))))
     if mr == 0:
         raise InputError(
-            f"baseline: the first {n} results are all equal ({b[0]!r}); no spread to set "
+            f"baseline: the first {n} results are all equal ({float(b[0])!r}); no spread to set "
             f"limits from: state --centre and --sigma."
         )
     return ChartLimits(float(np.mean(b)), mr / D2,
