@@ -1,0 +1,62 @@
+"""Tests of ``fitdrag lot``: lot file -> specimens -> lot statistics -> report -> record."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from fitdrag.cli import main
+from fitdrag.run.lot_scene import LotScene, write_lot
+from fitdrag.run.records import Records
+
+
+@pytest.fixture
+def lot_file(tmp_path):
+    return write_lot(tmp_path, LotScene(specimens=3, throws=2, frames=80)).lot_file
+
+
+def test_lot_in_this_process(lot_file, tmp_path, capsys):
+    """regression: prints every specimen and the lot, writes the report, JSON and one record;
+    the exit code follows the lot decision."""
+    code = main(["lot", str(lot_file), "--workers", "0", "--quiet"])
+    out = capsys.readouterr().out
+    for sid in ("TB-01", "TB-02", "TB-03"):
+        assert sid in out
+    assert "between-specimen SD" in out and "tolerance interval" in out
+    assert "lot report LOT-" in out
+    db = Records(tmp_path / "certificates" / "records.sqlite", create=False)
+    (rec,) = db.list()
+    data = json.loads(open(rec.outputs["result_json"], encoding="utf-8").read())
+    assert {"specimens", "summary"} <= set(data)
+    assert set(data["summary"]) >= {"mean", "standard_deviation", "tolerance_interval"}
+    assert (
+        code
+        == {"pass": 0, "fail": 4, "conditional pass": 5, "conditional fail": 6}[
+            data["summary"]["decision"]
+        ]
+    )
+
+
+def test_failed_specimen_exit_code(lot_file, tmp_path, capsys):
+    """regression: a specimen whose throw cannot be read: the others are printed, the failure
+    names the specimen and the file, no report, exit 2."""
+    (tmp_path / "training_ball_lot_tb03_throw2.csv").write_text("t,x\n0,1\n", encoding="utf-8")
+    code = main(["lot", str(lot_file), "--workers", "0", "--quiet"])
+    cap = capsys.readouterr()
+    assert code == 2
+    assert "TB-01" in cap.out and "FAILED" in cap.out
+    assert "fitdrag lot: specimen TB-03, files training_ball_lot_tb03_throw1.csv, " in cap.err
+    assert "1 of 3 specimen(s) failed; no lot report issued." in cap.err
+    assert not (tmp_path / "certificates" / "records.sqlite").exists()
+
+
+def test_option_errors(lot_file, capsys):
+    """regression: exact messages for bad options (exit 2)."""
+    assert main(["lot", str(lot_file), "--workers", "-1"]) == 2
+    assert "--workers: must be >= 0, got -1; 0 runs in this process." in capsys.readouterr().err
+    assert main(["lot", str(lot_file), "--workers", "2", "--scheduler", "tcp://x:1"]) == 2
+    assert (
+        "--workers: the cluster at --scheduler has its own workers; give one of the two."
+        in capsys.readouterr().err
+    )
