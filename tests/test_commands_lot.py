@@ -60,3 +60,27 @@ def test_option_errors(lot_file, capsys):
         "--workers: the cluster at --scheduler has its own workers; give one of the two."
         in capsys.readouterr().err
     )
+
+
+def test_readme_lot_example_prints_what_the_readme_shows(tmp_path, capsys):
+    """regression: the README's `fitdrag lot` example on sample_tracks/lot (copied to a
+    temporary folder, so its report goes there) prints the lines the README shows, before
+    the report's number and paths."""
+    import os
+    import shutil
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "README.md").read_text(encoding="utf-8")
+    block = text.split("$ cd sample_tracks/lot && fitdrag lot training_ball_lot.toml\n", 1)[1]
+    shown = block.split("```\n", 1)[0]
+    shutil.copytree(root / "sample_tracks" / "lot", tmp_path / "lot")
+    cwd = os.getcwd()
+    os.chdir(tmp_path / "lot")
+    try:
+        code = main(["lot", "training_ball_lot.toml", "--workers", "0", "--quiet"])
+    finally:
+        os.chdir(cwd)
+    out = capsys.readouterr().out
+    assert code == 4
+    assert out.split("lot report ", 1)[0] == shown

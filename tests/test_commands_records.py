@@ -119,8 +119,9 @@ def test_chart_flags_the_latest_and_exits_7(standard_db, tmp_path, capsys):
     code = _run(["records", "--records", str(path), "chart", "REF-40-A", "-o", str(png)])
     out = capsys.readouterr().out
     assert code == 7
-    assert f"centre {centre:.4g}, sigma {sigma:.2g}" in out
-    assert "point 13 REF-2026-000013 2026-06-13 Cd = 0.482: test 1: beyond 3 sigma" in out
+    assert f"centre line {centre:.4g}, sigma {sigma:.2g}" in out
+    assert "point 13 REF-2026-000013 2026-06-13 Cd = 0.482: tests 1" in out
+    assert "  test 1: beyond 3 sigma" in out
     assert "the latest result (REF-2026-000013) is out of control" in out
     assert png.read_bytes()[:4] == b"\x89PNG"
 
@@ -134,7 +135,7 @@ def test_chart_with_stated_limits_in_control(standard_db, capsys):
                  "--sigma", "0.0041"])  # fmt: skip
     out = capsys.readouterr().out
     assert code == 0
-    assert "0 point(s) out of control" in out and "(stated)" in out
+    assert "0 point(s) out of control" in out and "sigma 0.0041: stated" in out
 
 
 def test_chart_errors(standard_db):
@@ -149,3 +150,19 @@ def test_chart_errors(standard_db):
     with pytest.raises(ValueError) as e:
         _run(["records", "--records", str(path), "chart", "REF-40-A", "--centre", "0.47"])
     assert str(e.value) == "--centre, --sigma: give both (stated limits) or neither (estimated)."
+
+
+def test_readme_chart_example_prints_what_the_readme_shows(capsys):
+    """regression: the README's `fitdrag records chart` example on the sample check-standard
+    history prints exactly the output the README shows, and exits 7."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "README.md").read_text(encoding="utf-8")
+    cmd_line = (
+        "$ fitdrag records --records sample_tracks/check_standard/records.sqlite chart REF-40-A\n"
+    )
+    shown = text.split(cmd_line, 1)[1].split("```\n", 1)[0]
+    db = root / "sample_tracks" / "check_standard" / "records.sqlite"
+    assert _run(["records", "--records", str(db), "chart", "REF-40-A"]) == 7
+    assert capsys.readouterr().out == shown

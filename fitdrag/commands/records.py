@@ -87,11 +87,14 @@ def _chart(args) -> int:
                             centre=args.centre, sigma=args.sigma, lam=args.lam)  # fmt: skip
     ch = sc.chart
     lim = ch.limits
-    print(f"check standard {args.specimen}: {len(ch.values)} result(s); centre {lim.centre:.4g}, "
-          f"sigma {lim.sigma:.2g} ({lim.source}); EWMA lambda {ch.lam:g}, L {ch.L:g}")  # fmt: skip
+    print(f"check standard {args.specimen}: {len(ch.values)} result(s), oldest first")
+    print(f"  centre line {lim.centre:.4g}, sigma {lim.sigma:.2g}: {lim.source}")
+    print(f"  EWMA: lambda {ch.lam:g}, limits at L = {ch.L:g}")
     lines = sc.report_lines()
     print(f"{len(lines)} point(s) out of control" + (":" if lines else ""))
     for ln in lines:
+        print(ln)
+    for ln in sc.legend():
         print(ln)
     if args.output:
         print(f"chart written to {write_chart(sc, args.output, force=args.force)}")

@@ -48,10 +48,14 @@ class StandardChart:
         ch = self.chart
         out = []
         for i in ch.out_of_control:
-            rules = "; ".join(f"test {r}: {_rule_text(r)}" for r in ch.rules_at(i))
             out.append(f"  point {i + 1} {self.numbers[i]} {self.dates[i][:10]} Cd = "
-                       f"{ch.values[i]:.4g}: {rules}")  # fmt: skip
+                       f"{ch.values[i]:.4g}: tests {', '.join(ch.rules_at(i))}")  # fmt: skip
         return out
+
+    def legend(self) -> list[str]:
+        """One line per test that signalled: its code and what it means."""
+        used = sorted({s.rule for s in self.chart.signals}, key=lambda r: (r == "ewma", r))
+        return [f"  test {r}: {_rule_text(r)}" for r in used]
 
 
 def _rule_text(rule: str) -> str:
