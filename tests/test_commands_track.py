@@ -373,3 +373,33 @@ def test_camera_in_the_header_with_markers_layout_and_lens(footage, tmp_path, ca
                               "-o", str(tmp_path / "y.csv")], capsys)  # fmt: skip
     assert rc == 2 and "--readout-time: expected a time >= 0 s, got -0.001 s." in err
     assert not (tmp_path / "x.csv").exists() and not (tmp_path / "y.csv").exists()
+
+
+def test_folder_of_videos_each_file_a_task(tmp_path, capsys):
+    """regression: a folder of video files is tracked file by file (here in this process,
+    --workers 0): one CSV per video, identical to tracking that file alone; a file that cannot
+    be read is named and the others finish; exit 2."""
+    import shutil
+    from pathlib import Path
+
+    clip = Path(__file__).resolve().parents[1] / "sample_tracks" / "foam_ball_clip.avi"
+    src, out = tmp_path / "day3", tmp_path / "tracks"
+    src.mkdir()
+    out.mkdir()
+    for name in ("a.avi", "b.avi"):
+        shutil.copy(clip, src / name)
+    (src / "c.avi").write_text("not a video", encoding="utf-8")
+    opts = ["--fps", "500", "--markers", "0.16", "--no-progress"]
+    rc, text, err = _run(["track", str(src), *opts, "-o", str(out), "--workers", "0"], capsys)
+    assert rc == 2
+    assert sorted(p.name for p in out.iterdir()) == ["a.csv", "b.csv"]
+    assert "2 of 3 file(s) tracked into" in text
+    assert err.startswith(f"fitdrag track: file c.avi: footage {src / 'c.avi'}: not a video")
+    rc, _, _ = _run(["track", str(src / "a.avi"), *opts, "-o", str(tmp_path / "one.csv")],
+                    capsys)  # fmt: skip
+    assert rc == 0
+    assert read_track(tmp_path / "one.csv").y.tolist() == read_track(out / "a.csv").y.tolist()
+    rc, _, err = _run(["track", str(src / "a.avi"), *opts, "-o", str(tmp_path / "x.csv"),
+                       "--workers", "2"], capsys)  # fmt: skip
+    assert rc == 2
+    assert "--scheduler, --workers: only for a folder of video files" in err

@@ -201,7 +201,11 @@ def run_tasks(tasks: Sequence[Task], *, scheduler: str | None = None,
         from distributed import LocalCluster
 
         n = min(default_workers() if workers is None else workers, max(1, len(tasks)))
+        import logging
+
+        # a task's failure is reported by run_tasks; the workers' own log of it is noise
         with LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                          dashboard_address=None, host="127.0.0.1") as cluster:  # fmt: skip
+                          dashboard_address=None, host="127.0.0.1",
+                          silence_logs=logging.CRITICAL) as cluster:  # fmt: skip
             with Client(cluster) as client:
                 return _on_dask(tasks, client, bar)
