@@ -145,13 +145,13 @@ class _LotWhere(Where):
     throws and overrides; the base job for the rest."""
 
     def __init__(self, lot_path: Path, lot_text: str, base: Where, index: int, sid: str,
-                 overrides: dict) -> None:  # fmt: skip
+                 overrides: dict, n_throws: int) -> None:  # fmt: skip
         self.path = lot_path
         self.base = base
         self.lot_keys, self.lot_headers = key_lines(lot_text)
         self.index, self.sid, self.overrides = index, sid, overrides
+        # every throw of the specimen is on its `throws` line
         throws_line = self.lot_keys.get(("specimens", index, "throws"))
-        n_throws = 1000
         self.keys = {("throws", j, k): throws_line for j in range(n_throws)
                      for k in ("track", "footage")}  # fmt: skip
         self.headers = {("throws", j): throws_line for j in range(n_throws)}
@@ -365,7 +365,7 @@ def load_lot(path: str | Path, *, check_files: bool = True) -> Lot:
         for sec, table in overrides.items():
             base_sec = job_data.get(sec, {})
             job_data[sec] = {**(base_sec if isinstance(base_sec, dict) else {}), **table}
-        where = _LotWhere(path, text, base_where, i, sid, overrides)
+        where = _LotWhere(path, text, base_where, i, sid, overrides, len(tables))
         job = job_from_data(job_data, base_text, base_path, where, base_path.parent,
                             check_files)  # fmt: skip
         specimens.append(LotSpecimen(sid, job, headers.get(("specimens", i))))
