@@ -130,16 +130,18 @@ def build_lot_layout(data: Mapping) -> Layout:
         cd, U = format_with_uncertainty(s["drag_coefficient"], s["expanded_uncertainty"])
         rows.append((s["id"], cd, U, f"{s['coverage_factor']:.2f}",
                      format_sig(s["independent_standard_uncertainty"], 2),
-                     str(len(s["throws"])), s.get("decision") or "—"))  # fmt: skip
-    L.table(("specimen", "Cd", "U", "k", "u own", "throws", "decision"), rows,
-            (1.6, 0.9, 0.8, 0.6, 0.9, 0.7, 1.3), ("l", "r", "r", "r", "r", "r", "l"))  # fmt: skip
+                     str(len(s["throws"])), "", s.get("decision") or "—"))  # fmt: skip
+    L.table(("specimen", "Cd", "U", "k", "u own", "throws", "", "decision"), rows,
+            (1.4, 0.85, 0.75, 0.5, 0.8, 0.6, 0.25, 1.3),
+            ("l", "r", "r", "r", "r", "r", "l", "l"))  # fmt: skip
 
     def draw(fig, rect):
         x, y, w, h = rect  # room below the axes for the rotated specimen labels
-        ax = fig.add_axes((x + 0.07 * w, y + 0.28 * h, 0.92 * w, 0.7 * h))
+        ax = fig.add_axes((x + 0.07 * w, y + 0.22 * h, 0.92 * w, 0.76 * h))
         plot_lot(data, ax)
 
-    L.figure(3.4, draw)
+    L.figure(3.2, draw)
+    L.page_break(unless_room=2.2)  # the statistics stay together with their heading
     L.heading("Lot statistics")
     ti = summ["tolerance_interval"]
     ti_s = ("−∞" if ti[0] is None else fmt(ti[0])) + ", " + ("+∞" if ti[1] is None else fmt(ti[1]))
