@@ -97,4 +97,10 @@ def run(args) -> int:
     for kind, path in rec.outputs.items():
         print(f"  {kind:<16} {path}")
     print(f"  {'record':<16} {db_path}")
+    if lot.first_job.test.check_standard:
+        from fitdrag.run.check_standard import check_standard_warning
+
+        note = check_standard_warning(lot.first_job, db_path)
+        if note:
+            print(f"fitdrag lot: WARNING: {note}", file=sys.stderr)
     return exit_code_for_decision(m.decision)
