@@ -84,3 +84,23 @@ def test_readme_lot_example_prints_what_the_readme_shows(tmp_path, capsys):
     out = capsys.readouterr().out
     assert code == 4
     assert out.split("lot report ", 1)[0] == shown
+
+
+def test_lot_warns_when_the_check_standard_is_out_of_control(lot_file, tmp_path, capsys):
+    """regression: a base job naming its check standard makes `fitdrag lot` warn when the
+    standard's latest result on record lies beyond 3 sigma of its first 10 results."""
+    from datetime import UTC, datetime, timedelta
+
+    (tmp_path / "certificates").mkdir()
+    db = Records(tmp_path / "certificates" / "records.sqlite")
+    vals = [0.4712, 0.4695, 0.4701, 0.4688, 0.4720, 0.4703, 0.4690, 0.4709, 0.4698, 0.4705,
+            0.4800]  # fmt: skip
+    for i, v in enumerate(vals):
+        db.issue(result={}, input_hashes={}, prefix="REF",
+                 issued_at=datetime(2026, 6, 1, tzinfo=UTC) + timedelta(days=i),
+                 summary={"specimen_id": "REF-40-A", "drag_coefficient": v})  # fmt: skip
+    base = tmp_path / "training_ball_lot_base.toml"
+    base.write_text(base.read_text().replace("[test]\n", '[test]\ncheck_standard = "REF-40-A"\n'))
+    main(["lot", str(lot_file), "--workers", "0", "--quiet"])
+    err = capsys.readouterr().err
+    assert "fitdrag lot: WARNING: check standard 'REF-40-A' is out of control" in err
