@@ -157,3 +157,87 @@ def test_withdraw_keeps_both_records_with_the_reason(tmp_path, capsys):
     with pytest.raises(ValueError, match=r"--reason: give plain text \(no control characters\)"):
         _run([*args, "--reason", "x\x1b[2J"])
     assert db.verify().ok
+
+
+@pytest.fixture
+def standard_db(tmp_path):
+    """A check standard's history: 12 results of N(0.470, 0.002²) (fixed values), then one
+    shifted by +0.012 (6 sigma), plus one result of another specimen."""
+    from datetime import timedelta
+
+    path = tmp_path / "standard.sqlite"
+    db = Records(path)
+    vals = [0.4712, 0.4695, 0.4701, 0.4688, 0.4720, 0.4703, 0.4690, 0.4709, 0.4698, 0.4705,
+            0.4711, 0.4693, 0.4820]  # fmt: skip
+    start = datetime(2026, 6, 1, 9, 0, tzinfo=UTC)
+    for i, v in enumerate(vals):
+        db.issue(result={"synthetic": True}, input_hashes={}, prefix="REF",
+                 issued_at=start + timedelta(days=i),
+                 summary={"specimen_id": "REF-40-A", "drag_coefficient": v})  # fmt: skip
+    db.issue(result={}, input_hashes={}, issued_at=start,
+             summary={"specimen_id": "OTHER", "drag_coefficient": 0.9})  # fmt: skip
+    return path, vals
+
+
+def test_chart_flags_the_latest_and_exits_8(standard_db, tmp_path, capsys):
+    """closed-form/independent: limits from the first 10 results (mean, average moving
+    range / 1.128: ISO 7870-2 chart for individual values) computed here; the last result
+    lies beyond 3 sigma, so it is printed and the exit code is 8; the PNG is written."""
+    import numpy as np
+
+    path, vals = standard_db
+    base = np.array(vals[:10])
+    centre = base.mean()
+    sigma = np.mean(np.abs(np.diff(base))) / 1.128
+    assert abs(vals[-1] - centre) > 3 * sigma
+    png = tmp_path / "chart.png"
+    code = _run(["records", "--records", str(path), "chart", "REF-40-A", "-o", str(png)])
+    out = capsys.readouterr().out
+    assert code == 8
+    assert f"centre line {centre:.4g}, sigma {sigma:.2g}" in out
+    assert "point 13 REF-2026-000013 2026-06-13 Cd = 0.482: tests 1" in out
+    assert "  test 1: beyond 3 sigma" in out
+    assert "the latest result (REF-2026-000013) is out of control" in out
+    assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_chart_with_stated_limits_in_control(standard_db, capsys):
+    """closed-form/independent: with a stated centre 0.470 and sigma 0.0041 the first 12
+    results lie within 1 sigma on both sides and the last within 3 sigma (0.012 < 0.0123);
+    the EWMA stays inside (z_13 - 0.470 < 0.0026 < its limit 0.0041): nothing is flagged."""
+    path, _ = standard_db
+    code = _run(["records", "--records", str(path), "chart", "REF-40-A", "--centre", "0.470",
+                 "--sigma", "0.0041"])  # fmt: skip
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "0 point(s) out of control" in out and "sigma 0.0041: stated" in out
+
+
+def test_chart_errors(standard_db):
+    """regression: an unknown specimen and half-stated limits: exact messages."""
+    path, _ = standard_db
+    with pytest.raises(ValueError) as e:
+        _run(["records", "--records", str(path), "chart", "NOPE"])
+    assert str(e.value) == (
+        f"specimen 'NOPE': no results on record in '{path}'; see 'fitdrag records list' for "
+        f"the specimen ids."
+    )
+    with pytest.raises(ValueError) as e:
+        _run(["records", "--records", str(path), "chart", "REF-40-A", "--centre", "0.47"])
+    assert str(e.value) == "--centre, --sigma: give both (stated limits) or neither (estimated)."
+
+
+def test_readme_chart_example_prints_what_the_readme_shows(capsys):
+    """regression: the README's `fitdrag records chart` example on the sample check-standard
+    history prints exactly the output the README shows, and exits 8."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    text = (root / "README.md").read_text(encoding="utf-8")
+    cmd_line = (
+        "$ fitdrag records --records sample_tracks/check_standard/records.sqlite chart REF-40-A\n"
+    )
+    shown = text.split(cmd_line, 1)[1].split("```\n", 1)[0]
+    db = root / "sample_tracks" / "check_standard" / "records.sqlite"
+    assert _run(["records", "--records", str(db), "chart", "REF-40-A"]) == 8
+    assert capsys.readouterr().out == shown

@@ -616,3 +616,27 @@ def test_leftovers_of_a_killed_run_are_removed_by_the_next(job, capsys):
     assert len(list(outdir.glob(".FD-2026-000009.*.tmp"))) == 3
     assert main(["run", str(job), "--quiet"]) == 0
     assert sorted(p.suffix for p in outdir.iterdir()) == [".json", ".pdf", ".png"]
+
+
+def test_run_warns_when_the_check_standard_is_out_of_control(job, tmp_path, capsys):
+    """regression: a job naming its check standard ([test] check_standard) warns on standard
+    error when the standard's latest result on record lies beyond 3 sigma of the limits set
+    by its first 10 results; the certificate is issued as usual."""
+    from datetime import UTC, timedelta
+
+    db_path = tmp_path / "records.sqlite"
+    db = Records(db_path)
+    start = datetime(2026, 6, 1, tzinfo=UTC)
+    vals = [0.4712, 0.4695, 0.4701, 0.4688, 0.4720, 0.4703, 0.4690, 0.4709, 0.4698, 0.4705,
+            0.4800]  # fmt: skip
+    for i, v in enumerate(vals):
+        db.issue(result={}, input_hashes={}, issued_at=start + timedelta(days=i), prefix="REF",
+                 summary={"specimen_id": "REF-40-A", "drag_coefficient": v})  # fmt: skip
+    text = job.read_text().replace("[test]\n", '[test]\ncheck_standard = "REF-40-A"\n', 1)
+    job.write_text(text)
+    assert main(["run", str(job), "--quiet", "--records", str(db_path)]) == 0
+    err = capsys.readouterr().err
+    assert (
+        "fitdrag run: WARNING: check standard 'REF-40-A' is out of control at its latest "
+        "result REF-2026-000011 (Cd = 0.48; test 1: beyond 3 sigma"
+    ) in err

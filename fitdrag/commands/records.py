@@ -32,12 +32,14 @@ def register(subparsers) -> argparse.ArgumentParser:
             "         fitdrag records show FD-2026-000001\n"
             "         fitdrag records export all.csv\n"
             "         fitdrag records verify\n"
+            "         fitdrag records chart REF-40-A -o chart.png\n"
             "         fitdrag records --records out/records.sqlite list\n\n"
             "The database is the laboratory's (FITDRAG_RECORDS, the settings file, or the "
             "user's data folder) unless --records names another.\n"
-            "Exit codes: 0 done (verify: all intact), 1 a bug (with a traceback), 2 bad "
-            "arguments, no such database or certificate, or an existing CSV without --force, "
-            "7 verify found records altered or deleted or files changed."
+            "Exit codes: 0 done (verify: all intact; chart: the latest result in control), "
+            "1 a bug (with a traceback), 2 bad arguments, no such database or certificate, or "
+            "an existing output file without --force, 7 verify found records altered or "
+            "deleted or files changed, 8 (chart) the latest result is out of control."
         ),
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
@@ -75,6 +77,25 @@ def register(subparsers) -> argparse.ArgumentParser:
     )  # fmt: skip
     ver.add_argument("--no-files", action="store_true",
                      help="check the records' chain only, not the certificate files")  # fmt: skip
+    ch = sub.add_parser(
+        "chart", parents=[common],
+        help="control chart of one specimen's Cd over time (a check standard)",
+        description="Control chart of one specimen's results on record, oldest first: the "
+        "Shewhart tests for special causes (1, 2, 3, 5, 6) and an EWMA chart; the centre line "
+        "and sigma from its first results (--baseline) or as stated (--centre, --sigma). "
+        "Prints every out-of-control point; exits 8 when the latest one is out of control.",
+    )  # fmt: skip
+    ch.add_argument("specimen", metavar="SPECIMEN_ID", help="the specimen's id, e.g. REF-40-A")
+    ch.add_argument("-o", "--output", metavar="PNG", default=None, help="write the chart here")
+    ch.add_argument("--baseline", type=int, default=None, metavar="N",
+                    help="estimate the centre line and sigma from the first N results "
+                    "(default: 10, or all when fewer)")  # fmt: skip
+    ch.add_argument("--centre", type=float, default=None, help="stated centre line (Cd)")
+    ch.add_argument("--sigma", type=float, default=None,
+                    help="stated standard deviation of the check standard's results")  # fmt: skip
+    ch.add_argument("--lambda", dest="lam", type=float, default=0.2,
+                    help="EWMA weight of the newest result (default 0.2)")  # fmt: skip
+    ch.add_argument("--force", action="store_true", help="overwrite an existing PNG file")
     return p
 
 
@@ -95,10 +116,37 @@ def _num(x, fmt="{:.4g}") -> str:
     return fmt.format(x)
 
 
+def _chart(args, path) -> int:
+    from fitdrag.errors import EXIT_OK, EXIT_OUT_OF_CONTROL
+    from fitdrag.run.check_standard import chart_from_records, write_chart
+
+    sc = chart_from_records(path, args.specimen, baseline=args.baseline,
+                            centre=args.centre, sigma=args.sigma, lam=args.lam)  # fmt: skip
+    ch = sc.chart
+    lim = ch.limits
+    print(f"check standard {args.specimen}: {len(ch.values)} result(s), oldest first")
+    print(f"  centre line {lim.centre:.4g}, sigma {lim.sigma:.2g}: {lim.source}")
+    print(f"  EWMA: lambda {ch.lam:g}, limits at L = {ch.L:g}")
+    lines = sc.report_lines()
+    print(f"{len(lines)} point(s) out of control" + (":" if lines else ""))
+    for ln in lines:
+        print(ln)
+    for ln in sc.legend():
+        print(ln)
+    if args.output:
+        print(f"chart written to {write_chart(sc, args.output, force=args.force)}")
+    if ch.latest_out_of_control:
+        print(f"the latest result ({sc.numbers[-1]}) is out of control")
+        return EXIT_OUT_OF_CONTROL
+    return EXIT_OK
+
+
 def run(args) -> int:
     from fitdrag.run.records import Records, lab_records
 
     where = lab_records(args.records)
+    if args.action == "chart":
+        return _chart(args, where.path)
     db = Records(where.path, create=False)
     if args.action == "list":
         recs = db.list()

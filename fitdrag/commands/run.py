@@ -187,4 +187,10 @@ def run(args) -> int:
     rec, where = issue(meas, records_path=args.records, replaces=args.replaces,
                        reason=args.reason)  # fmt: skip
     print_issued(rec, where)
+    if job.test.check_standard:
+        from fitdrag.run.check_standard import check_standard_warning
+
+        note = check_standard_warning(job, where.path)
+        if note:
+            print(f"fitdrag run: WARNING: {note}", file=sys.stderr)
     return exit_code_for_decision(None if meas.verdict is None else meas.verdict.decision)

@@ -127,6 +127,7 @@ class TestDetails:
     location: str | None = None
     notes: str | None = None
     key_order: tuple[str, ...] = field(default=(), repr=False, compare=False)
+    check_standard: str | None = None  # id of the set-up's check standard (not printed)
 
     def to_dict(self) -> dict:
         return _given(self, ("customer", "customer_address", "order", "operator",

@@ -73,7 +73,12 @@ from fitdrag.run.job_keys import (
 from fitdrag.uncertainty.decision import Specification
 from fitdrag.units import unit_of_text, unit_symbol
 
-__all__ = ["NORMAL_GRAVITY_UNCERTAINTY", "UNKNOWN_SITE_GRAVITY_HALF_WIDTH", "load_job"]
+__all__ = [
+    "NORMAL_GRAVITY_UNCERTAINTY",
+    "UNKNOWN_SITE_GRAVITY_HALF_WIDTH",
+    "job_from_data",
+    "load_job",
+]
 
 
 #: Gravity assumed when a job gives no [site]: standard gravity, with a rectangular
@@ -127,9 +132,16 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path.name}: not valid TOML: {exc}.") from None
     path = path.resolve()
-    folder = path.parent
-    where = Where(path, text)
+    return job_from_data(data, text, path, Where(path, text), path.parent, check_files)
 
+
+def job_from_data(data: dict, text: str, path: Path, where: Where, folder: Path,
+                  check_files: bool = True) -> Job:  # fmt: skip
+    """A :class:`Job` from a job file's parsed TOML ``data`` (see :func:`load_job`).
+
+    ``where`` names the place of an error (a lot file gives its own, naming the specimen);
+    relative paths resolve against ``folder``; ``path`` and ``text`` are kept in the job.
+    """
     for sec, value in data.items():
         if sec not in SECTIONS:
             valid = ", ".join("[[throws]]" if s == "throws" else f"[{s}]" for s in SECTIONS

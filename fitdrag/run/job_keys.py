@@ -181,6 +181,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "date": Key("date"),
         "location": Key("str"),
         "notes": Key("str"),
+        "check_standard": Key("str"),
     },
     "specimen": {
         "id": Key("str"),

@@ -40,6 +40,8 @@ operator = "A. Tester"
 approved_by = "B. Reviewer"
 date = 2026-01-15                 # date of the test
 notes = "Three throws by hand in still air, indoor hall."
+# check_standard = "REF-40-A"     # id of the set-up's check standard: `fitdrag run` warns
+#                                 # when its latest result on record is out of control
 
 [specimen]
 id = "SYN-BALL-001"

@@ -129,47 +129,60 @@ def read_throws(job: Job, *, progress: bool = False) -> tuple[list, dict]:
         A file that cannot be read or tracked; a footage throw's message starts with the
         job file, the line and the throw.
     """
-    from fitdrag.tracks.csv_file import read_track
-    from fitdrag.tracks.track import Track, file_sha256
+    from fitdrag.tracks.track import file_sha256
 
     hashes = {str(job.path): file_sha256(job.path)}
     tracks = []
-    fps = job.camera.fps.value
-    for i, th in enumerate(job.throws):
-        opts = th.options
-        if th.kind == "footage":
-            from fitdrag.video.tracking import footage_sha256, track_footage
-
-            try:
-                ft = track_footage(th.path, fps=fps, progress=progress, **opts)
-            except InputError as exc:
-                loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
-                msg = f"{loc}: [[throws]] #{i + 1} footage: {_job_wording(str(exc))}"
-                if isinstance(exc, FileNotFoundError):
-                    raise InputFileNotFoundError(msg) from None
-                raise InputError(msg) from None
-            digest = footage_sha256(th.path)
-            tr = ft.track
-            meta = {**tr.meta, "source": str(th.path), "sha256": digest}
-            tracks.append(Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta))
-            hashes[str(th.path)] = digest
-            for extra in (th.marker_layout, th.lens):
-                if extra is not None:
-                    hashes[str(extra)] = file_sha256(extra)
-            continue
-        with warnings.catch_warnings():
-            # the camera's frame rate is offered for files without a time column only
-            warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
-            tr = read_track(th.path, fps=fps, **opts)
-        check_track_header(job, i, th, tr)
+    for i in range(len(job.throws)):
+        tr, h = read_throw(job, i, progress=progress)
         tracks.append(tr)
-        hashes[str(th.path)] = file_sha256(th.path)
-        behind = footage_behind(th.path, tr)
-        if behind is not None:
-            from fitdrag.video.tracking import footage_sha256
-
-            hashes[str(behind)] = footage_sha256(behind)
+        hashes.update(h)
     return tracks, hashes
+
+
+def read_throw(job: Job, i: int, *, progress: bool = False, where: str | None = None) -> tuple:
+    """The track of throw ``i`` (0-based) of ``job`` and the SHA-256 of its input files, by
+    path (see :func:`read_throws`, which reads them all); ``where`` replaces the job file and
+    line at the start of a footage throw's error message."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.tracks.track import Track, file_sha256
+
+    hashes = {}
+    fps = job.camera.fps.value
+    th = job.throws[i]
+    opts = th.options
+    if th.kind == "footage":
+        from fitdrag.video.tracking import footage_sha256, track_footage
+
+        try:
+            ft = track_footage(th.path, fps=fps, progress=progress, **opts)
+        except InputError as exc:
+            loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
+            loc = f"{loc}: [[throws]] #{i + 1}" if where is None else where
+            msg = f"{loc} footage: {_job_wording(str(exc))}"
+            if isinstance(exc, FileNotFoundError):
+                raise InputFileNotFoundError(msg) from None
+            raise InputError(msg) from None
+        digest = footage_sha256(th.path)
+        tr = ft.track
+        meta = {**tr.meta, "source": str(th.path), "sha256": digest}
+        hashes[str(th.path)] = digest
+        for extra in (th.marker_layout, th.lens):
+            if extra is not None:
+                hashes[str(extra)] = file_sha256(extra)
+        return Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta), hashes
+    with warnings.catch_warnings():
+        # the camera's frame rate is offered for files without a time column only
+        warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
+        tr = read_track(th.path, fps=fps, **opts)
+    check_track_header(job, i, th, tr)
+    hashes[str(th.path)] = file_sha256(th.path)
+    behind = footage_behind(th.path, tr)
+    if behind is not None:
+        from fitdrag.video.tracking import footage_sha256
+
+        hashes[str(behind)] = footage_sha256(behind)
+    return tr, hashes
 
 
 def footage_behind(track_path, track) -> Path | None:
@@ -447,6 +460,7 @@ def measure(
     seed: int | None = None,
     workers: int | None = None,
     progress: bool = False,
+    tracks: tuple[list, dict] | None = None,
 ) -> Measurement:
     """Fit, budget, Monte Carlo check and conformity decision for a loaded job.
 
@@ -464,6 +478,10 @@ def measure(
         Processes of the Monte Carlo run (default: up to 2).
     progress : bool
         Show progress bars.
+    tracks : (list of Track, dict), optional
+        The throws' tracks and input hashes as :func:`read_throws` returns them, when they
+        were read already (e.g. footage tracked by separate tasks: :mod:`fitdrag.run.lot`);
+        jobs measured in 3-D read their own.
 
     Returns
     -------
@@ -487,7 +505,7 @@ def measure(
                              workers=workers, progress=progress)  # fmt: skip
     n_mc = _monte_carlo_trials(job, monte_carlo)
     still_air_warning(job)
-    tracks, hashes = read_throws(job, progress=progress)
+    tracks, hashes = read_throws(job, progress=progress) if tracks is None else tracks
     specimen = job.make_specimen()
     air = job.make_air()
     fopts = job.fit_options()
