@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from fitdrag.run.lot import measure_lot
@@ -75,7 +76,8 @@ def cluster():
 def test_on_a_local_cluster(cluster, tmp_path):
     """closed-form/independent: on a 2-worker dask.distributed cluster at the loopback
     address the tasks give the same outcomes as in this process; a lot's specimens (tracks
-    and footage, each footage file a task) are bit-for-bit the same as measured here."""
+    and footage, each footage file a task) are the same as measured here: bit for bit from
+    track files, to 1e-12 from footage."""
     addr = cluster.scheduler_address
     assert addr.startswith("tcp://127.0.0.1:")
     _check_outcomes(run_tasks(TASKS, scheduler=addr))
@@ -98,9 +100,10 @@ def test_on_a_local_cluster(cluster, tmp_path):
     flot = load_lot(p)
     here = measure_lot(flot, workers=0)
     there = measure_lot(flot, scheduler=addr)
-    assert [r.drag_coefficient for r in there.specimens] == [
-        r.drag_coefficient for r in here.specimens
-    ]
+    # the tracker's compiled ball fit (fastmath) may be compiled afresh in a worker and loaded
+    # from the on-disk cache here, which can order its sums differently: equal to 1e-12
+    np.testing.assert_allclose([r.drag_coefficient for r in there.specimens],
+                               [r.drag_coefficient for r in here.specimens], rtol=1e-12)  # fmt: skip
 
 
 def test_no_scheduler_at_the_address():
