@@ -29,6 +29,7 @@ Exit codes:
   4  certificate issued; the decision is FAIL
   5  certificate issued; the decision is a conditional pass (guarded acceptance)
   6  certificate issued; the decision is a conditional fail (guarded acceptance)
+  7  records verify: records altered or deleted, or certificate files changed
 """
 
 # The file system's own refusals of a path the user gave (no such file, a folder where a file

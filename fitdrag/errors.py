@@ -21,6 +21,8 @@ __all__ = [
     "EXIT_FAIL",
     "EXIT_NO_CONVERGENCE",
     "EXIT_OK",
+    "EXIT_OUT_OF_CONTROL",
+    "EXIT_RECORDS_NOT_INTACT",
     "FitdragError",
     "InputError",
     "InputFileNotFoundError",
@@ -42,6 +44,10 @@ EXIT_FAIL = 4
 EXIT_CONDITIONAL_PASS = 5
 #: Certificate issued; the decision is a conditional fail (guarded acceptance).
 EXIT_CONDITIONAL_FAIL = 6
+#: ``records verify``: records altered or deleted, or certificate files changed.
+EXIT_RECORDS_NOT_INTACT = 7
+#: ``fitdrag records chart``: the latest result of the check standard is out of control.
+EXIT_OUT_OF_CONTROL = 8
 
 
 #: Each conformity decision (the strings of :mod:`fitdrag.uncertainty.decision`) and the exit

@@ -17,7 +17,7 @@ import re
 
 from fitdrag.errors import InputError
 
-__all__ = ["parse_quantity", "unit_registry", "unit_symbol", "unit_word"]
+__all__ = ["parse_quantity", "unit_of_text", "unit_registry", "unit_symbol", "unit_word"]
 
 _NUM_UNIT_RE = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
@@ -82,6 +82,13 @@ def unit_word(unit: str) -> str:
 def unit_symbol(unit: str) -> str:
     """How ``unit`` is printed (``"m**2"`` -> ``"m²"``)."""
     return _SYMBOLS.get(unit, unit)
+
+
+def unit_of_text(text: str) -> str:
+    """The unit written after the number in ``text`` ("24.00 g" -> "g"; "" for none or for
+    text that is not "number unit")."""
+    m = _NUM_UNIT_RE.match(text) if isinstance(text, str) else None
+    return m.group(2) if m else ""
 
 
 def parse_quantity(text: str, unit: str, delta: bool = False) -> float:

@@ -20,6 +20,7 @@ import os
 import shutil
 import sys
 import tempfile
+from datetime import UTC
 from pathlib import Path
 
 import numpy as np
@@ -634,8 +635,68 @@ reference = "Brightfield drawing FB65 rev. C, clause 4.2 (fictitious)"
     )
 
 
+#: The synthetic lot in lot/: five training balls with a true spread of Cd, two throws each
+#: (fitdrag.run.lot_scene; the truth in lot/training_ball_lot_truth.json).
+LOT_SCENE = {"specimens": 5, "throws": 2, "cd_mean": 0.47, "cd_spread": 0.012,
+             "seed": 20261217}  # fmt: skip
+
+
+def make_lot(force: bool) -> None:
+    from fitdrag.run.lot_scene import LotScene, write_lot
+
+    folder = HERE / "lot"
+    if folder.exists() and any(folder.iterdir()) and not force:
+        raise SystemExit(f"{folder}: exists; pass --force to overwrite it.")
+    folder.mkdir(exist_ok=True)
+    out = write_lot(folder, LotScene(**LOT_SCENE), output="../certificates")
+    print(f"wrote the lot {out.lot_file} (true Cd {out.true_cd})")
+
+
+#: The check standard REF-40-A measured once a day: 30 results drawn from N(0.470, 0.002²),
+#: the last 8 shifted by +0.008 (4 sigma: the set-up drifted; synthetic).
+CHECK_STANDARD = {"id": "REF-40-A", "days": 30, "centre": 0.470, "sigma": 0.002,
+                  "shift_from": 22, "shift": 0.008, "U": 0.006, "seed": 20261218}  # fmt: skip
+
+
+def make_check_standard(force: bool) -> None:
+    """The check standard's history as records (no certificate files: a records database of
+    synthetic results) and as CSV."""
+    from datetime import datetime, timedelta
+
+    from fitdrag.run.records import Records
+
+    cs = CHECK_STANDARD
+    folder = HERE / "check_standard"
+    folder.mkdir(exist_ok=True)
+    db_path = folder / "records.sqlite"
+    if db_path.exists():
+        if not force:
+            raise SystemExit(f"{db_path}: exists; pass --force to overwrite it.")
+        db_path.unlink()
+    rng = np.random.default_rng(cs["seed"])
+    db = Records(db_path)
+    start = datetime(2026, 6, 1, 9, 0, tzinfo=UTC)
+    rows = ["date,number,drag_coefficient,expanded_uncertainty"]
+    for i in range(cs["days"]):
+        cd = cs["centre"] + cs["sigma"] * rng.standard_normal()
+        cd += cs["shift"] if i >= cs["shift_from"] else 0.0
+        cd = round(float(cd), 5)
+        rec = db.issue(
+            result={"synthetic": True, "note": "synthetic check-standard history (no "
+                    "certificate files)", "drag_coefficient": cd},
+            input_hashes={}, job_text=None, job_path=None, prefix="REF",
+            issued_at=start + timedelta(days=i),
+            summary={"customer": "internal check (synthetic)", "specimen_id": cs["id"],
+                     "drag_coefficient": cd, "expanded_uncertainty": cs["U"],
+                     "coverage_factor": 2.0},
+        )  # fmt: skip
+        rows.append(f"{rec.issued_at[:10]},{rec.number},{cd!r},{cs['U']!r}")
+    (folder / "history.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    print(f"wrote {db_path} ({cs['days']} results of {cs['id']})")
+
+
 #: What --only may name.
-PARTS = ("simulated", "ribbed", "clip", "two-camera", "jobs")
+PARTS = ("simulated", "ribbed", "clip", "two-camera", "jobs", "lot", "check-standard")
 
 
 def main(argv=None) -> int:
@@ -656,6 +717,10 @@ def main(argv=None) -> int:
         make_clip(args.force)
     if "two-camera" in parts:
         make_two_camera(args.force)
+    if "lot" in parts:
+        make_lot(args.force)
+    if "check-standard" in parts:
+        make_check_standard(args.force)
     jobs = {**job_files(), "two_camera.toml": two_camera_job()} if "jobs" in parts else {}
     for name, text in jobs.items():
         p = HERE / name

@@ -153,12 +153,16 @@ def test_nonconvergence_exit_3_and_json_still_written(tmp_path, capsys):
     bad = write_track(Track(t, t, np.exp(40.0 * t)), tmp_path / "bad.csv")
     out = tmp_path / "r.json"
     assert run_fit(bad, "--json", out, "--plot", tmp_path / "r.png") == 3
-    err = capsys.readouterr().err
-    assert err.startswith("fitdrag fit: the fit failed: ")
+    captured = capsys.readouterr()
+    assert captured.err.startswith("fitdrag fit: the fit failed: ")
+    # no Cd value is printed, only the diagnosis and the most likely cause
+    assert "Cd" not in captured.out and "drag coefficient Cd" not in captured.out
+    assert "no drag coefficient is reported" in captured.out
+    assert "  most likely cause: " in captured.out and "y_down = true" in captured.out
     d = json.loads(out.read_text(encoding="utf-8"))
     assert d["success"] is False
     assert d["message"] and d["message"] != "fit converged"
-    assert (tmp_path / "r.png").exists()
+    assert not (tmp_path / "r.png").exists()  # its title would state a Cd
 
 
 def test_refuses_to_overwrite_without_force(track_file, tmp_path, capsys):

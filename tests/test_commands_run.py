@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
 from datetime import datetime
 
 import numpy as np
@@ -15,7 +16,7 @@ import pytest
 import reference as ref
 
 from fitdrag.cli import main
-from fitdrag.run.job_template import TEMPLATE
+from fitdrag.run.job_template import PLACEHOLDERS, TEMPLATE
 from fitdrag.run.records import Records
 
 pypdf = pytest.importorskip("pypdf")
@@ -34,8 +35,16 @@ def _track_csv(path, seed=0, sc=None):
     return path
 
 
+def _edited_template() -> str:
+    """The template with the laboratory's, customer's and specimen's values filled in."""
+    text = TEMPLATE
+    for value in PLACEHOLDERS.values():
+        text = text.replace(f'"{value}"', f'"{value} (edited)"', 1)
+    return text
+
+
 def _job_text(**edits) -> str:
-    text = TEMPLATE.replace("fps = 500 ", "fps = 400 ")
+    text = _edited_template().replace("fps = 500 ", "fps = 400 ")
     # the reference scenario's air: ISA sea level (1.225 kg/m³, 1.789e-5 Pa s)
     for k, v in (("temperature = 21.0 ", "# temperature = 21.0 "),
                  ("temperature_uncertainty = 0.3 ", "# temperature_uncertainty = 0.3 "),
@@ -112,7 +121,7 @@ def test_run_issues_certificate(job, capsys):
     assert f"k = {res['coverage_factor']:.2f}" in flat
     assert 1 <= len(reader.pages) <= 3
 
-    rec = Records(outdir / "records.sqlite").get(number)
+    rec = Records(os.environ["FITDRAG_RECORDS"]).get(number)
     assert rec.job_text == job.read_text()
     assert rec.input_hashes == rep["inputs"]["sha256"]
     assert rec.result["result"]["drag_coefficient"] == res["drag_coefficient"]
@@ -126,13 +135,18 @@ def test_reissue_replaces_and_shared_records(job, tmp_path, capsys):
     shared = tmp_path / "shared.sqlite"
     assert main(["run", str(job), "--quiet", "--records", str(shared)]) == 0
     first = f"FD-{_year()}-000001"
-    args = ["run", str(job), "--quiet", "--records", str(shared), "--replaces", first]
+    assert f"  record           {shared} (--records)" in capsys.readouterr().out
+    args = ["run", str(job), "--quiet", "--records", str(shared), "--replaces", first,
+            "--reason", "customer's order number corrected"]  # fmt: skip
     assert main(args) == 0
     second = f"FD-{_year()}-000002"
-    assert f"certificate {second} issued, replacing {first}" in capsys.readouterr().out
+    assert (f"certificate {second} issued, approved by B. Reviewer, replacing {first}"
+            in capsys.readouterr().out)  # fmt: skip
     db = Records(shared)
     assert db.get(first).replaced_by == second
+    assert db.get(second).reason == "customer's order number corrected"
     assert not (job.parent / "certificates" / "records.sqlite").exists()
+    assert not Records(os.environ["FITDRAG_RECORDS"]).list()
     assert main(args) == 2  # the first certificate was already replaced
     assert "already replaced by" in capsys.readouterr().err
     assert len(db) == 2
@@ -241,7 +255,7 @@ def test_decision_sets_the_exit_code(job, capsys):
         assert f"decision: {decision.upper()}" in capsys.readouterr().out
         rep = json.loads((outdir / f"{number}.json").read_text())
         assert rep["conformity"]["decision"] == decision
-        assert Records(outdir / "records.sqlite").get(number).decision == decision
+        assert Records(os.environ["FITDRAG_RECORDS"]).get(number).decision == decision
 
 
 def test_no_specification_exits_0(job, capsys):
@@ -270,6 +284,27 @@ def test_new_job_command(tmp_path, capsys):
     assert p.read_text() == TEMPLATE
     assert main(["new-job", str(p)]) == 2
     assert "already exists" in capsys.readouterr().err
+
+
+def test_unedited_template_is_refused(tmp_path, capsys):
+    """regression: the template as written (its invented laboratory, customer and specimen)
+    is refused before any work, naming the values left; so is a draft of it."""
+    _track_csv(tmp_path / "throw1.csv")
+    p = tmp_path / "j.toml"
+    assert main(["new-job", str(p)]) == 0
+    capsys.readouterr()
+    for extra in ([], ["--draft"]):
+        assert main(["run", str(p), "--quiet", *extra]) == 2
+        err = capsys.readouterr().err
+        assert err.startswith(
+            "fitdrag run: error: j.toml: still holds the template's invented value(s) "
+            '[laboratory] name = "Example Flight Test Laboratory (synthetic)"; [laboratory] '
+            'address = "1 Sample Road, Testville"; [test] customer = "Fictitious Sports Goods Ltd"'
+        ), err
+        assert '[specimen] id = "SYN-BALL-001"; replace them with your' in err
+    assert not (tmp_path / "certificates").exists()
+    for (sec, key), value in PLACEHOLDERS.items():
+        assert f'{key} = "{value}"' in TEMPLATE, (sec, key)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -359,7 +394,9 @@ def test_footage_throw_end_to_end(clip, tmp_path, capsys):
     clip_hash = hashlib.sha256((tmp_path / "clip.avi").read_bytes()).hexdigest()
     assert rep["inputs"]["sha256"] == {str(job.resolve()): job_hash,
                                        str((tmp_path / "clip.avi").resolve()): clip_hash}  # fmt: skip
-    assert Records(outdir / "records.sqlite").get(number).input_hashes == rep["inputs"]["sha256"]
+    assert (
+        Records(os.environ["FITDRAG_RECORDS"]).get(number).input_hashes == rep["inputs"]["sha256"]
+    )
     (foot,) = rep["footage"]
     assert foot["sha256"] == clip_hash and foot["calibration_method"] == "markers"
     assert foot["marker_ids"] == "0 1" and foot["fps"] == CLIP_FPS
@@ -418,3 +455,188 @@ def test_footage_error_names_the_throw_and_writes_nothing(clip, tmp_path, capsys
     ), err
     assert "choose another with marker_frame)" in err
     assert sorted(x.name for x in tmp_path.iterdir()) == ["clip.avi", "job.toml"]
+
+
+def _one_line(err: str) -> str:
+    assert err.count("\n") == 1, err
+    return err
+
+
+def test_lab_database_numbers_across_folders_and_refuses_identical_reruns(tmp_path, capsys):
+    """regression: two job folders issue into the one laboratory database (numbers 1 and 2,
+    run says where); an unchanged job run again is refused naming the earlier certificate."""
+    numbers = []
+    for name in ("a", "b"):
+        folder = tmp_path / name
+        folder.mkdir()
+        _track_csv(folder / "throw1.csv", seed=1 if name == "a" else 2)
+        (folder / "job.toml").write_text(_job_text())
+        assert main(["run", str(folder / "job.toml"), "--quiet"]) == 0
+        out = capsys.readouterr().out
+        lab = os.environ["FITDRAG_RECORDS"]
+        assert f"  record           {lab} (laboratory database, from FITDRAG_RECORDS)" in out
+        numbers.append(out.split("certificate ", 1)[1].split()[0])
+    assert numbers == [f"FD-{_year()}-000001", f"FD-{_year()}-000002"]
+    assert main(["run", str(tmp_path / "a" / "job.toml"), "--quiet"]) == 2
+    err = _one_line(capsys.readouterr().err)
+    assert err.startswith(
+        f"fitdrag run: error: job.toml: the same job and input files (SHA-256) were certified "
+        f"as {numbers[0]} on "
+    )
+    assert err.endswith(f"To correct that certificate, run with --replaces {numbers[0]} "
+                        f'--reason "...".\n')  # fmt: skip
+    assert len(Records(os.environ["FITDRAG_RECORDS"])) == 2
+    assert Records(os.environ["FITDRAG_RECORDS"]).verify().ok
+
+
+def test_replaces_without_reason_and_missing_approver_are_refused_first(job, capsys):
+    """regression: --replaces without --reason, and a job without [test] approved_by (without
+    --draft), exit 2 before any work."""
+    assert main(["run", str(job), "--quiet", "--replaces", "FD-2026-000001"]) == 2
+    assert capsys.readouterr().err == (
+        'fitdrag run: error: --replaces FD-2026-000001: give the reason with --reason "..." '
+        "(kept in the records with both certificates).\n"
+    )
+    job.write_text(_job_text(**{'approved_by = "B. Reviewer"': "# nobody"}))
+    assert main(["run", str(job), "--quiet"]) == 2
+    assert capsys.readouterr().err == (
+        "fitdrag run: error: job.toml: [test] approved_by: missing; a certificate is released "
+        "by a named person: name them in the job, or run with --draft and have the reviewer "
+        "release the draft with 'fitdrag release DRAFT.json --approved-by NAME'.\n"
+    )
+    assert not (job.parent / "certificates").exists()
+
+
+def test_draft_review_release(job, capsys):
+    """regression: --draft writes PDF/PNG/JSON marked DRAFT on every page and no record;
+    release re-checks the inputs, measures again, takes the number and records the reviewer;
+    a draft whose input changed is not released."""
+    job.write_text(_job_text(**{'approved_by = "B. Reviewer"': "# nobody"}))
+    assert main(["run", str(job), "--quiet", "--draft"]) == 0
+    out = capsys.readouterr().out
+    outdir = job.parent / "certificates"
+    (draft_json,) = outdir.glob("DRAFT-job-*.json")
+    draft_pdf = draft_json.with_suffix(".pdf")
+    assert f"  fitdrag release {draft_json} --approved-by NAME" in out
+    pages = pypdf.PdfReader(str(draft_pdf)).pages
+    assert all("DRAFT" in p.extract_text() for p in pages) and len(pages) >= 2
+    assert draft_json.with_suffix(".png").exists()
+    assert not Records(os.environ["FITDRAG_RECORDS"]).list()
+    draft = json.loads(draft_json.read_text())
+    assert draft["certificate"]["draft"] is True and draft["certificate"]["number"] == "DRAFT"
+
+    assert main(["release", str(draft_json), "--approved-by", "C. Reviewer", "--quiet"]) == 0
+    out = capsys.readouterr().out
+    number = f"FD-{_year()}-000001"
+    assert f"draft {draft_json.name} released" in out
+    assert f"certificate {number} issued, approved by C. Reviewer" in out
+    rec = Records(os.environ["FITDRAG_RECORDS"]).get(number)
+    assert rec.approved_by == "C. Reviewer"
+    assert rec.draft_sha256 == hashlib.sha256(draft_json.read_bytes()).hexdigest()
+    final = json.loads((outdir / f"{number}.json").read_text())
+    assert final["result"]["reported"] == draft["result"]["reported"]
+    assert final["certificate"]["record_hash"] == rec.record_hash
+    flat = " ".join(p.extract_text() for p in pypdf.PdfReader(str(outdir / f"{number}.pdf")).pages)
+    assert "DRAFT" not in flat and "Approved by: C. Reviewer" in flat
+    assert rec.record_hash in " ".join(flat.split())
+
+    # the same draft again: an identical re-run of a certified job is refused
+    assert main(["release", str(draft_json), "--approved-by", "C. Reviewer", "--quiet"]) == 2
+    assert f"were certified as {number}" in capsys.readouterr().err
+    # a track edited after the draft: refused, naming the file
+    track = job.parent / "throw1.csv"
+    track.write_text(track.read_text() + "\n")
+    assert main(["release", str(draft_json), "--approved-by", "C. Reviewer", "--quiet"]) == 2
+    err = _one_line(capsys.readouterr().err)
+    assert (
+        f"fitdrag release: error: {draft_json}: input {track.resolve()} changed since the draft"
+        in err
+    )
+    assert "the draft is not released: make a new draft and review it." in err
+    # not a draft
+    assert main(["release", str(outdir / f"{number}.json"), "--approved-by", "X"]) == 2
+    assert "not a draft written by 'fitdrag run JOB --draft'" in capsys.readouterr().err
+
+
+def test_track_header_conflicts_are_refused_and_its_footage_hashed(job, capsys):
+    """regression: a track whose header states another frame rate than [camera] fps is refused
+    naming both; with the header's rate, the footage the header names is among the input
+    hashes (hashlib's SHA-256)."""
+    track = job.parent / "throw1.csv"
+    body = track.read_text()
+    track.write_text("# fps: 500.0\n# footage: clip.avi\n" + body)
+    (job.parent / "clip.avi").write_bytes(b"synthetic footage bytes")
+    assert main(["run", str(job), "--quiet"]) == 2
+    line = next(n for n, ln in enumerate(_job_text().splitlines(), start=1)
+                if ln.startswith('track = "throw1.csv"'))  # fmt: skip
+    assert capsys.readouterr().err == (
+        f"fitdrag run: error: job.toml, line {line}: [[throws]] #1 track: throw1.csv's "
+        "header says fps: 500.0 (the frame rate of the footage it was tracked from), but "
+        "[camera] fps is 400 Hz (standard uncertainty 0.05 Hz); they must agree: correct "
+        "[camera] fps, or use the track file of this footage.\n"
+    )
+    assert not (job.parent / "certificates").exists()
+    track.write_text("# fps: 400.0\n# footage: clip.avi\n" + body)
+    assert main(["run", str(job), "--quiet"]) == 0
+    rep = json.loads(next((job.parent / "certificates").glob("FD-*.json")).read_text())
+    clip_hash = hashlib.sha256(b"synthetic footage bytes").hexdigest()
+    assert rep["inputs"]["sha256"][str((job.parent / "clip.avi").resolve())] == clip_hash
+
+
+def test_text_the_certificate_font_cannot_draw_is_refused(job, capsys):
+    """regression: a customer in CJK characters is refused before any work, naming the key,
+    the characters and the font (the certificate would show empty boxes)."""
+    job.write_text(_job_text(**{'customer = "Fictitious Sports Goods Ltd (edited)"':
+                                'customer = "株式会社 Sports"'}))  # fmt: skip
+    assert main(["run", str(job), "--quiet"]) == 2
+    assert capsys.readouterr().err == (
+        "fitdrag run: error: job.toml: [test] customer: the certificate's font DejaVu Sans "
+        "cannot draw '株' (U+682A CJK UNIFIED IDEOGRAPH-682A), '式' (U+5F0F CJK UNIFIED "
+        "IDEOGRAPH-5F0F), '会' (U+4F1A CJK UNIFIED IDEOGRAPH-4F1A), '社' (U+793E CJK UNIFIED "
+        "IDEOGRAPH-793E); the certificate would show empty boxes instead: write the text in "
+        "characters it can draw (e.g. a Latin transliteration).\n"
+    )
+    assert not (job.parent / "certificates").exists()
+
+
+def test_leftovers_of_a_killed_run_are_removed_by_the_next(job, capsys):
+    """regression: the temporary files a run killed mid-way left (a complete-looking page-1
+    PNG among them) are removed by the next run in that folder; the folder then holds only
+    finished certificates."""
+    import subprocess
+    import sys
+
+    outdir = job.parent / "certificates"
+    outdir.mkdir()
+    code = ("import os, sys; from pathlib import Path; from fitdrag._files import temporary_path;"
+            "d = Path(sys.argv[1]); [temporary_path(d / f'FD-2026-000009.{e}').write_bytes(b'x')"
+            " for e in ('pdf', 'png', 'json')]; os.kill(os.getpid(), 9)")  # fmt: skip
+    proc = subprocess.run([sys.executable, "-c", code, str(outdir)], check=False)
+    assert proc.returncode == -9
+    assert len(list(outdir.glob(".FD-2026-000009.*.tmp"))) == 3
+    assert main(["run", str(job), "--quiet"]) == 0
+    assert sorted(p.suffix for p in outdir.iterdir()) == [".json", ".pdf", ".png"]
+
+
+def test_run_warns_when_the_check_standard_is_out_of_control(job, tmp_path, capsys):
+    """regression: a job naming its check standard ([test] check_standard) warns on standard
+    error when the standard's latest result on record lies beyond 3 sigma of the limits set
+    by its first 10 results; the certificate is issued as usual."""
+    from datetime import UTC, timedelta
+
+    db_path = tmp_path / "records.sqlite"
+    db = Records(db_path)
+    start = datetime(2026, 6, 1, tzinfo=UTC)
+    vals = [0.4712, 0.4695, 0.4701, 0.4688, 0.4720, 0.4703, 0.4690, 0.4709, 0.4698, 0.4705,
+            0.4800]  # fmt: skip
+    for i, v in enumerate(vals):
+        db.issue(result={}, input_hashes={}, issued_at=start + timedelta(days=i), prefix="REF",
+                 summary={"specimen_id": "REF-40-A", "drag_coefficient": v})  # fmt: skip
+    text = job.read_text().replace("[test]\n", '[test]\ncheck_standard = "REF-40-A"\n', 1)
+    job.write_text(text)
+    assert main(["run", str(job), "--quiet", "--records", str(db_path)]) == 0
+    err = capsys.readouterr().err
+    assert (
+        "fitdrag run: WARNING: check standard 'REF-40-A' is out of control at its latest "
+        "result REF-2026-000011 (Cd = 0.48; test 1: beyond 3 sigma"
+    ) in err

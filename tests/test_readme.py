@@ -76,7 +76,11 @@ def test_readme_exit_code_table_matches_the_code():
     table = _exit_code_table()
     assert sorted(table) == sorted({errors.EXIT_OK, errors.EXIT_BUG, errors.EXIT_BAD_INPUT,
                                     errors.EXIT_NO_CONVERGENCE, errors.EXIT_FAIL,
-                                    errors.EXIT_CONDITIONAL_PASS, errors.EXIT_CONDITIONAL_FAIL})  # fmt: skip
+                                    errors.EXIT_CONDITIONAL_PASS, errors.EXIT_CONDITIONAL_FAIL,
+                                    errors.EXIT_RECORDS_NOT_INTACT,
+                                    errors.EXIT_OUT_OF_CONTROL})  # fmt: skip
+    assert "records verify" in table[errors.EXIT_RECORDS_NOT_INTACT]
+    assert "records chart" in table[errors.EXIT_OUT_OF_CONTROL]
     assert "bug" in table[errors.EXIT_BUG]
     assert "bad arguments or input" in table[errors.EXIT_BAD_INPUT]
     assert "did not converge" in table[errors.EXIT_NO_CONVERGENCE]

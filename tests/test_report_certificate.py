@@ -212,3 +212,46 @@ def test_write_certificate_is_atomic_and_refuses_overwrite(tmp_path):
         write_certificate(_content(), pdf, png)
     write_certificate(_content(), pdf, png, force=True)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["c.pdf", "c.png"]
+
+
+def test_customer_document_wording(tmp_path):
+    """closed-form/independent: the mass the job gave in g is shown in g (pint: 0.0240 kg =
+    24.0 g; u 2e-5 kg = 0.020 g, the value rounded to the same decimal place, GUM 7.2.6); the
+    budget's mass line is rounded with its uncertainty (0.002700 ± 0.000010, not 2.7e-03 beside
+    1e-05); the noise model is in words; page 1 says it is one of N; a probability of
+    conformity above 0.999 reads "> 99.9 %"."""
+    content = _content()
+    content = dataclasses.replace(
+        content,
+        specimen=dataclasses.replace(content.specimen, mass=Estimate(0.024, 2e-5),
+                                     shown_units={"mass": "g"}),
+        fit=dataclasses.replace(content.fit, noise_model="ar1"),
+        conditions=dataclasses.replace(content.conditions, shown_units={"pressure": "hPa"}),
+    )  # fmt: skip
+    pdf = tmp_path / "c.pdf"
+    n = render_certificate(content, pdf, curves=_curves())
+    flat = " ".join(_text(pdf)[1].replace("\xa0", " ").split())
+    assert "Mass 24.000 g (standard uncertainty 0.020 g)" in flat
+    assert "Air pressure 1008.00 hPa (standard uncertainty 0.50 hPa)" in flat  # 100800 ± 50 Pa
+    assert "0.002700 0.000010 kg" in flat
+    assert "noise model ar1" not in flat and "ar1" not in flat
+    assert "position errors correlated from frame to frame" in flat
+    assert f"Page 1 of {n}: valid only as the whole certificate of {n} pages" in flat
+    assert content.conformity.verdict.probability_of_conformity > 0.999  # 0.4712 ± 0.0118
+    assert "probability of conformity > 99.9 %" in flat
+    assert "probability of conformity 100.0 %" not in flat
+
+
+def test_draft_is_marked_on_every_page(tmp_path):
+    """regression: a draft has no number and says DRAFT on every page."""
+    content = dataclasses.replace(
+        _content(), issue=Issue("DRAFT", "2026-03-05T10:11:12+01:00", draft=True)
+    )
+    pdf = tmp_path / "d.pdf"
+    n = render_certificate(content, pdf, curves=_curves())
+    reader = pypdf.PdfReader(str(pdf))
+    assert len(reader.pages) == n
+    for page in reader.pages:
+        assert "DRAFT: not reviewed, not for release" in page.extract_text()
+    flat = " ".join(_text(pdf)[1].split())
+    assert "Certificate number none: DRAFT for review, not a certificate" in flat

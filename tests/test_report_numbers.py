@@ -34,3 +34,14 @@ def test_format_helpers():
     assert format_sig(16331183.0, 2) == "1.6e+07"
     assert format_sig(float("inf")) == "∞"
     assert formatter_for(0.0118)(0.44) == "0.440"
+
+
+def test_format_probability_never_claims_certainty():
+    """regression: 0.99997 and 1.0 read "> 99.9 %", 0.0004 "< 0.1 %", others to 0.1 %."""
+    from fitdrag.report.numbers import format_probability
+
+    assert format_probability(1.0) == "> 99.9 %"
+    assert format_probability(0.99997) == "> 99.9 %"
+    assert format_probability(0.999) == "99.9 %"
+    assert format_probability(0.5) == "50.0 %"
+    assert format_probability(0.0004) == "< 0.1 %"

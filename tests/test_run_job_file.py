@@ -50,6 +50,9 @@ def test_units_in_strings_are_converted(job_dir):
     assert job.air.temperature.uncertainty == pytest.approx(0.3)
     assert job.specimen.diameter.value == pytest.approx(0.040)
     assert job.camera.scale_relative_uncertainty == pytest.approx(0.002)
+    # the units as written, for the certificate to show them so
+    assert dict(job.specimen.shown_units) == {"mass": "g", "diameter": "mm"}
+    assert dict(job.air.shown_units) == {"pressure": "hPa"}
 
 
 @pytest.mark.parametrize(
@@ -224,10 +227,11 @@ def test_footage_throw_keys_parse(footage_dir):
         'marker_frame = 3\nscale_uncertainty = "0.1 %"\nstart = 2\n'
         'stop = 60\nlabel = "throw A"\n'
         '\n[[throws]]\nfootage = "clip.avi"\nscale = 0.00125\norigin = "12,790"\n'
-        'rotation = "0.5 deg"\n'
+        'rotation = "0.5 deg"\nscale_uncertainty = 0.002\n'
         '\n[[throws]]\nfootage = "clip.avi"\nreference = [1, 2, 3, 4, 0.5]\n'
+        "scale_uncertainty = 0\n"
         '\n[[throws]]\nfootage = "clip.avi"\nreference = "102.5,640,1180,655.5,1.000"\n'
-        "origin = [0, 10]\n",
+        "origin = [0, 10]\nscale_uncertainty = 0.001\n",
         _edit(_CAMERA_U, ""),
     )
     job = load_job(_write(footage_dir, text))
@@ -245,10 +249,10 @@ def test_footage_throw_keys_parse(footage_dir):
         "stop": 60,
     }
     assert b.options == {"scale": 0.00125, "origin": (12.0, 790.0),
-                               "rotation": pytest.approx(0.5)}  # fmt: skip
-    assert c.options == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5)}
+                         "rotation": pytest.approx(0.5), "scale_uncertainty": 0.002}  # fmt: skip
+    assert c.options == {"reference": (1.0, 2.0, 3.0, 4.0, 0.5), "scale_uncertainty": 0.0}
     assert d.options == {"reference": (102.5, 640.0, 1180.0, 655.5, 1.0),
-                               "origin": (0.0, 10.0)}  # fmt: skip
+                         "origin": (0.0, 10.0), "scale_uncertainty": 0.001}  # fmt: skip
     assert job.camera.scale_relative_uncertainty is None
     # the track_footage signature takes every option a footage throw may carry
     import inspect
@@ -396,10 +400,11 @@ def test_track_csv_needs_the_camera_distance_and_out_of_plane_uncertainty(job_di
     text += '\n[[throws]]\ntrack = "throw1.csv"\n'
     job = load_job(_write(job_dir, text))
     assert job.camera.distance.value == pytest.approx(3.0)
-    assert job.camera.distance.uncertainty == 0.05
+    # the bare 0.05 beside "300 cm" is in cm (the unit of its value): 0.0005 m
+    assert job.camera.distance.uncertainty == pytest.approx(0.0005, rel=1e-12)
     assert job.camera.out_of_plane_uncertainty == pytest.approx(0.25)
     q = {x.name: x for x in job.input_quantities()}
-    assert q["camera_distance"].standard_uncertainty == 0.05
+    assert q["camera_distance"].standard_uncertainty == pytest.approx(0.0005, rel=1e-12)
     assert [q[f"out_of_plane_angle_{k}"].standard_uncertainty for k in (1, 2)] == [
         pytest.approx(0.25), pytest.approx(0.25)]  # fmt: skip
     assert q["out_of_plane_angle_1"].value == 0.0 and "out_of_plane_angle" not in q
@@ -417,7 +422,7 @@ def _views_job(views: str, camera: str = "") -> str:
 
 _VIEW = (
     '[[throws.views]]\nfootage = "clip.avi"\nlens = "lens.json"\nmarkers = "50 mm"\n'
-    'marker_layout = "wall.csv"\n'
+    'marker_layout = "wall.csv"\nscale_uncertainty = 0.001\n'
 )
 
 
@@ -452,8 +457,10 @@ def test_views_throw_parses_each_camera(footage_dir):
     assert v2.time_offset.uncertainty == pytest.approx(1e-5)
     assert job.camera.readout_time.value == pytest.approx(2e-3)
     assert v1.tracking_options == {"markers": pytest.approx(0.05), "lens": v1.lens,
-                                   "marker_layout": v1.marker_layout}  # fmt: skip
-    single = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "lens.json"\n')
+                                   "marker_layout": v1.marker_layout,
+                                   "scale_uncertainty": 0.001}  # fmt: skip
+    single = _footage_job('markers = 0.05\nmarker_layout = "wall.csv"\nlens = "lens.json"\n'
+                          "scale_uncertainty = 0.001\n")  # fmt: skip
     job = load_job(_write(footage_dir, single))
     (th,) = job.throws
     assert th.kind == "footage" and th.measured_in_3d
@@ -471,6 +478,9 @@ def test_views_throw_parses_each_camera(footage_dir):
          r"reference \(offset 0\)"),
         (_VIEW + _VIEW + "time_offset_uncertainty = 0.001\n",
          r"\[\[throws\.views\]\] #2 time_offset_uncertainty: given without time_offset"),
+        (_VIEW + _VIEW + "time_offset = 0.0004\n",
+         r"\[\[throws\.views\]\] #2 time_offset_uncertainty: missing; give the standard "
+         r"uncertainty of the stated time offset"),
         (_VIEW + "readout_time = 0.001\n",
          r"\[\[throws\.views\]\] #1 readout_time_uncertainty: missing; give the standard "
          r"uncertainty of the readout time"),
@@ -551,3 +561,116 @@ def test_air_speed_viscosity_and_lift_keys(job_dir):
     with pytest.raises(ValueError, match=rf"^job\.toml, line {n}: \[air\] viscosity_uncertainty: "
                        r"given without viscosity; add viscosity or remove it\.$"):  # fmt: skip
         load_job(_write(job_dir, lone))
+
+
+def test_bare_uncertainty_takes_the_unit_of_its_value(job_dir):
+    """closed-form/independent: "every *_uncertainty is in the same unit as its value": a
+    bare number beside "24.00 g" is in grams (pint: 0.02 g = 2e-5 kg; 0.5 hPa = 50 Pa;
+    0.2 mm = 2e-4 m); a value without a unit keeps SI."""
+    text = _edit("mass = 0.0027 ", 'mass = "2.70 g" ')
+    text = _edit("mass_uncertainty = 0.00001 ", "mass_uncertainty = 0.02 ", text)
+    text = _edit("pressure = 100800 ", 'pressure = "1008 hPa" ', text)
+    text = _edit("pressure_uncertainty = 50 ", "pressure_uncertainty = 0.5 ", text)
+    text = _edit("diameter = 0.040 ", 'diameter = "40 mm" ', text)
+    text = _edit("diameter_uncertainty = 0.00005 ", 'diameter_uncertainty = "0.2" ', text)
+    job = load_job(_write(job_dir, text))
+    assert job.specimen.mass.uncertainty == pytest.approx(2e-5, rel=1e-12)
+    assert job.air.pressure.uncertainty == pytest.approx(50.0, rel=1e-12)
+    assert job.specimen.diameter.uncertainty == pytest.approx(2e-4, rel=1e-12)
+    assert job.air.temperature.uncertainty == 0.3  # no unit on the value: SI as before
+
+
+def test_implausibly_large_relative_uncertainty_needs_confirmation(job_dir):
+    """regression: 0.02 kg beside a mass of 24 g (an uncertainty in kg beside grams: 83 %) is
+    refused, naming the line and the way to confirm it; confirmed, it is taken."""
+    text = _edit("mass = 0.0027 ", "mass = 0.024 ")
+    text = _edit("mass_uncertainty = 0.00001 ", "mass_uncertainty = 0.02 ", text)
+    n = _line(text, "mass_uncertainty")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {n}: [specimen] mass_uncertainty: 0.02 kg is 83 % of the mass 0.024 kg "
+        f"(more than 10 %): a unit slip? A bare number is in the unit of its value; write e.g. "
+        f'"0.02 g". If it is right, confirm it with large_uncertainty_confirmed = true in '
+        f"[specimen]."
+    )
+    text = _edit("[specimen]\n", "[specimen]\nlarge_uncertainty_confirmed = true\n", text)
+    text = _edit("mass_uncertainty = 0.02 ", "mass_uncertainty = 0.012 ", text)
+    assert load_job(_write(job_dir, text)).specimen.mass.uncertainty == 0.012
+    text = _edit("diameter_uncertainty = 0.00005 ", "diameter_uncertainty = 0.005 ")
+    with pytest.raises(ValueError, match=r"\[specimen\] diameter_uncertainty: 0.005 m is 12 % "
+                       r"of the diameter 0.04 m"):  # fmt: skip
+        load_job(_write(job_dir, text))
+
+
+def test_footage_throw_needs_its_scale_uncertainty(footage_dir):
+    """regression: a footage throw without scale_uncertainty (and no [camera]
+    scale_relative_uncertainty) is refused: the marker side is never taken as exact silently."""
+    text = _footage_job('markers = "50 mm"\n', _edit(_CAMERA_U, ""))
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(footage_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, '[[throws]]')}: [[throws]] #1 scale_uncertainty: missing; "
+        "give the relative standard uncertainty of the calibration's known length (the "
+        "markers' side, the reference distance or the scale), e.g. scale_uncertainty = 0.001 "
+        "(write 0 if you take it as exact). Or state [camera] scale_relative_uncertainty for "
+        "every throw."
+    )
+    assert load_job(_write(footage_dir, _footage_job('markers = "50 mm"\n'))).throws
+
+
+@pytest.mark.parametrize(
+    "text_value, code, pos",
+    [
+        ('"SYN-\\u001b[2J-7"', "001B", 5),  # a terminal escape sequence (TOML escape)
+        ('"ABC\u202eFED"', "202E", 4),  # a right-to-left override, written raw
+        ('"A\\u2066B"', "2066", 2),  # a left-to-right isolate (TOML escape)
+    ],
+)
+def test_text_with_control_or_direction_characters_is_refused(job_dir, text_value, code, pos):
+    """regression: escape codes and bidirectional overrides in a text value (Unicode UAX #9
+    formatting characters) are refused with the line, the code point and its position."""
+    text = _edit('id = "SYN-BALL-001"', f"id = {text_value}")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, 'id = ')}: [specimen] id: holds the control or direction "
+        f"character U+{code} at position {pos} (terminal escape codes and right-to-left "
+        f"overrides make the text shown differ from the text stored); write the text without "
+        f"it."
+    )
+
+
+def test_multi_line_notes_and_accents_are_text(job_dir):
+    """regression: line breaks, tabs and accented letters are ordinary text."""
+    text = _edit('notes = "Three throws', 'notes = """Grüße,\n\tthree throws')
+    text = text.replace('indoor hall."', 'indoor hall."""', 1)
+    assert load_job(_write(job_dir, text)).test.notes.startswith("Grüße,\n\tthree")
+
+
+def test_specimen_denser_than_any_solid_is_refused(job_dir):
+    """published-value: 24 kg in a 40 mm sphere (π d³/6 = 3.351e-5 m³) is 7.16e5 kg/m³, far
+    above osmium's 22 590 kg/m³ (CRC Handbook, 97th ed., 2016): refused as a unit slip; the
+    template's 2.7 g ball (81 kg/m³) is taken."""
+    text = _edit("mass = 0.0027 ", "mass = 24 ")
+    with pytest.raises(ValueError) as exc:
+        load_job(_write(job_dir, text))
+    assert str(exc.value) == (
+        f"job.toml, line {_line(text, 'mass = ')}: [specimen] mass: 24 kg in a diameter of 0.04 m "
+        "is 7.16e+05 kg/m³, denser than any solid (osmium, 22590 kg/m³): a unit slip? Give the "
+        'mass in kg (e.g. 0.024) or with its unit ("24 g"), and the diameter likewise.'
+    )
+    assert load_job(_write(job_dir, TEMPLATE)).specimen.mass.value == 0.0027
+
+
+def test_stated_values_need_their_uncertainty(job_dir):
+    """regression: an added-mass coefficient stated without its uncertainty is refused (no
+    silent exact input); left out, the sphere's 0.5 is the model's constant."""
+    text = _edit("# added_mass_coefficient = 0.5 ", "added_mass_coefficient = 0.5 ")
+    with pytest.raises(ValueError, match=r"\[specimen\] added_mass_coefficient_uncertainty: "
+                       r"missing; give the standard uncertainty of the stated added-mass "
+                       r"coefficient"):  # fmt: skip
+        load_job(_write(job_dir, text))
+    text = _edit("# added_mass_coefficient_uncertainty = 0.0", "added_mass_coefficient_uncertainty"
+                 " = 0.02", text)  # fmt: skip
+    assert load_job(_write(job_dir, text)).specimen.added_mass_coefficient.uncertainty == 0.02

@@ -2,6 +2,9 @@
 
 from __future__ import annotations
 
+import os
+from pathlib import Path
+
 import pytest
 
 from fitdrag.run.job_file import load_job
@@ -26,7 +29,8 @@ def test_template_loads(job_dir):
     assert job.specification.lower == pytest.approx(0.44)
     assert job.decision_rule == "guarded"
     assert job.output_directory == (job_dir / "certificates").resolve()
-    assert job.records_path.name == "records.sqlite"
+    assert job.output.records is None  # the laboratory's database (FITDRAG_RECORDS here)
+    assert job.records_path == Path(os.environ["FITDRAG_RECORDS"])
     assert str(job.test.date) == "2026-01-15"
     names = [q.name for q in job.input_quantities()]
     assert names == ["mass", "diameter", "temperature", "pressure", "relative_humidity",

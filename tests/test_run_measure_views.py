@@ -149,6 +149,12 @@ def test_views_from_track_files(rendered, two_camera):
     assert abs(res.drag_coefficient - SCENARIO.cd) <= res.expanded_uncertainty
     assert [f.path for f in meas.content.footage] == [str(folder / "left.csv"),
                                                       str(folder / "right.csv")]  # fmt: skip
+    # the footage each track's header names is among the input hashes (hashlib's SHA-256)
+    import hashlib
+
+    for cam in CAMS:
+        avi = (folder / f"{cam.name}.avi").resolve()
+        assert meas.hashes[str(avi)] == hashlib.sha256(avi.read_bytes()).hexdigest()
     ref = two_camera[1].content.result
     assert res.drag_coefficient == pytest.approx(
         ref.drag_coefficient, abs=0.1 * ref.statistical_standard_uncertainty

@@ -204,3 +204,47 @@ def test_two_camera_job_recovers_the_true_flight():
     assert abs(r.views[1].time_offset - offset) * 500.0 < 0.1
     assert meas.content.method.geometry.startswith("Measured in 3-D (2 cameras")
     assert meas.verdict.decision == "pass"
+
+
+def test_sample_lot_matches_its_truth():
+    """closed-form/independent: the lot file loads; its five specimens' throws follow the
+    independent DOP853 integration (tests/reference.py) of the truth JSON's Cd, mass and
+    diameter to within 5 noise sigmas, and the README's truth table states them."""
+    from fitdrag.physics.air import Air
+    from fitdrag.run.lot_file import load_lot
+
+    folder = SAMPLES / "lot"
+    lot = load_lot(folder / "training_ball_lot.toml")
+    truth = json.loads((folder / "training_ball_lot_truth.json").read_text())
+    assert truth["synthetic"] is True
+    assert [s.id for s in lot.specimens] == sorted(truth["specimens"])
+    rho = Air.from_conditions(21.0, 100800.0, 45.0).density
+    readme = (SAMPLES / "README.md").read_text(encoding="utf-8")
+    for sp in lot.specimens:
+        t = truth["specimens"][sp.id]
+        assert f"| {sp.id} | {t['cd']:.4f} | {1e3 * t['mass']:.4f} |" in readme
+        for th, (v, a) in zip(sp.job.throws, ((9.0, 32.0), (8.0, 38.0))):
+            tr = read_track(th.path)
+            ar = math.radians(a)
+            xy = reference.flight(tr.t, (0.0, 0.0, v * math.cos(ar), v * math.sin(ar)),
+                                  reference.Body.sphere(t["mass"], t["diameter"]), rho,
+                                  t["cd"], gravity=9.80665)  # fmt: skip
+            assert np.hypot(tr.x - xy[:, 0], tr.y - xy[:, 1]).max() < 5 * 0.0003 * math.sqrt(2)
+
+
+def test_check_standard_history_is_flagged_at_the_shift():
+    """closed-form/independent: limits from the first 10 results of the sample history (mean,
+    mean moving range / 1.128, computed here from history.csv); the first result beyond
+    3 sigma is the first shifted one (2026-06-23), and the chart of the records database
+    flags it and nothing earlier by test 1."""
+    from fitdrag.run.check_standard import chart_from_records
+
+    rows = (SAMPLES / "check_standard" / "history.csv").read_text().splitlines()[1:]
+    x = np.array([float(r.split(",")[2]) for r in rows])
+    c, s = x[:10].mean(), np.mean(np.abs(np.diff(x[:10]))) / 1.128
+    beyond = [i for i, v in enumerate(x) if abs(v - c) > 3 * s]
+    assert rows[beyond[0]].startswith("2026-06-23")
+    sc = chart_from_records(SAMPLES / "check_standard" / "records.sqlite", "REF-40-A")
+    assert list(sc.chart.values) == list(x)
+    first1 = min(q.index for q in sc.chart.signals if q.rule == "1")
+    assert first1 == beyond[0] and sc.chart.latest_out_of_control

@@ -66,7 +66,7 @@ def test_round_trip_exact_with_frames_and_sigma(tmp_path):
     tr = Track(t, x, y, sigma=sigma, frame=frame, meta={"scale_relative_uncertainty": 0.0012})
     out = write_track(tr, tmp_path / "out.csv")
     assert out == tmp_path / "out.csv"
-    back = read_track(out)
+    back = read_track(out, physical=False)  # y up to ~1e8 m: any finite number round-trips
     for a, b in ((tr.t, back.t), (tr.x, back.x), (tr.y, back.y), (tr.sigma, back.sigma)):
         assert _same_bits(a, b)
     assert np.array_equal(back.frame, frame)
@@ -122,7 +122,7 @@ def tracks(draw):
 def test_round_trip_property(tr):
     """closed-form/independent: any valid track round-trips exactly (identity)."""
     with tempfile.TemporaryDirectory() as d:
-        back = read_track(write_track(tr, Path(d) / "p.csv"))
+        back = read_track(write_track(tr, Path(d) / "p.csv"), physical=False)
     assert _same_bits(tr.t, back.t)
     assert _same_bits(tr.x, back.x)
     assert _same_bits(tr.y, back.y)
@@ -489,6 +489,83 @@ def test_error_infinite_cell(tmp_path):
     with pytest.raises(ValueError, match=exact(
         f"{p}, line 3, column 'x': '-inf' is not a finite number; correct the cell, or delete "
         f"the row."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_values_beyond_physical_range(tmp_path):
+    """regression: a cell of 1e300 (once an OverflowError in the fit) and a time of 1e9 s are
+    refused with their line; 1e5 m is still a position (file in m)."""
+    lines = rows().splitlines()
+    lines[2] = "0.01,1e300,2"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 3, column 'x': '1e300' m is beyond ±100000 m, not a position of a throw; "
+        f"correct the cell, or delete the row."
+    )):  # fmt: skip
+        read_track(p)
+    lines[2] = "1e9,1,2"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 3, column 't': '1e9' s is beyond ±1e+07 s, not a time of a throw; correct "
+        f"the cell, or delete the row."
+    )):  # fmt: skip
+        read_track(p)
+    lines = rows().splitlines()
+    lines[-1] = "0.09,1e5,2"
+    assert read_track(write(tmp_path, "\n".join(lines))).x[-1] == 1e5
+
+
+def test_error_size_limits(tmp_path, monkeypatch):
+    """regression: an overlong line (a 5 MB field), too many rows and too many bytes are each
+    refused at once with the limit and how to lift it; lifting works."""
+    import time
+
+    from fitdrag.tracks.csv_file import MAX_LINE_CHARS
+
+    lines = rows().splitlines()
+    lines[4] = "0.03," + "9" * 5_000_000 + ",2"
+    p = write(tmp_path, "\n".join(lines))
+    t0 = time.perf_counter()
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 5: 5000007 characters long, more than the limit of {MAX_LINE_CHARS} for a "
+        f"line of a track file; this is not a row of numbers: correct or delete the line."
+    )):  # fmt: skip
+        read_track(p)
+    assert time.perf_counter() - t0 < 5.0  # a refusal, not a long read (generous bound)
+    p = write(tmp_path, rows(50))
+    monkeypatch.setenv("FITDRAG_MAX_TRACK_ROWS", "40")
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: 50 data rows, more than the limit of 40 for one throw (100 s of flight at 1000 "
+        f"frames/s); cut the file to the flight, or lift the limit with the environment "
+        f"variable FITDRAG_MAX_TRACK_ROWS=50."
+    )):  # fmt: skip
+        read_track(p)
+    monkeypatch.setenv("FITDRAG_MAX_TRACK_ROWS", "50")
+    assert len(read_track(p).t) == 50
+    size = p.stat().st_size
+    monkeypatch.setenv("FITDRAG_MAX_TRACK_BYTES", str(size - 1))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}: {size} bytes is more than the limit of {size - 1} bytes for a track file (a "
+        f"throw is a few hundred to a few thousand rows); cut the file to the flight, or lift "
+        f"the limit with the environment variable FITDRAG_MAX_TRACK_BYTES={size}."
+    )):  # fmt: skip
+        read_track(p)
+    monkeypatch.setenv("FITDRAG_MAX_TRACK_BYTES", "lots")
+    with pytest.raises(ValueError, match=exact(
+        "FITDRAG_MAX_TRACK_BYTES: 'lots' is not a whole number; set it to a limit such as "
+        "20000000 or unset it."
+    )):  # fmt: skip
+        read_track(p)
+
+
+def test_error_control_character_cell(tmp_path):
+    """regression: a cell holding a NUL byte names its line and column."""
+    lines = rows().splitlines()
+    lines[3] = "0.02,\x00,4"
+    p = write(tmp_path, "\n".join(lines))
+    with pytest.raises(ValueError, match=exact(
+        f"{p}, line 4, column 'x': '\\x00' is not a number; correct the cell, or delete the row."
     )):  # fmt: skip
         read_track(p)
 

@@ -165,6 +165,18 @@ def test_statement_names_specification_result_and_rule():
     assert d["decision"] == "conditional pass" and d["specification"]["tolerance"] == 0.25
 
 
+def test_statement_never_states_certainty():
+    """closed-form/independent: Cd 0.5 in 0.25..0.75 with u_c = 0.0625 is 4 u_c from each
+    limit: the normal model's probability of conformity is 1 − 2 Φ(−4) = 0.99994 (scipy),
+    stated as "> 99.9 %", not "100.0 %"; 2 u_c outside a limit gives Φ(−2) = 2.3 %."""
+    v = decide(0.5, U, SPEC, "simple")
+    assert v.probability_of_conformity == pytest.approx(1 - 2 * stats.norm.cdf(-4.0))
+    assert "Probability of conformity under a normal model: > 99.9 %." in v.statement()
+    w = decide(0.875, U, SPEC, "simple")
+    assert w.probability_of_conformity == pytest.approx(stats.norm.cdf(-2.0), rel=1e-6)
+    assert "Probability of conformity under a normal model: 2.3 %." in w.statement()
+
+
 def test_specification_errors():
     """regression: bad specifications raise ValueError naming the problem and the fix."""
     with pytest.raises(ValueError, match=r"^tolerance: must be > 0, got -0.1"):

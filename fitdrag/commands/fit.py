@@ -106,6 +106,21 @@ def _write_atomic(path: Path, write) -> None:
     write_atomic(path, write, force=True)  # existence was checked before the work began
 
 
+def format_failure(result, tracks) -> str:
+    """What a fit that did not converge prints: the diagnosis and the most likely cause, and
+    no Cd value (its numbers are not to be used)."""
+    from fitdrag.fit.diagnose import likely_cause
+
+    cause = likely_cause(tracks) or (
+        "no usual slip found in the tracks (their curvature shows gravity as expected); check "
+        "the specimen's mass and size, and try --model constant or fewer points"
+    )
+    return (
+        f"fit DID NOT CONVERGE ({result.message}); model: {result.model}; no drag coefficient "
+        f"is reported.\n  most likely cause: {cause}"
+    )
+
+
 def format_summary(result) -> str:
     """A readable text summary of a fit (for the terminal)."""
     d = result.to_dict()
@@ -245,13 +260,16 @@ def run(args) -> int:
         lift=args.lift, wind=args.wind, buoyancy=conditions.buoyancy, robust=args.robust,
         noise=args.noise, coverage_factor=args.coverage_factor,
     )  # fmt: skip
-    print(format_summary(result))
+    if not result.success:
+        print(format_failure(result, tracks))
+    else:
+        print(format_summary(result))
     if args.json:
         path = Path(args.json)
         text = json.dumps(result.to_dict(), indent=2, allow_nan=False)
         _write_atomic(path, lambda p: p.write_text(text + "\n", encoding="utf-8"))
         print(f"wrote {path}")
-    if args.plot:
+    if args.plot and result.success:
         from fitdrag.report.plots import plot_fit
 
         path = Path(args.plot)

@@ -23,6 +23,13 @@ Examples:
   fitdrag track throw3.mkv --fps 500 --reference 102.5,640,1180,655.5,1.000 -o throw3.csv
   fitdrag track throw4.avi --fps 1000 --markers 0.08 --marker-layout wall.csv \\
       --lens lens.json --readout-time 1.2ms --readout-time-uncertainty 0.1ms -o throw4.csv
+  fitdrag track day3/ --fps 500 --markers 0.16 -o day3_tracks/   # every video in day3/
+  fitdrag track day3/ --fps 500 --markers 0.16 -o day3_tracks/ --scheduler tcp://10.0.0.5:8786
+
+A folder holding video files (not numbered frames) is tracked file by file, each file a task
+on Dask (local processes by default, --workers N of them; or the dask.distributed cluster at
+--scheduler): -o names an existing folder that receives NAME.csv for each NAME.avi; a file that
+fails is named and the others finish (exit 2).
 
 Calibration (choose one):
   --scale M_PER_PX      known size of one pixel in the plane of flight; the world origin is at
@@ -61,7 +68,11 @@ def register(sub) -> argparse.ArgumentParser:
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("footage", metavar="FOOTAGE", help="video file or folder of numbered frames")
+    p.add_argument(
+        "footage",
+        metavar="FOOTAGE",
+        help="video file, folder of numbered frames, or folder of video files",
+    )
     p.add_argument("--fps", type=float, metavar="HZ",
                    help="capture frame rate [frames/s] (overrides the container's rate)")  # fmt: skip
     p.add_argument("-o", "--output", required=True, metavar="TRACK.csv", help="track CSV to write")
@@ -75,6 +86,12 @@ def register(sub) -> argparse.ArgumentParser:
                    "start a track (leave out a hand or another moving object)")  # fmt: skip
     p.add_argument("--force", action="store_true", help="overwrite existing output files")
     p.add_argument("--no-progress", action="store_true", help="no progress bar")
+    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="FOOTAGE a folder of video files: track them on the dask.distributed "
+                   "cluster at this address (default: local processes)")  # fmt: skip
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="FOOTAGE a folder of video files: local processes (default: the CPUs "
+                   "available; 0: in this process)")  # fmt: skip
     c = p.add_argument_group("calibration (one of --scale, --reference, --markers)")
     how = c.add_mutually_exclusive_group(required=True)
     how.add_argument("--scale", type=float, metavar="M_PER_PX",
@@ -188,13 +205,86 @@ def _camera_text(pose) -> str:
 # ------------------------------------------------------------------------------------------
 
 
+#: Suffixes of video files: a folder holding such files (and no numbered frames) is a folder
+#: of footage, each file tracked on its own.
+VIDEO_SUFFIXES = (".avi", ".mp4", ".mkv", ".mov", ".m4v", ".mpg", ".mpeg", ".wmv", ".mjpeg")
+_FRAME_SUFFIXES = (".png", ".tif", ".tiff", ".jpg", ".jpeg")
+
+
+def _videos_in(path: str) -> list[Path] | None:
+    """The video files of a folder of footage, or None (a video file, or a folder of
+    numbered frames)."""
+    p = Path(path)
+    if not p.is_dir():
+        return None
+    files = sorted(q for q in p.iterdir() if q.is_file())
+    if any(q.suffix.lower() in _FRAME_SUFFIXES for q in files):
+        return None
+    videos = [q for q in files if q.suffix.lower() in VIDEO_SUFFIXES]
+    return videos or None
+
+
 def run(args) -> int:
     # Tracking does small linear algebra only: a BLAS thread pool would cost more to start
     # (when numpy loads, just below) than it could save.  A value the user set is kept.
     os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+    videos = _videos_in(args.footage)
+    if videos is not None:
+        return _run_folder(args, videos)
+    if args.scheduler is not None or args.workers is not None:
+        raise InputError(
+            "--scheduler, --workers: only for a folder of video files (each tracked as a task); "
+            "leave them out for one file."
+        )
     from fitdrag.video.fit_worker import prepare_fits
 
     prepare_fits()  # the blob model fit gets ready while the rest loads and runs
+    print(track_one(args))
+    return 0
+
+
+def _run_folder(args, videos: list[Path]) -> int:
+    """Each video file of a folder tracked by its own task: ``-o`` is the output folder,
+    ``NAME.csv`` per ``NAME.avi``."""
+    import copy
+
+    from fitdrag.run.tasks import Task, run_tasks
+
+    if args.preview:
+        raise InputError("--preview: not with a folder of footage; preview one file at a time.")
+    outdir = Path(args.output)
+    if not outdir.is_dir():
+        raise InputFileNotFoundError(
+            f"-o/--output: with a folder of footage, give an existing output folder (one "
+            f"track CSV per video file); {str(outdir)!r} is not a folder."
+        )
+    if args.workers is not None and args.workers < 0:
+        raise InputError(f"--workers: must be >= 0, got {args.workers}; 0 runs in this process.")
+    tasks = []
+    for v in videos:
+        ns = copy.copy(args)
+        ns.footage, ns.output, ns.no_progress = str(v), str(outdir / (v.stem + ".csv")), True
+        _check_output(ns.output, "-o/--output", args.force)
+        tasks.append(Task(v.name, track_one, (ns,), f"file {v.name}"))
+    out = run_tasks(tasks, scheduler=args.scheduler, workers=args.workers,
+                    progress=not args.no_progress and sys.stderr.isatty(),
+                    description=f"tracking {len(tasks)} file(s)")  # fmt: skip
+    failed = 0
+    for t in tasks:
+        o = out[t.key]
+        if o.ok:
+            print(f"{t.key}:\n{o.value}")
+        else:
+            failed += 1
+            print(f"fitdrag track: {o.label}: {o.error}", file=sys.stderr)
+    print(f"{len(tasks) - failed} of {len(tasks)} file(s) tracked into {outdir}")
+    return 2 if failed else 0
+
+
+def track_one(args) -> str:
+    """Track one footage file as the options say; write its CSV (and preview); the summary.
+
+    Module level, so that it can run as a Dask task (a folder of footage)."""
     from fitdrag.tracks.csv_file import read_track
     from fitdrag.video.sources import open_source
     from fitdrag.video.tracking import footage_track_csv_text, track_footage
@@ -256,11 +346,10 @@ def run(args) -> int:
             image = source.read(n_show)
         fig = track_preview_figure(ft, image)
         _write_atomic(preview, lambda p: fig.savefig(p, dpi=100, format="png"), args.force)
-    print(summary)
-    print(f"wrote {out}")
+    lines = [summary, f"wrote {out}"]
     if preview is not None:
-        print(f"wrote {preview}")
-    return 0
+        lines.append(f"wrote {preview}")
+    return "\n".join(lines)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -36,7 +36,7 @@ from pathlib import Path
 
 from fitdrag._files import temporary_path
 from fitdrag.errors import InputError
-from fitdrag.report.content import CertificateContent, Estimate
+from fitdrag.report.content import CertificateContent, Estimate, noise_words
 from fitdrag.report.layout import (
     BODY_W,
     MARGIN_B,
@@ -49,7 +49,12 @@ from fitdrag.report.layout import (
     hline,
     put_text,
 )
-from fitdrag.report.numbers import format_sig, format_with_uncertainty, formatter_for
+from fitdrag.report.numbers import (
+    format_probability,
+    format_sig,
+    format_with_uncertainty,
+    formatter_for,
+)
 
 __all__ = [
     "CAUTION",
@@ -94,6 +99,28 @@ def _pm(e: Estimate | None, unit="", digits=2) -> str:
     return f"{v} {unit} (standard uncertainty {us} {unit})".replace("  ", " ").replace(" )", ")")
 
 
+def _pm_shown(e: Estimate | None, si_unit: str, shown: str | None, symbol: str) -> str:
+    """:func:`_pm` in the unit the job gave (``shown``, e.g. "g" for a mass in kg), converted
+    with pint; in SI (``symbol``) when the job gave none."""
+    if e is None or e.value is None or not shown:
+        return _pm(e, symbol)
+    from fitdrag.units import unit_registry
+
+    try:
+        factor = float(unit_registry().Quantity(1.0, si_unit).to(shown).magnitude)
+    except Exception:  # noqa: BLE001 - a unit pint cannot convert back: show SI
+        return _pm(e, symbol)
+    u = None if e.standard_uncertainty is None else e.standard_uncertainty * factor
+    return _pm(Estimate(e.value * factor, u), shown)
+
+
+def _estimate_pair(value: float, u: float) -> tuple[str, str]:
+    """A budget line's estimate and standard uncertainty, rounded together (GUM 7.2.6)."""
+    if u and math.isfinite(u) and u > 0:
+        return format_with_uncertainty(value, u, 2)
+    return format_sig(value, 6), "0"
+
+
 def _date(s) -> str:
     return str(s)[:10] if s else "—"
 
@@ -102,8 +129,19 @@ def _sourced(text: str, source: str) -> str:
     return text + (f"; {source}" if source else "")
 
 
-def build_layout(content: CertificateContent, curves=None) -> Layout:
-    """Lay out the certificate's content (exposed for inspection and tests)."""
+def page_one_note(total_pages: int) -> str:
+    """The line on page 1 that travels with it when it goes alone (as the PNG)."""
+    return (
+        f"Page 1 of {total_pages}: valid only as the whole certificate of {total_pages} pages "
+        f"(method, uncertainty budget, signatures); the results relate only to the item tested."
+    )
+
+
+def build_layout(
+    content: CertificateContent, curves=None, total_pages: int | None = None
+) -> Layout:
+    """Lay out the certificate's content (exposed for inspection and tests); with
+    ``total_pages``, page 1 says it is one of that many."""
     L = Layout()
     cert = content.issue
     lab = content.laboratory
@@ -125,11 +163,20 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         L.paragraph(f"Accreditation: {lab.accreditation}", size=8)
     L.space(0.12)
     L.paragraph(TITLE, size=13, weight="bold")
-    L.rows([("Certificate number", cert.number if cert else "—"),
-            ("Date of issue", _date(cert.issued_at if cert else None))])  # fmt: skip
+    if cert and cert.draft:
+        L.rows([("Certificate number", "none: DRAFT for review, not a certificate"),
+                ("Drafted", _date(cert.issued_at))])  # fmt: skip
+    else:
+        L.rows([("Certificate number", cert.number if cert else "—"),
+                ("Date of issue", _date(cert.issued_at if cert else None))])  # fmt: skip
+    if cert and cert.record_hash:
+        L.paragraph(f"Record hash (SHA-256): {cert.record_hash}", size=7.0)
+    if total_pages:
+        L.paragraph(page_one_note(total_pages), size=7.5, weight="bold")
     if cert and cert.replaces:
         L.paragraph(
-            f"This certificate replaces certificate {cert.replaces}, which is withdrawn.",
+            f"This certificate replaces certificate {cert.replaces}, which is withdrawn"
+            + (f" (reason: {cert.reason})." if cert.reason else "."),
             size=8.5,
             weight="bold",
         )
@@ -143,12 +190,13 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     L.rows(rows)
     L.heading("Item tested")
     rows = [("Identification", spec.id), ("Description", spec.description)]
-    rows.append(("Mass", _pm(spec.mass, "kg")))
+    shown = spec.shown_units or {}
+    rows.append(("Mass", _pm_shown(spec.mass, "kg", shown.get("mass"), "kg")))
     if spec.diameter is not None:
-        rows.append(("Diameter", _pm(spec.diameter, "m")))
+        rows.append(("Diameter", _pm_shown(spec.diameter, "m", shown.get("diameter"), "m")))
     else:
-        rows.append(("Frontal area", _pm(spec.area, "m²")))
-        rows.append(("Volume", _pm(spec.volume, "m³")))
+        rows.append(("Frontal area", _pm_shown(spec.area, "m**2", shown.get("area"), "m²")))
+        rows.append(("Volume", _pm_shown(spec.volume, "m**3", shown.get("volume"), "m³")))
     L.rows(rows)
     L.heading("Test")
     rows = [("Date of test", _date(test.date)), ("Performed by", test.operator)]
@@ -218,8 +266,8 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
                 "Residual RMS",
                 f"{format_sig(1e3 * fit.residual_rms, 2)} mm "
                 f"(x {format_sig(1e3 * fit.residual_rms_x, 2)} mm, "
-                f"y {format_sig(1e3 * fit.residual_rms_y, 2)} mm); noise model "
-                f"{fit.noise_model}, lag-1 autocorrelation "
+                f"y {format_sig(1e3 * fit.residual_rms_y, 2)} mm); "
+                f"{noise_words(fit.noise_model)}; lag-1 autocorrelation "
                 f"{format_sig(fit.lag1_autocorrelation, 2)}",
             )  # fmt: skip
         )
@@ -235,7 +283,7 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         L.paragraph(
             f"Decision: {str(v.decision).upper()} (decision rule: {v.rule} "
             f"acceptance; probability of conformity "
-            f"{100 * v.probability_of_conformity:.1f} %)",
+            f"{format_probability(v.probability_of_conformity)})",
             size=9.5,
             weight="bold",
         )
@@ -270,7 +318,10 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
         (cond.pressure, "Air pressure", "Pa"),
         (cond.relative_humidity, "Relative humidity", "%"),
     ):
-        if est is not None:
+        if est is not None and label == "Air pressure":
+            shown = (cond.shown_units or {}).get("pressure")
+            rows.append((label, _pm_shown(est, "Pa", shown, "Pa")))
+        elif est is not None:
             rows.append((label, _pm(est, unit)))
     rows.append(("Air density", _sourced(_pm(cond.air_density, "kg/m³"),
                                          cond.air_density_source)))  # fmt: skip
@@ -315,8 +366,7 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     for ln in budget.lines:
         rows.append([
             ln.description or ln.name,
-            f"{ln.value:.6g}",
-            format_sig(ln.standard_uncertainty, 2),
+            *_estimate_pair(ln.value, ln.standard_uncertainty),
             ln.unit,
             format_sig(ln.sensitivity, 3),
             format_sig(abs(ln.contribution), 2),
@@ -361,9 +411,9 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
                 ("Standard uncertainty", f"{format_sig(run.standard_uncertainty, 2)}"),
                 (f"{pc:.0f} % interval", f"Monte Carlo [{fmt(lo)}, {fmt(hi)}] (probabilistically "
                  f"symmetric); GUM [{fmt(glo)}, {fmt(ghi)}]"),
-                ("Comparison", f"|d_low| = {format_sig(check.d_low, 2)}, |d_high| = "
-                 f"{format_sig(check.d_high, 2)}, tolerance δ = "
-                 f"{format_sig(check.tolerance, 1)}. {verdict_txt}"),
+                ("Comparison", f"the ends of the two intervals differ by "
+                 f"{format_sig(check.d_low, 2)} (lower) and {format_sig(check.d_high, 2)} "
+                 f"(upper); tolerance {format_sig(check.tolerance, 1)}. {verdict_txt}"),
             ],
             size=8.0,
         )  # fmt: skip
@@ -406,7 +456,13 @@ def build_layout(content: CertificateContent, curves=None) -> Layout:
     def signatures(fig, y):
         half = BODY_W / 2
         for i, (role, name) in enumerate(
-            (("Tested by", test.operator), ("Approved by", test.approved_by or ""))
+            (
+                ("Tested by", test.operator),
+                (
+                    "Approved by",
+                    (cert.approved_by if cert and cert.approved_by else test.approved_by) or "",
+                ),
+            )  # fmt: skip
         ):
             x0 = MARGIN_L + i * half
             fig.add_artist(hline(fig, x0, x0 + half - 0.4, y + 0.35, lw=0.6))
@@ -448,9 +504,12 @@ def render_certificate(
     from matplotlib.backends.backend_pdf import PdfPages
     from matplotlib.figure import Figure
 
-    layout = build_layout(content, curves)
-    pages = layout.paginate()
-    n = len(pages)
+    n = len(build_layout(content, curves).paginate())
+    for _ in range(3):  # the note on page 1 may push the last page over
+        pages = build_layout(content, curves, total_pages=n).paginate()
+        if len(pages) == n:
+            break
+        n = len(pages)
     cert = content.issue
     number = cert.number if cert else ""
     lab = content.laboratory.name
@@ -466,27 +525,38 @@ def render_certificate(
             meta["CreationDate"] = datetime.fromisoformat(str(issued))
         except ValueError:
             pass
+    draft = cert is not None and cert.draft
+    running = "DRAFT: not reviewed, not for release" if draft else f"Certificate {number}"
+    running_weight = "bold" if draft else "normal"
     with matplotlib.rc_context({"pdf.fonttype": 42}):
         with PdfPages(pdf_path, metadata=meta) as pdf:
             for i, page in enumerate(pages):
                 fig = Figure(figsize=(PAGE_W, PAGE_H))
                 put_text(fig, MARGIN_L, MARGIN_T - 0.35, lab, size=7.5, style="italic")
-                put_text(fig, PAGE_W - MARGIN_R, MARGIN_T - 0.35, f"Certificate {number}",
-                         size=7.5, ha="right")  # fmt: skip
+                put_text(fig, PAGE_W - MARGIN_R, MARGIN_T - 0.35, running,
+                         size=7.5, ha="right", weight=running_weight)  # fmt: skip
                 fig.add_artist(hline(fig, MARGIN_L, PAGE_W - MARGIN_R, MARGIN_T - 0.15, lw=0.4))
                 for block, y in page:
                     block.draw(fig, y)
                 fig.add_artist(
                     hline(fig, MARGIN_L, PAGE_W - MARGIN_R, PAGE_H - MARGIN_B + 0.2, lw=0.4)
                 )
-                put_text(fig, MARGIN_L, PAGE_H - MARGIN_B + 0.27, f"Certificate {number}",
-                         size=7.5)  # fmt: skip
+                put_text(fig, MARGIN_L, PAGE_H - MARGIN_B + 0.27, running, size=7.5,
+                         weight=running_weight)  # fmt: skip
                 put_text(fig, PAGE_W - MARGIN_R, PAGE_H - MARGIN_B + 0.27, f"Page {i + 1} of {n}",
                          size=7.5, ha="right")  # fmt: skip
+                if cert is not None and cert.draft:
+                    _draft_mark(fig)
                 pdf.savefig(fig)
                 if i == 0 and png_path is not None:
                     fig.savefig(png_path, format="png", dpi=dpi, facecolor="white")
     return n
+
+
+def _draft_mark(fig) -> None:
+    """A large diagonal "DRAFT" across the page (the running header and footer say it too)."""
+    fig.text(0.5, 0.5, "DRAFT", fontsize=110, color=(0.85, 0.1, 0.1), alpha=0.22,
+             rotation=52, ha="center", va="center", weight="bold")  # fmt: skip
 
 
 def write_certificate(

@@ -127,6 +127,7 @@ class TestDetails:
     location: str | None = None
     notes: str | None = None
     key_order: tuple[str, ...] = field(default=(), repr=False, compare=False)
+    check_standard: str | None = None  # id of the set-up's check standard (not printed)
 
     def to_dict(self) -> dict:
         return _given(self, ("customer", "customer_address", "order", "operator",
@@ -158,6 +159,9 @@ class ItemTested:
         Frontal area [m²] and volume [m³] of a body.
     length : float or None
         Reference length of a body for the Reynolds number. [m]
+    shown_units : mapping
+        The unit the job gave for mass, diameter, area or volume (e.g. ``{"mass": "g"}``):
+        the certificate shows the value in it.
     """
 
     id: str
@@ -169,6 +173,7 @@ class ItemTested:
     area: Estimate | None = None
     volume: Estimate | None = None
     length: float | None = None
+    shown_units: Mapping[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {"id": self.id, "description": self.description,
@@ -225,6 +230,8 @@ class Conditions:
     pressure: Estimate | None = None
     relative_humidity: Estimate | None = None
     air_speed_uncertainty: float | None = None
+    #: The unit the job gave the pressure in (``{"pressure": "hPa"}``), for the certificate.
+    shown_units: Mapping[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {}
@@ -526,6 +533,15 @@ class Conformity:
 # ---------------------------------------------------------------------------------------------
 
 
+def noise_words(model: str | None) -> str:
+    """The fit's noise model in the trade's words, for the certificate (the JSON keeps the
+    internal name)."""
+    if model == "ar1":
+        return ("position errors correlated from frame to frame, allowed for by a first-order "
+                "autoregressive model")  # fmt: skip
+    return "position errors independent from frame to frame"
+
+
 @dataclass(frozen=True)
 class Issue:
     """The certificate's number and time of issue (and the one it replaces)."""
@@ -534,12 +550,27 @@ class Issue:
     issued_at: str
     replaces: str | None = None
     pages: int | None = None
+    #: The record's hash in the records database (SHA-256, hex), printed on the certificate.
+    record_hash: str | None = None
+    #: The identifier of the records database that holds the record.
+    records_id: str | None = None
+    #: Why this certificate replaces ``replaces``.
+    reason: str | None = None
+    #: Who reviewed and authorised the release, and when (a released draft).
+    approved_by: str | None = None
+    #: True for a draft: no number, not for release ("DRAFT" on every page).
+    draft: bool = False
 
     def to_dict(self) -> dict:
         d: dict[str, Any] = {"number": self.number, "issued_at": self.issued_at,
                              "replaces": self.replaces}  # fmt: skip
         if self.pages is not None:
             d["pages"] = self.pages
+        for k in ("record_hash", "records_id", "reason", "approved_by"):
+            if getattr(self, k) is not None:
+                d[k] = getattr(self, k)
+        if self.draft:
+            d["draft"] = True
         return d
 
 

@@ -30,7 +30,9 @@ def _wrap(text: str, size: float, width_in: float, bold: bool = False) -> list[s
     em = _CHAR_EM * (1.12 if bold else 1.0)
     chars = max(10, int(width_in / (size * _PT * em)))
     out: list[str] = []
-    for para in str(text).split("\n"):
+    # a number and its unit sign stay on one line ("95.45 %)" never wraps a lone "%)")
+    text = str(text).replace(" %", "\u00a0%").replace(" °", "\u00a0°")
+    for para in text.split("\n"):
         out.extend(textwrap.wrap(para, chars, break_long_words=True) or [""])
     return out
 

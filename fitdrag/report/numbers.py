@@ -16,7 +16,7 @@ import math
 from collections.abc import Callable
 from decimal import ROUND_HALF_UP, Decimal
 
-__all__ = ["format_sig", "format_with_uncertainty", "formatter_for"]
+__all__ = ["format_probability", "format_sig", "format_with_uncertainty", "formatter_for"]
 
 
 def _decimals_for(u: float, digits: int) -> int:
@@ -79,3 +79,15 @@ def formatter_for(uncertainty: float, digits: int = 2) -> Callable[[float], str]
         return lambda x: format_sig(x, 6)
     dec = _decimals_for(u, digits)
     return lambda x: _fixed(x, dec)
+
+
+def format_probability(p: float) -> str:
+    """A probability as a percentage to 0.1 %, never rounded to a certainty: "> 99.9 %" above
+    0.999, "< 0.1 %" below 0.001 (a computed probability of 1 or 0 under a normal model is a
+    rounding, not a fact)."""
+    p = float(p)
+    if p > 0.999:
+        return "> 99.9 %"
+    if p < 0.001:
+        return "< 0.1 %"
+    return f"{100 * p:.1f} %"

@@ -611,8 +611,11 @@ def run_demo(
 
     # 5. certificate and record -----------------------------------------------------------
     t0 = step(5, "fitdrag run: certificate and record")
-    previous = _latest_unreplaced(job.records_path)
-    rec, db_path = issue(meas, replaces=previous, force=force)
+    # the demo keeps its own records database beside its certificates (not the laboratory's)
+    db_path = job.output.records or job.output_directory / "records.sqlite"
+    previous = _latest_unreplaced(db_path)
+    rec, _ = issue(meas, records_path=db_path, replaces=previous,
+                   reason="the demo run again" if previous else None)  # fmt: skip
     timings["issue"] = time.perf_counter() - t0
 
     # the same flight measured in the board's plane, for comparison ------------------------

@@ -97,6 +97,9 @@ class SpecimenSection:
     area: Measured | None = None
     volume: Measured | None = None
     length: float | None = None
+    #: The units the job wrote mass, diameter, area or volume in ("g", "mm"), by key: the
+    #: certificate shows them so.
+    shown_units: tuple[tuple[str, str], ...] = ()
 
     @property
     def shape(self) -> str:
@@ -132,6 +135,8 @@ class AirSection:
     density: Measured | None = None
     viscosity: Measured | None = None
     air_speed_uncertainty: float | None = None
+    #: The unit the job wrote the pressure in ("hPa"): the certificate shows it so.
+    shown_units: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -414,9 +419,11 @@ class Job:
 
     @property
     def records_path(self) -> Path:
-        from fitdrag.run.records import DEFAULT_FILENAME
+        """The records database: the job's ``[output] records``, else the laboratory's
+        (:func:`fitdrag.run.records.lab_records`)."""
+        from fitdrag.run.records import lab_records
 
-        return self.output.records or self.output_directory / DEFAULT_FILENAME
+        return lab_records(None, self.output.records).path
 
     # -- objects for the fit --------------------------------------------------------------
 

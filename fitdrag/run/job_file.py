@@ -71,9 +71,14 @@ from fitdrag.run.job_keys import (
     parse_table,
 )
 from fitdrag.uncertainty.decision import Specification
-from fitdrag.units import unit_symbol
+from fitdrag.units import unit_of_text, unit_symbol
 
-__all__ = ["NORMAL_GRAVITY_UNCERTAINTY", "UNKNOWN_SITE_GRAVITY_HALF_WIDTH", "load_job"]
+__all__ = [
+    "NORMAL_GRAVITY_UNCERTAINTY",
+    "UNKNOWN_SITE_GRAVITY_HALF_WIDTH",
+    "job_from_data",
+    "load_job",
+]
 
 
 #: Gravity assumed when a job gives no [site]: standard gravity, with a rectangular
@@ -127,9 +132,16 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"{path.name}: not valid TOML: {exc}.") from None
     path = path.resolve()
-    folder = path.parent
-    where = Where(path, text)
+    return job_from_data(data, text, path, Where(path, text), path.parent, check_files)
 
+
+def job_from_data(data: dict, text: str, path: Path, where: Where, folder: Path,
+                  check_files: bool = True) -> Job:  # fmt: skip
+    """A :class:`Job` from a job file's parsed TOML ``data`` (see :func:`load_job`).
+
+    ``where`` names the place of an error (a lot file gives its own, naming the specimen);
+    relative paths resolve against ``folder``; ``path`` and ``text`` are kept in the job.
+    """
     for sec, value in data.items():
         if sec not in SECTIONS:
             valid = ", ".join("[[throws]]" if s == "throws" else f"[{s}]" for s in SECTIONS
@@ -161,7 +173,15 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
                 missing(where, sec, None, key, _REQUIRED_HINT.get((sec, key), "it is required."))
 
     specimen = _specimen(where, parsed["specimen"])
+    raw_specimen = data.get("specimen") or {}
+    shown = tuple((k, unit_of_text(raw_specimen[k])) for k in ("mass", "diameter", "area", "volume")
+                  if isinstance(raw_specimen.get(k), str) and unit_of_text(raw_specimen[k]))  # fmt: skip
+    specimen = dataclasses.replace(specimen, shown_units=shown)
     air = _air(where, parsed["air"])
+    raw_air = data.get("air") or {}
+    if isinstance(raw_air.get("pressure"), str) and unit_of_text(raw_air["pressure"]):
+        air = dataclasses.replace(air, shown_units=(("pressure",
+                                                     unit_of_text(raw_air["pressure"])),))  # fmt: skip
     site = _site(where, parsed["site"])
     camera = _camera(where, parsed["camera"])
     throws = _throws(where, data["throws"], folder, check_files)
@@ -174,6 +194,12 @@ def load_job(path: str | Path, *, check_files: bool = True) -> Job:
             "give the relative standard uncertainty of the track's length scale (e.g. 0.002), "
             "or 0 if the track's positions are exact.",
         )
+    if camera.scale_relative_uncertainty is None:
+        # no silent exact calibration: each planar footage throw states its length's uncertainty
+        for i, th in enumerate(throws):
+            if th.kind == "footage" and "scale_uncertainty" not in th.options:
+                missing(where, "throws", i, "scale_uncertainty", SCALE_UNCERTAINTY_FIX
+                        + " Or state [camera] scale_relative_uncertainty for every throw.")  # fmt: skip
     _planar_statement(where, camera, throws)
     _one_geometry(where, throws)
     spec, rule = _specification(where, parsed["specification"], "specification" in data)
@@ -231,6 +257,33 @@ _REQUIRED_HINT = {
 }
 
 
+#: Density of osmium, the densest element, at 20 °C (CRC Handbook of Chemistry and Physics,
+#: 97th ed., 2016, "Physical constants of inorganic compounds": 22.59 g/cm³): a specimen
+#: denser than this is a unit slip. [kg/m³]
+DENSEST_SOLID = 22_590.0
+
+#: Largest relative standard uncertainty of the specimen's mass, diameter, area or volume taken
+#: without confirmation: a larger one is more often a unit slip (an uncertainty in kg beside a
+#: mass in g) than a real weighing or gauging (common practice, no source). [1]
+PLAUSIBLE_RELATIVE_UNCERTAINTY = 0.10
+
+
+def _plausible_uncertainty(where, d, m: Measured, key: str) -> None:
+    """Refuse u/value above :data:`PLAUSIBLE_RELATIVE_UNCERTAINTY` unless the job confirms it
+    with ``[specimen] large_uncertainty_confirmed = true``."""
+    if d.get("large_uncertainty_confirmed") or not m.value > 0:
+        return
+    rel = m.uncertainty / m.value
+    if rel > PLAUSIBLE_RELATIVE_UNCERTAINTY:
+        fail(
+            f"{where.key('specimen', None, key + '_uncertainty')}: {m.uncertainty:.3g} {m.unit} "
+            f"is {100 * rel:.0f} % of the {key} {m.value:.4g} {m.unit} (more than "
+            f"{100 * PLAUSIBLE_RELATIVE_UNCERTAINTY:.0f} %): a unit slip? A bare number is in "
+            f'the unit of its value; write e.g. "0.02 g". If it is right, confirm it with '
+            f"large_uncertainty_confirmed = true in [specimen]."
+        )
+
+
 def _specimen(where, d):
     sec = "specimen"
     out: dict[str, Any] = {"id": d["id"], "description": d["description"]}
@@ -240,6 +293,7 @@ def _specimen(where, d):
             f"{where.key(sec, None, 'mass_uncertainty')}: {out['mass'].uncertainty:g} kg is not "
             f"smaller than the mass {out['mass'].value:g} kg; check the units."
         )
+    _plausible_uncertainty(where, d, out["mass"], "mass")
     has_d = "diameter" in d
     has_av = "area" in d or "volume" in d
     if has_d and has_av:
@@ -249,6 +303,7 @@ def _specimen(where, d):
         )
     if has_d:
         out["diameter"] = measured(where, sec, d, "diameter", "m", "")
+        _plausible_uncertainty(where, d, out["diameter"], "diameter")
         if "length" in d:
             fail(
                 f"{where.key(sec, None, 'length')}: a sphere's reference length is its "
@@ -264,6 +319,8 @@ def _specimen(where, d):
                 unit,
                 f"give the specimen's {key} in {unit_symbol(unit)} (with {key}_uncertainty).",
             )
+        for key in ("area", "volume"):
+            _plausible_uncertainty(where, d, out[key], key)
         if "length" in d:
             out["length"] = d["length"]
     else:
@@ -278,6 +335,21 @@ def _specimen(where, d):
         base = key.removesuffix("_uncertainty")
         if key.endswith("_uncertainty") and base not in d:
             fail(f"{where.key(sec, None, key)}: given without {base}; add {base} or remove it.")
+    volume = (math.pi / 6.0 * out["diameter"].value ** 3 if "diameter" in out
+              else out["volume"].value)  # fmt: skip
+    density = out["mass"].value / volume
+    if density > DENSEST_SOLID:
+        key = "diameter" if "diameter" in out else "volume"
+        fail(
+            f"{where.key(sec, None, 'mass')}: {out['mass'].value:.4g} kg in a {key} of "
+            f"{out[key].value:.4g} {out[key].unit} is {density:.3g} kg/m³, denser than any "
+            f"solid (osmium, {DENSEST_SOLID:g} kg/m³): a unit slip? Give the mass in kg "
+            f'(e.g. 0.024) or with its unit ("24 g"), and the {key} likewise.'
+        )
+    if "added_mass_coefficient" in d and "added_mass_coefficient_uncertainty" not in d:
+        missing(where, sec, None, "added_mass_coefficient_uncertainty",
+                "give the standard uncertainty of the stated added-mass coefficient (write 0 if "
+                "you take it as exact), or leave both out for a sphere's 0.5.")  # fmt: skip
     ca = d.get("added_mass_coefficient", 0.5)
     out["added_mass_coefficient"] = Measured(
         ca, d.get("added_mass_coefficient_uncertainty", 0.0), ""
@@ -552,10 +624,10 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
                 f'track = "cam1.csv" (a track file written by fitdrag track with a camera).'
             )
         kind = "footage" if "footage" in d else "track"
-        needs = VIEW_NEEDS if kind == "footage" else ("lens",)
+        needs = VIEW_NEEDS + ("scale_uncertainty",) if kind == "footage" else ("lens",)
         for k in needs:
             if k not in d:
-                missing(where, vs, gi, k, _VIEW_HINT[k])
+                missing(where, vs, gi, k, _VIEW_HINT.get(k, SCALE_UNCERTAINTY_FIX))
         if kind == "track":
             extra = sorted(k for k in d if k in _FOOTAGE_ONLY)
             if extra:
@@ -582,6 +654,11 @@ def _views_throw(where, i, t, folder, check_files, first) -> Throw:
                     f"{where.key(vs, gi, 'time_offset')}: the first view is the time reference "
                     f"(offset 0); give the other views' offsets relative to it."
                 )
+            if j > 0 and "time_offset_uncertainty" not in d:
+                missing(where, vs, gi, "time_offset_uncertainty",
+                        "give the standard uncertainty of the stated time offset in s (e.g. "
+                        '"0.01 ms"; write 0 if you take it as exact), or leave time_offset out '
+                        "to have it estimated.")  # fmt: skip
             offset = Measured(d["time_offset"], d.get("time_offset_uncertainty", 0.0), "s")
         elif "time_offset_uncertainty" in d:
             fail(
@@ -641,6 +718,15 @@ def _one_geometry(where, throws) -> None:
             f"(footage with a lens, or [[throws.views]]); measure every throw of a job the same "
             f"way: give each footage its lens, markers and marker_layout, or none a lens."
         )
+
+
+#: How to give a footage throw's calibration length uncertainty (required: no silent exact
+#: marker side, reference distance or scale).
+SCALE_UNCERTAINTY_FIX = (
+    "give the relative standard uncertainty of the calibration's known length (the "
+    "markers' side, the reference distance or the scale), e.g. scale_uncertainty = 0.001 "
+    "(write 0 if you take it as exact)."
+)
 
 
 def _footage_options(where, i, d, folder, check_files) -> None:

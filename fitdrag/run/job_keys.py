@@ -22,7 +22,7 @@ from typing import Any
 from fitdrag.errors import InputError
 from fitdrag.run.job import Measured
 from fitdrag.uncertainty.decision import RULES
-from fitdrag.units import parse_quantity, unit_symbol, unit_word
+from fitdrag.units import parse_quantity, unit_of_text, unit_symbol, unit_word
 
 CSV_OPTIONS = (
     "t_col",
@@ -127,6 +127,16 @@ class Where:
 # ---------------------------------------------------------------------------------------------
 
 
+#: Characters refused in text values: C0 and C1 control characters (except line feed and
+#: tab), DEL, and the bidirectional marks, embeddings, overrides and isolates of Unicode
+#: (UAX #9: U+061C, U+200E, U+200F, U+202A to U+202E, U+2066 to U+2069).
+HIDDEN_TEXT = re.compile(
+    "[\x00-\x08\x0b-\x1f\x7f-\x9f\u061c\u200e\u200f\u202a-\u202e\u2066-\u2069]"
+)
+#: Longest text value of a job file (characters).
+MAX_TEXT_CHARS = 2000
+
+
 @dataclass(frozen=True)
 class Key:
     kind: str  # str, date, bool, lift, int, path, qty, unc, choice, point
@@ -171,9 +181,11 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "date": Key("date"),
         "location": Key("str"),
         "notes": Key("str"),
+        "check_standard": Key("str"),
     },
     "specimen": {
         "id": Key("str"),
+        "large_uncertainty_confirmed": Key("bool"),
         "description": Key("str"),
         "mass": _q("kg", 0.0, 100.0, 'give the specimen mass in kg (e.g. 0.0027) or "2.7 g"'),
         "mass_uncertainty": _u("kg"),
@@ -364,6 +376,16 @@ def check_value(where: Where, sec: str, idx, key: str, spec: Key, raw: Any, fold
     if kind == "str":
         if not isinstance(raw, str):
             fail(f'{loc}: expected text in quotes, got {raw!r}; write {key} = "...".')
+        bad = HIDDEN_TEXT.search(raw)
+        if bad:
+            ch = bad.group()
+            fail(
+                f"{loc}: holds the control or direction character U+{ord(ch):04X} at position "
+                f"{bad.start() + 1} (terminal escape codes and right-to-left overrides make the "
+                f"text shown differ from the text stored); write the text without it."
+            )
+        if len(raw) > MAX_TEXT_CHARS:
+            fail(f"{loc}: {len(raw)} characters, more than {MAX_TEXT_CHARS}; shorten it.")
         return raw.strip()
     if kind == "date":
         if isinstance(raw, _dt.datetime):
@@ -512,6 +534,22 @@ def parse_table(where, sec, idx, table, folder) -> dict:
                 f"{where.section_name(sec, idx)} are {', '.join(sorted(keys))}."
             )
         out[key] = check_value(where, sec, idx, key, keys[key], raw, folder)
+    for key, raw in table.items():
+        # "every *_uncertainty is in the same unit as its value": a bare number beside a value
+        # written with a unit ("24.00 g") is in that unit (0.02 means 0.02 g, not 0.02 kg)
+        ukey = f"{key}_uncertainty"
+        utext = unit_of_text(raw) if isinstance(raw, str) else ""
+        if not utext or ukey not in table or keys.get(ukey) is None:
+            continue
+        uraw = table[ukey]
+        bare = isinstance(uraw, int | float) and not isinstance(uraw, bool)
+        if isinstance(uraw, str) and not unit_of_text(uraw):
+            try:
+                uraw, bare = float(uraw), True
+            except ValueError:
+                bare = False
+        if bare:
+            out[ukey] = check_value(where, sec, idx, ukey, keys[ukey], f"{uraw!r} {utext}", folder)
     return out
 
 

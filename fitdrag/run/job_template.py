@@ -12,7 +12,7 @@ from pathlib import Path
 from fitdrag._files import write_text_atomic
 from fitdrag.errors import InputError, InputFileNotFoundError
 
-__all__ = ["TEMPLATE", "write_template"]
+__all__ = ["PLACEHOLDERS", "TEMPLATE", "placeholders_left", "write_template"]
 
 TEMPLATE = """\
 # fitdrag job file: one measurement, from specimen to certificate.
@@ -40,6 +40,8 @@ operator = "A. Tester"
 approved_by = "B. Reviewer"
 date = 2026-01-15                 # date of the test
 notes = "Three throws by hand in still air, indoor hall."
+# check_standard = "REF-40-A"     # id of the set-up's check standard: `fitdrag run` warns
+#                                 # when its latest result on record is out of control
 
 [specimen]
 id = "SYN-BALL-001"
@@ -146,9 +148,32 @@ monte_carlo = 0                   # trials of the Monte Carlo check (0 = off; e.
 seed = 1
 
 [output]
-directory = "certificates"        # where the certificate, PNG, JSON and records go
+directory = "certificates"        # where the certificate, PNG and JSON go
 number_prefix = "FD"              # certificate numbers look like FD-2026-000001
+# records = "records.sqlite"      # another records database than the laboratory's
 """
+
+
+#: The template's invented identity values, by (section, key): a job that still holds one
+#: of them is not certified (``fitdrag run`` refuses it, naming them).
+PLACEHOLDERS = {
+    ("laboratory", "name"): "Example Flight Test Laboratory (synthetic)",
+    ("laboratory", "address"): "1 Sample Road, Testville",
+    ("test", "customer"): "Fictitious Sports Goods Ltd",
+    ("test", "customer_address"): "99 Imaginary Lane, Nowhere",
+    ("test", "order"): "PO-0000",
+    ("specimen", "id"): "SYN-BALL-001",
+}
+
+
+def placeholders_left(job) -> list[str]:
+    """``[section] key = "value"`` for each of :data:`PLACEHOLDERS` that ``job`` still holds."""
+    sections = {"laboratory": job.laboratory, "test": job.test, "specimen": job.specimen}
+    left = []
+    for (sec, key), value in PLACEHOLDERS.items():
+        if getattr(sections[sec], key, None) == value:
+            left.append(f'[{sec}] {key} = "{value}"')
+    return left
 
 
 def write_template(path: str | Path, *, force: bool = False) -> Path:

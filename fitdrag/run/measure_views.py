@@ -175,6 +175,12 @@ def read_views(job: Job, *, progress: bool = False) -> tuple[list[list[ViewInput
             data = src.footage if src.track is None else src.track
             digest = footage_sha256(data) if src.track is None else file_sha256(data)
             hashes[str(data)] = digest
+            if src.track is not None:  # the footage the track's header names, when present
+                from fitdrag.run.pipeline import footage_behind
+
+                behind = footage_behind(src.track, ft.track)
+                if behind is not None:
+                    hashes[str(behind)] = footage_sha256(behind)
             for extra in (src.lens, src.marker_layout):
                 if extra is not None:
                     hashes[str(extra)] = file_sha256(extra)
@@ -549,15 +555,16 @@ def _method_3d(fit: ViewMeasurementFit, budget, mc, geometry: str):
 
     dm = get_drag_model(fit.model)
     lift = fit.lift
+    from fitdrag.report.content import noise_words
     from fitdrag.run.pipeline import drag_model_text, model_equation_text
 
     eq = model_equation_text(lift, " in three dimensions")
     fit_method = (
         "weighted nonlinear least squares in each camera's pixels (Levenberg–Marquardt): the "
         "predicted centre (and, where used, width) of the sphere's image outline at each "
-        "observation's own time against the tracked blob; noise model "
-        f"{fit.throws[0].result.noise_model}, each camera's noise level estimated from its "
-        "residuals; each throw has its own launch state"
+        "observation's own time against the tracked blob; "
+        f"{noise_words(fit.throws[0].result.noise_model)}, each camera's noise level estimated "
+        "from its residuals; each throw has its own launch state"
         + (", Cd combined over throws by their weighted mean" if len(fit.throws) > 1 else "")
         + "."
     )

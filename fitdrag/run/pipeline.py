@@ -27,6 +27,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import math
+import os
 import re
 import warnings
 from collections.abc import Mapping
@@ -128,41 +129,109 @@ def read_throws(job: Job, *, progress: bool = False) -> tuple[list, dict]:
         A file that cannot be read or tracked; a footage throw's message starts with the
         job file, the line and the throw.
     """
-    from fitdrag.tracks.csv_file import read_track
-    from fitdrag.tracks.track import Track, file_sha256
+    from fitdrag.tracks.track import file_sha256
 
     hashes = {str(job.path): file_sha256(job.path)}
     tracks = []
-    fps = job.camera.fps.value
-    for i, th in enumerate(job.throws):
-        opts = th.options
-        if th.kind == "footage":
-            from fitdrag.video.tracking import footage_sha256, track_footage
-
-            try:
-                ft = track_footage(th.path, fps=fps, progress=progress, **opts)
-            except InputError as exc:
-                loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
-                msg = f"{loc}: [[throws]] #{i + 1} footage: {_job_wording(str(exc))}"
-                if isinstance(exc, FileNotFoundError):
-                    raise InputFileNotFoundError(msg) from None
-                raise InputError(msg) from None
-            digest = footage_sha256(th.path)
-            tr = ft.track
-            meta = {**tr.meta, "source": str(th.path), "sha256": digest}
-            tracks.append(Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta))
-            hashes[str(th.path)] = digest
-            for extra in (th.marker_layout, th.lens):
-                if extra is not None:
-                    hashes[str(extra)] = file_sha256(extra)
-            continue
-        with warnings.catch_warnings():
-            # the camera's frame rate is offered for files without a time column only
-            warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
-            tr = read_track(th.path, fps=fps, **opts)
+    for i in range(len(job.throws)):
+        tr, h = read_throw(job, i, progress=progress)
         tracks.append(tr)
-        hashes[str(th.path)] = file_sha256(th.path)
+        hashes.update(h)
     return tracks, hashes
+
+
+def read_throw(job: Job, i: int, *, progress: bool = False, where: str | None = None) -> tuple:
+    """The track of throw ``i`` (0-based) of ``job`` and the SHA-256 of its input files, by
+    path (see :func:`read_throws`, which reads them all); ``where`` replaces the job file and
+    line at the start of a footage throw's error message."""
+    from fitdrag.tracks.csv_file import read_track
+    from fitdrag.tracks.track import Track, file_sha256
+
+    hashes = {}
+    fps = job.camera.fps.value
+    th = job.throws[i]
+    opts = th.options
+    if th.kind == "footage":
+        from fitdrag.video.tracking import footage_sha256, track_footage
+
+        try:
+            ft = track_footage(th.path, fps=fps, progress=progress, **opts)
+        except InputError as exc:
+            loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
+            loc = f"{loc}: [[throws]] #{i + 1}" if where is None else where
+            msg = f"{loc} footage: {_job_wording(str(exc))}"
+            if isinstance(exc, FileNotFoundError):
+                raise InputFileNotFoundError(msg) from None
+            raise InputError(msg) from None
+        digest = footage_sha256(th.path)
+        tr = ft.track
+        meta = {**tr.meta, "source": str(th.path), "sha256": digest}
+        hashes[str(th.path)] = digest
+        for extra in (th.marker_layout, th.lens):
+            if extra is not None:
+                hashes[str(extra)] = file_sha256(extra)
+        return Track(tr.t, tr.x, tr.y, tr.sigma, tr.frame, meta), hashes
+    with warnings.catch_warnings():
+        # the camera's frame rate is offered for files without a time column only
+        warnings.filterwarnings("ignore", message=r".*the frame rate .* is not used")
+        tr = read_track(th.path, fps=fps, **opts)
+    check_track_header(job, i, th, tr)
+    hashes[str(th.path)] = file_sha256(th.path)
+    behind = footage_behind(th.path, tr)
+    if behind is not None:
+        from fitdrag.video.tracking import footage_sha256
+
+        hashes[str(behind)] = footage_sha256(behind)
+    return tr, hashes
+
+
+def footage_behind(track_path, track) -> Path | None:
+    """The footage a track file's header names (``# footage: NAME``, relative to the track's
+    folder), when it is there: its SHA-256 joins the input hashes."""
+    name = (track.meta.get("header") or {}).get("footage")
+    if not name:
+        return None
+    p = Path(name)
+    p = p if p.is_absolute() else Path(track_path).parent / p
+    return p.resolve() if p.exists() else None
+
+
+def check_track_header(job: Job, i: int, th, track) -> None:
+    """Refuse a track file whose header states a frame rate or an image scale that the job
+    contradicts: the certificate would state the job's value for data taken at another.
+
+    The frame rate conflicts when the header's ``fps`` lies more than 3 standard
+    uncertainties (``[camera] fps_uncertainty``) from ``[camera] fps`` (or differs at all
+    when that is 0); the scale when the throw's ``scale`` differs from the header's
+    ``scale_m_per_px`` by more than 1e-6 of it (common practice, no source).
+    """
+    head = track.meta.get("header") or {}
+    loc = f"{job.path.name}, line {th.line}" if th.line else job.path.name
+    where = f"{loc}: [[throws]] #{i + 1} track: {Path(th.path).name}'s header says"
+
+    def number(key):
+        try:
+            v = float(head[key])
+        except (KeyError, TypeError, ValueError):
+            return None
+        return v if math.isfinite(v) else None
+
+    fps = job.camera.fps
+    h = number("fps")
+    if h is not None and abs(h - fps.value) > max(3.0 * fps.uncertainty, 1e-9 * fps.value):
+        raise InputError(
+            f"{where} fps: {head['fps']} (the frame rate of the footage it was tracked from), "
+            f"but [camera] fps is {fps.value:g} Hz (standard uncertainty {fps.uncertainty:g} Hz); "
+            f"they must agree: correct [camera] fps, or use the track file of this footage."
+        )
+    h = number("scale_m_per_px")
+    stated = th.options.get("scale")
+    if h is not None and stated is not None and abs(stated - h) > 1e-6 * abs(h):
+        raise InputError(
+            f"{where} scale_m_per_px: {head['scale_m_per_px']}, but the throw's scale is "
+            f"{stated:g} m/px; they must agree: remove scale (the header's calibration "
+            f"applies) or correct it."
+        )
 
 
 # command-line spellings in track_footage's messages -> the job file's keys
@@ -344,10 +413,13 @@ def _method(fit_dict: dict, fit_result, budget, mc, geometry: str = "") -> Metho
     f = fit_dict.get("fit", {})
     resid = fit_dict.get("residuals", {})
     noise = resid.get("noise_model", "white")
+    from fitdrag.report.content import noise_words
+
     fit_method = (
-        f"{f.get('method', 'weighted nonlinear least squares')}; "
-        f"{'robust stage with outlier rejection' if f.get('robust') else 'no robust stage'}; "
-        f"noise model {noise}; all throws share C_d, each has its own launch state."
+        "weighted nonlinear least squares (Levenberg–Marquardt) of the modelled flight to the "
+        "measured positions; "
+        f"{'outliers rejected by a robust stage' if f.get('robust') else 'no outlier rejection'}"
+        f"; {noise_words(noise)}; all throws share C_d, each has its own launch state."
     )
     unc = (
         "JCGM 100:2008 (GUM): law of propagation of uncertainty with sensitivity coefficients "
@@ -388,6 +460,7 @@ def measure(
     seed: int | None = None,
     workers: int | None = None,
     progress: bool = False,
+    tracks: tuple[list, dict] | None = None,
 ) -> Measurement:
     """Fit, budget, Monte Carlo check and conformity decision for a loaded job.
 
@@ -405,6 +478,10 @@ def measure(
         Processes of the Monte Carlo run (default: up to 2).
     progress : bool
         Show progress bars.
+    tracks : (list of Track, dict), optional
+        The throws' tracks and input hashes as :func:`read_throws` returns them, when they
+        were read already (e.g. footage tracked by separate tasks: :mod:`fitdrag.run.lot`);
+        jobs measured in 3-D read their own.
 
     Returns
     -------
@@ -428,7 +505,7 @@ def measure(
                              workers=workers, progress=progress)  # fmt: skip
     n_mc = _monte_carlo_trials(job, monte_carlo)
     still_air_warning(job)
-    tracks, hashes = read_throws(job, progress=progress)
+    tracks, hashes = read_throws(job, progress=progress) if tracks is None else tracks
     specimen = job.make_specimen()
     air = job.make_air()
     fopts = job.fit_options()
@@ -436,7 +513,11 @@ def measure(
     fopts["lift"] = lift
     fit = fit_tracks(tracks, specimen, air, gravity=job.gravity(), **fopts)
     if not fit.success:
-        raise ConvergenceError(f"the fit did not converge: {fit.message}")
+        from fitdrag.fit.diagnose import likely_cause
+
+        cause = likely_cause(tracks)
+        raise ConvergenceError(f"the fit did not converge: {fit.message}"
+                               + (f"; most likely cause: {cause}" if cause else ""))  # fmt: skip
 
     u_scale, u_scale_source = length_scale_uncertainty(job, tracks)
     u_roll, u_roll_source = roll_uncertainty(job, tracks)
@@ -569,6 +650,7 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
             area=est(sp.area),
             volume=est(sp.volume),
             length=sp.length,
+            shown_units=dict(sp.shown_units),
         ),  # fmt: skip
         conditions=Conditions(
             temperature=est(a.temperature),
@@ -588,6 +670,7 @@ def certificate_content(job: Job, cd: float, budget, mc, check, *, air, wind, st
             gravity_source=job.site.gravity_source,
             wind=wind,
             air_speed_uncertainty=a.air_speed_uncertainty,
+            shown_units=dict(a.shown_units),
         ),
         camera=camera,
         footage=footage,
@@ -634,56 +717,155 @@ def _footage_records(job: Job, tracks) -> tuple[FootageRecord, ...]:
 # ---------------------------------------------------------------------------------------------
 
 
-def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
+def _render_files(meas: Measurement, finals: Mapping[str, Path], issue_: Issue):
+    """Render the certificate (PDF, page-1 PNG) and the JSON of ``meas`` to temporary files
+    beside ``finals``; returns ``{kind: temporary path}`` (nothing left behind on failure)."""
+    from fitdrag.report.certificate import render_certificate
+    from fitdrag.report.plots import curves_from_fit
+
+    curves = meas.curves if meas.curves is not None else curves_from_fit(meas.fit)
+    tmps = {k: temporary_path(f) for k, f in finals.items()}
+    issued = dataclasses.replace(
+        meas.content,
+        issue=issue_,
+        outputs={k: str(Path(f).resolve()) for k, f in finals.items()},
+    )
+    try:
+        pages = render_certificate(
+            issued, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
+        )
+        issued = dataclasses.replace(issued, issue=dataclasses.replace(issued.issue, pages=pages))
+        text = json.dumps(issued.to_dict(), indent=2, allow_nan=False, default=str)
+        tmps["result_json"].write_text(text + "\n", encoding="utf-8")
+    except BaseException:
+        for t in tmps.values():
+            t.unlink(missing_ok=True)
+        raise
+    return tmps
+
+
+def check_edited(job: Job) -> None:
+    """Refuse to certify a job that still holds the template's invented laboratory, customer
+    or specimen (``fitdrag new-job`` without edits), naming each such value."""
+    from fitdrag.run.job_template import placeholders_left
+
+    left = placeholders_left(job)
+    if left:
+        raise InputError(
+            f"{job.path.name}: still holds the template's invented value(s) {'; '.join(left)}; "
+            f"replace them with your laboratory's, customer's and specimen's before a "
+            f"certificate or draft is made."
+        )
+
+
+def check_drawable(job: Job, extra: Mapping[str, str | None] | None = None) -> None:
+    """Refuse text the certificate's font cannot draw (it would show empty boxes, not the
+    text stored), naming the key, the characters and the font."""
+    from fitdrag.report.fonts import certificate_font, font_gaps
+
+    texts = {}
+    for sec, obj in (("laboratory", job.laboratory), ("test", job.test),
+                     ("specimen", job.specimen)):  # fmt: skip
+        for f in dataclasses.fields(obj):
+            v = getattr(obj, f.name)
+            if isinstance(v, str):
+                texts[f"[{sec}] {f.name}"] = v
+    from fitdrag.run.job_keys import HIDDEN_TEXT
+
+    for k, v in (extra or {}).items():
+        bad = HIDDEN_TEXT.search(v or "")
+        if bad:
+            raise InputError(
+                f"{k}: holds the control or direction character U+{ord(bad.group()):04X}; "
+                f"write the text without it."
+            )
+        if v:
+            texts[k] = v
+    gaps = font_gaps(texts)
+    if gaps:
+        name, chars = next(iter(gaps.items()))
+        more = f" (and in {', '.join(list(gaps)[1:])})" if len(gaps) > 1 else ""
+        raise InputError(
+            f"{job.path.name}: {name}: the certificate's font {certificate_font()[0]} cannot "
+            f"draw {', '.join(chars[:5])}{' ...' if len(chars) > 5 else ''}{more}; the "
+            f"certificate would show empty boxes instead: write the text in characters it can "
+            f"draw (e.g. a Latin transliteration)."
+        )
+
+
+def approver(job: Job, approved_by: str | None = None) -> str:
+    """Who authorises the release: ``approved_by`` (a reviewer releasing a draft), else the
+    job's ``[test] approved_by``; neither is an error."""
+    name = (approved_by or job.test.approved_by or "").strip()
+    if not name:
+        raise InputError(
+            f"{job.path.name}: [test] approved_by: missing; a certificate is released by "
+            f"a named person: name them in the job, or run with --draft and have the reviewer "
+            f"release the draft with 'fitdrag release DRAFT.json --approved-by NAME'."
+        )
+    return name
+
+
+def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, approved_by=None,
+          draft_sha256=None, force=False):  # fmt: skip
     """Number, render and record the certificate of a measurement (one transaction).
+
+    The records database is ``records_path``, else the job's ``[output] records``, else the
+    laboratory's (:func:`fitdrag.run.records.lab_records`).  Refused: a job without
+    ``approved_by`` (unless ``approved_by`` is given: a released draft), and an identical
+    re-run (the same job text and input files as a certificate on record) unless it
+    ``replaces`` a certificate, with a ``reason``.  Issued certificate files are never
+    overwritten (``force`` is kept for the callers' other files).
 
     Returns
     -------
-    (Record, Path)
-        The record (its ``decision`` is the conformity decision) and the records database.
+    (Record, RecordsLocation)
+        The record (its ``decision`` is the conformity decision) and where the records
+        database is, and why there.
     """
-    from fitdrag.report.certificate import render_certificate
-    from fitdrag.report.plots import curves_from_fit
-    from fitdrag.run.records import PendingFile, Records
+    from fitdrag.run.records import PendingFile, Records, lab_records
 
+    del force  # issued certificate files are never overwritten
     job = meas.job
+    check_edited(job)
+    check_drawable(job, {"--approved-by": approved_by, "--reason": reason})
+    name = approver(job, approved_by)
+    where = lab_records(records_path, job.output.records)
     outdir = Path(job.output_directory)
     outdir.mkdir(parents=True, exist_ok=True)
-    db = Records(Path(records_path) if records_path else job.records_path)
-    curves = meas.curves if meas.curves is not None else curves_from_fit(meas.fit)
+    where.path.parent.mkdir(parents=True, exist_ok=True)
+    db = Records(where.path)
+    db.finish_interrupted(outdir)  # files of a run killed after its commit; other leftovers go
+    if replaces is None:
+        same = db.find_inputs(meas.hashes, job.text)
+        if same:
+            first = same[-1]
+            raise InputError(
+                f"{job.path.name}: the same job and input files (SHA-256) were certified as "
+                f"{first.number} on {first.issued_at}; an identical re-run is not issued again. "
+                f"To correct that certificate, run with --replaces {first.number} --reason "
+                f'"...".'
+            )
     content = meas.content
 
-    def render(number, when):
+    def render(number, when, record_hash):
         finals = {
             "certificate_pdf": outdir / f"{number}.pdf",
             "certificate_png": outdir / f"{number}.png",
             "result_json": outdir / f"{number}.json",
         }
         for f in finals.values():
-            if f.exists() and not force:
+            if f.exists():
                 raise InputError(
-                    f"{f}: already exists (left by an earlier, interrupted run?); move it away "
-                    f"or pass --force."
+                    f"{f}: already exists; an issued certificate file is never overwritten. "
+                    f"Is another records database numbering into this folder? Use the "
+                    f"laboratory's one database (FITDRAG_RECORDS), or another [output] directory."
                 )
-        tmps = {k: temporary_path(f) for k, f in finals.items()}
-        issued = dataclasses.replace(
-            content,
-            issue=Issue(number, when.isoformat(timespec="seconds"), replaces),
-            outputs={k: str(f.resolve()) for k, f in finals.items()},
-        )
-        try:
-            pages = render_certificate(
-                issued, tmps["certificate_pdf"], tmps["certificate_png"], curves=curves
-            )
-            issued = dataclasses.replace(
-                issued, issue=dataclasses.replace(issued.issue, pages=pages)
-            )
-            text = json.dumps(issued.to_dict(), indent=2, allow_nan=False, default=str)
-            tmps["result_json"].write_text(text + "\n", encoding="utf-8")
-        except BaseException:
-            for t in tmps.values():
-                t.unlink(missing_ok=True)
-            raise
+        stamp = Issue(
+            number, when.isoformat(timespec="seconds"), replaces, record_hash=record_hash,
+            records_id=db.id, reason=reason if replaces else None, approved_by=name,
+        )  # fmt: skip
+        tmps = _render_files(meas, finals, stamp)
         return {k: PendingFile(tmps[k], finals[k]) for k in finals}
 
     res = content.result
@@ -694,6 +876,9 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
         job_text=job.text,
         job_path=str(job.path),
         replaces=replaces,
+        reason=reason,
+        approved_by=name,
+        draft_sha256=draft_sha256,
         prefix=job.number_prefix,
         summary={
             "customer": job.test.customer,
@@ -705,12 +890,146 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, force=False):
             "software_version": content.software_version,
         },
     )
-    return rec, db.path
+    return rec, where
+
+
+#: Keys of a draft's JSON section ``draft``: how it was measured, for its release.
+DRAFT_FORMAT = "fitdrag draft 1"
+
+
+def write_draft(meas: Measurement, *, options: Mapping[str, Any] | None = None,
+                force: bool = False) -> dict[str, Path]:  # fmt: skip
+    """A draft for review: PDF and PNG marked DRAFT on every page, and the JSON; no number,
+    no record.  ``options`` (Monte Carlo trials, seed, ...) are kept in the JSON for the
+    release to measure again the same way.  Returns ``{kind: path}``.
+    """
+    from datetime import datetime
+
+    from fitdrag.run.records import clean_leftovers
+
+    job = meas.job
+    check_edited(job)
+    check_drawable(job)
+    outdir = Path(job.output_directory)
+    outdir.mkdir(parents=True, exist_ok=True)
+    clean_leftovers(outdir)
+    when = datetime.now().astimezone()
+    stem = f"DRAFT-{job.path.stem}-{when.strftime('%Y%m%dT%H%M%S')}"
+    finals = {
+        "certificate_pdf": outdir / f"{stem}.pdf",
+        "certificate_png": outdir / f"{stem}.png",
+        "result_json": outdir / f"{stem}.json",
+    }
+    for f in finals.values():
+        if f.exists() and not force:
+            raise InputError(f"{f}: already exists; pass --force to overwrite the draft.")
+    stamp = Issue("DRAFT", when.isoformat(timespec="seconds"), draft=True)
+    tmps = _render_files(meas, finals, stamp)
+    # the JSON gets the section the release reads
+    data = json.loads(tmps["result_json"].read_text(encoding="utf-8"))
+    data["draft"] = {
+        "format": DRAFT_FORMAT,
+        "job_path": str(Path(job.path).resolve()),
+        "input_sha256": {str(Path(k).resolve()): v for k, v in meas.hashes.items()},
+        "options": dict(options or {}),
+    }
+    tmps["result_json"].write_text(json.dumps(data, indent=2, allow_nan=False) + "\n",
+                                   encoding="utf-8")  # fmt: skip
+    for k, f in finals.items():
+        os.replace(tmps[k], f)
+    return finals
+
+
+#: Largest draft JSON file read by :func:`read_draft`. [byte]
+DRAFT_MAX_BYTES = 50_000_000
+
+
+@dataclass(frozen=True)
+class Draft:
+    """A draft read back for release: its file, SHA-256, job, inputs and reported result."""
+
+    path: Path
+    sha256: str
+    job_path: Path
+    input_sha256: Mapping[str, str]
+    options: Mapping[str, Any]
+    reported: Mapping[str, str]
+    decision: str | None
+
+
+def read_draft(path) -> Draft:
+    """Read a draft's JSON (written by :func:`write_draft`) and check its inputs are unchanged.
+
+    Raises
+    ------
+    InputError
+        Not a draft; an input file changed since the draft (its SHA-256 differs) or is gone.
+    """
+    from fitdrag.run.records import sha256_file
+    from fitdrag.tracks.track import file_sha256
+
+    p = Path(path)
+    if not p.is_file():
+        raise InputFileNotFoundError(f"{p}: no such draft; give the DRAFT-....json that "
+                                     f"'fitdrag run JOB --draft' wrote.")  # fmt: skip
+    if p.stat().st_size > DRAFT_MAX_BYTES:
+        raise InputError(f"{p}: larger than {DRAFT_MAX_BYTES} bytes: not a draft's JSON.")
+    try:
+        data = json.loads(p.read_text(encoding="utf-8"))
+        d = data["draft"]
+        if d.get("format") != DRAFT_FORMAT or not data["certificate"].get("draft"):
+            raise KeyError("format")
+        job_path = Path(d["job_path"])
+        hashes = {str(k): str(v) for k, v in d["input_sha256"].items()}
+        reported = data["result"]["reported"]
+        decision = (data.get("conformity") or {}).get("decision")
+    except (ValueError, KeyError, TypeError, AttributeError):
+        raise InputError(
+            f"{p}: not a draft written by 'fitdrag run JOB --draft' (no readable 'draft' "
+            f"section); release the draft's .json file."
+        ) from None
+    for fp, digest in hashes.items():
+        f = Path(fp)
+        if not f.exists():
+            raise InputFileNotFoundError(
+                f"{p}: input {f} is gone since the draft; restore it or make a new draft."
+            )
+        if f.is_dir():
+            from fitdrag.video.tracking import footage_sha256
+
+            now = footage_sha256(f)
+        else:
+            now = file_sha256(f)
+        if now != digest:
+            raise InputError(
+                f"{p}: input {f} changed since the draft (SHA-256 {now[:16]}... instead of "
+                f"{digest[:16]}...); the draft is not released: make a new draft and review it."
+            )
+    return Draft(p, sha256_file(p), job_path, hashes, dict(d.get("options") or {}),
+                 dict(reported), decision)  # fmt: skip
+
+
+def check_release(draft: Draft, meas: Measurement) -> None:
+    """Refuse a release whose measurement, made again from the same inputs, differs from the
+    draft the reviewer saw (input hashes, reported Cd and U, decision)."""
+    if sorted(meas.hashes.values()) != sorted(draft.input_sha256.values()):
+        raise InputError(f"{draft.path}: the release's input files differ from the draft's; "
+                         f"make a new draft.")  # fmt: skip
+    now = meas.content.to_dict()["result"]["reported"]
+    for k, v in draft.reported.items():
+        if now.get(k) != v:
+            raise InputError(
+                f"{draft.path}: measured again, {k} is {now.get(k)} where the draft says {v}; "
+                f"the draft is not released: make a new draft and review it."
+            )
+    if meas.decision != draft.decision:
+        raise InputError(f"{draft.path}: measured again, the decision is {meas.decision} "
+                         f"where the draft says {draft.decision}; make a new draft.")  # fmt: skip
 
 
 def summary(meas: Measurement) -> str:
     """A few lines on the result: Cd ± U, the largest contributions, the checks, the decision."""
-    from fitdrag.report.numbers import format_sig
+    from fitdrag.report.numbers import format_probability, format_sig
 
     cd_s, u_s = meas.content.result.reported
     b = meas.budget
@@ -756,7 +1075,7 @@ def summary(meas: Measurement) -> str:
         v = meas.verdict
         lines.append(
             f"  decision: {v.decision.upper()} ({v.rule} acceptance; probability of conformity "
-            f"{100 * v.probability_of_conformity:.1f} %)"
+            f"{format_probability(v.probability_of_conformity)})"
         )
     else:
         lines.append("  no [specification]: no conformity decision")

@@ -33,6 +33,36 @@ __all__ = ["UNITS", "read_track", "write_track"]
 UNITS: Mapping[str, float | None] = MappingProxyType({"m": 1.0, "mm": 1e-3, "cm": 1e-2, "px": None})
 
 #: Cell texts read as "no value" (the row is dropped), compared case-insensitively.
+#: Largest track file read (bytes), unless the environment variable
+#: ``FITDRAG_MAX_TRACK_BYTES`` lifts it: a throw's track is a few hundred to a few thousand
+#: rows (a few hundred kB); far larger files are not one throw, and would take minutes and
+#: gigabytes to fit.  [byte]
+MAX_TRACK_BYTES = 20_000_000
+#: Largest number of data rows, unless ``FITDRAG_MAX_TRACK_ROWS`` lifts it (100 s of flight at
+#: 1000 frames/s). [1]
+MAX_TRACK_ROWS = 100_000
+#: Longest line of a track file (characters): a row of numbers is far shorter. [1]
+MAX_LINE_CHARS = 10_000
+#: Largest |position| [m] and |time| [s] taken as a measurement of a throw.
+MAX_ABS_POSITION = 1e5
+MAX_ABS_TIME = 1e7
+
+
+def _limit(name: str, default: int) -> int:
+    """A size limit: ``default``, or the whole number in the environment variable ``name``."""
+    text = os.environ.get(name, "").strip()
+    if not text:
+        return default
+    try:
+        value = int(text)
+    except ValueError:
+        raise InputError(f"{name}: {text!r} is not a whole number; set it to a limit such as "
+                         f"{default} or unset it.") from None  # fmt: skip
+    if value <= 0:
+        raise InputError(f"{name}: must be > 0, got {value}; unset it for the default {default}.")
+    return value
+
+
 _MISSING_TEXTS = frozenset({"", "nan", "-nan", "+nan", "na", "n/a", "null", "none"})
 
 #: Delimiters tried by the automatic detection, in order of preference on ties.
@@ -120,10 +150,16 @@ def _detect_delimiter(header: str, samples: Sequence[str]) -> str:
     return d if n > 0 else _WHITESPACE
 
 
-def _split(line: str, delimiter: str) -> list[str]:
+def _split(line: str, delimiter: str, where: str = "track file") -> list[str]:
     if delimiter == _WHITESPACE:
         return line.split()
-    return [c.strip() for c in next(csv.reader([line], delimiter=delimiter))]
+    try:
+        return [c.strip() for c in next(csv.reader([line], delimiter=delimiter))]
+    except csv.Error as exc:
+        raise InputError(
+            f"{where}: not a row of CSV cells ({exc}): {line[:40]!r}...; correct or delete the "
+            f"line."
+        ) from None
 
 
 def _delimiter_name(d: str) -> str:
@@ -222,6 +258,7 @@ def read_track(
     comment: str | None = "#",
     strict: bool = False,
     encoding: str = "utf-8",
+    physical: bool = True,
 ) -> Track:
     """Read a track from a CSV file written by a tracker (or by :func:`write_track`).
 
@@ -271,6 +308,10 @@ def read_track(
         Lines starting with this text (after leading whitespace) are skipped anywhere.  Leading
         comment lines of the form ``# key: value`` are kept in ``meta["header"]``.  ``None``
         turns comment handling off.
+    physical : bool
+        Refuse positions beyond ±:data:`MAX_ABS_POSITION` m and times beyond
+        ±:data:`MAX_ABS_TIME` s (not a throw; such numbers overflow the fit).  False reads
+        any finite number (for files that are not a throw's track).
     strict : bool
         Raise instead of dropping rows with blank or NaN cells.
     encoding : str
@@ -377,6 +418,14 @@ def read_track(
         )
 
     # ---- bytes, hash, text -----------------------------------------------------------------
+    max_bytes = _limit("FITDRAG_MAX_TRACK_BYTES", MAX_TRACK_BYTES)
+    size = p.stat().st_size
+    if size > max_bytes:
+        raise InputError(
+            f"{src}: {size} bytes is more than the limit of {max_bytes} bytes for a track file "
+            f"(a throw is a few hundred to a few thousand rows); cut the file to the flight, or "
+            f"lift the limit with the environment variable FITDRAG_MAX_TRACK_BYTES={size}."
+        )
     raw = p.read_bytes()
     sha256 = hashlib.sha256(raw).hexdigest()
     enc = "utf-8-sig" if encoding.lower().replace("_", "-") in ("utf-8", "utf8") else encoding
@@ -392,6 +441,13 @@ def read_track(
             f"{src}: unknown text encoding {encoding!r}; use e.g. 'utf-8' or 'latin-1'."
         ) from None
     lines = text.replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    longest = max(range(len(lines)), key=lambda i: len(lines[i]))
+    if len(lines[longest]) > MAX_LINE_CHARS:
+        raise InputError(
+            f"{src}, line {longest + 1}: {len(lines[longest])} characters long, more than the "
+            f"limit of {MAX_LINE_CHARS} for a line of a track file; this is not a row of "
+            f"numbers: correct or delete the line."
+        )
 
     def is_comment(s: str) -> bool:
         return comment is not None and s.lstrip().startswith(comment)
@@ -421,9 +477,16 @@ def read_track(
         if lines[i].strip() and not is_comment(lines[i])
     ]
     header_line = header_idx + 1
+    max_rows = _limit("FITDRAG_MAX_TRACK_ROWS", MAX_TRACK_ROWS)
+    if len(data_idx) > max_rows:
+        raise InputError(
+            f"{src}: {len(data_idx)} data rows, more than the limit of {max_rows} for one throw "
+            f"(100 s of flight at 1000 frames/s); cut the file to the flight, or lift the limit "
+            f"with the environment variable FITDRAG_MAX_TRACK_ROWS={len(data_idx)}."
+        )
     if delim is None:
         delim = _detect_delimiter(lines[header_idx], [lines[i] for i in data_idx[:5]])
-    header = _split(lines[header_idx], delim)
+    header = _split(lines[header_idx], delim, f"{src}, line {header_idx + 1}")
     if header and all(_parse_cell(h) is not None and h.strip() for h in header):
         raise InputError(
             f"{src}, line {header_line}: the first line holds numbers, not column names; add a "
@@ -481,7 +544,7 @@ def read_track(
     dropped_cols: set[str] = set()
     for i in data_idx:
         lineno = i + 1
-        cells = _split(lines[i], delim)
+        cells = _split(lines[i], delim, f"{src}, line {i + 1}")
         row: dict[str, float] = {}
         missing = False
         for role, j in columns:
@@ -496,6 +559,18 @@ def read_track(
                 raise InputError(
                     f"{src}, line {lineno}, column {header[j]!r}: {text_!r} is not a finite "
                     f"number; correct the cell, or delete the row."
+                )
+            if physical and role == "t" and abs(v) > MAX_ABS_TIME:
+                raise InputError(
+                    f"{src}, line {lineno}, column {header[j]!r}: {text_!r} s is beyond "
+                    f"±{MAX_ABS_TIME:g} s, not a time of a throw; correct the cell, or delete "
+                    f"the row."
+                )
+            if physical and role in ("x", "y", "sigma") and abs(v) * factor > MAX_ABS_POSITION:
+                raise InputError(
+                    f"{src}, line {lineno}, column {header[j]!r}: {text_!r} {units} is beyond "
+                    f"±{MAX_ABS_POSITION:g} m, not a position of a throw; correct the cell, or "
+                    f"delete the row."
                 )
             if math.isnan(v):
                 missing = True
@@ -655,7 +730,7 @@ def _per_point_columns(src, header, header_line, lines, kept_lines, delim,
             continue
         vals = np.empty(len(kept_lines))
         for k, lineno in enumerate(kept_lines):
-            cells = _split(lines[lineno - 1], delim)
+            cells = _split(lines[lineno - 1], delim, f"{src}, line {lineno}")
             text_ = cells[j] if j < len(cells) else ""
             v = _parse_cell(text_) if text_.strip() else float("nan")
             if v is None or math.isinf(v):

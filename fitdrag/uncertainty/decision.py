@@ -292,7 +292,7 @@ class Verdict:
             f"Decision rule: {self.rule_text}. "
             f"Decision: {self.decision.upper()}. "
             f"Probability of conformity under a normal model: "
-            f"{100 * self.probability_of_conformity:.1f} %."
+            f"{_percent_not_certain(self.probability_of_conformity)}."
         )
 
     def to_dict(self) -> dict:
@@ -400,3 +400,12 @@ def decide(
         probability_of_conformity=probability_of_conformity(y, u, lo, hi),
         result_label=result_label,
     )
+
+
+def _percent_not_certain(p: float) -> str:
+    """A probability to 0.1 %, never rounded to a certainty ("> 99.9 %", "< 0.1 %")."""
+    if p > 0.999:
+        return "> 99.9 %"
+    if p < 0.001:
+        return "< 0.1 %"
+    return f"{100 * p:.1f} %"
