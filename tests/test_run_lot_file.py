@@ -66,8 +66,8 @@ def _line(text, needle):
     [
         (lambda t: t.replace('id = "TB-02"', 'id = "TB-02"\ncolour = "red"'),
          "bad.toml, line {colour}: [[specimens]] #2 (id 'TB-02') colour: unknown key; valid "
-         "keys are id, description, mass, mass_uncertainty, diameter, diameter_uncertainty, "
-         "area, area_uncertainty, volume, volume_uncertainty, length, added_mass_coefficient, "
+         "keys are id, large_uncertainty_confirmed, description, mass, mass_uncertainty, "
+         "diameter, diameter_uncertainty, area, area_uncertainty, volume, volume_uncertainty, length, added_mass_coefficient, "
          "added_mass_coefficient_uncertainty, throws and the tables air, site, camera, fit."),
         (lambda t: t.replace('id = "TB-03"', 'id = "TB-02"'),
          "bad.toml, line {TB-02#2}: [[specimens]] #3 (id 'TB-02') id: already used by "
