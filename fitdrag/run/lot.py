@@ -470,7 +470,7 @@ def issue_lot(m: LotMeasurement, *, records_path=None, force: bool = False):
     (Record, Path)
     """
     from fitdrag.report.lot_report import render_lot_report
-    from fitdrag.run.pipeline import approver
+    from fitdrag.run.pipeline import approver, issued_paths
     from fitdrag.run.records import PendingFile, Records, lab_records
     from fitdrag.tracks.track import file_sha256
 
@@ -494,18 +494,7 @@ def issue_lot(m: LotMeasurement, *, records_path=None, force: bool = False):
         hashes.update(r.hashes)
 
     def render(number, when, record_hash):
-        finals = {
-            "lot_report_pdf": outdir / f"{number}.pdf",
-            "lot_report_png": outdir / f"{number}.png",
-            "result_json": outdir / f"{number}.json",
-        }
-        for f in finals.values():
-            if f.exists():
-                raise InputError(
-                    f"{f}: already exists; an issued report file is never overwritten. Is "
-                    f"another records database numbering into this folder? Use the "
-                    f"laboratory's one database (FITDRAG_RECORDS), or another [output] directory."
-                )
+        finals = issued_paths(outdir, number, "lot_report")
         tmps = {k: temporary_path(f) for k, f in finals.items()}
         issued = {**data, "issue": {"number": number,
                                     "issued_at": when.isoformat(timespec="seconds"),

@@ -806,6 +806,25 @@ def approver(job: Job, approved_by: str | None = None) -> str:
     return name
 
 
+def issued_paths(outdir: Path, number: str, what: str) -> dict[str, Path]:
+    """The files of an issued ``what`` (``"certificate"``, ``"lot_report"``) numbered
+    ``number`` in ``outdir``: ``{what}_pdf``, ``{what}_png`` and ``result_json``.  An issued
+    file is never overwritten: one already there is an error."""
+    finals = {
+        f"{what}_pdf": outdir / f"{number}.pdf",
+        f"{what}_png": outdir / f"{number}.png",
+        "result_json": outdir / f"{number}.json",
+    }
+    for f in finals.values():
+        if f.exists():
+            raise InputError(
+                f"{f}: already exists; an issued {what.replace('_', ' ')} file is never "
+                f"overwritten. Is another records database numbering into this folder? Use the "
+                f"laboratory's one database (FITDRAG_RECORDS), or another [output] directory."
+            )
+    return finals
+
+
 def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, approved_by=None,
           draft_sha256=None, force=False):  # fmt: skip
     """Number, render and record the certificate of a measurement (one transaction).
@@ -849,18 +868,7 @@ def issue(meas: Measurement, *, records_path=None, replaces=None, reason=None, a
     content = meas.content
 
     def render(number, when, record_hash):
-        finals = {
-            "certificate_pdf": outdir / f"{number}.pdf",
-            "certificate_png": outdir / f"{number}.png",
-            "result_json": outdir / f"{number}.json",
-        }
-        for f in finals.values():
-            if f.exists():
-                raise InputError(
-                    f"{f}: already exists; an issued certificate file is never overwritten. "
-                    f"Is another records database numbering into this folder? Use the "
-                    f"laboratory's one database (FITDRAG_RECORDS), or another [output] directory."
-                )
+        finals = issued_paths(outdir, number, "certificate")
         stamp = Issue(
             number, when.isoformat(timespec="seconds"), replaces, record_hash=record_hash,
             records_id=db.id, reason=reason if replaces else None, approved_by=name,
