@@ -130,7 +130,18 @@ def model_views(th: Throw, n_cam: int, rng, stated: bool) -> list[CameraView]:
     return views
 
 
-def footage_views(th: Throw, n_cam: int, seed: int):
+def lighting(light, ambient) -> dict:
+    """The renderer's lamp direction (camera axes, towards the lamp) and ambient share, where
+    given (``--light``, ``--ambient``); otherwise the renderer's defaults."""
+    out = {}
+    if light is not None:
+        out["light"] = light
+    if ambient is not None:
+        out["ambient"] = ambient
+    return out
+
+
+def footage_views(th: Throw, n_cam: int, seed: int, light=None, ambient=None):
     """Views from rendered and tracked footage, and the tracker's errors against the truth."""
     from fitdrag.geometry.render_views import ViewRenderer
     from fitdrag.physics.flight3d import simulate_3d
@@ -144,7 +155,7 @@ def footage_views(th: Throw, n_cam: int, seed: int):
         cam = ref.camera_at(yaw, readout=th.readout)
         r = ViewRenderer(flight, cam, FRAMES, ref.FPS, radius=0.5 * ref.BALL.diameter,
                          exposure=th.exposure, time_offset=th.offset if i else 0.0,
-                         seed=seed + i)  # fmt: skip
+                         seed=seed + i, **lighting(light, ambient))  # fmt: skip
         lens = LensModel(cam.camera_matrix, np.array(cam.distortion or (0.0,) * 5),
                          cam.image_size, 0.1)  # fmt: skip
         det = detect_specimen(np.stack([r.frame(k) for k in range(FRAMES)]), lens=lens,
@@ -181,7 +192,8 @@ def one_throw(th: Throw, n_cam: int, seed, args) -> Row:
     rng = np.random.default_rng(seed)
     tracker = ()
     if args.source == "footage":
-        views, tracker = footage_views(th, n_cam, int(rng.integers(1 << 30)))
+        views, tracker = footage_views(th, n_cam, int(rng.integers(1 << 30)), args.light,
+                                       args.ambient)  # fmt: skip
     else:
         views = model_views(th, n_cam, rng, not args.unstated)
     measure = args.diameter_measure
@@ -359,6 +371,13 @@ def main() -> None:
     ap.add_argument("--diameter-scale", default="estimate")
     ap.add_argument("--bound", action="store_true", help="print the one-camera bound table")
     ap.add_argument("--quick", action="store_true", help="12 throws")
+    ap.add_argument("--each", action="store_true", help="print every throw")
+    ap.add_argument("--light", default=None, type=lambda v: tuple(float(c) for c in v.split(",")),
+                    help="footage: direction towards the lamp in camera axes, e.g. -0.7,-0.3,-0.65 "
+                    "(default: the renderer's, about 20 degrees off the axis)")  # fmt: skip
+    ap.add_argument("--ambient", default=None, type=float,
+                    help="footage: share of the ball's brightness independent of the lamp "
+                    "(default: the renderer's 0.7)")  # fmt: skip
     args = ap.parse_args()
     n_throws = 12 if args.quick else args.throws
     centroid = tuple(float(x) for x in args.centroid_noise.split(","))
@@ -374,11 +393,21 @@ def main() -> None:
               f"diameter measure {args.diameter_measure}; {n_throws} throws, seed {args.seed}")  # fmt: skip
     else:
         print(f"source: rendered footage tracked by detect_specimen; diameter measure "
-              f"{args.diameter_measure}; {n_throws} throws, seed {args.seed}")  # fmt: skip
+              f"{args.diameter_measure}; {n_throws} throws, seed {args.seed}; lamp "
+              f"{args.light or 'default'}, ambient {args.ambient or 'default'}")  # fmt: skip
     table = []
     for n_cam in (int(c) for c in args.cameras.split(",")):
         t0 = time.perf_counter()
-        rows = [one_throw(th, n_cam, s, args) for th, s in zip(throws, seeds)]
+        rows = []
+        for th, s in zip(throws, seeds):
+            rows.append(one_throw(th, n_cam, s, args))
+            if args.each and rows[-1].success:
+                r = rows[-1]
+                drift = f", diameter drift {r.tracker[3]:+.3f} px" if r.tracker else ""
+                print(f"  throw {len(rows)}: {th.angle:+.2f} deg, readout {1e3 * th.readout:.2f} "
+                      f"ms, exposure {1e3 * th.exposure:.2f} ms: (Cd - t)/u "
+                      f"{(r.cd - ref.CD) / r.u:+.2f}, U/Cd {100 * r.expanded / r.cd:.2f} %"
+                      f"{drift}", flush=True)  # fmt: skip
         label = "one camera" if n_cam == 1 else f"{n_cam} cameras"
         print(f"\n{label}: {time.perf_counter() - t0:.0f} s")
         print(HEADER)

@@ -9,7 +9,9 @@ the ball crosses the field.  The lamp is fixed in the camera's axes for the whol
 coefficients point along ``L`` in each blob's circle frame,
 :func:`fitdrag.video.sphere_outline.disc_axes` turns them into camera axes) refined by the
 least total misfit of a few blobs spread over the flight (Nelder–Mead over the direction's
-two angles [1]), then fits every blob again with that lamp
+two angles [1], started from the best of that guess and of lamps tilted towards the camera
+along it; a lamp that explains the shading worse than the polynomial is not kept), then fits
+every blob again with that lamp
 (:func:`fitdrag.video.ball_fit.fit_ball` ``lamp=``): the brightness model is then exact for a
 Lambertian ball under a distant lamp.
 
@@ -29,6 +31,15 @@ __all__ = ["LAMP_PROBES", "lamp_refits"]
 
 #: Blobs, spread over the flight, whose total misfit decides the lamp's direction.
 LAMP_PROBES = 24
+
+#: Angles of the lamp from the optical axis (towards the camera) tried as starting points
+#: besides the first-order guess. [deg]
+START_TILTS = (15.0, 35.0, 55.0, 75.0)
+
+#: The lamp is kept only if the probes' total misfit under it is at most this multiple of
+#: their misfit with the first fits' second-order shading (which has four more parameters
+#: per blob, so a little lower on a truly Lambertian ball). [1]  Common practice, no source.
+WORSE_THAN_PLAIN = 1.1
 
 
 def _direction(angles) -> np.ndarray:
@@ -79,9 +90,23 @@ def lamp_refits(blobs, frames, angles, maps, axes, fits, fit_blobs):
 
     from scipy.optimize import minimize
 
-    best = minimize(misfit, _angles(start), method="Nelder-Mead",
-                    options={"xatol": 2e-3, "fatol": 0.5, "maxfev": 60,
-                             "initial_simplex": None})  # fmt: skip
+    # The first-order coefficients show the lamp's direction across the image well, its
+    # component along the optical axis poorly (long blur, rolling shutter): start from the
+    # best of that guess and of lamps at START_TILTS from the axis on the camera's side,
+    # in the guess's direction across the image.
+    az = math.atan2(start[1], start[0])
+    starts = [start / np.linalg.norm(start)] + [
+        np.array([math.sin(t) * math.cos(az), math.sin(t) * math.sin(az), -math.cos(t)])
+        for t in np.radians(START_TILTS)
+    ]
+    first = min((_angles(v) for v in starts), key=misfit)
+    best = minimize(misfit, first, method="Nelder-Mead",
+                    options={"xatol": 2e-3, "fatol": 0.5, "maxfev": 60})  # fmt: skip
+    # A lamp that explains the probes' shading worse than the first fits' polynomial does
+    # is not the lamp (e.g. light from several sides): keep the first fits.
+    plain = float(sum(fits[i].residual_rms ** 2 * fits[i].n_pixels for i in probes))
+    if not best.fun <= WORSE_THAN_PLAIN * plain:
+        return list(fits), None
     lamp = _direction(best.x)
     again = fit_blobs(blobs, frames, angles, maps, [axes[i].T @ lamp for i in range(len(blobs))])
     return [g if g.success else f for f, g in zip(fits, again, strict=True)], lamp
