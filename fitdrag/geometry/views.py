@@ -291,17 +291,14 @@ class CameraView:
 # --------------------------------------------------------------------------- sphere images
 
 
-def _ideal(camera: Camera) -> Camera:
-    return replace(camera, rotation=np.eye(3), translation=np.zeros(3))
-
-
 def _distorted(camera: Camera, xn: np.ndarray, yn: np.ndarray):
-    """Recorded pixels of normalised points and d(pixel)/d(xn, yn), shape (n, 2, 2)."""
-    pts = np.stack([xn, yn, np.ones_like(xn)], axis=1)
-    pr = _ideal(camera).project(pts, jacobians=True)
-    # at Z_c = 1 the normalisation's Jacobian is [[1, 0, -x], [0, 1, -y]]: columns 0 and 1
-    # of d_point are d(pixel)/d(xn, yn)
-    return pr.pixels, pr.d_point[:, :, :2]
+    """Recorded pixels of normalised points and d(pixel)/d(xn, yn), shape (n, 2, 2).
+
+    The lens model of :meth:`Camera.project` applied to the normalised points directly (the
+    projection of ``(xn, yn, 1)`` by the camera at the identity pose, without its pose,
+    intrinsics and distortion Jacobians)."""
+    pix, _xd, _yd, ddist, _ = camera._distort_normalised(xn, yn, True)
+    return pix, ddist * np.array([camera.fx, camera.fy])[None, :, None]
 
 
 def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobians=False):
@@ -337,12 +334,12 @@ def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobian
         return pix, None, c
     with np.errstate(divide="ignore", invalid="ignore"):
         gp = np.where(ok, -(c * c + rho2) / (den * den), np.nan)
-    dn = np.zeros((pw.shape[0], 2, 3))  # d(xn, yn) / d(a, b, c)
-    dn[:, 0, 0] = g
-    dn[:, 0, 2] = a * gp
-    dn[:, 1, 1] = g
-    dn[:, 1, 2] = b * gp
-    jac = np.einsum("nij,njk->nik", dd, dn) @ camera.rotation
+    # d(pixel)/d(a, b, c) = dd @ d(xn, yn)/d(a, b, c), the latter [[g, 0, a g'], [0, g, b g']]
+    jc = np.empty((pw.shape[0], 2, 3))
+    jc[:, :, 0] = dd[:, :, 0] * g[:, None]
+    jc[:, :, 1] = dd[:, :, 1] * g[:, None]
+    jc[:, :, 2] = dd[:, :, 0] * (a * gp)[:, None] + dd[:, :, 1] * (b * gp)[:, None]
+    jac = jc @ camera.rotation
     return pix, jac, c
 
 
