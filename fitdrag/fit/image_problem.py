@@ -180,6 +180,9 @@ class ImageProblem:
         self.bounds: list[tuple[float, float]] = []
         self._cache_theta = None
         self._cache = None
+        self._layout_key = None
+        self._layout = None
+        self._flight: FlightModel3D | None = None
         self.n_evaluations = 0
 
     # -- layout ------------------------------------------------------------------------------
@@ -248,18 +251,36 @@ class ImageProblem:
             atol=FIT_RTOL,
         )  # fmt: skip
 
-    def simulate(self, theta, sens=True):
-        """Per view (positions, velocities, d position/d θ_sim), and ok."""
+    def _time_layout(self, theta):
+        """(times per view, all times sorted, inverse of the sort) at θ's time offsets, or
+        None when a time is not finite or before ``t_ref``; kept while the offsets stay."""
+        key = tuple(self.offsets(theta))
+        if self._layout_key == key:
+            return self._layout
         times = self.observation_times(theta)
         allt = np.concatenate(times)
-        if not np.all(np.isfinite(allt)) or allt.min() < self.t_ref:
+        layout = None
+        if np.all(np.isfinite(allt)) and allt.min() >= self.t_ref:
+            order = np.argsort(allt, kind="stable")
+            inv = np.empty_like(order)
+            inv[order] = np.arange(order.size)
+            layout = (times, np.ascontiguousarray(allt[order]), inv)
+        self._layout_key, self._layout = key, layout
+        return layout
+
+    def simulate(self, theta, sens=True):
+        """Per view (positions, velocities, d position/d θ_sim), and ok."""
+        layout = self._time_layout(theta)
+        if layout is None:
             return None, False
-        order = np.argsort(allt, kind="stable")
-        status, pos, vel, jac, _ = self.flight_model(allt[order]).run(self.sim_theta(theta), sens)
+        times, t_sorted, inv = layout
+        if self._flight is None:
+            self._flight = self.flight_model(t_sorted)
+        else:  # the same flight at other times (sorted and checked above)
+            self._flight.t = t_sorted
+        status, pos, vel, jac, _ = self._flight.run(self.sim_theta(theta), sens)
         if status != 0 or not np.all(np.isfinite(pos)):
             return None, False
-        inv = np.empty_like(order)
-        inv[order] = np.arange(order.size)
         pos, vel = pos[inv], vel[inv]
         jac = jac[inv, :3, :] if sens else None
         out = []
