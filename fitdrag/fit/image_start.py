@@ -44,19 +44,33 @@ def ray_midpoints(o1, d1, o2, d2):
 
 
 def matched(v0: CameraView, v1: CameraView, lag: int):
-    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag."""
-    common, i0, i1 = np.intersect1d(v0.frames, v1.frames + lag, return_indices=True)
-    return i0, i1
+    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag (both views'
+    frames are strictly increasing whole numbers)."""
+    target = v0.frames - lag
+    pos = np.searchsorted(v1.frames, target)
+    hit = pos < v1.frames.size
+    hit[hit] = v1.frames[pos[hit]] == target[hit]
+    return np.flatnonzero(hit), pos[hit]
 
 
 def best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
     """The whole-frame lag (frame of v0 = frame of v1 + lag) that brings the rays closest."""
-    best, best_gap = 0, math.inf
+    need = max(8, min(len(v0), len(v1)) // 3)
+    lags, first, second = [], [], []
     for lag in range(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1):
         i0, i1 = matched(v0, v1, lag)
-        if i0.size < max(8, min(len(v0), len(v1)) // 3):
-            continue
-        _, gap = ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
+        if i0.size >= need:
+            lags.append(lag)
+            first.append(i0)
+            second.append(i1)
+    if not lags:
+        return 0
+    # the rays of every lag at once (row by row the same arithmetic), split per lag
+    _, gaps = ray_midpoints(r0.origin, r0.directions[np.concatenate(first)], r1.origin,
+                            r1.directions[np.concatenate(second)])  # fmt: skip
+    bounds = np.cumsum([i.size for i in first])[:-1]
+    best, best_gap = 0, math.inf
+    for lag, gap in zip(lags, np.split(gaps, bounds)):
         g = float(np.median(gap))
         if g < best_gap:
             best, best_gap = lag, g
