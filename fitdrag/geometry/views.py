@@ -339,7 +339,7 @@ def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobian
     jc[:, :, 0] = dd[:, :, 0] * g[:, None]
     jc[:, :, 1] = dd[:, :, 1] * g[:, None]
     jc[:, :, 2] = dd[:, :, 0] * (a * gp)[:, None] + dd[:, :, 1] * (b * gp)[:, None]
-    jac = jc @ camera.rotation
+    jac = (jc.reshape(-1, 3) @ camera.rotation).reshape(-1, 2, 3)  # one product, not n
     return pix, jac, c
 
 
