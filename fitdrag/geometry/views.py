@@ -390,7 +390,8 @@ def _central(values: np.ndarray, h: np.ndarray) -> tuple[np.ndarray, np.ndarray]
 
 def _width_camera(camera: Camera, pc: np.ndarray, radius: float, normals: np.ndarray):
     mr = _shape_recorded(camera, pc, radius)
-    q = np.einsum("ni,nij,nj->n", normals, mr, normals)
+    n0, n1 = normals[:, 0], normals[:, 1]
+    q = n0 * (mr[:, 0, 0] * n0 + mr[:, 0, 1] * n1) + n1 * (mr[:, 1, 0] * n0 + mr[:, 1, 1] * n1)
     with np.errstate(invalid="ignore"):
         out = 2.0 * np.sqrt(q)
     return np.where(pc[:, 2] > float(radius), out, np.nan)
