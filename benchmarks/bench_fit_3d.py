@@ -198,7 +198,7 @@ def evaluation_costs(views, result, baseline):
     theta = np.asarray(result.values, float)
 
     def full():
-        problem._cache_theta = None
+        problem.forget()
         problem.evaluate(theta)
 
     times = problem.observation_times(theta)

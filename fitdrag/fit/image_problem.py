@@ -180,6 +180,8 @@ class ImageProblem:
         self.bounds: list[tuple[float, float]] = []
         self._cache_theta = None
         self._cache = None
+        self._geo_theta = None
+        self._geo = None
         self._layout_key = None
         self._layout = None
         self._flight: FlightModel3D | None = None
@@ -292,7 +294,20 @@ class ImageProblem:
         return out, True
 
     def predict(self, theta):
-        """Per view the predicted (u, v, diameter or None) [px], and ok."""
+        """Per view the predicted (u, v, diameter or None) [px], and ok (from the last
+        evaluation's flight and projections when ``theta`` is its θ)."""
+        theta = np.asarray(theta, float)
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            sims, per_view = self._geo
+            if per_view is not None:
+                out = []
+                for i, (v, (entry, _vel, _sj, _x)) in enumerate(zip(self.views, per_view)):
+                    if 2 in entry:
+                        d = entry[2][0]
+                    else:
+                        d = None if v.diameter is None else self.diameter(i, sims[i][0], theta)
+                    out.append((entry[0][0], entry[1][0], d))
+                return out, True
         sims, ok = self.simulate(theta, False)
         if not ok:
             return None, False
@@ -317,43 +332,59 @@ class ImageProblem:
 
     # -- evaluation --------------------------------------------------------------------------
     def evaluate(self, theta):
-        """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ."""
+        """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ (and
+        the flight and its projections kept across a change of the noise state)."""
         theta = np.asarray(theta, float)
         if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
             return self._cache
-        self.n_evaluations += 1
         res = np.full(self.n_resid, FAIL_RESIDUAL)
         jac = np.zeros((self.n_resid, self.n_params))
-        sims, ok = self.simulate(theta, True)
+        sims, per_view = self._geometry(theta)
+        ok = per_view is not None
         if ok:
-            ok = self._fill(sims, res, jac, theta)
-        if not ok:
-            res[:] = FAIL_RESIDUAL
-            jac[:] = 0.0
+            self._fill(per_view, res, jac)
         self._cache_theta = theta.copy()
         self._cache = (res, jac, sims, ok)
         return self._cache
 
-    def _fill(self, sims, res, jac, theta) -> bool:
-        ns = self.n_shared
+    def _geometry(self, theta):
+        """(simulation, per view its predictions and their derivatives) at ``theta`` with
+        sensitivities, or (None, None) on failure; cached for a repeated θ (the noise state
+        does not enter). Counts as one evaluation."""
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            return self._geo
+        self.n_evaluations += 1
+        sims, ok = self.simulate(theta, True)
+        per_view = self._project(sims, theta) if ok else None
+        self._geo_theta = theta.copy()
+        self._geo = (sims if per_view is not None else None, per_view)
+        return self._geo
+
+    def _project(self, sims, theta):
+        """Per view ({channel kind: (prediction, d prediction/d point)}, velocities, d position
+        / d θ_sim, diameter parameter columns), or None where a value is not finite."""
         per_view = []
-        extra_cols = {}
         for i, (v, (pos, vel, sj)) in enumerate(zip(self.views, sims)):
             pix, dpix, _ = outline_centre(v.camera, pos, self.radius, jacobians=True)
             if not np.all(np.isfinite(pix)) or not np.all(np.isfinite(dpix)):
-                return False
+                return None
             entry = {0: (pix[:, 0], dpix[:, 0, :]), 1: (pix[:, 1], dpix[:, 1, :])}
+            extra = ()
             if self.use_outline[i]:
                 d, dd, d_lam, d_scale = self.diameter(i, pos, theta, jacobians=True)
                 if not (np.all(np.isfinite(d)) and np.all(np.isfinite(dd))):
-                    return False
+                    return None
                 if not (np.all(np.isfinite(d_lam)) and np.all(np.isfinite(d_scale))):
-                    return False
-                extra_cols[i] = ((self.measure_index[i], d_lam), (self.scale_index[i], d_scale))
+                    return None
+                extra = ((self.measure_index[i], d_lam), (self.scale_index[i], d_scale))
                 entry[2] = (d, dd)
-            per_view.append((entry, vel, sj))
+            per_view.append((entry, vel, sj, extra))
+        return per_view
+
+    def _fill(self, per_view, res, jac) -> None:
+        ns = self.n_shared
         for ch in self.channels:
-            entry, vel, sj = per_view[ch.view_index]
+            entry, vel, sj, extra = per_view[ch.view_index]
             pred, dpoint = entry[ch.kind]
             if ch.index is not None:
                 pred, dpoint, vel, sj = (a[ch.index] for a in (pred, dpoint, vel, sj))
@@ -367,7 +398,7 @@ class ImageProblem:
             if col is not None:
                 j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
             if ch.kind == 2:
-                for c, values in extra_cols[ch.view_index]:
+                for c, values in extra:
                     if c is not None:
                         j[:, c] = values
             j *= -inv_s[:, None]
@@ -376,7 +407,11 @@ class ImageProblem:
                 j = prais_winsten(j, ch.gaps, ch.phi)
             res[ch.rows] = r
             jac[ch.rows] = j
-        return True
+
+    def forget(self) -> None:
+        """Drop the cached evaluation and flight (the next evaluation integrates afresh)."""
+        self._cache_theta = None
+        self._geo_theta = None
 
     # -- noise state -------------------------------------------------------------------------
     def set_noise(self, levels=None, phis=None) -> None:
