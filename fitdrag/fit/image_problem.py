@@ -266,6 +266,8 @@ class ImageProblem:
             order = np.argsort(allt, kind="stable")
             inv = np.empty_like(order)
             inv[order] = np.arange(order.size)
+            if np.array_equal(order, inv):  # already in time order (one camera): no gather
+                inv = None
             layout = (times, np.ascontiguousarray(allt[order]), inv)
         self._layout_key, self._layout = key, layout
         return layout
@@ -283,8 +285,11 @@ class ImageProblem:
         status, pos, vel, jac, _ = self._flight.run(self.sim_theta(theta), sens)
         if status != 0 or not np.all(np.isfinite(pos)):
             return None, False
-        pos, vel = pos[inv], vel[inv]
-        jac = jac[inv, :3, :] if sens else None
+        if inv is not None:
+            pos, vel = pos[inv], vel[inv]
+            jac = jac[inv, :3, :] if sens else None
+        else:
+            jac = jac[:, :3, :] if sens else None
         out = []
         start = 0
         for t in times:
@@ -391,7 +396,7 @@ class ImageProblem:
             inv_s = 1.0 / ch.sigma
             r = (ch.observed - pred) * inv_s
             dsim = np.einsum("nk,nkp->np", dpoint, sj)  # d pred / d θ_sim
-            j = np.zeros((r.size, self.n_params))
+            j = jac[ch.rows]  # filled in place (zeros outside the columns set here)
             j[:, ns : ns + 6] = dsim[:, :6]
             j[:, :ns] = dsim[:, 6:]
             col = self.offset_index[ch.view_index]
@@ -404,9 +409,8 @@ class ImageProblem:
             j *= -inv_s[:, None]
             if ch.phi != 0.0:
                 r = prais_winsten(r, ch.gaps, ch.phi)
-                j = prais_winsten(j, ch.gaps, ch.phi)
+                jac[ch.rows] = prais_winsten(j, ch.gaps, ch.phi)
             res[ch.rows] = r
-            jac[ch.rows] = j
 
     def forget(self) -> None:
         """Drop the cached evaluation and flight (the next evaluation integrates afresh)."""
