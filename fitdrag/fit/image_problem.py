@@ -298,6 +298,16 @@ class ImageProblem:
             start += t.size
         return out, True
 
+    def flight_at(self, theta):
+        """Per view (positions, velocities, sensitivities or None) and ok: the last
+        evaluation's flight when ``theta`` is its θ, else a new integration without
+        sensitivities."""
+        theta = np.asarray(theta, float)
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            if self._geo[0] is not None:
+                return self._geo[0], True
+        return self.simulate(theta, False)
+
     def predict(self, theta):
         """Per view the predicted (u, v, diameter or None) [px], and ok (from the last
         evaluation's flight and projections when ``theta`` is its θ)."""

@@ -116,7 +116,7 @@ def rebuild_problem(result, views: Sequence[CameraView], *, specimen=None, air=N
 
 def median_reynolds(problem: ImageProblem, theta) -> float:
     """Median Reynolds number over the observations of the flight at ``theta``. [-]"""
-    sims, ok = problem.simulate(np.asarray(theta, float), False)
+    sims, ok = problem.flight_at(np.asarray(theta, float))
     if not ok:
         return float("nan")
     air = problem.conditions.air
