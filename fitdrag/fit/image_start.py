@@ -43,6 +43,24 @@ def ray_midpoints(o1, d1, o2, d2):
     return 0.5 * (p1 + p2), np.linalg.norm(p1 - p2, axis=1)
 
 
+def _gaps(o1, d1, o2, d2) -> np.ndarray:
+    """The gaps of :func:`ray_midpoints` alone (the same arithmetic, coordinate by
+    coordinate on whole columns: the same numbers, faster for many rays). [m]"""
+    w0 = o1 - o2
+    b = np.einsum("ij,ij->i", d1, d2)
+    d = d1 @ w0
+    e = d2 @ w0
+    den = np.maximum(1.0 - b * b, 1e-12)
+    s = (b * e - d) / den
+    t = (e - b * d) / den
+    a1, a2 = d1.T, d2.T
+    sq = np.zeros_like(s)
+    for k in range(3):
+        c = (o1[k] + s * a1[k]) - (o2[k] + t * a2[k])
+        sq += c * c
+    return np.sqrt(sq)
+
+
 def matched(v0: CameraView, v1: CameraView, lag: int):
     """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag (both views'
     frames are strictly increasing whole numbers)."""
@@ -66,8 +84,8 @@ def best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
     if not lags:
         return 0
     # the rays of every lag at once (row by row the same arithmetic), split per lag
-    _, gaps = ray_midpoints(r0.origin, r0.directions[np.concatenate(first)], r1.origin,
-                            r1.directions[np.concatenate(second)])  # fmt: skip
+    gaps = _gaps(r0.origin, r0.directions[np.concatenate(first)], r1.origin,
+                 r1.directions[np.concatenate(second)])  # fmt: skip
     bounds = np.cumsum([i.size for i in first])[:-1]
     best, best_gap = 0, math.inf
     for lag, gap in zip(lags, np.split(gaps, bounds)):
