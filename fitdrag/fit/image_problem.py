@@ -45,6 +45,8 @@ Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
 
 from __future__ import annotations
 
+import copy
+
 import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
@@ -55,7 +57,7 @@ from fitdrag.geometry.views import (
     outline_depth_diameter,
     outline_width,
 )
-from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
+from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D, _sample_times
 
 #: Names of the noise channels of a view.
 CHANNEL_NAMES = ("u", "v", "diameter")
@@ -247,11 +249,17 @@ class ImageProblem:
         return out
 
     def flight_model(self, times) -> FlightModel3D:
-        return FlightModel3D(
-            times, self.specimen, self.conditions, self.model, self.constants, self.lift,
-            wind=self.wind, spin_axis=self.spin_axis, t0=self.t_ref, rtol=FIT_RTOL,
-            atol=FIT_RTOL,
-        )  # fmt: skip
+        """The problem's flight at sorted ``times`` [s] (at or after ``t_ref``)."""
+        t = np.asarray(times, dtype=float)
+        if self._flight is None or not (t.ndim == 1 and t.size and t[0] >= self.t_ref):
+            return FlightModel3D(
+                times, self.specimen, self.conditions, self.model, self.constants, self.lift,
+                wind=self.wind, spin_axis=self.spin_axis, t0=self.t_ref, rtol=FIT_RTOL,
+                atol=FIT_RTOL,
+            )  # fmt: skip
+        fm = copy.copy(self._flight)  # the same flight (its inputs checked once)
+        fm.t = _sample_times(t)  # at other times, checked
+        return fm
 
     def _time_layout(self, theta):
         """(times per view, all times sorted, inverse of the sort) at θ's time offsets, or

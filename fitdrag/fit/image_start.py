@@ -74,19 +74,22 @@ def matched(v0: CameraView, v1: CameraView, lag: int):
 def best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
     """The whole-frame lag (frame of v0 = frame of v1 + lag) that brings the rays closest."""
     need = max(8, min(len(v0), len(v1)) // 3)
-    lags, first, second = [], [], []
-    for lag in range(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1):
-        i0, i1 = matched(v0, v1, lag)
-        if i0.size >= need:
-            lags.append(lag)
-            first.append(i0)
-            second.append(i1)
-    if not lags:
+    # the matched frames of every trial lag at once (as matched(), lag by lag in order)
+    all_lags = np.arange(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1)
+    target = v0.frames[None, :] - all_lags[:, None]
+    pos = np.searchsorted(v1.frames, target)
+    hit = pos < v1.frames.size
+    hit[hit] = v1.frames[pos[hit]] == target[hit]
+    counts = hit.sum(axis=1)
+    hit &= (counts >= need)[:, None]
+    if not hit.any():
         return 0
+    _rows, first = np.nonzero(hit)
+    sizes = counts[counts >= need]
+    lags = all_lags[counts >= need].tolist()
     # the rays of every lag at once (row by row the same arithmetic), split per lag
-    gaps = _gaps(r0.origin, r0.directions[np.concatenate(first)], r1.origin,
-                 r1.directions[np.concatenate(second)])  # fmt: skip
-    bounds = np.cumsum([i.size for i in first])[:-1]
+    gaps = _gaps(r0.origin, r0.directions[first], r1.origin, r1.directions[pos[hit]])
+    bounds = np.cumsum(sizes)[:-1]
     best, best_gap = 0, math.inf
     for lag, gap in zip(lags, np.split(gaps, bounds)):
         lo, hi = (gap.size - 1) // 2, gap.size // 2  # the median (as np.median's)
