@@ -353,6 +353,19 @@ class ImageProblem:
             out.append(ch.observed - (p if ch.index is None else p[ch.index]))
         return out
 
+    def residuals(self, theta):
+        """(whitened residuals, ok) at ``theta`` without the Jacobian: the flight integrated
+        without sensitivities and projected without derivatives (the re-solves of a fixed
+        Jacobian)."""
+        raw = self.raw_residuals(theta)
+        if raw is None:
+            return None, False
+        res = np.empty(self.n_resid)
+        for ch, r in zip(self.channels, raw):
+            w = r * (1.0 / ch.sigma)
+            res[ch.rows] = prais_winsten(w, ch.gaps, ch.phi) if ch.phi != 0.0 else w
+        return res, bool(np.all(np.isfinite(res)))
+
     # -- evaluation --------------------------------------------------------------------------
     def evaluate(self, theta):
         """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ (and
