@@ -31,14 +31,17 @@ Each is fitted
   rough start (:mod:`fitdrag.fit.image_start`), computed inside the timed baseline.
 
 It prints the median seconds per fit of each, their ratio, and the Cd difference in units
-of fitdrag's standard uncertainty; then the cost of one evaluation of fitdrag's problem
+of fitdrag's standard uncertainty; then the median time of a budget's re-fit of each set-up
+(full, :func:`fitdrag.fit.image_refit.refit_views`, and with the fit's Jacobian held,
+:class:`fitdrag.fit.image_refit.ViewRefitSession`) over random budget-sized changes and
+their largest Cd difference; then the cost of one evaluation of fitdrag's problem
 (residuals and Jacobian) and of one baseline residual evaluation against the floor of one
 call of the compiled 3-D integrator.  Timings are wall-clock on whatever machine runs this;
 nothing is asserted.
 
 Usage::
 
-    python benchmarks/bench_fit_3d.py [--repeats 5] [--profile]
+    python benchmarks/bench_fit_3d.py [--repeats 5] [--refits 30] [--profile]
 """
 
 from __future__ import annotations
@@ -64,7 +67,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 import views_reference as ref  # noqa: E402
 
 from fitdrag.fit.image_fit import fit_views  # noqa: E402
-from fitdrag.fit.image_refit import rebuild_problem  # noqa: E402
+from fitdrag.fit.image_refit import ViewRefitSession, rebuild_problem, refit_views  # noqa: E402
 from fitdrag.fit.image_start import launch_from_track, start_track  # noqa: E402
 
 SIGMA = 0.05  # centroid and diameter noise [px]
@@ -229,10 +232,42 @@ def evaluation_costs(views, result, baseline):
     }
 
 
+def refit_costs(views, result, trials: int, seed: int):
+    """Median seconds of a full re-fit (:func:`refit_views`) and of a fixed-Jacobian re-solve
+    (:class:`ViewRefitSession`) on ``trials`` random budget-sized changes (air density 0.5 %,
+    mass 0.3 %, camera positions 0.01 %, new centroid noise), and their largest
+    |Cd difference| / u(Cd)."""
+    rng = np.random.default_rng(seed)
+    session = ViewRefitSession(result, views)
+    t_full, t_fast, worst, fell = [], [], 0.0, 0
+    for _ in range(trials):
+        air = replace(ref.AIR, density=ref.AIR.density * (1.0 + 0.005 * rng.normal()))
+        sp = replace(ref.BALL, mass=ref.BALL.mass * (1.0 + 0.003 * rng.normal()))
+        moved = []
+        for v in views:
+            cam = v.camera
+            cam = cam.with_pose(cam.rotation, cam.translation * (1.0 + 1e-4 * rng.normal()))
+            moved.append(replace(v, camera=cam, u=v.u + SIGMA * rng.normal(size=len(v)),
+                                 v=v.v + SIGMA * rng.normal(size=len(v))))  # fmt: skip
+        t0 = time.perf_counter()
+        full = refit_views(result, moved, specimen=sp, air=air)
+        t1 = time.perf_counter()
+        fast = session.solve(moved, specimen=sp, air=air)
+        t2 = time.perf_counter()
+        t_full.append(t1 - t0)
+        t_fast.append(t2 - t1)
+        if fast is None:
+            fell += 1
+        else:
+            worst = max(worst, abs(fast.cd - full.cd) / result.u_cd)
+    return float(np.median(t_full)), float(np.median(t_fast)), worst, fell
+
+
 def main() -> None:
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("--repeats", type=int, default=5, help="timed fits per set-up (fitdrag)")
     p.add_argument("--seed", type=int, default=15, help="noise seed")
+    p.add_argument("--refits", type=int, default=30, help="random changes for the re-fits")
     p.add_argument("--profile", action="store_true", help="cProfile fitdrag's fits")
     args = p.parse_args()
     print("fitdrag 3-D fit benchmark (synthetic views, 200 frames at 500 frames/s, noise "
@@ -273,6 +308,13 @@ def main() -> None:
               f"{r.iterations:4d}/{o.nfev:<4d}" + ("" if ok else "  NOT CONVERGED"))  # fmt: skip
     print("(evals: fitdrag's evaluations with Jacobian / the baseline's residual calls, "
           "finite differences included)")  # fmt: skip
+    print()
+    print(f"re-fits of the budget (median of {args.refits} random budget-sized changes):")
+    for label, views, _t, _n, r, _o in rows:
+        full, fast, worst, fell = refit_costs(views, r, args.refits, args.seed)
+        print(f"  {label:28s} full re-fit {1e3 * full:6.2f} ms, fixed-Jacobian re-solve "
+              f"{1e3 * fast:6.2f} ms ({full / fast:.1f}x); largest |dCd|/u {worst:.1e}"
+              + (f"; {fell} fell back to the full re-fit" if fell else ""))  # fmt: skip
     for label, views, _t, _n, r, o in rows:
         costs = evaluation_costs(views, r, o)
         floor = costs["compiled 3-D integrator with sensitivities (floor)"]
