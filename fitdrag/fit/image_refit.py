@@ -11,6 +11,7 @@ coefficient measures the change of the inputs, not a change of weights.
 
 from __future__ import annotations
 
+import copy
 from collections.abc import Sequence
 
 import numpy as np
@@ -226,6 +227,9 @@ class ViewRefitSession:
             raise InputError("result: the fit did not converge; a re-fit needs a converged fit.")
         problem = rebuild_problem(result, views)
         self.result = result
+        self.views = list(views)
+        #: the fit's problem, re-used (with replaced specimen and air) while the views stay
+        self.problem = problem
         self.theta0 = np.array(result.values, float)
         _r, jac, _sims, ok = problem.evaluate(self.theta0)
         if not ok:
@@ -253,8 +257,20 @@ class ViewRefitSession:
             Stop once no parameter moves by more than ``tol`` of its standard uncertainty
             (unit noise). [-]
         """
-        problem = rebuild_problem(self.result, views, specimen=specimen, air=air,
-                                  gravity=gravity, wind=wind)  # fmt: skip
+        views = list(views)
+        if wind is None and len(views) == len(self.views) and all(
+            a is b for a, b in zip(views, self.views)
+        ):
+            # the same views: the prepared problem with the specimen and the air replaced
+            problem = copy.copy(self.problem)
+            problem.specimen = self.result.specimen if specimen is None else specimen
+            problem.radius = 0.5 * float(problem.specimen.length)
+            problem.conditions = conditions_with(self.result.conditions, air, gravity)
+            problem._flight = None
+            problem.forget()
+        else:
+            problem = rebuild_problem(self.result, views, specimen=specimen, air=air,
+                                      gravity=gravity, wind=wind)  # fmt: skip
         lo = np.array([b[0] for b in problem.bounds], float)
         hi = np.array([b[1] for b in problem.bounds], float)
         theta = self.theta0.copy()
