@@ -258,8 +258,10 @@ class ViewRefitSession:
             (unit noise). [-]
         """
         views = list(views)
-        if wind is None and len(views) == len(self.views) and all(
-            a is b for a, b in zip(views, self.views)
+        if (
+            wind is None
+            and len(views) == len(self.views)
+            and all(a is b for a, b in zip(views, self.views))
         ):
             # the same views: the prepared problem with the specimen and the air replaced
             problem = copy.copy(self.problem)
