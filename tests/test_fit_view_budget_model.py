@@ -82,6 +82,19 @@ def test_nominal_value_and_input_names(throw):
     assert m.nominal["readout_time_1"] == pytest.approx(1e-3)
 
 
+def test_fixed_jacobian_model_agrees_with_full_refits(throw):
+    """closed-form/independent: the model's default fixed-Jacobian re-solves
+    (ViewRefitSession) give the Cd of full re-fits (``full``) within 1e-4 u(Cd) for a pose
+    line, a focal length, the air density and the frame rate moved by their standard
+    uncertainties (chord method, Dennis and Schnabel, SIAM 1996, sec. 10.2)."""
+    m = _model(throw)
+    u = throw[1].u_cd
+    for values in ({"pose_1_1": 1.0}, {"focal_length_2": 1.0 + 1.0 / 900.0},
+                   {"air_density": ref.AIR.density * 1.003}, {"frame_rate": ref.FPS * 1.0001}):  # fmt: skip
+        assert abs(m(values) - m.full(values)) <= 1e-4 * u
+    assert m.fixed_jacobian  # restored after full()
+
+
 def test_pose_line_carries_the_whole_pose_covariance(throw):
     """closed-form/independent: the one pose line (direction d = Σg/√(gᵀΣg)) gives, by
     central difference, the same contribution as the six eigen-directions of Σ evaluated

@@ -673,8 +673,7 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
     lams = problem.measures(theta)
     scales = problem.scales(theta)
     times = problem.observation_times(theta)
-    pred, ok_pred = problem.predict(theta)
-    raw = problem.raw_residuals(theta) if ok_pred else None
+    pred, _ok = problem.predict(theta)
     re_all, z_all, view_results = [], [], []
     for i, v in enumerate(problem.views):
         chans = [(c, ch) for c, ch in enumerate(problem.channels) if ch.view_index == i]
@@ -728,7 +727,6 @@ def _assemble(problem, theta, cov, sims, success, messages, noise_model, k_user,
                 diameter_scale_uncertainty=float(u_s) if 2 in by_kind else math.nan,
             )
         )
-    del raw
     if re_all:
         re_cat = np.concatenate(re_all)
         re_range = (float(re_cat.min()), float(re_cat.max()))

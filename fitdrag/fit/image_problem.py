@@ -45,6 +45,8 @@ Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
 
 from __future__ import annotations
 
+import copy
+
 import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
@@ -55,7 +57,7 @@ from fitdrag.geometry.views import (
     outline_depth_diameter,
     outline_width,
 )
-from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D
+from fitdrag.physics.flight3d import LAUNCH_NAMES_3D, FlightModel3D, _sample_times
 
 #: Names of the noise channels of a view.
 CHANNEL_NAMES = ("u", "v", "diameter")
@@ -180,6 +182,11 @@ class ImageProblem:
         self.bounds: list[tuple[float, float]] = []
         self._cache_theta = None
         self._cache = None
+        self._geo_theta = None
+        self._geo = None
+        self._layout_key = None
+        self._layout = None
+        self._flight: FlightModel3D | None = None
         self.n_evaluations = 0
 
     # -- layout ------------------------------------------------------------------------------
@@ -242,26 +249,55 @@ class ImageProblem:
         return out
 
     def flight_model(self, times) -> FlightModel3D:
-        return FlightModel3D(
-            times, self.specimen, self.conditions, self.model, self.constants, self.lift,
-            wind=self.wind, spin_axis=self.spin_axis, t0=self.t_ref, rtol=FIT_RTOL,
-            atol=FIT_RTOL,
-        )  # fmt: skip
+        """The problem's flight at sorted ``times`` [s] (at or after ``t_ref``)."""
+        t = np.asarray(times, dtype=float)
+        if self._flight is None or not (t.ndim == 1 and t.size and t[0] >= self.t_ref):
+            return FlightModel3D(
+                times, self.specimen, self.conditions, self.model, self.constants, self.lift,
+                wind=self.wind, spin_axis=self.spin_axis, t0=self.t_ref, rtol=FIT_RTOL,
+                atol=FIT_RTOL,
+            )  # fmt: skip
+        fm = copy.copy(self._flight)  # the same flight (its inputs checked once)
+        fm.t = _sample_times(t)  # at other times, checked
+        return fm
+
+    def _time_layout(self, theta):
+        """(times per view, all times sorted, inverse of the sort) at θ's time offsets, or
+        None when a time is not finite or before ``t_ref``; kept while the offsets stay."""
+        key = tuple(self.offsets(theta))
+        if self._layout_key == key:
+            return self._layout
+        times = self.observation_times(theta)
+        allt = np.concatenate(times)
+        layout = None
+        if np.all(np.isfinite(allt)) and allt.min() >= self.t_ref:
+            order = np.argsort(allt, kind="stable")
+            inv = np.empty_like(order)
+            inv[order] = np.arange(order.size)
+            if np.array_equal(order, inv):  # already in time order (one camera): no gather
+                inv = None
+            layout = (times, np.ascontiguousarray(allt[order]), inv)
+        self._layout_key, self._layout = key, layout
+        return layout
 
     def simulate(self, theta, sens=True):
         """Per view (positions, velocities, d position/d θ_sim), and ok."""
-        times = self.observation_times(theta)
-        allt = np.concatenate(times)
-        if not np.all(np.isfinite(allt)) or allt.min() < self.t_ref:
+        layout = self._time_layout(theta)
+        if layout is None:
             return None, False
-        order = np.argsort(allt, kind="stable")
-        status, pos, vel, jac, _ = self.flight_model(allt[order]).run(self.sim_theta(theta), sens)
+        times, t_sorted, inv = layout
+        if self._flight is None:
+            self._flight = self.flight_model(t_sorted)
+        else:  # the same flight at other times (sorted and checked above)
+            self._flight.t = t_sorted
+        status, pos, vel, jac, _ = self._flight.run(self.sim_theta(theta), sens)
         if status != 0 or not np.all(np.isfinite(pos)):
             return None, False
-        inv = np.empty_like(order)
-        inv[order] = np.arange(order.size)
-        pos, vel = pos[inv], vel[inv]
-        jac = jac[inv, :3, :] if sens else None
+        if inv is not None:
+            pos, vel = pos[inv], vel[inv]
+            jac = jac[inv, :3, :] if sens else None
+        else:
+            jac = jac[:, :3, :] if sens else None
         out = []
         start = 0
         for t in times:
@@ -270,8 +306,31 @@ class ImageProblem:
             start += t.size
         return out, True
 
+    def flight_at(self, theta):
+        """Per view (positions, velocities, sensitivities or None) and ok: the last
+        evaluation's flight when ``theta`` is its θ, else a new integration without
+        sensitivities."""
+        theta = np.asarray(theta, float)
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            if self._geo[0] is not None:
+                return self._geo[0], True
+        return self.simulate(theta, False)
+
     def predict(self, theta):
-        """Per view the predicted (u, v, diameter or None) [px], and ok."""
+        """Per view the predicted (u, v, diameter or None) [px], and ok (from the last
+        evaluation's flight and projections when ``theta`` is its θ)."""
+        theta = np.asarray(theta, float)
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            sims, per_view = self._geo
+            if per_view is not None:
+                out = []
+                for i, (v, (entry, _vel, _sj, _x)) in enumerate(zip(self.views, per_view)):
+                    if 2 in entry:
+                        d = entry[2][0]
+                    else:
+                        d = None if v.diameter is None else self.diameter(i, sims[i][0], theta)
+                    out.append((entry[0][0], entry[1][0], d))
+                return out, True
         sims, ok = self.simulate(theta, False)
         if not ok:
             return None, False
@@ -294,68 +353,100 @@ class ImageProblem:
             out.append(ch.observed - (p if ch.index is None else p[ch.index]))
         return out
 
+    def residuals(self, theta):
+        """(whitened residuals, ok) at ``theta`` without the Jacobian: the flight integrated
+        without sensitivities and projected without derivatives (the re-solves of a fixed
+        Jacobian)."""
+        raw = self.raw_residuals(theta)
+        if raw is None:
+            return None, False
+        res = np.empty(self.n_resid)
+        for ch, r in zip(self.channels, raw):
+            w = r * (1.0 / ch.sigma)
+            res[ch.rows] = prais_winsten(w, ch.gaps, ch.phi) if ch.phi != 0.0 else w
+        return res, bool(np.all(np.isfinite(res)))
+
     # -- evaluation --------------------------------------------------------------------------
     def evaluate(self, theta):
-        """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ."""
+        """(residuals, Jacobian, simulation, ok) at ``theta``; cached for a repeated θ (and
+        the flight and its projections kept across a change of the noise state)."""
         theta = np.asarray(theta, float)
         if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
             return self._cache
-        self.n_evaluations += 1
         res = np.full(self.n_resid, FAIL_RESIDUAL)
         jac = np.zeros((self.n_resid, self.n_params))
-        sims, ok = self.simulate(theta, True)
+        sims, per_view = self._geometry(theta)
+        ok = per_view is not None
         if ok:
-            ok = self._fill(sims, res, jac, theta)
-        if not ok:
-            res[:] = FAIL_RESIDUAL
-            jac[:] = 0.0
+            self._fill(per_view, res, jac)
         self._cache_theta = theta.copy()
         self._cache = (res, jac, sims, ok)
         return self._cache
 
-    def _fill(self, sims, res, jac, theta) -> bool:
-        ns = self.n_shared
+    def _geometry(self, theta):
+        """(simulation, per view its predictions and their derivatives) at ``theta`` with
+        sensitivities, or (None, None) on failure; cached for a repeated θ (the noise state
+        does not enter). Counts as one evaluation."""
+        if self._geo_theta is not None and np.array_equal(theta, self._geo_theta):
+            return self._geo
+        self.n_evaluations += 1
+        sims, ok = self.simulate(theta, True)
+        per_view = self._project(sims, theta) if ok else None
+        self._geo_theta = theta.copy()
+        self._geo = (sims if per_view is not None else None, per_view)
+        return self._geo
+
+    def _project(self, sims, theta):
+        """Per view ({channel kind: (prediction, d prediction/d point)}, velocities, d position
+        / d θ_sim, diameter parameter columns), or None where a value is not finite."""
         per_view = []
-        extra_cols = {}
         for i, (v, (pos, vel, sj)) in enumerate(zip(self.views, sims)):
             pix, dpix, _ = outline_centre(v.camera, pos, self.radius, jacobians=True)
             if not np.all(np.isfinite(pix)) or not np.all(np.isfinite(dpix)):
-                return False
+                return None
             entry = {0: (pix[:, 0], dpix[:, 0, :]), 1: (pix[:, 1], dpix[:, 1, :])}
+            extra = ()
             if self.use_outline[i]:
                 d, dd, d_lam, d_scale = self.diameter(i, pos, theta, jacobians=True)
                 if not (np.all(np.isfinite(d)) and np.all(np.isfinite(dd))):
-                    return False
+                    return None
                 if not (np.all(np.isfinite(d_lam)) and np.all(np.isfinite(d_scale))):
-                    return False
-                extra_cols[i] = ((self.measure_index[i], d_lam), (self.scale_index[i], d_scale))
+                    return None
+                extra = ((self.measure_index[i], d_lam), (self.scale_index[i], d_scale))
                 entry[2] = (d, dd)
-            per_view.append((entry, vel, sj))
+            per_view.append((entry, vel, sj, extra))
+        return per_view
+
+    def _fill(self, per_view, res, jac) -> None:
+        ns = self.n_shared
         for ch in self.channels:
-            entry, vel, sj = per_view[ch.view_index]
+            entry, vel, sj, extra = per_view[ch.view_index]
             pred, dpoint = entry[ch.kind]
             if ch.index is not None:
                 pred, dpoint, vel, sj = (a[ch.index] for a in (pred, dpoint, vel, sj))
             inv_s = 1.0 / ch.sigma
             r = (ch.observed - pred) * inv_s
             dsim = np.einsum("nk,nkp->np", dpoint, sj)  # d pred / d θ_sim
-            j = np.zeros((r.size, self.n_params))
+            j = jac[ch.rows]  # filled in place (zeros outside the columns set here)
             j[:, ns : ns + 6] = dsim[:, :6]
             j[:, :ns] = dsim[:, 6:]
             col = self.offset_index[ch.view_index]
             if col is not None:
                 j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
             if ch.kind == 2:
-                for c, values in extra_cols[ch.view_index]:
+                for c, values in extra:
                     if c is not None:
                         j[:, c] = values
             j *= -inv_s[:, None]
             if ch.phi != 0.0:
                 r = prais_winsten(r, ch.gaps, ch.phi)
-                j = prais_winsten(j, ch.gaps, ch.phi)
+                jac[ch.rows] = prais_winsten(j, ch.gaps, ch.phi)
             res[ch.rows] = r
-            jac[ch.rows] = j
-        return True
+
+    def forget(self) -> None:
+        """Drop the cached evaluation and flight (the next evaluation integrates afresh)."""
+        self._cache_theta = None
+        self._geo_theta = None
 
     # -- noise state -------------------------------------------------------------------------
     def set_noise(self, levels=None, phis=None) -> None:

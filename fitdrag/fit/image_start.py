@@ -43,21 +43,58 @@ def ray_midpoints(o1, d1, o2, d2):
     return 0.5 * (p1 + p2), np.linalg.norm(p1 - p2, axis=1)
 
 
+def _gaps(o1, d1, o2, d2) -> np.ndarray:
+    """The gaps of :func:`ray_midpoints` alone (the same arithmetic, coordinate by
+    coordinate on whole columns: the same numbers, faster for many rays). [m]"""
+    w0 = o1 - o2
+    b = np.einsum("ij,ij->i", d1, d2)
+    d = d1 @ w0
+    e = d2 @ w0
+    den = np.maximum(1.0 - b * b, 1e-12)
+    s = (b * e - d) / den
+    t = (e - b * d) / den
+    a1, a2 = d1.T, d2.T
+    sq = np.zeros_like(s)
+    for k in range(3):
+        c = (o1[k] + s * a1[k]) - (o2[k] + t * a2[k])
+        sq += c * c
+    return np.sqrt(sq)
+
+
 def matched(v0: CameraView, v1: CameraView, lag: int):
-    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag."""
-    common, i0, i1 = np.intersect1d(v0.frames, v1.frames + lag, return_indices=True)
-    return i0, i1
+    """Indices (i0, i1) of frames of v0 and v1 with frame0 = frame1 + lag (both views'
+    frames are strictly increasing whole numbers)."""
+    target = v0.frames - lag
+    pos = np.searchsorted(v1.frames, target)
+    hit = pos < v1.frames.size
+    hit[hit] = v1.frames[pos[hit]] == target[hit]
+    return np.flatnonzero(hit), pos[hit]
 
 
 def best_lag(v0: CameraView, v1: CameraView, r0, r1) -> int:
     """The whole-frame lag (frame of v0 = frame of v1 + lag) that brings the rays closest."""
+    need = max(8, min(len(v0), len(v1)) // 3)
+    # the matched frames of every trial lag at once (as matched(), lag by lag in order)
+    all_lags = np.arange(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1)
+    target = v0.frames[None, :] - all_lags[:, None]
+    pos = np.searchsorted(v1.frames, target)
+    hit = pos < v1.frames.size
+    hit[hit] = v1.frames[pos[hit]] == target[hit]
+    counts = hit.sum(axis=1)
+    hit &= (counts >= need)[:, None]
+    if not hit.any():
+        return 0
+    _rows, first = np.nonzero(hit)
+    sizes = counts[counts >= need]
+    lags = all_lags[counts >= need].tolist()
+    # the rays of every lag at once (row by row the same arithmetic), split per lag
+    gaps = _gaps(r0.origin, r0.directions[first], r1.origin, r1.directions[pos[hit]])
+    bounds = np.cumsum(sizes)[:-1]
     best, best_gap = 0, math.inf
-    for lag in range(-MAX_LAG_FRAMES, MAX_LAG_FRAMES + 1):
-        i0, i1 = matched(v0, v1, lag)
-        if i0.size < max(8, min(len(v0), len(v1)) // 3):
-            continue
-        _, gap = ray_midpoints(r0.origin, r0.directions[i0], r1.origin, r1.directions[i1])
-        g = float(np.median(gap))
+    for lag, gap in zip(lags, np.split(gaps, bounds)):
+        lo, hi = (gap.size - 1) // 2, gap.size // 2  # the median (as np.median's)
+        part = np.partition(gap, (lo, hi))
+        g = 0.5 * (float(part[lo]) + float(part[hi]))
         if g < best_gap:
             best, best_gap = lag, g
     return best

@@ -23,7 +23,7 @@ import numpy as np
 
 from fitdrag.errors import ConvergenceError, InputError
 from fitdrag.fit.budget_model import DRAG_INPUTS, air_from_inputs
-from fitdrag.fit.image_refit import refit_views
+from fitdrag.fit.image_refit import ViewRefitSession, refit_views
 from fitdrag.geometry.camera import Camera, rotation_from_vector
 from fitdrag.geometry.views import CameraView
 from fitdrag.physics.specimen import Body, Sphere
@@ -300,11 +300,17 @@ class ViewRefitModel:
         Weights of the throws' Cd (default ``u_i⁻²``, normalised).
     lift_sensitivity : float
         ∂Cd/∂C_L of an undetected lift (the ``lift_coefficient`` input). [-]
+    fixed_jacobian : bool
+        Re-solve each throw by chord steps with its fit's Jacobian held, from flights
+        integrated and projected without derivatives, finished by an exact Gauss–Newton step
+        (:class:`fitdrag.fit.image_refit.ViewRefitSession`, built once per process), the full
+        re-fit (:func:`fitdrag.fit.image_refit.refit_views`) only where that does not settle;
+        False: always the full re-fit (:meth:`full` gives it for checking).
     """
 
     def __init__(self, throws: Sequence[ViewThrow], nominal: Mapping[str, float], *,
                  length=None, viscosity=None, weights=None,
-                 lift_sensitivity: float = 0.0):  # fmt: skip
+                 lift_sensitivity: float = 0.0, fixed_jacobian: bool = True):  # fmt: skip
         self.throws = list(throws)
         if not self.throws:
             raise InputError("throws: at least one throw is needed.")
@@ -322,6 +328,7 @@ class ViewRefitModel:
         self.length = length
         self.viscosity = viscosity
         self.lift_sensitivity = float(lift_sensitivity)
+        self.fixed_jacobian = bool(fixed_jacobian)
         self.directions = [_flight_direction(th) for th in self.throws]
         if weights is None:
             weights, *_ = combine_throws([t.result.cd for t in self.throws],
@@ -476,9 +483,18 @@ class ViewRefitModel:
                 np.asarray(th.result.options["wind"], float)
                 + v["air_speed"] * (self.directions[t - 1])
             )
+        views = self._views(th, t, v, pose_delta)
+        if self.fixed_jacobian and model is None:
+            sessions = self.__dict__.setdefault("_sessions", {})
+            if t not in sessions:
+                sessions[t] = ViewRefitSession(th.result, th.views)
+            fast = sessions[t].solve(views, specimen=self.specimen(v), air=self.air(v),
+                                     gravity=v.get("gravity"), wind=wind)  # fmt: skip
+            if fast is not None:
+                return fast.cd
         r = refit_views(
             th.result,
-            self._views(th, t, v, pose_delta),
+            views,
             specimen=self.specimen(v),
             air=self.air(v),
             gravity=v.get("gravity"),
@@ -495,6 +511,21 @@ class ViewRefitModel:
         cds = [self._throw_cd(th, t, self.nominal, model=model)
                for t, th in enumerate(self.throws, start=1)]  # fmt: skip
         return float(self.weights @ np.asarray(cds))
+
+    def full(self, values) -> float:
+        """Cd of ``values`` by full re-fits (Gauss–Newton with the exact Jacobian at every
+        step), never the fixed-Jacobian re-solve: the reference that checks it."""
+        saved = self.fixed_jacobian
+        self.fixed_jacobian = False
+        try:
+            return self(values)
+        finally:
+            self.fixed_jacobian = saved
+
+    def __getstate__(self):
+        state = dict(self.__dict__)
+        state.pop("_sessions", None)  # rebuilt in each process on first use
+        return state
 
     def __call__(self, values) -> float:
         v = dict(self.nominal)

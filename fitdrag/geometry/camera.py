@@ -458,6 +458,51 @@ class Camera:
         d[: len(self.distortion)] = self.distortion
         return d
 
+    def _distort_normalised(self, x: np.ndarray, y: np.ndarray, jacobians: bool):
+        """OpenCV's lens model [1] on normalised coordinates ``(x', y')``: pixels (n, 2),
+        the distorted ``x''``, ``y''``, and with ``jacobians`` d(x'', y'')/d(x', y')
+        (n, 2, 2) and (r², numerator, denominator) of the radial factor; else None, None."""
+        k1, k2, p1, p2, k3, k4, k5, k6, s1, s2, s3, s4 = self._coeffs()
+        # groups of coefficients that are all zero add exact zeros: left out (same numbers)
+        radial = k1 != 0.0 or k2 != 0.0 or k3 != 0.0
+        rational = k4 != 0.0 or k5 != 0.0 or k6 != 0.0
+        tangential = p1 != 0.0 or p2 != 0.0
+        prism = s1 != 0.0 or s2 != 0.0 or s3 != 0.0 or s4 != 0.0
+        r2 = x * x + y * y
+        one = 1.0 + 0.0 * r2  # 1 (NaN where the point is not finite)
+        num = 1.0 + r2 * (k1 + r2 * (k2 + r2 * k3)) if radial else one
+        den = 1.0 + r2 * (k4 + r2 * (k5 + r2 * k6)) if rational else one
+        q = num / den if rational else num
+        xd = x * q
+        yd = y * q
+        if tangential:
+            xd = xd + 2.0 * p1 * x * y + p2 * (r2 + 2.0 * x * x)
+            yd = yd + p1 * (r2 + 2.0 * y * y) + 2.0 * p2 * x * y
+        if prism:
+            xd = xd + r2 * (s1 + s2 * r2)
+            yd = yd + r2 * (s3 + s4 * r2)
+        pix = np.stack([self.fx * xd + self.cx, self.fy * yd + self.cy], axis=1)
+        if not jacobians:
+            return pix, xd, yd, None, None
+        # d(x'', y'') / d(x', y')
+        ddist = np.empty((x.shape[0], 2, 2))
+        if not (radial or rational or tangential or prism):
+            ddist[:, 0, 0] = one
+            ddist[:, 1, 1] = one
+            ddist[:, 0, 1] = 0.0 * r2
+            ddist[:, 1, 0] = ddist[:, 0, 1]
+            return pix, xd, yd, ddist, (r2, num, den)
+        dnum = k1 + r2 * (2.0 * k2 + 3.0 * k3 * r2)
+        dden = k4 + r2 * (2.0 * k5 + 3.0 * k6 * r2)
+        dq = (dnum * den - num * dden) / den**2  # dq / d(r^2)
+        sx = s1 + 2.0 * s2 * r2  # d(s1 r^2 + s2 r^4) / d(r^2)
+        sy = s3 + 2.0 * s4 * r2
+        ddist[:, 0, 0] = q + 2.0 * x * x * dq + 2.0 * p1 * y + 6.0 * p2 * x + 2.0 * x * sx
+        ddist[:, 0, 1] = 2.0 * x * y * dq + 2.0 * p1 * x + 2.0 * p2 * y + 2.0 * y * sx
+        ddist[:, 1, 0] = 2.0 * x * y * dq + 2.0 * p1 * x + 2.0 * p2 * y + 2.0 * x * sy
+        ddist[:, 1, 1] = q + 2.0 * y * y * dq + 6.0 * p1 * y + 2.0 * p2 * x + 2.0 * y * sy
+        return pix, xd, yd, ddist, (r2, num, den)
+
     def project(self, points_world: Any, *, jacobians: bool = False) -> Projection:
         """Project world points to pixels of the recorded image (OpenCV's model, [1]).
 
@@ -482,28 +527,11 @@ class Camera:
         with np.errstate(divide="ignore", invalid="ignore"):
             iz = 1.0 / z
         x, y = pc[:, 0] * iz, pc[:, 1] * iz
-        k1, k2, p1, p2, k3, k4, k5, k6, s1, s2, s3, s4 = self._coeffs()
-        r2 = x * x + y * y
-        num = 1.0 + r2 * (k1 + r2 * (k2 + r2 * k3))
-        den = 1.0 + r2 * (k4 + r2 * (k5 + r2 * k6))
-        q = num / den
-        xd = x * q + 2.0 * p1 * x * y + p2 * (r2 + 2.0 * x * x) + r2 * (s1 + s2 * r2)
-        yd = y * q + p1 * (r2 + 2.0 * y * y) + 2.0 * p2 * x * y + r2 * (s3 + s4 * r2)
-        pix = np.stack([self.fx * xd + self.cx, self.fy * yd + self.cy], axis=1)
+        pix, xd, yd, ddist, parts = self._distort_normalised(x, y, jacobians)
         if not jacobians:
             return Projection(pixels=pix.reshape(*shape, 2), depth=z.reshape(shape))
+        r2, num, den = parts
         n = pw.shape[0]
-        # d(x'', y'') / d(x', y')
-        dnum = k1 + r2 * (2.0 * k2 + 3.0 * k3 * r2)
-        dden = k4 + r2 * (2.0 * k5 + 3.0 * k6 * r2)
-        dq = (dnum * den - num * dden) / den**2  # dq / d(r^2)
-        sx = s1 + 2.0 * s2 * r2  # d(s1 r^2 + s2 r^4) / d(r^2)
-        sy = s3 + 2.0 * s4 * r2
-        ddist = np.empty((n, 2, 2))
-        ddist[:, 0, 0] = q + 2.0 * x * x * dq + 2.0 * p1 * y + 6.0 * p2 * x + 2.0 * x * sx
-        ddist[:, 0, 1] = 2.0 * x * y * dq + 2.0 * p1 * x + 2.0 * p2 * y + 2.0 * y * sx
-        ddist[:, 1, 0] = 2.0 * x * y * dq + 2.0 * p1 * x + 2.0 * p2 * y + 2.0 * x * sy
-        ddist[:, 1, 1] = q + 2.0 * y * y * dq + 6.0 * p1 * y + 2.0 * p2 * x + 2.0 * y * sy
         # d(x', y') / d(X_c)
         dnorm = np.zeros((n, 2, 3))
         dnorm[:, 0, 0] = iz
