@@ -148,3 +148,17 @@ def test_fixed_jacobian_session_gives_up_rather_than_guess():
     session = RefitSession(fit)
     assert session.solve(times=[moved.t], positions=[(moved.x, moved.y)], max_iter=1,
                          **kw) is None  # fmt: skip
+
+
+def test_chord_matrices_are_the_pseudo_inverse_and_the_unit_noise_uncertainties():
+    """closed-form/independent: for a full-rank J the chord step's matrix is the
+    Moore-Penrose pseudo-inverse (numpy.linalg.pinv) and the scale sqrt(diag((J^T J)^-1))
+    (the parameters' standard uncertainties at unit noise)."""
+    import numpy as np
+
+    from fitdrag.fit.refit import chord_matrices
+
+    jac = np.random.default_rng(3).normal(size=(40, 5))
+    step, scale = chord_matrices(jac)
+    np.testing.assert_allclose(step, np.linalg.pinv(jac), rtol=1e-10, atol=1e-12)
+    np.testing.assert_allclose(scale, np.sqrt(np.diag(np.linalg.inv(jac.T @ jac))), rtol=1e-10)

@@ -18,7 +18,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.fit.image_problem import ImageProblem
-from fitdrag.fit.refit import Refit, conditions_with
+from fitdrag.fit.refit import Refit, chord_matrices, conditions_with
 from fitdrag.fit.results import cd_and_gradient
 from fitdrag.fit.solvers import gauss_newton, trust_region
 from fitdrag.geometry.views import CameraView
@@ -234,12 +234,9 @@ class ViewRefitSession:
         _r, jac, _sims, ok = problem.evaluate(self.theta0)
         if not ok:
             raise InputError("result: the fit's flight cannot be simulated at its optimum.")
-        q, rr = np.linalg.qr(jac)
-        #: (J₀ᵀJ₀)⁻¹J₀ᵀ, the chord step's matrix
-        self.step_matrix = np.linalg.solve(rr, q.T)
-        rinv = np.linalg.solve(rr, np.eye(rr.shape[0]))
-        #: standard uncertainty scale of each parameter (unit noise), for the stopping rule
-        self.scale = np.sqrt(np.sum(rinv * rinv, axis=1))
+        #: (J₀ᵀJ₀)⁻¹J₀ᵀ, the chord step's matrix, and each parameter's standard uncertainty
+        #: scale (unit noise), for the stopping rule
+        self.step_matrix, self.scale = chord_matrices(jac)
 
     def solve(self, views: Sequence[CameraView], *, specimen=None, air: Air | None = None,
               gravity: float | None = None, wind=None, reynolds: float | None = None,

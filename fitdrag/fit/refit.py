@@ -147,6 +147,16 @@ def refit(
     return Refit(cd=float(cd), values=theta, success=bool(ok))
 
 
+def chord_matrices(jac: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The chord (fixed-Jacobian Gauss–Newton) step's matrix ``(J₀ᵀJ₀)⁻¹J₀ᵀ`` of a whitened
+    Jacobian ``jac`` (m, p), by its QR factors, and each parameter's standard uncertainty
+    at unit noise, ``sqrt(diag((J₀ᵀJ₀)⁻¹))``: the least-squares solution and its covariance
+    by QR (Björck 1996, Numerical Methods for Least Squares Problems, SIAM, ch. 1-2)."""
+    q, rr = np.linalg.qr(jac)
+    rinv = np.linalg.solve(rr, np.eye(rr.shape[0]))
+    return np.linalg.solve(rr, q.T), np.sqrt(np.sum(rinv * rinv, axis=1))
+
+
 class RefitSession:
     """A finished fit prepared for many re-solves with a fixed Jacobian (Monte Carlo trials).
 
@@ -193,12 +203,9 @@ class RefitSession:
         _r, jac, _sims, ok = problem.evaluate(self.theta0)
         if not ok:
             raise InputError("result: the fit's flights cannot be simulated at its optimum.")
-        q, rr = np.linalg.qr(jac)
-        #: (J₀ᵀJ₀)⁻¹J₀ᵀ, the chord step's matrix
-        self.step_matrix = np.linalg.solve(rr, q.T)
-        rinv = np.linalg.solve(rr, np.eye(rr.shape[0]))
-        #: standard uncertainty scale of each parameter (unit noise), for the stopping rule
-        self.scale = np.sqrt(np.sum(rinv * rinv, axis=1))
+        #: (J₀ᵀJ₀)⁻¹J₀ᵀ, the chord step's matrix, and each parameter's standard uncertainty
+        #: scale (unit noise), for the stopping rule
+        self.step_matrix, self.scale = chord_matrices(jac)
         self.lo = np.array([b[0] for b in old.bounds], float)
         self.hi = np.array([b[1] for b in old.bounds], float)
         self.problem = problem
