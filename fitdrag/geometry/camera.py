@@ -360,6 +360,14 @@ class Camera:
         object.__setattr__(self, "_rvec", np.asarray(rvec, float).ravel())
         # d R[i, j] / d rvec[k] = jac[k, 3 i + j] (the layout of cv2.Rodrigues' Jacobian)
         object.__setattr__(self, "_drot", np.asarray(jac, float).reshape(3, 3, 3))
+        # the flat parameter vector of the compiled outline kernel
+        # (fitdrag.geometry._outline_kernel): fx, fy, cx, cy, 12 coefficients, R, t
+        lens = np.zeros(28)
+        lens[:4] = self.fx, self.fy, self.cx, self.cy
+        lens[4 : 4 + d.size] = d
+        lens[16:25] = r.ravel()
+        lens[25:] = t
+        object.__setattr__(self, "_lens", lens)
         object.__setattr__(
             self,
             "readout_time",

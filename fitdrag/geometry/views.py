@@ -35,6 +35,10 @@ unchanged (the shear ``I + k d e_v^T`` maps the normal ``n`` of ``d`` to itself)
 blur stretches it along the motion only: this is why the diameter is measured across the
 motion.
 
+The outline centre and the depth diameter, with their Jacobians, are evaluated by a compiled
+loop over the points (:mod:`fitdrag.geometry._outline_kernel`, the same formulas and lens
+model as :meth:`Camera.project`); the widths and area diameters stay in numpy.
+
 References
 ----------
 .. [1] R. Hartley and A. Zisserman, *Multiple View Geometry in Computer Vision*, 2nd ed.,
@@ -54,6 +58,7 @@ from typing import Any
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.geometry import _outline_kernel as _K
 from fitdrag.geometry.camera import Camera
 
 __all__ = [
@@ -322,25 +327,11 @@ def outline_centre(camera: Camera, points_world: Any, radius: float, *, jacobian
         pixels are NaN.
     """
     pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
-    pc = camera.to_camera(pw)
-    a, b, c = pc[:, 0], pc[:, 1], pc[:, 2]
-    rho2 = float(radius) ** 2
-    den = c * c - rho2
-    ok = c > float(radius)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        g = np.where(ok, c / den, np.nan)
-    pix, dd = _distorted(camera, a * g, b * g)
-    if not jacobians:
-        return pix, None, c
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gp = np.where(ok, -(c * c + rho2) / (den * den), np.nan)
-    # d(pixel)/d(a, b, c) = dd @ d(xn, yn)/d(a, b, c), the latter [[g, 0, a g'], [0, g, b g']]
-    jc = np.empty((pw.shape[0], 2, 3))
-    jc[:, :, 0] = dd[:, :, 0] * g[:, None]
-    jc[:, :, 1] = dd[:, :, 1] * g[:, None]
-    jc[:, :, 2] = dd[:, :, 0] * (a * gp)[:, None] + dd[:, :, 1] * (b * gp)[:, None]
-    jac = (jc.reshape(-1, 3) @ camera.rotation).reshape(-1, 2, 3)  # one product, not n
-    return pix, jac, c
+    mode = _K.CENTRE | (_K.CENTRE_JAC if jacobians else 0)
+    ok, pix, jac, c, _, _ = _K.outline(camera._lens, radius, pw, mode)
+    if not ok:
+        camera.to_camera(pw)  # raises the error that names the bad points
+    return pix, (jac if jacobians else None), c
 
 
 def _shape_recorded(camera: Camera, pc: np.ndarray, radius: float) -> np.ndarray:
@@ -536,13 +527,8 @@ def outline_depth_diameter(camera: Camera, points_world: Any, radius: float, *,
         the Jacobian [px/m] or None.
     """
     pw = np.asarray(points_world, dtype=float).reshape(-1, 3)
-    rho = float(radius)
-    z = camera.to_camera(pw)[:, 2]
-    f = math.sqrt(camera.fx * camera.fy)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        q = np.where(z > rho, z * z - rho * rho, np.nan)
-        d = 2.0 * f * rho / np.sqrt(q)
-        if not jacobians:
-            return d, None
-        dz = -2.0 * f * rho * z / q**1.5
-    return d, dz[:, None] * camera.rotation[2][None, :]
+    mode = _K.DEPTH | (_K.DEPTH_JAC if jacobians else 0)
+    ok, _, _, _, d, jac = _K.outline(camera._lens, radius, pw, mode)
+    if not ok:
+        camera.to_camera(pw)  # raises the error that names the bad points
+    return d, (jac if jacobians else None)
