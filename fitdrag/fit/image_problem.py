@@ -46,7 +46,9 @@ Prais–Winsten transformed over the frame gaps (:mod:`fitdrag.fit.noise`).
 from __future__ import annotations
 
 import copy
+import functools
 
+import numba
 import numpy as np
 
 from fitdrag.fit.noise import prais_winsten, reml_ar1
@@ -419,29 +421,24 @@ class ImageProblem:
 
     def _fill(self, per_view, res, jac) -> None:
         ns = self.n_shared
+        kernel = _compiled_fill()
         for ch in self.channels:
             entry, vel, sj, extra = per_view[ch.view_index]
             pred, dpoint = entry[ch.kind]
-            if ch.index is not None:
-                pred, dpoint, vel, sj = (a[ch.index] for a in (pred, dpoint, vel, sj))
             inv_s = 1.0 / ch.sigma
-            r = (ch.observed - pred) * inv_s
-            dsim = np.einsum("nk,nkp->np", dpoint, sj)  # d pred / d θ_sim
-            j = jac[ch.rows]  # filled in place (zeros outside the columns set here)
-            j[:, ns : ns + 6] = dsim[:, :6]
-            j[:, :ns] = dsim[:, 6:]
+            index = _ALL if ch.index is None else ch.index
             col = self.offset_index[ch.view_index]
-            if col is not None:
-                j[:, col] = np.einsum("nk,nk->n", dpoint, vel)
+            j = jac[ch.rows]  # filled in place (zeros outside the columns set here)
+            r = res[ch.rows]
+            kernel(ch.observed, pred, dpoint, sj, vel, inv_s, index, ns,
+                   -1 if col is None else col, r, j)  # fmt: skip
             if ch.kind == 2:
                 for c, values in extra:
                     if c is not None:
-                        j[:, c] = values
-            j *= -inv_s[:, None]
+                        j[:, c] = (values if ch.index is None else values[ch.index]) * -inv_s
             if ch.phi != 0.0:
-                r = prais_winsten(r, ch.gaps, ch.phi)
+                res[ch.rows] = prais_winsten(r, ch.gaps, ch.phi)
                 jac[ch.rows] = prais_winsten(j, ch.gaps, ch.phi)
-            res[ch.rows] = r
 
     def forget(self) -> None:
         """Drop the cached evaluation and flight (the next evaluation integrates afresh)."""
@@ -485,3 +482,33 @@ class ImageProblem:
             f"diameter_scale_{i + 1}" for i, j in enumerate(self.scale_index) if j is not None
         ]
         return names
+
+
+_ALL = np.empty(0, dtype=np.int64)  # "every observation of the view" for the fill kernel
+
+
+def _fill_rows(observed, pred, dpoint, sj, vel, inv_s, index, ns, col, r_out, j_out):
+    """One channel's whitened residuals and Jacobian rows (before AR(1) prewhitening):
+    ``r = (observed - pred) / sigma``; d pred / d θ_sim = d pred / d point · d point / d θ_sim
+    into the drag-law columns (``:ns``) and the launch-state columns (``ns : ns + 6``), and
+    d pred / d offset = d pred / d point · velocity into column ``col`` (if >= 0), each
+    times ``-1 / sigma``.  ``index`` picks the view's observations of the channel (empty:
+    all)."""
+    n = observed.shape[0]
+    n_sim = sj.shape[2]
+    for i in range(n):
+        m = index[i] if index.shape[0] > 0 else i
+        s = -inv_s[i]
+        r_out[i] = (observed[i] - pred[m]) * inv_s[i]
+        d0, d1, d2 = dpoint[m, 0], dpoint[m, 1], dpoint[m, 2]
+        for q in range(n_sim):
+            v = d0 * sj[m, 0, q] + d1 * sj[m, 1, q] + d2 * sj[m, 2, q]
+            j_out[i, ns + q if q < 6 else q - 6] = v * s
+        if col >= 0:
+            j_out[i, col] = (d0 * vel[m, 0] + d1 * vel[m, 1] + d2 * vel[m, 2]) * s
+
+
+@functools.cache
+def _compiled_fill():
+    """The fill kernel compiled on first use (numba's disk cache; any array layouts)."""
+    return numba.njit(cache=True)(_fill_rows)
