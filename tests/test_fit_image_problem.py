@@ -153,3 +153,32 @@ def test_diameters_not_measured_are_left_out(phi):
         e[j] = h
         fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
         np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * np.abs(jac[:, j]).max())
+
+
+def test_missing_diameters_with_measure_and_scale_fitted():
+    """closed-form/independent: a view with diameters missing in some frames and its diameter
+    measure fitted, the other view's scale fitted (until this change the measure and scale
+    columns were filled with every frame's values and the evaluation failed with a shape
+    error): the analytic Jacobian, every column, against central differences of the
+    residual function, to 1e-5 of each column's scale."""
+    p_full, theta = _problem(0.4, diameter=True)
+    views = list(p_full.views)
+    for i, gone in ((0, [3, 4, 20]), (1, [0, 7, 8, 9, 30, 59])):
+        d = np.array(views[i].diameter)
+        d[gone] = np.nan
+        views[i] = replace(views[i], diameter=d)
+    p = ImageProblem(views, ref.BALL, Conditions(ref.AIR), get_drag_model("constant"), (),
+                     True, np.array([0.3, 0.0, -0.2]), np.array([0.1, 0.2, 1.0]) / 1.025,
+                     [True, True], [0.0, None], -0.01, [None, 0.3], [1.02, None])  # fmt: skip
+    p.set_noise(levels=[0.3, 0.4, 0.5, 0.3, 0.3, 0.2], phis=[0.4, -0.4, 0.2, 0.4, 0, 0.4])
+    assert p.n_resid == p_full.n_resid - 9
+    _r, jac, _s, ok = p.evaluate(theta)
+    assert ok and jac.shape == (p.n_resid, 2 + 6 + 1 + 2)
+    steps = [1e-6, 1e-6, 1e-7, 1e-7, 1e-7, 1e-6, 1e-6, 1e-6, 1e-8, 1e-6, 1e-6]
+    for j, h in enumerate(steps):
+        e = np.zeros_like(theta)
+        e[j] = h
+        fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
+        scale = np.abs(jac[:, j]).max()
+        assert scale > 0
+        np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * scale, err_msg=p.parameter_names()[j])

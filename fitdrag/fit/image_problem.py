@@ -16,7 +16,8 @@ merged and sorted, ties allowed).
 
 Jacobian by the chain rule: d(pixel)/d(world point) (closed form) times the simulator's
 forward sensitivities d(position)/d(θ); for an estimated time offset,
-d(pixel)/d(offset) = d(pixel)/d(point) · velocity.
+d(pixel)/d(offset) = d(pixel)/d(point) · velocity.  Each channel's residuals and Jacobian rows
+are filled by one compiled loop (numba, on first use; the same products as the formulas).
 
 A view's diameter channel holds only the frames where the diameter was measured (NaN in
 :class:`~fitdrag.geometry.views.CameraView` = not observed); its AR(1) prewhitening runs
