@@ -189,6 +189,7 @@ class ImageProblem:
         self._geo = None
         self._layout_key = None
         self._layout = None
+        self._row_parts = None
         self._flight: FlightModel3D | None = None
         self.n_evaluations = 0
 
@@ -246,10 +247,14 @@ class ImageProblem:
 
     def observation_times(self, theta) -> list[np.ndarray]:
         """Per view, the time each observation was seen (frame, offset, row delay). [s]"""
-        out = []
-        for v, off in zip(self.views, self.offsets(theta)):
-            out.append(v.camera.row_time(v.frame_times + off, v.v))
-        return out
+        # Camera.row_time's arithmetic, t + (v / rows) readout with t = frame time + offset,
+        # its offset-free parts computed once
+        if self._row_parts is None:
+            self._row_parts = [
+                (v.frame_times, (np.asarray(v.v, float) / v.camera.rows) * v.camera.readout_time)
+                for v in self.views
+            ]
+        return [ft + off + dv for (ft, dv), off in zip(self._row_parts, self.offsets(theta))]
 
     def flight_model(self, times) -> FlightModel3D:
         """The problem's flight at sorted ``times`` [s] (at or after ``t_ref``)."""
