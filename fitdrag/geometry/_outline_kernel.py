@@ -11,9 +11,9 @@ same order, compiled without ``fastmath``, so the results agree with it to round
 pose product may differ in the last bit from a BLAS product).
 
 Lens parameters arrive as one flat array (a :class:`~fitdrag.geometry.camera.Camera`'s
-``_lens``, built with it): ``fx, fy, cx, cy``, the 12
-distortion coefficients in OpenCV's order ``k1, k2, p1, p2, k3, k4, k5, k6, s1, s2, s3,
-s4``, the rotation ``R`` row by row and the translation ``t``.
+``_lens``, built with it): ``fx, fy, cx, cy``, the 12 distortion coefficients in OpenCV's
+order ``k1, k2, p1, p2, k3, k4, k5, k6, s1, s2, s3, s4`` (zero where not given, as in
+OpenCV), the rotation ``R`` row by row and the translation ``t``.
 
 numba compiles the kernel on first use (not at import) and keeps it in its on-disk cache.
 
@@ -153,9 +153,11 @@ def compiled_outline():
 
 
 def outline(lens, radius, points, mode):
-    """(ok, pixels (n, 2), d pixels/d point (n, 2, 3), depth (n,), diameter (n,), d diameter
-    / d point (n, 3)); arrays not asked for by ``mode`` are left unset (or NaN-free garbage
-    of ``np.empty``); ``ok`` False when a point is not finite."""
+    """(ok, pixels (n, 2) [px], d pixels/d point (n, 2, 3) [px/m], depth (n,) [m], depth
+    diameter (n,) [px], d diameter/d point (n, 3) [px/m]) of sphere centres ``points``
+    (n, 3) [m] of radius ``radius`` [m]; the Jacobian arrays have no rows, and the pixels
+    or diameters are left unset, where ``mode`` does not ask for them; ``ok`` is False
+    (nothing computed) when a point is not finite."""
     pw = np.ascontiguousarray(points, dtype=float)
     n = pw.shape[0]
     pix = np.empty((n, 2))
