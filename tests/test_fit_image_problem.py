@@ -30,6 +30,23 @@ def _problem(phi=0.0, diameter=False):
     return p, theta
 
 
+#: Central-difference steps of the diameter problem's parameters (launch 2, state 6, Cd,
+#: diameter measure and scale).
+_DIAMETER_STEPS = [1e-6, 1e-6, 1e-7, 1e-7, 1e-7, 1e-6, 1e-6, 1e-6, 1e-8, 1e-6, 1e-6]
+
+
+def _columns_match_central_differences(p, theta, jac):
+    """Each Jacobian column against central differences of the residuals, to 1e-5 of the
+    column's scale."""
+    for j, h in enumerate(_DIAMETER_STEPS):
+        e = np.zeros_like(theta)
+        e[j] = h
+        fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
+        scale = np.abs(jac[:, j]).max()
+        assert scale > 0
+        np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * scale, err_msg=p.parameter_names()[j])
+
+
 @pytest.mark.parametrize("phi", [0.0, 0.6])
 def test_jacobian_matches_finite_differences_of_the_residuals(phi):
     """closed-form/independent: the analytic Jacobian (outline centre and width derivatives
@@ -80,14 +97,7 @@ def test_jacobian_of_the_diameter_measure_and_scale():
     assert p.measures(theta) == [0.6, 0.3] and p.scales(theta) == [1.02, 0.98]
     _r, jac, _s, ok = p.evaluate(theta)
     assert ok and jac.shape == (p.n_resid, 2 + 6 + 1 + 2)
-    steps = [1e-6, 1e-6, 1e-7, 1e-7, 1e-7, 1e-6, 1e-6, 1e-6, 1e-8, 1e-6, 1e-6]
-    for j, h in enumerate(steps):
-        e = np.zeros_like(theta)
-        e[j] = h
-        fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
-        scale = np.abs(jac[:, j]).max()
-        assert scale > 0
-        np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * scale, err_msg=p.parameter_names()[j])
+    _columns_match_central_differences(p, theta, jac)
     # the new columns touch only the diameter rows of their own view
     diameter_rows = [ch.rows for ch in p.channels if ch.kind == 2]
     lam_col, scale_col = jac[:, -2], jac[:, -1]
@@ -174,11 +184,4 @@ def test_missing_diameters_with_measure_and_scale_fitted():
     assert p.n_resid == p_full.n_resid - 9
     _r, jac, _s, ok = p.evaluate(theta)
     assert ok and jac.shape == (p.n_resid, 2 + 6 + 1 + 2)
-    steps = [1e-6, 1e-6, 1e-7, 1e-7, 1e-7, 1e-6, 1e-6, 1e-6, 1e-8, 1e-6, 1e-6]
-    for j, h in enumerate(steps):
-        e = np.zeros_like(theta)
-        e[j] = h
-        fd = (p.evaluate(theta + e)[0] - p.evaluate(theta - e)[0]) / (2 * h)
-        scale = np.abs(jac[:, j]).max()
-        assert scale > 0
-        np.testing.assert_allclose(fd, jac[:, j], atol=1e-5 * scale, err_msg=p.parameter_names()[j])
+    _columns_match_central_differences(p, theta, jac)

@@ -44,3 +44,18 @@ def test_page_break_unless_room():
     lay.page_break(unless_room=5.0)  # 3.79 in left: new page
     _blocks(lay, 1.0)
     assert [len(p) for p in lay.paginate()] == [1, 1]
+
+
+def test_wrapping_keeps_signs_with_their_numbers():
+    """regression: wrapped at every possible width, no line ends in a comparison or
+    plus-minus sign or starts with a lone unit sign: "> 99.9 %" and "± 0.0070" stay whole
+    (common practice in typesetting, no source)."""
+    from fitdrag.report.layout import _wrap
+
+    text = ("Decision: PASS (decision rule: guarded acceptance; probability of conformity "
+            "> 99.9 %) with Cd = 0.4897 ± 0.0070 at 27.45° elevation")  # fmt: skip
+    for width in [x / 10 for x in range(15, 80)]:
+        lines = _wrap(text, 10.0, width)
+        assert " ".join(lines).replace("\u00a0", " ") == text
+        for ln in lines:
+            assert not ln.rstrip().endswith((">", "±")) and not ln.startswith(("%", "°"))

@@ -9,6 +9,7 @@ them to matplotlib figure coordinates.  Nothing here knows what a certificate sa
 
 from __future__ import annotations
 
+import re
 import textwrap
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
@@ -30,8 +31,10 @@ def _wrap(text: str, size: float, width_in: float, bold: bool = False) -> list[s
     em = _CHAR_EM * (1.12 if bold else 1.0)
     chars = max(10, int(width_in / (size * _PT * em)))
     out: list[str] = []
-    # a number and its unit sign stay on one line ("95.45 %)" never wraps a lone "%)")
+    # a number and its unit sign stay on one line ("95.45 %)" never wraps a lone "%)"), and
+    # a comparison or plus-minus sign with the number after it ("> 99.9 %", "± 0.0070")
     text = str(text).replace(" %", "\u00a0%").replace(" °", "\u00a0°")
+    text = re.sub(r"([<>≤≥±]) (?=[0-9])", "\\1\u00a0", text)
     for para in text.split("\n"):
         out.extend(textwrap.wrap(para, chars, break_long_words=True) or [""])
     return out
