@@ -18,6 +18,7 @@ from fitdrag.fit.noise import (
     frame_gaps,
     lag1,
     ljung_box,
+    median,
     noise_floor,
     prais_winsten,
     reml_ar1,
@@ -205,3 +206,14 @@ def test_reml_ar1_from_a_nearby_start_finds_the_same_coefficients():
     for start in ((ref_phi[0] + 0.03, ref_phi[1] - 0.02), (ref_phi[0] - 0.15, ref_phi[1] + 0.15)):
         got = reml_ar1(r0, j0, blocks, start)
         np.testing.assert_allclose(got, ref_phi, atol=5e-4)
+
+
+@pytest.mark.parametrize("n", [1, 2, 3, 10, 401, 1000])
+def test_median_equals_numpy_median(n):
+    """independent (numpy.median, the reference library): the same number, odd and even
+    sizes, with repeated values."""
+    rng = np.random.default_rng(n)
+    a = np.round(rng.normal(0.0, 1.0, n), 1)
+    before = a.copy()
+    assert median(a) == float(np.median(a))
+    np.testing.assert_array_equal(a, before)  # the input is not reordered

@@ -103,6 +103,22 @@ def test_initial_launch_exact_for_a_drag_free_parabola():
     np.testing.assert_allclose(initial_launch(tr, g), [0.3, 1.2, 6.0, 4.0], atol=1e-9)
 
 
+@pytest.mark.parametrize("n", [8, 120, 2000])
+def test_initial_launch_equals_numpy_polyfit(n):
+    """independent (numpy.polyfit, the reference library): the launch guess is the constant
+    and linear coefficient of the quadratic least-squares fit to the first max(8, n/5)
+    samples, the same numbers as numpy.polyfit's."""
+    rng = np.random.default_rng(n)
+    t = 0.25 + np.arange(n) / 500.0
+    tr = Track(
+        t, 2.0 * t + rng.normal(0.0, 1e-3, n), 1.0 + t - 4.9 * t**2 + rng.normal(0.0, 1e-3, n)
+    )
+    m = min(n, max(8, n // 5))
+    cx = np.polyfit(t[:m] - t[0], tr.x[:m], 2)
+    cy = np.polyfit(t[:m] - t[0], tr.y[:m], 2)
+    np.testing.assert_array_equal(initial_launch(tr, 9.81), [cx[2], cy[2], cx[1], cy[1]])
+
+
 @pytest.mark.parametrize("n_throws", [2])
 def test_parameter_layout_of_several_throws(n_throws):
     """regression: shared parameters first, then 4 launch-state columns per throw; each

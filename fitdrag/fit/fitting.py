@@ -71,7 +71,15 @@ from collections.abc import Sequence
 import numpy as np
 
 from fitdrag.errors import InputError
-from fitdrag.fit.noise import durbin_watson, lag1, ljung_box, noise_floor, robust_sigma, sign_runs
+from fitdrag.fit.noise import (
+    durbin_watson,
+    lag1,
+    ljung_box,
+    median,
+    noise_floor,
+    robust_sigma,
+    sign_runs,
+)
 from fitdrag.fit.problem import Problem, as_tracks, initial_launch
 from fitdrag.fit.results import (
     COVERAGE_PROBABILITY,
@@ -355,7 +363,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
 
     phi = (0.0, 0.0)
     noise_model = "white"
-    previous = np.array([[np.median(sg[:, 0]), np.median(sg[:, 1])] for sg in problem.sigmas])
+    previous = np.array([[median(sg[:, 0]), median(sg[:, 1])] for sg in problem.sigmas])
     for _it in range(4):
         th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
         if not ok:
@@ -486,8 +494,8 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
         q = np.hypot(vel[:, 0] - conditions.wind, vel[:, 1])
         re = air.density * q * specimen.length / air.viscosity
         re_all.append(re)
-        sx = float(np.median(problem.sigmas[i][:, 0]))
-        sy = float(np.median(problem.sigmas[i][:, 1]))
+        sx = median(problem.sigmas[i][:, 0])
+        sy = median(problem.sigmas[i][:, 1])
         throws.append(
             ThrowResult(
                 source=str(tr.meta.get("source", f"track {i + 1}")),
@@ -511,7 +519,7 @@ def _assemble(tracks, specimen, conditions, dm, constants, lift, theta, cov, dof
             )
         )
     re_cat = np.concatenate(re_all)
-    re_med = float(np.median(re_cat))
+    re_med = median(re_cat)
     # refuse a flight outside the drag law's validity (e.g. the drag crisis of a sphere)
     dm.check_re_range(float(re_cat.min()), float(re_cat.max()))
     # Cd at the median Re and its uncertainty (gradient through the drag law)

@@ -275,7 +275,18 @@ def robust_sigma(r: np.ndarray) -> float:
     r = r[np.isfinite(r)]
     if r.size == 0:
         return float("nan")
-    return MAD * float(np.median(np.abs(r - np.median(r))))
+    return MAD * median(np.abs(r - median(r)))
+
+
+def median(a: np.ndarray) -> float:
+    """Median of a non-empty 1-D array without NaN: numpy.median's numbers (the middle
+    element, or the mean of the two middle ones), by one partial sort without its checks."""
+    n = a.size
+    k = n // 2
+    if n % 2:
+        return float(np.partition(a, k)[k])
+    part = np.partition(a, (k - 1, k))
+    return float((part[k - 1] + part[k]) / 2.0)
 
 
 def noise_floor(x, y) -> tuple[float, float]:
@@ -293,7 +304,7 @@ def noise_floor(x, y) -> tuple[float, float]:
     res = []
     for pos in (x, y):
         d2 = pos[2:] - 2.0 * pos[1:-1] + pos[:-2]
-        s = robust_sigma(d2 - np.median(d2)) / math.sqrt(6.0)
+        s = robust_sigma(d2 - median(d2)) / math.sqrt(6.0) if d2.size else float("nan")
         span = float(np.ptp(pos)) or 1.0
         res.append(max(s, 1e-9 * span, 1e-12))
     return res[0], res[1]

@@ -12,7 +12,8 @@ from __future__ import annotations
 import numpy as np
 
 from fitdrag.errors import InputError
-from fitdrag.fit.noise import frame_gaps, prais_winsten, reml_ar1
+from fitdrag.fit._track_fill import NO_JAC, NO_SENS, compiled_fill
+from fitdrag.fit.noise import frame_gaps, reml_ar1
 from fitdrag.physics.simulate import FlightModel
 from fitdrag.tracks.track import Track
 
@@ -56,11 +57,14 @@ def initial_launch(track, g: float) -> np.ndarray:
     n = len(track)
     m = min(n, max(8, n // 5))
     tau = track.t[:m] - track.t[0]
-    out = []
-    for pos in (track.x[:m], track.y[:m]):
-        c = np.polyfit(tau, pos, 2)
-        out.append((c[2], c[1]))
-    return np.array([out[0][0], out[1][0], out[0][1], out[1][1]], dtype=float)
+    # least squares on the column-scaled Vandermonde matrix [tau², tau, 1] per axis: the
+    # computation of numpy.polyfit (the same numbers), without its per-call checks
+    lhs = np.vander(tau, 3)
+    scale = np.sqrt((lhs * lhs).sum(axis=0))
+    lhs = lhs / scale
+    rcond = m * np.finfo(float).eps
+    cx, cy = (np.linalg.lstsq(lhs, pos[:m], rcond=rcond)[0] / scale for pos in (track.x, track.y))
+    return np.array([cx[2], cy[2], cx[1], cy[1]], dtype=float)
 
 
 class Problem:
@@ -112,33 +116,36 @@ class Problem:
         self.masks = [np.ones(len(tr), bool) for tr in tracks]
         self.sigmas = [np.ones((len(tr), 2)) for tr in tracks]
         self.phi = (0.0, 0.0)
-        self._refresh_layout()
-        self._cache_theta = None
+        self._cache_key = None
         self._cache = None
         # the last flights with sensitivities, kept across changes of weights, masks and
-        # noise model (they depend on theta alone)
-        self._sims_theta = None
+        # noise model (they depend on theta alone); the caches are keyed by theta's bytes
+        self._sims_key = None
         self._sims = None
+        self._refresh_layout()
         self.n_evaluations = 0
 
     def _refresh_layout(self):
-        self.index = []
-        self.gaps = []
-        for tr, mask in zip(self.tracks, self.masks):
-            idx = np.flatnonzero(mask)
-            self.index.append(idx)
-            self.gaps.append(frame_gaps(tr.t, idx))
+        masks_key = tuple(m.tobytes() for m in self.masks)
+        if masks_key != getattr(self, "_masks_key", None):
+            self.index = []
+            self.gaps = []
+            for tr, mask in zip(self.tracks, self.masks):
+                idx = np.flatnonzero(mask)
+                self.index.append(idx)
+                self.gaps.append(frame_gaps(tr.t, idx))
+            self._masks_key = masks_key
         self.n_resid = 2 * sum(i.size for i in self.index)
-        # per throw: the kept samples (a slice when all are kept), and per axis the kept
-        # observations and inverse sigmas, so that evaluate() does no repeated indexing
+        # per throw: the kept samples' rows, count and first launch column, and per axis the
+        # kept observations and inverse sigmas, so that evaluate() does no repeated indexing
         self._pre = []
         for i, (tr, idx) in enumerate(zip(self.tracks, self.index)):
             sel = slice(None) if idx.size == len(tr) else idx
             axes = []
             for axis, obs in ((0, tr.x), (1, tr.y)):
                 axes.append((np.ascontiguousarray(obs[sel]), 1.0 / self.sigmas[i][sel, axis]))
-            self._pre.append((sel, idx.size, self.n_shared + 4 * i, axes))
-        self._cache_theta = None
+            self._pre.append((idx, idx.size, self.n_shared + 4 * i, axes))
+        self._cache_key = None
 
     def set_state(self, masks=None, sigmas=None, phi=None):
         """Change the kept samples, the noise levels [m] or the AR(1) coefficients [-]."""
@@ -166,67 +173,64 @@ class Problem:
     def cached_flights(self, theta):
         """The flights at ``theta`` without sensitivities, reusing the last evaluation."""
         theta = np.asarray(theta, float)
-        if self._sims_theta is not None and np.array_equal(theta, self._sims_theta):
+        if theta.tobytes() == self._sims_key:
             return self._sims  # the last evaluation: the same flight, already computed
         return self.simulate_all(theta, False)
 
-    def _flights(self, theta):
+    def _flights(self, theta, key):
         """The flights with sensitivities at ``theta``, integrated only when ``theta`` is new
         (a change of weights, kept samples or noise model needs no new integration)."""
-        if self._sims_theta is not None and np.array_equal(theta, self._sims_theta):
+        if key == self._sims_key:
             return self._sims
         sims = self.simulate_all(theta, True)
         self.n_evaluations += 1
-        self._sims_theta = theta.copy()
+        self._sims_key = key
         self._sims = sims
         return sims
 
     def evaluate(self, theta):
-        """(residuals, Jacobian, flights, ok) at ``theta``; cached for a repeated ``theta``."""
+        """(residuals, Jacobian, flights, ok) at ``theta``; cached for a repeated ``theta``.
+
+        The rows are filled by one compiled loop per throw (:mod:`fitdrag.fit._track_fill`)
+        into arrays allocated afresh: the solvers keep the accepted point's residuals and
+        Jacobian while they try a step, so a recycled buffer would overwrite them.
+        """
         theta = np.asarray(theta, float)
-        if self._cache_theta is not None and np.array_equal(theta, self._cache_theta):
+        key = theta.tobytes()
+        if key == self._cache_key:
             return self._cache
-        sims = self._flights(theta)
+        sims = self._flights(theta, key)
         res = np.empty(self.n_resid)
         jac = np.zeros((self.n_resid, self.n_params))
+        fill = compiled_fill()
         row = 0
         ok = True
-        ns = self.n_shared
-        for i, (sel, m, base, axes) in enumerate(self._pre):
+        phi_x, phi_y = self.phi
+        for i, (idx, m, base, ((ox, ix), (oy, iy))) in enumerate(self._pre):
             status, pos, _vel, sj = sims[i]
-            if status != 0 or not np.all(np.isfinite(pos)):
+            rows = slice(row, row + 2 * m)
+            if status != 0 or not fill(ox, oy, ix, iy, pos, sj, idx, phi_x, phi_y,
+                                       self.gaps[i], base, True, res[rows], jac[rows]):  # fmt: skip
                 ok = False
-                res[row : row + 2 * m] = FAIL_RESIDUAL
-                row += 2 * m
-                continue
-            for axis, (obs, inv_s) in enumerate(axes):
-                r = (obs - pos[sel, axis]) * inv_s
-                j = sj[sel, axis, :] * (-inv_s)[:, None]
-                f = self.phi[axis]
-                if f != 0.0:
-                    r = prais_winsten(r, self.gaps[i], f)
-                    j = prais_winsten(j, self.gaps[i], f)
-                res[row : row + m] = r
-                # columns: the throw's launch state, then the shared parameters
-                jac[row : row + m, base : base + 4] = j[:, :4]
-                jac[row : row + m, :ns] = j[:, 4:]
-                row += m
-        self._cache_theta = theta.copy()
+                res[rows] = FAIL_RESIDUAL
+            row += 2 * m
+        self._cache_key = key
         self._cache = (res, jac, sims, ok)
         return self._cache
 
     def forget(self) -> None:
         """Drop the cached evaluation and flights (after changing the flight models)."""
-        self._cache_theta = None
-        self._sims_theta = None
+        self._cache_key = None
+        self._sims_key = None
 
     def set_observations(self, i: int, x, y) -> None:
         """Replace throw ``i``'s observed positions [m] (same samples; weights, kept samples
         and noise model unchanged), without rebuilding the problem."""
-        sel, m, base, axes = self._pre[i]
-        self._pre[i] = (sel, m, base, [(np.ascontiguousarray(np.asarray(obs, float)[sel]), inv)
+        idx, m, base, axes = self._pre[i]
+        sel = slice(None) if m == len(self.tracks[i]) else idx
+        self._pre[i] = (idx, m, base, [(np.ascontiguousarray(np.asarray(obs, float)[sel]), inv)
                                        for obs, (_old, inv) in zip((x, y), axes)])  # fmt: skip
-        self._cache_theta = None
+        self._cache_key = None
 
     def residuals(self, theta) -> tuple[np.ndarray, bool]:
         """(weighted, whitened residuals, ok) at ``theta`` from flights integrated without
@@ -234,22 +238,19 @@ class Problem:
         Jacobian."""
         theta = np.asarray(theta, float)
         res = np.empty(self.n_resid)
+        fill = compiled_fill()
         row = 0
-        ok = True
-        for i, (sel, m, _base, axes) in enumerate(self._pre):
+        phi_x, phi_y = self.phi
+        for i, (idx, m, base, ((ox, ix), (oy, iy))) in enumerate(self._pre):
             status, pos, _vel, _j, _steps = self.models[i].run(
                 self.throw_theta(theta, i), False, self.fixed_lift
             )
-            if status != 0 or not np.all(np.isfinite(pos)):
+            if status != 0 or not fill(ox, oy, ix, iy, pos, NO_SENS, idx, phi_x, phi_y,
+                                       self.gaps[i], base, False, res[row : row + 2 * m],
+                                       NO_JAC):  # fmt: skip
                 return res, False
-            for axis, (obs, inv_s) in enumerate(axes):
-                r = (obs - pos[sel, axis]) * inv_s
-                f = self.phi[axis]
-                if f != 0.0:
-                    r = prais_winsten(r, self.gaps[i], f)
-                res[row : row + m] = r
-                row += m
-        return res, ok
+            row += 2 * m
+        return res, True
 
     def axis_blocks(self) -> list[tuple[slice, int, np.ndarray]]:
         """Per throw and axis: (rows of the residual vector, axis, frame gaps)."""
