@@ -363,6 +363,11 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
 
     phi = (0.0, 0.0)
     noise_model = "white"
+    # noise levels first re-estimated at the robust optimum on the kept points (close to the
+    # plain one), so that the loop below usually settles after one re-solve
+    sig = estimate_sigmas(theta) if success else None
+    if sig is not None:
+        set_sigmas(sig)
     previous = np.array([[median(sg[:, 0]), median(sg[:, 1])] for sg in problem.sigmas])
     for _it in range(4):
         th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
@@ -402,6 +407,10 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
         noise_model = "ar1"
         for _it in range(8):
             new_phi = problem.reml_ar1(theta)
+            if _it > 0 and max(abs(new_phi[0] - phi[0]), abs(new_phi[1] - phi[1])) < 1e-3:
+                # the coefficients have settled: theta was fitted under ones within 1e-3 of
+                # the estimate at theta (no re-solve for a change that small)
+                break
             problem.set_state(phi=new_phi)
             th, ok, msg, _ = polish(problem, theta, bounds, max_nfev)
             if not ok:
@@ -412,9 +421,6 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
             sig = estimate_sigmas(theta)
             if sig is not None:
                 set_sigmas(sig)
-            if max(abs(new_phi[0] - phi[0]), abs(new_phi[1] - phi[1])) < 1e-3:
-                phi = new_phi
-                break
             phi = new_phi
         phi = problem.phi
 
