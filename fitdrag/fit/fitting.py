@@ -275,7 +275,7 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
                 th0[0] = cd_try
         # a quick Gaussian pass brings the drag-free guess close; the robust loss then
         # discounts gross outliers from there
-        th, ok = levenberg_marquardt(problem, th0, bounds, max_iter=max(max_nfev // 4, 1))
+        th, ok = levenberg_marquardt(problem, th0, bounds, max_iter=max(max_nfev // 4, 1), tol=1e-4)
         msg = "converged" if ok else "the first Gaussian pass did not converge"
         if not ok:
             th, ok, msg, _ = trust_region(problem, th0, bounds, max_nfev=max(max_nfev // 4, 1),
