@@ -95,9 +95,8 @@ class DragModel:
         f = self.callback_function
         if f is None:
             return
-        if not isinstance(f, FunctionType) or f.__closure__ is not None or "<locals>" in (
-            f.__qualname__
-        ):
+        nested = isinstance(f, FunctionType) and "<locals>" in f.__qualname__
+        if not isinstance(f, FunctionType) or f.__closure__ is not None or nested:
             raise InputError(
                 f"drag model {self.name!r}: callback_function must be a plain function defined "
                 f"at the top of a module (not decorated, not nested, no closure) so that "
