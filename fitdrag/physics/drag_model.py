@@ -132,8 +132,9 @@ class DragModel:
 
     @functools.cached_property
     def callback(self):
-        """The kernel wrapped as a C callback of fixed signature for the integrator: from
-        numba's disk cache when the law has a ``callback_function``, else compiled now."""
+        """The kernel wrapped as a C callback of fixed signature for the integrator, built on
+        first use in a process: from ``callback_function`` through numba's disk cache (loaded,
+        or compiled once and saved) when the law has one, else compiled from a closure."""
         if self.callback_function is not None:
             return numba.cfunc(CD_SIGNATURE, cache=True)(self.callback_function)
         return _as_callback(self.kernel)
