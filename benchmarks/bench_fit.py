@@ -19,13 +19,16 @@ prewhitens; the baseline fits as it would any track).  It prints the median seco
 of each, their ratio, and the Cd difference in units of fitdrag's standard uncertainty;
 then the cost of one evaluation of the fit's problem (residuals and Jacobian, and residuals
 only) against the floor of one call of the compiled integrator; then the first fit in a
-fresh process (import, numba's disk cache, the first call).  Targets (issue 15): ≥ 10× the
+fresh process with numba's disk cache warm (median over ``--cold-runs`` processes; the
+number of functions numba compiled in it, from numba's compiler-pass events; and the same
+first fit taken apart: importing the fit path, numba's own start-up, the cache loads, the
+rest), and in a process with an empty cache (a fresh install).  Targets (issue 15): ≥ 10× the
 baseline on white noise (aim 50×) and ≥ 5× on AR(1) tracks, |ΔCd| ≤ 0.25 u on white noise.
 Timings are wall-clock on whatever machine runs this; nothing is asserted.
 
 Usage::
 
-    python benchmarks/bench_fit.py [--repeats 5] [--blas-threads N]
+    python benchmarks/bench_fit.py [--repeats 5] [--blas-threads N] [--cold-runs 5]
 """
 
 from __future__ import annotations
@@ -43,6 +46,8 @@ def _args():
     p.add_argument("--repeats", type=int, default=5, help="timed fits per track and method")
     p.add_argument("--seed", type=int, default=20240601, help="noise seed")
     p.add_argument("--rtol", type=float, default=1e-9, help="reference solve_ivp rtol")
+    p.add_argument("--cold-runs", type=int, default=5,
+                   help="fresh processes timed for the first fit (median)")  # fmt: skip
     p.add_argument("--blas-threads", type=int, default=None,
                    help="set OPENBLAS/OMP/MKL thread counts before numpy loads")  # fmt: skip
     return p.parse_args()
@@ -179,7 +184,7 @@ def evaluation_costs(repeats: int = 2000):
 
 
 _COLD = """
-import time
+import sys, time
 t0 = time.perf_counter()
 import numpy as np
 import fitdrag
@@ -190,20 +195,67 @@ y = 1.0 + 4.0 * t - 5.5 * t**2
 noise = np.random.default_rng(1).normal(0.0, 5e-4, (2, 400))
 track = fitdrag.Track(t, x + noise[0], y + noise[1])
 t2 = time.perf_counter()
+from numba.core import event  # imports numba
+
+compiled = set()
+
+
+class _Passes(event.Listener):  # numba broadcasts each compiler pass, never a cache load
+    def on_start(self, ev):
+        compiled.add(ev.data["qualname"])
+
+    def on_end(self, ev):
+        pass
+
+
+event.register("numba:run_pass", _Passes())
+parts = []
+if sys.argv[1] == "parts":  # the first fit's start-up taken apart, step by step
+    parts.append(time.perf_counter())
+    import fitdrag.fit.fitting  # fitdrag's fit and physics modules
+    parts.append(time.perf_counter())
+    from numba.core.registry import cpu_target
+    cpu_target.target_context.refresh()  # numba's own start-up, as its first cache load does
+    parts.append(time.perf_counter())
+    from fitdrag.physics.registry import get_drag_model
+    from fitdrag.physics.simulate import _compiled_integrator
+    _compiled_integrator(), get_drag_model("constant").callback  # numba's disk cache
+    parts.append(time.perf_counter())
 fitdrag.fit_tracks(track, fitdrag.Sphere(0.0027, 0.040), fitdrag.Air(1.2))
 t3 = time.perf_counter()
+n_compiled = len(compiled)
 fitdrag.fit_tracks(track, fitdrag.Sphere(0.0027, 0.040), fitdrag.Air(1.2))
 t4 = time.perf_counter()
-print(t1 - t0, t3 - t2, t4 - t3)
+steps = np.diff([t2, *parts, t3]).tolist()
+print(t1 - t0, t3 - t2, t4 - t3, n_compiled, *steps)
 """
 
 
-def cold_first_fit() -> tuple[float, float, float]:
-    """(import s, first fit s, second fit s) in a fresh Python process."""
-    out = subprocess.run([sys.executable, "-c", _COLD], capture_output=True, text=True,
-                         check=True)  # fmt: skip
-    a, b, c = (float(v) for v in out.stdout.split()[-3:])
-    return a, b, c
+def _fresh_process(mode: str, env=None) -> list[float]:
+    out = subprocess.run([sys.executable, "-c", _COLD, mode], capture_output=True, text=True,
+                         check=True, env=env)  # fmt: skip
+    return [float(v) for v in out.stdout.split()]
+
+
+def cold_first_fit(runs: int) -> dict[str, float]:
+    """The first fit in fresh Python processes: medians over ``runs`` processes with numba's
+    disk cache warm (whole, and taken apart in other processes), and one process with an
+    empty cache (NUMBA_CACHE_DIR set to a new temporary folder: a fresh install)."""
+    import tempfile
+
+    whole = np.array([_fresh_process("whole") for _ in range(runs)])
+    parts = np.array([_fresh_process("parts") for _ in range(runs)])
+    with tempfile.TemporaryDirectory() as cache:
+        empty = _fresh_process("whole", {**os.environ, "NUMBA_CACHE_DIR": cache})
+    med, med_parts = np.median(whole, axis=0), np.median(parts, axis=0)
+    return {
+        "import": med[0], "first": med[1], "second": med[2], "compiled": whole[:, 3].max(),
+        "firsts": whole[:, 1], "numba_import": med_parts[4], "fit_import": med_parts[5],
+        "numba_start": med_parts[6], "cache_loads": med_parts[7], "rest": med_parts[8],
+        "parts_first": med_parts[1],
+        "empty_first": empty[1],
+        "empty_compiled": empty[3],
+    }  # fmt: skip
 
 
 def main(args) -> None:
@@ -270,10 +322,23 @@ def main(args) -> None:
     for label, us in costs.items():
         base = floor_r if "only" in label else floor_j
         print(f"  {label:50s} {us:8.1f} µs   {us / base:5.2f}x its floor")
-    imp, first, second = cold_first_fit()
+    c = cold_first_fit(args.cold_runs)
     print()
-    print(f"fresh process: import fitdrag {imp:.2f} s; first fit {first:.3f} s (numba's disk "
-          f"cache loaded on first use); second fit {second:.4f} s")  # fmt: skip
+    print(f"fresh process, numba's disk cache warm (median of {args.cold_runs} processes): "
+          f"import numpy and fitdrag {c['import']:.2f} s; first fit {c['first']:.2f} s (each: "
+          f"{', '.join(f'{v:.2f}' for v in c['firsts'])}); second fit {c['second']:.4f} s; "
+          f"functions numba compiled in the first fit: {c['compiled']:.0f}")  # fmt: skip
+    print(f"  the first fit taken apart (medians, other processes): importing numba "
+          f"{c['numba_import']:.2f} s; fitdrag's fit and physics modules {c['fit_import']:.2f} "
+          f"s; numba's own start-up (its target's first initialisation, which imports "
+          f"scipy.linalg) "
+          f"{c['numba_start']:.2f} s; loading fitdrag's integrator and drag-law callback from "
+          f"the cache {c['cache_loads']:.3f} s; the rest of the fit (with the imports on its "
+          f"way, e.g. scipy.optimize) {c['rest']:.2f} s; that first fit {c['parts_first']:.2f} "
+          f"s")  # fmt: skip
+    print(f"fresh install (NUMBA_CACHE_DIR: a new empty folder): first fit "
+          f"{c['empty_first']:.1f} s, compiling {c['empty_compiled']:.0f} functions (numba "
+          f"then keeps them; later processes load them)")  # fmt: skip
 
 
 if __name__ == "__main__":

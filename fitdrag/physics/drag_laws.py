@@ -85,12 +85,20 @@ def _cd_constant(re, p, grad):
     return p[0], 0.0
 
 
+def _cd_constant_callback(re, p, grad, dcd_dre):
+    # compiled as the law's C callback with numba's disk cache (DragModel.callback_function)
+    cd, d = _cd_constant(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 CONSTANT = DragModel(
     name="constant",
     parameters=("cd",),
     initial=(0.5,),
     bounds=((0.0, 50.0),),
     kernel=_cd_constant,
+    callback_function=_cd_constant_callback,
     reference="quadratic drag with a constant coefficient, F = ½ ρ C_d A |u|² "
     "(Munson et al., Fundamentals of Fluid Mechanics, Wiley)",
     description="constant drag coefficient",
@@ -109,6 +117,7 @@ def _sphere_models() -> dict[str, DragModel]:
             initial=(1.0,),
             bounds=((0.0, 50.0),),
             kernel=c.kernel,
+            callback_function=c.callback_function,
             re_range=c.model_range,
             reference=f"C_d = s · C_sphere(Re), C_sphere after {c.reference}.",
             description=f"smooth-sphere drag curve ({c.name}) times a fitted scale",
@@ -154,6 +163,13 @@ def _power_law(re, p, grad):
     return cd, p[1] * cd / r
 
 
+def _power_law_callback(re, p, grad, dcd_dre):
+    # compiled as the law's C callback with numba's disk cache (DragModel.callback_function)
+    cd, d = _power_law(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 def power_law_reference_re(re_values) -> tuple[float]:
     """The power law's reference Reynolds number: the median Re of the flight.
 
@@ -184,6 +200,7 @@ POWER_LAW = DragModel(
     initial=(0.5, 0.0),
     bounds=((0.0, 50.0), (-3.0, 3.0)),
     kernel=_power_law,
+    callback_function=_power_law_callback,
     constants=("re_ref",),
     reference=(
         "Empirical local power law C_d = C_ref (Re/Re_ref)^n; n = -1 is Stokes drag "

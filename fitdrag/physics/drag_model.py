@@ -6,6 +6,14 @@ fixed signature (:data:`CD_SIGNATURE`), so that the compiled integrator is cache
 every law.  The laws themselves are in :mod:`fitdrag.physics.drag_laws`; the registry by
 name in :mod:`fitdrag.physics.registry`.
 
+The callback is compiled on first use in a process.  A law that gives
+``callback_function`` (a plain top-level function of :data:`CD_SIGNATURE` calling its kernel;
+every built-in law does) has it compiled with numba's disk cache, so that a later process
+loads it instead of compiling it again (about 0.1 s); without one, the callback is a closure
+over the kernel, compiled in every process: numba cannot cache a closure over a compiled
+function (the key it hashes holds the function's per-process identity, so each process
+would miss the cache and write a new copy).
+
 References
 ----------
 1. B. R. Munson et al., *Fundamentals of Fluid Mechanics*, Wiley: drag force
@@ -18,6 +26,7 @@ import functools
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from types import FunctionType
 
 import numba
 import numpy as np
@@ -62,6 +71,12 @@ class DragModel:
     constants_from_re : callable, optional
         ``f(re_values) -> constants``: how the fit sets the constants from the Reynolds
         numbers of a first-pass flight (e.g. the median Re as reference).
+    callback_function : function, optional
+        ``f(re, p, grad, dcd_dre) -> cd``: a plain (undecorated) function defined at the
+        top of a module, with no closure, that calls ``kernel`` and writes its dC_d/dRe into
+        ``dcd_dre[0]``.  When given, the C callback is compiled from it with numba's disk
+        cache (next to that module), so a fresh process loads it rather than compiling it.
+        Without it the callback is compiled in each process.
     """
 
     name: str
@@ -74,6 +89,21 @@ class DragModel:
     reference: str = ""
     description: str = ""
     constants_from_re: Callable | None = field(default=None, repr=False)
+    callback_function: Callable | None = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        f = self.callback_function
+        if f is None:
+            return
+        nested = isinstance(f, FunctionType) and "<locals>" in f.__qualname__
+        if not isinstance(f, FunctionType) or f.__closure__ is not None or nested:
+            raise InputError(
+                f"drag model {self.name!r}: callback_function must be a plain function defined "
+                f"at the top of a module (not decorated, not nested, no closure) so that "
+                f"numba can cache its compiled callback on disk; got {f!r}. Define "
+                f"'def callback(re, p, grad, dcd_dre)' next to the kernel, or leave "
+                f"callback_function out."
+            )
 
     def constants_for(self, re_values) -> tuple[float, ...]:
         """Constants for a flight whose Reynolds numbers are ``re_values`` (e.g. a median Re)."""
@@ -102,7 +132,11 @@ class DragModel:
 
     @functools.cached_property
     def callback(self):
-        """The kernel wrapped as a C callback of fixed signature for the integrator."""
+        """The kernel wrapped as a C callback of fixed signature for the integrator, built on
+        first use in a process: from ``callback_function`` through numba's disk cache (loaded,
+        or compiled once and saved) when the law has one, else compiled from a closure."""
+        if self.callback_function is not None:
+            return numba.cfunc(CD_SIGNATURE, cache=True)(self.callback_function)
         return _as_callback(self.kernel)
 
     def check_re_range(self, re_min: float, re_max: float) -> None:
@@ -120,7 +154,9 @@ def _as_callback(kernel):
     """Wrap ``kernel(re, p, grad) -> (cd, dcd_dre)`` as a numba cfunc of fixed signature.
 
     Passing a fixed-signature callback (rather than the kernel's own dispatcher) lets the
-    compiled integrator be cached on disk once for all drag models.
+    compiled integrator be cached on disk once for all drag models.  This closure is compiled
+    in every process (not cached: see the module notes); laws with a ``callback_function``
+    do not use it.
     """
 
     @numba.cfunc(CD_SIGNATURE)

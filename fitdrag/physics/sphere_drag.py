@@ -223,7 +223,10 @@ def _barati(re):
 
 
 # ------------------------------------------------------- scaled-sphere kernels (one each)
-# kernel(re, p, grad) -> (cd, dcd_dre) with p = (scale,), grad[0] = ∂cd/∂scale.
+# kernel(re, p, grad) -> (cd, dcd_dre) with p = (scale,), grad[0] = ∂cd/∂scale; each
+# followed by its plain callback function (re, p, grad, dcd_dre) -> cd, which
+# fitdrag.physics.drag_model.DragModel compiles as the law's C callback with numba's disk
+# cache (top-level functions in this file, so that an edit here invalidates both).
 
 
 @numba.njit(cache=True)
@@ -233,11 +236,23 @@ def _scaled_morrison_2013(re, p, grad):
     return p[0] * c, p[0] * dc
 
 
+def _scaled_morrison_2013_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_morrison_2013(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 @numba.njit(cache=True)
 def _scaled_morrison_2010(re, p, grad):
     c, dc = _morrison_2010(max(re, _RE_FLOOR))
     grad[0] = c
     return p[0] * c, p[0] * dc
+
+
+def _scaled_morrison_2010_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_morrison_2010(re, p, grad)
+    dcd_dre[0] = d
+    return cd
 
 
 @numba.njit(cache=True)
@@ -247,11 +262,23 @@ def _scaled_clift_gauvin(re, p, grad):
     return p[0] * c, p[0] * dc
 
 
+def _scaled_clift_gauvin_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_clift_gauvin(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 @numba.njit(cache=True)
 def _scaled_clift_gauvin_barati(re, p, grad):
     c, dc = _clift_gauvin_barati(max(re, _RE_FLOOR))
     grad[0] = c
     return p[0] * c, p[0] * dc
+
+
+def _scaled_clift_gauvin_barati_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_clift_gauvin_barati(re, p, grad)
+    dcd_dre[0] = d
+    return cd
 
 
 @numba.njit(cache=True)
@@ -261,11 +288,23 @@ def _scaled_haider_levenspiel(re, p, grad):
     return p[0] * c, p[0] * dc
 
 
+def _scaled_haider_levenspiel_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_haider_levenspiel(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 @numba.njit(cache=True)
 def _scaled_khan_richardson(re, p, grad):
     c, dc = _khan_richardson(max(re, _RE_FLOOR))
     grad[0] = c
     return p[0] * c, p[0] * dc
+
+
+def _scaled_khan_richardson_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_khan_richardson(re, p, grad)
+    dcd_dre[0] = d
+    return cd
 
 
 @numba.njit(cache=True)
@@ -275,11 +314,23 @@ def _scaled_cheng(re, p, grad):
     return p[0] * c, p[0] * dc
 
 
+def _scaled_cheng_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_cheng(re, p, grad)
+    dcd_dre[0] = d
+    return cd
+
+
 @numba.njit(cache=True)
 def _scaled_barati(re, p, grad):
     c, dc = _barati(max(re, _RE_FLOOR))
     grad[0] = c
     return p[0] * c, p[0] * dc
+
+
+def _scaled_barati_callback(re, p, grad, dcd_dre):
+    cd, d = _scaled_barati(re, p, grad)
+    dcd_dre[0] = d
+    return cd
 
 
 # --------------------------------------------------------------------------- public faces
@@ -544,6 +595,10 @@ class SphereCorrelation:
         ``function(re) -> (C_sphere, dC_sphere/dRe)`` for re > 0.
     kernel : numba dispatcher
         The scaled drag-model kernel ``kernel(re, p, grad)``, p = (scale,).
+    callback_function : function
+        The plain function ``(re, p, grad, dcd_dre) -> cd`` calling ``kernel``, compiled as
+        the scaled model's C callback (see
+        :attr:`fitdrag.physics.drag_model.DragModel.callback_function`).
     fluids_method : str or None
         The ``Method`` name of ``fluids.drag.drag_sphere`` that evaluates the same formula
         (None when that library has none).
@@ -556,6 +611,7 @@ class SphereCorrelation:
     public: Callable = field(repr=False)
     function: Callable = field(repr=False)
     kernel: Callable = field(repr=False)
+    callback_function: Callable = field(repr=False)
     fluids_method: str | None = None
 
     @property
@@ -572,7 +628,7 @@ _CORRELATIONS = (
         "2013, eq. (8.83)",
         "24/Re + 2.6 (Re/5)/(1 + (Re/5)^1.52) + 0.411 (Re/263000)^-7.94/(1 + "
         "(Re/263000)^-8) + 0.25 (Re/1e6)/(1 + Re/1e6)",
-        morrison_2013, _morrison_2013, _scaled_morrison_2013, None,
+        morrison_2013, _morrison_2013, _scaled_morrison_2013, _scaled_morrison_2013_callback, None,
     ),
     SphereCorrelation(
         "morrison-2010", (0.0, 1.0e6),
@@ -580,7 +636,7 @@ _CORRELATIONS = (
         "Technological University, 2010, eq. (1)",
         "24/Re + 2.6 (Re/5)/(1 + (Re/5)^1.52) + 0.411 (Re/263000)^-7.94/(1 + "
         "(Re/263000)^-8) + Re^0.80/461000",
-        morrison_2010, _morrison_2010, _scaled_morrison_2010, "Morrison",
+        morrison_2010, _morrison_2010, _scaled_morrison_2010, _scaled_morrison_2010_callback, "Morrison",
     ),
     SphereCorrelation(
         "clift-gauvin", (0.0, 3.0e5),
@@ -588,39 +644,39 @@ _CORRELATIONS = (
         "R. Clift, J. R. Grace, M. E. Weber, Bubbles, Drops, and Particles, Academic Press "
         "1978, ch. 5",
         "24/Re (1 + 0.15 Re^0.687) + 0.42/(1 + 4.25e4 Re^-1.16)",
-        clift_gauvin, _clift_gauvin, _scaled_clift_gauvin, None,
+        clift_gauvin, _clift_gauvin, _scaled_clift_gauvin, _scaled_clift_gauvin_callback, None,
     ),
     SphereCorrelation(
         "clift-gauvin-barati", (0.0, 2.0e5),
         "the Clift-Gauvin form with the coefficients listed by R. Barati et al., Powder "
         "Technology 257 (2014) 11-19 (not those of Clift, Grace and Weber 1978)",
         "24/Re (1 + 0.152 Re^0.677) + 0.417/(1 + 5070 Re^-0.94)",
-        clift_gauvin_barati, _clift_gauvin_barati, _scaled_clift_gauvin_barati, "Clift_Gauvin",
+        clift_gauvin_barati, _clift_gauvin_barati, _scaled_clift_gauvin_barati, _scaled_clift_gauvin_barati_callback, "Clift_Gauvin",
     ),
     SphereCorrelation(
         "haider-levenspiel", (0.0, 2.0e5),
         "A. Haider and O. Levenspiel, Powder Technology 58 (1989) 63-70, eq. (10)",
         "24/Re (1 + 0.1806 Re^0.6459) + 0.4251/(1 + 6880.95/Re)",
-        haider_levenspiel, _haider_levenspiel, _scaled_haider_levenspiel, "Haider_Levenspiel",
+        haider_levenspiel, _haider_levenspiel, _scaled_haider_levenspiel, _scaled_haider_levenspiel_callback, "Haider_Levenspiel",
     ),
     SphereCorrelation(
         "khan-richardson", (0.01, 2.0e5),
         "A. R. Khan and J. F. Richardson, Chem. Eng. Commun. 62 (1987) 135-150",
         "(2.49 Re^-0.328 + 0.34 Re^0.067)^3.18",
-        khan_richardson, _khan_richardson, _scaled_khan_richardson, "Khan_Richardson",
+        khan_richardson, _khan_richardson, _scaled_khan_richardson, _scaled_khan_richardson_callback, "Khan_Richardson",
     ),
     SphereCorrelation(
         "cheng", (0.0, 2.0e5),
         "N.-S. Cheng, Powder Technology 189 (2009) 395-398, eq. (12)",
         "24/Re (1 + 0.27 Re)^0.43 + 0.47 (1 - exp(-0.04 Re^0.38))",
-        cheng, _cheng, _scaled_cheng, "Cheng",
+        cheng, _cheng, _scaled_cheng, _scaled_cheng_callback, "Cheng",
     ),
     SphereCorrelation(
         "barati", (0.0, 2.0e5),
         "R. Barati, S. A. A. S. Neyshabouri, G. Ahmadi, Powder Technology 257 (2014) 11-19, "
         "eq. (22)",
         "sum of five tanh terms in Re plus 0.4744 (their eq. 22)",
-        barati, _barati, _scaled_barati, "Barati",
+        barati, _barati, _scaled_barati, _scaled_barati_callback, "Barati",
     ),
 )  # fmt: skip
 
