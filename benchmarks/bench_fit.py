@@ -189,11 +189,10 @@ t0 = time.perf_counter()
 import numpy as np
 import fitdrag
 t1 = time.perf_counter()
-t = np.arange(400) / 400.0
-x = 7.0 * t - 0.5 * t**2
-y = 1.0 + 4.0 * t - 5.5 * t**2
-noise = np.random.default_rng(1).normal(0.0, 5e-4, (2, 400))
-track = fitdrag.Track(t, x + noise[0], y + noise[1])
+data = np.load(sys.argv[2])  # the first flight of FLIGHTS with white noise, written by main
+track = fitdrag.Track(data["t"], data["x"], data["y"])
+sphere = fitdrag.Sphere(float(data["mass"]), float(data["diameter"]))
+air = fitdrag.Air(float(data["rho"]), float(data["mu"]))
 t2 = time.perf_counter()
 from numba.core import event  # imports numba
 
@@ -221,19 +220,31 @@ if sys.argv[1] == "parts":  # the first fit's start-up taken apart, step by step
     from fitdrag.physics.simulate import _compiled_integrator
     _compiled_integrator(), get_drag_model("constant").callback  # numba's disk cache
     parts.append(time.perf_counter())
-fitdrag.fit_tracks(track, fitdrag.Sphere(0.0027, 0.040), fitdrag.Air(1.2))
+first = fitdrag.fit_tracks(track, sphere, air)
 t3 = time.perf_counter()
 n_compiled = len(compiled)
-fitdrag.fit_tracks(track, fitdrag.Sphere(0.0027, 0.040), fitdrag.Air(1.2))
+fitdrag.fit_tracks(track, sphere, air)
 t4 = time.perf_counter()
+assert first.success, "the cold-fit track did not fit"
 steps = np.diff([t2, *parts, t3]).tolist()
 print(t1 - t0, t3 - t2, t4 - t3, n_compiled, *steps)
 """
 
 
-def _fresh_process(mode: str, env=None) -> list[float]:
-    out = subprocess.run([sys.executable, "-c", _COLD, mode], capture_output=True, text=True,
-                         check=True, env=env)  # fmt: skip
+def _cold_track(folder) -> str:
+    """The first flight of FLIGHTS with white noise (truth from tests/reference.py), saved for
+    the fresh processes; the path."""
+    sc = next(iter(FLIGHTS.values()))
+    xy = sc.truth() + np.random.default_rng(1).normal(0.0, sc.sigma, (sc.n, 2))
+    path = os.path.join(folder, "cold_track.npz")
+    np.savez(path, t=sc.t, x=xy[:, 0], y=xy[:, 1], mass=sc.mass, diameter=sc.diameter,
+             rho=ref.RHO, mu=ref.MU)  # fmt: skip
+    return path
+
+
+def _fresh_process(mode: str, track: str, env=None) -> list[float]:
+    out = subprocess.run([sys.executable, "-c", _COLD, mode, track], capture_output=True,
+                         text=True, check=True, env=env)  # fmt: skip
     return [float(v) for v in out.stdout.split()]
 
 
@@ -243,10 +254,12 @@ def cold_first_fit(runs: int) -> dict[str, float]:
     empty cache (NUMBA_CACHE_DIR set to a new temporary folder: a fresh install)."""
     import tempfile
 
-    whole = np.array([_fresh_process("whole") for _ in range(runs)])
-    parts = np.array([_fresh_process("parts") for _ in range(runs)])
-    with tempfile.TemporaryDirectory() as cache:
-        empty = _fresh_process("whole", {**os.environ, "NUMBA_CACHE_DIR": cache})
+    with tempfile.TemporaryDirectory() as folder:
+        track = _cold_track(folder)
+        whole = np.array([_fresh_process("whole", track) for _ in range(runs)])
+        parts = np.array([_fresh_process("parts", track) for _ in range(runs)])
+        with tempfile.TemporaryDirectory() as cache:
+            empty = _fresh_process("whole", track, {**os.environ, "NUMBA_CACHE_DIR": cache})
     med, med_parts = np.median(whole, axis=0), np.median(parts, axis=0)
     return {
         "import": med[0], "first": med[1], "second": med[2], "compiled": whole[:, 3].max(),
