@@ -105,6 +105,13 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
         ``start``) and the frame gaps between the kept samples.
     start : sequence of float
         Starting coefficients, one per channel (x, y for a track). [-]
+
+    Raises
+    ------
+    InputError
+        ``start`` empty, ``r0`` not one residual per row of ``j0``, or a frame gap below 1.
+    IndexError
+        A block's channel without a starting coefficient, or more gaps than pairs of rows.
     """
     from fitdrag.fit._reml_kernel import compiled_reml
 
@@ -125,10 +132,19 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
         m = idx.shape[0]
         if m == 0:
             continue
-        c = channels[ch]  # IndexError for a channel without a start
+        try:
+            c = channels[ch]
+        except IndexError:
+            raise IndexError(
+                f"reml_ar1: a block's channel is {ch}, but start has {n_ch} coefficient(s); "
+                "give one starting coefficient per channel"
+            ) from None
         g = np.asarray(gaps).astype(np.int64).ravel() if m > 1 else np.empty(0, np.int64)
         if g.size >= m:
-            idx[np.arange(1, g.size + 1)]  # IndexError: more gaps than pairs of rows
+            raise IndexError(
+                f"reml_ar1: {g.size} frame gaps for a block of {m} rows (channel {ch}); give "
+                "one gap per pair of consecutive rows"
+            )
         if g.size and g.min() < 1:
             raise InputError(
                 f"reml_ar1: frame gap {int(g.min())} in a block of channel {ch}; the gaps "
