@@ -386,24 +386,35 @@ def _products(j0, r0, rows, meta, gaps, n_ch):
             earlier[w, p] = r0[rp]
         r_at += m
         g_at += ng
-    # S00 = XᵀX, S11 = YᵀY, S01 + S01ᵀ = XᵀY + YᵀX per channel and gap (BLAS), then scaled
+    # S00 = XᵀX, S11 = YᵀY, S01 + S01ᵀ = XᵀY + YᵀX per channel and gap, then scaled
+    xx = np.zeros((q, q))
+    yy = np.zeros((q, q))
+    xy = np.zeros((q, q))
     o = 0
     for ch in range(n_ch):
         for u in range(n_gap):
             c = count[ch, u]
             if c == 0:
                 continue
-            x = np.ascontiguousarray(later[o : o + c])
-            y = np.ascontiguousarray(earlier[o : o + c])
+            xx[:, :] = 0.0
+            yy[:, :] = 0.0
+            xy[:, :] = 0.0
+            for w in range(o, o + c):
+                for i in range(q):
+                    xi = later[w, i]
+                    yi = earlier[w, i]
+                    for j in range(i + 1):
+                        xj = later[w, j]
+                        yj = earlier[w, j]
+                        xx[i, j] += xi * xj
+                        yy[i, j] += yi * yj
+                        xy[i, j] += xi * yj + yi * xj
             o += c
-            xx = np.dot(x.T, x)
-            yy = np.dot(y.T, y)
-            xy = np.dot(x.T, y)
             for i in range(q):
                 for j in range(i + 1):
                     d = inv[i] * inv[j]
                     s00[ch, u, i, j] = xx[i, j] * d
-                    s01[ch, u, i, j] = (xy[i, j] + xy[j, i]) * d
+                    s01[ch, u, i, j] = xy[i, j] * d
                     s11[ch, u, i, j] = yy[i, j] * d
     return first, s00, s01, s11, count, gapv
 
