@@ -48,7 +48,9 @@ def test_bounded_minimiser_takes_scipys_steps(name, func, bounds, xatol):
     with np.errstate(invalid="ignore"):  # scipy's parabola through +inf values
         ref = minimize_scalar(lambda x: seen_ref.append(x) or func(x), bounds=bounds,
                               method="bounded", options={"xatol": xatol})  # fmt: skip
-    x, fx, nfev, status = K.fminbound(lambda x: seen.append(x) or func(x), *bounds, xatol=xatol)
+    x, fx, nfev, status = K.minimise_bounded(
+        lambda x: seen.append(x) or func(x), *bounds, xatol=xatol
+    )
     assert seen == [float(v) for v in seen_ref]
     assert (x, fx, nfev, status) == (float(ref.x), float(ref.fun), ref.nfev, ref.status)
     assert status == 0
@@ -61,7 +63,7 @@ def test_bounded_minimiser_known_minima():
     for func, bounds, best in ((math.cos, (0.0, 5.0), math.pi),
                                (lambda x: x**4 - 3.0 * x**3 + 2.0, (0.0, 4.0), 2.25),
                                (math.exp, (-1.0, 2.0), -1.0)):  # fmt: skip
-        x, _fx, _n, status = K.fminbound(func, *bounds, xatol=1e-6)
+        x, _fx, _n, status = K.minimise_bounded(func, *bounds, xatol=1e-6)
         assert status == 0
         assert x == pytest.approx(best, abs=3e-6)
 
@@ -72,7 +74,7 @@ def test_bounded_minimiser_evaluation_budget_as_scipy():
     func = lambda x: (x - 0.123456) ** 2  # noqa: E731
     ref = minimize_scalar(func, bounds=(-0.98, 0.98), method="bounded",
                           options={"xatol": 1e-10, "maxiter": 5})  # fmt: skip
-    x, _fx, nfev, status = K.fminbound(func, -0.98, 0.98, xatol=1e-10, maxiter=5)
+    x, _fx, nfev, status = K.minimise_bounded(func, -0.98, 0.98, xatol=1e-10, maxiter=5)
     assert (x, nfev, status) == (pytest.approx(float(ref.x), abs=1e-15), ref.nfev, ref.status)
     assert status == 1
 
@@ -82,9 +84,9 @@ def test_bounded_minimiser_bad_bounds(lo, hi):
     """closed-form/independent: bounds that are not a finite increasing interval are
     refused (scipy refuses them too) with a message naming them and the fix."""
     with pytest.raises(ValueError) as err:
-        K.fminbound(math.cos, lo, hi)
+        K.minimise_bounded(math.cos, lo, hi)
     assert str(err.value) == (
-        f"fminbound: bounds must be finite with lo <= hi; got lo = {float(lo)!r}, "
+        f"minimise_bounded: bounds must be finite with lo <= hi; got lo = {float(lo)!r}, "
         f"hi = {float(hi)!r}; give a finite interval in increasing order"
     )
 

@@ -194,7 +194,7 @@ def bounded_tell(s, fu):
     return False
 
 
-def fminbound(func, lo, hi, xatol=1e-5, maxiter=500):
+def minimise_bounded(func, lo, hi, xatol=1e-5, maxiter=500):
     """Minimise ``func`` (any Python callable of one float) on [lo, hi] with the compiled
     bounded minimiser, driven from Python; returns (x, f(x), evaluations, status) with
     status 0 converged, 1 evaluation budget spent.  For tests and checks: the REML kernel
@@ -208,8 +208,8 @@ def fminbound(func, lo, hi, xatol=1e-5, maxiter=500):
     lo, hi = float(lo), float(hi)
     if not (math.isfinite(lo) and math.isfinite(hi)) or lo > hi:
         raise ValueError(
-            f"fminbound: bounds must be finite with lo <= hi; got lo = {lo!r}, hi = {hi!r}; "
-            "give a finite interval in increasing order"
+            f"minimise_bounded: bounds must be finite with lo <= hi; got lo = {lo!r}, "
+            f"hi = {hi!r}; give a finite interval in increasing order"
         )
     s = np.zeros(STATE_SIZE)
     x = bounded_start(s, lo, hi, float(xatol), float(maxiter))
