@@ -13,6 +13,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from fitdrag.errors import InputError
 from fitdrag.fit.noise import (
     durbin_watson,
     frame_gaps,
@@ -217,3 +218,35 @@ def test_median_equals_numpy_median(n):
     before = a.copy()
     assert median(a) == float(np.median(a))
     np.testing.assert_array_equal(a, before)  # the input is not reordered
+
+
+def test_reml_ar1_bad_input_messages():
+    """closed-form/independent: bad input is refused with a message naming it and the fix —
+    as InputError (a ValueError, the type these inputs raised before the compiled kernel)
+    or IndexError (as before) — checked exactly."""
+    rng = np.random.default_rng(2)
+    r0 = rng.normal(size=50)
+    j0 = np.column_stack((np.ones(50), np.linspace(0.0, 1.0, 50)))
+    ok = [(slice(0, 50), 0, np.ones(49, int))]
+    assert len(reml_ar1(r0, j0, ok, (0.0,))) == 1
+    cases = [
+        (r0, j0, [], (), InputError,
+         "reml_ar1: start is empty; give one starting coefficient per channel"),
+        (r0[:40], j0, ok, (0.0,), InputError,
+         "reml_ar1: 40 residuals for 50 Jacobian rows; give one residual per row of the "
+         "Jacobian"),
+        (r0, j0, [(slice(0, 50), 0, np.r_[np.ones(48, int), 0])], (0.0,), InputError,
+         "reml_ar1: frame gap 0 in a block of channel 0; the gaps between kept samples are "
+         "whole frames >= 1 (see frame_gaps)"),
+        (r0, j0, [(slice(0, 50), 2, np.ones(49, int))], (0.0, 0.0), IndexError,
+         "reml_ar1: a block's channel is 2, but start has 2 coefficient(s); give one "
+         "starting coefficient per channel"),
+        (r0, j0, [(slice(0, 50), 0, np.ones(50, int))], (0.0,), IndexError,
+         "reml_ar1: 50 frame gaps for a block of 50 rows (channel 0); give one gap per pair "
+         "of consecutive rows"),
+    ]  # fmt: skip
+    for r, j, blocks, start, kind, message in cases:
+        with pytest.raises(kind) as err:
+            reml_ar1(r, j, blocks, start)
+        assert str(err.value) == message
+        assert isinstance(err.value, ValueError) == (kind is InputError)

@@ -25,6 +25,8 @@ import math
 
 import numpy as np
 
+from fitdrag.errors import InputError
+
 #: Consistency factor of the median absolute deviation for a normal distribution [3].
 MAD = 1.4826
 
@@ -86,7 +88,11 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
     Σ_d (1 − φ^(2d))⁻¹ (S₀₀ − φ^d (S₀₁ + S₀₁ᵀ) + φ^(2d) S₁₁)_d plus the first rows'
     a₀a₀ᵀ, with the lagged products S per channel and gap computed once.  Each trial φ then
     costs a (P+1)×(P+1) Cholesky factorisation (J̃ᵀJ̃ = LLᵀ, S = r̃ᵀr̃ − |L⁻¹J̃ᵀr̃|²), not a
-    QR of the whole whitened Jacobian; the result is the same likelihood.
+    QR of the whole whitened Jacobian; the result is the same likelihood.  The products,
+    every trial φ, the bounded scalar minimiser (Brent's golden-section and parabolic steps
+    as scipy's ``fminbound`` takes them, xatol 1e-4) and the rounds over the channels run in
+    one compiled call (:mod:`fitdrag.fit._reml_kernel`); only the rows' bookkeeping is done
+    here.
 
     Parameters
     ----------
@@ -99,100 +105,64 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
         ``start``) and the frame gaps between the kept samples.
     start : sequence of float
         Starting coefficients, one per channel (x, y for a track). [-]
+
+    Raises
+    ------
+    InputError
+        ``start`` empty, ``r0`` not one residual per row of ``j0``, or a frame gap below 1.
+    IndexError
+        A block's channel without a starting coefficient, or more gaps than pairs of rows.
     """
-    from scipy.linalg.lapack import dpotrf as potrf
-    from scipy.linalg.lapack import dtrtrs as trtrs
-    from scipy.optimize import minimize_scalar
+    from fitdrag.fit._reml_kernel import compiled_reml
 
+    j0 = np.ascontiguousarray(j0, dtype=np.float64)
     n, p = j0.shape
-    phi = list(start)
-    n_ch = len(phi)
-    # columns scaled to unit norm (the likelihood's argmin does not depend on the scale; the
-    # cross-products stay well conditioned)
-    scale = np.linalg.norm(j0, axis=0)
-    scale[scale == 0] = 1.0
-    aug = np.column_stack((j0 / scale, r0))
-    first = [np.zeros((p + 1, p + 1)) for _ in range(n_ch)]
-    # per channel: {gap: (count, S00, S01 + S01ᵀ, S11)}
-    lagged: list[dict] = [dict() for _ in range(n_ch)]
+    r0 = np.ascontiguousarray(r0, dtype=np.float64).reshape(-1)
+    if r0.shape[0] != n:
+        raise InputError(
+            f"reml_ar1: {r0.shape[0]} residuals for {n} Jacobian rows; give one residual per "
+            "row of the Jacobian"
+        )
+    n_ch = len(start)
+    channels = list(range(n_ch))
+    rows_all = np.arange(n)
+    meta, rows_parts, gap_parts = [], [], []
     for rows, ch, gaps in blocks:
-        a = aug[rows]
-        if a.shape[0] == 0:
+        idx = rows_all[rows]
+        m = idx.shape[0]
+        if m == 0:
             continue
-        first[ch] += np.outer(a[0], a[0])
-        if a.shape[0] < 2:
-            continue
-        gaps = np.asarray(gaps)
-        for d in np.unique(gaps):
-            sel = np.flatnonzero(gaps == d)
-            cur, prev = a[sel + 1], a[sel]
-            s01 = cur.T @ prev
-            entry = (sel.size, cur.T @ cur, s01 + s01.T, prev.T @ prev)
-            old = lagged[ch].get(int(d))
-            if old is not None:
-                entry = tuple(x + y for x, y in zip(old, entry))
-            lagged[ch][int(d)] = entry
-
-    def channel(ch, f):
-        """(whitened cross-product, Σ ln(1 − φ^(2d))) of channel ``ch`` at φ = f."""
-        m = first[ch].copy()
-        logdet = 0.0
-        for d, (count, s00, s01, s11) in lagged[ch].items():
-            if f == 0.0:
-                m += s00
-                continue
-            pd = f**d
-            c = 1.0 - pd * pd
-            m += (s00 - pd * s01 + (pd * pd) * s11) / c
-            logdet += count * math.log(c)
-        return m, logdet
-
-    def objective(value, axis, fixed, fixed_logdet):
-        m, logdet = channel(axis, value)
-        m += fixed
-        # LAPACK's Cholesky factorisation and triangular solve, called directly (numpy's
-        # wrappers cost more than the work on a (P+1)×(P+1) matrix)
-        low, info = potrf(m[:p, :p], lower=1, clean=0)
-        if info != 0:
-            return np.inf
-        z, info = trtrs(low, m[:p, p], lower=1)
-        ss = float(m[p, p] - z @ z)
-        if info != 0 or not ss > 0:
-            return np.inf
-        ld = 2.0 * float(np.sum(np.log(low.diagonal())))
-        return (n - p) * math.log(ss) + logdet + fixed_logdet + ld
-
-    for _round in range(12):
-        before = list(phi)
-        for axis in range(n_ch):
-            fixed = np.zeros((p + 1, p + 1))
-            fixed_logdet = 0.0
-            for other in range(n_ch):
-                if other != axis:
-                    m, ld = channel(other, phi[other])
-                    fixed += m
-                    fixed_logdet += ld
-            args = (axis, fixed, fixed_logdet)
-            # from a non-zero start (a fit's later iterations) first within ± 0.1 of it; the
-            # whole range again when the minimum lands on that window's edge
-            lo, hi = max(-0.98, phi[axis] - 0.1), min(0.98, phi[axis] + 0.1)
-            x = None
-            if phi[axis] != 0.0:
-                out = minimize_scalar(objective, bounds=(lo, hi), args=args, method="bounded",
-                                      options={"xatol": 1e-4})  # fmt: skip
-                x = float(out.x)
-                if (x - lo < 1e-3 and lo > -0.98) or (hi - x < 1e-3 and hi < 0.98):
-                    x = None
-            if x is None:
-                out = minimize_scalar(objective, bounds=(-0.98, 0.98), args=args,
-                                      method="bounded", options={"xatol": 1e-4})  # fmt: skip
-                x = float(out.x)
-            phi[axis] = x
-        # rounds over the channels until none moves by more than 2e-4 (the channels couple
-        # through the shared variance, so one round from a distant start is not enough)
-        if max(abs(a - b) for a, b in zip(phi, before)) <= 2e-4:
-            break
-    return tuple(phi)
+        try:
+            c = channels[ch]
+        except IndexError:
+            raise IndexError(
+                f"reml_ar1: a block's channel is {ch}, but start has {n_ch} coefficient(s); "
+                "give one starting coefficient per channel"
+            ) from None
+        g = np.asarray(gaps).astype(np.int64).ravel() if m > 1 else np.empty(0, np.int64)
+        if g.size >= m:
+            raise IndexError(
+                f"reml_ar1: {g.size} frame gaps for a block of {m} rows (channel {ch}); give "
+                "one gap per pair of consecutive rows"
+            )
+        if g.size and g.min() < 1:
+            raise InputError(
+                f"reml_ar1: frame gap {int(g.min())} in a block of channel {ch}; the gaps "
+                "between kept samples are whole frames >= 1 (see frame_gaps)"
+            )
+        meta.append((c, m, g.size))
+        rows_parts.append(idx)
+        gap_parts.append(g)
+    if n_ch == 0:
+        raise InputError("reml_ar1: start is empty; give one starting coefficient per channel")
+    phi = compiled_reml()(
+        j0, r0,
+        np.concatenate(rows_parts).astype(np.int64, copy=False) if meta else np.empty(0, np.int64),
+        np.array(meta, dtype=np.int64).reshape(-1, 3),
+        np.concatenate(gap_parts) if meta else np.empty(0, np.int64),
+        np.array(start, dtype=np.float64),
+    )  # fmt: skip
+    return tuple(float(v) for v in phi)
 
 
 def sign_runs(r: np.ndarray) -> tuple[int, float, float]:
