@@ -26,6 +26,8 @@ import warnings
 
 import numpy as np
 
+from fitdrag.fit._solver_steps import GAUSS_NEWTON, MARQUARDT, REWEIGHTED, normal_step
+
 
 def _limits(bounds) -> tuple[np.ndarray, np.ndarray]:
     return np.array([b[0] for b in bounds]), np.array([b[1] for b in bounds])
@@ -136,15 +138,10 @@ def levenberg_marquardt(problem, theta, bounds, max_iter: int = 60, tol: float =
     cost = float(res @ res)
     lam = 1e-3
     for _ in range(max_iter):
-        jtj = jac.T @ jac
-        g = jac.T @ res
-        d = np.diag(jtj).copy()
-        d[d <= 0] = 1.0
-        try:
-            step = np.linalg.solve(jtj + lam * np.diag(d), -g)
-        except np.linalg.LinAlgError:
+        step = normal_step(jac, res, MARQUARDT, lam)
+        if step is None:
             return theta, False
-        new = np.clip(theta + step, lo, hi)
+        new = np.minimum(np.maximum(theta + step, lo), hi)
         r2, j2, _s, ok2 = problem.evaluate(new)
         c2 = float(r2 @ r2) if ok2 else np.inf
         if c2 < cost:
@@ -191,13 +188,8 @@ def robust_solve(problem, theta, bounds, max_nfev, f_scale: float = 3.0, tol: fl
         if not ok or problem.n_evaluations - before >= max_nfev:
             break
         w = (1.0 + (res / f_scale) ** 2) ** -0.25
-        jw = jac * w[:, None]
-        scale = np.linalg.norm(jw, axis=0)
-        scale[scale == 0] = 1.0
-        js = jw / scale
-        try:
-            step = np.linalg.solve(js.T @ js, -(js.T @ (w * res))) / scale
-        except np.linalg.LinAlgError:
+        step = normal_step(jac, res, REWEIGHTED, w=w)
+        if step is None:
             break
         # halve the step until the robust cost falls (IRLS steps can overshoot)
         for _half in range(6):
@@ -235,14 +227,9 @@ def gauss_newton(problem, theta, bounds, max_iter: int = 12, tol: float = 1e-9):
     for _ in range(max_iter):
         if not ok:
             return theta, False
-        # normal equations with column scaling (P is small; J is well scaled after it), the
-        # scaled products formed from one JᵀJ rather than a scaled copy of J
-        jtj = jac.T @ jac
-        scale = np.sqrt(np.diag(jtj))
-        scale[scale == 0] = 1.0
-        try:
-            step = np.linalg.solve(jtj / np.outer(scale, scale), -(jac.T @ res) / scale) / scale
-        except np.linalg.LinAlgError:
+        # normal equations with column scaling (P is small; J is well scaled after it)
+        step = normal_step(jac, res, GAUSS_NEWTON)
+        if step is None:
             return theta, False
         if np.all(np.abs(step) <= tol * (np.abs(theta) + 1e-3)):
             # the next step would be below the tolerance: theta is the optimum to within it
