@@ -28,7 +28,7 @@ Timings are wall-clock on whatever machine runs this; nothing is asserted.
 
 Usage::
 
-    python benchmarks/bench_fit.py [--repeats 5] [--blas-threads N] [--cold-runs 5]
+    python benchmarks/bench_fit.py [--repeats 5] [--rounds 3] [--blas-threads N] [--cold-runs 5]
 """
 
 from __future__ import annotations
@@ -43,7 +43,10 @@ from pathlib import Path
 
 def _args():
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    p.add_argument("--repeats", type=int, default=5, help="timed fits per track and method")
+    p.add_argument("--repeats", type=int, default=5,
+                   help="fits per method in a block (the baseline: half as many)")  # fmt: skip
+    p.add_argument("--rounds", type=int, default=3,
+                   help="rounds per track, each a block of every method in turn")  # fmt: skip
     p.add_argument("--seed", type=int, default=20240601, help="noise seed")
     p.add_argument("--rtol", type=float, default=1e-9, help="reference solve_ivp rtol")
     p.add_argument("--cold-runs", type=int, default=5,
@@ -110,16 +113,6 @@ def reference_fit(t, x, y, body, rho, rtol):
     # epsfcn: finite-difference step √1e-10 ≈ 1e-5 relative, well above the integration error
     out = lmfit.minimize(residual, params, method="leastsq", epsfcn=1e-10)
     return out
-
-
-def timed(fn, repeats):
-    times = []
-    result = None
-    for _ in range(repeats):
-        t0 = time.perf_counter()
-        result = fn()
-        times.append(time.perf_counter() - t0)
-    return float(np.median(times)), result
 
 
 def _tracks(args):
@@ -276,7 +269,7 @@ def main(args) -> None:
     print("fitdrag fit benchmark (synthetic tracks, 400 points each; white and AR(1) noise)")
     print(f"  BLAS threads: OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS')!r}; "
           f"notebook baseline: lmfit leastsq over solve_ivp RK45, rtol = atol = {args.rtol:g}; "
-          f"repeats {args.repeats}")  # fmt: skip
+          f"{args.rounds} rounds of {args.repeats} fits per method")  # fmt: skip
     # warm-up (loads the numba cache), not timed
     sc0 = next(iter(FLIGHTS.values()))
     xy0 = sc0.truth()
@@ -286,13 +279,29 @@ def main(args) -> None:
     for name, sc, x, y, noise in _tracks(args):
         track = fitdrag.Track(sc.t, x, y)
         sp = fitdrag.Sphere(sc.mass, sc.diameter)
-        t_fd, r = timed(lambda track=track, sp=sp: fitdrag.fit_tracks(track, sp, air),
-                        args.repeats)  # fmt: skip
-        t_plain, _ = timed(lambda track=track, sp=sp: fitdrag.fit_tracks(
-            track, sp, air, robust=False, noise="white"), args.repeats)  # fmt: skip
-        t_ref, o = timed(lambda sc=sc, x=x, y=y: reference_fit(sc.t, x, y, sc.body, ref.RHO,
-                                                               args.rtol),
-                         max(1, args.repeats // 2))  # fmt: skip
+        # in rounds, each timing a block of fits of every method in turn (a slow spell of a
+        # shared machine falls on all three alike; within a block the fits run back to back,
+        # as timeit would run them), and the median of each method over all its fits
+        times = [[], [], []]
+        for _ in range(args.rounds):
+            for acc, fn, count in (
+                (times[0], lambda track=track, sp=sp: fitdrag.fit_tracks(track, sp, air),
+                 args.repeats),
+                (times[1], lambda track=track, sp=sp: fitdrag.fit_tracks(
+                    track, sp, air, robust=False, noise="white"), args.repeats),
+                (times[2], lambda sc=sc, x=x, y=y: reference_fit(sc.t, x, y, sc.body, ref.RHO,
+                                                                 args.rtol),
+                 max(1, args.repeats // 2)),
+            ):  # fmt: skip
+                for _ in range(count):
+                    t0 = time.perf_counter()
+                    out = fn()
+                    acc.append(time.perf_counter() - t0)
+                if acc is times[0]:
+                    r = out
+                elif acc is times[2]:
+                    o = out
+        t_fd, t_plain, t_ref = (float(np.median(v)) for v in times)
         rows.append((name, noise, t_fd, t_plain, t_ref, r, o))
 
     for noise, target in (("white", 10.0), ("ar1", 5.0)):
