@@ -199,3 +199,32 @@ class Scenario:
     def jacobian(self) -> np.ndarray:
         """Finite-difference Jacobian of the stacked positions w.r.t. (cd, x0, y0, vx0, vy0)."""
         return fd_jacobian(self.theta, self.t, self.body, RHO, buoyancy=self.buoyancy)
+
+
+def ar1_restricted_likelihood(r0, j0, blocks, phis) -> float:
+    """−2 × the restricted log-likelihood of a linear model with AR(1) errors, up to a
+    constant, the direct way (Cheang & Reinsel 2000, J. Am. Stat. Assoc. 95, 1173):
+    (N − P) ln S + ln det Σ + ln det J̃ᵀJ̃, with Σ per block the unit-variance AR(1)
+    correlation φ^|Δframe| (frames from the gaps), J̃ = L⁻¹J and r̃ = L⁻¹r for Σ = L Lᵀ
+    (scipy's Cholesky and triangular solve, not fitdrag's transform), S the least-squares
+    sum of squares of r̃ on J̃ (numpy's QR).
+
+    ``blocks``: (slice of rows, channel, gaps between consecutive rows) as fitdrag's
+    ``reml_ar1`` takes them; ``phis``: one coefficient per channel.
+    """
+    from scipy.linalg import cholesky, solve_triangular
+
+    n, p = j0.shape
+    r = np.empty_like(r0)
+    j = np.empty_like(j0)
+    logdet = 0.0
+    for rows, ch, gaps in blocks:
+        frames = np.concatenate(([0], np.cumsum(gaps)))
+        cov = float(phis[ch]) ** np.abs(frames[:, None] - frames[None, :]).astype(float)
+        low = cholesky(cov, lower=True)
+        r[rows] = solve_triangular(low, r0[rows], lower=True)
+        j[rows] = solve_triangular(low, j0[rows], lower=True)
+        logdet += 2.0 * float(np.sum(np.log(np.diag(low))))
+    q, rr = np.linalg.qr(j)
+    e = r - q @ (q.T @ r)
+    return (n - p) * math.log(float(e @ e)) + logdet + np.linalg.slogdet(rr.T @ rr)[1]

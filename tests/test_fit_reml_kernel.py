@@ -18,10 +18,11 @@ import math
 
 import numpy as np
 import pytest
+import reference as ref
 from scipy.optimize import minimize_scalar
 
 from fitdrag.fit import _reml_kernel as K
-from fitdrag.fit.noise import prais_winsten, reml_ar1
+from fitdrag.fit.noise import reml_ar1
 
 # smooth functions on an interval: minimum inside, at the lower or the upper bound, flat
 # near the minimum (quartic), several local minima, +inf on part of the interval
@@ -138,20 +139,9 @@ def _problem(seed=4, phis=(0.7, -0.3, 0.0, 0.5), lengths=(150, 110)):
 
 
 def _dense(r0, j0, blocks, phis):
-    """−2ℓ_R the direct way (Cheang & Reinsel 2000): Prais–Winsten rows of the whole
-    residual vector and Jacobian, numpy's QR, (N − P) ln S + Σ ln(1 − φ^(2d)) + ln det J̃ᵀJ̃."""
-    n, p = j0.shape
-    r = np.empty_like(r0)
-    j = np.empty_like(j0)
-    logdet = 0.0
-    for sl, ch, gaps in blocks:
-        f = phis[ch]
-        r[sl] = prais_winsten(r0[sl], gaps, f)
-        j[sl] = prais_winsten(j0[sl], gaps, f)
-        logdet += float(np.sum(np.log1p(-(f ** (2 * gaps)))))
-    q, rr = np.linalg.qr(j)
-    e = r - q @ (q.T @ r)
-    return (n - p) * math.log(float(e @ e)) + logdet + np.linalg.slogdet(rr.T @ rr)[1]
+    """−2ℓ_R the direct way (tests/reference.py: dense AR(1) covariance, scipy's Cholesky,
+    numpy's QR)."""
+    return ref.ar1_restricted_likelihood(r0, j0, blocks, phis)
 
 
 def _kernel_inputs(r0, j0, blocks):

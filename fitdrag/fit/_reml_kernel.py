@@ -49,6 +49,8 @@ import numba
 import numpy as np
 from numba import types
 
+from fitdrag._linalg import cholesky_lower
+
 #: Golden-section fraction (3 − √5)/2 of the bounded minimiser.
 GOLDEN = 0.5 * (3.0 - math.sqrt(5.0))
 #: √ε as scipy's bounded minimiser writes it (ε = 2.2e-16).
@@ -257,19 +259,8 @@ def _objective(f, axis, first, s00, s01, s11, count, gapv, fixed, fixed_logdet, 
         for j in range(i + 1):
             m[i, j] += fixed[i, j]
     # Cholesky factor of the P×P block, in place (lower triangle)
-    for j in range(p):
-        d = m[j, j]
-        for k in range(j):
-            d -= m[j, k] * m[j, k]
-        if not d > 0.0:
-            return math.inf
-        ljj = math.sqrt(d)
-        m[j, j] = ljj
-        for i in range(j + 1, p):
-            t = m[i, j]
-            for k in range(j):
-                t -= m[i, k] * m[j, k]
-            m[i, j] = t / ljj
+    if not cholesky_lower(m, p):
+        return math.inf
     # L z = J̃ᵀr̃ (row p of the lower triangle), z kept in row p
     zz = 0.0
     for i in range(p):

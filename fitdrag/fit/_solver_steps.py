@@ -13,9 +13,9 @@ Cholesky factorisation, instead of a dozen numpy calls on a few-by-few matrix; t
   J times ``w`` and the columns scaled by the norms of ``J_w``'s columns (Holland and
   Welsch [3]_).
 
-The Cholesky factorisation of the symmetric positive definite matrix follows Golub and Van
-Loan [4]_ Algorithm 4.2.1; a non-positive pivot (a singular or indefinite system) reports
-failure and leaves the step undefined.  Compiled without ``fastmath`` on first use, kept in
+The symmetric positive definite system is solved by Cholesky (:func:`fitdrag._linalg.solve_spd`,
+Golub and Van Loan [4]_ Algorithm 4.2.1); a non-positive pivot (a singular or indefinite
+system) reports failure and leaves the step undefined.  Compiled without ``fastmath`` on first use, kept in
 numba's on-disk cache.
 
 References
@@ -36,6 +36,8 @@ import math
 
 import numba
 import numpy as np
+
+from fitdrag._linalg import solve_spd
 
 GAUSS_NEWTON, MARQUARDT, REWEIGHTED = 0, 1, 2
 
@@ -71,32 +73,10 @@ def _normal_step(jac, res, w, lam, mode, step):
             g[j] /= scale[j]
             for k in range(p):
                 a[j, k] /= scale[j] * scale[k]
-    # Cholesky a = L Lᵀ (lower triangle of a overwritten by L)
     for j in range(p):
-        s = a[j, j]
-        for k in range(j):
-            s -= a[j, k] * a[j, k]
-        if not s > 0.0 or not math.isfinite(s):
-            return False
-        d = math.sqrt(s)
-        a[j, j] = d
-        for i in range(j + 1, p):
-            s = a[i, j]
-            for k in range(j):
-                s -= a[i, k] * a[j, k]
-            a[i, j] = s / d
-    # L z = -g, then Lᵀ x = z
-    z = np.empty(p)
-    for i in range(p):
-        s = -g[i]
-        for k in range(i):
-            s -= a[i, k] * z[k]
-        z[i] = s / a[i, i]
-    for i in range(p - 1, -1, -1):
-        s = z[i]
-        for k in range(i + 1, p):
-            s -= a[k, i] * step[k]
-        step[i] = s / a[i, i]
+        g[j] = -g[j]
+    if not solve_spd(a, g, step):
+        return False
     for j in range(p):
         step[j] /= scale[j]
         if not math.isfinite(step[j]):

@@ -81,6 +81,7 @@ import math
 import numba
 import numpy as np
 
+from fitdrag._linalg import solve_spd
 from fitdrag.errors import InputError
 from fitdrag.video.ball_result import BallFit, BallGuess
 
@@ -534,36 +535,6 @@ def _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac):
     return rss
 
 
-@numba.njit(cache=True)
-def _solve_spd(a, b, out):
-    """Solve a x = b for a symmetric positive definite a (Cholesky); False if not."""
-    m = a.shape[0]
-    lo = np.zeros((m, m))
-    for i in range(m):
-        for j in range(i + 1):
-            s = a[i, j]
-            for k in range(j):
-                s -= lo[i, k] * lo[j, k]
-            if i == j:
-                if s <= 0.0:
-                    return False
-                lo[i, i] = math.sqrt(s)
-            else:
-                lo[i, j] = s / lo[j, j]
-    z = np.empty(m)
-    for i in range(m):
-        s = b[i]
-        for k in range(i):
-            s -= lo[i, k] * z[k]
-        z[i] = s / lo[i, i]
-    for i in range(m - 1, -1, -1):
-        s = z[i]
-        for k in range(i + 1, m):
-            s -= lo[k, i] * out[k]
-        out[i] = s / lo[i, i]
-    return True
-
-
 @numba.njit(cache=True, nogil=True)
 def _levenberg_marquardt(x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, max_iter, tol, ftol):
     """Levenberg-Marquardt (Marquardt's diagonal scaling) on all nine parameters, from x
@@ -598,7 +569,7 @@ def _levenberg_marquardt(x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, max_ite
                 s += jac[q, _N_PAR + i] * jac[q, _N_PAR + j]
             al[i, j] = s + ((1e-10 * s + 1e-300) if i == j else 0.0)
             al[j, i] = al[i, j]
-    if _solve_spd(al, gl, dl):
+    if solve_spd(al, gl, dl):
         for i in range(nl):
             x[_N_PAR + i] += dl[i]
         rss = _assemble(x, d, gb, mask_idx, w, basis, dbasis, res, jac)
@@ -626,7 +597,7 @@ def _levenberg_marquardt(x, u, tm, lamp, d, gb, maskimg, mask_idx, h, w, max_ite
             ad = a.copy()
             for i in range(npar):
                 ad[i, i] = a[i, i] * (1.0 + lam) + 1e-12 * (a[i, i] + 1e-300)
-            if not _solve_spd(ad, g, step):
+            if not solve_spd(ad, g, step):
                 lam *= 10.0
                 continue
             small = True
@@ -702,7 +673,7 @@ def _sensitivities(jac, mask_idx, h, w, nk):
     for k in range(nk):
         e[:] = 0.0
         e[k] = 1.0
-        if not _solve_spd(a, e, col):
+        if not solve_spd(a, e, col):
             return vimg, white, False
         for q in range(n):
             v = 0.0
