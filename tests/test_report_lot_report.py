@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from fitdrag.report.lot_report import CAUTION, plot_lot, render_lot_report
+from fitdrag.report.lot_report import CAUTION, lot_page_one_note, plot_lot, render_lot_report
 
 pypdf = pytest.importorskip("pypdf")
 
@@ -63,6 +63,21 @@ def test_pdf_states_the_lot(tmp_path):
         assert s in text, s
     assert " ".join(CAUTION.split()[:8]) in text
     assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_page_one_carries_the_record_hash_and_says_it_is_one_page_of_the_whole(tmp_path):
+    """regression: page 1 (the page that goes alone as the PNG) prints the record hash of the
+    lot report's record and says it is page 1 of the report's pages, valid only as a whole;
+    the other pages do not repeat it."""
+    data = _data()
+    data["issue"]["record_hash"] = "ab" * 32
+    pdf = tmp_path / "r.pdf"
+    n = render_lot_report(data, pdf)
+    pages = [" ".join(p.extract_text().split()) for p in pypdf.PdfReader(str(pdf)).pages]
+    assert len(pages) == n >= 2
+    assert "Record hash (SHA-256): " + "ab" * 32 in pages[0].replace("- ", "-")
+    assert " ".join(lot_page_one_note(n).split()) in pages[0]
+    assert all("valid only as the whole" not in p for p in pages[1:])
 
 
 def test_plot_shows_values_limits_and_interval():

@@ -100,8 +100,17 @@ def _pct(x) -> str:
     return "—" if x is None else f"{format_sig(100 * x, 2)} %"
 
 
-def build_lot_layout(data: Mapping) -> Layout:
-    """Lay out the lot report (exposed for tests)."""
+def lot_page_one_note(total_pages: int) -> str:
+    """The line on page 1 that travels with it when it goes alone (as the PNG)."""
+    return (
+        f"Page 1 of {total_pages}: valid only as the whole lot report of {total_pages} pages "
+        f"(statistics, methods, caution); the results relate only to the specimens measured."
+    )
+
+
+def build_lot_layout(data: Mapping, total_pages: int | None = None) -> Layout:
+    """Lay out the lot report (exposed for tests); with ``total_pages``, page 1 says it is
+    one of that many."""
     L = Layout()
     lot = data["lot"]
     summ = data["summary"]
@@ -117,6 +126,10 @@ def build_lot_layout(data: Mapping) -> Layout:
         ("Description", lot.get("description") or "—"),
         ("Specimens measured", str(summ["n"])),
     ])  # fmt: skip
+    if issue.get("record_hash"):
+        L.paragraph(f"Record hash (SHA-256): {issue['record_hash']}", size=7.0)
+    if total_pages:
+        L.paragraph(lot_page_one_note(total_pages), size=7.5, weight="bold")
     L.heading("Lot statement")
     fmt = formatter_for(summ["expanded_uncertainty_of_mean"])
     mean_s, um_s = format_with_uncertainty(summ["mean"], summ["expanded_uncertainty_of_mean"])
@@ -183,8 +196,12 @@ def render_lot_report(data: Mapping, pdf_path: str | os.PathLike,
     from matplotlib.backends.backend_pdf import PdfPages
     from matplotlib.figure import Figure
 
-    pages = build_lot_layout(data).paginate()
-    n = len(pages)
+    n = len(build_lot_layout(data).paginate())
+    for _ in range(3):  # the note on page 1 may push the last page over
+        pages = build_lot_layout(data, total_pages=n).paginate()
+        if len(pages) == n:
+            break
+        n = len(pages)
     number = (data.get("issue") or {}).get("number", "")
     lab = data["lot"]["laboratory"]
     meta = {"Title": f"{TITLE} {number}", "Author": lab,
