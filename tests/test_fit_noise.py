@@ -210,6 +210,8 @@ def test_median_equals_numpy_median(n):
     before = a.copy()
     assert median(a) == float(np.median(a))
     np.testing.assert_array_equal(a, before)  # the input is not reordered
+    a[n // 2] = np.nan  # a NaN anywhere makes the median NaN, as numpy's
+    assert np.isnan(median(a)) and np.isnan(np.median(a))
 
 
 def test_reml_ar1_bad_input_messages():
@@ -232,6 +234,9 @@ def test_reml_ar1_bad_input_messages():
          "whole frames >= 1 (see frame_gaps)"),
         (r0, j0, [(slice(0, 50), 2, np.ones(49, int))], (0.0, 0.0), IndexError,
          "reml_ar1: a block's channel is 2, but start has 2 coefficient(s); give one "
+         "starting coefficient per channel"),
+        (r0, j0, [(slice(0, 50), -1, np.ones(49, int))], (0.0, 0.0), IndexError,
+         "reml_ar1: a block's channel is -1, but start has 2 coefficient(s); give one "
          "starting coefficient per channel"),
         (r0, j0, [(slice(0, 50), 0, np.ones(50, int))], (0.0,), IndexError,
          "reml_ar1: 50 frame gaps for a block of 50 rows (channel 0); give one gap per pair "

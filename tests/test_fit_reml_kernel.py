@@ -44,7 +44,13 @@ FUNCTIONS = [
 def test_bounded_minimiser_takes_scipys_steps(name, func, bounds, xatol):
     """closed-form/independent: scipy.optimize.minimize_scalar(method="bounded") (SciPy
     1.17) on the same function, interval and xatol evaluates the same points in the same
-    order and returns the same minimiser and value, bit for bit (the same arithmetic)."""
+    order and returns the same minimiser and value, bit for bit (the same arithmetic).
+    Another SciPy version may step differently: the check is skipped there, and
+    test_bounded_minimiser_known_minima keeps checking the results."""
+    import scipy
+
+    if tuple(int(v) for v in scipy.__version__.split(".")[:2]) != (1, 17):
+        pytest.skip(f"the steps were checked against SciPy 1.17, this is {scipy.__version__}")
     seen_ref, seen = [], []
     with np.errstate(invalid="ignore"):  # scipy's parabola through +inf values
         ref = minimize_scalar(lambda x: seen_ref.append(x) or func(x), bounds=bounds,

@@ -53,8 +53,9 @@ def test_reweighted_step_is_the_weighted_least_squares_solution():
 
 
 def test_a_singular_system_gives_no_step():
-    """regression: a zero column (an undetermined parameter) or a non-finite entry leaves the
-    undamped system singular: no step, as numpy's solve would raise LinAlgError."""
+    """regression: a zero column (an undetermined parameter) leaves the undamped system
+    singular: no step (numpy's solve raises LinAlgError there); a NaN entry gives no step
+    either (numpy's solve would return a NaN step)."""
     jac, res = _case(5)
     jac[:, 1] = 0.0
     assert normal_step(jac, res, GAUSS_NEWTON) is None

@@ -18,6 +18,7 @@ import numba
 import numpy as np
 import pytest
 
+from fitdrag.physics.drag_laws import BUILTIN_MODELS
 from fitdrag.physics.drag_model import DragModel, call_law
 
 
@@ -191,6 +192,30 @@ def test_callback_function_must_be_a_plain_top_level_function():
     assert _linear_model("fine", callback_function=_linear_re_callback).callback_function is (
         _linear_re_callback
     )
+
+
+BUILTIN_CONSTANT = next(m for m in BUILTIN_MODELS if m.name == "constant")
+
+
+def test_callback_function_defined_outside_a_file_is_compiled_without_the_cache():
+    """regression: a callback function defined by ``exec`` (as in an interactive session) has
+    no source file for numba's cache; it is compiled without the cache instead of failing,
+    and gives the kernel's values (closed form: C_d = a)."""
+    source = (
+        "from fitdrag.physics.drag_laws import _cd_constant as cd_constant\n"
+        "def callback(re, p, grad, dcd_dre):\n"
+        "    cd, d = cd_constant(re, p, grad)\n"
+        "    dcd_dre[0] = d\n"
+        "    return cd\n"
+    )
+    ns: dict = {}
+    exec(source, ns)
+    m = DragModel(name="typed-in", parameters=("cd",), initial=(0.5,), bounds=((0.0, 5.0),),
+                  kernel=BUILTIN_CONSTANT.kernel, callback_function=ns["callback"])  # fmt: skip
+    grad, dre = np.zeros(1), np.zeros(1)
+    got = _sum_through_address(m.callback.address, 1e4, np.array([0.47]), grad, dre)
+    assert got == pytest.approx(5 * 0.47, rel=1e-15)
+    assert m.callback.cache_hits == 0
 
 
 # A fresh interpreter: every built-in law's callback (and a user's law with its own callback

@@ -92,7 +92,9 @@ def compiled_step():
 
 def normal_step(jac, res, mode, lam=0.0, w=None):
     """The step δ of ``mode`` (see the module notes) for Jacobian ``jac`` (n, P) and
-    residuals ``res`` (n,), or None when the system is singular."""
+    residuals ``res`` (n,), or None when the system is singular or the step not finite (a
+    NaN or inf in ``jac`` or ``res``): the solvers then report failure and fall back, where
+    numpy's solve returned a NaN step without complaint."""
     step = np.empty(jac.shape[1])
     weights = w if w is not None else _NO_WEIGHTS
     ok = compiled_step()(jac, res, weights, float(lam), mode, step)

@@ -6,7 +6,9 @@ and ``d r / d theta = -(d simulated / d theta) / sigma``, then, under AR(1) nois
 Prais–Winsten transform with frame gaps [1]_ (``w_0 = a_0``,
 ``w_i = (a_i - phi^d a_(i-1)) / sqrt(1 - phi^(2d))``) applied to residuals and Jacobian rows
 alike, as :func:`fitdrag.fit.noise.prais_winsten` does.  The operations are those of the numpy
-code in the same order, compiled without ``fastmath``, so the results are the same numbers.
+code in the same order, compiled without ``fastmath``, so the results are the same numbers to
+rounding: identical except that a power φ^d for a gap of d ≥ 3 frames (libm's ``pow`` here,
+numpy's own power there) may differ in the last bit.
 
 The Jacobian's columns follow the problem's layout: the shared parameters (drag law, lift) in
 the first columns, the throw's launch state in ``base .. base + 3``.  The simulator's

@@ -370,11 +370,12 @@ def _fit_tracks(tracks, specimen, air, *, gravity, model, lift, wind, buoyancy, 
         set_sigmas(sig)
 
     def settled(sig) -> bool:
-        """Whether re-estimated noise levels keep the ratios of those set to within 2 % (the
-        loop's stopping rule): the weights only matter relative to each other, so theta is
-        left as fitted under the levels set.  An RMS of n residuals scatters by about
-        1/√(2n) of itself (3.5 % for 400 frames); a change of the weights' ratio within 2 %
-        moves Cd by a small fraction of its standard uncertainty."""
+        """Whether re-estimated noise levels ``sig`` (per throw: x and y [m]) keep the
+        ratios of those set to within 2 % (the loop's stopping rule): the weights only matter
+        relative to each other, so theta is left as fitted under the levels set.  An RMS of
+        n residuals scatters by about 1/√(2n) of itself (3.5 % for 400 frames); a change of
+        the weights' ratio within 2 % moves Cd by a small fraction of its standard
+        uncertainty."""
         arr = np.asarray(sig)
         now = np.array([[median(sg[:, 0]), median(sg[:, 1])] for sg in problem.sigmas])
         return bool(np.max(np.abs((arr / arr.flat[0]) / (now / now.flat[0]) - 1.0)) < 0.02)

@@ -133,6 +133,8 @@ def reml_ar1(r0, j0, blocks, start) -> tuple[float, ...]:
         if m == 0:
             continue
         try:
+            if ch < 0:
+                raise IndexError
             c = channels[ch]
         except IndexError:
             raise IndexError(
@@ -249,8 +251,11 @@ def robust_sigma(r: np.ndarray) -> float:
 
 
 def median(a: np.ndarray) -> float:
-    """Median of a non-empty 1-D array without NaN: numpy.median's numbers (the middle
-    element, or the mean of the two middle ones), by one partial sort without its checks."""
+    """Median of a non-empty 1-D array: numpy.median's numbers (the middle element, or the
+    mean of the two middle ones; NaN when any element is NaN), by one partial sort without
+    its other checks."""
+    if np.isnan(a).any():
+        return float("nan")
     n = a.size
     k = n // 2
     if n % 2:

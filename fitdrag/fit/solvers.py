@@ -124,8 +124,11 @@ def levenberg_marquardt(problem, theta, bounds, max_iter: int = 60, tol: float =
     """A compact Levenberg–Marquardt (Marquardt 1963 diagonal scaling) from the first guess.
 
     Only for the first, Gaussian pass from the drag-free start; bounds are kept by
-    projection.  Reports failure (and the caller falls back to the trust-region solver)
-    when it does not settle within ``max_iter`` iterations; (theta, converged).
+    projection.  It has converged when a step taken with little damping (λ at most its
+    start, 1e-3, i.e. nearly a Gauss–Newton step) lowers the cost by less than ``tol``
+    relative; a small gain from a heavily damped step after rejected ones does not count.
+    Reports failure (and the caller falls back to the trust-region solver) when it does
+    not settle within ``max_iter`` iterations; (theta, converged).
 
     References: D. W. Marquardt, "An algorithm for least-squares estimation of nonlinear
     parameters", J. SIAM 11 (1963) 431–441.
@@ -147,9 +150,9 @@ def levenberg_marquardt(problem, theta, bounds, max_iter: int = 60, tol: float =
         if c2 < cost:
             rel = (cost - c2) / max(cost, 1e-300)
             theta, res, jac, cost = new, r2, j2, c2
-            lam = max(lam / 3.0, 1e-12)
-            if rel < tol:
+            if rel < tol and lam <= 1e-3:
                 return theta, True
+            lam = max(lam / 3.0, 1e-12)
         else:
             lam *= 4.0
             if lam > 1e12:

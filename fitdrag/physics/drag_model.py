@@ -23,7 +23,9 @@ References
 from __future__ import annotations
 
 import functools
+import inspect
 import math
+import os
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from types import FunctionType
@@ -76,7 +78,10 @@ class DragModel:
         top of a module, with no closure, that calls ``kernel`` and writes its dC_d/dRe into
         ``dcd_dre[0]``.  When given, the C callback is compiled from it with numba's disk
         cache (next to that module), so a fresh process loads it rather than compiling it.
-        Without it the callback is compiled in each process.
+        Without it the callback is compiled in each process.  It must compute the same law
+        as ``kernel`` (the integrator calls the callback, the results' Cd at the median Re
+        calls the kernel); nothing checks a user's pair, so change them together (the
+        built-in laws' pairs are checked in tests/test_physics_drag_model.py).
     """
 
     name: str
@@ -134,9 +139,14 @@ class DragModel:
     def callback(self):
         """The kernel wrapped as a C callback of fixed signature for the integrator, built on
         first use in a process: from ``callback_function`` through numba's disk cache (loaded,
-        or compiled once and saved) when the law has one, else compiled from a closure."""
-        if self.callback_function is not None:
-            return numba.cfunc(CD_SIGNATURE, cache=True)(self.callback_function)
+        or compiled once and saved) when the law has one, else compiled from a closure.  A
+        ``callback_function`` defined outside a source file (an interactive session, ``exec``)
+        has nowhere for numba to keep its cache: it is compiled in every process instead."""
+        f = self.callback_function
+        if f is not None:
+            source = inspect.getsourcefile(f)
+            cacheable = source is not None and os.path.isfile(source)
+            return numba.cfunc(CD_SIGNATURE, cache=cacheable)(f)
         return _as_callback(self.kernel)
 
     def check_re_range(self, re_min: float, re_max: float) -> None:

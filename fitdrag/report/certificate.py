@@ -505,11 +505,13 @@ def render_certificate(
     from matplotlib.figure import Figure
 
     n = len(build_layout(content, curves).paginate())
-    for _ in range(3):  # the note on page 1 may push the last page over
+    for _ in range(5):  # the note on page 1 may push the last page over
         pages = build_layout(content, curves, total_pages=n).paginate()
         if len(pages) == n:
             break
         n = len(pages)
+    else:
+        raise RuntimeError(f"certificate: the page count did not settle ({n} pages last)")
     cert = content.issue
     number = cert.number if cert else ""
     lab = content.laboratory.name

@@ -197,11 +197,13 @@ def render_lot_report(data: Mapping, pdf_path: str | os.PathLike,
     from matplotlib.figure import Figure
 
     n = len(build_lot_layout(data).paginate())
-    for _ in range(3):  # the note on page 1 may push the last page over
+    for _ in range(5):  # the note on page 1 may push the last page over
         pages = build_lot_layout(data, total_pages=n).paginate()
         if len(pages) == n:
             break
         n = len(pages)
+    else:
+        raise RuntimeError(f"lot report: the page count did not settle ({n} pages last)")
     number = (data.get("issue") or {}).get("number", "")
     lab = data["lot"]["laboratory"]
     meta = {"Title": f"{TITLE} {number}", "Author": lab,
