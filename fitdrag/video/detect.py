@@ -69,7 +69,7 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import MAX_BLIND, BlobFinder, fast_median
+from fitdrag.video.blobs import DARK_LIMB_DROP, MAX_BLIND, BlobFinder, fast_median
 from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
@@ -506,7 +506,8 @@ def detect_specimen(
     )
     missing.update(reasons)
     snr = np.array([b.snr for b in blobs_ok])
-    blind = np.array([b.blind for b in blobs_ok])
+    # an unseen dark limb (kept: the model fit renders the shading) does not lower it
+    blind = np.array([0.0 if b.dark_limb else b.blind for b in blobs_ok])
     quality = (
         snr**2 / (snr**2 + 100.0) * size_term * path_term * np.clip(1 - blind / MAX_BLIND, 0, 1)
     )
@@ -523,6 +524,19 @@ def detect_specimen(
         shutter = float(readout_time) if rate else 0.0
         shape_of = (lens, shutter, float(rate or 0.0))
     outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of)
+    unexplained = outline.pop("unexplained")
+    if unexplained.any():  # refused after all: the lamp's shading does not explain them
+        gone = np.flatnonzero(keep)[unexplained]
+        for i in gone:
+            missing[int(frames[i])] = (
+                "specimen barely differs from the background behind part of its outline "
+                f"({100 * blobs_ok[i].blind:.0f} % of its area unseen) where the lamp's "
+                "shading does not darken it"
+            )
+        keep = keep.copy()
+        keep[gone] = False
+        outline = {k: v[~unexplained] if isinstance(v, np.ndarray) else v
+                   for k, v in outline.items()}  # fmt: skip
     out = Detections(
         frame=frames[keep],
         x_px=xs[keep],
@@ -704,13 +718,22 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
         maps = list(zip(outline_m, motion_m, strict=True))
     fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist(), maps)
     if maps is not None:  # the lamp's direction, then every blob under it
-        from fitdrag.video.lamp import lamp_refits
+        from fitdrag.video.lamp import dark_limb_explained, lamp_refits
         from fitdrag.video.sphere_outline import disc_axes
 
+        axes = disc_axes(lens, xs[idx], ys[idx])
         fits, lamp = lamp_refits([blobs[i] for i in idx], [int(k) for k in frames[idx]],
-                                  ang.tolist(), maps, disc_axes(lens, xs[idx], ys[idx]), fits,
-                                  fit_blobs)  # fmt: skip
+                                  ang.tolist(), maps, axes, fits, fit_blobs)  # fmt: skip
+    # A frame kept with an unseen dark limb stays only when the lamp's shading explains it.
+    unexplained = np.zeros(n, bool)
+    for j, i in enumerate(idx):
+        if blobs[i].dark_limb:
+            unexplained[j] = lamp is None or not dark_limb_explained(
+                blobs[i], fits[j], maps[j][0], axes[j].T @ lamp, DARK_LIMB_DROP
+            )
     for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
+        if unexplained[j]:
+            continue
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
             diam[j], u_diam[j] = fit.diameter, fit.u_diameter
@@ -727,6 +750,7 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
         "model_fit": ok,
         "outline_measure": "across_motion" if shape_of is None else "depth",
         "lamp_direction": None if lamp is None else tuple(float(v) for v in lamp),
+        "unexplained": unexplained,
     }
 
 

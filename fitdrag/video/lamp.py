@@ -27,7 +27,7 @@ import math
 
 import numpy as np
 
-__all__ = ["LAMP_PROBES", "lamp_refits"]
+__all__ = ["LAMP_PROBES", "dark_limb_explained", "lamp_refits"]
 
 #: Blobs, spread over the flight, whose total misfit decides the lamp's direction.
 LAMP_PROBES = 24
@@ -110,3 +110,41 @@ def lamp_refits(blobs, frames, angles, maps, axes, fits, fit_blobs):
     lamp = _direction(best.x)
     again = fit_blobs(blobs, frames, angles, maps, [axes[i].T @ lamp for i in range(len(blobs))])
     return [g if g.success else f for f, g in zip(fits, again, strict=True)], lamp
+
+
+def dark_limb_explained(blob, fit, outline_map, lamp, drop: float) -> bool:
+    """Whether the lamp's shading explains the unseen part of a blob's outline.
+
+    A blob kept with an unseen dark limb (``blob.dark_limb``, its patch's ``unseen`` pixels)
+    is checked again once the lamp is known: the fitted Lambertian ball (``fit``, under
+    ``lamp``, the unit direction towards the lamp in the blob's circle frame) has at its
+    outline in direction ``n = (cos phi, sin phi, 0)`` the brightness
+    ``a_0 + a_1 n_x + a_2 n_y + a_4 max(n . L, 0)`` (Lambert's cosine law, see the module
+    notes).  The unseen part is explained when, at the unseen pixels' directions, that
+    brightness has moved from the ball's brightness at its centre (``n = (0, 0, 1)``)
+    towards the background behind the unseen pixels by at least ``drop`` of their
+    difference (the share :data:`fitdrag.video.blobs.DARK_LIMB_DROP`).  A lit part of the
+    ball against a background as bright as itself (or anything in front of it) is not.
+    ``outline_map`` (2, 2) takes image offsets to the circle frame. [1]  A fit without the
+    lamp's term (its lamp fit failed) explains nothing.
+    """
+    pt = blob.patch
+    if pt is None or pt.unseen is None or not fit.success or len(fit.shading) != 6:
+        return False
+    rows, cols = np.nonzero(pt.unseen)
+    if rows.size == 0:
+        return False
+    off = np.vstack([cols + pt.origin[0] - fit.x, rows + pt.origin[1] - fit.y])
+    disc = np.asarray(outline_map, dtype=float) @ off
+    phi = np.arctan2(disc[1], disc[0])
+    nx, ny = np.cos(phi), np.sin(phi)
+    a = fit.shading
+    lam = np.asarray(lamp, dtype=float)
+    limb = a[0] + a[1] * nx + a[2] * ny + a[4] * np.maximum(nx * lam[0] + ny * lam[1], 0.0)
+    centre = a[0] + a[3] + a[4] * max(float(lam[2]), 0.0)
+    behind = float(np.median(pt.gain * pt.background[rows, cols]))
+    contrast = centre - behind
+    if contrast == 0.0:
+        return False
+    moved = math.copysign(1.0, contrast) * (centre - float(np.median(limb)))
+    return moved >= drop * abs(contrast)
