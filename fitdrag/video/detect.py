@@ -28,7 +28,14 @@ The steps, per run (steps 2, 4 and 5, one frame's blobs, are in :mod:`fitdrag.vi
    fill ratio and elongation.  Rejected: blobs touching the frame edge (a cut ball has a
    biased centroid), blobs whose size departs from the track's (partly hidden, or merged
    with clutter), and blobs whose outline is partly unseen because the specimen barely
-   differs from the background behind it.
+   differs from the background behind it, unless the specimen's own shading explains it: a
+   ball lit from the side fades into the background on its shaded side, so a blob is kept
+   when its shading, extrapolated from its core, has carried its brightness at least half
+   way to the background's where the outline is unseen (``Blob.dark_limb``); with a lens,
+   once the track's lamp is found (:mod:`fitdrag.video.lamp`), such a frame stays only if
+   the Lambertian ball under that lamp predicts the same (its fit renders the shading, so
+   the unseen limb, whose pixels carry no contrast, does not pull the outline), and without
+   a lamp it is refused as before.
 5. **Centroid**: the intensity-weighted centroid of the background-subtracted image over a
    window around the blob (the blob dilated by three pixels), each pixel's value divided by
    the local contrast between specimen and background (a per-pixel coverage estimate,
@@ -108,7 +115,7 @@ class Detections:
         of its neighbours'), a path term ``1 - (r / path_tolerance)**2``
         (``r`` the distance from the path its neighbours define; 0.5 when too few neighbours
         to check) and an outline term ``1 - u / 0.1`` (``u`` the unseen share of the outline,
-        see the module notes).
+        see the module notes; 0 for a dark limb the shading explains).
     area_px : ndarray
         Integrated coverage of the blob: the specimen's apparent area, unchanged by motion
         blur. [px^2]
