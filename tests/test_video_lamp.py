@@ -183,14 +183,16 @@ def test_side_lit_ball_is_measured_through_its_unseen_dark_limb():
     assert abs(slope * np.ptp(fr[ok])) < 0.02
 
 
-def _blob_with_unseen_right_side():
+def _blob_with_unseen_right_side(behind: float = 80.0):
     """A blob centred at (20, 20) whose unseen pixels lie 9-11 px to its right, over a
-    background of 80 grey levels (gain 1)."""
+    background of 80 grey levels, ``behind`` at the unseen pixels (gain 1)."""
     from fitdrag.video.blobs import Blob, BlobPatch
 
     unseen = np.zeros((41, 41), bool)
     unseen[16:25, 29:32] = True
-    patch = BlobPatch(diff=np.zeros((41, 41)), background=np.full((41, 41), 80.0), gain=1.0,
+    background = np.full((41, 41), 80.0)
+    background[unseen] = behind
+    patch = BlobPatch(diff=np.zeros((41, 41)), background=background, gain=1.0,
                       valid=np.ones((41, 41), bool), origin=(0, 0), noise_sigma=2.0,
                       blur_length=0.0, blur_angle=0.0, unseen=unseen)  # fmt: skip
     return Blob(20.0, 20.0, 250, 250.0, 20.0, 0.8, 1.0, 30.0, 0.02, False, False,
@@ -204,22 +206,32 @@ def _fit(shading):
                    400, 6, True, None, shading)  # fmt: skip
 
 
-@pytest.mark.parametrize(("lamp", "explained"), [((-0.7, 0.0, 0.71), True),
-                                                 ((0.7, 0.0, 0.71), False)],
-                         ids=["lamp away from the unseen side", "lamp on the unseen side"])  # fmt: skip
-def test_dark_limb_is_explained_only_on_the_side_away_from_the_lamp(lamp, explained):
-    """closed-form/independent: a ball of brightness 80 + 100 max(n . L, 0) (Lambert's
+@pytest.mark.parametrize(
+    ("lamp", "shading", "behind", "explained"),
+    [((-0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 80.0, True),
+     ((-0.2, 0.0, 0.98), (150.0, 0, 0, 0, 50.0, 0.0), 80.0, True),
+     ((0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 150.0, False),
+     ((0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 140.0, False)],
+    ids=["shaded limb as dark as the background", "limb brighter than the background: seen",
+         "lit limb against a background as bright", "lit limb against a background near it"],
+)  # fmt: skip
+def test_dark_limb_is_explained_only_where_the_shading_darkens_it(lamp, shading, behind,
+                                                                  explained):  # fmt: skip
+    """closed-form/independent: a ball of brightness a_0 + a_4 max(n . L, 0) (Lambert's
     cosine law plus ambient light, B. K. P. Horn, Robot Vision, 1986, ch. 10) over a
-    background of 80, its outline unseen on its right (+x).  With the lamp on the left the
-    right limb has the ambient brightness 80, the background's: the shading explains the
-    unseen part.  With the lamp on the right the right limb is the brightest part (80 + 70):
-    something other than the shading hides it, and the frame is not kept."""
+    background of 80 (``behind`` at the pixels right of it, +x, where its outline went
+    unseen), seen-contrast 15 grey levels.  Lamp on the left, ambient 80: the right limb has
+    the background's brightness, the centre 80 + 71: the shading explains it.  Lamp near the
+    axis, ambient 150: the right limb (150) stands 70 above the background, so the outline
+    there is seen after all.  Lamp on the right: the right limb is the brightest part
+    (80 + 70) and the background behind it as bright (150) or within the seen-contrast of it
+    (140): something other than the shading hides it."""
     from fitdrag.video.blobs import DARK_LIMB_DROP
     from fitdrag.video.lamp import dark_limb_explained
 
     lam = np.asarray(lamp) / np.linalg.norm(lamp)
-    got = dark_limb_explained(_blob_with_unseen_right_side(), _fit((80.0, 0, 0, 0, 100.0, 0.0)),
-                              np.eye(2), lam, DARK_LIMB_DROP)  # fmt: skip
+    got = dark_limb_explained(_blob_with_unseen_right_side(behind), _fit(shading), np.eye(2),
+                              lam, DARK_LIMB_DROP, 15.0)  # fmt: skip
     assert got is explained
 
 
@@ -231,4 +243,4 @@ def test_dark_limb_is_not_explained_without_the_lamp_term():
 
     fit = _fit((80.0,) + (0.0,) * 9)
     assert not dark_limb_explained(_blob_with_unseen_right_side(), fit, np.eye(2),
-                                   np.array([-0.7, 0.0, 0.71]), DARK_LIMB_DROP)  # fmt: skip
+                                   np.array([-0.7, 0.0, 0.71]), DARK_LIMB_DROP, 15.0)  # fmt: skip

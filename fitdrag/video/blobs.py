@@ -22,6 +22,7 @@ __all__ = [
     "DARK_LIMB_DROP",
     "KEEP_CANDIDATES",
     "MAX_BLIND",
+    "SEEN_CONTRAST",
     "Blob",
     "BlobFinder",
     "BlobPatch",
@@ -35,6 +36,9 @@ __all__ = [
 _FLOOR_SIGMA = 2.0
 #: Largest share of unseen outline pixels (per pixel of area) a detection may have.
 MAX_BLIND = 0.1
+#: Smallest contrast between specimen and background that shows the outline, in multiples of
+#: the detection threshold (``threshold_sigma`` noise levels). [1]
+SEEN_CONTRAST = 1.5
 #: Candidates measured at full resolution per whole-frame search (the best by contrast).
 KEEP_CANDIDATES = 6
 # Smallest noise level assumed, in 8-bit grey levels (quantisation of noiseless footage).
@@ -412,7 +416,7 @@ class BlobFinder:
         spec = self._specimen_level(f, dd, comp, fit_px, xx, yy, sigma, (mu20, mu02, mu11))
         contrast = spec - bb
         absk = np.abs(contrast)
-        reliable = absk > 1.5 * self.k * sigma
+        reliable = absk > SEEN_CONTRAST * self.k * sigma
         with np.errstate(divide="ignore", invalid="ignore"):
             cov = np.clip(dd / contrast, 0.0, 1.0)
         # Where the specimen matches the background behind it the contrast carries no

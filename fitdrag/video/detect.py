@@ -76,7 +76,13 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import DARK_LIMB_DROP, MAX_BLIND, BlobFinder, fast_median
+from fitdrag.video.blobs import (
+    DARK_LIMB_DROP,
+    MAX_BLIND,
+    SEEN_CONTRAST,
+    BlobFinder,
+    fast_median,
+)
 from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
@@ -530,7 +536,8 @@ def detect_specimen(
             )
         shutter = float(readout_time) if rate else 0.0
         shape_of = (lens, shutter, float(rate or 0.0))
-    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of)
+    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of,
+                        seen=SEEN_CONTRAST * float(threshold_sigma))  # fmt: skip
     unexplained = outline.pop("unexplained")
     if unexplained.any():  # refused after all: the lamp's shading does not explain them
         gone = np.flatnonzero(keep)[unexplained]
@@ -694,13 +701,16 @@ def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
 _FALLBACK_SIGMA_FACTOR = 3.0
 
 
-def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
+def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None, *, seen: float) -> dict:
     """Model fit of each kept detection (:func:`fitdrag.video.fit_worker.fit_blobs`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
     weighted centroid with a larger sigma and halves the quality.  ``shape_of`` = (lens,
     readout time [s], frame rate [1/s]) fits the outline the camera gives a sphere
-    (:func:`fitdrag.video.sphere_outline.outline_maps`).  Returns the outline columns of
-    :class:`Detections`."""
+    (:func:`fitdrag.video.sphere_outline.outline_maps`).  ``seen``: the smallest contrast
+    that shows the outline, in noise levels (a blob kept with an unseen dark limb is checked
+    under the lamp, :func:`fitdrag.video.lamp.dark_limb_explained`).  Returns the outline
+    columns of :class:`Detections` and ``unexplained``, per fit whether its unseen dark
+    limb stays unexplained (the frame is then refused)."""
     idx = np.flatnonzero(keep)
     n = idx.size
     diam = np.full(n, np.nan)
@@ -740,7 +750,12 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
     for j, i in enumerate(idx):
         if blobs[i].dark_limb:
             unexplained[j] = lamp is None or not dark_limb_explained(
-                blobs[i], fits[j], maps[j][0], axes[j].T @ lamp, DARK_LIMB_DROP
+                blobs[i],
+                fits[j],
+                maps[j][0],
+                axes[j].T @ lamp,
+                DARK_LIMB_DROP,
+                seen * blobs[i].patch.noise_sigma,
             )
     for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
         if unexplained[j]:
