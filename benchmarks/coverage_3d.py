@@ -103,7 +103,7 @@ class Row:
     crb: float = math.nan
     offset_error: float = math.nan  # [frames]
     measure: float = math.nan
-    tracker: tuple = ()  # footage: centroid RMS error, stated, diameter RMS, drift [px]
+    tracker: tuple = ()  # footage: centroid RMS error, stated, diameter RMS, drift [px], kept
     expanded_tracker: float = math.nan  # footage: U with the tracker's systematic lines
 
 
@@ -171,7 +171,8 @@ def footage_views(th: Throw, n_cam: int, seed: int, light=None, ambient=None):
         drift = np.polyfit(f - f.mean(), res, 1)[0] * float(np.ptp(f))
         errs.append((float(np.sqrt(np.mean(e**2))), float(np.median(det.sigma_px[ok])),
                      float(np.sqrt(np.mean(res**2))), drift,
-                     float(np.median(det.u_outline_diameter_px[ok]))))  # fmt: skip
+                     float(np.median(det.u_outline_diameter_px[ok])),
+                     float(np.count_nonzero(ok))))  # fmt: skip
         views.append(CameraView(cam, f, ref.FPS, det.x_px[ok], det.y_px[ok],
                                 sigma=det.sigma_px[ok], diameter=d,
                                 diameter_sigma=det.u_outline_diameter_px[ok],
@@ -403,7 +404,8 @@ def main() -> None:
             rows.append(one_throw(th, n_cam, s, args))
             if args.each and rows[-1].success:
                 r = rows[-1]
-                drift = f", diameter drift {r.tracker[3]:+.3f} px" if r.tracker else ""
+                drift = (f", diameter drift {r.tracker[3]:+.3f} px, {r.tracker[5]:.0f} of "
+                         f"{FRAMES} frames measured" if r.tracker else "")  # fmt: skip
                 print(f"  throw {len(rows)}: {th.angle:+.2f} deg, readout {1e3 * th.readout:.2f} "
                       f"ms, exposure {1e3 * th.exposure:.2f} ms: (Cd - t)/u "
                       f"{(r.cd - ref.CD) / r.u:+.2f}, U/Cd {100 * r.expanded / r.cd:.2f} %"
@@ -424,7 +426,8 @@ def main() -> None:
                   f"{m[1]:.3f}); diameter RMS error against the depth diameter (after a "
                   f"scale) {m[2]:.3f} px (stated median {m[4]:.3f}); its linear drift over "
                   f"the flight: mean {drift.mean():+.3f} px, RMS "
-                  f"{np.sqrt(np.mean(drift**2)):.3f} px, largest {np.abs(drift).max():.3f} px")  # fmt: skip
+                  f"{np.sqrt(np.mean(drift**2)):.3f} px, largest {np.abs(drift).max():.3f} px; "
+                  f"frames measured per camera: mean {m[5]:.1f} of {FRAMES}")  # fmt: skip
     if len(table) > 1:
         print("\none camera vs two cameras (the same throws):")
         print(HEADER)

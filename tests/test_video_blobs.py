@@ -146,3 +146,91 @@ def test_tiled_components_match_whole_mask_labelling(density):
         np.testing.assert_array_equal(st[k1], st2[1:][k2])
         np.testing.assert_allclose(ce[k1], ce2[1:][k2])
         np.testing.assert_allclose(su[k1], su2[k2], rtol=1e-9)
+
+
+def _lit_ball(
+    background: np.ndarray,
+    cx: float,
+    cy: float,
+    r: float,
+    lamp,
+    ambient: float,
+    peak: float,
+    sub: int = 8,
+) -> np.ndarray:
+    """``background`` with a Lambertian ball drawn over it: radiance
+    ``peak (ambient + (1 - ambient) max(n . L, 0))`` (Lambert's cosine law, B. K. P. Horn,
+    *Robot Vision*, MIT Press 1986, ch. 10), ``n`` the surface normal (x right, y down, z
+    towards the camera), averaged over ``sub`` x ``sub`` samples per pixel."""
+    lamp = np.asarray(lamp, float) / np.linalg.norm(lamp)
+    o = (np.arange(sub) + 0.5) / sub - 0.5
+    yy, xx = np.indices(background.shape, dtype=float)
+    cover = np.zeros(background.shape)
+    light = np.zeros(background.shape)
+    for dy in o:
+        for dx in o:
+            nx, ny = (xx + dx - cx) / r, (yy + dy - cy) / r
+            inside = nx * nx + ny * ny <= 1.0
+            nz = np.sqrt(np.clip(1.0 - nx * nx - ny * ny, 0.0, None))
+            lit = np.maximum(nx * lamp[0] + ny * lamp[1] + nz * lamp[2], 0.0)
+            cover += inside
+            light += inside * peak * (ambient + (1.0 - ambient) * lit)
+    cover /= sub * sub
+    return background * (1.0 - cover) + light / (sub * sub)
+
+
+def _one_blob(frame: np.ndarray, background: np.ndarray) -> Blob:
+    src = ArraySource(np.clip(np.rint(frame), 0, 255).astype(np.uint8)[None])
+    f = BlobFinder(src, background.astype(np.float32), threshold_sigma=5.0, min_area=12.0,
+                   max_area=5000.0, min_fill=0.5, max_elongation=3.0, polarity="either",
+                   size_tolerance=0.5, max_gap=3)  # fmt: skip
+    raw = src.read_raw(0)
+    g, sigma = f.gain_and_noise(raw)
+    blobs = f.analyse(raw, g, sigma, 0, 0, W, H)
+    assert len(blobs) == 1
+    return blobs[0]
+
+
+# A lamp 60 degrees to the left of the camera's axis (towards the lamp: x left, slightly up,
+# z towards the camera), half the light diffuse: the ball's right side is lit by the ambient
+# share alone, 0.5 x 160 = 80 grey levels, the background's level.
+SIDE_LAMP = (-0.85, -0.2, 0.49)
+
+
+def test_side_lit_ball_is_kept_with_its_dark_limb():
+    """closed-form/independent: a Lambertian ball (radius 10 px) lit from 60 degrees to the
+    side with half the light diffuse, whose shaded side has exactly the background's
+    brightness (80 grey levels, noise 2 grey levels): more than MAX_BLIND of its outline is
+    unseen, on the side away from the lamp, and the blob is kept (dark_limb) rather than
+    refused.  Before: refused as "specimen barely differs from the background"."""
+    from fitdrag.video.blobs import MAX_BLIND
+
+    rng = np.random.default_rng(3)
+    bg = np.full((H, W), BACKGROUND)
+    frame = _lit_ball(bg, 80.3, 60.6, 10.0, SIDE_LAMP, 0.5, 160.0) + rng.normal(0, 2.0, (H, W))
+    b = _one_blob(frame, bg)
+    assert b.blind > MAX_BLIND
+    assert b.dark_limb
+    assert b.reason is None
+    # the unseen pixels lie on the side away from the lamp (+x)
+    rows, cols = np.nonzero(b.patch.unseen)
+    assert np.mean(cols + b.patch.origin[0]) > 80.3 + 5.0
+
+
+def test_lit_part_against_a_background_as_bright_is_refused():
+    """closed-form/independent: the same ball against a dark background (40 grey levels: its
+    shaded side, 80, stays seen) but with a bright strip of the lit side's own brightness
+    (165 grey levels) behind its lit left edge: the unseen part is where the ball is
+    brightest, the shading does not explain it, and the blob is refused with the gate's
+    message."""
+    rng = np.random.default_rng(4)
+    bg = np.full((H, W), 40.0)
+    bg[:, :74] = 165.0
+    frame = _lit_ball(bg, 80.3, 60.6, 10.0, SIDE_LAMP, 0.5, 160.0) + rng.normal(0, 2.0, (H, W))
+    b = _one_blob(frame, bg)
+    assert not b.dark_limb
+    assert b.reason == (
+        "specimen barely differs from the background behind part of its outline "
+        f"({100 * b.blind:.0f} % of its area unseen)"
+    )
+    assert b.blind > 0.1

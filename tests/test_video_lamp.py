@@ -151,3 +151,96 @@ def test_the_search_starts_from_the_camera_side_too():
     _, lamp = lamp_refits([None] * 6, list(range(6)), [0.0] * 6, [None] * 6,
                           np.broadcast_to(np.eye(3), (6, 3, 3)), fits, fit_blobs)  # fmt: skip
     assert math.degrees(math.acos(min(1.0, float(lamp @ want)))) < 1.0
+
+
+def test_side_lit_ball_is_measured_through_its_unseen_dark_limb():
+    """closed-form/independent: a lamp 45 degrees to the side and half the light diffuse
+    (the renderer's Lambertian ball, 16 px): the ball's shaded side fades into the
+    background, and the frames are kept rather than refused (before: 8 of 70 frames
+    measured, the rest refused as "specimen barely differs from the background" or not
+    confirmed).  At least 55 of the 70 frames are measured, none refused for its unseen
+    outline; the lamp is found within 4 degrees; under it the centres are within 0.04 px RMS
+    of the exact outline centres and the depth diameters within 0.06 px RMS of
+    2 f rho / sqrt(Z^2 - rho^2), with no drift over the flight above 0.02 px (measured:
+    61 frames, 0.022 px, 0.039 px, 0.003 px)."""
+    light = (-0.7, -0.2, -0.69)
+    r, det = _clip(light, 3, ambient=0.5)
+    assert len(det.frame) >= 55
+    assert not any("barely differs" in why for _, why in det.missing)
+    lamp = np.asarray(det.lamp_direction)
+    want = np.asarray(light) / np.linalg.norm(light)
+    assert math.degrees(math.acos(min(1.0, float(lamp @ want)))) < 4.0
+    truth = r.truth
+    fr = det.frame
+    miss = np.hypot(det.x_px - truth.u_mean_px[fr], det.y_px - truth.v_mean_px[fr])
+    assert np.sqrt(np.mean(miss**2)) < 0.04
+    ok = np.isfinite(det.outline_diameter_px)
+    rho = BALL.diameter / 2
+    depth = 2 * 750.0 * rho / np.sqrt(truth.depth[fr] ** 2 - rho**2)
+    err = (det.outline_diameter_px - depth)[ok]
+    assert np.sqrt(np.mean(err**2)) < 0.06
+    slope = np.polyfit(fr[ok].astype(float), err, 1)[0]
+    assert abs(slope * np.ptp(fr[ok])) < 0.02
+
+
+def _blob_with_unseen_right_side(behind: float = 80.0):
+    """A blob centred at (20, 20) whose unseen pixels lie 9-11 px to its right, over a
+    background of 80 grey levels, ``behind`` at the unseen pixels (gain 1)."""
+    from fitdrag.video.blobs import Blob, BlobPatch
+
+    unseen = np.zeros((41, 41), bool)
+    unseen[16:25, 29:32] = True
+    background = np.full((41, 41), 80.0)
+    background[unseen] = behind
+    patch = BlobPatch(diff=np.zeros((41, 41)), background=background, gain=1.0,
+                      valid=np.ones((41, 41), bool), origin=(0, 0), noise_sigma=2.0,
+                      blur_length=0.0, blur_angle=0.0, unseen=unseen)  # fmt: skip
+    return Blob(20.0, 20.0, 250, 250.0, 20.0, 0.8, 1.0, 30.0, 0.02, False, False,
+                blind=0.15, dark_limb=True, patch=patch)  # fmt: skip
+
+
+def _fit(shading):
+    from fitdrag.video.ball_result import BallFit
+
+    return BallFit(20.0, 20.0, 0.01, 0.01, 20.0, 0.02, 0.0, 0.0, 10.0, 30.0, 10, 30, 1.0, 1.0,
+                   400, 6, True, None, shading)  # fmt: skip
+
+
+@pytest.mark.parametrize(
+    ("lamp", "shading", "behind", "explained"),
+    [((-0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 80.0, True),
+     ((-0.2, 0.0, 0.98), (150.0, 0, 0, 0, 50.0, 0.0), 80.0, True),
+     ((0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 150.0, False),
+     ((0.7, 0.0, 0.71), (80.0, 0, 0, 0, 100.0, 0.0), 140.0, False)],
+    ids=["shaded limb as dark as the background", "limb brighter than the background: seen",
+         "lit limb against a background as bright", "lit limb against a background near it"],
+)  # fmt: skip
+def test_dark_limb_is_explained_only_where_the_shading_darkens_it(lamp, shading, behind,
+                                                                  explained):  # fmt: skip
+    """closed-form/independent: a ball of brightness a_0 + a_4 max(n . L, 0) (Lambert's
+    cosine law plus ambient light, B. K. P. Horn, Robot Vision, 1986, ch. 10) over a
+    background of 80 (``behind`` at the pixels right of it, +x, where its outline went
+    unseen), seen-contrast 15 grey levels.  Lamp on the left, ambient 80: the right limb has
+    the background's brightness, the centre 80 + 71: the shading explains it.  Lamp near the
+    axis, ambient 150: the right limb (150) stands 70 above the background, so the outline
+    there is seen after all.  Lamp on the right: the right limb is the brightest part
+    (80 + 70) and the background behind it as bright (150) or within the seen-contrast of it
+    (140): something other than the shading hides it."""
+    from fitdrag.video.blobs import DARK_LIMB_DROP
+    from fitdrag.video.lamp import dark_limb_explained
+
+    lam = np.asarray(lamp) / np.linalg.norm(lamp)
+    got = dark_limb_explained(_blob_with_unseen_right_side(behind), _fit(shading), np.eye(2),
+                              lam, DARK_LIMB_DROP, 15.0)  # fmt: skip
+    assert got is explained
+
+
+def test_dark_limb_is_not_explained_without_the_lamp_term():
+    """regression: a fit without the lamp's term (second-order shading: ten coefficients, its
+    lamp fit failed) explains no unseen limb."""
+    from fitdrag.video.blobs import DARK_LIMB_DROP
+    from fitdrag.video.lamp import dark_limb_explained
+
+    fit = _fit((80.0,) + (0.0,) * 9)
+    assert not dark_limb_explained(_blob_with_unseen_right_side(), fit, np.eye(2),
+                                   np.array([-0.7, 0.0, 0.71]), DARK_LIMB_DROP, 15.0)  # fmt: skip

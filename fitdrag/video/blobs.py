@@ -19,8 +19,10 @@ from fitdrag.video.background import GRID_PIXELS
 from fitdrag.video.sources import FrameSource
 
 __all__ = [
+    "DARK_LIMB_DROP",
     "KEEP_CANDIDATES",
     "MAX_BLIND",
+    "SEEN_CONTRAST",
     "Blob",
     "BlobFinder",
     "BlobPatch",
@@ -34,6 +36,9 @@ __all__ = [
 _FLOOR_SIGMA = 2.0
 #: Largest share of unseen outline pixels (per pixel of area) a detection may have.
 MAX_BLIND = 0.1
+#: Smallest contrast between specimen and background that shows the outline, in multiples of
+#: the detection threshold (``threshold_sigma`` noise levels). [1]
+SEEN_CONTRAST = 1.5
 #: Candidates measured at full resolution per whole-frame search (the best by contrast).
 KEEP_CANDIDATES = 6
 # Smallest noise level assumed, in 8-bit grey levels (quantisation of noiseless footage).
@@ -57,6 +62,7 @@ class Blob:
     touches_window: bool
     reason: str | None = None  # why it is not usable
     blind: float = 0.0  # unseen outline pixels per pixel of area
+    dark_limb: bool = False  # the unseen part is the ball's own shaded side (kept)
     spread: tuple[float, float] = (0.0, 0.0)  # principal standard deviations of the weights
     patch: BlobPatch | None = None  # pixels around the blob, for the model fit
 
@@ -82,6 +88,9 @@ class BlobPatch:
         Noise level of the frame. [grey levels]
     blur_length, blur_angle : float
         Blur length [px] and direction [rad] from the blob's second moments.
+    unseen : ndarray of bool or None
+        Pixels next to the blob where the specimen would barely differ from the background
+        (its outline there unseen), where the shading explains them (``Blob.dark_limb``).
     """
 
     diff: np.ndarray
@@ -92,6 +101,7 @@ class BlobPatch:
     noise_sigma: float
     blur_length: float
     blur_angle: float
+    unseen: np.ndarray | None = None
 
 
 def fit_chosen_blob(
@@ -406,7 +416,7 @@ class BlobFinder:
         spec = self._specimen_level(f, dd, comp, fit_px, xx, yy, sigma, (mu20, mu02, mu11))
         contrast = spec - bb
         absk = np.abs(contrast)
-        reliable = absk > 1.5 * self.k * sigma
+        reliable = absk > SEEN_CONTRAST * self.k * sigma
         with np.errstate(divide="ignore", invalid="ignore"):
             cov = np.clip(dd / contrast, 0.0, 1.0)
         # Where the specimen matches the background behind it the contrast carries no
@@ -450,7 +460,9 @@ class BlobFinder:
         )
         # Pixels next to the blob where the specimen would barely differ from the background:
         # the outline there is not seen, so the centroid may be pulled.
-        blind = float(np.count_nonzero((region > 0) & ~reliable & (closed == 0))) / area_cov
+        unseen = (region > 0) & ~reliable & (closed == 0)
+        blind = float(np.count_nonzero(unseen)) / area_cov
+        dark_limb = blind > MAX_BLIND and _shading_explains(spec, bb, unseen, core)
         fill = area / float(bw * bh)
         snr = fast_median(absk[core]) / sigma if core.any() else float(absk.max()) / sigma
         blob = Blob(
@@ -466,6 +478,7 @@ class BlobFinder:
             touches_edge=touches_edge,
             touches_window=touches_window,
             blind=blind,
+            dark_limb=dark_limb,
             spread=(spread_major, spread_minor),
             patch=BlobPatch(
                 diff=dd,
@@ -476,6 +489,7 @@ class BlobFinder:
                 noise_sigma=sigma,
                 blur_length=blur,
                 blur_angle=angle,
+                unseen=unseen if dark_limb else None,
             ),
         )
         blob.reason = self._gate(blob)
@@ -557,7 +571,7 @@ class BlobFinder:
             return f"blob shape rejected (fill ratio {b.fill:.2f} < {self.min_fill:g})"
         if b.elongation > self.max_elong:
             return f"blob shape rejected (elongation {b.elongation:.1f} > {self.max_elong:g})"
-        if b.blind > MAX_BLIND:
+        if b.blind > MAX_BLIND and not b.dark_limb:
             return (
                 "specimen barely differs from the background behind part of its outline "
                 f"({100 * b.blind:.0f} % of its area unseen)"
@@ -707,6 +721,36 @@ class BlobFinder:
                 break
             sig = max(math.sqrt(float(np.mean(inner * inner))) / trunc, floor)
         return sig
+
+
+#: The shading explains an unseen part of the outline when the specimen's brightness there,
+#: extrapolated from its lit part, has lost at least this share of the blob's contrast
+#: towards the background. [1]  Common practice, no source.
+DARK_LIMB_DROP = 0.5
+
+
+def _shading_explains(spec, bb, unseen, core) -> bool:
+    """Whether the unseen part of a blob's outline is its own shaded side.
+
+    ``spec`` is the specimen's brightness extrapolated from its core (a plane: the shading),
+    ``bb`` the background behind it, ``unseen`` the pixels next to the blob where the two
+    barely differ, ``core`` the pixels the specimen covers throughout.  A ball lit from the
+    side fades into the background on its dark side: there the shading has carried the
+    specimen's brightness from its core level most of the way to the background's
+    (:data:`DARK_LIMB_DROP` of the contrast or more), so the outline is unseen because the
+    ball is dark, and the model fit (which renders the shading) is not pulled by it.  Where
+    the shading predicts the specimen as bright as in its core, the unseen part is a
+    background matching the specimen behind it, or something in front of it: not explained.
+    """
+    if not core.any() or not unseen.any():
+        return False
+    level = float(np.median(spec[core]))
+    contrast = level - float(np.median(bb[core]))
+    if abs(contrast) <= 0.0:
+        return False
+    sgn = 1.0 if contrast > 0 else -1.0
+    drop = sgn * (level - spec[unseen])  # how far the shading has darkened the specimen there
+    return float(np.median(drop)) >= DARK_LIMB_DROP * abs(contrast)
 
 
 def _median(a: np.ndarray) -> float:

@@ -28,7 +28,14 @@ The steps, per run (steps 2, 4 and 5, one frame's blobs, are in :mod:`fitdrag.vi
    fill ratio and elongation.  Rejected: blobs touching the frame edge (a cut ball has a
    biased centroid), blobs whose size departs from the track's (partly hidden, or merged
    with clutter), and blobs whose outline is partly unseen because the specimen barely
-   differs from the background behind it.
+   differs from the background behind it, unless the specimen's own shading explains it: a
+   ball lit from the side fades into the background on its shaded side, so a blob is kept
+   when its shading, extrapolated from its core, has carried its brightness at least half
+   way to the background's where the outline is unseen (``Blob.dark_limb``); with a lens,
+   once the track's lamp is found (:mod:`fitdrag.video.lamp`), such a frame stays only if
+   the Lambertian ball under that lamp predicts the same (its fit renders the shading, so
+   the unseen limb, whose pixels carry no contrast, does not pull the outline), and without
+   a lamp it is refused as before.
 5. **Centroid**: the intensity-weighted centroid of the background-subtracted image over a
    window around the blob (the blob dilated by three pixels), each pixel's value divided by
    the local contrast between specimen and background (a per-pixel coverage estimate,
@@ -69,7 +76,13 @@ import numpy as np
 
 from fitdrag.errors import InputError
 from fitdrag.video.background import estimate_background
-from fitdrag.video.blobs import MAX_BLIND, BlobFinder, fast_median
+from fitdrag.video.blobs import (
+    DARK_LIMB_DROP,
+    MAX_BLIND,
+    SEEN_CONTRAST,
+    BlobFinder,
+    fast_median,
+)
 from fitdrag.video.fit_worker import fit_blobs, prepare_fits
 from fitdrag.video.movers import Follower, OtherMover, frame_ranges
 from fitdrag.video.sources import ArraySource, FolderSource, FrameSource, open_source
@@ -108,7 +121,7 @@ class Detections:
         of its neighbours'), a path term ``1 - (r / path_tolerance)**2``
         (``r`` the distance from the path its neighbours define; 0.5 when too few neighbours
         to check) and an outline term ``1 - u / 0.1`` (``u`` the unseen share of the outline,
-        see the module notes).
+        see the module notes; 0 for a dark limb the shading explains).
     area_px : ndarray
         Integrated coverage of the blob: the specimen's apparent area, unchanged by motion
         blur. [px^2]
@@ -506,7 +519,8 @@ def detect_specimen(
     )
     missing.update(reasons)
     snr = np.array([b.snr for b in blobs_ok])
-    blind = np.array([b.blind for b in blobs_ok])
+    # an unseen dark limb (kept: the model fit renders the shading) does not lower it
+    blind = np.array([0.0 if b.dark_limb else b.blind for b in blobs_ok])
     quality = (
         snr**2 / (snr**2 + 100.0) * size_term * path_term * np.clip(1 - blind / MAX_BLIND, 0, 1)
     )
@@ -522,7 +536,25 @@ def detect_specimen(
             )
         shutter = float(readout_time) if rate else 0.0
         shape_of = (lens, shutter, float(rate or 0.0))
-    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of)
+    outline = _fit_kept(blobs_ok, frames, keep, xs, ys, sig, quality, shape_of,
+                        seen=SEEN_CONTRAST * float(threshold_sigma))  # fmt: skip
+    unexplained = outline.pop("unexplained")
+    if unexplained.any():  # refused after all: the lamp's shading does not explain them
+        gone = np.flatnonzero(keep)[unexplained]
+        why = (
+            "no lamp was found from the ball's shading to explain it (track with the lens)"
+            if outline["lamp_direction"] is None
+            else "where the lamp's shading does not darken it"
+        )
+        for i in gone:
+            missing[int(frames[i])] = (
+                "specimen barely differs from the background behind part of its outline "
+                f"({100 * blobs_ok[i].blind:.0f} % of its area unseen) {why}"
+            )
+        keep = keep.copy()
+        keep[gone] = False
+        outline = {k: v[~unexplained] if isinstance(v, np.ndarray) else v
+                   for k, v in outline.items()}  # fmt: skip
     out = Detections(
         frame=frames[keep],
         x_px=xs[keep],
@@ -669,13 +701,16 @@ def reasons_by_range(missing: dict[int, str], limit: int = 4) -> str:
 _FALLBACK_SIGMA_FACTOR = 3.0
 
 
-def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
+def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None, *, seen: float) -> dict:
     """Model fit of each kept detection (:func:`fitdrag.video.fit_worker.fit_blobs`):
     replaces the centroid and sigma in place where it succeeds; where it fails keeps the
     weighted centroid with a larger sigma and halves the quality.  ``shape_of`` = (lens,
     readout time [s], frame rate [1/s]) fits the outline the camera gives a sphere
-    (:func:`fitdrag.video.sphere_outline.outline_maps`).  Returns the outline columns of
-    :class:`Detections`."""
+    (:func:`fitdrag.video.sphere_outline.outline_maps`).  ``seen``: the smallest contrast
+    that shows the outline, in noise levels (a blob kept with an unseen dark limb is checked
+    under the lamp, :func:`fitdrag.video.lamp.dark_limb_explained`).  Returns the outline
+    columns of :class:`Detections` and ``unexplained``, per fit whether its unseen dark
+    limb stays unexplained (the frame is then refused)."""
     idx = np.flatnonzero(keep)
     n = idx.size
     diam = np.full(n, np.nan)
@@ -704,13 +739,27 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
         maps = list(zip(outline_m, motion_m, strict=True))
     fits = fit_blobs([blobs[i] for i in idx], frames[idx], ang.tolist(), maps)
     if maps is not None:  # the lamp's direction, then every blob under it
-        from fitdrag.video.lamp import lamp_refits
+        from fitdrag.video.lamp import dark_limb_explained, lamp_refits
         from fitdrag.video.sphere_outline import disc_axes
 
+        axes = disc_axes(lens, xs[idx], ys[idx])
         fits, lamp = lamp_refits([blobs[i] for i in idx], [int(k) for k in frames[idx]],
-                                  ang.tolist(), maps, disc_axes(lens, xs[idx], ys[idx]), fits,
-                                  fit_blobs)  # fmt: skip
+                                  ang.tolist(), maps, axes, fits, fit_blobs)  # fmt: skip
+    # A frame kept with an unseen dark limb stays only when the lamp's shading explains it.
+    unexplained = np.zeros(n, bool)
+    for j, i in enumerate(idx):
+        if blobs[i].dark_limb:
+            unexplained[j] = lamp is None or not dark_limb_explained(
+                blobs[i],
+                fits[j],
+                maps[j][0],
+                axes[j].T @ lamp,
+                DARK_LIMB_DROP,
+                seen * blobs[i].patch.noise_sigma,
+            )
     for j, (i, fit) in enumerate(zip(idx, fits, strict=True)):
+        if unexplained[j]:
+            continue
         if fit.success:
             xs[i], ys[i], sig[i] = fit.x, fit.y, fit.sigma
             diam[j], u_diam[j] = fit.diameter, fit.u_diameter
@@ -727,6 +776,7 @@ def _fit_kept(blobs, frames, keep, xs, ys, sig, quality, shape_of=None) -> dict:
         "model_fit": ok,
         "outline_measure": "across_motion" if shape_of is None else "depth",
         "lamp_direction": None if lamp is None else tuple(float(v) for v in lamp),
+        "unexplained": unexplained,
     }
 
 

@@ -27,7 +27,7 @@ import math
 
 import numpy as np
 
-__all__ = ["LAMP_PROBES", "lamp_refits"]
+__all__ = ["LAMP_PROBES", "dark_limb_explained", "lamp_refits"]
 
 #: Blobs, spread over the flight, whose total misfit decides the lamp's direction.
 LAMP_PROBES = 24
@@ -110,3 +110,55 @@ def lamp_refits(blobs, frames, angles, maps, axes, fits, fit_blobs):
     lamp = _direction(best.x)
     again = fit_blobs(blobs, frames, angles, maps, [axes[i].T @ lamp for i in range(len(blobs))])
     return [g if g.success else f for f, g in zip(fits, again, strict=True)], lamp
+
+
+def dark_limb_explained(blob, fit, outline_map, lamp, drop: float, seen: float) -> bool:
+    """Whether the lamp's shading explains the unseen part of a blob's outline.
+
+    A blob kept with an unseen dark limb (``blob.dark_limb``: where its outline is unseen,
+    its shading extrapolated from its core has darkened it towards the background; the
+    patch's ``unseen`` pixels) is checked again once the lamp is known.  The fitted
+    Lambertian ball (``fit``, under ``lamp``, the unit direction towards the lamp in the
+    blob's circle frame) has at its outline in direction ``n = (cos phi, sin phi, 0)`` the
+    brightness ``a_0 + a_1 n_x + a_2 n_y + a_4 max(n . L, 0)`` (Lambert's cosine law, see
+    the module notes), at its centre (``n = (0, 0, 1)``) ``a_0 + a_3 + a_4 max(L_z, 0)``.
+    At the unseen pixels' directions (median over them) the outline is
+
+    * seen after all when that brightness differs from the background behind those pixels
+      by at least ``seen`` [grey levels] (the extrapolated shading was wrong: the pixels are
+      background and the outline ends before them);
+    * explained by the shading when the brightness there has moved from the centre's
+      towards the background by at least ``drop`` of the centre's contrast against the
+      background behind the centre (:data:`fitdrag.video.blobs.DARK_LIMB_DROP`);
+    * otherwise not explained: a lit part of the ball against a background as bright as
+      itself, or something as bright in front of it.
+
+    ``outline_map`` (2, 2) takes image offsets to the circle frame. [1]  A fit without the
+    lamp's term (its lamp fit failed) explains nothing.
+    """
+    pt = blob.patch
+    if pt is None or pt.unseen is None or not fit.success or len(fit.shading) != 6:
+        return False
+    rows, cols = np.nonzero(pt.unseen)
+    if rows.size == 0:
+        return False
+    ox, oy = pt.origin
+    off = np.vstack([cols + ox - fit.x, rows + oy - fit.y])
+    disc = np.asarray(outline_map, dtype=float) @ off
+    phi = np.arctan2(disc[1], disc[0])
+    nx, ny = np.cos(phi), np.sin(phi)
+    a = fit.shading
+    lam = np.asarray(lamp, dtype=float)
+    limb = float(np.median(a[0] + a[1] * nx + a[2] * ny
+                           + a[4] * np.maximum(nx * lam[0] + ny * lam[1], 0.0)))  # fmt: skip
+    centre = a[0] + a[3] + a[4] * max(float(lam[2]), 0.0)
+    behind = float(np.median(pt.gain * pt.background[rows, cols]))
+    if abs(limb - behind) >= seen:
+        return True
+    h, w = pt.background.shape
+    i = min(max(int(round(fit.y - oy)), 1), h - 2)
+    j = min(max(int(round(fit.x - ox)), 1), w - 2)
+    contrast = centre - float(np.median(pt.gain * pt.background[i - 1 : i + 2, j - 1 : j + 2]))
+    if contrast == 0.0:
+        return False
+    return math.copysign(1.0, contrast) * (centre - limb) >= drop * abs(contrast)
