@@ -228,3 +228,21 @@ def ar1_restricted_likelihood(r0, j0, blocks, phis) -> float:
     q, rr = np.linalg.qr(j)
     e = r - q @ (q.T @ r)
     return (n - p) * math.log(float(e @ e)) + logdet + np.linalg.slogdet(rr.T @ rr)[1]
+
+
+#: Python source that, run first in a fresh interpreter (``exec``), collects in ``compiled``
+#: every function numba's compiler runs a pass on: numba.core.event broadcasts
+#: "numba:run_pass" for each compiler pass and never for a load from the disk cache.
+NUMBA_PASSES = """
+from numba.core import event
+compiled = set()
+
+class _Passes(event.Listener):
+    def on_start(self, ev):
+        compiled.add(ev.data["qualname"])
+
+    def on_end(self, ev):
+        pass
+
+event.register("numba:run_pass", _Passes())
+"""

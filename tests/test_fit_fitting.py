@@ -20,6 +20,7 @@ import functools
 import inspect
 import math
 import re
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -586,18 +587,10 @@ def test_drag_at_its_upper_bound_is_a_failure():
 # (numba.core.event "numba:run_pass": broadcast for each compiler pass, never for a load
 # from the disk cache).
 _FRESH_FIT = """
-import json
-from numba.core import event
-compiled = set()
-
-class _Passes(event.Listener):
-    def on_start(self, ev):
-        compiled.add(ev.data["qualname"])
-
-    def on_end(self, ev):
-        pass
-
-event.register("numba:run_pass", _Passes())
+import json, sys
+sys.path.insert(0, sys.argv[1])
+from reference import NUMBA_PASSES
+exec(NUMBA_PASSES)
 import numpy as np
 import fitdrag
 
@@ -628,8 +621,9 @@ def test_a_fresh_process_fits_without_compiling():
 
     env = {k: v for k, v in os.environ.items() if not k.startswith("NUMBA_")}
     for _ in range(2):
-        out = subprocess.run([sys.executable, "-c", _FRESH_FIT], capture_output=True,
-                             text=True, check=True, env=env, timeout=900).stdout  # fmt: skip
+        out = subprocess.run([sys.executable, "-c", _FRESH_FIT, str(Path(__file__).parent)],
+                             capture_output=True, text=True, check=True, env=env,
+                             timeout=900).stdout  # fmt: skip
     second = json.loads(out.splitlines()[-1])
     assert second["models"] == ["white", "ar1"]
     assert second["compiled"] == []

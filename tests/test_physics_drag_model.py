@@ -225,17 +225,8 @@ def test_callback_function_defined_outside_a_file_is_compiled_without_the_cache(
 _FRESH_PROCESS = """
 import json, sys
 sys.path.insert(0, sys.argv[1])
-from numba.core import event
-compiled = set()
-
-class _Passes(event.Listener):
-    def on_start(self, ev):
-        compiled.add(ev.data["qualname"])
-
-    def on_end(self, ev):
-        pass
-
-event.register("numba:run_pass", _Passes())
+from reference import NUMBA_PASSES
+exec(NUMBA_PASSES)
 import numpy as np
 from fitdrag.physics.air import Air
 from fitdrag.physics.drag_laws import BUILTIN_MODELS

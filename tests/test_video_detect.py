@@ -479,32 +479,16 @@ def test_side_lit_frames_without_a_lens_are_refused_with_the_reason():
     by fitdrag.geometry.render_views, synthetic) tracked without a lens: no lamp is found
     from its shading, so the frames whose shaded side fades into the background are refused
     with the reason (with the lens they are measured: tests/test_video_lamp.py)."""
-    import math
+    from views_reference import lit_ball_clip
 
-    from fitdrag.geometry.camera import Camera
-    from fitdrag.geometry.render_views import ViewRenderer, camera_looking_at
-    from fitdrag.physics.air import Air
-    from fitdrag.physics.flight3d import Launch3D, simulate_3d
-    from fitdrag.physics.forces import Conditions
-    from fitdrag.physics.specimen import Sphere
-
-    ball = Sphere(0.024, 0.065)
-    t = np.arange(-5, 90) / FPS
-    launch = Launch3D.from_speed_angles(8.0, 25.0, 1.0, x0=0.2, y0=0.6, z0=0.05)
-    flight = simulate_3d(t, launch, ball, Conditions(Air(1.2)), drag_params=0.5, t0=-0.01)
-    base = Camera(750.0, 750.0, 320.0, 200.0, (0.0,) * 5, (640, 400))
-    target = np.array([0.6, 0.8, 0.0])
-    cam = camera_looking_at(base, target + 3.0 * np.array([math.sin(-0.3), 0.0, math.cos(-0.3)]),
-                            target)  # fmt: skip
-    r = ViewRenderer(flight, cam, 70, FPS, radius=ball.diameter / 2, exposure=0.5e-3,
-                     light=(-0.7, -0.2, -0.69), ambient=0.5, seed=3)  # fmt: skip
-    det = detect_specimen(np.stack([r.frame(k) for k in range(70)]), fps=FPS)
+    _r, frames, _camera = lit_ball_clip((-0.7, -0.2, -0.69), 3, 70, FPS, ambient=0.5)
+    det = detect_specimen(frames, fps=FPS)
     refused = [why for _, why in det.missing if "no lamp was found" in why]
     assert refused
     assert all(
         re.fullmatch(
             r"specimen barely differs from the background behind part of its outline "
-            r"\(\d+ % of its area unseen\) no lamp was found from the ball's shading to "
+            r"\(\d+ % of its area unseen\), and no lamp was found from the ball's shading to "
             r"explain it \(track with the lens\)",
             why,
         )

@@ -542,14 +542,14 @@ def detect_specimen(
     if unexplained.any():  # refused after all: the lamp's shading does not explain them
         gone = np.flatnonzero(keep)[unexplained]
         why = (
-            "no lamp was found from the ball's shading to explain it (track with the lens)"
+            ", and no lamp was found from the ball's shading to explain it (track with the lens)"
             if outline["lamp_direction"] is None
-            else "where the lamp's shading does not darken it"
+            else " where the lamp's shading does not darken it"
         )
         for i in gone:
             missing[int(frames[i])] = (
                 "specimen barely differs from the background behind part of its outline "
-                f"({100 * blobs_ok[i].blind:.0f} % of its area unseen) {why}"
+                f"({100 * blobs_ok[i].blind:.0f} % of its area unseen){why}"
             )
         keep = keep.copy()
         keep[gone] = False
