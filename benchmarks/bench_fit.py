@@ -165,15 +165,21 @@ def evaluation_costs(repeats: int = 2000):
                       ("evaluation, residuals only", lambda: problem.residuals(theta)),
                       ("compiled integrator with sensitivities (floor)", floor(5)),
                       ("compiled integrator, positions only (floor)", floor(0))):  # fmt: skip
-        fn()
-        times = []
-        for _ in range(5):
-            t0 = time.perf_counter()
-            for _ in range(repeats // 5):
-                fn()
-            times.append((time.perf_counter() - t0) / (repeats // 5))
-        out[label] = 1e6 * float(np.median(times))
+        out[label] = per_call_us(fn, repeats)
     return out
+
+
+def per_call_us(fn, repeats: int = 200) -> float:
+    """Median µs of one call of ``fn`` over 5 batches of ``repeats // 5`` calls (after one
+    call not timed); also used by bench_fit_3d.py."""
+    fn()
+    times = []
+    for _ in range(5):
+        t0 = time.perf_counter()
+        for _ in range(repeats // 5):
+            fn()
+        times.append((time.perf_counter() - t0) / (repeats // 5))
+    return 1e6 * float(np.median(times))
 
 
 _COLD = """

@@ -65,6 +65,7 @@ from scipy.integrate import solve_ivp  # noqa: E402
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 import views_reference as ref  # noqa: E402
+from bench_fit import per_call_us  # noqa: E402
 
 from fitdrag.fit.image_fit import fit_views  # noqa: E402
 from fitdrag.fit.image_refit import ViewRefitSession, rebuild_problem, refit_views  # noqa: E402
@@ -181,17 +182,6 @@ def timed(fn, repeats):
     return float(np.median(times)), result
 
 
-def _per_call(fn, repeats=200):
-    fn()
-    times = []
-    for _ in range(5):
-        t0 = time.perf_counter()
-        for _ in range(repeats // 5):
-            fn()
-        times.append((time.perf_counter() - t0) / (repeats // 5))
-    return 1e6 * float(np.median(times))
-
-
 def evaluation_costs(views, result, baseline):
     """Median µs of one evaluation of fitdrag's problem (with Jacobian), of the baseline's
     residuals, and of one bare call of the compiled 3-D integrator (the floor)."""
@@ -223,10 +213,10 @@ def evaluation_costs(views, result, baseline):
                               F._dp.P)  # fmt: skip
 
     return {
-        "fitdrag evaluation, residuals + Jacobian": _per_call(full),
-        "compiled 3-D integrator with sensitivities (floor)": _per_call(floor(fm.n_params)),
-        "compiled 3-D integrator, positions only": _per_call(floor(0)),
-        "baseline residuals (solve_ivp + projectPoints)": _per_call(
+        "fitdrag evaluation, residuals + Jacobian": per_call_us(full),
+        "compiled 3-D integrator with sensitivities (floor)": per_call_us(floor(fm.n_params)),
+        "compiled 3-D integrator, positions only": per_call_us(floor(0)),
+        "baseline residuals (solve_ivp + projectPoints)": per_call_us(
             lambda: baseline.residual_function(baseline.params), 10
         ),
     }

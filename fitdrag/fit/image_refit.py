@@ -17,6 +17,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.fit._solver_steps import GAUSS_NEWTON, normal_step
 from fitdrag.fit.image_problem import ImageProblem
 from fitdrag.fit.refit import Refit, chord_matrices, conditions_with
 from fitdrag.fit.results import cd_and_gradient
@@ -292,12 +293,8 @@ class ViewRefitSession:
             res, jac, _sims, ok = problem.evaluate(theta)
             if not ok:
                 return None
-            jtj = jac.T @ jac
-            d = np.sqrt(np.diag(jtj))
-            d[d == 0] = 1.0
-            try:
-                step = -np.linalg.solve(jtj / np.outer(d, d), (jac.T @ res) / d) / d
-            except np.linalg.LinAlgError:
+            step = normal_step(jac, res, GAUSS_NEWTON)
+            if step is None:
                 return None
             theta = theta + step
             if np.any(theta < lo) or np.any(theta > hi):

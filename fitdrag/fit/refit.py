@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from fitdrag.errors import InputError
+from fitdrag.fit._solver_steps import GAUSS_NEWTON, normal_step
 from fitdrag.fit.problem import Problem, as_tracks
 from fitdrag.fit.results import FitResult
 from fitdrag.fit.solvers import gauss_newton, trust_region
@@ -267,13 +268,10 @@ class RefitSession:
             res, jac, _sims, ok = problem.evaluate(theta)
             if not ok:
                 return None
-            jtj = jac.T @ jac
-            d = np.sqrt(np.diag(jtj))
-            d[d == 0] = 1.0
-            try:
-                theta = theta - np.linalg.solve(jtj / np.outer(d, d), (jac.T @ res) / d) / d
-            except np.linalg.LinAlgError:
+            step = normal_step(jac, res, GAUSS_NEWTON)
+            if step is None:
                 return None
+            theta = theta + step
             if np.any(theta < self.lo) or np.any(theta > self.hi):
                 return None
         p_full = np.concatenate((theta[: self.n_fit], result.constants)).astype(float)
